@@ -1,0 +1,20 @@
+"""File writing that never leaves a half-written file that looks complete."""
+
+import os
+import tempfile
+from pathlib import Path
+
+
+def atomic_write_text(path, text):
+    """Write ``text`` to ``path`` through a temporary file and an atomic rename."""
+    path = Path(path)
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".part")
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as handle:
+            handle.write(text)
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise

@@ -1,0 +1,148 @@
+"""Everything the linear engine says about a scenario, in one frozen report.
+
+:func:`inspect_scenario` runs operating point, linear model, stability and
+steady state, and collects the regime warnings an experimenter should read.
+The report converts to plain data (``to_dict``) for ``noisechain inspect
+--json`` and to text for the terminal.
+"""
+
+import dataclasses
+import math
+
+from simulator.model import linear_model
+from simulator.operating_point import operating_point
+from simulator.steady_state import STRONG_COUPLING_TOLERANCE, stability, steady_state
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class Inspection:
+    """Operating point, stability and (when stable) steady state of a scenario."""
+
+    scenario: object
+    point: object
+    stability: object
+    steady: object  # SteadyState, or None when unstable
+    warnings: tuple
+
+    def to_dict(self):
+        """Plain data for JSON: numbers in SI units, frequencies in Hz."""
+        p, st = self.point, self.steady
+        modes = []
+        for j, mp in enumerate(p.modes):
+            entry = {
+                "name": mp.name,
+                "frequency_hz": mp.frequency_hz,
+                "linewidth_hz": mp.linewidth_hz,
+                "single_photon_coupling_hz": mp.single_photon_coupling_hz,
+                "g_hz": mp.coupling_rate_hz,
+                "zero_point_amplitude_m": mp.zero_point_amplitude_m,
+                "bath_occupation": mp.bath_occupation,
+                "cooperativity": mp.cooperativity,
+                "quantum_cooperativity": _finite(mp.quantum_cooperativity),
+                "sideband_resolution": mp.sideband_resolution,
+            }
+            if st is not None:
+                ms = st.modes[j]
+                entry.update({
+                    "optical_damping_hz": ms.optical_damping_hz,
+                    "optical_spring_hz": ms.optical_spring_hz,
+                    "anti_stokes_rate_hz": ms.anti_stokes_rate_hz,
+                    "stokes_rate_hz": ms.stokes_rate_hz,
+                    "effective_frequency_hz": ms.effective_frequency_hz,
+                    "effective_linewidth_hz": ms.effective_linewidth_hz,
+                    "occupation": ms.occupation,
+                    "weak_coupling_occupation": _finite(ms.weak_coupling_occupation),
+                    "backaction_limit": _finite(ms.backaction_limit),
+                })
+            modes.append(entry)
+        return {
+            "scenario": self.scenario.scenario.name,
+            "source": self.scenario.source,
+            "drive_frequency_hz": p.drive_frequency_hz,
+            "input_photon_flux_per_s": p.input_photon_flux,
+            "photon_number": p.photon_number,
+            "photon_number_branches": list(p.branches),
+            "bistable": p.bistable,
+            "branch": p.branch,
+            "detuning_bare_hz": p.detuning_bare_hz,
+            "detuning_effective_hz": p.detuning_effective_hz,
+            "static_shift_hz": p.static_shift_hz,
+            "stable": self.stability.stable,
+            "growth_rate_hz": self.stability.growth_rate_hz,
+            "instability_cause": self.stability.cause,
+            "cavity_occupation": None if st is None else st.cavity_occupation,
+            "modes": modes,
+            "warnings": list(self.warnings),
+        }
+
+    def to_text(self):
+        """Human-readable report for the terminal."""
+        d = self.to_dict()
+        lines = [f"scenario {d['scenario']}  ({d['source']})", "",
+                 "operating point"]
+        lines.append(f"  intracavity photons    {d['photon_number']:.6g}"
+                     + ("   (bistable: branches " + ", ".join(
+                         f"{b:.6g}" for b in d["photon_number_branches"])
+                        + f"; using {d['branch']})" if d["bistable"] else ""))
+        lines.append(f"  detuning bare          {d['detuning_bare_hz']:.6g} Hz")
+        lines.append(f"  detuning effective     {d['detuning_effective_hz']:.6g} Hz"
+                     f"   (static shift {d['static_shift_hz']:.6g} Hz)")
+        verdict = "stable" if d["stable"] else f"UNSTABLE: {d['instability_cause']}"
+        lines.append(f"  stability              {verdict}"
+                     f"   (max growth rate {d['growth_rate_hz']:.6g} Hz)")
+        if d["cavity_occupation"] is not None:
+            lines.append(f"  cavity occupation      {d['cavity_occupation']:.6g}")
+        rows = [("g (Hz)", "g_hz"), ("bath occupation", "bath_occupation"),
+                ("cooperativity", "cooperativity"),
+                ("quantum cooperativity", "quantum_cooperativity"),
+                ("sideband resolution Ωm/κ", "sideband_resolution"),
+                ("optical damping (Hz)", "optical_damping_hz"),
+                ("optical spring (Hz)", "optical_spring_hz"),
+                ("effective frequency (Hz)", "effective_frequency_hz"),
+                ("effective linewidth (Hz)", "effective_linewidth_hz"),
+                ("occupation (exact)", "occupation"),
+                ("occupation (weak coupling)", "weak_coupling_occupation"),
+                ("back-action limit n_min", "backaction_limit")]
+        for mode in d["modes"]:
+            lines += ["", f"mode {mode['name']}"]
+            for label, key in rows:
+                if key in mode:
+                    value = mode[key]
+                    text = "inf" if value is None else f"{value:.6g}"
+                    lines.append(f"  {label:<28}{text}")
+        if d["warnings"]:
+            lines += ["", "warnings"] + [f"  - {w}" for w in d["warnings"]]
+        return "\n".join(lines)
+
+
+def _finite(x):
+    return x if math.isfinite(x) else None
+
+
+def inspect_scenario(scenario):
+    """Operating point, stability, steady state and warnings of ``scenario``.
+
+    Unlike :func:`simulator.steady_state.steady_state`, an unstable operating
+    point does not raise: the report says so and carries no steady state.
+    """
+    point = operating_point(scenario)
+    model = linear_model(scenario, point)
+    verdict = stability(model, point)
+    warnings = []
+    if point.bistable:
+        warnings.append(
+            f"the intracavity photon number is bistable (branches "
+            + ", ".join(f"{b:.4g}" for b in point.branches)
+            + f"); using the {point.branch} branch, set drive.bistable_branch to choose")
+    steady = steady_state(model=model, point=point) if verdict.stable else None
+    if steady is not None:
+        for ms in steady.modes:
+            exact, weak = ms.occupation, ms.weak_coupling_occupation
+            if not math.isfinite(weak) or abs(weak - exact) > STRONG_COUPLING_TOLERANCE * exact:
+                warnings.append(
+                    f"mode {ms.name}: weak-coupling occupation {weak:.4g} differs from the "
+                    f"exact {exact:.4g} by more than {STRONG_COUPLING_TOLERANCE:.0%}; the "
+                    "system is near or in strong coupling and the rate-equation "
+                    "diagnostics do not apply")
+    return Inspection(scenario=scenario, point=point, stability=verdict, steady=steady,
+                      warnings=tuple(warnings))

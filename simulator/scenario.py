@@ -1,0 +1,328 @@
+"""Scenario: the device, drive and detection, loaded from TOML into frozen values.
+
+A scenario file has one table per section (``[drive]``, ``[cavity]``, ...) and
+one ``[[mechanics]]`` table per mechanical mode. Keys carry their unit as a
+suffix and every frequency is an ordinary frequency in Hz. Loading checks
+every key and value and raises :class:`~simulator.errors.ScenarioError` with
+the file, the key path, the value and what was expected.
+
+A :class:`Scenario` is immutable; :meth:`Scenario.replace` derives a new one
+from a parameter path such as ``"mechanics[0].bath_temperature_k"``.
+"""
+
+import dataclasses
+import difflib
+import re
+import tomllib
+from pathlib import Path
+
+from simulator import schema
+from simulator.errors import ScenarioError
+from simulator.schema import param, required_section, section
+
+_frozen = dataclasses.dataclass(frozen=True, kw_only=True)
+
+
+@_frozen
+class ScenarioInfo:
+    """``[scenario]``: what this scenario is."""
+
+    name: str = param("short name used in reports and file names")
+    description: str = param("free text describing the device and purpose", default="")
+    seed: int = param("seed of every random draw made for this scenario",
+                      check="nonnegative", default=0)
+
+
+@_frozen
+class Drive:
+    """``[drive]``: the coherent drive (laser or microwave tone) at the cavity input."""
+
+    EXCLUSIVE = (("wavelength_m", "frequency_hz"),)
+
+    wavelength_m: float | None = param("vacuum wavelength of the drive", unit="m",
+                                       check="positive", default=None)
+    frequency_hz: float | None = param("carrier frequency of the drive", unit="Hz",
+                                       check="positive", default=None)
+    power_w: float = param("drive power arriving at the cavity's external port",
+                           unit="W", check="nonnegative")
+    detuning_hz: float = param("Δ/2π = drive minus cavity frequency; red detuning is "
+                               "negative", unit="Hz", check="real")
+    detuning_reference: str = param(
+        "cavity frequency the detuning is measured from: the bare resonance (no "
+        "light inside) or the effective one including the static radiation-pressure "
+        "shift", choices=("bare", "effective"), default="bare")
+    bistable_branch: str = param(
+        "solution used where the intracavity photon number is bistable, by photon "
+        "number", choices=("lowest", "middle", "highest"), default="lowest")
+
+    @property
+    def carrier_frequency_hz(self):
+        """Drive carrier frequency (Hz), from whichever key the file gave."""
+        if self.frequency_hz is not None:
+            return self.frequency_hz
+        from scipy.constants import c
+
+        return c / self.wavelength_m
+
+
+@_frozen
+class Cavity:
+    """``[cavity]``: the optical or microwave mode."""
+
+    linewidth_hz: float = param("total energy decay rate κ/2π (FWHM)", unit="Hz",
+                                check="positive")
+    external_linewidth_hz: float = param(
+        "decay rate κ_ex/2π into the port that is driven and detected", unit="Hz",
+        check="positive")
+    bath_occupation: float = param(
+        "thermal photon occupation of the internal-loss bath (microwave cavities)",
+        check="nonnegative", default=0.0)
+
+    def problems(self):
+        if self.external_linewidth_hz > self.linewidth_hz:
+            yield ("external_linewidth_hz",
+                   f"{self.external_linewidth_hz!r} is larger than linewidth_hz = "
+                   f"{self.linewidth_hz!r}; expected external_linewidth_hz ≤ "
+                   "linewidth_hz (the external port is part of the total loss)")
+
+
+@_frozen
+class Mechanics:
+    """``[[mechanics]]``: one mechanical mode coupled to the cavity."""
+
+    EXCLUSIVE = (("bath_temperature_k", "bath_occupation"),)
+
+    name: str = param("name of the mode, unique within the scenario")
+    frequency_hz: float = param("resonance frequency Ωm/2π", unit="Hz", check="positive")
+    linewidth_hz: float = param("intrinsic energy damping rate Γm/2π", unit="Hz",
+                                check="positive")
+    effective_mass_kg: float = param("effective mass of the mode", unit="kg",
+                                     check="positive")
+    coupling_hz: float = param("single-photon coupling rate g0/2π", unit="Hz",
+                               check="nonnegative")
+    bath_temperature_k: float | None = param(
+        "temperature of the mode's thermal bath", unit="K", check="nonnegative",
+        default=None)
+    bath_occupation: float | None = param(
+        "mean phonon occupation of the mode's thermal bath", check="nonnegative",
+        default=None)
+
+
+@_frozen
+class Detection:
+    """``[detection]``: how the output field is measured."""
+
+    scheme: str = param("detection scheme", choices=("heterodyne", "homodyne"),
+                        default="heterodyne")
+    efficiency: float = param(
+        "total efficiency from the cavity port to the photocurrent (transmission "
+        "losses times detector quantum efficiency)", check="fraction", default=1.0)
+
+
+@_frozen
+class Scenario:
+    """A complete, validated scenario. Build with :func:`load_scenario`."""
+
+    scenario: ScenarioInfo = required_section("what this scenario is")
+    drive: Drive = required_section("the coherent drive at the cavity input")
+    cavity: Cavity = required_section("the optical or microwave mode")
+    mechanics: tuple[Mechanics, ...] = required_section(
+        "one table per mechanical mode")
+    detection: Detection = section(Detection, "how the output field is measured")
+    source: str = dataclasses.field(default="<memory>", compare=False,
+                                    metadata={"internal": True})
+
+    def problems(self):
+        seen = set()
+        for i, mode in enumerate(self.mechanics):
+            if mode.name in seen:
+                yield (f"mechanics[{i}].name",
+                       f"{mode.name!r} is used by an earlier mode; expected unique names")
+            seen.add(mode.name)
+
+    def to_dict(self):
+        """The scenario as nested plain data, as it would appear in TOML."""
+        return _as_data(self)
+
+    def to_toml(self):
+        """The full scenario as TOML text (embedded in every output file)."""
+        import tomli_w
+
+        return tomli_w.dumps(self.to_dict())
+
+    def get(self, path):
+        """Value at a parameter path such as ``"mechanics[0].frequency_hz"``."""
+        node = self
+        for name, index in _split_path(path, self.source):
+            try:
+                node = getattr(node, name)
+                if index is not None:
+                    node = node[index]
+            except (AttributeError, IndexError):
+                raise ScenarioError(f"no parameter at path {path!r}",
+                                    source=self.source, key=path) from None
+        return node
+
+    def replace(self, path, value):
+        """New scenario with the parameter at ``path`` set to ``value``, re-validated.
+
+        Setting one of two exclusive keys (for example ``bath_temperature_k``)
+        clears the other one.
+        """
+        data = self.to_dict()
+        *parents, (leaf, leaf_index) = _split_path(path, self.source)
+        node = data
+        for name, index in parents:
+            if name not in node:
+                node[name] = {}
+            node = node[name] if index is None else node[name][index]
+        if leaf_index is not None or not isinstance(node, dict):
+            raise ScenarioError(f"path {path!r} does not name a single parameter",
+                                source=self.source, key=path)
+        node[leaf] = value
+        owner = self.get(".".join(_join(parents))) if parents else self
+        for group in getattr(type(owner), "EXCLUSIVE", ()):
+            if leaf in group:
+                for other in group:
+                    if other != leaf:
+                        node.pop(other, None)
+        return scenario_from_dict(data, source=self.source)
+
+
+def _join(parts):
+    return [name if index is None else f"{name}[{index}]" for name, index in parts]
+
+
+_PATH_PART = re.compile(r"^([A-Za-z_][A-Za-z0-9_]*)(?:\[(\d+)\])?$")
+
+
+def _split_path(path, source):
+    parts = []
+    for token in str(path).split("."):
+        match = _PATH_PART.match(token)
+        if not match:
+            raise ScenarioError(
+                f"malformed parameter path {path!r}; expected names joined by dots, "
+                "with [index] after an array of tables, e.g. 'mechanics[0].frequency_hz'",
+                source=source, key=str(path))
+        index = match.group(2)
+        parts.append((match.group(1), None if index is None else int(index)))
+    return parts
+
+
+def _as_data(obj):
+    if dataclasses.is_dataclass(obj):
+        out = {}
+        for f in schema.public_fields(type(obj)):
+            value = getattr(obj, f.name)
+            if value is not None:
+                out[f.name] = _as_data(value)
+        return out
+    if isinstance(obj, tuple):
+        return [_as_data(v) for v in obj]
+    return obj
+
+
+def load_scenario(path):
+    """Load and validate a scenario file.
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        TOML file.
+
+    Returns
+    -------
+    Scenario
+
+    Raises
+    ------
+    ScenarioError
+        If the file is missing, malformed or describes an invalid scenario.
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ScenarioError("file not found; expected a scenario TOML file",
+                            source=str(path)) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ScenarioError(f"cannot read the file ({exc})", source=str(path)) from None
+    return parse_scenario(text, source=str(path))
+
+
+def parse_scenario(text, *, source="<string>"):
+    """Validate a scenario given as TOML text; see :func:`load_scenario`."""
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ScenarioError(f"malformed TOML: {exc}", source=source) from None
+    return scenario_from_dict(data, source=source)
+
+
+def scenario_from_dict(data, *, source="<memory>"):
+    """Validate nested plain data (as parsed from TOML) into a :class:`Scenario`."""
+    built = _build(Scenario, data, "", source)
+    return dataclasses.replace(built, source=source)
+
+
+def _build(cls, data, path, source):
+    label = f"[{path}]" if path else "the top level"
+    if not isinstance(data, dict):
+        raise ScenarioError(f"{data!r} is not a table; expected a TOML table",
+                            source=source, key=path or None)
+    fields = {f.name: f for f in schema.public_fields(cls)}
+    for key in data:
+        if key not in fields:
+            close = difflib.get_close_matches(key, list(fields), n=1, cutoff=0.5)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            valid = ", ".join(fields)
+            raise ScenarioError(f"unknown key {key!r} in {label}{hint} "
+                                f"(valid keys: {valid})",
+                                source=source, key=_key(path, key))
+    values = {}
+    for name, f in fields.items():
+        key = _key(path, name)
+        kind, tp, optional = schema.field_kind(cls, name)
+        if name not in data:
+            if f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING:
+                what = "table" if kind == "section" else (
+                    "array of tables" if kind == "sections" else "key")
+                raise ScenarioError(f"missing required {what} {name!r} in {label}; "
+                                    f"expected {f.metadata.get('doc', name)}",
+                                    source=source, key=key)
+            continue
+        value = data[name]
+        if kind == "section":
+            values[name] = _build(tp, value, key, source)
+        elif kind == "sections":
+            if not isinstance(value, list) or not value:
+                raise ScenarioError(f"expected one or more [[{name}]] tables, got {value!r}",
+                                    source=source, key=key)
+            values[name] = tuple(_build(tp, item, f"{key}[{i}]", source)
+                                 for i, item in enumerate(value))
+        else:
+            ok, converted = schema.convert_scalar(value, tp)
+            if not ok:
+                raise ScenarioError(
+                    f"{value!r} has the wrong type ({type(value).__name__}); expected "
+                    f"{schema.expectation(f, tp)}", source=source, key=key)
+            problem = schema.range_problem(f, tp, converted)
+            if problem:
+                raise ScenarioError(problem, source=source, key=key)
+            values[name] = converted
+    for group in getattr(cls, "EXCLUSIVE", ()):
+        given = [k for k in group if k in values and values[k] is not None]
+        if len(given) != 1:
+            found = ("none" if not given else "both: " + ", ".join(
+                f"{k} = {values[k]!r}" for k in given))
+            raise ScenarioError(f"give exactly one of {' or '.join(group)} in {label}; "
+                                f"found {found}", source=source, key=_key(path, group[0]))
+    obj = cls(**values)
+    for key, message in getattr(obj, "problems", lambda: ())():
+        raise ScenarioError(message, source=source, key=_key(path, key))
+    return obj
+
+
+def _key(path, name):
+    return f"{path}.{name}" if path else name

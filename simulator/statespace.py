@@ -1,0 +1,97 @@
+"""One linear stochastic model with named signals: the engine's single source of truth.
+
+    dx = A x dt + B dW,        y dt = C x dt + D dW,
+    E[dW dWᵀ] = N dt  (symmetrised, two-sided input intensities).
+
+The state holds quadratures of the cavity, of every mechanical mode and, as the
+project grows, of classical-noise and detection-chain elements. Steady state,
+analytic spectra and time-domain records are all computed from this object.
+With the Fourier convention x(t) = ∫dω/2π e^(−iωt) x(ω) the transfer from
+inputs to outputs is H(ω) = C (−iω − A)⁻¹ B + D.
+"""
+
+import dataclasses
+
+import numpy as np
+import scipy.linalg
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class StateSpace:
+    """Linear stochastic model with named states, inputs and outputs.
+
+    Parameters
+    ----------
+    A : ndarray (n, n)
+        Drift matrix (1/s).
+    B : ndarray (n, m)
+        Noise-input matrix (1/√s for white inputs of unit intensity).
+    N : ndarray (m, m)
+        Symmetrised two-sided intensity of the white inputs (½ for vacuum,
+        n + ½ for a thermal bath of occupation n).
+    C : ndarray (p, n)
+        Output matrix.
+    D : ndarray (p, m)
+        Feed-through of the inputs to the outputs.
+    states, inputs, outputs : tuple of str
+        Names, in order.
+    sources : tuple of (str, tuple of int)
+        Physical noise sources: a name and the input indices it drives, used to
+        split spectra into a noise budget.
+    coupling : ndarray (n, n)
+        The part of ``A`` that couples the cavity to the mechanics; ``A −
+        coupling`` is the uncoupled system, used to separate measurement
+        imprecision from back-action.
+    """
+
+    A: np.ndarray
+    B: np.ndarray
+    N: np.ndarray
+    C: np.ndarray
+    D: np.ndarray
+    states: tuple
+    inputs: tuple
+    outputs: tuple
+    sources: tuple = ()
+    coupling: np.ndarray | None = None
+
+    def __post_init__(self):
+        n, m, p = len(self.states), len(self.inputs), len(self.outputs)
+        for name, shape in (("A", (n, n)), ("B", (n, m)), ("N", (m, m)),
+                            ("C", (p, n)), ("D", (p, m))):
+            value = np.asarray(getattr(self, name), dtype=float)
+            if value.shape != shape:
+                raise ValueError(f"StateSpace.{name} has shape {value.shape}; "
+                                 f"expected {shape} from the named signals")
+            value.setflags(write=False)
+            object.__setattr__(self, name, value)
+        coupling = np.zeros((n, n)) if self.coupling is None else np.asarray(self.coupling)
+        coupling.setflags(write=False)
+        object.__setattr__(self, "coupling", coupling)
+
+    @property
+    def diffusion(self):
+        """State diffusion matrix B N Bᵀ (symmetric)."""
+        return self.B @ self.N @ self.B.T
+
+    def index(self, name, kind="states"):
+        """Position of a named state, input or output."""
+        names = getattr(self, kind)
+        try:
+            return names.index(name)
+        except ValueError:
+            raise KeyError(f"no {kind[:-1]} named {name!r}; have {', '.join(names)}") from None
+
+    def eigenvalues(self):
+        """Eigenvalues of A (1/s), sorted by decreasing real part."""
+        lam = np.linalg.eigvals(self.A)
+        return lam[np.argsort(-lam.real)]
+
+    def covariance(self):
+        """Stationary symmetrised covariance V solving A V + V Aᵀ + B N Bᵀ = 0.
+
+        Only meaningful for a stable model (all eigenvalues of A in the left
+        half-plane); the caller checks stability first.
+        """
+        v = scipy.linalg.solve_continuous_lyapunov(self.A, -self.diffusion)
+        return 0.5 * (v + v.T)

@@ -1,0 +1,182 @@
+"""Stability and the exact steady state of the linear model.
+
+Stability comes from the eigenvalues of the drift matrix A; the stationary
+covariance from the Lyapunov equation A V + V Aᵀ + B N Bᵀ = 0, which is exact
+for the linear model at any coupling strength. Occupations follow from the
+quadrature variances, n = (⟨X²⟩ + ⟨Y²⟩ − 1)/2. Each mode's effective frequency
+and linewidth are read from the eigenvalue of A whose eigenvector lies most on
+that mode; the weak-coupling formulas of :mod:`simulator.weak_coupling` are
+reported beside them as diagnostics.
+"""
+
+import dataclasses
+
+import numpy as np
+from scipy.optimize import linear_sum_assignment
+
+from simulator import weak_coupling
+from simulator.errors import OperatingPointError
+from simulator.model import linear_model
+from simulator.operating_point import operating_point
+from simulator.physics import angular, ordinary
+
+# Weak-coupling and exact occupations further apart than this flag strong coupling.
+STRONG_COUPLING_TOLERANCE = 0.10
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class Stability:
+    """Stability verdict of the linear model."""
+
+    stable: bool
+    growth_rate_hz: float  # max Re(λ)/2π: amplitude growth (> 0) or decay (< 0)
+    cause: str  # plain statement; empty when stable
+    eigenvalues_hz: tuple  # λ/2π, complex, sorted by decreasing real part
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class ModeState:
+    """Steady-state and diagnostic quantities of one mechanical mode.
+
+    Rates are ordinary frequencies (Hz). ``optical_damping_hz`` is an energy
+    damping rate; ``optical_spring_hz`` the shift of the resonance frequency.
+    """
+
+    name: str
+    occupation: float
+    effective_frequency_hz: float
+    effective_linewidth_hz: float
+    anti_stokes_rate_hz: float  # A−/2π
+    stokes_rate_hz: float  # A+/2π
+    optical_damping_hz: float
+    optical_spring_hz: float
+    backaction_limit: float  # n_min
+    weak_coupling_occupation: float
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class SteadyState:
+    """Exact stationary state of the linear model."""
+
+    states: tuple
+    covariance: np.ndarray  # symmetrised, vacuum = ½·identity
+    cavity_occupation: float
+    modes: tuple  # ModeState per mechanical mode
+
+
+def stability(model, point):
+    """Stability verdict from the eigenvalues of ``model.A``.
+
+    Parameters
+    ----------
+    model : simulator.statespace.StateSpace
+    point : simulator.operating_point.OperatingPoint
+        Used to name the cause in the physicist's terms.
+    """
+    lam = model.eigenvalues()
+    scale = np.max(np.abs(np.diag(model.A))) + 1e-300
+    top = lam[0]
+    stable = bool(top.real < -1e-12 * scale)
+    cause = ""
+    if not stable:
+        if abs(top.imag) <= 1e-9 * abs(top) + 1e-300:
+            cause = ("static instability: a real eigenvalue of the drift matrix is "
+                     "positive (det A < 0), the optical spring has pulled a mechanical "
+                     "frequency through zero; this is the unstable branch of a bistable "
+                     "response or an overly strong drive")
+        elif point.detuning_effective_hz > 0:
+            cause = ("parametric instability on blue detuning: optical anti-damping "
+                     "exceeds the intrinsic mechanical damping (Γm + Γopt < 0), so the "
+                     "mechanics self-oscillates")
+        else:
+            cause = ("oscillatory instability: an eigenvalue of the drift matrix has a "
+                     "positive real part")
+    return Stability(stable=stable, growth_rate_hz=float(ordinary(top.real)), cause=cause,
+                     eigenvalues_hz=tuple(complex(x) / (2 * np.pi) for x in lam))
+
+
+def require_stable(verdict):
+    """Raise :class:`OperatingPointError` if the verdict is unstable."""
+    if not verdict.stable:
+        raise OperatingPointError(
+            f"the operating point is unstable (amplitude growth rate "
+            f"{verdict.growth_rate_hz:.6g} Hz): {verdict.cause}. Change the detuning, "
+            "power or damping; the steady state does not exist here.")
+
+
+def steady_state(scenario=None, *, model=None, point=None):
+    """Exact steady state of a scenario's linear model.
+
+    Parameters
+    ----------
+    scenario : simulator.scenario.Scenario, optional
+        Used to build ``point`` and ``model`` where they are not given.
+    model : StateSpace, optional
+    point : OperatingPoint, optional
+
+    Returns
+    -------
+    SteadyState
+
+    Raises
+    ------
+    OperatingPointError
+        If the operating point is unstable (no steady state exists).
+    """
+    if point is None:
+        point = operating_point(scenario)
+    if model is None:
+        model = linear_model(scenario, point)
+    require_stable(stability(model, point))
+    v = model.covariance()
+    cavity_occupation = (v[0, 0] + v[1, 1] - 1.0) / 2.0
+    frequencies, linewidths = effective_mechanics(model, len(point.modes))
+    kappa, delta = angular([point.cavity_linewidth_hz, point.detuning_effective_hz])
+    kappa_in_fraction = 1 - point.external_linewidth_hz / point.cavity_linewidth_hz
+    n_cavity_bath = kappa_in_fraction * point.cavity_bath_occupation
+    modes = []
+    for j, mode in enumerate(point.modes):
+        s = 2 + 2 * j
+        rates = dict(g=float(angular(mode.coupling_rate_hz)), kappa=kappa, detuning=delta,
+                     frequency=float(angular(mode.frequency_hz)))
+        a_minus, a_plus = weak_coupling.scattering_rates(**rates)
+        modes.append(ModeState(
+            name=mode.name,
+            occupation=float((v[s, s] + v[s + 1, s + 1] - 1.0) / 2.0),
+            effective_frequency_hz=frequencies[j], effective_linewidth_hz=linewidths[j],
+            anti_stokes_rate_hz=float(ordinary(a_minus)),
+            stokes_rate_hz=float(ordinary(a_plus)),
+            optical_damping_hz=float(ordinary(a_minus - a_plus)),
+            optical_spring_hz=float(ordinary(weak_coupling.optical_spring(**rates))),
+            backaction_limit=float(weak_coupling.backaction_limit(**rates)),
+            weak_coupling_occupation=float(weak_coupling.weak_coupling_occupation(
+                **rates, linewidth=float(angular(mode.linewidth_hz)),
+                bath_occupation=mode.bath_occupation,
+                cavity_occupation=n_cavity_bath))))
+    return SteadyState(states=model.states, covariance=v,
+                       cavity_occupation=float(cavity_occupation), modes=tuple(modes))
+
+
+def effective_mechanics(model, n_modes):
+    """Effective frequency and linewidth (Hz) of each mechanical mode.
+
+    Each mode is matched to the eigenvalue λ of A (taken with Im λ ≥ 0) whose
+    eigenvector has the largest weight on that mode's quadratures, one
+    eigenvalue per mode (an assignment problem). Frequency |Im λ|/2π,
+    energy linewidth −2 Re λ/2π. Past normal-mode splitting the assignment
+    picks the hybrid mode that is more mechanical.
+    """
+    lam, vec = np.linalg.eig(model.A)
+    candidates = np.flatnonzero(lam.imag >= -1e-12 * np.abs(lam))
+    if len(candidates) < n_modes:
+        candidates = np.arange(len(lam))
+    weights = np.abs(vec) ** 2
+    weights /= weights.sum(axis=0, keepdims=True)
+    score = np.array([[weights[2 + 2 * j, k] + weights[3 + 2 * j, k] for k in candidates]
+                      for j in range(n_modes)])
+    rows, cols = linear_sum_assignment(-score) if n_modes else ((), ())
+    freq, width = np.zeros(n_modes), np.zeros(n_modes)
+    for j, c in zip(rows, cols):
+        chosen = lam[candidates[c]]
+        freq[j], width[j] = abs(chosen.imag) / (2 * np.pi), -2 * chosen.real / (2 * np.pi)
+    return tuple(float(x) for x in freq), tuple(float(x) for x in width)
