@@ -131,7 +131,7 @@ def inspect_scenario(scenario):
     warnings = []
     if point.bistable:
         warnings.append(
-            f"the intracavity photon number is bistable (branches "
+            "the intracavity photon number is bistable (branches "
             + ", ".join(f"{b:.4g}" for b in point.branches)
             + f"); using the {point.branch} branch, set drive.bistable_branch to choose")
     steady = steady_state(model=model, point=point) if verdict.stable else None

@@ -176,7 +176,7 @@ def effective_mechanics(model, n_modes):
                       for j in range(n_modes)])
     rows, cols = linear_sum_assignment(-score) if n_modes else ((), ())
     freq, width = np.zeros(n_modes), np.zeros(n_modes)
-    for j, c in zip(rows, cols):
+    for j, c in zip(rows, cols, strict=False):
         chosen = lam[candidates[c]]
         freq[j], width[j] = abs(chosen.imag) / (2 * np.pi), -2 * chosen.real / (2 * np.pi)
     return tuple(float(x) for x in freq), tuple(float(x) for x in width)
