@@ -1,0 +1,91 @@
+"""The spectrum result type shared by every engine (linear, master equation, records).
+
+A :class:`Spectrum` states everything a reader needs to use its numbers: which
+frequency axis (optical offset from the drive, or baseband), whether it is
+two-sided or one-sided, that it is a density, its units, the total and the
+named contributions of a noise budget, and its provenance.
+"""
+
+import dataclasses
+
+import numpy as np
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class Spectrum:
+    """A spectral density on a frequency grid, with its meaning spelled out.
+
+    Parameters
+    ----------
+    frequency_hz : ndarray
+        The grid (Hz, ordinary frequency).
+    axis : str
+        What the frequency means, e.g. ``"optical offset from the drive (> 0:
+        anti-Stokes)"`` or ``"baseband frequency f >= 0"``.
+    sided : str
+        ``"two-sided"`` or ``"one-sided"``.
+    units : str
+        Units of the density, e.g. ``"shot-noise units (vacuum = 1)"``,
+        ``"m^2/Hz"``.
+    total : ndarray
+        The spectral density on the grid.
+    contributions : dict of str to ndarray
+        Named parts of a noise budget; they sum to ``total`` where given.
+    quantity : str
+        What is measured, e.g. ``"heterodyne output"``.
+    reference : dict of str to ndarray
+        Reference curves on the same grid (standard quantum limit, zero-point
+        spectrum, ...), not part of the budget.
+    calibration : dict of str to float
+        Factors used to convert from the model's native units, with units in
+        the key name.
+    provenance : dict
+        Scenario name, engine, software version and options.
+    """
+
+    frequency_hz: np.ndarray
+    axis: str
+    sided: str
+    units: str
+    total: np.ndarray
+    quantity: str = ""
+    contributions: dict = dataclasses.field(default_factory=dict)
+    reference: dict = dataclasses.field(default_factory=dict)
+    calibration: dict = dataclasses.field(default_factory=dict)
+    provenance: dict = dataclasses.field(default_factory=dict)
+    density: bool = True
+
+    def __post_init__(self):
+        if self.sided not in ("two-sided", "one-sided"):
+            raise ValueError(f"Spectrum.sided is {self.sided!r}; expected 'two-sided' "
+                             "or 'one-sided'")
+        f = np.asarray(self.frequency_hz, dtype=float)
+        for name, arr in [("total", self.total), *self.contributions.items(),
+                          *self.reference.items()]:
+            if np.shape(arr) != f.shape:
+                raise ValueError(f"Spectrum curve {name!r} has shape {np.shape(arr)}; "
+                                 f"expected {f.shape} like frequency_hz")
+
+    def budget_residual(self):
+        """Largest |total − Σ contributions| relative to max |total| (0 if no budget)."""
+        if not self.contributions:
+            return 0.0
+        parts = sum(np.asarray(c) for c in self.contributions.values())
+        return float(np.max(np.abs(self.total - parts)) / np.max(np.abs(self.total)))
+
+    def to_dataset(self):
+        """The spectrum as an :class:`xarray.Dataset` with units in attributes."""
+        import xarray as xr
+
+        coords = {"frequency": ("frequency", np.asarray(self.frequency_hz),
+                                {"units": "Hz", "long_name": self.axis})}
+        data = {"total": ("frequency", np.asarray(self.total), {"units": self.units})}
+        for prefix, curves in (("budget", self.contributions), ("reference", self.reference)):
+            for i, (name, arr) in enumerate(curves.items()):
+                data[f"{prefix}_{i}"] = ("frequency", np.asarray(arr),
+                                         {"units": self.units, "long_name": name})
+        attrs = {"sided": self.sided, "density": int(self.density), "units": self.units,
+                 "quantity": self.quantity, "axis": self.axis}
+        attrs.update({f"calibration_{k}": v for k, v in self.calibration.items()})
+        attrs.update({f"provenance_{k}": str(v) for k, v in self.provenance.items()})
+        return xr.Dataset(data, coords=coords, attrs=attrs)
