@@ -64,6 +64,26 @@ def cmd_inspect(args):
     return EXIT_OK if report.stability.stable else EXIT_UNSTABLE
 
 
+def cmd_sweep(args):
+    from simulator.scenario import load_scenario
+    from simulator.sweep import run_sweep
+
+    scenario = load_scenario(args.scenario)
+    dataset = run_sweep(scenario, args.out, workers=args.workers, dask=args.dask,
+                        progress=not args.quiet)
+    failed = int((dataset["error"] != "").sum())
+    unstable = int((dataset["stable"] == 0).sum())
+    summary = {"out": str(Path(args.out).resolve()), "dataset": "sweep.nc",
+               "points": int(dataset["stable"].size), "unstable_points": unstable,
+               "failed_points": failed, "dimensions": dict(dataset["stable"].sizes)}
+    if args.json:
+        print_json(summary)
+    else:
+        print(f"sweep of {summary['points']} points written to {summary['out']}/sweep.nc "
+              f"({unstable} unstable, {failed} failed)")
+    return EXIT_OK
+
+
 def cmd_demo(args):
     from simulator.demo import run_demo
 
@@ -95,6 +115,19 @@ def build_parser():
     p.add_argument("scenario", help="scenario TOML file")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     p.set_defaults(func=cmd_inspect)
+
+    p = verbs.add_parser("sweep", help="evaluate the scenario over its [sweep] grid; "
+                         "resumable")
+    p.add_argument("scenario", help="scenario TOML file with a [sweep] section")
+    p.add_argument("--out", required=True, help="output folder (rerun with the same "
+                   "folder to resume)")
+    p.add_argument("--workers", type=int, default=None, help="local worker processes "
+                   "(default: all cores)")
+    p.add_argument("--dask", default=None, metavar="ADDR", help="run on Dask: 'local' "
+                   "for a LocalCluster or a scheduler address tcp://host:port")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument("--json", action="store_true", help="print the summary as JSON")
+    p.set_defaults(func=cmd_sweep)
 
     p = verbs.add_parser("demo", help="run the bundled demo scenario and write its "
                          "outputs to a folder")

@@ -14,11 +14,13 @@ import dataclasses
 import difflib
 import re
 import tomllib
+from collections.abc import Mapping
 from pathlib import Path
 
 from simulator import schema
 from simulator.errors import ScenarioError
-from simulator.schema import param, required_section, section
+from simulator.schema import optional_section, param, required_section, section
+from simulator.sweep_spec import Sweep
 
 _frozen = dataclasses.dataclass(frozen=True, kw_only=True)
 
@@ -129,6 +131,8 @@ class Scenario:
     mechanics: tuple[Mechanics, ...] = required_section(
         "one table per mechanical mode")
     detection: Detection = section(Detection, "how the output field is measured")
+    sweep: Sweep | None = optional_section(
+        "parameters to vary, for `noisechain sweep` (see simulator.sweep_spec)")
     source: str = dataclasses.field(default="<memory>", compare=False,
                                     metadata={"internal": True})
 
@@ -139,6 +143,37 @@ class Scenario:
                 yield (f"mechanics[{i}].name",
                        f"{mode.name!r} is used by an earlier mode; expected unique names")
             seen.add(mode.name)
+        if self.sweep is not None:
+            for path, spec in self.sweep.parameters.items():
+                for p in (path, *([spec["unit"]] if "unit" in spec else [])):
+                    yield from self._sweep_path_problems(p, path)
+
+    def _sweep_path_problems(self, path, swept):
+        key = f'sweep.parameters."{swept}"'
+        try:
+            value = self.get(path)
+        except ScenarioError as exc:
+            close = difflib.get_close_matches(path, self.parameter_paths(), n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else (
+                "; expected a path such as 'drive.detuning_hz'")
+            yield key, exc.detail + hint
+            return
+        if path.split(".")[0] == "sweep" or dataclasses.is_dataclass(value) or isinstance(
+                value, tuple):
+            yield key, f"{path!r} does not name a single scenario parameter"
+
+    def parameter_paths(self):
+        """Every path naming a single parameter, e.g. ``"mechanics[0].frequency_hz"``."""
+        paths = []
+        for f in schema.public_fields(type(self)):
+            kind, cls, _ = schema.field_kind(type(self), f.name)
+            if f.name == "sweep" or kind == "scalar":
+                continue
+            prefixes = ([f"{f.name}[{i}]" for i in range(len(getattr(self, f.name)))]
+                        if kind == "sections" else [f.name])
+            for prefix in prefixes:
+                paths += [f"{prefix}.{sub.name}" for sub in schema.public_fields(cls)]
+        return paths
 
     def to_dict(self):
         """The scenario as nested plain data, as it would appear in TOML."""
@@ -220,6 +255,8 @@ def _as_data(obj):
         return out
     if isinstance(obj, tuple):
         return [_as_data(v) for v in obj]
+    if isinstance(obj, Mapping):
+        return {k: _as_data(v) for k, v in obj.items()}
     return obj
 
 
@@ -302,6 +339,9 @@ def _build(cls, data, path, source):
             values[name] = tuple(_build(tp, item, f"{key}[{i}]", source)
                                  for i, item in enumerate(value))
         else:
+            if f.metadata.get("parser"):
+                values[name] = f.metadata["parser"](value, key, source)
+                continue
             ok, converted = schema.convert_scalar(value, tp)
             if not ok:
                 raise ScenarioError(

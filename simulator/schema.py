@@ -9,6 +9,7 @@ section or key needs no new loader code, and the scenario reference in
 """
 
 import dataclasses
+import functools
 import math
 import types
 import typing
@@ -23,7 +24,8 @@ CHECKS = {
 }
 
 
-def param(doc, *, unit="", check=None, choices=None, default=dataclasses.MISSING):
+def param(doc, *, unit="", check=None, choices=None, default=dataclasses.MISSING,
+          parser=None, accepts=None):
     """Field of a scenario section with its documentation and admissible values.
 
     Parameters
@@ -38,16 +40,28 @@ def param(doc, *, unit="", check=None, choices=None, default=dataclasses.MISSING
         The allowed values of a text parameter.
     default : optional
         Default value; a parameter without one is required.
+    parser : callable, optional
+        ``parser(value, key, source)`` for a structured value (a table or an
+        array) that the plain type checks cannot describe; it returns the
+        converted value or raises :class:`~simulator.errors.ScenarioError`.
+    accepts : str, optional
+        Words describing what a ``parser`` parameter accepts, for the reference.
     """
     if check is not None and check not in CHECKS:
         raise ValueError(f"unknown check {check!r}; expected one of {sorted(CHECKS)}")
-    meta = {"doc": doc, "unit": unit, "check": check, "choices": choices}
+    meta = {"doc": doc, "unit": unit, "check": check, "choices": choices,
+            "parser": parser, "accepts": accepts}
     return dataclasses.field(default=default, metadata=meta)
 
 
 def section(default_factory, doc):
     """Field of :class:`~simulator.scenario.Scenario` holding a whole section."""
     return dataclasses.field(default_factory=default_factory, metadata={"doc": doc})
+
+
+def optional_section(doc):
+    """Field of :class:`~simulator.scenario.Scenario` for a section that may be absent."""
+    return dataclasses.field(default=None, metadata={"doc": doc})
 
 
 def required_section(doc):
@@ -60,6 +74,7 @@ def is_section(tp):
     return isinstance(tp, type) and dataclasses.is_dataclass(tp)
 
 
+@functools.cache
 def field_kind(cls, name):
     """Resolved annotation of field ``name`` of dataclass ``cls``.
 
@@ -88,6 +103,8 @@ def public_fields(cls):
 def expectation(f, tp):
     """Words describing what a parameter accepts, for errors and the reference."""
     meta = f.metadata
+    if meta.get("accepts"):
+        return meta["accepts"]
     if meta.get("choices"):
         return "one of " + ", ".join(f'"{c}"' for c in meta["choices"])
     if meta.get("check"):
@@ -135,40 +152,89 @@ def range_problem(f, tp, value):
 def reference_markdown(root):
     """Scenario reference as Markdown, generated from the section classes.
 
-    ``docs/scenario-reference.md`` is this text; a test keeps them equal.
+    ``docs/scenario-reference.md`` is this text; ``tests/test_docs.py`` keeps
+    them equal.
+
+    Parameters
+    ----------
+    root : type
+        The top-level scenario dataclass (:class:`simulator.scenario.Scenario`).
+
+    Returns
+    -------
+    str
+        Markdown: an introduction, then one table of keys per section.
     """
+    fields = public_fields(root)
     lines = [
         "# Scenario file reference",
         "",
-        "Generated from the loader's schema (`python -m simulator.schema`); a",
-        "test fails if this file and the loader disagree. Keys carry their unit",
-        "as a suffix; every frequency or rate is an ordinary frequency in Hz (the",
-        "value of ω/2π). Unknown keys are errors.",
+        "<!-- Generated: do not edit. Regenerate with",
+        "     .venv/bin/python -m simulator.schema > docs/scenario-reference.md -->",
+        "",
+        "This page is generated from the loader's own schema, so it lists exactly",
+        "what `noisechain check` accepts; `tests/test_docs.py` fails if the two",
+        "disagree. To change a key, edit its `param(...)` field in",
+        "`simulator/scenario.py` and regenerate this page.",
+        "",
+        "A scenario is a TOML file with the sections below. Keys carry their unit",
+        "as a suffix (`_hz`, `_w`, `_m`, `_kg`, `_k`); every frequency or rate is an",
+        "ordinary frequency in Hz, the value of ω/2π. Numbers must be finite;",
+        "integers are accepted where a number is expected. Unknown keys are errors",
+        "and the message suggests the closest valid key. A key is named by its",
+        "path, `section.key`, with an index for repeated tables:",
+        "`mechanics[0].frequency_hz` is the first `[[mechanics]]` table. Error",
+        "messages and `Scenario.get` / `Scenario.replace` use the same paths.",
+        "",
+        "Sections: " + ", ".join(f"`{_table_header(root, f)}`" for f in fields) + ".",
         "",
     ]
-    for f in public_fields(root):
+    for f in fields:
         kind, cls, _ = field_kind(root, f.name)
-        header = f"[[{f.name}]]" if kind == "sections" else f"[{f.name}]"
         required = f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING
-        lines += [f"## `{header}`", "", f.metadata.get("doc", ""),
-                  "(required)" if required else "(optional section)", ""]
-        if getattr(cls, "EXCLUSIVE", ()):
-            groups = "; ".join(" or ".join(f"`{k}`" for k in g) for g in cls.EXCLUSIVE)
-            lines += [f"Give exactly one of: {groups}.", ""]
+        status = "required" if required else "optional"
+        lines += [f"## `{_table_header(root, f)}` ({status})", "",
+                  _sentence(f.metadata.get("doc", ""))]
+        if kind == "sections":
+            lines.append(f"Repeat the `[[{f.name}]]` table once per item; at least "
+                         "one is required.")
+        if not required:
+            lines.append("Every key takes its default when the section is left out.")
+        lines.append("")
+        exclusive = {k for group in getattr(cls, "EXCLUSIVE", ()) for k in group}
+        for group in getattr(cls, "EXCLUSIVE", ()):
+            lines += ["Give exactly one of " + " or ".join(f"`{k}`" for k in group)
+                      + ".", ""]
         lines += ["| key | meaning | accepts | default |", "|---|---|---|---|"]
         for sub in public_fields(cls):
-            _, tp, optional = field_kind(cls, sub.name)
+            _, tp, _ = field_kind(cls, sub.name)
             if sub.default is dataclasses.MISSING:
                 default = "required"
+            elif sub.name in exclusive:
+                default = "one of a pair"
             elif sub.default is None:
-                default = "—"
+                default = "not set"
             else:
                 default = f"`{sub.default!r}`".replace("'", '"')
-            lines.append(f"| `{sub.name}` | {sub.metadata['doc']} | "
-                         f"{expectation(sub, tp)} | {default} |")
+            cells = (f"`{sub.name}`", _sentence(sub.metadata["doc"]),
+                     expectation(sub, tp), default)
+            lines.append("| " + " | ".join(c.replace("|", "\\|") for c in cells) + " |")
         lines.append("")
     return "\n".join(lines)
 
+
+def _table_header(root, f):
+    kind, _, _ = field_kind(root, f.name)
+    return f"[[{f.name}]]" if kind == "sections" else f"[{f.name}]"
+
+
+def _sentence(text):
+    """``text`` with a capital first letter and a full stop, for the reference."""
+    text = text.strip()
+    if not text:
+        return text
+    text = text[0].upper() + text[1:]
+    return text if text.endswith((".", "?", "!")) else text + "."
 
 if __name__ == "__main__":
     from simulator.scenario import Scenario

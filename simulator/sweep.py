@@ -1,0 +1,386 @@
+"""Sweeps: evaluate a scenario over a grid (or zip) of parameter values.
+
+Each point is an independent scenario derived from the base one by parameter
+paths (nothing is mutated). A point is evaluated by :func:`evaluate_point`,
+a pure function of the scenario text and the point's values, so the results
+are bit for bit the same whichever executor runs it and however many workers
+there are. Finished points are stored one file each, atomically, under
+``OUT/points/``; an interrupted sweep rerun with the same output folder skips
+them, and a folder holding a different scenario is refused. The assembled
+result is one :class:`xarray.Dataset` with a dimension per swept parameter
+(``grid``) or one ``point`` dimension (``zip``), saved as NetCDF.
+"""
+
+import dataclasses
+import functools
+import hashlib
+import itertools
+import json
+import math
+import os
+import re
+from pathlib import Path
+
+import numpy as np
+
+from simulator.errors import InputError, NoisechainError, ScenarioError
+from simulator.files import atomic_write_text
+from simulator.sweep_spec import axis_numbers
+
+FORMAT = "noisechain-sweep"
+FORMAT_VERSION = 1
+
+# Per-point scalar results, with units (NaN where the point has no steady state).
+POINT_QUANTITIES = {
+    "photon_number": "",
+    "branch_count": "",
+    "bistable": "",
+    "stable": "",
+    "growth_rate_hz": "Hz",
+    "detuning_effective_hz": "Hz",
+    "cavity_occupation": "",
+}
+# Per-point, per-mode results.
+MODE_QUANTITIES = {
+    "occupation": "",
+    "weak_coupling_occupation": "",
+    "bath_occupation": "",
+    "g_hz": "Hz",
+    "cooperativity": "",
+    "optical_damping_hz": "Hz",
+    "optical_spring_hz": "Hz",
+    "effective_frequency_hz": "Hz",
+    "effective_linewidth_hz": "Hz",
+}
+
+
+@dataclasses.dataclass(frozen=True)
+class Axis:
+    """One swept parameter: its path, the numbers as given and the values applied."""
+
+    path: str
+    numbers: tuple  # as written in the scenario (in units of ``unit`` if given)
+    values: tuple  # what is set at the path
+    unit: str  # path of the unit parameter, or ""
+
+    @property
+    def name(self):
+        """Dimension name safe for NetCDF, e.g. ``mechanics0_bath_temperature_k``."""
+        return re.sub(r"[^A-Za-z0-9_]", "", self.path.replace(".", "_"))
+
+
+def sweep_axes(scenario):
+    """The swept parameters of ``scenario`` with every value checked.
+
+    Raises
+    ------
+    ScenarioError
+        If the scenario has no ``[sweep]`` or a value would make an invalid
+        scenario (the message names the path and the value).
+    """
+    if scenario.sweep is None:
+        raise ScenarioError("the scenario has no [sweep] section; expected [sweep] with "
+                            "[sweep.parameters] to run a sweep", source=scenario.source,
+                            key="sweep")
+    base = dataclasses.replace(scenario, sweep=None)
+    axes = []
+    for path, spec in scenario.sweep.parameters.items():
+        numbers = axis_numbers(spec)
+        unit = spec.get("unit", "") if not isinstance(spec, tuple) else ""
+        scale = float(base.get(unit)) if unit else 1.0
+        values = [x * scale if unit else x for x in numbers]
+        for v in sorted(set(values), key=values.index):
+            try:
+                base.replace(path, v)
+            except ScenarioError as exc:
+                raise ScenarioError(f"swept value {v!r} is invalid: {exc.detail}",
+                                    source=scenario.source,
+                                    key=f'sweep.parameters."{path}"') from None
+        axes.append(Axis(path=path, numbers=tuple(numbers), values=tuple(values), unit=unit))
+    return tuple(axes)
+
+
+def sweep_points(scenario, axes=None):
+    """Every point as ``(index, assignments)``; index is a tuple per grid axis.
+
+    For ``combine = "zip"`` the index has one entry, the point number.
+    """
+    axes = sweep_axes(scenario) if axes is None else axes
+    if scenario.sweep.combine == "zip":
+        return [((i,), tuple((a.path, a.values[i]) for a in axes))
+                for i in range(len(axes[0].values))]
+    ranges = [range(len(a.values)) for a in axes]
+    return [(idx, tuple((a.path, a.values[i]) for a, i in zip(axes, idx, strict=True)))
+            for idx in itertools.product(*ranges)]
+
+
+@functools.lru_cache(maxsize=8)
+def _base_from_text(text):
+    from simulator.scenario import parse_scenario
+
+    return dataclasses.replace(parse_scenario(text, source="<sweep>"), sweep=None)
+
+
+def evaluate_point(scenario_text, assignments):
+    """Evaluate one sweep point: operating point, stability, steady state.
+
+    Parameters
+    ----------
+    scenario_text : str
+        The base scenario as TOML (its ``[sweep]`` is ignored).
+    assignments : sequence of (path, value)
+
+    Returns
+    -------
+    dict
+        ``POINT_QUANTITIES`` and ``MODE_QUANTITIES`` (lists per mode) as plain
+        floats, and ``error``: empty, or the message of an error raised by this
+        point (the sweep records it and goes on).
+    """
+    from simulator.inspection import inspect_scenario
+
+    nan = float("nan")
+    result = {k: nan for k in POINT_QUANTITIES}
+    try:
+        scenario = _base_from_text(scenario_text)
+        n_modes = len(scenario.mechanics)
+        result.update({k: [nan] * n_modes for k in MODE_QUANTITIES})
+        for path, value in assignments:
+            scenario = scenario.replace(path, value)
+        report = inspect_scenario(scenario).to_dict()
+    except (NoisechainError, ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+        result["error"] = f"{type(exc).__name__}: {exc}"
+        return result
+    result["photon_number"] = report["photon_number"]
+    result["branch_count"] = len(report["photon_number_branches"])
+    result["bistable"] = float(report["bistable"])
+    result["stable"] = float(report["stable"])
+    result["growth_rate_hz"] = report["growth_rate_hz"]
+    result["detuning_effective_hz"] = report["detuning_effective_hz"]
+    if report["cavity_occupation"] is not None:
+        result["cavity_occupation"] = report["cavity_occupation"]
+    for k in MODE_QUANTITIES:
+        result[k] = [nan if m.get(k) is None else float(m[k]) for m in report["modes"]]
+    result["error"] = ""
+    return result
+
+
+def _evaluate_batch(scenario_text, batch):
+    return [(key, evaluate_point(scenario_text, assignments)) for key, assignments in batch]
+
+
+def scenario_digest(text):
+    """SHA-256 of the scenario text: identifies the sweep a folder belongs to."""
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def _point_key(index):
+    return "-".join(f"{i:05d}" for i in index)
+
+
+def _prepare_folder(out, text):
+    out.mkdir(parents=True, exist_ok=True)
+    (out / "points").mkdir(exist_ok=True)
+    manifest = out / "sweep.json"
+    digest = scenario_digest(text)
+    if manifest.exists():
+        try:
+            found = json.loads(manifest.read_text(encoding="utf-8"))
+        except (OSError, ValueError) as exc:
+            raise InputError(f"{manifest}: unreadable sweep manifest ({exc}); expected a "
+                             "folder written by noisechain sweep, or a new folder") from None
+        if found.get("scenario_sha256") != digest:
+            raise InputError(
+                f"{out}: this folder holds a sweep of a different scenario (its "
+                "sweep.json does not match); results are never mixed. Choose a new --out "
+                "folder or delete the old one.")
+    else:
+        atomic_write_text(manifest, json.dumps({
+            "format": FORMAT, "format_version": FORMAT_VERSION,
+            "scenario_sha256": digest, "scenario_toml": text}, indent=2))
+
+
+def _read_point(path):
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None  # a damaged point file is recomputed
+
+
+def run_sweep(scenario, out, *, workers=None, dask=None, progress=True):
+    """Run (or resume) the sweep of ``scenario``, storing results under ``out``.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        With a ``[sweep]`` section.
+    out : path
+        Output folder: ``sweep.json`` (manifest), ``points/`` (one JSON file
+        per finished point) and ``sweep.nc`` (the assembled Dataset).
+    workers : int, optional
+        Local worker processes (default: all cores); 1 runs in this process.
+    dask : str, optional
+        ``"local"`` for a Dask LocalCluster, or a scheduler address
+        ``tcp://host:port``; overrides ``workers``.
+    progress : bool
+        Show a progress bar with rate and time remaining.
+
+    Returns
+    -------
+    xarray.Dataset
+    """
+    out = Path(out)
+    text = scenario.to_toml()
+    axes = sweep_axes(scenario)
+    points = sweep_points(scenario, axes)
+    _prepare_folder(out, text)
+    results, todo = {}, []
+    for index, assignments in points:
+        key = _point_key(index)
+        stored = _read_point(out / "points" / f"{key}.json")
+        if stored is not None:
+            results[key] = stored
+        else:
+            todo.append((key, assignments))
+    bar = None
+    if progress:
+        from tqdm import tqdm
+
+        bar = tqdm(total=len(points), initial=len(points) - len(todo), unit="pt",
+                   desc="sweep", smoothing=0.1)
+    try:
+        for key, result in _execute(text, todo, workers, dask):
+            atomic_write_text(out / "points" / f"{key}.json", json.dumps(result))
+            results[key] = result
+            if bar is not None:
+                bar.update(1)
+    finally:
+        if bar is not None:
+            bar.close()
+    dataset = assemble(scenario, axes, points, results)
+    write_dataset(dataset, out / "sweep.nc")
+    return dataset
+
+
+def _batches(todo, n):
+    size = max(1, min(64, math.ceil(len(todo) / max(1, 8 * n))))
+    return [todo[i:i + size] for i in range(0, len(todo), size)]
+
+
+def _execute(text, todo, workers, dask):
+    """Yield ``(key, result)`` as points finish, from the chosen executor."""
+    if not todo:
+        return
+    if dask is not None:
+        yield from _execute_dask(text, todo, dask)
+        return
+    workers = os.cpu_count() or 1 if workers is None else int(workers)
+    if workers < 1:
+        raise InputError(f"--workers {workers}: expected a positive number of workers")
+    if workers == 1:
+        for key, assignments in todo:
+            yield key, evaluate_point(text, assignments)
+        return
+    import concurrent.futures as cf
+    import multiprocessing
+
+    context = multiprocessing.get_context("spawn")
+    with cf.ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
+        futures = [pool.submit(_evaluate_batch, text, b) for b in _batches(todo, workers)]
+        for future in cf.as_completed(futures):
+            yield from future.result()
+
+
+def _execute_dask(text, todo, address):
+    from distributed import Client, LocalCluster, as_completed
+
+    if address == "local":
+        cluster = LocalCluster(n_workers=os.cpu_count() or 1, threads_per_worker=1,
+                               processes=True, dashboard_address=None)
+        client = Client(cluster)
+    elif address.startswith("tcp://"):
+        cluster = None
+        try:
+            client = Client(address, timeout=20)
+        except OSError as exc:
+            raise InputError(f"--dask {address}: cannot reach the Dask scheduler ({exc}); "
+                             "expected a running scheduler at this address") from None
+    else:
+        raise InputError(f"--dask {address!r}: expected 'local' or a scheduler address "
+                         "like tcp://host:8786")
+    try:
+        batches = _batches(todo, len(client.scheduler_info().get("workers", {})) or 1)
+        futures = [client.submit(_evaluate_batch, text, b, pure=False) for b in batches]
+        for future in as_completed(futures):
+            yield from future.result()
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
+
+
+def assemble(scenario, axes, points, results):
+    """Build the sweep Dataset from per-point results (dimension per swept axis)."""
+    import xarray as xr
+
+    from simulator import __version__
+
+    modes = [m.name for m in scenario.mechanics]
+    if scenario.sweep.combine == "zip":
+        shape, dims = (len(points),), ("point",)
+        coords = {"point": np.arange(len(points))}
+        for a in axes:
+            coords[a.name] = ("point", np.asarray(a.numbers), _axis_attrs(a))
+    else:
+        shape = tuple(len(a.values) for a in axes)
+        dims = tuple(a.name for a in axes)
+        coords = {a.name: (a.name, np.asarray(a.numbers), _axis_attrs(a)) for a in axes}
+    coords["mode"] = np.asarray(modes, dtype=object)
+    data = {k: np.full(shape, np.nan) for k in POINT_QUANTITIES}
+    data.update({k: np.full(shape + (len(modes),), np.nan) for k in MODE_QUANTITIES})
+    errors = np.full(shape, "", dtype=object)
+    for index, _ in points:
+        r = results[_point_key(index)]
+        for k in POINT_QUANTITIES:
+            data[k][index] = r[k]
+        for k in MODE_QUANTITIES:
+            data[k][index] = r[k]
+        errors[index] = r["error"]
+    variables = {k: (dims, v, {"units": POINT_QUANTITIES[k]}) for k, v in
+                 ((k, data[k]) for k in POINT_QUANTITIES)}
+    variables.update({k: (dims + ("mode",), data[k], {"units": MODE_QUANTITIES[k]})
+                      for k in MODE_QUANTITIES})
+    variables["error"] = (dims, errors.astype(str), {"long_name": "error raised at the point"})
+    for a in axes:
+        if a.unit:
+            values = np.asarray(a.values)
+            if scenario.sweep.combine == "grid":
+                variables[f"{a.name}_value"] = (a.name, values, {"path": a.path})
+            else:
+                variables[f"{a.name}_value"] = ("point", values, {"path": a.path})
+    attrs = {"format": FORMAT, "format_version": FORMAT_VERSION,
+             "scenario_toml": scenario.to_toml(), "combine": scenario.sweep.combine,
+             "software_version": __version__, "scenario_name": scenario.scenario.name}
+    return xr.Dataset(variables, coords=coords, attrs=attrs)
+
+
+def _axis_attrs(axis):
+    attrs = {"path": axis.path}
+    if axis.unit:
+        attrs["units"] = f"in units of {axis.unit}"
+    else:
+        suffix = axis.path.rsplit("_", 1)[-1]
+        attrs["units"] = {"hz": "Hz", "w": "W", "k": "K", "m": "m", "kg": "kg",
+                          "s": "s"}.get(suffix, "")
+    return attrs
+
+
+def write_dataset(dataset, path):
+    """Write a Dataset to NetCDF atomically (temporary file, then rename)."""
+    path = Path(path)
+    tmp = path.with_name(f".{path.name}.part")
+    ds = dataset.copy()
+    if "mode" in ds.coords:
+        ds = ds.assign_coords(mode=ds["mode"].values.astype(str))
+    ds.to_netcdf(tmp, engine="h5netcdf")
+    os.replace(tmp, path)
