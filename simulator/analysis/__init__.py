@@ -1,0 +1,1 @@
+"""Analysis of records: spectral estimation, likelihood fits, thermometry, feasibility."""
