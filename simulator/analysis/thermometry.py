@@ -1,0 +1,187 @@
+"""Sideband thermometry: occupation from a heterodyne spectrum, three independent ways.
+
+The reference estimator fits the whole two-sided heterodyne spectrum near one
+mechanical mode (shot-noise units, ν > 0 anti-Stokes) with
+
+    S(ν) = b + F(ν) [c_S L(ν + Ω) + c_AS L(ν − Ω)],
+    F(ν) = (κ/2)² / ((κ/2)² + (ν + Δ)²),   L(x) = (γ/2π) / (x² + γ²/4),
+
+by maximum likelihood on the averaged periodogram (Whittle). The cavity
+filter F is removed point by point inside the model instead of dividing
+windowed areas by its value at the peak, which biases n by several percent
+(REFERENCES.md). In weak coupling c_AS/c_S = n/(n + 1) and
+c_AS = η (κ_ex/κ)(4g²/κ) n, c_S = η (κ_ex/κ)(4g²/κ)(n + 1).
+
+Three occupation estimates follow:
+- asymmetry: n = r/(1 − r), r = c_AS/c_S — needs no calibration;
+- calibrated areas: n from c_AS and n + 1 from c_S, given η, κ, κ_ex and g;
+- damping: n = (Γm n_th + A+)/γ from the fitted total linewidth, given the
+  bath occupation, intrinsic linewidth and the Stokes rate A+.
+
+Uncertainties by linear error propagation from the fit covariance.
+
+References
+----------
+Safavi-Naeini et al., PRL 108, 033602 (2012) (sideband asymmetry
+thermometry); Weinstein et al., PRX 4, 041003 (2014) (heterodyne asymmetry
+and its origin); Marquardt et al., PRL 99, 093902 (2007) (rates).
+"""
+
+import dataclasses
+
+import numpy as np
+
+from simulator.analysis.fitting import fit_whittle
+from simulator.errors import InputError
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class Calibration:
+    """What the experimenter knows about the device, in Hz (public metadata)."""
+
+    cavity_linewidth_hz: float
+    external_linewidth_hz: float
+    detuning_hz: float  # effective detuning
+    efficiency: float
+    coupling_rate_hz: float  # g/2π at the operating point
+    mechanical_frequency_hz: float
+    mechanical_linewidth_hz: float
+    bath_occupation: float
+
+    @classmethod
+    def from_scenario(cls, scenario, mode=0):
+        """Nominal calibration from a scenario (its operating point), not the truth."""
+        from simulator.operating_point import operating_point
+
+        point = operating_point(scenario)
+        mp = point.modes[mode]
+        return cls(cavity_linewidth_hz=point.cavity_linewidth_hz,
+                   external_linewidth_hz=point.external_linewidth_hz,
+                   detuning_hz=point.detuning_effective_hz,
+                   efficiency=scenario.detection.efficiency,
+                   coupling_rate_hz=mp.coupling_rate_hz,
+                   mechanical_frequency_hz=mp.frequency_hz,
+                   mechanical_linewidth_hz=mp.linewidth_hz,
+                   bath_occupation=mp.bath_occupation)
+
+    def area_per_quantum(self):
+        """c per phonon: η (κ_ex/κ)(4g²/κ), as a rate in 1/s (areas in shot-noise·Hz)."""
+        k, kex, g = self.cavity_linewidth_hz, self.external_linewidth_hz, self.coupling_rate_hz
+        return self.efficiency * (kex / k) * 2 * np.pi * 4 * g**2 / k
+
+    def stokes_rate_hz(self):
+        """A+/2π = g² κ / (κ²/4 + (Δ − Ω)²) in Hz."""
+        k, g = self.cavity_linewidth_hz, self.coupling_rate_hz
+        return g**2 * k / (k**2 / 4 + (self.detuning_hz - self.mechanical_frequency_hz) ** 2)
+
+
+def cavity_filter(frequency_hz, cavity_linewidth_hz, detuning_hz):
+    """F(ν) = (κ/2)²/((κ/2)² + (ν + Δ)²): the cavity's power response at offset ν."""
+    half = cavity_linewidth_hz / 2
+    return half**2 / (half**2 + (np.asarray(frequency_hz) + detuning_hz) ** 2)
+
+
+def sideband_model(cal):
+    """Model S(ν; b, Ω, γ, c_S, c_AS) for :func:`fit_whittle` (see module notes)."""
+
+    def model(f, theta):
+        floor, centre, width, c_s, c_as = theta
+        lor = lambda x: (width / (2 * np.pi)) / (x**2 + width**2 / 4)  # noqa: E731
+        filt = cavity_filter(f, cal.cavity_linewidth_hz, cal.detuning_hz)
+        return floor + filt * (c_s * lor(f + centre) + c_as * lor(f - centre))
+
+    return model
+
+
+PARAMETERS = ("floor", "frequency_hz", "linewidth_hz", "stokes_area", "anti_stokes_area")
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class Thermometry:
+    """Occupation estimates with one-sigma uncertainties, and the fit behind them."""
+
+    occupation_asymmetry: float
+    occupation_asymmetry_error: float
+    occupation_anti_stokes_area: float
+    occupation_anti_stokes_area_error: float
+    occupation_stokes_area: float
+    occupation_stokes_area_error: float
+    occupation_damping: float
+    occupation_damping_error: float
+    fit: object
+
+    def as_dict(self):
+        """Estimates as ``{name: (value, error)}`` (the validation harness's format)."""
+        out = {}
+        for name in ("occupation_asymmetry", "occupation_anti_stokes_area",
+                     "occupation_stokes_area", "occupation_damping"):
+            out[name] = (getattr(self, name), getattr(self, name + "_error"))
+        for n, (v, e) in self.fit.as_dict().items():
+            out[n] = (v, e)
+        return out
+
+
+def measure_occupation(psd, cal, *, band_linewidths=40.0):
+    """Fit the sidebands of one mode in a two-sided heterodyne PSD; estimate n.
+
+    Parameters
+    ----------
+    psd : simulator.analysis.psd.PSDEstimate
+        Two-sided, in shot-noise units (vacuum floor 1 per Hz), ν > 0 anti-Stokes.
+    cal : Calibration
+        Nominal device parameters.
+    band_linewidths : float
+        Half-width of the fitted band around each sideband, in units of the
+        expected effective linewidth (at least 20 frequency bins).
+
+    Returns
+    -------
+    Thermometry
+    """
+    if psd.sided != "two-sided":
+        raise InputError("sideband thermometry needs a two-sided (IQ heterodyne) spectrum; "
+                         f"got a {psd.sided} one")
+    omega = cal.mechanical_frequency_hz
+    k, g = cal.cavity_linewidth_hz, cal.coupling_rate_hz
+    a_minus = g**2 * k / (k**2 / 4 + (cal.detuning_hz + omega) ** 2)
+    width0 = cal.mechanical_linewidth_hz + a_minus - cal.stokes_rate_hz()
+    half_band = max(band_linewidths * abs(width0), 20 * psd.resolution_hz)
+    f = psd.frequency_hz
+    near = (np.abs(np.abs(f) - omega) < half_band)
+    if near.sum() < 10:
+        raise InputError(f"only {near.sum()} frequency bins near ±{omega:.6g} Hz; expected "
+                         "a record resolving the sidebands (longer segments)")
+    f, p = f[near], psd.density[near]
+    floor0 = float(np.median(p))
+    per_quantum = cal.area_per_quantum()
+    filt = lambda x: cavity_filter(x, k, cal.detuning_hz)  # noqa: E731
+    # starting areas from the excess power on each side, cavity filter removed
+    df = psd.resolution_hz
+    excess_as = max(np.sum((p - floor0)[f > 0]) * df / filt(omega), 1e-3 * per_quantum)
+    excess_s = max(np.sum((p - floor0)[f < 0]) * df / filt(-omega), 1e-3 * per_quantum)
+    if filt(-omega) < filt(omega):  # the weaker side starts from the stronger one
+        excess_s = excess_as + per_quantum
+    else:
+        excess_as = max(excess_s - per_quantum, 1e-3 * per_quantum)
+    initial = [floor0, omega, abs(width0), excess_s, excess_as]
+    model = sideband_model(cal)
+    fit = fit_whittle(model, f, p, psd.averages, initial, names=PARAMETERS,
+                      lower=[0, 0.5 * omega, 0, 0, 0], upper=[np.inf, 1.5 * omega] + [np.inf] * 3)
+    _, _, width, c_s, c_as = fit.values
+    cov = fit.covariance
+    r = c_as / c_s
+    n_asym = r / (1 - r)
+    # ∂n/∂c_AS = c_S/(c_S − c_AS)², ∂n/∂c_S = −c_AS/(c_S − c_AS)²
+    grad = np.array([0, 0, 0, -c_as, c_s]) / (c_s - c_as) ** 2
+    err_asym = float(np.sqrt(max(grad @ cov @ grad, 0)))
+    errors = fit.errors
+    n_damp = (cal.mechanical_linewidth_hz * cal.bath_occupation + cal.stokes_rate_hz()) / width
+    return Thermometry(
+        occupation_asymmetry=float(n_asym), occupation_asymmetry_error=err_asym,
+        occupation_anti_stokes_area=float(c_as / per_quantum),
+        occupation_anti_stokes_area_error=float(errors[4] / per_quantum),
+        occupation_stokes_area=float(c_s / per_quantum - 1),
+        occupation_stokes_area_error=float(errors[3] / per_quantum),
+        occupation_damping=float(n_damp),
+        occupation_damping_error=float(n_damp * errors[2] / width),
+        fit=fit)
