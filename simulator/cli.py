@@ -84,14 +84,124 @@ def cmd_sweep(args):
     return EXIT_OK
 
 
-def cmd_demo(args):
-    from simulator.demo import run_demo
+def _require_suffix(path, allowed, option):
+    if path is not None and Path(path).suffix.lower() not in allowed:
+        raise InputError(f"{option} {path!r} has extension {Path(path).suffix!r}; expected "
+                         f"one of {', '.join(allowed)}")
 
-    out = Path(args.out)
-    written = run_demo(out)
-    print(f"demo outputs written to {out.resolve()}:")
-    for path in written:
+
+def cmd_spectrum(args):
+    from simulator.scenario import load_scenario
+    from simulator.sidebands import sideband_summary
+    from simulator.spectra import measured_spectrum
+
+    _require_suffix(args.out, (".nc", ".csv"), "--out")
+    _require_suffix(args.plot, (".png", ".pdf", ".svg"), "--plot")
+    scenario = load_scenario(args.scenario)
+    spectrum = measured_spectrum(scenario, quadrature_angle=math.radians(args.angle_deg))
+    summary = sideband_summary(scenario)
+    files = {}
+    if args.out:
+        files["data"] = str(spectrum.save(args.out))
+    if args.plot:
+        from simulator.plots import plot_spectrum
+        from simulator.transduction import to_displacement
+
+        plot_spectrum(spectrum, args.plot, displacement=to_displacement(spectrum, scenario),
+                      summary=summary, title=f"{scenario.scenario.name}: {spectrum.quantity}")
+        files["plot"] = str(args.plot)
+    report = {"scenario": scenario.scenario.name, "quantity": spectrum.quantity,
+              "axis": spectrum.axis, "sided": spectrum.sided, "units": spectrum.units,
+              "points": int(spectrum.frequency_hz.size),
+              "frequency_range_hz": [float(spectrum.frequency_hz.min()),
+                                     float(spectrum.frequency_hz.max())],
+              "peak": float(spectrum.total.max()),
+              "contributions": list(spectrum.contributions),
+              "budget_residual": spectrum.budget_residual(),
+              "sidebands": [s.to_dict() for s in summary], "files": files}
+    if args.json:
+        print_json(report)
+        return EXIT_OK
+    print(f"{report['scenario']}: {report['quantity']}, {report['sided']} density in "
+          f"{report['units']}, {report['points']} points over "
+          f"{report['frequency_range_hz'][0]:.6g} .. {report['frequency_range_hz'][1]:.6g} Hz")
+    print(f"  peak {report['peak']:.6g}; budget of {len(report['contributions'])} terms sums "
+          f"to the total within {report['budget_residual']:.1e}")
+    for s in summary:
+        print(f"  mode {s.mode}: anti-Stokes {s.anti_stokes.frequency_hz:.9g} Hz "
+              f"(width {s.anti_stokes.linewidth_hz:.4g} Hz, {s.anti_stokes.area_quanta:.5g} "
+              f"quanta), Stokes {s.stokes.frequency_hz:.9g} Hz ({s.stokes.area_quanta:.5g} "
+              f"quanta); ratio {s.ratio:.5g} -> n = {s.occupation_from_ratio:.5g} "
+              f"(steady state {s.steady_state_occupation:.5g})")
+    for kind, path in files.items():
+        print(f"  {kind} written to {path}")
+    return EXIT_OK
+
+
+def cmd_record(args):
+    from simulator.records import simulate_record
+    from simulator.scenario import load_scenario
+
+    _require_suffix(args.out, (".h5", ".hdf5"), "--out")
+    scenario = load_scenario(args.scenario)
+    record = simulate_record(scenario, seed=args.seed, duration_s=args.duration,
+                             out=args.out, form=args.form, progress=not args.quiet)
+    truth = record.truth
+    summary = {"out": str(Path(args.out).resolve()), "samples": record.n_samples,
+               "sample_rate_hz": record.sample_rate_hz, "kind": record.kind,
+               "seed": record.seed, "form": record.form,
+               "clipped_samples": record.clipped_samples,
+               "shot_noise_per_count": record.shot_noise_per_count,
+               "volts_per_count": record.volts_per_count,
+               "modes": [{"name": name, "occupation": n, "effective_frequency_hz": f,
+                          "effective_linewidth_hz": w}
+                         for name, n, f, w in zip(truth.mode_names, truth.occupation,
+                                                  truth.effective_frequency_hz,
+                                                  truth.effective_linewidth_hz, strict=True)],
+               "cavity_occupation": truth.cavity_occupation}
+    if args.json:
+        print_json(summary)
+        return EXIT_OK
+    print(f"record of {record.n_samples} samples ({record.kind}, "
+          f"{record.sample_rate_hz:.6g} samples/s, seed {record.seed}, {record.form} form) "
+          f"written to {summary['out']}")
+    print(f"  clipped samples: {record.clipped_samples}")
+    for mode in summary["modes"]:
+        print(f"  true occupation of {mode['name']}: {mode['occupation']:.6g} "
+              f"(at {mode['effective_frequency_hz']:.9g} Hz, linewidth "
+              f"{mode['effective_linewidth_hz']:.4g} Hz)")
+    print(f"  cavity occupation: {truth.cavity_occupation:.4g}")
+    return EXIT_OK
+
+
+def _print_run(result, args):
+    if args.json:
+        print_json({"out": str(result.out.resolve()), "report": str(result.report),
+                    "stable": result.stable, "files": [str(p) for p in result.files]})
+        return
+    print(f"outputs written to {result.out.resolve()}:")
+    for path in result.files:
         print(f"  {path}")
+    print(f"open {result.report} in a browser for the report")
+
+
+def cmd_run(args):
+    from simulator.run import run_scenario
+    from simulator.scenario import load_scenario
+
+    result = run_scenario(load_scenario(args.scenario), args.out, workers=args.workers,
+                          dask=args.dask, progress=not args.quiet)
+    _print_run(result, args)
+    return EXIT_OK if result.stable else EXIT_UNSTABLE
+
+
+def cmd_demo(args):
+    from simulator.demo import demo_scenario
+    from simulator.run import run_scenario
+
+    result = run_scenario(demo_scenario(), args.out, workers=args.workers,
+                          progress=not args.quiet)
+    _print_run(result, args)
     return EXIT_OK
 
 
@@ -129,10 +239,51 @@ def build_parser():
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
     p.set_defaults(func=cmd_sweep)
 
+    p = verbs.add_parser("spectrum", help="analytic output spectrum with its noise "
+                         "budget and sideband summary")
+    p.add_argument("scenario", help="scenario TOML file")
+    p.add_argument("--out", default=None, help="write the spectrum: .nc (NetCDF) or .csv")
+    p.add_argument("--plot", default=None, help="write a figure: .png, .pdf or .svg")
+    p.add_argument("--angle-deg", type=float, default=90.0, help="homodyne quadrature angle "
+                   "from the intracavity amplitude quadrature (default: %(default)s, phase)")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+    p.set_defaults(func=cmd_spectrum)
+
+    p = verbs.add_parser("record", help="synthetic digitised record with its ground "
+                         "truth, written to HDF5")
+    p.add_argument("scenario", help="scenario TOML file")
+    p.add_argument("--out", required=True, help="output file (.h5)")
+    p.add_argument("--duration", type=float, default=None, metavar="S",
+                   help="record length in seconds (default: the scenario's "
+                   "record.duration_s)")
+    p.add_argument("--seed", type=int, default=None, metavar="N", help="random seed "
+                   "(default: the scenario's scenario.seed)")
+    p.add_argument("--form", choices=("auto", "full-state", "innovations"), default="auto",
+                   help="exact generator (default: %(default)s: full state when the "
+                   "mechanical quadratures are stored, else innovations)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument("--json", action="store_true", help="print the summary as JSON")
+    p.set_defaults(func=cmd_record)
+
+    p = verbs.add_parser("run", help="everything the scenario asks for (inspect, "
+                         "spectrum, record, sweep, figures) and an HTML report")
+    p.add_argument("scenario", help="scenario TOML file")
+    p.add_argument("--out", required=True, help="output folder")
+    p.add_argument("--workers", type=int, default=None, help="local worker processes for "
+                   "a sweep (default: all cores)")
+    p.add_argument("--dask", default=None, metavar="ADDR", help="run a sweep on Dask: "
+                   "'local' or tcp://host:port")
+    p.add_argument("--quiet", action="store_true", help="no progress bars")
+    p.add_argument("--json", action="store_true", help="print the list of files as JSON")
+    p.set_defaults(func=cmd_run)
+
     p = verbs.add_parser("demo", help="run the bundled demo scenario and write its "
-                         "outputs to a folder")
+                         "outputs and report to a folder")
     p.add_argument("--out", default="demo-output", help="output folder (default: "
                    "%(default)s)")
+    p.add_argument("--workers", type=int, default=None, help="local worker processes")
+    p.add_argument("--quiet", action="store_true", help="no progress bars")
+    p.add_argument("--json", action="store_true", help="print the list of files as JSON")
     p.set_defaults(func=cmd_demo)
     return parser
 

@@ -15,6 +15,7 @@ def atomic_write_text(path, text, *, durable=True):
     path = Path(path)
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".part")
     try:
+        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp's 0600 would hide results from others
         with os.fdopen(fd, "w", encoding="utf-8") as handle:
             handle.write(text)
             if durable:
@@ -24,3 +25,9 @@ def atomic_write_text(path, text, *, durable=True):
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise
+
+
+def _umask():
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
