@@ -18,9 +18,11 @@ $(STAMP): pyproject.toml | $(BIN)/python
 demo: $(STAMP)
 	$(BIN)/noisechain demo --out demo-output
 
-test: $(STAMP)
-	$(BIN)/ruff check simulator tests
+test: $(STAMP) lint
 	$(BIN)/python -m pytest
+
+lint: $(STAMP)
+	$(BIN)/ruff check simulator tests
 
 bench: $(STAMP)
 	for script in tests/benchmarks/bench_*.py; do $(BIN)/python $$script || exit 1; done

@@ -9,6 +9,7 @@ libraries are imported inside the verbs that need them so that ``--help``,
 import argparse
 import json
 import math
+import os
 import sys
 from pathlib import Path
 
@@ -39,10 +40,12 @@ def _clean(value):
 
 
 def print_json(data):
+    """Print ``data`` as strict, indented JSON (non-finite numbers become null)."""
     print(json.dumps(_clean(data), indent=2, default=_json_default))
 
 
 def cmd_check(args):
+    """``noisechain check SCENARIO``: validate the file and report its modes."""
     from simulator.scenario import load_scenario
 
     scenario = load_scenario(args.scenario)
@@ -53,6 +56,7 @@ def cmd_check(args):
 
 
 def cmd_inspect(args):
+    """``noisechain inspect SCENARIO [--json]``: exit 0 if stable, 3 if not."""
     from simulator.inspection import inspect_scenario
     from simulator.scenario import load_scenario
 
@@ -65,6 +69,7 @@ def cmd_inspect(args):
 
 
 def cmd_sweep(args):
+    """``noisechain sweep``: run the scenario's parameter sweep."""
     from simulator.scenario import load_scenario
     from simulator.sweep import run_sweep
 
@@ -91,12 +96,13 @@ def _require_suffix(path, allowed, option):
 
 
 def cmd_spectrum(args):
+    """``noisechain spectrum``: analytic output spectrum of a scenario."""
+    _require_suffix(args.out, (".nc", ".csv"), "--out")
+    _require_suffix(args.plot, (".png", ".pdf", ".svg"), "--plot")
     from simulator.scenario import load_scenario
     from simulator.sidebands import sideband_summary
     from simulator.spectra import measured_spectrum
 
-    _require_suffix(args.out, (".nc", ".csv"), "--out")
-    _require_suffix(args.plot, (".png", ".pdf", ".svg"), "--plot")
     scenario = load_scenario(args.scenario)
     spectrum = measured_spectrum(scenario, quadrature_angle=math.radians(args.angle_deg))
     summary = sideband_summary(scenario)
@@ -139,6 +145,7 @@ def cmd_spectrum(args):
 
 
 def cmd_record(args):
+    """``noisechain record``: synthesise a time-domain record with its ground truth."""
     from simulator.records import simulate_record
     from simulator.scenario import load_scenario
 
@@ -186,6 +193,7 @@ def _print_run(result, args):
 
 
 def cmd_run(args):
+    """``noisechain run``: everything the scenario asks for, into a folder with a report."""
     from simulator.run import run_scenario
     from simulator.scenario import load_scenario
 
@@ -196,6 +204,7 @@ def cmd_run(args):
 
 
 def cmd_demo(args):
+    """``noisechain demo``: run the bundled demo scenario into a folder."""
     from simulator.demo import demo_scenario
     from simulator.run import run_scenario
 
@@ -206,6 +215,7 @@ def cmd_demo(args):
 
 
 def build_parser():
+    """The argument parser of every ``noisechain`` verb."""
     parser = argparse.ArgumentParser(
         prog="noisechain",
         description="Quantum-noise simulator of the optomechanical displacement-"
@@ -289,6 +299,7 @@ def build_parser():
 
 
 def main(argv=None):
+    """Run one verb; return the exit status (0 ok, 2 bad input, 3 unstable)."""
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
@@ -302,4 +313,15 @@ def main(argv=None):
 
 
 def entry_point():
-    sys.exit(main())
+    """Console-script entry: run :func:`main` and exit with its status."""
+    try:
+        status = main()
+        sys.stdout.flush()
+    except BrokenPipeError:
+        # the reader (e.g. `| head`) closed the pipe: not an error of ours
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        status = EXIT_OK
+    except KeyboardInterrupt:
+        print("noisechain: interrupted", file=sys.stderr)
+        status = 130
+    sys.exit(status)

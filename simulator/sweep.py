@@ -51,6 +51,9 @@ MODE_QUANTITIES = {
     "optical_spring_hz": "Hz",
     "effective_frequency_hz": "Hz",
     "effective_linewidth_hz": "Hz",
+    "sideband_ratio": "",
+    "occupation_from_ratio": "",
+    "asymmetry_time_s": "s",
 }
 
 
@@ -161,8 +164,23 @@ def evaluate_point(scenario_text, assignments):
         result["cavity_occupation"] = report["cavity_occupation"]
     for k in MODE_QUANTITIES:
         result[k] = [nan if m.get(k) is None else float(m[k]) for m in report["modes"]]
+    if report["stable"]:
+        _add_sidebands(scenario, result)
     result["error"] = ""
     return result
+
+
+def _add_sidebands(scenario, result):
+    """Sideband ratio, the occupation it implies, and the asymmetry integration time."""
+    from simulator.analysis.feasibility import ASYMMETRY_SIGNIFICANCE, asymmetry_time
+    from simulator.sidebands import sideband_summary
+
+    for j, s in enumerate(sideband_summary(scenario)):
+        result["sideband_ratio"][j] = s.ratio
+        result["occupation_from_ratio"][j] = s.occupation_from_ratio
+        if scenario.detection.scheme == "heterodyne":
+            result["asymmetry_time_s"][j] = asymmetry_time(
+                scenario, j, ASYMMETRY_SIGNIFICANCE).duration_s
 
 
 def _evaluate_batch(scenario_text, batch):

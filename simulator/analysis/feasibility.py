@@ -37,6 +37,9 @@ import numpy as np
 
 from simulator.errors import InputError
 
+# Default significance (standard deviations) for "the asymmetry is resolved".
+ASYMMETRY_SIGNIFICANCE = 5.0
+
 
 def _spectrum_total(scenario, frequency_hz):
     from simulator.spectra import heterodyne_spectrum, homodyne_spectrum
@@ -154,7 +157,7 @@ class AsymmetryTime:
     lineshape: dict  # parameter values the bound was evaluated at
 
 
-def asymmetry_time(scenario, mode=0, significance=5.0):
+def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
     """Integration time to tell the sideband asymmetry d = c_S − c_AS from zero.
 
     Parameters

@@ -1,0 +1,155 @@
+"""One battery run over every example scenario and the bundled demo.
+
+Every ``scenarios/*.toml`` (found by glob, so a new file is covered without
+touching this test) and ``simulator/data/demo.toml`` must load, survive a TOML
+round trip, and give the stability verdict the file itself declares in a
+comment line ``# expect: stable`` or ``# expect: unstable``. Stable ones must
+have non-negative occupations and a covariance that obeys the uncertainty
+relation and the Lyapunov equation; the command line must print strict JSON
+and exit with 0 (stable) or 3 (unstable).
+"""
+
+import json
+import re
+from importlib import resources
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from simulator import cli
+from simulator.inspection import inspect_scenario
+from simulator.model import linear_model
+from simulator.scenario import load_scenario, parse_scenario
+from simulator.sweep import sweep_points
+
+SCENARIO_DIR = Path(__file__).resolve().parents[1] / "scenarios"
+DEMO = Path(str(resources.files("simulator.data").joinpath("demo.toml")))
+FILES = sorted(SCENARIO_DIR.glob("*.toml")) + [DEMO]
+EXPECT = re.compile(r"^#\s*expect:\s*(\S+)\s*$", re.MULTILINE)
+
+
+def declared_expectation(path):
+    """The verdict a scenario file declares: ``"stable"`` or ``"unstable"``."""
+    found = EXPECT.findall(path.read_text(encoding="utf-8"))
+    assert len(found) == 1, (f"{path}: expected exactly one comment line "
+                             f"'# expect: stable' or '# expect: unstable', found {found}")
+    assert found[0] in ("stable", "unstable"), (
+        f"{path}: '# expect: {found[0]}'; expected 'stable' or 'unstable'")
+    return found[0]
+
+
+def symplectic_form(n_pairs):
+    """Ω for quadrature pairs (X, Y): [X, Y] = i gives Ω = [[0, 1], [-1, 0]] per pair."""
+    return np.kron(np.eye(n_pairs), np.array([[0.0, 1.0], [-1.0, 0.0]]))
+
+
+def uncertainty_margin(v):
+    """Smallest eigenvalue of V + iΩ/2, relative to the size of V.
+
+    A symmetrised covariance of a physical (quantum) state obeys V + iΩ/2 ≥ 0,
+    the Robertson–Schrödinger uncertainty relation in the form of Simon,
+    Mukunda, Dutta, Phys. Rev. A 49, 1567 (1994) (citation from memory).
+    Round-off is relative to ‖V‖, hence the scaling.
+    """
+    m = v + 0.5j * symplectic_form(len(v) // 2)
+    return float(np.linalg.eigvalsh(m).min()) / max(1.0, float(np.linalg.norm(v, 2)))
+
+
+def strict_json(text):
+    """Parse JSON, refusing the NaN/Infinity extensions Python would accept."""
+    def refuse(name):
+        raise ValueError(f"non-standard JSON constant {name}")
+    return json.loads(text, parse_constant=refuse)
+
+
+def test_battery_covers_the_required_kinds_of_scenario():
+    examples = sorted(SCENARIO_DIR.glob("*.toml"))
+    assert len(examples) >= 4, f"expected at least four example scenarios, found {examples}"
+    loaded = [load_scenario(p) for p in examples]
+    assert any(len(s.mechanics) >= 2 for s in loaded), "no multi-mode example scenario"
+    assert any(declared_expectation(p) == "unstable" for p in examples), (
+        "no example scenario is declared unstable")
+
+
+def test_uncertainty_check_can_fail():
+    # The check must reject a state squeezed below vacuum in both quadratures.
+    assert uncertainty_margin(0.5 * np.eye(4)) > -1e-12
+    assert uncertainty_margin(0.4 * np.eye(4)) < -0.05
+
+
+@pytest.fixture(scope="module", params=FILES, ids=lambda p: p.name)
+def case(request):
+    path = request.param
+    scenario = load_scenario(path)
+    return path, scenario, inspect_scenario(scenario)
+
+
+def test_round_trip_through_toml(case):
+    path, scenario, _ = case
+    again = parse_scenario(scenario.to_toml(), source=f"{path} (round trip)")
+    assert again == scenario
+    assert again.to_dict() == scenario.to_dict()
+
+
+def test_declared_verdict(case):
+    path, _, report = case
+    expected = declared_expectation(path)
+    assert report.stability.stable == (expected == "stable"), (
+        f"{path.name} declares '{expected}' but inspect says "
+        f"{'stable' if report.stability.stable else 'unstable'}: {report.stability.cause}")
+    if expected == "unstable":
+        assert report.steady is None
+        assert report.stability.growth_rate_hz > 0
+        assert report.stability.cause
+
+
+def test_steady_state_is_physical(case):
+    path, scenario, report = case
+    if report.steady is None:
+        pytest.skip(f"{path.name} is unstable: no steady state to check")
+    st = report.steady
+    assert st.cavity_occupation >= -1e-12
+    for mode in st.modes:
+        assert mode.occupation >= 0, (mode.name, mode.occupation)
+        assert mode.effective_linewidth_hz > 0
+    assert uncertainty_margin(st.covariance) > -1e-10
+    # The covariance solves the Lyapunov equation A V + V Aᵀ + B N Bᵀ = 0.
+    model = linear_model(scenario, report.point)
+    v = st.covariance
+    residual = model.A @ v + v @ model.A.T + model.diffusion
+    scale = np.linalg.norm(model.A, 2) * np.linalg.norm(v, 2)
+    assert np.linalg.norm(residual, 2) < 1e-9 * scale
+
+
+def test_command_line(case, capsys):
+    path, _, report = case
+    status = cli.main(["inspect", str(path), "--json"])
+    out = capsys.readouterr().out
+    data = strict_json(out)
+    expected = declared_expectation(path)
+    assert status == (cli.EXIT_OK if expected == "stable" else cli.EXIT_UNSTABLE)
+    assert data["stable"] is (expected == "stable")
+    assert [m["name"] for m in data["modes"]] == [m.name for m in report.point.modes]
+    if report.steady is not None:
+        for entry, mode in zip(data["modes"], report.steady.modes, strict=True):
+            assert entry["occupation"] == mode.occupation
+    status = cli.main(["inspect", str(path)])
+    text = capsys.readouterr().out
+    assert status == (cli.EXIT_OK if expected == "stable" else cli.EXIT_UNSTABLE)
+    assert ("UNSTABLE" in text) == (expected == "unstable")
+
+
+SWEEP_FILES = [p for p in FILES
+               if re.search(r"^\[sweep\]", p.read_text(encoding="utf-8"), re.MULTILINE)]
+
+
+@pytest.mark.parametrize("path", SWEEP_FILES, ids=lambda p: p.name)
+def test_sweep_table_is_valid(path):
+    scenario = load_scenario(path)
+    assert scenario.sweep is not None
+    points = sweep_points(scenario)
+    assert points, f"{path.name}: the [sweep] table expands to no points"
+    for _, assignments in points:
+        for key, value in assignments:
+            scenario.replace(key, value)
