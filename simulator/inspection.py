@@ -23,6 +23,7 @@ class Inspection:
     stability: object
     steady: object  # SteadyState, or None when unstable
     warnings: tuple
+    feasibility: tuple = ()  # per mode: dict of measurement-time bounds (heterodyne)
 
     def to_dict(self):
         """Plain data for JSON: numbers in SI units, frequencies in Hz."""
@@ -72,6 +73,7 @@ class Inspection:
             "instability_cause": self.stability.cause,
             "cavity_occupation": None if st is None else st.cavity_occupation,
             "modes": modes,
+            "feasibility": [dict(f) for f in self.feasibility],
             "warnings": list(self.warnings),
         }
 
@@ -110,6 +112,15 @@ class Inspection:
                     value = mode[key]
                     text = "inf" if value is None else f"{value:.6g}"
                     lines.append(f"  {label:<28}{text}")
+        for f in d["feasibility"]:
+            lines += ["", f"feasibility, mode {f['mode']} (Cramér–Rao, Whittle)"]
+            lines.append(f"  occupation error after 1 s       "
+                         f"{f['occupation_error_1s']:.4g}  (exact model; all of "
+                         f"{', '.join(f['parameters'])} unknown)")
+            if f.get("asymmetry_time_s") is not None:
+                lines.append(f"  time to resolve the asymmetry    "
+                             f"{f['asymmetry_time_s']:.4g} s at {f['significance']:g} "
+                             "standard deviations")
         if d["warnings"]:
             lines += ["", "warnings"] + [f"  - {w}" for w in d["warnings"]]
         return "\n".join(lines)
@@ -144,5 +155,24 @@ def inspect_scenario(scenario):
                     f"exact {exact:.4g} by more than {STRONG_COUPLING_TOLERANCE:.0%}; the "
                     "system is near or in strong coupling and the rate-equation "
                     "diagnostics do not apply")
+    feasibility = _feasibility(scenario) if steady is not None else ()
     return Inspection(scenario=scenario, point=point, stability=verdict, steady=steady,
-                      warnings=tuple(warnings))
+                      warnings=tuple(warnings), feasibility=feasibility)
+
+
+def _feasibility(scenario):
+    """Per-mode measurement-time bounds (simulator.analysis.feasibility)."""
+    from simulator.analysis import feasibility as fz
+
+    out = []
+    for j, mode in enumerate(scenario.mechanics):
+        if mode.coupling_hz == 0 or scenario.drive.power_w == 0:
+            continue  # the record carries no information about this mode
+        bound = fz.occupation_bound(scenario, j)
+        entry = {"mode": mode.name, "occupation_error_1s": bound.error_one_second,
+                 "parameters": list(bound.paths), "significance": fz.ASYMMETRY_SIGNIFICANCE,
+                 "asymmetry_time_s": None}
+        if scenario.detection.scheme == "heterodyne":
+            entry["asymmetry_time_s"] = fz.asymmetry_time(scenario, j).duration_s
+        out.append(entry)
+    return tuple(out)

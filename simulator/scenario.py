@@ -81,6 +81,7 @@ class Cavity:
         check="nonnegative", default=0.0)
 
     def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
         if self.external_linewidth_hz > self.linewidth_hz:
             yield ("external_linewidth_hz",
                    f"{self.external_linewidth_hz!r} is larger than linewidth_hz = "
@@ -119,6 +120,90 @@ class Detection:
     efficiency: float = param(
         "total efficiency from the cavity port to the photocurrent (transmission "
         "losses times detector quantum efficiency)", check="fraction", default=1.0)
+    local_oscillator_power_w: float = param(
+        "local-oscillator power at the detector; sets the photocurrent scale and so "
+        "the weight of the electronic noise against shot noise", unit="W",
+        check="positive", default=1e-3)
+    intermediate_frequency_hz: float = param(
+        "offset of the local oscillator from the drive, |f_LO − f_drive|: the carrier "
+        "of an \"if\" record; 0 for homodyne", unit="Hz", check="nonnegative",
+        default=0.0)
+    local_oscillator_side: str = param(
+        "side of the drive the local oscillator sits on; below puts the anti-Stokes "
+        "sideband above the intermediate frequency, above mirrors it",
+        choices=("below", "above"), default="below")
+    quadrature_angle_rad: float = param(
+        "homodyne quadrature θ of X_θ = cos θ X + sin θ Y, from the amplitude "
+        "quadrature; π/2 is the phase quadrature", unit="rad", check="real",
+        default=1.5707963267948966)
+    balanced: bool = param(
+        "balanced detection (both ports of the signal–local-oscillator beam splitter "
+        "subtracted); false: one port of a 50:50 combiner, which halves the efficiency",
+        default=True)
+
+
+@_frozen
+class Electronics:
+    """``[electronics]``: amplifier and photocurrent electronics before the digitiser."""
+
+    transimpedance_ohm: float = param(
+        "transimpedance gain from photocurrent to voltage", unit="V/A",
+        check="positive", default=1e4)
+    bandwidth_hz: float | None = param(
+        "−3 dB frequency of the single-pole analogue low-pass; left out: no filter",
+        unit="Hz", check="positive", default=None)
+    current_noise_a_per_sqrt_hz: float = param(
+        "input-referred current noise of the electronics, one-sided density",
+        unit="A/√Hz", check="nonnegative", default=0.0)
+    amplifier_added_quanta: float = param(
+        "noise added by a phase-preserving amplifier ahead of the detector (the "
+        "microwave case: 10–20 for a cryogenic transistor amplifier), in quanta "
+        "referred to its input; 0: no amplifier", check="nonnegative", default=0.0)
+
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if 0.0 < self.amplifier_added_quanta < 0.5:
+            yield ("amplifier_added_quanta",
+                   f"{self.amplifier_added_quanta!r} is below the quantum limit of a "
+                   "phase-preserving amplifier; expected 0 (no amplifier) or at least 0.5 "
+                   "quanta (Caves, Phys. Rev. D 26, 1817 (1982))")
+
+
+@_frozen
+class Digitizer:
+    """``[digitizer]``: the analogue-to-digital converter that delivers the record."""
+
+    sample_rate_hz: float | None = param(
+        "sample rate; left out: chosen to take in the cavity line and every "
+        "mechanical sideband (see docs/records.md)", unit="Hz", check="positive",
+        default=None)
+    bits: int = param("resolution of the converter", check="positive", default=16)
+    full_scale_v: float | None = param(
+        "input range ±full_scale_v; left out: eight times the record's standard "
+        "deviation", unit="V", check="positive", default=None)
+
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if not 2 <= self.bits <= 32:
+            yield ("bits", f"{self.bits!r} is out of range; expected an integer from 2 to 32")
+
+
+@_frozen
+class RecordOptions:
+    """``[record]``: the synthetic record written by ``noisechain record``."""
+
+    duration_s: float = param("length of the record", unit="s", check="positive",
+                              default=0.1)
+    kind: str | None = param(
+        "\"iq\": complex baseband I + iQ (heterodyne); \"if\": real samples at the "
+        "intermediate frequency; left out: \"iq\" for heterodyne, \"if\" for homodyne "
+        "(a real record at zero intermediate frequency)", choices=("iq", "if"),
+        default=None)
+    chunk_samples: int = param(
+        "samples generated and written per step; sets memory use, not the result",
+        check="positive", default=262144)
+    store_mechanics: bool = param(
+        "store the true mechanical quadratures beside the record", default=False)
 
 
 @_frozen
@@ -131,22 +216,43 @@ class Scenario:
     mechanics: tuple[Mechanics, ...] = required_section(
         "one table per mechanical mode")
     detection: Detection = section(Detection, "how the output field is measured")
+    electronics: Electronics = section(
+        Electronics, "amplifier and photocurrent electronics before the digitiser")
+    digitizer: Digitizer = section(Digitizer, "the analogue-to-digital converter")
+    record: RecordOptions = section(RecordOptions, "the synthetic time-domain record")
     sweep: Sweep | None = optional_section(
         "parameters to vary, for `noisechain sweep` (see simulator.sweep_spec)")
     source: str = dataclasses.field(default="<memory>", compare=False,
                                     metadata={"internal": True})
 
     def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
         seen = set()
         for i, mode in enumerate(self.mechanics):
             if mode.name in seen:
                 yield (f"mechanics[{i}].name",
                        f"{mode.name!r} is used by an earlier mode; expected unique names")
             seen.add(mode.name)
+        yield from self._chain_problems()
         if self.sweep is not None:
             for path, spec in self.sweep.parameters.items():
                 for p in (path, *([spec["unit"]] if "unit" in spec else [])):
                     yield from self._sweep_path_problems(p, path)
+
+    def _chain_problems(self):
+        detection, kind = self.detection, self.record.kind
+        if detection.scheme == "homodyne":
+            if kind == "iq":
+                yield ("record.kind", '"iq" is not available for homodyne, which measures '
+                       'one quadrature; expected "if" (a real record) or leave it out')
+            if detection.intermediate_frequency_hz != 0:
+                yield ("detection.intermediate_frequency_hz",
+                       f"{detection.intermediate_frequency_hz!r} Hz with homodyne, whose "
+                       "local oscillator is at the drive frequency; expected 0")
+        elif kind == "if" and detection.intermediate_frequency_hz == 0:
+            yield ("detection.intermediate_frequency_hz",
+                   '0 Hz with an "if" heterodyne record; expected a positive intermediate '
+                   "frequency")
 
     def _sweep_path_problems(self, path, swept):
         key = f'sweep.parameters."{swept}"'
@@ -193,7 +299,7 @@ class Scenario:
                 node = getattr(node, name)
                 if index is not None:
                     node = node[index]
-            except (AttributeError, IndexError):
+            except (AttributeError, IndexError, TypeError):
                 raise ScenarioError(f"no parameter at path {path!r}",
                                     source=self.source, key=path) from None
         return node
@@ -210,7 +316,11 @@ class Scenario:
         for name, index in parents:
             if name not in node:
                 node[name] = {}
-            node = node[name] if index is None else node[name][index]
+            try:
+                node = node[name] if index is None else node[name][index]
+            except (KeyError, IndexError, TypeError):
+                raise ScenarioError(f"no parameter at path {path!r}",
+                                    source=self.source, key=path) from None
         if leaf_index is not None or not isinstance(node, dict):
             raise ScenarioError(f"path {path!r} does not name a single parameter",
                                 source=self.source, key=path)
@@ -325,8 +435,10 @@ def _build(cls, data, path, source):
             if f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING:
                 what = "table" if kind == "section" else (
                     "array of tables" if kind == "sections" else "key")
+                accepts = ("" if kind != "scalar"
+                           else f" as {schema.expectation(f, tp)}")
                 raise ScenarioError(f"missing required {what} {name!r} in {label}; "
-                                    f"expected {f.metadata.get('doc', name)}",
+                                    f"expected {f.metadata.get('doc', name)}{accepts}",
                                     source=source, key=key)
             continue
         value = data[name]

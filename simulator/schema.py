@@ -198,8 +198,10 @@ def reference_markdown(root):
         if kind == "sections":
             lines.append(f"Repeat the `[[{f.name}]]` table once per item; at least "
                          "one is required.")
-        if not required:
+        if f.default_factory is not dataclasses.MISSING:
             lines.append("Every key takes its default when the section is left out.")
+        elif not required:
+            lines.append("The whole section may be left out.")
         lines.append("")
         exclusive = {k for group in getattr(cls, "EXCLUSIVE", ()) for k in group}
         for group in getattr(cls, "EXCLUSIVE", ()):
@@ -215,7 +217,7 @@ def reference_markdown(root):
             elif sub.default is None:
                 default = "not set"
             else:
-                default = f"`{sub.default!r}`".replace("'", '"')
+                default = f"`{_toml_literal(sub.default)}`"
             cells = (f"`{sub.name}`", _sentence(sub.metadata["doc"]),
                      expectation(sub, tp), default)
             lines.append("| " + " | ".join(c.replace("|", "\\|") for c in cells) + " |")
@@ -226,6 +228,15 @@ def reference_markdown(root):
 def _table_header(root, f):
     kind, _, _ = field_kind(root, f.name)
     return f"[[{f.name}]]" if kind == "sections" else f"[{f.name}]"
+
+
+def _toml_literal(value):
+    """A default value as it would be written in a TOML file."""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        return f'"{value}"'
+    return repr(value)
 
 
 def _sentence(text):

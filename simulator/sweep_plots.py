@@ -124,7 +124,7 @@ def plot_stability(dataset, path):
         ax2.set_ylabel("max growth rate (Hz)")
     else:
         sub, note = _reduce(dataset, dims[:2])
-        code2 = code if len(dims) == 2 else code[(slice(None), slice(None)) + (0,) * (len(dims) - 2)]
+        code2 = code[(slice(None), slice(None)) + (0,) * (len(dims) - 2)]
         fig, ax = plt.subplots(figsize=(8, 5.5))
         ax.pcolormesh(sub[dims[0]].values, sub[dims[1]].values, code2.T, cmap=cmap, vmin=0,
                       vmax=2, shading="nearest")

@@ -93,6 +93,7 @@ class Sweep:
                 "unit = path}")
 
     def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
         if self.combine == "zip":
             lengths = {p: len(axis_numbers(spec)) for p, spec in self.parameters.items()}
             if len(set(lengths.values())) > 1:

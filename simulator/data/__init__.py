@@ -1,0 +1,1 @@
+"""Data files shipped with the package: the bundled demo scenario."""
