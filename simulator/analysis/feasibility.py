@@ -57,8 +57,28 @@ def _grid(scenario):
                          points_per_decade=64)
 
 
-def _step(value):
-    return 1e-4 * abs(value) if value != 0 else 1e-6
+def _derivative(evaluate, scenario, path):
+    """d evaluate(scenario)/d(parameter at path), central where the range allows.
+
+    At a boundary of the admissible range (a bath occupation of 0, an
+    efficiency of 1) the one-sided difference is used instead.
+    """
+    from simulator.errors import ScenarioError
+
+    value = scenario.get(path)
+    if not isinstance(value, (int, float)) or isinstance(value, bool):
+        raise InputError(f"{path} = {value!r}: the Fisher information needs a numeric "
+                         "parameter that is set in the scenario")
+    h = 1e-4 * abs(value) if value != 0 else 1e-6
+    try:
+        up, hi = evaluate(scenario.replace(path, value + h)), h
+    except ScenarioError:
+        up, hi = evaluate(scenario), 0.0
+    try:
+        down, lo = evaluate(scenario.replace(path, value - h)), h
+    except ScenarioError:
+        down, lo = evaluate(scenario), 0.0
+    return (up - down) / (hi + lo)
 
 
 def fisher_matrix(scenario, paths, *, frequency_hz=None):
@@ -80,17 +100,8 @@ def fisher_matrix(scenario, paths, *, frequency_hz=None):
     """
     f = _grid(scenario) if frequency_hz is None else np.asarray(frequency_hz, float)
     base = _spectrum_total(scenario, f)
-    logd = []
-    for path in paths:
-        value = scenario.get(path)
-        if not isinstance(value, (int, float)) or isinstance(value, bool):
-            raise InputError(f"{path} = {value!r}: the Fisher information needs a numeric "
-                             "parameter that is set in the scenario")
-        h = _step(value)
-        up = _spectrum_total(scenario.replace(path, value + h), f)
-        down = _spectrum_total(scenario.replace(path, value - h), f)
-        logd.append((up - down) / (2 * h) / base)
-    logd = np.array(logd)
+    logd = np.array([_derivative(lambda s: _spectrum_total(s, f), scenario, path) / base
+                     for path in paths])
     integrand = logd[:, None, :] * logd[None, :, :]
     return np.trapezoid(integrand, f, axis=-1)
 
@@ -130,15 +141,12 @@ def occupation_bound(scenario, mode=0, paths=None):
 
     paths = tuple(paths) if paths is not None else default_paths(scenario, mode)
     fisher = fisher_matrix(scenario, paths)
-    grad = []
-    for path in paths:
-        value = scenario.get(path)
-        h = _step(value)
-        up = steady_state(scenario.replace(path, value + h)).modes[mode].occupation
-        down = steady_state(scenario.replace(path, value - h)).modes[mode].occupation
-        grad.append((up - down) / (2 * h))
-    grad = np.array(grad)
-    variance = float(grad @ np.linalg.solve(fisher, grad))
+    grad = np.array([_derivative(lambda s: steady_state(s).modes[mode].occupation,
+                                 scenario, path) for path in paths])
+    try:
+        variance = float(grad @ np.linalg.solve(fisher, grad))
+    except np.linalg.LinAlgError:
+        variance = np.inf  # some parameter leaves no trace in the record
     return OccupationBound(mode=scenario.mechanics[mode].name,
                            occupation=steady_state(scenario).modes[mode].occupation,
                            paths=paths, error_one_second=float(np.sqrt(variance)),
