@@ -13,18 +13,15 @@ result is one :class:`xarray.Dataset` with a dimension per swept parameter
 
 import dataclasses
 import functools
-import hashlib
 import itertools
-import json
-import math
 import os
 import re
 from pathlib import Path
 
 import numpy as np
 
-from simulator.errors import InputError, ScenarioError
-from simulator.files import atomic_write_text
+from simulator import tasks
+from simulator.errors import ScenarioError
 from simulator.sweep_spec import axis_numbers
 
 FORMAT = "noisechain-sweep"
@@ -183,46 +180,13 @@ def _add_sidebands(scenario, result):
                 scenario, j, ASYMMETRY_SIGNIFICANCE).duration_s
 
 
-def _evaluate_batch(scenario_text, batch):
-    return [(key, evaluate_point(scenario_text, assignments)) for key, assignments in batch]
-
-
-def scenario_digest(text):
-    """SHA-256 of the scenario text: identifies the sweep a folder belongs to."""
-    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+def _point_task(scenario_text, assignments):
+    # looked up at call time so that tests can substitute evaluate_point
+    return evaluate_point(scenario_text, assignments)
 
 
 def _point_key(index):
     return "-".join(f"{i:05d}" for i in index)
-
-
-def _prepare_folder(out, text):
-    out.mkdir(parents=True, exist_ok=True)
-    (out / "points").mkdir(exist_ok=True)
-    manifest = out / "sweep.json"
-    digest = scenario_digest(text)
-    if manifest.exists():
-        try:
-            found = json.loads(manifest.read_text(encoding="utf-8"))
-        except (OSError, ValueError) as exc:
-            raise InputError(f"{manifest}: unreadable sweep manifest ({exc}); expected a "
-                             "folder written by noisechain sweep, or a new folder") from None
-        if found.get("scenario_sha256") != digest:
-            raise InputError(
-                f"{out}: this folder holds a sweep of a different scenario (its "
-                "sweep.json does not match); results are never mixed. Choose a new --out "
-                "folder or delete the old one.")
-    else:
-        atomic_write_text(manifest, json.dumps({
-            "format": FORMAT, "format_version": FORMAT_VERSION,
-            "scenario_sha256": digest, "scenario_toml": text}, indent=2))
-
-
-def _read_point(path):
-    try:
-        return json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return None  # a damaged point file is recomputed
 
 
 def run_sweep(scenario, out, *, workers=None, dask=None, progress=True):
@@ -251,92 +215,16 @@ def run_sweep(scenario, out, *, workers=None, dask=None, progress=True):
     text = scenario.to_toml()
     axes = sweep_axes(scenario)
     points = sweep_points(scenario, axes)
-    _prepare_folder(out, text)
-    results, todo = {}, []
-    for index, assignments in points:
-        key = _point_key(index)
-        stored = _read_point(out / "points" / f"{key}.json")
-        if stored is not None:
-            results[key] = stored
-        else:
-            todo.append((key, assignments))
-    bar = None
-    if progress:
-        from tqdm import tqdm
-
-        bar = tqdm(total=len(points), initial=len(points) - len(todo), unit="pt",
-                   desc="sweep", smoothing=0.1)
-    try:
-        for key, result in _execute(text, todo, workers, dask):
-            # a point file is recomputed if damaged, so skip the fsync per point
-            atomic_write_text(out / "points" / f"{key}.json", json.dumps(result),
-                              durable=False)
-            results[key] = result
-            if bar is not None:
-                bar.update(1)
-    finally:
-        if bar is not None:
-            bar.close()
+    tasks.prepare_folder(out, "sweep.json", {
+        "format": FORMAT, "format_version": FORMAT_VERSION,
+        "sha256": tasks.digest(text), "scenario_toml": text}, "sweep")
+    results = tasks.run_tasks(out / "points", _point_task, text,
+                              [(_point_key(index), a) for index, a in points],
+                              workers=workers, dask=dask, progress=progress, desc="sweep",
+                              unit="pt")
     dataset = assemble(scenario, axes, points, results)
     write_dataset(dataset, out / "sweep.nc")
     return dataset
-
-
-def _batches(todo, n):
-    size = max(1, min(64, math.ceil(len(todo) / max(1, 8 * n))))
-    return [todo[i:i + size] for i in range(0, len(todo), size)]
-
-
-def _execute(text, todo, workers, dask):
-    """Yield ``(key, result)`` as points finish, from the chosen executor."""
-    if not todo:
-        return
-    if dask is not None:
-        yield from _execute_dask(text, todo, dask)
-        return
-    workers = os.cpu_count() or 1 if workers is None else int(workers)
-    if workers < 1:
-        raise InputError(f"--workers {workers}: expected a positive number of workers")
-    if workers == 1:
-        for key, assignments in todo:
-            yield key, evaluate_point(text, assignments)
-        return
-    import concurrent.futures as cf
-    import multiprocessing
-
-    context = multiprocessing.get_context("spawn")
-    with cf.ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
-        futures = [pool.submit(_evaluate_batch, text, b) for b in _batches(todo, workers)]
-        for future in cf.as_completed(futures):
-            yield from future.result()
-
-
-def _execute_dask(text, todo, address):
-    from distributed import Client, LocalCluster, as_completed
-
-    if address == "local":
-        cluster = LocalCluster(n_workers=os.cpu_count() or 1, threads_per_worker=1,
-                               processes=True, dashboard_address=None)
-        client = Client(cluster)
-    elif address.startswith("tcp://"):
-        cluster = None
-        try:
-            client = Client(address, timeout=20)
-        except OSError as exc:
-            raise InputError(f"--dask {address}: cannot reach the Dask scheduler ({exc}); "
-                             "expected a running scheduler at this address") from None
-    else:
-        raise InputError(f"--dask {address!r}: expected 'local' or a scheduler address "
-                         "like tcp://host:8786")
-    try:
-        batches = _batches(todo, len(client.scheduler_info().get("workers", {})) or 1)
-        futures = [client.submit(_evaluate_batch, text, b, pure=False) for b in batches]
-        for future in as_completed(futures):
-            yield from future.result()
-    finally:
-        client.close()
-        if cluster is not None:
-            cluster.close()
 
 
 def assemble(scenario, axes, points, results):

@@ -1,0 +1,174 @@
+"""Resumable execution of many independent tasks on local processes or Dask.
+
+Sweeps and Monte Carlo trials share this runner. Each task has a key and a
+payload; ``func(common, payload)`` must be a pure function returning
+JSON-serialisable data, so results are the same bit for bit whichever
+executor runs it and however many workers there are. Every finished task is
+stored atomically as ``FOLDER/<tasks>/<key>.json``; a rerun with the same
+folder skips them, and a folder that belongs to different work (its manifest
+differs) is refused rather than mixed.
+"""
+
+import hashlib
+import json
+import math
+import os
+from pathlib import Path
+
+from simulator.errors import InputError
+from simulator.files import atomic_write_text
+
+
+def digest(text):
+    """SHA-256 of ``text``: identifies the work a folder belongs to."""
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def prepare_folder(folder, manifest_name, manifest, what):
+    """Create ``folder`` with its manifest, or check an existing one matches.
+
+    Parameters
+    ----------
+    manifest : dict
+        Must contain ``"sha256"``, the digest identifying the work.
+    what : str
+        Words for error messages, e.g. ``"sweep"``.
+    """
+    folder.mkdir(parents=True, exist_ok=True)
+    path = folder / manifest_name
+    if path.exists():
+        try:
+            found = json.loads(path.read_text(encoding="utf-8"))
+        except (OSError, ValueError) as exc:
+            raise InputError(f"{path}: unreadable {what} manifest ({exc}); expected a folder "
+                             f"written by noisechain {what}, or a new folder") from None
+        if found.get("sha256") != manifest["sha256"]:
+            raise InputError(
+                f"{folder}: this folder holds a {what} of a different scenario or set-up "
+                f"(its {manifest_name} does not match); results are never mixed. Choose a "
+                "new --out folder or delete the old one.")
+    else:
+        atomic_write_text(path, json.dumps(manifest, indent=2))
+
+
+def _read(path):
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None  # missing or damaged: recomputed
+
+
+def run_tasks(folder, func, common, tasks, *, workers=None, dask=None, progress=True,
+              desc="tasks", unit="task"):
+    """Run (or resume) ``tasks``, storing each result under ``folder``.
+
+    Parameters
+    ----------
+    folder : pathlib.Path
+        Results go to ``folder/<key>.json``.
+    func : callable
+        Top-level function ``func(common, payload) -> JSON-serialisable``.
+    common : picklable
+        Shared argument (e.g. the scenario as TOML text).
+    tasks : sequence of (str, payload)
+    workers : int, optional
+        Local worker processes (default: all cores); 1 runs in this process.
+    dask : str, optional
+        ``"local"`` for a Dask LocalCluster or a scheduler address
+        ``tcp://host:port``; overrides ``workers``.
+    progress : bool
+        Show a progress bar with rate and time remaining.
+
+    Returns
+    -------
+    dict
+        Result per key, for every task.
+    """
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    results, todo = {}, []
+    for key, payload in tasks:
+        stored = _read(folder / f"{key}.json")
+        if stored is not None:
+            results[key] = stored
+        else:
+            todo.append((key, payload))
+    bar = None
+    if progress:
+        from tqdm import tqdm
+
+        bar = tqdm(total=len(tasks), initial=len(tasks) - len(todo), unit=unit, desc=desc,
+                   smoothing=0.1)
+    try:
+        for key, result in _execute(func, common, todo, workers, dask):
+            # a task file is recomputed if damaged, so skip the fsync per task
+            atomic_write_text(folder / f"{key}.json", json.dumps(result), durable=False)
+            results[key] = result
+            if bar is not None:
+                bar.update(1)
+    finally:
+        if bar is not None:
+            bar.close()
+    return results
+
+
+def run_batch(func, common, batch):
+    """Run a batch of tasks in one worker call: ``[(key, func(common, payload))]``."""
+    return [(key, func(common, payload)) for key, payload in batch]
+
+
+def _batches(todo, n):
+    size = max(1, min(64, math.ceil(len(todo) / max(1, 8 * n))))
+    return [todo[i:i + size] for i in range(0, len(todo), size)]
+
+
+def _execute(func, common, todo, workers, dask):
+    """Yield ``(key, result)`` as tasks finish, from the chosen executor."""
+    if not todo:
+        return
+    if dask is not None:
+        yield from _execute_dask(func, common, todo, dask)
+        return
+    workers = (os.cpu_count() or 1) if workers is None else int(workers)
+    if workers < 1:
+        raise InputError(f"--workers {workers}: expected a positive number of workers")
+    if workers == 1:
+        for key, payload in todo:
+            yield key, func(common, payload)
+        return
+    import concurrent.futures as cf
+    import multiprocessing
+
+    context = multiprocessing.get_context("spawn")
+    with cf.ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
+        futures = [pool.submit(run_batch, func, common, b) for b in _batches(todo, workers)]
+        for future in cf.as_completed(futures):
+            yield from future.result()
+
+
+def _execute_dask(func, common, todo, address):
+    from distributed import Client, LocalCluster, as_completed
+
+    if address == "local":
+        cluster = LocalCluster(n_workers=os.cpu_count() or 1, threads_per_worker=1,
+                               processes=True, dashboard_address=None)
+        client = Client(cluster)
+    elif address.startswith("tcp://"):
+        cluster = None
+        try:
+            client = Client(address, timeout=20)
+        except OSError as exc:
+            raise InputError(f"--dask {address}: cannot reach the Dask scheduler ({exc}); "
+                             "expected a running scheduler at this address") from None
+    else:
+        raise InputError(f"--dask {address!r}: expected 'local' or a scheduler address "
+                         "like tcp://host:8786")
+    try:
+        batches = _batches(todo, len(client.scheduler_info().get("workers", {})) or 1)
+        futures = [client.submit(run_batch, func, common, b, pure=False) for b in batches]
+        for future in as_completed(futures):
+            yield from future.result()
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
