@@ -11,11 +11,12 @@ import json
 import math
 import os
 import sys
+import warnings
 from pathlib import Path
 
-from simulator.errors import InputError, OperatingPointError
+from simulator.errors import InputError, NoisechainError, OperatingPointError
 
-EXIT_OK, EXIT_INPUT, EXIT_UNSTABLE = 0, 2, 3
+EXIT_OK, EXIT_FAILED, EXIT_INPUT, EXIT_UNSTABLE = 0, 1, 2, 3
 
 
 def _json_default(value):
@@ -151,8 +152,12 @@ def cmd_record(args):
 
     _require_suffix(args.out, (".h5", ".hdf5"), "--out")
     scenario = load_scenario(args.scenario)
-    record = simulate_record(scenario, seed=args.seed, duration_s=args.duration,
-                             out=args.out, form=args.form, progress=not args.quiet)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        record = simulate_record(scenario, seed=args.seed, duration_s=args.duration,
+                                 out=args.out, form=args.form, progress=not args.quiet)
+    for warning in caught:
+        print(f"noisechain record: warning: {warning.message}", file=sys.stderr)
     truth = record.truth
     summary = {"out": str(Path(args.out).resolve()), "samples": record.n_samples,
                "sample_rate_hz": record.sample_rate_hz, "kind": record.kind,
@@ -178,6 +183,30 @@ def cmd_record(args):
               f"(at {mode['effective_frequency_hz']:.9g} Hz, linewidth "
               f"{mode['effective_linewidth_hz']:.4g} Hz)")
     print(f"  cavity occupation: {truth.cavity_occupation:.4g}")
+    return EXIT_OK
+
+
+def cmd_trial(args):
+    from simulator.scenario import load_scenario
+    from simulator.trial import run_trials
+
+    result = run_trials(load_scenario(args.scenario), args.estimator, args.trials, args.out,
+                        duration_s=args.duration, workers=args.workers, dask=args.dask,
+                        progress=not args.quiet)
+    if args.json:
+        print_json(result.to_dict())
+        return EXIT_OK
+    print(f"{result.dataset.sizes['trial']} trials of {args.estimator}; "
+          f"{len(result.errors)} failed; results in {result.out.resolve()}")
+    for q in result.quantities:
+        truth = "no truth" if q.truth is None else f"truth {q.truth:.6g}"
+        line = f"  {q.name}: mean {q.mean:.6g} ({truth}), spread {q.spread:.3g}"
+        if q.bias is not None:
+            line += (f", bias {q.bias:+.3g} ± {q.bias_error:.2g}, pull width "
+                     f"{q.pull_width:.3g}, 1σ coverage {q.coverage_1sigma:.0%}")
+        print(line)
+        print(f"      {q.verdict}")
+    print(f"open {result.out / 'report.html'} for histograms and pulls")
     return EXIT_OK
 
 
@@ -275,6 +304,22 @@ def build_parser():
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
     p.set_defaults(func=cmd_record)
 
+    p = verbs.add_parser("trial", help="validate an estimator on many synthetic records "
+                         "against the ground truth (bias, pulls, coverage)")
+    p.add_argument("scenario", help="scenario TOML file")
+    p.add_argument("--estimator", required=True, metavar="MODULE:FUNCTION",
+                   help="function(record) -> {name: (value, uncertainty)}; a module path "
+                   "or path/to/file.py:function")
+    p.add_argument("--trials", type=int, required=True, help="number of records")
+    p.add_argument("--out", required=True, help="output folder (rerun to resume or extend)")
+    p.add_argument("--duration", type=float, default=None, metavar="S",
+                   help="record length in seconds (default: record.duration_s)")
+    p.add_argument("--workers", type=int, default=None, help="local worker processes")
+    p.add_argument("--dask", default=None, metavar="ADDR", help="'local' or tcp://host:port")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument("--json", action="store_true", help="print the summary as JSON")
+    p.set_defaults(func=cmd_trial)
+
     p = verbs.add_parser("run", help="everything the scenario asks for (inspect, "
                          "spectrum, record, sweep, figures) and an HTML report")
     p.add_argument("scenario", help="scenario TOML file")
@@ -310,6 +355,9 @@ def main(argv=None):
     except OperatingPointError as exc:
         print(f"noisechain {args.verb}: {exc}", file=sys.stderr)
         return EXIT_UNSTABLE
+    except NoisechainError as exc:
+        print(f"noisechain {args.verb}: {exc}", file=sys.stderr)
+        return EXIT_FAILED
 
 
 def entry_point():

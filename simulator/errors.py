@@ -36,3 +36,7 @@ class ScenarioError(InputError):
 
 class OperatingPointError(NoisechainError):
     """The drive puts the system at an unstable or invalid operating point."""
+
+
+class ExecutionError(NoisechainError):
+    """Work could not be completed (a worker died); what finished is kept."""

@@ -15,7 +15,7 @@ import math
 import os
 from pathlib import Path
 
-from simulator.errors import InputError
+from simulator.errors import ExecutionError, InputError
 from simulator.files import atomic_write_text
 
 
@@ -140,10 +140,17 @@ def _execute(func, common, todo, workers, dask):
     import multiprocessing
 
     context = multiprocessing.get_context("spawn")
-    with cf.ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
-        futures = [pool.submit(run_batch, func, common, b) for b in _batches(todo, workers)]
-        for future in cf.as_completed(futures):
-            yield from future.result()
+    try:
+        with cf.ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
+            futures = [pool.submit(run_batch, func, common, b)
+                       for b in _batches(todo, workers)]
+            for future in cf.as_completed(futures):
+                yield from future.result()
+    except cf.process.BrokenProcessPool:
+        raise ExecutionError(
+            "a worker process died (out of memory, or killed); every finished task is "
+            "saved, so rerun the same command to resume, perhaps with fewer --workers"
+        ) from None
 
 
 def _execute_dask(func, common, todo, address):

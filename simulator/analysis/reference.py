@@ -1,0 +1,57 @@
+"""Reference estimators, in the form the validation harness calls.
+
+``noisechain trial SCENARIO --estimator simulator.analysis.reference:sideband_thermometry``
+runs the careful-lab analysis of :mod:`simulator.analysis.thermometry` on each
+record. Every estimator here uses only the public record and the scenario's
+nominal calibration, never the truth.
+"""
+
+import numpy as np
+
+from simulator.analysis.psd import averaged_periodogram
+from simulator.analysis.thermometry import Calibration, measure_occupation
+from simulator.errors import InputError
+
+
+def record_psd(record, resolution_hz):
+    """Averaged periodogram of a public IQ record, corrected for integrate-and-dump.
+
+    Each sample is the average of the signal over one sample interval, which
+    multiplies the spectrum by sinc²(f/fs); it is divided out here (the
+    sampling scheme is public, part of the chain's description).
+    """
+    if record.kind != "iq":
+        raise InputError(f"record kind {record.kind!r}: the sideband thermometry needs an "
+                         "IQ (complex heterodyne) record")
+    fs = record.sample_rate_hz
+    segment = int(2 ** np.ceil(np.log2(fs / resolution_hz)))
+    psd = averaged_periodogram(record.samples, fs, segment_samples=segment, window="boxcar")
+    import dataclasses
+
+    return dataclasses.replace(psd, density=psd.density / np.sinc(psd.frequency_hz / fs) ** 2)
+
+
+def sideband_thermometry(record, mode=0):
+    """Occupation from the sideband asymmetry, the calibrated areas and the damping.
+
+    Returns ``{name: (value, uncertainty)}`` with names the harness compares
+    with the truth: ``occupation:asymmetry``, ``occupation:anti_stokes_area``,
+    ``occupation:stokes_area``, ``occupation:damping``,
+    ``effective_frequency_hz`` and ``effective_linewidth_hz``.
+    """
+    cal = Calibration.from_scenario(record.scenario, mode)
+    k, g = cal.cavity_linewidth_hz, cal.coupling_rate_hz
+    a_minus = g**2 * k / (k**2 / 4 + (cal.detuning_hz + cal.mechanical_frequency_hz) ** 2)
+    width = cal.mechanical_linewidth_hz + a_minus - cal.stokes_rate_hz()
+    psd = record_psd(record, resolution_hz=abs(width) / 8)
+    result = measure_occupation(psd, cal)
+    out = {f"occupation:{key}": value for key, value in (
+        ("asymmetry", (result.occupation_asymmetry, result.occupation_asymmetry_error)),
+        ("anti_stokes_area", (result.occupation_anti_stokes_area,
+                              result.occupation_anti_stokes_area_error)),
+        ("stokes_area", (result.occupation_stokes_area, result.occupation_stokes_area_error)),
+        ("damping", (result.occupation_damping, result.occupation_damping_error)))}
+    fit = result.fit.as_dict()
+    out["effective_frequency_hz"] = fit["frequency_hz"]
+    out["effective_linewidth_hz"] = fit["linewidth_hz"]
+    return out
