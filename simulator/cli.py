@@ -243,6 +243,17 @@ def cmd_demo(args):
     return EXIT_OK
 
 
+def _execution_options(p, *, dask=True):
+    """--workers, --dask, --quiet and --json, shared by the verbs that run many tasks."""
+    p.add_argument("--workers", type=int, default=None, help="local worker processes "
+                   "(default: all cores)")
+    if dask:
+        p.add_argument("--dask", default=None, metavar="ADDR", help="run on Dask: 'local' "
+                       "for a LocalCluster or a scheduler address tcp://host:port")
+    p.add_argument("--quiet", action="store_true", help="no progress bars")
+    p.add_argument("--json", action="store_true", help="print the summary as JSON")
+
+
 def build_parser():
     """The argument parser of every ``noisechain`` verb."""
     parser = argparse.ArgumentParser(
@@ -270,12 +281,7 @@ def build_parser():
     p.add_argument("scenario", help="scenario TOML file with a [sweep] section")
     p.add_argument("--out", required=True, help="output folder (rerun with the same "
                    "folder to resume)")
-    p.add_argument("--workers", type=int, default=None, help="local worker processes "
-                   "(default: all cores)")
-    p.add_argument("--dask", default=None, metavar="ADDR", help="run on Dask: 'local' "
-                   "for a LocalCluster or a scheduler address tcp://host:port")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
-    p.add_argument("--json", action="store_true", help="print the summary as JSON")
+    _execution_options(p)
     p.set_defaults(func=cmd_sweep)
 
     p = verbs.add_parser("spectrum", help="analytic output spectrum with its noise "
@@ -314,31 +320,21 @@ def build_parser():
     p.add_argument("--out", required=True, help="output folder (rerun to resume or extend)")
     p.add_argument("--duration", type=float, default=None, metavar="S",
                    help="record length in seconds (default: record.duration_s)")
-    p.add_argument("--workers", type=int, default=None, help="local worker processes")
-    p.add_argument("--dask", default=None, metavar="ADDR", help="'local' or tcp://host:port")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
-    p.add_argument("--json", action="store_true", help="print the summary as JSON")
+    _execution_options(p)
     p.set_defaults(func=cmd_trial)
 
     p = verbs.add_parser("run", help="everything the scenario asks for (inspect, "
                          "spectrum, record, sweep, figures) and an HTML report")
     p.add_argument("scenario", help="scenario TOML file")
     p.add_argument("--out", required=True, help="output folder")
-    p.add_argument("--workers", type=int, default=None, help="local worker processes for "
-                   "a sweep (default: all cores)")
-    p.add_argument("--dask", default=None, metavar="ADDR", help="run a sweep on Dask: "
-                   "'local' or tcp://host:port")
-    p.add_argument("--quiet", action="store_true", help="no progress bars")
-    p.add_argument("--json", action="store_true", help="print the list of files as JSON")
+    _execution_options(p)
     p.set_defaults(func=cmd_run)
 
     p = verbs.add_parser("demo", help="run the bundled demo scenario and write its "
                          "outputs and report to a folder")
     p.add_argument("--out", default="demo-output", help="output folder (default: "
                    "%(default)s)")
-    p.add_argument("--workers", type=int, default=None, help="local worker processes")
-    p.add_argument("--quiet", action="store_true", help="no progress bars")
-    p.add_argument("--json", action="store_true", help="print the list of files as JSON")
+    _execution_options(p, dask=False)
     p.set_defaults(func=cmd_demo)
     return parser
 

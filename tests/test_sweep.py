@@ -6,6 +6,7 @@ import signal
 import subprocess
 import sys
 import time
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -16,24 +17,7 @@ from simulator.scenario import parse_scenario
 from simulator.steady_state import steady_state
 from simulator.sweep import evaluate_point, run_sweep, sweep_axes, sweep_points
 
-BASE = """
-[scenario]
-name = "sweep-test"
-[drive]
-wavelength_m = 1550e-9
-power_w = 0.25e-6
-detuning_hz = -1.5e6
-[cavity]
-linewidth_hz = 400e3
-external_linewidth_hz = 200e3
-[[mechanics]]
-name = "trampoline"
-frequency_hz = 1.5e6
-linewidth_hz = 0.5
-effective_mass_kg = 5e-12
-coupling_hz = 200.0
-bath_temperature_k = 4.0
-"""
+BASE = (Path(__file__).parent / "data" / "sweep_base.toml").read_text()
 
 GRID = BASE + """
 [sweep]

@@ -6,31 +6,17 @@ stored atomically, NetCDF written at the end), and the ratios. Run with
 `make bench` or `.venv/bin/python tests/benchmarks/bench_sweep.py [N]`.
 """
 
+import dataclasses
 import sys
 import tempfile
 import time
+from pathlib import Path
 
 from simulator.inspection import inspect_scenario
 from simulator.scenario import parse_scenario
 from simulator.sweep import run_sweep, sweep_axes
 
-TEXT = """
-[scenario]
-name = "bench-sweep"
-[drive]
-wavelength_m = 1550e-9
-power_w = 0.25e-6
-detuning_hz = -1.5e6
-[cavity]
-linewidth_hz = 400e3
-external_linewidth_hz = 200e3
-[[mechanics]]
-name = "trampoline"
-frequency_hz = 1.5e6
-linewidth_hz = 0.5
-effective_mass_kg = 5e-12
-coupling_hz = 200.0
-bath_temperature_k = 4.0
+TEXT = (Path(__file__).parent.parent / "data" / "sweep_base.toml").read_text() + """
 [sweep]
 [sweep.parameters]
 "drive.detuning_hz" = { start = -2, stop = 2, num = NUM, unit = "mechanics[0].frequency_hz" }
@@ -40,7 +26,7 @@ bath_temperature_k = 4.0
 def main(n=1000):
     scenario = parse_scenario(TEXT.replace("NUM", str(n)))
     (axis,) = sweep_axes(scenario)
-    base = scenario.__class__(**{**scenario.__dict__, "sweep": None})
+    base = dataclasses.replace(scenario, sweep=None)
     t0 = time.perf_counter()
     for value in axis.values:
         inspect_scenario(base.replace(axis.path, value))
