@@ -187,6 +187,7 @@ def cmd_record(args):
 
 
 def cmd_trial(args):
+    """``noisechain trial``: an estimator on many records, against the truth."""
     from simulator.scenario import load_scenario
     from simulator.trial import run_trials
 
@@ -211,6 +212,7 @@ def cmd_trial(args):
 
 
 def _print_run(result, args):
+    """Summary of a run (or the demo): the files written and the report."""
     if args.json:
         print_json({"out": str(result.out.resolve()), "report": str(result.report),
                     "stable": result.stable, "files": [str(p) for p in result.files]})

@@ -160,5 +160,12 @@ def _mode_point(mode, photon_number, kappa):
         single_photon_coupling_hz=mode.coupling_hz, coupling_rate_hz=float(g_hz),
         zero_point_amplitude_m=float(x_zpf), bath_occupation=n_th,
         cooperativity=float(cooperativity),
-        quantum_cooperativity=float(cooperativity / n_th) if n_th > 0 else float("inf"),
+        quantum_cooperativity=_ratio(cooperativity, n_th),
         sideband_resolution=mode.frequency_hz / float(ordinary(kappa)))
+
+
+def _ratio(numerator, denominator):
+    """numerator/denominator, infinite where the quotient overflows or divides by 0."""
+    with np.errstate(over="ignore", divide="ignore"):
+        value = np.float64(numerator) / np.float64(denominator) if denominator > 0 else np.inf
+    return float(value)

@@ -89,3 +89,58 @@ class Spectrum:
         attrs.update({f"calibration_{k}": v for k, v in self.calibration.items()})
         attrs.update({f"provenance_{k}": str(v) for k, v in self.provenance.items()})
         return xr.Dataset(data, coords=coords, attrs=attrs)
+
+    def save(self, path):
+        """Write the spectrum to ``path``: NetCDF (``.nc``) or CSV (``.csv``), atomically.
+
+        The CSV starts with ``# key: value`` lines (axis, sidedness, units,
+        calibration, provenance except the embedded scenario), then one column
+        per curve with a header row. Any other extension raises
+        :class:`~simulator.errors.InputError`.
+        """
+        import os
+        import tempfile
+        from pathlib import Path
+
+        from simulator.errors import InputError
+
+        path = Path(path)
+        suffix = path.suffix.lower()
+        if suffix not in (".nc", ".csv"):
+            raise InputError(f"output file {str(path)!r} has extension {path.suffix!r}; "
+                             "expected .nc (NetCDF) or .csv")
+        if suffix == ".csv":
+            from simulator.files import atomic_write_text
+
+            atomic_write_text(path, self._csv_text())
+            return path
+        fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".part")
+        os.close(fd)
+        try:
+            self.to_dataset().to_netcdf(tmp, engine="h5netcdf")
+            os.chmod(tmp, 0o644)
+            os.replace(tmp, path)
+        except BaseException:
+            Path(tmp).unlink(missing_ok=True)
+            raise
+        return path
+
+    def _csv_text(self):
+        import csv
+        import io
+
+        out = io.StringIO()
+        meta = {"quantity": self.quantity, "axis": self.axis, "sided": self.sided,
+                "units": self.units, "density": self.density,
+                **{f"calibration {k}": v for k, v in self.calibration.items()},
+                **{f"provenance {k}": v for k, v in self.provenance.items()
+                   if k != "scenario_toml"}}
+        for key, value in meta.items():
+            out.write(f"# {key}: {value}\n")
+        columns = {"frequency_hz": self.frequency_hz, "total": self.total,
+                   **self.contributions,
+                   **{f"reference: {k}": v for k, v in self.reference.items()}}
+        csv.writer(out, lineterminator="\n").writerow(list(columns))
+        table = np.column_stack([np.asarray(v, dtype=float) for v in columns.values()])
+        np.savetxt(out, table, fmt="%.17g", delimiter=",")
+        return out.getvalue()
