@@ -177,7 +177,8 @@ class Digitizer:
         "sample rate; left out: chosen to take in the cavity line and every "
         "mechanical sideband (see docs/records.md)", unit="Hz", check="positive",
         default=None)
-    bits: int = param("resolution of the converter", check="positive", default=16)
+    bits: int = param("resolution of the converter, 2 to 32 bits", check="positive",
+                      default=16)
     full_scale_v: float | None = param(
         "input range ±full_scale_v; left out: eight times the record's standard "
         "deviation", unit="V", check="positive", default=None)

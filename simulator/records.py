@@ -1,0 +1,406 @@
+"""Synthetic digitised records with exactly the statistics of the linear model.
+
+:func:`simulate_record` is the one entry point: scenario and seed in, a
+:class:`Record` out (in memory, or streamed to an HDF5 file chunk by chunk so
+that memory does not grow with the duration). The pipeline is
+
+    scenario ► detection chain (:mod:`simulator.chain`) ► exact discretisation
+    at the sample interval (:mod:`simulator.discretize`) ► numba recursion
+    (:mod:`simulator.kernels`) ► carrier rotation (if records) ► volts ►
+    digitiser (quantisation, clipping) ► counts.
+
+Two exact forms generate the same process: the full state form (one normal
+per noise direction and sample; it also yields the true mechanical
+quadratures) and the innovations form (one normal per output channel and
+sample). Both start in the stationary state.
+
+Reproducibility: the random normals of sample block k (``BLOCK_SAMPLES``
+samples) come from their own generator, seeded by (seed, k) through
+:class:`numpy.random.SeedSequence`. A record is therefore the same bits for a
+given (scenario, seed, form) whatever the chunk size used to make it.
+"""
+
+import dataclasses
+import warnings
+
+import numpy as np
+
+from simulator.errors import InputError
+
+BLOCK_SAMPLES = 1 << 16
+FULL_SCALE_SIGMAS = 8.0  # automatic full scale, in standard deviations of the record
+START_STREAM, SAMPLE_STREAM = 0, 1
+
+
+class RecordWarning(UserWarning):
+    """Something in a generated record deserves attention (clipping)."""
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class Truth:
+    """The exact answer stored beside a record.
+
+    Per-mode tuples follow ``mode_names``. ``calibration`` holds the
+    conversion factors with their units in the key names (see
+    :meth:`simulator.chain.DetectionChain.calibration`).
+    """
+
+    mode_names: tuple
+    occupation: tuple
+    effective_frequency_hz: tuple
+    effective_linewidth_hz: tuple
+    coupling_rate_hz: tuple
+    zero_point_amplitude_m: tuple
+    cavity_occupation: float
+    calibration: dict
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class Record:
+    """A digitised record with its ground truth and provenance.
+
+    Attributes
+    ----------
+    counts : ndarray or None
+        ADC counts, shape (N, 2) for I, Q (kind ``"iq"``) or (N,) (``"if"``);
+        None when the record lives only in its file (:meth:`samples` reads it).
+    kind : str
+        ``"iq"`` or ``"if"``.
+    sample_rate_hz, volts_per_count, shot_noise_per_count : float
+        counts × shot_noise_per_count is the record in units whose two-sided
+        shot-noise density is 1 per Hz; I + iQ has the anti-Stokes sideband at
+        positive frequency in an FFT.
+    mechanical_quadratures : ndarray or None
+        (N, 2 × modes): q, p of each mode at the start of each sample interval
+        (vacuum variance ½), when stored.
+    """
+
+    counts: np.ndarray | None
+    kind: str
+    scheme: str
+    sample_rate_hz: float
+    n_samples: int
+    volts_per_count: float
+    shot_noise_per_count: float
+    full_scale_v: float
+    bits: int
+    clipped_samples: int
+    intermediate_frequency_hz: float
+    local_oscillator_side: str
+    seed: int
+    form: str
+    scenario: object
+    truth: Truth
+    software_version: str
+    created_utc: str = ""
+    mechanical_quadratures: np.ndarray | None = None
+    path: object = None
+
+    def samples(self):
+        """The ADC counts, read from the file when not held in memory."""
+        if self.counts is not None:
+            return self.counts
+        from simulator.recordfile import load_record
+
+        return load_record(self.path).counts
+
+    def shot_noise_units(self):
+        """The record in shot-noise units: complex I + iQ (iq) or real (if)."""
+        c = self.samples()
+        if self.kind == "iq":
+            return (c[:, 0] + 1j * c[:, 1]) * self.shot_noise_per_count
+        return c * self.shot_noise_per_count
+
+    def volts(self):
+        """The digitised voltage (V); complex I + iQ for an iq record."""
+        return self.shot_noise_units() * (self.volts_per_count / self.shot_noise_per_count)
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class RecordPlan:
+    """Everything fixed before the first sample: models, scales and sizes."""
+
+    scenario: object
+    seed: int
+    form: str
+    chain: object
+    discrete: object
+    sample_rate_hz: float
+    n_samples: int
+    full_scale_v: float
+    bits: int
+    truth: Truth
+    watched: np.ndarray  # state indices of the mechanical quadratures to store
+    innovations: object = None
+
+    @property
+    def volts_per_count(self):
+        """Voltage step of one digitiser count (V): full range 2·full_scale_v / 2^bits."""
+        return 2.0 * self.full_scale_v / 2.0**self.bits
+
+    @property
+    def shot_noise_per_count(self):
+        """One count in shot-noise units (two-sided shot-noise density 1 per Hz)."""
+        return self.volts_per_count / self.chain.volts_per_unit
+
+
+def plan_record(scenario, *, seed=None, duration_s=None, form="auto", store_mechanics=None):
+    """Resolve every setting of a record and build its exact discrete model.
+
+    See :func:`simulate_record` for the parameters.
+    """
+    from simulator.chain import automatic_sample_rate, detection_chain
+    from simulator.discretize import discretize, innovations_form
+    from simulator.model import linear_model
+    from simulator.operating_point import operating_point
+    from simulator.steady_state import steady_state
+
+    seed = scenario.scenario.seed if seed is None else seed
+    if (isinstance(seed, bool) or not isinstance(seed, (int, np.integer))
+            or not 0 <= seed < 2**63):
+        raise InputError(f"seed = {seed!r}; expected a non-negative integer below 2**63")
+    if duration_s is not None:
+        if not (isinstance(duration_s, (int, float)) and np.isfinite(duration_s)
+                and duration_s > 0):
+            raise InputError(f"duration = {duration_s!r} s; expected a positive number of "
+                             "seconds")
+        scenario = scenario.replace("record.duration_s", float(duration_s))
+    if store_mechanics is not None and store_mechanics != scenario.record.store_mechanics:
+        scenario = scenario.replace("record.store_mechanics", bool(store_mechanics))
+    store = scenario.record.store_mechanics
+    if form not in ("auto", "full-state", "innovations"):
+        raise InputError(f"form = {form!r}; expected 'auto', 'full-state' or 'innovations'")
+    if form == "innovations" and store:
+        raise InputError("the innovations form does not carry the mechanical state; use "
+                         "form = 'full-state' to store the mechanical quadratures")
+    if form == "auto":
+        form = "full-state" if store else "innovations"
+
+    point = operating_point(scenario)
+    model = linear_model(scenario, point)
+    steady = steady_state(scenario, model=model, point=point)
+    chain = detection_chain(scenario, point, model)
+    det, dig = scenario.detection, scenario.digitizer
+    fs = dig.sample_rate_hz or automatic_sample_rate(chain, det.intermediate_frequency_hz)
+    n = int(round(scenario.record.duration_s * fs))
+    if n < 1:
+        raise InputError(f"duration {scenario.record.duration_s!r} s at {fs:.6g} samples/s "
+                         "gives no sample; expected a duration of at least one sample "
+                         "interval")
+    discrete = discretize(chain.model, 1.0 / fs, integrator_drift=chain.integrator_drift())
+    full_scale = dig.full_scale_v or FULL_SCALE_SIGMAS * chain.record_std(discrete)
+    names = tuple(m.name for m in point.modes)
+    watched = np.array([chain.model.index(f"{name}.{q}") for name in names for q in "qp"]
+                       if store else [], dtype=np.int64)
+    calibration = dict(chain.calibration(), full_scale_v=full_scale, bits=dig.bits,
+                       transimpedance_ohm=scenario.electronics.transimpedance_ohm,
+                       bandwidth_hz=scenario.electronics.bandwidth_hz or float("inf"),
+                       local_oscillator_power_w=det.local_oscillator_power_w)
+    truth = Truth(mode_names=names,
+                  occupation=tuple(m.occupation for m in steady.modes),
+                  effective_frequency_hz=tuple(m.effective_frequency_hz for m in steady.modes),
+                  effective_linewidth_hz=tuple(m.effective_linewidth_hz for m in steady.modes),
+                  coupling_rate_hz=tuple(m.coupling_rate_hz for m in point.modes),
+                  zero_point_amplitude_m=tuple(m.zero_point_amplitude_m for m in point.modes),
+                  cavity_occupation=steady.cavity_occupation, calibration=calibration)
+    return RecordPlan(scenario=scenario, seed=int(seed), form=form, chain=chain,
+                      discrete=discrete, sample_rate_hz=float(fs), n_samples=n,
+                      full_scale_v=float(full_scale), bits=dig.bits, truth=truth,
+                      watched=watched,
+                      innovations=innovations_form(discrete) if form == "innovations"
+                      else None)
+
+
+def simulate_record(scenario, *, seed=None, duration_s=None, out=None, form="auto",
+                    store_mechanics=None, chunk_samples=None, progress=False):
+    """Generate a digitised record of ``scenario`` with its ground truth.
+
+    Parameters
+    ----------
+    scenario : simulator.scenario.Scenario
+    seed : int, optional
+        Default: ``scenario.scenario.seed``.
+    duration_s : float, optional
+        Overrides ``record.duration_s`` (the embedded scenario says so).
+    out : str or pathlib.Path, optional
+        HDF5 file to stream the record to (written through a temporary file
+        and renamed when complete). Without it the record is kept in memory.
+    form : {"auto", "full-state", "innovations"}
+        Exact generator; "auto" takes the full state form when the mechanical
+        quadratures are stored and the innovations form otherwise.
+    store_mechanics : bool, optional
+        Overrides ``record.store_mechanics``.
+    chunk_samples : int, optional
+        Samples per step; overrides ``record.chunk_samples``. Does not change
+        the result.
+    progress : bool
+        Show a progress bar (tqdm, on standard error).
+
+    Returns
+    -------
+    Record
+        In memory, or (with ``out``) describing the file: ``Record.samples()``
+        reads the counts, :func:`simulator.recordfile.load_record` everything
+        including the stored mechanical quadratures.
+
+    Raises
+    ------
+    simulator.errors.InputError
+        Bad seed, duration, form or output path.
+    simulator.errors.OperatingPointError
+        Unstable operating point: no stationary record exists.
+
+    Warns
+    -----
+    RecordWarning
+        When samples were clipped at the digitiser's full scale.
+    """
+    plan = plan_record(scenario, seed=seed, duration_s=duration_s, form=form,
+                       store_mechanics=store_mechanics)
+    chunk = plan.scenario.record.chunk_samples if chunk_samples is None else chunk_samples
+    if isinstance(chunk, bool) or not isinstance(chunk, (int, np.integer)) or chunk < 1:
+        raise InputError(f"chunk_samples = {chunk!r}; expected a positive integer")
+    if out is None:
+        sink = MemorySink(plan)
+    else:
+        from simulator.recordfile import RecordFileWriter
+
+        sink = RecordFileWriter(out, plan, chunk_rows=int(min(chunk, plan.n_samples)))
+    with sink:
+        clipped = generate(plan, sink, chunk=int(chunk), progress=progress)
+        record = sink.finish(clipped)
+    if clipped:
+        warnings.warn(f"{clipped} of {plan.n_samples} samples "
+                      f"({100.0 * clipped / plan.n_samples:.3g} %) clipped at the digitiser's "
+                      f"full scale ±{plan.full_scale_v:.6g} V; raise digitizer.full_scale_v "
+                      "or lower electronics.transimpedance_ohm", RecordWarning, stacklevel=2)
+    return record
+
+
+def generate(plan, sink, *, chunk, progress=False):
+    """Run the recursion of ``plan`` chunk by chunk into ``sink``; return the clipped count."""
+    from tqdm import tqdm
+
+    from simulator import kernels
+
+    chain, n_total = plan.chain, plan.n_samples
+    width, step = stepper(plan)
+    normals = kernels.NormalBlocks(plan.seed, SAMPLE_STREAM, width, BLOCK_SAMPLES)
+    p = len(chain.model.outputs)
+    digitiser = kernels.Digitiser(plan)
+    clipped = 0
+    with tqdm(total=n_total, unit="sample", unit_scale=True, disable=not progress,
+              desc="record") as bar:
+        for first in range(0, n_total, chunk):
+            count = min(chunk, n_total - first)
+            y = np.empty((count, p))
+            mech = np.empty((count, plan.watched.size))
+            for pos, xi in normals.pieces(first, count):
+                step(xi, y[pos:pos + len(xi)], mech[pos:pos + len(xi)])
+            if chain.receiver == "homodyne":
+                y = y[:, 0]
+            elif chain.receiver == "if":
+                y = kernels.rotate_to_carrier(
+                    y, first, chain.carrier_rad_s / (2 * np.pi * plan.sample_rate_hz))
+            counts, n_clip = digitiser(y)
+            clipped += n_clip
+            sink.write(first, counts, mech if plan.watched.size else None)
+            bar.update(count)
+    return clipped
+
+
+def stepper(plan):
+    """Normals per sample and a function advancing the recursion over one chunk.
+
+    The state is drawn from its stationary distribution (the state covariance
+    for the full state form, V − P for the innovations form) with normals of
+    its own stream, and carried from chunk to chunk.
+    """
+    from simulator import kernels
+    from simulator.discretize import modal_form, noise_factor
+
+    disc = plan.discrete
+    phi, gam = np.ascontiguousarray(disc.transition), np.ascontiguousarray(disc.output)
+    if plan.form == "full-state":
+        factor = np.ascontiguousarray(noise_factor(disc.noise_covariance))
+        state = _stationary_start(plan.seed, disc.state_covariance)
+
+        def step(xi, y, mech):
+            kernels.full_state_step(phi, gam, factor, state, xi, y, plan.watched, mech)
+
+        return factor.shape[1], step
+    inn = plan.innovations
+    sigma_factor = np.ascontiguousarray(np.linalg.cholesky(inn.innovation_covariance))
+    drive = np.ascontiguousarray(inn.gain @ sigma_factor)
+    state = _stationary_start(plan.seed, inn.predictor_covariance)
+    modal = modal_form(phi, gam, drive)
+    if modal is None:
+        def step(xi, y, mech):
+            kernels.innovations_step(phi, gam, drive, sigma_factor, state, xi, y)
+
+        return sigma_factor.shape[0], step
+    m = modal.to_modal @ state
+    parts = [np.ascontiguousarray(x) for x in (
+        modal.eigenvalues.real, modal.eigenvalues.imag, modal.output.real,
+        modal.output.imag, modal.drive.real, modal.drive.imag)]
+    m_re, m_im = np.ascontiguousarray(m.real), np.ascontiguousarray(m.imag)
+
+    def step(xi, y, mech):
+        kernels.modal_innovations_step(*parts, sigma_factor, m_re, m_im, xi, y)
+
+    return sigma_factor.shape[0], step
+
+
+def _stationary_start(seed, covariance):
+    from simulator import kernels
+    from simulator.discretize import noise_factor
+
+    factor = noise_factor(covariance)
+    xi = kernels.NormalBlocks(seed, START_STREAM, factor.shape[1], BLOCK_SAMPLES).take(0, 1)[0]
+    return np.ascontiguousarray(factor @ xi)
+
+
+def record_header(plan, record_kind):
+    """Fields shared by the in-memory record and the file's attributes."""
+    from simulator import __version__
+
+    det = plan.scenario.detection
+    return dict(kind=record_kind, scheme=det.scheme, sample_rate_hz=plan.sample_rate_hz,
+                n_samples=plan.n_samples, volts_per_count=plan.volts_per_count,
+                shot_noise_per_count=plan.shot_noise_per_count,
+                full_scale_v=plan.full_scale_v, bits=plan.bits,
+                intermediate_frequency_hz=det.intermediate_frequency_hz,
+                local_oscillator_side=det.local_oscillator_side, seed=plan.seed,
+                form=plan.form, software_version=__version__)
+
+
+class MemorySink:
+    """Holds a record in memory; the sink :func:`simulate_record` uses without ``out``."""
+
+    def __init__(self, plan):
+        self.plan = plan
+        shape = (plan.n_samples, 2) if plan.chain.record_kind == "iq" else (plan.n_samples,)
+        self.counts = np.empty(shape, dtype=np.int16 if plan.bits <= 16 else np.int32)
+        self.mech = np.empty((plan.n_samples, plan.watched.size)) if plan.watched.size else None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        return False
+
+    def write(self, first, counts, mech):
+        """Store a chunk of counts (and mechanical quadratures) from sample ``first``."""
+        self.counts[first:first + len(counts)] = counts
+        if mech is not None:
+            self.mech[first:first + len(mech)] = mech
+
+    def finish(self, clipped):
+        """Return the finished in-memory Record, with ``clipped`` clipped samples."""
+        import datetime
+
+        created = datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds")
+        return Record(counts=self.counts, clipped_samples=clipped, scenario=self.plan.scenario,
+                      truth=self.plan.truth, mechanical_quadratures=self.mech,
+                      created_utc=created, **record_header(self.plan,
+                                                           self.plan.chain.record_kind))

@@ -1,0 +1,224 @@
+"""Benchmark: synthetic records — speed against the bounds and baselines, and memory.
+
+Prints, measured side by side in one run:
+
+1. Innovations form against the random-number bound. The innovations form
+   needs p normals per sample (p = 2 for an iq record). The bound is the time
+   numpy's Generator takes to draw those normals alone (the same blocks the
+   generator uses); the ratio (normals alone)/(normals + recursion) is the
+   fraction of the bound reached. Target: at least 0.5 on one core. The raw
+   numpy.random.default_rng().standard_normal throughput is printed beside.
+2. Full state form per simulated sample against
+   (a) a plain numpy Euler–Maruyama loop of the same linear model (a Python
+       loop over time steps, SUBSTEPS steps per sample, integrating the output
+       over each sample interval) — which, unlike the exact form, still has a
+       time-step error; and
+   (b) QuTiP's stochastic master-equation solver with heterodyne detection on
+       a small Fock-space truncation of the same linearised model.
+3. Peak memory (resident set size) of a long record streamed to an HDF5 file,
+   measured in a fresh process. The target of issue 4 is 10⁹ samples in under
+   500 MB: pass ``--samples 1e9`` for it (an hour or so on one core); the
+   default is shorter so the benchmark finishes in minutes. Memory must not
+   depend on the length, which the printout of two lengths shows.
+
+Run: ``.venv/bin/python tests/benchmarks/bench_records.py [--samples N]
+[--kernel-samples N] [--skip-qutip]``.
+"""
+
+import argparse
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # tests/ for conftest
+
+from conftest import mode, scenario_with_coupling  # noqa: E402
+
+from simulator.discretize import modal_form  # noqa: E402
+from simulator.records import BLOCK_SAMPLES, SAMPLE_STREAM, plan_record, stepper  # noqa: E402
+
+REPO = Path(__file__).resolve().parents[2]
+SUBSTEPS = 20  # Euler–Maruyama steps per sample (dt·κ/2 ≈ 0.02 at the rates below)
+
+
+def scenario(seconds=1.0):
+    """An invented sideband-cooling scenario with low occupations (QuTiP can truncate it)."""
+    s = scenario_with_coupling(g_hz=40e3, linewidth_hz=600e3, detuning_hz=-300e3, modes=[
+        mode(frequency_hz=300e3, linewidth_hz=3e3, coupling_hz=200.0, bath_occupation=0.5,
+             effective_mass_kg=1e-13)])
+    return s.replace("digitizer.sample_rate_hz", 2e6).replace("record.duration_s", seconds)
+
+
+def best_of(fn, repeats=3):
+    times = []
+    for _ in range(repeats):
+        t = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t)
+    return min(times)
+
+
+def innovations_against_normals(n):
+    from simulator import kernels
+
+    plan = plan_record(scenario(n / 2e6), form="innovations")
+    width, step = stepper(plan)
+    p = len(plan.chain.model.outputs)
+    y = np.empty((n, p))
+    mech = np.empty((n, 0))
+    step(kernels.NormalBlocks(0, 1, width, BLOCK_SAMPLES).take(0, 1000), y[:1000], mech)
+
+    def draw():
+        for _ in kernels.NormalBlocks(plan.seed, SAMPLE_STREAM, width, BLOCK_SAMPLES).pieces(0, n):
+            pass
+
+    def both():
+        blocks = kernels.NormalBlocks(plan.seed, SAMPLE_STREAM, width, BLOCK_SAMPLES)
+        for pos, xi in blocks.pieces(0, n):
+            step(xi, y[pos:pos + len(xi)], mech[pos:pos + len(xi)])
+
+    rng = np.random.default_rng(1)
+    t_raw = best_of(lambda: rng.standard_normal(n * width))
+    t_draw, t_both = best_of(draw), best_of(both)
+    inn = plan.innovations
+    modal = ("dense" if modal_form(inn.transition, inn.output, inn.gain) is None
+             else "modal (eigen-coordinates)")
+    print(f"1. innovations form, {n:.3g} samples, {width} normals/sample, {modal} kernel")
+    print(f"   raw numpy normals:        {n * width / t_raw / 1e6:8.1f} M normals/s")
+    print(f"   normals in blocks:        {n / t_draw / 1e6:8.2f} M samples/s (the bound)")
+    print(f"   normals + recursion:      {n / t_both / 1e6:8.2f} M samples/s")
+    print(f"   fraction of raw numpy:    {n * width / (n * width / t_raw) / t_both:8.2f}   "
+          "(target >= 0.5)")
+    print(f"   fraction of block draws:  {t_draw / t_both:8.2f}")
+
+
+def euler_maruyama(model, dt, samples, substeps, rng):
+    """Plain Euler–Maruyama of dx = A x dt + B dW, output averaged over each sample."""
+    a, b, c, d = model.A, model.B, model.C, model.D
+    root = np.linalg.cholesky(model.N + 1e-300 * np.eye(len(model.N)))
+    x = np.zeros(len(model.states))
+    out = np.empty((samples, len(model.outputs)))
+    for k in range(samples):
+        acc = np.zeros(len(model.outputs))
+        for _ in range(substeps):
+            dw = root @ rng.standard_normal(len(model.N)) * np.sqrt(dt)
+            acc += c @ x * dt + d @ dw
+            x = x + a @ x * dt + b @ dw
+        out[k] = acc / (dt * substeps)
+    return out
+
+
+def qutip_heterodyne(plan, samples, substeps):
+    """qutip.smesolve, heterodyne, on the linearised model truncated to small Fock spaces."""
+    import qutip
+
+    from simulator.physics import angular
+
+    point = plan.scenario
+    sc, m0 = point, point.mechanics[0]
+    from simulator.operating_point import operating_point
+
+    op = operating_point(sc)
+    kappa, kappa_ex = angular([sc.cavity.linewidth_hz, sc.cavity.external_linewidth_hz])
+    delta, om, gm, g = angular([op.detuning_effective_hz, m0.frequency_hz, m0.linewidth_hz,
+                                op.modes[0].coupling_rate_hz])
+    n_th = op.modes[0].bath_occupation
+    a = qutip.tensor(qutip.destroy(4), qutip.qeye(6))
+    b = qutip.tensor(qutip.qeye(4), qutip.destroy(6))
+    h = -delta * a.dag() * a + om * b.dag() * b - g * (a + a.dag()) * (b + b.dag())
+    c_ops = [np.sqrt(gm * (n_th + 1)) * b, np.sqrt(gm * n_th) * b.dag()]
+    if kappa > kappa_ex:
+        c_ops.append(np.sqrt(kappa - kappa_ex) * a)
+    rho0 = qutip.ket2dm(qutip.tensor(qutip.basis(4, 0), qutip.basis(6, 0)))
+    t = 1.0 / plan.sample_rate_hz
+    tlist = np.arange(samples + 1) * t
+    qutip.smesolve(h, rho0, tlist, c_ops, [np.sqrt(kappa_ex) * a], heterodyne=True, ntraj=1,
+                   options={"dt": t / substeps, "store_measurement": True,
+                            "progress_bar": False}, seeds=1)
+
+
+def full_state_against_baselines(n, skip_qutip):
+    from simulator import kernels
+
+    plan = plan_record(scenario(n / 2e6), form="full-state")
+    width, step = stepper(plan)
+    y = np.empty((n, len(plan.chain.model.outputs)))
+    mech = np.empty((n, 0))
+    step(kernels.NormalBlocks(0, 1, width, BLOCK_SAMPLES).take(0, 1000), y[:1000], mech)
+
+    def full():
+        for pos, xi in kernels.NormalBlocks(plan.seed, 1, width, BLOCK_SAMPLES).pieces(0, n):
+            step(xi, y[pos:pos + len(xi)], mech[pos:pos + len(xi)])
+
+    t_full = best_of(full) / n
+    em_samples = 2000
+    rng = np.random.default_rng(2)
+    t_em = best_of(lambda: euler_maruyama(plan.chain.model, 0.5e-6 / SUBSTEPS, em_samples,
+                                          SUBSTEPS, rng), repeats=1) / em_samples
+    print(f"2. full state form ({width} normals/sample), per simulated sample")
+    print(f"   exact full state form:    {t_full * 1e9:10.1f} ns")
+    print(f"   numpy Euler–Maruyama:     {t_em * 1e9:10.1f} ns  ({SUBSTEPS} steps/sample; "
+          f"ratio {t_em / t_full:8.0f} x slower)")
+    if skip_qutip:
+        print("   QuTiP smesolve:           skipped (--skip-qutip)")
+        return
+    q_samples = 200
+    t_q = best_of(lambda: qutip_heterodyne(plan, q_samples, 10), repeats=1) / q_samples
+    print(f"   QuTiP smesolve heterodyne:{t_q * 1e9:10.1f} ns  (Fock 4 x 6, 10 steps/sample; "
+          f"ratio {t_q / t_full:8.0f} x slower)")
+
+
+STREAM_SCRIPT = """
+import resource, sys, time
+from pathlib import Path
+sys.path.insert(0, {tests!r})
+from bench_records import scenario
+from simulator.records import simulate_record
+n = int(float(sys.argv[1]))
+simulate_record(scenario(1e-3), out=sys.argv[2], seed=1)  # load the compiled kernels
+t = time.perf_counter()
+r = simulate_record(scenario(n / 2e6), out=sys.argv[2], seed=1)
+dt = time.perf_counter() - t
+hwm = [line for line in Path("/proc/self/status").read_text().splitlines()
+       if line.startswith("VmHWM")]  # peak RSS of this process image (not inherited)
+peak = int(hwm[0].split()[1]) / 1024 if hwm else (
+    resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024)
+print(r.n_samples, dt, peak, Path(sys.argv[2]).stat().st_size / 1e6)
+"""
+
+
+def streamed_memory(lengths):
+    print("3. streamed record to HDF5 (iq, innovations form), fresh process each")
+    script = STREAM_SCRIPT.format(tests=str(Path(__file__).resolve().parent))
+    with tempfile.TemporaryDirectory() as tmp:
+        for n in lengths:
+            path = Path(tmp) / "long.h5"
+            out = subprocess.run([sys.executable, "-c", script, str(n), str(path)],
+                                 capture_output=True, text=True, check=True, cwd=REPO)
+            samples, seconds, rss_mb, size_mb = out.stdout.split()
+            print(f"   {int(samples):.3g} samples: peak RSS {float(rss_mb):7.1f} MB "
+                  f"(target < 500 MB; ratio {float(rss_mb) / 500:.2f}), "
+                  f"{int(samples) / float(seconds) / 1e6:.2f} M samples/s with "
+                  f"digitising, compression and writing, "
+                  f"file {float(size_mb):.0f} MB")
+            path.unlink()
+
+
+def main():
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--samples", type=float, default=2e7,
+                        help="length of the streamed record (target of issue 4: 1e9)")
+    parser.add_argument("--kernel-samples", type=float, default=2e6)
+    parser.add_argument("--skip-qutip", action="store_true")
+    args = parser.parse_args()
+    innovations_against_normals(int(args.kernel_samples))
+    full_state_against_baselines(int(args.kernel_samples) // 4, args.skip_qutip)
+    streamed_memory([int(args.samples) // 10, int(args.samples)])
+
+
+if __name__ == "__main__":
+    main()
