@@ -56,7 +56,7 @@ def run_scenario(scenario, out, *, workers=None, dask=None, progress=True):
         sections.append(("Spectrum", "<p>No spectrum: the operating point is unstable ("
                          + html.escape(inspection.stability.cause) + ").</p>"))
 
-    record_part = _record_part(scenario, out, wrote, progress)
+    record_part = _record_part(scenario, out, wrote, figures, progress)
     if record_part:
         sections.append(("Record", record_part))
 
@@ -125,13 +125,67 @@ def _spectrum_part(scenario, out, wrote, figures):
                                        "n from ratio", "n exact"]))
 
 
-def _record_part(scenario, out, wrote, progress):
-    """Write the record the scenario asks for (if the records stage is available)."""
-    if not getattr(scenario.record, "in_run", False):
+def _record_part(scenario, out, wrote, figures, progress):
+    """Write the record the scenario asks for, and its spectrum beside the analytic one."""
+    if not getattr(scenario.record, "in_run", False):  # key added with the records stage
         return ""
-    from simulator.records import write_record_for_run
+    import warnings
 
-    return write_record_for_run(scenario, out, wrote, progress)
+    from simulator.records import simulate_record
+
+    path = wrote(out / "record.h5")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        record = simulate_record(scenario, out=path, progress=progress)
+    png = wrote(out / "record_spectrum.png")
+    _plot_record_spectrum(scenario, record, png)
+    figures.append(png)
+    truth = record.truth
+    rows = [[name, n, f, w] for name, n, f, w in zip(
+        truth.mode_names, truth.occupation, truth.effective_frequency_hz,
+        truth.effective_linewidth_hz, strict=True)]
+    notes = "".join(f'<p class="warn">{html.escape(w.message)}</p>' for w in caught)
+    return (f"<p>{record.n_samples} samples ({record.kind}) at {record.sample_rate_hz:.6g} "
+            f"samples/s, seed {record.seed}, {record.clipped_samples} clipped; file "
+            "record.h5 with the ground truth below.</p>" + notes
+            + html.table(rows, header=["mode", "true occupation", "frequency (Hz)",
+                                       "linewidth (Hz)"]))
+
+
+def _plot_record_spectrum(scenario, record, path):
+    """Periodogram of the record over the exact density of its samples."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    import numpy as np
+
+    from simulator.analysis.psd import averaged_periodogram
+    from simulator.chain import detection_chain
+
+    fs = record.sample_rate_hz
+    segment = int(min(2 ** 14, 2 ** np.floor(np.log2(max(record.n_samples // 16, 16)))))
+    psd = averaged_periodogram(record.shot_noise_units(), fs, segment_samples=segment,
+                               window="boxcar")
+    exact = detection_chain(scenario).sampled_spectrum(psd.frequency_hz, fs)
+    if psd.sided == "one-sided":
+        exact = 2 * exact
+    fig, ax = plt.subplots(figsize=(9, 4.5))
+    scale, unit = (1e6, "MHz") if fs > 2e6 else (1e3, "kHz")
+    ax.semilogy(psd.frequency_hz / scale, psd.density, lw=0.6, color="tab:blue",
+                label=f"record periodogram ({psd.averages} averages)")
+    ax.semilogy(psd.frequency_hz / scale, exact, lw=1.5, color="k",
+                label="exact density of the samples (model)")
+    axis = ("offset from the drive (> 0: anti-Stokes)" if record.kind == "iq"
+            else "frequency")
+    ax.set_xlabel(f"{axis} ({unit})")
+    ax.set_ylabel(f"{psd.sided} density\n(shot-noise units per Hz)")
+    ax.set_title(f"{scenario.scenario.name}: synthetic record against the model")
+    ax.legend(fontsize=8)
+    ax.grid(alpha=0.3)
+    fig.tight_layout()
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
 
 
 def _sweep_part(scenario, out, wrote, figures, workers, dask, progress):

@@ -250,9 +250,9 @@ def assemble(scenario, axes, points, results):
     for index, _ in points:
         r = results[_point_key(index)]
         for k in POINT_QUANTITIES:
-            data[k][index] = r[k]
+            data[k][index] = r.get(k, np.nan)  # absent when the point failed early
         for k in MODE_QUANTITIES:
-            data[k][index] = r[k]
+            data[k][index] = r.get(k, np.nan)  # absent when the point failed early
         errors[index] = r["error"]
     variables = {k: (dims, v, {"units": POINT_QUANTITIES[k]}) for k, v in
                  ((k, data[k]) for k in POINT_QUANTITIES)}
