@@ -8,6 +8,8 @@ between them.
 
 import numpy as np
 
+from simulator.laser_noise import vacuum_intensity
+
 FLOOR = "shot noise (vacuum floor)"
 CHUNK = 1 << 14
 
@@ -44,12 +46,13 @@ def budget_pieces(paths, w, groups):
     model = paths.model
     h0, hm = paths(w)
     h = h0 + hm
-    pieces = {FLOOR: 0.5 * np.sum(np.abs(h0) ** 2, axis=1) - 0.5}
+    vacuum = vacuum_intensity(model)  # ½ per quantum input, 0 for classical laser noise
+    pieces = {FLOOR: 0.5 * np.sum(np.abs(h0[:, vacuum > 0]) ** 2, axis=1) - 0.5}
     for name, idx, mechanical in groups:
         nk = model.N[np.ix_(idx, idx)]
         h0k, hmk = h0[:, idx], hm[:, idx]
         if not mechanical:
-            pieces[f"{name}: imprecision"] = quadratic(h0k, nk - 0.5 * np.eye(len(idx)), h0k)
+            pieces[f"{name}: imprecision"] = quadratic(h0k, nk - np.diag(vacuum[idx]), h0k)
         pieces[f"{name}: {'thermal' if mechanical else 'back-action'} motion"] = quadratic(
             hmk, nk, hmk)
         if not mechanical:

@@ -40,6 +40,7 @@ import dataclasses
 import numpy as np
 from scipy import constants
 
+from simulator.laser_noise import device_eigenvalues
 from simulator.model import linear_model
 from simulator.operating_point import operating_point
 from simulator.physics import angular, ordinary
@@ -353,8 +354,7 @@ def automatic_sample_rate(chain, intermediate_frequency_hz=0.0):
     The rate is 2.5 times that (complex baseband: the band ±fs/2; real: 0 to
     fs/2), rounded up to 1, 2, 2.5 or 5 times a power of ten.
     """
-    n = sum(1 for s in chain.model.states if not s.startswith("filter"))
-    lam = np.linalg.eigvals(chain.model.A[:n, :n])
+    lam = device_eigenvalues(chain.model, also=("filter",))
     top = float(ordinary(np.max(np.abs(lam.imag) + 3.0 * np.abs(lam.real))))
     if chain.receiver == "if":
         top += float(intermediate_frequency_hz)

@@ -61,11 +61,21 @@ def cmd_inspect(args):
     from simulator.inspection import inspect_scenario
     from simulator.scenario import load_scenario
 
-    report = inspect_scenario(load_scenario(args.scenario))
+    scenario = load_scenario(args.scenario)
+    report = inspect_scenario(scenario)
+    master = None
+    if args.master and report.steady is not None:
+        from simulator.master.report import master_comparison
+
+        master = master_comparison(scenario, report, kind=args.master_model)
     if args.json:
-        print_json(report.to_dict())
+        print_json(report.to_dict() | ({"master": master} if args.master else {}))
     else:
         print(report.to_text())
+        if master is not None:
+            from simulator.master.report import comparison_text
+
+            print("\n" + comparison_text(master))
     return EXIT_OK if report.stability.stable else EXIT_UNSTABLE
 
 
@@ -105,8 +115,14 @@ def cmd_spectrum(args):
     from simulator.spectra import measured_spectrum
 
     scenario = load_scenario(args.scenario)
-    spectrum = measured_spectrum(scenario, quadrature_angle=math.radians(args.angle_deg))
-    summary = sideband_summary(scenario)
+    if args.engine == "master":
+        from simulator.master.spectra import master_heterodyne_spectrum
+
+        spectrum = master_heterodyne_spectrum(scenario, kind=args.master_model)
+    else:
+        spectrum = measured_spectrum(scenario, quadrature_angle=math.radians(args.angle_deg))
+    # the sideband summary is the linear engine's; not shown beside a master spectrum
+    summary = sideband_summary(scenario) if args.engine == "linear" else []
     files = {}
     if args.out:
         files["data"] = str(spectrum.save(args.out))
@@ -117,7 +133,8 @@ def cmd_spectrum(args):
         plot_spectrum(spectrum, args.plot, displacement=to_displacement(spectrum, scenario),
                       summary=summary, title=f"{scenario.scenario.name}: {spectrum.quantity}")
         files["plot"] = str(args.plot)
-    report = {"scenario": scenario.scenario.name, "quantity": spectrum.quantity,
+    report = {"scenario": scenario.scenario.name, "engine": args.engine,
+              "quantity": spectrum.quantity,
               "axis": spectrum.axis, "sided": spectrum.sided, "units": spectrum.units,
               "points": int(spectrum.frequency_hz.size),
               "frequency_range_hz": [float(spectrum.frequency_hz.min()),
@@ -154,8 +171,14 @@ def cmd_record(args):
     scenario = load_scenario(args.scenario)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        record = simulate_record(scenario, seed=args.seed, duration_s=args.duration,
-                                 out=args.out, form=args.form, progress=not args.quiet)
+        if args.engine == "master":
+            from simulator.master.trajectories import master_record
+
+            record = master_record(scenario, seed=args.seed, duration_s=args.duration,
+                                   out=args.out, kind=args.master_model)
+        else:
+            record = simulate_record(scenario, seed=args.seed, duration_s=args.duration,
+                                     out=args.out, form=args.form, progress=not args.quiet)
     for warning in caught:
         print(f"noisechain record: warning: {warning.message}", file=sys.stderr)
     truth = record.truth
@@ -276,6 +299,10 @@ def build_parser():
                          "state of a scenario")
     p.add_argument("scenario", help="scenario TOML file")
     p.add_argument("--json", action="store_true", help="print one JSON object")
+    p.add_argument("--master", action="store_true", help="add the master-equation steady "
+                   "state (QuTiP) beside the linear numbers; small occupations only")
+    p.add_argument("--master-model", choices=("full", "linearised"), default="full",
+                   help="master-equation model for --master (default: %(default)s)")
     p.set_defaults(func=cmd_inspect)
 
     p = verbs.add_parser("sweep", help="evaluate the scenario over its [sweep] grid; "
@@ -293,6 +320,11 @@ def build_parser():
     p.add_argument("--plot", default=None, help="write a figure: .png, .pdf or .svg")
     p.add_argument("--angle-deg", type=float, default=90.0, help="homodyne quadrature angle "
                    "from the intracavity amplitude quadrature (default: %(default)s, phase)")
+    p.add_argument("--engine", choices=("linear", "master"), default="linear",
+                   help="linear state-space model (default) or the master equation "
+                   "(QuTiP; heterodyne only, small occupations)")
+    p.add_argument("--master-model", choices=("full", "linearised"), default="full",
+                   help="master-equation model for --engine master (default: %(default)s)")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     p.set_defaults(func=cmd_spectrum)
 
@@ -308,6 +340,11 @@ def build_parser():
     p.add_argument("--form", choices=("auto", "full-state", "innovations"), default="auto",
                    help="exact generator (default: %(default)s: full state when the "
                    "mechanical quadratures are stored, else innovations)")
+    p.add_argument("--engine", choices=("linear", "master"), default="linear",
+                   help="linear model (default) or a stochastic-master-equation "
+                   "trajectory (QuTiP; ideal iq heterodyne receiver, small systems, slow)")
+    p.add_argument("--master-model", choices=("full", "linearised"), default="full",
+                   help="master-equation model for --engine master (default: %(default)s)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
     p.set_defaults(func=cmd_record)

@@ -9,6 +9,7 @@ The report converts to plain data (``to_dict``) for ``noisechain inspect
 import dataclasses
 import math
 
+from simulator import laser_noise
 from simulator.model import linear_model
 from simulator.operating_point import operating_point
 from simulator.steady_state import STRONG_COUPLING_TOLERANCE, stability, steady_state
@@ -24,6 +25,8 @@ class Inspection:
     steady: object  # SteadyState, or None when unstable
     warnings: tuple
     feasibility: tuple = ()  # per mode: dict of measurement-time bounds (heterodyne)
+    regime: object = None  # simulator.master.regime.RegimeVerdict: is the linear engine valid?
+    laser: tuple = ()  # per mode: laser-noise occupations (simulator.laser_noise)
 
     def to_dict(self):
         """Plain data for JSON: numbers in SI units, frequencies in Hz."""
@@ -55,6 +58,8 @@ class Inspection:
                     "weak_coupling_occupation": _finite(ms.weak_coupling_occupation),
                     "backaction_limit": _finite(ms.backaction_limit),
                 })
+            if self.laser:
+                entry.update(self.laser[j])
             modes.append(entry)
         return {
             "scenario": self.scenario.scenario.name,
@@ -74,6 +79,7 @@ class Inspection:
             "cavity_occupation": None if st is None else st.cavity_occupation,
             "modes": modes,
             "feasibility": [dict(f) for f in self.feasibility],
+            "regime": None if self.regime is None else self.regime.to_dict(),
             "warnings": list(self.warnings),
         }
 
@@ -104,6 +110,9 @@ class Inspection:
                 ("effective linewidth (Hz)", "effective_linewidth_hz"),
                 ("occupation (exact)", "occupation"),
                 ("occupation (weak coupling)", "weak_coupling_occupation"),
+                ("laser noise η_c n_c", "laser_input_occupation"),
+                ("excess from laser noise", "laser_noise_excess_occupation"),
+                ("apparent (sideband ratio)", "apparent_occupation_from_asymmetry"),
                 ("back-action limit n_min", "backaction_limit")]
         for mode in d["modes"]:
             lines += ["", f"mode {mode['name']}"]
@@ -121,6 +130,9 @@ class Inspection:
                 lines.append(f"  time to resolve the asymmetry    "
                              f"{f['asymmetry_time_s']:.4g} s at {f['significance']:g} "
                              "standard deviations")
+        if d["regime"] is not None:
+            lines += ["", f"regime (linear engine validity)  {d['regime']['level']}",
+                      f"  {d['regime']['reason']}"]
         if d["warnings"]:
             lines += ["", "warnings"] + [f"  - {w}" for w in d["warnings"]]
         return "\n".join(lines)
@@ -145,7 +157,7 @@ def inspect_scenario(scenario):
             "the intracavity photon number is bistable (branches "
             + ", ".join(f"{b:.4g}" for b in point.branches)
             + f"); using the {point.branch} branch, set drive.bistable_branch to choose")
-    steady = steady_state(model=model, point=point) if verdict.stable else None
+    steady = steady_state(scenario, model=model, point=point) if verdict.stable else None
     if steady is not None:
         for ms in steady.modes:
             exact, weak = ms.occupation, ms.weak_coupling_occupation
@@ -156,8 +168,15 @@ def inspect_scenario(scenario):
                     "system is near or in strong coupling and the rate-equation "
                     "diagnostics do not apply")
     feasibility = _feasibility(scenario) if steady is not None else ()
+    from simulator.master.regime import regime_verdict  # pure formulas, no QuTiP
+
+    regime = regime_verdict(point, None if steady is None else
+                            [ms.occupation for ms in steady.modes])
+    laser = (() if steady is None or laser_noise.is_quiet(scenario)
+             else laser_noise.occupation_report(scenario, point, steady))
     return Inspection(scenario=scenario, point=point, stability=verdict, steady=steady,
-                      warnings=tuple(warnings), feasibility=feasibility)
+                      warnings=tuple(warnings), feasibility=feasibility, regime=regime,
+                      laser=laser)
 
 
 def _feasibility(scenario):

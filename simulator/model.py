@@ -32,6 +32,7 @@ and VII (linearised dynamics and input-output theory).
 
 import numpy as np
 
+from simulator import laser_noise
 from simulator.operating_point import operating_point
 from simulator.physics import angular
 from simulator.statespace import StateSpace
@@ -54,6 +55,9 @@ def linear_model(scenario, point=None):
     simulator.statespace.StateSpace
         States ``cavity.X, cavity.Y, <mode>.q, <mode>.p, ...``; inputs in pairs
         ``external.X/Y, internal.X/Y, <mode>.bath.q/p``; outputs ``output.X/Y``.
+        When the drive carries classical noise or a calibration tone,
+        :func:`simulator.laser_noise.laser_model` appends ``laser.*`` states
+        and inputs; otherwise the model is exactly the one above.
     """
     if point is None:
         point = operating_point(scenario)
@@ -92,6 +96,9 @@ def linear_model(scenario, point=None):
     C[:, 0:2] = -np.sqrt(kappa_ex) * np.eye(2)
     D = np.zeros((2, m))
     D[:, 0:2] = np.eye(2)
-    return StateSpace(A=A, B=B, N=N, C=C, D=D, states=tuple(states),
-                      inputs=tuple(inputs), outputs=OUTPUTS, sources=tuple(sources),
-                      coupling=coupling)
+    model = StateSpace(A=A, B=B, N=N, C=C, D=D, states=tuple(states),
+                       inputs=tuple(inputs), outputs=OUTPUTS, sources=tuple(sources),
+                       coupling=coupling)
+    if laser_noise.is_quiet(scenario):
+        return model
+    return laser_noise.laser_model(model, scenario, point)

@@ -282,12 +282,14 @@ def generate(plan, sink, *, chunk, progress=False):
     from tqdm import tqdm
 
     from simulator import kernels
+    from simulator.calibration_tone import tone_signal
 
     chain, n_total = plan.chain, plan.n_samples
     width, step = stepper(plan)
     normals = kernels.NormalBlocks(plan.seed, SAMPLE_STREAM, width, BLOCK_SAMPLES)
     p = len(chain.model.outputs)
     digitiser = kernels.Digitiser(plan)
+    tone = tone_signal(plan.chain, plan.scenario, plan.sample_rate_hz)
     clipped = 0
     with tqdm(total=n_total, unit="sample", unit_scale=True, disable=not progress,
               desc="record") as bar:
@@ -302,6 +304,8 @@ def generate(plan, sink, *, chunk, progress=False):
             elif chain.receiver == "if":
                 y = kernels.rotate_to_carrier(
                     y, first, chain.carrier_rad_s / (2 * np.pi * plan.sample_rate_hz))
+            if tone is not None:  # the calibration tone's exact response, by linearity
+                y = y + tone(first, count)
             counts, n_clip = digitiser(y)
             clipped += n_clip
             sink.write(first, counts, mech if plan.watched.size else None)

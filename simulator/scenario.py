@@ -36,6 +36,85 @@ class ScenarioInfo:
 
 
 @_frozen
+class PhaseNoise:
+    """``[drive.phase_noise]``: classical phase noise of the drive, a sum of shapes.
+
+    Densities are one-sided (f ≥ 0), as phase noise is specified in practice;
+    the model uses the two-sided half of each (see docs/laser-noise.md).
+    """
+
+    linewidth_hz: float = param(
+        "full width at half maximum of the drive's Lorentzian line from white "
+        "frequency noise (one-sided frequency-noise density linewidth/π in Hz²/Hz); "
+        "0: none", unit="Hz", check="nonnegative", default=0.0)
+    floor_rad2_per_hz: float = param(
+        "one-sided phase-noise density S_φ(f) of a flat floor between floor_low_hz "
+        "and floor_high_hz (2nd-order Butterworth edges); 0: none", unit="rad²/Hz",
+        check="nonnegative", default=0.0)
+    floor_low_hz: float = param(
+        "lower edge of the phase-noise floor; 0: the floor reaches down to zero "
+        "frequency", unit="Hz", check="nonnegative", default=0.0)
+    floor_high_hz: float | None = param(
+        "upper edge of the phase-noise floor; needed when floor_rad2_per_hz > 0",
+        unit="Hz", check="positive", default=None)
+    peak_rad2_per_hz: float = param(
+        "one-sided phase-noise density at the centre of a resonant peak (e.g. a "
+        "laser relaxation oscillation); 0: none", unit="rad²/Hz", check="nonnegative",
+        default=0.0)
+    peak_frequency_hz: float | None = param(
+        "centre of the phase-noise peak", unit="Hz", check="positive", default=None)
+    peak_width_hz: float | None = param(
+        "full width at half maximum of the phase-noise peak", unit="Hz",
+        check="positive", default=None)
+
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if self.floor_rad2_per_hz > 0:
+            if self.floor_high_hz is None:
+                yield ("floor_high_hz", "missing while floor_rad2_per_hz > 0; expected the "
+                       "upper edge of the floor in Hz")
+            elif self.floor_high_hz <= self.floor_low_hz:
+                yield ("floor_high_hz", f"{self.floor_high_hz!r} is not above floor_low_hz "
+                       f"= {self.floor_low_hz!r}; expected floor_low_hz < floor_high_hz")
+        if self.peak_rad2_per_hz > 0:
+            for key in ("peak_frequency_hz", "peak_width_hz"):
+                if getattr(self, key) is None:
+                    yield (key, f"missing while peak_rad2_per_hz > 0; expected the peak's "
+                           f"{key.split('_')[1]} in Hz")
+
+
+@_frozen
+class IntensityNoise:
+    """``[drive.intensity_noise]``: classical amplitude noise of the drive."""
+
+    relative_intensity_noise_per_hz: float = param(
+        "one-sided relative intensity noise RIN = S_δP/P²(f), white; 0: none "
+        "(10^(dBc/Hz / 10) for a value in dBc/Hz)", unit="1/Hz", check="nonnegative",
+        default=0.0)
+
+
+@_frozen
+class CalibrationTone:
+    """``[drive.calibration_tone]``: phase modulation φ0 cos(2π f t) on the drive."""
+
+    depth_rad: float = param(
+        "modulation depth φ0, at most 0.1 (the model keeps first-order sidebands, "
+        "J1(φ0) ≈ φ0/2); 0: no tone", unit="rad", check="nonnegative", default=0.0)
+    frequency_hz: float | None = param(
+        "modulation frequency; needed when depth_rad > 0", unit="Hz", check="positive",
+        default=None)
+
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if self.depth_rad > 0.1:
+            yield ("depth_rad", f"{self.depth_rad!r} rad is too deep for the linear model; "
+                   "expected at most 0.1 rad (second-order sidebands neglected)")
+        if self.depth_rad > 0 and self.frequency_hz is None:
+            yield ("frequency_hz", "missing while depth_rad > 0; expected the modulation "
+                   "frequency in Hz")
+
+
+@_frozen
 class Drive:
     """``[drive]``: the coherent drive (laser or microwave tone) at the cavity input."""
 
@@ -56,6 +135,14 @@ class Drive:
     bistable_branch: str = param(
         "solution used where the intracavity photon number is bistable, by photon "
         "number", choices=("lowest", "middle", "highest"), default="lowest")
+    phase_noise: PhaseNoise = section(
+        PhaseNoise, "classical phase noise of the drive; left out: none (shot-noise "
+        "limited)")
+    intensity_noise: IntensityNoise = section(
+        IntensityNoise, "classical intensity noise of the drive; left out: none")
+    calibration_tone: CalibrationTone = section(
+        CalibrationTone, "phase-modulation calibration tone on the drive path only (not "
+        "the local oscillator); left out: none")
 
     @property
     def carrier_frequency_hz(self):
@@ -136,6 +223,18 @@ class Detection:
         "homodyne quadrature θ of X_θ = cos θ X + sin θ Y, from the amplitude "
         "quadrature; π/2 is the phase quadrature", unit="rad", check="real",
         default=1.5707963267948966)
+    local_oscillator_source: str = param(
+        "where the local oscillator comes from: \"common\", a copy of the drive "
+        "laser (its phase noise cancels, up to the path delay); \"locked\", a "
+        "separate source phase-locked to the drive; \"independent\", a separate, "
+        "noise-free source", choices=("common", "locked", "independent"),
+        default="common")
+    local_oscillator_delay_s: float = param(
+        "extra delay of the local-oscillator path over the signal path (\"common\" "
+        "only)", unit="s", check="nonnegative", default=0.0)
+    local_oscillator_lock_bandwidth_hz: float | None = param(
+        "bandwidth of the first-order phase lock (\"locked\" only)", unit="Hz",
+        check="positive", default=None)
     balanced: bool = param(
         "balanced detection (both ports of the signal–local-oscillator beam splitter "
         "subtracted); false: one port of a 50:50 combiner, which halves the efficiency",
@@ -205,6 +304,9 @@ class RecordOptions:
         check="positive", default=262144)
     store_mechanics: bool = param(
         "store the true mechanical quadratures beside the record", default=False)
+    in_run: bool = param(
+        "write this record (and its spectrum beside the analytic one) during "
+        "`noisechain run`", default=False)
 
 
 @_frozen
@@ -235,6 +337,7 @@ class Scenario:
                        f"{mode.name!r} is used by an earlier mode; expected unique names")
             seen.add(mode.name)
         yield from self._chain_problems()
+        yield from self._local_oscillator_problems()
         if self.sweep is not None:
             for path, spec in self.sweep.parameters.items():
                 for p in (path, *([spec["unit"]] if "unit" in spec else [])):
@@ -254,6 +357,11 @@ class Scenario:
             yield ("detection.intermediate_frequency_hz",
                    '0 Hz with an "if" heterodyne record; expected a positive intermediate '
                    "frequency")
+
+    def _local_oscillator_problems(self):
+        from simulator.laser_noise import local_oscillator_problems
+
+        yield from local_oscillator_problems(self)
 
     def _sweep_path_problems(self, path, swept):
         key = f'sweep.parameters."{swept}"'
@@ -279,7 +387,7 @@ class Scenario:
             prefixes = ([f"{f.name}[{i}]" for i in range(len(getattr(self, f.name)))]
                         if kind == "sections" else [f.name])
             for prefix in prefixes:
-                paths += [f"{prefix}.{sub.name}" for sub in schema.public_fields(cls)]
+                paths += _leaf_paths(cls, prefix)
         return paths
 
     def to_dict(self):
@@ -356,13 +464,29 @@ def _split_path(path, source):
     return parts
 
 
+def _leaf_paths(cls, prefix):
+    """Paths of the scalar keys of section ``cls`` at ``prefix``, nested tables included."""
+    paths = []
+    for sub in schema.public_fields(cls):
+        kind, inner, _ = schema.field_kind(cls, sub.name)
+        if kind == "section":
+            paths += _leaf_paths(inner, f"{prefix}.{sub.name}")
+        else:
+            paths.append(f"{prefix}.{sub.name}")
+    return paths
+
+
 def _as_data(obj):
+    """Plain data of ``obj``; a table nested in a section is left out while at its defaults."""
     if dataclasses.is_dataclass(obj):
         out = {}
+        nested = not isinstance(obj, Scenario)
         for f in schema.public_fields(type(obj)):
             value = getattr(obj, f.name)
-            if value is not None:
-                out[f.name] = _as_data(value)
+            if value is None or (nested and dataclasses.is_dataclass(value)
+                                 and value == type(value)()):
+                continue
+            out[f.name] = _as_data(value)
         return out
     if isinstance(obj, tuple):
         return [_as_data(v) for v in obj]

@@ -203,26 +203,44 @@ def reference_markdown(root):
         elif not required:
             lines.append("The whole section may be left out.")
         lines.append("")
-        exclusive = {k for group in getattr(cls, "EXCLUSIVE", ()) for k in group}
-        for group in getattr(cls, "EXCLUSIVE", ()):
-            lines += ["Give exactly one of " + " or ".join(f"`{k}`" for k in group)
-                      + ".", ""]
-        lines += ["| key | meaning | accepts | default |", "|---|---|---|---|"]
-        for sub in public_fields(cls):
-            _, tp, _ = field_kind(cls, sub.name)
-            if sub.default is dataclasses.MISSING:
-                default = "required"
-            elif sub.name in exclusive:
-                default = "one of a pair"
-            elif sub.default is None:
-                default = "not set"
-            else:
-                default = f"`{_toml_literal(sub.default)}`"
-            cells = (f"`{sub.name}`", _sentence(sub.metadata["doc"]),
-                     expectation(sub, tp), default)
-            lines.append("| " + " | ".join(c.replace("|", "\\|") for c in cells) + " |")
-        lines.append("")
+        lines += _key_table(cls, _table_header(root, f).strip("[]"))
     return "\n".join(lines)
+
+
+def _key_table(cls, path):
+    """Reference lines for the keys of section ``cls``, then its nested tables."""
+    lines, nested = [], []
+    exclusive = {k for group in getattr(cls, "EXCLUSIVE", ()) for k in group}
+    for group in getattr(cls, "EXCLUSIVE", ()):
+        lines += ["Give exactly one of " + " or ".join(f"`{k}`" for k in group)
+                  + ".", ""]
+    lines += ["| key | meaning | accepts | default |", "|---|---|---|---|"]
+    for sub in public_fields(cls):
+        kind, tp, _ = field_kind(cls, sub.name)
+        if kind == "section":
+            nested.append((sub, tp))
+            cells = (f"`{sub.name}`", _sentence(sub.metadata.get("doc", "")),
+                     f"a table, `[{path}.{sub.name}]` below", "defaults")
+            lines.append("| " + " | ".join(cells) + " |")
+            continue
+        if sub.default is dataclasses.MISSING:
+            default = "required"
+        elif sub.name in exclusive:
+            default = "one of a pair"
+        elif sub.default is None:
+            default = "not set"
+        else:
+            default = f"`{_toml_literal(sub.default)}`"
+        cells = (f"`{sub.name}`", _sentence(sub.metadata["doc"]),
+                 expectation(sub, tp), default)
+        lines.append("| " + " | ".join(c.replace("|", "\\|") for c in cells) + " |")
+    lines.append("")
+    for sub, tp in nested:
+        lines += [f"## `[{path}.{sub.name}]` (optional)", "",
+                  _sentence(sub.metadata.get("doc", "")),
+                  "Every key takes its default when the table is left out.", ""]
+        lines += _key_table(tp, f"{path}.{sub.name}")
+    return lines
 
 
 def _table_header(root, f):

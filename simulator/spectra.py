@@ -53,7 +53,9 @@ from simulator.budget import (
     detected_budget,
     source_groups,
 )
+from simulator.calibration_tone import tone_lines
 from simulator.errors import InputError
+from simulator.laser_noise import device_eigenvalues
 from simulator.model import linear_model
 from simulator.operating_point import operating_point
 from simulator.physics import angular, ordinary
@@ -116,8 +118,10 @@ def adaptive_grid(model, *, span_hz=None, one_sided=False, points_per_decade=48,
     """
     lam = np.linalg.eigvals(model.A)
     centres, halfwidths = -lam.imag, np.maximum(-lam.real, 1e-300)
-    if span_hz is None:
-        span = float(np.max(np.abs(centres)) + 10.0 * np.max(halfwidths))
+    if span_hz is None:  # from the device's resonances, not the laser-noise filters
+        core = device_eigenvalues(model)
+        span = float(np.max(np.abs(core.imag)) + 10.0 * np.max(np.maximum(-core.real,
+                                                                           1e-300)))
     else:
         if not np.isfinite(span_hz) or span_hz <= 0:
             raise InputError(f"span_hz = {span_hz!r}; expected a positive frequency in Hz")
@@ -208,6 +212,7 @@ def heterodyne_spectrum(scenario, frequency_hz=None, *, efficiency=None, point=N
     return Spectrum(frequency_hz=f, axis=HETERODYNE_AXIS, sided="two-sided",
                     units=SHOT_NOISE_UNITS, total=total, quantity="heterodyne output",
                     contributions=parts, calibration={"detection_efficiency": eta},
+                    lines=tone_lines(model, scenario, u, eta),
                     provenance=_provenance(scenario, "heterodyne", eta))
 
 
@@ -245,6 +250,7 @@ def homodyne_spectrum(scenario, frequency_hz=None, *, quadrature_angle=np.pi / 2
                     units=SHOT_NOISE_UNITS, total=total,
                     quantity=f"homodyne output, quadrature angle {np.degrees(theta):.6g} deg",
                     contributions=parts, calibration={"detection_efficiency": eta},
+                    lines=tone_lines(model, scenario, u, eta, one_sided=True),
                     provenance=_provenance(scenario, "homodyne", eta, theta))
 
 

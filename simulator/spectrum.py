@@ -11,6 +11,21 @@ import dataclasses
 import numpy as np
 
 
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class SpectralLine:
+    """A coherent line (a calibration tone): a power at one frequency, not a density.
+
+    ``power`` is in the spectrum's density units × Hz: the line compares with
+    a density S over a band B as S·B, and an estimator with equivalent noise
+    bandwidth ENBW shows it at height power/ENBW above the density. A line
+    has no width, so it is kept out of the density curves.
+    """
+
+    name: str
+    frequency_hz: float
+    power: float
+
+
 @dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
 class Spectrum:
     """A spectral density on a frequency grid, with its meaning spelled out.
@@ -41,6 +56,9 @@ class Spectrum:
         the key name.
     provenance : dict
         Scenario name, engine, software version and options.
+    lines : tuple of SpectralLine
+        Coherent lines (powers, not densities) on the same axis, e.g. the
+        calibration tone; empty for a pure noise spectrum.
     """
 
     frequency_hz: np.ndarray
@@ -54,11 +72,14 @@ class Spectrum:
     calibration: dict = dataclasses.field(default_factory=dict)
     provenance: dict = dataclasses.field(default_factory=dict)
     density: bool = True
+    lines: tuple = ()
 
     def __post_init__(self):
         if self.sided not in ("two-sided", "one-sided"):
             raise ValueError(f"Spectrum.sided is {self.sided!r}; expected 'two-sided' "
                              "or 'one-sided'")
+        if not all(isinstance(line, SpectralLine) for line in self.lines):
+            raise ValueError("Spectrum.lines holds something other than SpectralLine")
         f = np.asarray(self.frequency_hz, dtype=float)
         for name, arr in [("total", self.total), *self.contributions.items(),
                           *self.reference.items()]:
@@ -84,6 +105,12 @@ class Spectrum:
             for i, (name, arr) in enumerate(curves.items()):
                 data[f"{prefix}_{i}"] = ("frequency", np.asarray(arr),
                                          {"units": self.units, "long_name": name})
+        if self.lines:
+            names = "; ".join(line.name for line in self.lines)
+            data["line_frequency"] = ("line", [x.frequency_hz for x in self.lines],
+                                      {"units": "Hz", "long_name": names})
+            data["line_power"] = ("line", [x.power for x in self.lines],
+                                  {"units": f"{self.units} x Hz", "long_name": names})
         attrs = {"sided": self.sided, "density": int(self.density), "units": self.units,
                  "quantity": self.quantity, "axis": self.axis}
         attrs.update({f"calibration_{k}": v for k, v in self.calibration.items()})
@@ -137,6 +164,9 @@ class Spectrum:
                    if k != "scenario_toml"}}
         for key, value in meta.items():
             out.write(f"# {key}: {value}\n")
+        for line in self.lines:
+            out.write(f"# line: {line.name}; frequency_hz = {line.frequency_hz!r}; "
+                      f"power = {line.power!r} ({self.units} x Hz)\n")
         columns = {"frequency_hz": self.frequency_hz, "total": self.total,
                    **self.contributions,
                    **{f"reference: {k}": v for k, v in self.reference.items()}}

@@ -152,9 +152,19 @@ def steady_state(scenario=None, *, model=None, point=None):
             weak_coupling_occupation=float(weak_coupling.weak_coupling_occupation(
                 **rates, linewidth=float(angular(mode.linewidth_hz)),
                 bath_occupation=mode.bath_occupation,
-                cavity_occupation=n_cavity_bath))))
+                cavity_occupation=n_cavity_bath + _laser_occupation(scenario, point, mode)))))
     return SteadyState(states=model.states, covariance=v,
                        cavity_occupation=float(cavity_occupation), modes=tuple(modes))
+
+
+def _laser_occupation(scenario, point, mode):
+    """η_c n_c: the drive's classical noise at Ωm as an input occupation (0 without)."""
+    from simulator import laser_noise
+
+    if scenario is None or laser_noise.is_quiet(scenario):
+        return 0.0
+    share = point.external_linewidth_hz / point.cavity_linewidth_hz
+    return share * float(laser_noise.input_occupation(scenario, point, mode.frequency_hz))
 
 
 def effective_mechanics(model, n_modes):

@@ -1,0 +1,124 @@
+"""The calibration tone: a phase modulation φ0 cos(Ωt) of the drive, by linearity.
+
+The tone enters the model as the deterministic input ``laser.tone`` of
+:mod:`simulator.laser_noise` (intensity 0 in N): δa_in = −iā_in φ_tone on
+the drive path only, so the local oscillator never carries it. Being
+deterministic, it is not part of any density: spectra show it as lines
+(power, not density) and records add its exact steady-state response.
+
+References
+----------
+Gorodetsky, Schliesser, Anetsberger, Deléglise, Kippenberg, Opt. Express 18,
+23236 (2010).
+"""
+
+import numpy as np
+
+from simulator.laser_noise import TONE_INPUT
+from simulator.physics import angular
+
+
+def _tone_response(model, scenario, sign=1.0):
+    """φ0 H(±Ω) at the tone input: output quadratures per cos(Ωt) modulation (complex)."""
+    tone = scenario.drive.calibration_tone
+    k = model.index(TONE_INPUT, "inputs")
+    omega = sign * float(angular(tone.frequency_hz))
+    return tone.depth_rad * model.transfer(np.array([omega]))[0, :, k]
+
+
+def tone_lines(model, scenario, projection, efficiency, *, one_sided=False):
+    """The calibration tone as spectral lines (power, not density) of a detected spectrum.
+
+    Parameters
+    ----------
+    model : StateSpace
+        The scenario's linear model (outputs ``output.X/Y``).
+    scenario : simulator.scenario.Scenario
+    projection : ndarray (2,)
+        u of the detected field: (1, i)/√2 for heterodyne, (cos θ, sin θ) for
+        homodyne.
+    efficiency : float
+        Detection efficiency η.
+    one_sided : bool
+        Homodyne: one line at +f on the f ≥ 0 axis.
+
+    Returns
+    -------
+    tuple of simulator.spectrum.SpectralLine
+        Empty without a tone. Powers in shot-noise units × Hz: a line has no
+        bandwidth, so it compares with a density S over a band B as S·B, and
+        an estimator shows it at height power/ENBW.
+
+    Notes
+    -----
+    φ_tone = φ0 cos Ωt = Re[φ0 e^{−iΩt}] gives the output u·out(t) =
+    c₊ e^{−iΩt} + c₋ e^{iΩt}, c± = (φ0/2) u·H(±Ω). Heterodyne
+    (S = 1 + η(S̄_zz − ½)): lines η|c₊|² at ν = +f (anti-Stokes side) and
+    η|c₋|² at ν = −f. Homodyne (S = 1 + η(2S̄_θθ − 1)): η φ0²|u·H(Ω)|²/2 at f.
+    """
+    tone = scenario.drive.calibration_tone
+    if tone.depth_rad == 0:
+        return ()
+    from simulator.spectrum import SpectralLine
+
+    f = tone.frequency_hz
+    upper = 0.5 * _tone_response(model, scenario, +1.0) @ projection
+    if one_sided:
+        return (SpectralLine(name="calibration tone", frequency_hz=f,
+                             power=float(2.0 * efficiency * abs(upper) ** 2)),)
+    lower = 0.5 * _tone_response(model, scenario, -1.0) @ projection
+    return (SpectralLine(name="calibration tone, upper (anti-Stokes side)", frequency_hz=f,
+                         power=float(efficiency * abs(upper) ** 2)),
+            SpectralLine(name="calibration tone, lower (Stokes side)", frequency_hz=-f,
+                         power=float(efficiency * abs(lower) ** 2)))
+
+
+def tone_signal(chain, scenario, sample_rate_hz):
+    """The tone's exact contribution to the record samples, or None without a tone.
+
+    Parameters
+    ----------
+    chain : simulator.chain.DetectionChain
+    scenario : simulator.scenario.Scenario
+    sample_rate_hz : float
+
+    Returns
+    -------
+    callable or None
+        ``signal(first, count)`` → the samples ``first … first + count − 1``
+        to add to the record (shot-noise units), shaped like the chain's
+        samples: (count, 2) for iq, (count,) for if and homodyne.
+
+    Notes
+    -----
+    By linearity the steady-state response of each chain output to φ0 cos Ωt
+    is y(t) = Re[Y e^{−iΩt}], Y = φ0 H(Ω). Integrate-and-dump averages it
+    over each interval [nT, (n + 1)T]: (1/T)∫ e^{−iΩt} dt =
+    e^{−iΩ(n+½)T} sinc(ΩT/2π). For the if receiver the real photocurrent
+    2 Re[e^{iθt}(y_re + i y_im)] holds the two frequencies θ ∓ Ω, each
+    averaged the same way.
+    """
+    if scenario.drive.calibration_tone.depth_rad == 0:
+        return None
+    big_y = _tone_response(chain.model, scenario)
+    omega, t = float(angular(scenario.drive.calibration_tone.frequency_hz)), 1.0 / sample_rate_hz
+    if chain.receiver == "if":
+        theta = chain.carrier_rad_s
+        terms = [(big_y[0] + 1j * big_y[1], theta - omega),
+                 (np.conj(big_y[0]) + 1j * np.conj(big_y[1]), theta + omega)]
+    else:
+        terms = [(amp, -omega) for amp in big_y]
+
+    def averaged(amp, w, first, count):
+        cycles = w * t / (2 * np.pi)
+        mid = np.arange(first, first + count, dtype=np.float64) + 0.5
+        phase = 2 * np.pi * np.mod(mid * cycles, 1.0)
+        return (amp * np.sinc(cycles) * np.exp(1j * phase)).real
+
+    def signal(first, count):
+        parts = [averaged(amp, w, first, count) for amp, w in terms]
+        if chain.receiver == "if":
+            return parts[0] + parts[1]
+        return parts[0] if chain.receiver == "homodyne" else np.column_stack(parts)
+
+    return signal

@@ -1,0 +1,393 @@
+"""Classical laser noise and the calibration tone as parts of the one linear model.
+
+The drive's phase φ(t) = φ_W(t) + φ_S(t) has a random-walk part φ_W from white
+frequency noise δω = φ̇_W (a Lorentzian line of FWHM Δν_L) and a stationary
+part φ_S (a flat floor over a band and a resonant peak, each white noise
+through a filter). With the input written ā_in e^{−iφ} (frequency ω_L + φ̇),
+the model works in the frame that co-rotates with φ_W, where
+
+- δω shifts the detuning, exactly as cavity-frequency motion does:
+  d(δa)/dt gains iᾱ δω, i.e. dY/dt gains √2 ᾱ δω (ᾱ real), the place where
+  the mechanics enters through 2g q; no state is needed and φ_W never appears;
+- φ_S and the tone φ_tone = φ0 cos Ω t remain input modulations,
+  δa_in = −iā_in (φ_S + φ_tone), entering through √κ_ex and the direct
+  reflection; white relative intensity noise ε adds δa_in = ā_in ε/2;
+- the detected field is referred to the local oscillator (LO):
+  measured = δa_out − iā_out ρ, ā_out = ā_in − √κ_ex ᾱ the reflected carrier,
+  ρ = [φ_W(t) − φ_W,LO(t)] − φ_S,LO(t).
+
+LO phase references (``detection.local_oscillator_source``):
+
+- common (a copy of the drive, extra path delay τ): φ_LO(t) = φ(t − τ). The
+  delay is replaced by its first-order Padé approximant
+  e^{−sτ} ≈ (1 − sτ/2)/(1 + sτ/2), so φ_W(t) − φ_W(t − τ) = τ δω/(1 + sτ/2):
+  one state ξ, dξ/dt = −(2/τ)ξ + 2δω − (4/τ)φ_S, ρ = ξ + φ_S. Its variance
+  for white δω is exactly the phase diffusion 2πΔν_L τ; its spectrum errs by
+  (ωτ)²/6 at ωτ ≪ 1 (exact: 4 sin²(ωτ/2)/ω²), so ωτ ≤ 0.5 is required at
+  every mechanical frequency. τ = 0: ρ = −φ_S, no state.
+- locked (a separate source with a first-order phase lock of bandwidth ω_B):
+  dφ_LO/dt = ω_B (φ − φ_LO), so dρ/dt = −ω_B ρ + δω − ω_B φ_S.
+- independent (a separate, noise-free source): ρ = φ_W, a random walk — the
+  beat note diffuses and no stationary spectrum exists, so white frequency
+  noise is refused; ρ = 0 otherwise.
+
+The tone is on the drive path only (the electro-optic modulator sits after
+the LO is split off), so the LO never carries it. LO intensity noise is
+cancelled by balanced detection (common practice) and not modelled.
+
+Every classical input is a white input of the model, named ``laser.*``, with
+its own two-sided intensity (no vacuum ½); the tone input has intensity 0
+and is used only through its transfer function (lines in spectra, a
+sinusoid in records).
+
+References
+----------
+Rabl, Genes, Hammerer, Aspelmeyer, Phys. Rev. A 80, 063819 (2009) (phase
+noise in optomechanical cooling).
+Jayich et al., New J. Phys. 14, 115018 (2012); Safavi-Naeini et al., New J.
+Phys. 15, 035007 (2013) (laser noise in cooling and sideband thermometry).
+Di Domenico, Schilt, Thomann, Appl. Opt. 49, 4801 (2010) (linewidth and
+frequency-noise density).
+Gorodetsky et al., Opt. Express 18, 23236 (2010) (phase-modulation calibration).
+"""
+
+import numpy as np
+
+from simulator.physics import angular
+from simulator.statespace import StateSpace
+
+PREFIX = "laser."
+TONE_INPUT = "laser.tone"
+DELAY_LIMIT = 0.5  # largest 2π f_m τ of the one-state (Padé) delay
+_SQRT2 = np.sqrt(2.0)
+
+
+def is_quiet(scenario):
+    """True when the drive carries no classical noise and no tone (the default)."""
+    d = scenario.drive
+    return all(x == type(x)() for x in (d.phase_noise, d.intensity_noise,
+                                        d.calibration_tone))
+
+
+def local_oscillator_problems(scenario):
+    """Cross-section checks of the LO reference: yields ``(key, message)``."""
+    det, noise = scenario.detection, scenario.drive.phase_noise
+    source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
+    if source == "locked" and det.local_oscillator_lock_bandwidth_hz is None:
+        yield ("detection.local_oscillator_lock_bandwidth_hz", 'missing with '
+               'local_oscillator_source = "locked"; expected the lock bandwidth in Hz')
+    if source != "locked" and det.local_oscillator_lock_bandwidth_hz is not None:
+        yield ("detection.local_oscillator_lock_bandwidth_hz", f'set with '
+               f'local_oscillator_source = "{source}"; expected it only for "locked"')
+    if source != "common" and tau > 0:
+        yield ("detection.local_oscillator_delay_s", f'{tau!r} s with '
+               f'local_oscillator_source = "{source}"; expected 0 (a delay applies to a '
+               'common local oscillator only)')
+    if source == "independent" and noise.linewidth_hz > 0:
+        yield ("drive.phase_noise.linewidth_hz", f"{noise.linewidth_hz!r} Hz with an "
+               "independent local oscillator: the relative phase of white frequency "
+               "noise is a random walk (the beat note diffuses), which has no "
+               'stationary spectrum; expected local_oscillator_source = "common" (with '
+               'local_oscillator_delay_s) or "locked", or linewidth_hz = 0')
+    if source == "common" and tau > 0:
+        for mode in scenario.mechanics:
+            x = float(angular(mode.frequency_hz)) * tau
+            if x > DELAY_LIMIT:
+                yield ("detection.local_oscillator_delay_s", f"{tau!r} s gives 2π f τ = "
+                       f"{x:.3g} at mode {mode.name}; expected 2π f τ ≤ {DELAY_LIMIT}, "
+                       "where the one-state delay model errs by at most (2π f τ)²/6 "
+                       "≈ 4 % in the phase-difference spectrum")
+
+
+# -- spectral densities -----------------------------------------------------------
+
+def frequency_noise_density(linewidth_hz):
+    """Two-sided density S̄_ωω = 2π Δν_L (rad²/s² per Hz) of white frequency noise.
+
+    A Lorentzian line of FWHM Δν_L comes from phase diffusion with
+    Var[φ(t) − φ(t − τ)] = 2π Δν_L |τ|, i.e. white δω of this density (the
+    one-sided frequency-noise density in Hz²/Hz is Δν_L/π; Di Domenico et al.,
+    Appl. Opt. 49, 4801 (2010)).
+    """
+    return 2.0 * np.pi * float(linewidth_hz)
+
+
+def floor_shape(noise, frequency_hz):
+    """|H(f)|² of the floor: 2nd-order Butterworth high-pass × low-pass edges."""
+    f = np.abs(np.asarray(frequency_hz, dtype=float))
+    shape = 1.0 / (1.0 + (f / noise.floor_high_hz) ** 4)
+    if noise.floor_low_hz > 0:
+        x = (f / noise.floor_low_hz) ** 4
+        shape = shape * x / (1.0 + x)
+    return shape
+
+
+def peak_shape(noise, frequency_hz):
+    """|H(f)|² of the peak: γ²ω²/((ω0² − ω²)² + γ²ω²), 1 at the centre, FWHM γ/2π."""
+    w = angular(np.abs(np.asarray(frequency_hz, dtype=float)))
+    w0, gamma = angular([noise.peak_frequency_hz, noise.peak_width_hz])
+    return (gamma * w) ** 2 / ((w0**2 - w**2) ** 2 + (gamma * w) ** 2)
+
+
+def phase_noise_density(noise, frequency_hz):
+    """Realised two-sided phase-noise density S̄_φφ(f) of the drive (rad²/Hz).
+
+    The sum of the shapes: 2π Δν_L/ω² (white frequency noise), the floor
+    S_floor/2 · |H_floor|², the peak S_peak/2 · |H_peak|² (the scenario's
+    densities are one-sided, S = 2 S̄). This is exactly the spectrum of the
+    model's states; ∫ S̄ df over −∞…∞ is the variance of the stationary part.
+    """
+    f = np.asarray(frequency_hz, dtype=float)
+    with np.errstate(divide="ignore"):
+        total = frequency_noise_density(noise.linewidth_hz) / angular(f) ** 2
+    total = np.where(noise.linewidth_hz > 0, total, 0.0)
+    if noise.floor_rad2_per_hz > 0:
+        total = total + 0.5 * noise.floor_rad2_per_hz * floor_shape(noise, f)
+    if noise.peak_rad2_per_hz > 0:
+        total = total + 0.5 * noise.peak_rad2_per_hz * peak_shape(noise, f)
+    return total
+
+
+def input_occupation(scenario, point, frequency_hz):
+    """Occupation n_c = Φ [S̄_φφ(f) + S̄_εε/4] that laser noise adds at the driven port.
+
+    Φ = P/ħω_L is the drive photon flux and the densities are two-sided:
+    δa_in = −iā_in φ + ā_in ε/2 has ⟨δa_in† δa_in⟩(ω) = Φ [S̄_φφ + S̄_εε/4]
+    (Safavi-Naeini et al., New J. Phys. 15, 035007 (2013); Rabl et al., Phys.
+    Rev. A 80, 063819 (2009)).
+    """
+    drive = scenario.drive
+    rin = 0.5 * drive.intensity_noise.relative_intensity_noise_per_hz
+    return point.input_photon_flux * (phase_noise_density(drive.phase_noise, frequency_hz)
+                                      + rin / 4.0)
+
+
+# -- the state-space model ----------------------------------------------------------
+
+def _quad(c):
+    """Quadratures (X, Y) = √2 (Re, Im) of a complex field amplitude."""
+    return _SQRT2 * np.array([np.real(c), np.imag(c)])
+
+
+def _floor_filter(noise):
+    """(A, B, C) with φ = C x for white input: Butterworth high-pass then low-pass."""
+    wh = float(angular(noise.floor_high_hz))
+    low = ([[0.0, wh], [-wh, -_SQRT2 * wh]], [0.0, wh], [1.0, 0.0])
+    if noise.floor_low_hz == 0:
+        return tuple(np.array(x) for x in low)
+    wl = float(angular(noise.floor_low_hz))
+    a = np.array([[0.0, wl, 0.0, 0.0], [-wl, -_SQRT2 * wl, 0.0, 0.0],
+                  [0.0, 0.0, 0.0, wh], [-wh, -_SQRT2 * wh, -wh, -_SQRT2 * wh]])
+    return a, np.array([0.0, wl, 0.0, wh]), np.array([0.0, 0.0, 1.0, 0.0])
+
+
+def _peak_filter(noise):
+    """(A, B, C) of γ s/(s² + γ s + ω0²), states (ω0 z, dz/dt)."""
+    w0, gamma = (float(x) for x in angular([noise.peak_frequency_hz, noise.peak_width_hz]))
+    return (np.array([[0.0, w0], [-w0, -gamma]]), np.array([0.0, 1.0]),
+            np.array([0.0, gamma]))
+
+
+class _Blocks:
+    """Laser states and inputs being appended to a model, with their couplings."""
+
+    def __init__(self):
+        self.states, self.inputs, self.sources, self.intensity = [], [], [], []
+        self.a = np.zeros((0, 0))
+        self.b = {}  # input index -> column over the laser states
+        self.cavity = {}  # input index -> cavity rows (X, Y)
+        self.output = {}  # input index -> output rows (X, Y)
+
+    def add_input(self, name, intensity, source, cavity=None, output=None):
+        k = len(self.inputs)
+        self.inputs.append(name)
+        self.intensity.append(float(intensity))
+        self.sources.append((source, k))
+        self.cavity[k] = np.zeros(2) if cavity is None else cavity
+        self.output[k] = np.zeros(2) if output is None else output
+        return k
+
+    def add_states(self, names, a):
+        n = len(self.states)
+        self.states += list(names)
+        grown = np.zeros((n + len(names),) * 2)
+        grown[:n, :n] = self.a
+        grown[n:, n:] = a
+        self.a = grown
+        return slice(n, n + len(names))
+
+    def drive(self, k, rows, column):
+        col = self.b.setdefault(k, np.zeros(0))
+        full = np.zeros(len(self.states))
+        full[:col.size] = col
+        full[rows] += column
+        self.b[k] = full
+
+
+def laser_model(model, scenario, point):
+    """``model`` with the drive's classical noise, LO reference and tone appended.
+
+    Parameters
+    ----------
+    model : simulator.statespace.StateSpace
+        The cavity–mechanics model of :func:`simulator.model.linear_model`.
+    scenario : simulator.scenario.Scenario
+    point : simulator.operating_point.OperatingPoint
+
+    Returns
+    -------
+    StateSpace
+        New states ``laser.*`` after the mechanics, new inputs ``laser.*``
+        after the baths; the outputs and the optomechanical ``coupling`` are
+        those of ``model``. See the module docstring for the equations.
+    """
+    noise, det = scenario.drive.phase_noise, scenario.detection
+    kappa, kappa_ex, delta = (float(x) for x in angular([
+        point.cavity_linewidth_hz, point.external_linewidth_hz, point.detuning_effective_hz]))
+    alpha = np.sqrt(point.photon_number)
+    a_in = alpha * (kappa / 2 - 1j * delta) / np.sqrt(kappa_ex)
+    a_out = alpha * (kappa / 2 - kappa_ex - 1j * delta) / np.sqrt(kappa_ex)
+    port, direct, ref = np.sqrt(kappa_ex) * _quad(-1j * a_in), _quad(-1j * a_in), _quad(
+        -1j * a_out)
+    blocks = _Blocks()
+    phase_rows = []  # (state slice, C row): φ_S = Σ C x
+    if noise.floor_rad2_per_hz > 0:
+        a, b, c = _floor_filter(noise)
+        rows = blocks.add_states([f"laser.floor.{i}" for i in range(len(b))], a)
+        k = blocks.add_input("laser.floor", noise.floor_rad2_per_hz / 2,
+                             "laser phase-noise floor")
+        blocks.drive(k, rows, b)
+        phase_rows.append((rows, c))
+    if noise.peak_rad2_per_hz > 0:
+        a, b, c = _peak_filter(noise)
+        rows = blocks.add_states(["laser.peak.0", "laser.peak.1"], a)
+        k = blocks.add_input("laser.peak", noise.peak_rad2_per_hz / 2,
+                             "laser relaxation-oscillation peak")
+        blocks.drive(k, rows, b)
+        phase_rows.append((rows, c))
+    source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
+    reference = None
+    if source == "common" and tau > 0:
+        reference = (blocks.add_states(["laser.reference"], [[-2.0 / tau]]), 2.0, 4.0 / tau)
+    elif source == "locked":
+        wb = float(angular(det.local_oscillator_lock_bandwidth_hz))
+        reference = (blocks.add_states(["laser.reference"], [[-wb]]), 1.0, wb)
+    if noise.linewidth_hz > 0:
+        k = blocks.add_input("laser.frequency", frequency_noise_density(noise.linewidth_hz),
+                             "laser frequency noise", cavity=_quad(1j * alpha))
+        if reference is not None:
+            blocks.drive(k, reference[0], reference[1])
+    rin = scenario.drive.intensity_noise.relative_intensity_noise_per_hz
+    if rin > 0:
+        blocks.add_input("laser.intensity", rin / 2, "laser intensity noise",
+                         cavity=np.sqrt(kappa_ex) * _quad(a_in / 2), output=_quad(a_in / 2))
+    if scenario.drive.calibration_tone.depth_rad > 0:
+        blocks.add_input(TONE_INPUT, 0.0, "calibration tone", cavity=port, output=direct)
+    return _assemble(model, blocks, phase_rows, reference, source, tau,
+                     port=port, direct=direct, ref=ref,
+                     prompt=_quad(-1j * np.sqrt(kappa_ex) * alpha))
+
+
+def _assemble(model, blocks, phase_rows, reference, source, tau, *, port, direct, ref,
+              prompt):
+    """One StateSpace from the base model and the laser blocks."""
+    n0, m0 = len(model.states), len(model.inputs)
+    nl, ml = len(blocks.states), len(blocks.inputs)
+    n, m = n0 + nl, m0 + ml
+    a = np.zeros((n, n))
+    a[:n0, :n0] = model.A
+    a[n0:, n0:] = blocks.a
+    b = np.zeros((n, m))
+    b[:n0, :m0] = model.B
+    c = np.zeros((len(model.outputs), n))
+    c[:, :n0] = model.C
+    d = np.zeros((len(model.outputs), m))
+    d[:, :m0] = model.D
+    for k in range(ml):
+        b[0:2, m0 + k] = blocks.cavity[k]
+        d[:, m0 + k] = blocks.output[k]
+        if k in blocks.b:
+            b[n0:n0 + blocks.b[k].size, m0 + k] = blocks.b[k]
+    phase = np.zeros(nl)  # φ_S as a row over the laser states
+    for rows, row in phase_rows:
+        phase[rows] = row
+    a[0:2, n0:] = np.outer(port, phase)
+    if source == "common" and tau == 0:
+        c[:, n0:] += np.outer(prompt, phase)  # −iā_in φ_S + iā_out φ_S = −i√κ_ex ᾱ φ_S
+    elif reference is None:
+        c[:, n0:] += np.outer(direct, phase)
+    else:
+        rows, _, gain = reference
+        r = rows.start
+        a[n0 + r, n0:] += -gain * phase
+        c[:, n0 + r] += ref
+        c[:, n0:] += np.outer(direct + (ref if source == "common" else 0.0), phase)
+    n_total = np.zeros((m, m))
+    n_total[:m0, :m0] = model.N
+    n_total[m0:, m0:] = np.diag(blocks.intensity)
+    coupling = np.zeros((n, n))
+    coupling[:n0, :n0] = model.coupling
+    sources = tuple(model.sources) + tuple((name, (m0 + k,)) for name, k in blocks.sources)
+    return StateSpace(A=a, B=b, N=n_total, C=c, D=d, states=model.states + tuple(
+        blocks.states), inputs=model.inputs + tuple(blocks.inputs), outputs=model.outputs,
+        sources=sources, coupling=coupling)
+
+
+def vacuum_intensity(model):
+    """Vacuum part of each input's intensity: ½ for quantum inputs, 0 for ``laser.*``."""
+    return np.array([0.0 if name.startswith(PREFIX) else 0.5 for name in model.inputs])
+
+
+def device_eigenvalues(model, also=()):
+    """Eigenvalues of the drift without the ``laser.*`` states (and any prefix in ``also``).
+
+    The laser-noise filters drive the cavity but are not driven by it, so the
+    drift is block triangular and these are exactly the cavity–mechanics
+    eigenvalues: what sets the default spectrum span and the sample rate.
+    """
+    keep = [i for i, s in enumerate(model.states) if not s.startswith((PREFIX, *also))]
+    return np.linalg.eigvals(model.A[np.ix_(keep, keep)])
+
+
+# -- what the noise does to the occupation ------------------------------------------
+
+def without_laser_noise(scenario):
+    """The same scenario with a shot-noise-limited drive and no tone."""
+    from simulator.scenario import scenario_from_dict
+
+    data = scenario.to_dict()
+    for key in ("phase_noise", "intensity_noise", "calibration_tone"):
+        data["drive"].pop(key, None)
+    return scenario_from_dict(data, source=scenario.source)
+
+
+def occupation_report(scenario, point, steady):
+    """Per mode: laser input occupation, excess occupation and the apparent one.
+
+    Returns
+    -------
+    tuple of dict
+        ``laser_input_occupation`` (η_c n_c at the mode frequency, see
+        :func:`input_occupation`), ``laser_noise_excess_occupation`` (exact
+        occupation minus that of the same scenario without laser noise) and,
+        for heterodyne detection, ``apparent_occupation_from_asymmetry`` (the
+        sideband-ratio occupation of :func:`simulator.sidebands.sideband_summary`,
+        which laser noise biases: the classical noise the detector sees
+        interferes with the motion it drives, as the vacuum does).
+    """
+    from simulator.sidebands import sideband_summary
+    from simulator.steady_state import steady_state
+
+    quiet = steady_state(without_laser_noise(scenario))
+    share = point.external_linewidth_hz / point.cavity_linewidth_hz
+    summaries = (sideband_summary(scenario) if scenario.detection.scheme == "heterodyne"
+                 else None)
+    out = []
+    for j, mode in enumerate(steady.modes):
+        entry = {"laser_input_occupation": share * float(
+                     input_occupation(scenario, point, point.modes[j].frequency_hz)),
+                 "laser_noise_excess_occupation": mode.occupation - quiet.modes[j].occupation}
+        if summaries is not None:
+            entry["apparent_occupation_from_asymmetry"] = summaries[j].occupation_from_ratio
+        out.append(entry)
+    return tuple(out)

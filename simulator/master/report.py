@@ -1,0 +1,89 @@
+"""Master-equation numbers set beside the linear engine's, for ``inspect --master``.
+
+Plain data and text only; the command line prints them, this module does not
+know about it.
+"""
+
+import math
+
+from simulator.master.steady import master_steady_state
+
+
+def master_comparison(scenario, linear_report, kind="full", **options):
+    """Steady-state numbers of the master equation next to the linear ones.
+
+    Parameters
+    ----------
+    scenario : simulator.scenario.Scenario
+    linear_report : simulator.inspection.Inspection
+        The linear engine's report (its steady state must exist).
+    kind : {"full", "linearised"}
+    **options
+        Passed to :func:`~simulator.master.steady.master_steady_state`.
+
+    Returns
+    -------
+    dict
+        ``rows``: (quantity, linear, master) triples; ``steady``: the master
+        steady state as plain data (cutoffs, truncation, solver).
+    """
+    steady = master_steady_state(scenario, kind, point=linear_report.point, **options)
+    linear = linear_report.steady
+    rows = [("cavity occupation (fluctuations)", linear.cavity_occupation,
+             steady.cavity.occupation)]
+    if kind == "full":
+        rows.append(("intracavity photons ⟨a†a⟩", linear_report.point.photon_number,
+                     steady.cavity.quanta))
+        rows.append(("cavity g²(0)", gaussian_g2(linear_report.point.photon_number,
+                                                linear.covariance), steady.cavity_g2))
+    for ls, ms in zip(linear.modes, steady.modes, strict=True):
+        rows.append((f"{ms.name}: occupation", ls.occupation, ms.occupation))
+    return {"model": kind, "frame": steady.model.frame,
+            "rows": [{"quantity": q, "linear": lin, "master": me,
+                      "relative_difference": _relative(lin, me)} for q, lin, me in rows],
+            "steady": steady.to_dict()}
+
+
+def comparison_text(data):
+    """Terminal text of :func:`master_comparison`'s result."""
+    s = data["steady"]
+    dims = " × ".join(f"{m['cutoff']} ({m['name']})" for m in [s["cavity"], *s["modes"]])
+    lines = [f"master equation ({data['model']} model, {data['frame']} frame; Fock "
+             f"cutoffs {dims} = {s['hilbert_dimension']} states)",
+             f"  {'quantity':<36}{'linear':>14}{'master':>14}{'difference':>12}"]
+    for row in data["rows"]:
+        diff = row["relative_difference"]
+        lines.append(f"  {row['quantity']:<36}{row['linear']:>14.6g}{row['master']:>14.6g}"
+                     + (f"{diff:>12.2e}" if diff is not None else f"{'':>12}"))
+    tails = ", ".join(f"{m['name']} {m['tail_population']:.1e}"
+                      for m in [s["cavity"], *s["modes"]])
+    lines.append(f"  truncation: population in the top Fock levels {tails} "
+                 f"(tolerance {s['truncation_tolerance']:g}, {s['rounds']} solve(s))")
+    lines.append(f"  solver: {s['solver']}, {s['solver_steps']} steps, relative residual "
+                 f"{s['solver_residual']:.1e}, {s['solver_seconds']:.3g} s")
+    return "\n".join(lines)
+
+
+def gaussian_g2(photon_number, covariance):
+    """g²(0) of the linear engine's intracavity state: a displaced Gaussian.
+
+    With real mean ᾱ = √n̄ and fluctuation moments N = ⟨δa†δa⟩ =
+    (V_XX + V_YY − 1)/2, M = ⟨δa δa⟩ = (V_XX − V_YY + 2i V_XY)/2 (Wick's
+    theorem): ⟨a†²a²⟩ = ᾱ⁴ + 4ᾱ²N + 2ᾱ² Re M + 2N² + |M|² and
+    g²(0) = ⟨a†²a²⟩/(ᾱ² + N)².
+    """
+    v = covariance
+    n = (v[0, 0] + v[1, 1] - 1.0) / 2.0
+    m = complex(v[0, 0] - v[1, 1], 2.0 * v[0, 1]) / 2.0
+    a2 = float(photon_number)
+    total = a2 + n
+    if total <= 0:
+        return float("nan")
+    moment = a2**2 + 4 * a2 * n + 2 * a2 * m.real + 2 * n**2 + abs(m) ** 2
+    return float(moment / total**2)
+
+
+def _relative(linear, master):
+    if not (math.isfinite(linear) and math.isfinite(master)) or linear == 0:
+        return None
+    return (master - linear) / abs(linear)
