@@ -51,8 +51,13 @@ def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, titl
     rows = 1 + bool(zooms) + bool(zooms and displacement is not None)
     fig = plt.figure(figsize=(13, 3.6 * rows + 0.5), layout="constrained")
     grid = fig.add_gridspec(rows, max(len(zooms), 1))
-    colours = {name: ("0.45" if i == 0 else f"C{(i - 1) % 10}")
-               for i, name in enumerate(spectrum.contributions)}
+    names = list(spectrum.contributions)
+    # ten distinct default colours suffice for a plain budget; laser-noise terms
+    # make it longer, and a repeated colour would pair unrelated terms
+    palette = ([f"C{i}" for i in range(10)] if len(names) <= 11
+               else [plt.get_cmap("tab20")(i % 20) for i in range(len(names))])
+    colours = {name: ("0.45" if i == 0 else palette[(i - 1) % len(palette)])
+               for i, name in enumerate(names)}
     ax = fig.add_subplot(grid[0, :])
     _overview(ax, spectrum, colours, summary)
     fig.suptitle(title or spectrum.quantity, x=0.02, ha="left")
@@ -101,6 +106,10 @@ def _overview(ax, spectrum, colours, summary):
         if np.any(curve < 0):
             ax.semilogy(f, np.where(curve < 0, -curve, np.nan), color=colours[name], lw=1.2,
                         ls="--", label=f"−({name}) where negative")
+    for line in getattr(spectrum, "lines", ()):
+        # a line is a power (density units × Hz), not a density: marked, not drawn
+        ax.axvline(line.frequency_hz / scale, color="magenta", lw=1.0, ls="-.",
+                   label=f"{line.name}: power {line.power:.3g} (units × Hz)")
     positive = excess[excess > 1e-12]
     if positive.size:
         ax.set_ylim(max(positive.max() * 1e-9, positive.min() / 3), positive.max() * 3)
