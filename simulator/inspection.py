@@ -142,8 +142,12 @@ def _finite(x):
     return x if math.isfinite(x) else None
 
 
-def inspect_scenario(scenario):
+def inspect_scenario(scenario, *, feasibility=True):
     """Operating point, stability, steady state and warnings of ``scenario``.
+
+    ``feasibility=False`` leaves out the Cramér–Rao bounds (the costliest
+    part, a few tenths of a second), for callers such as sweeps that do not
+    report them.
 
     Unlike :func:`simulator.steady_state.steady_state`, an unstable operating
     point does not raise: the report says so and carries no steady state.
@@ -167,7 +171,7 @@ def inspect_scenario(scenario):
                     f"exact {exact:.4g} by more than {STRONG_COUPLING_TOLERANCE:.0%}; the "
                     "system is near or in strong coupling and the rate-equation "
                     "diagnostics do not apply")
-    feasibility = _feasibility(scenario) if steady is not None else ()
+    feasibility = _feasibility(scenario) if steady is not None and feasibility else ()
     from simulator.master.regime import regime_verdict  # pure formulas, no QuTiP
 
     regime = regime_verdict(point, None if steady is None else

@@ -164,17 +164,22 @@ def _plot_record_spectrum(scenario, record, path):
     from simulator.chain import detection_chain
 
     fs = record.sample_rate_hz
-    segment = int(min(2 ** 14, 2 ** np.floor(np.log2(max(record.n_samples // 16, 16)))))
+    # bins of a quarter of the narrowest line, but at least 16 averages
+    width = min(record.truth.effective_linewidth_hz, default=fs / 1e4)
+    segment = int(2 ** np.ceil(np.log2(fs / max(width / 4, 1e-9))))
+    segment = int(min(segment, 2 ** np.floor(np.log2(max(record.n_samples // 16, 16)))))
     psd = averaged_periodogram(record.shot_noise_units(), fs, segment_samples=segment,
                                window="boxcar")
-    exact = detection_chain(scenario).sampled_spectrum(psd.frequency_hz, fs)
+    step = max(1, psd.frequency_hz.size // 1024)  # the exact curve is smooth: 1024 points
+    f_exact = psd.frequency_hz[::step]
+    exact = detection_chain(scenario).sampled_spectrum(f_exact, fs, aliases=40)
     if psd.sided == "one-sided":
         exact = 2 * exact
     fig, ax = plt.subplots(figsize=(9, 4.5))
     scale, unit = (1e6, "MHz") if fs > 2e6 else (1e3, "kHz")
     ax.semilogy(psd.frequency_hz / scale, psd.density, lw=0.6, color="tab:blue",
                 label=f"record periodogram ({psd.averages} averages)")
-    ax.semilogy(psd.frequency_hz / scale, exact, lw=1.5, color="k",
+    ax.semilogy(f_exact / scale, exact, lw=1.5, color="k",
                 label="exact density of the samples (model)")
     axis = ("offset from the drive (> 0: anti-Stokes)" if record.kind == "iq"
             else "frequency")

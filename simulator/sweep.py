@@ -147,7 +147,7 @@ def evaluate_point(scenario_text, assignments):
         result.update({k: [nan] * n_modes for k in MODE_QUANTITIES})
         for path, value in assignments:
             scenario = scenario.replace(path, value)
-        report = inspect_scenario(scenario).to_dict()
+        report = inspect_scenario(scenario, feasibility=False).to_dict()
     except Exception as exc:  # noqa: BLE001 - one failing point must not stop a sweep
         result["error"] = f"{type(exc).__name__}: {exc}"
         return result
