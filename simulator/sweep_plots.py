@@ -43,8 +43,11 @@ def plot_occupation(dataset, path):
         dim = dims[0]
         x = dataset[dim].values
         has_ratio = "sideband_ratio" in dataset
-        fig, axes = plt.subplots(2 if has_ratio else 1, 1, figsize=(8, 7 if has_ratio else 4.5),
-                                 sharex=True, squeeze=False)
+        has_time = "asymmetry_time_s" in dataset and np.isfinite(
+            dataset["asymmetry_time_s"].values).any()
+        rows = 1 + has_ratio + has_time
+        fig, axes = plt.subplots(rows, 1, figsize=(8, 1.0 + 3.2 * rows), sharex=True,
+                                 squeeze=False)
         ax = axes[0, 0]
         for m, name in enumerate(dataset["mode"].values):
             exact = dataset["occupation"].values[:, m]
@@ -66,6 +69,14 @@ def plot_occupation(dataset, path):
             _shade_unstable(axr, x, dataset["stable"].values)
             axr.grid(alpha=0.3)
             axr.legend(fontsize=8)
+        if has_time:
+            axt = axes[-1, 0]
+            for m, name in enumerate(dataset["mode"].values):
+                axt.semilogy(x, dataset["asymmetry_time_s"].values[:, m], "-", label=name)
+            axt.set_ylabel("integration time to resolve\nthe asymmetry at 5σ (s)")
+            _shade_unstable(axt, x, dataset["stable"].values)
+            axt.grid(alpha=0.3, which="both")
+            axt.legend(fontsize=8)
         axes[-1, 0].set_xlabel(_axis_label(dataset, dim))
         fig.suptitle(f"{dataset.attrs.get('scenario_name', '')}: occupation along the sweep")
     else:
