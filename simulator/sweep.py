@@ -121,7 +121,7 @@ def _base_from_text(text):
     return dataclasses.replace(parse_scenario(text, source="<sweep>"), sweep=None)
 
 
-def evaluate_point(scenario_text, assignments):
+def evaluate_point(scenario_text, assignments, outputs=None):
     """Evaluate one sweep point: operating point, stability, steady state.
 
     Parameters
@@ -129,6 +129,8 @@ def evaluate_point(scenario_text, assignments):
     scenario_text : str
         The base scenario as TOML (its ``[sweep]`` is ignored).
     assignments : sequence of (path, value)
+    outputs : PointOutputs, optional
+        Where and whether to write this point's record and spectrum files.
 
     Returns
     -------
@@ -161,10 +163,51 @@ def evaluate_point(scenario_text, assignments):
         result["cavity_occupation"] = report["cavity_occupation"]
     for k in MODE_QUANTITIES:
         result[k] = [nan if m.get(k) is None else float(m[k]) for m in report["modes"]]
-    if report["stable"]:
-        _add_sidebands(scenario, result)
+    result["files"] = []
+    try:
+        if report["stable"]:
+            _add_sidebands(scenario, result)
+            if outputs is not None:
+                result["files"] = outputs.write(scenario)
+    except Exception as exc:  # noqa: BLE001 - recorded with the point
+        result["error"] = f"{type(exc).__name__}: {exc}"
+        return result
     result["error"] = ""
     return result
+
+
+@dataclasses.dataclass(frozen=True)
+class PointOutputs:
+    """The files a sweep point writes beside the dataset (records, spectra)."""
+
+    folder: str
+    key: str
+    seed: int
+    records: bool
+    spectra: bool
+
+    def write(self, scenario):
+        """Write the requested files for ``scenario``; return their paths relative to the folder."""
+        written = []
+        if self.records:
+            import warnings
+
+            from simulator.records import simulate_record
+
+            path = Path(self.folder) / "records" / f"{self.key}.h5"
+            path.parent.mkdir(parents=True, exist_ok=True)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")  # clipping is counted in the file
+                simulate_record(scenario, seed=self.seed, out=path)
+            written.append(f"records/{self.key}.h5")
+        if self.spectra:
+            from simulator.spectra import measured_spectrum
+
+            path = Path(self.folder) / "spectra" / f"{self.key}.nc"
+            path.parent.mkdir(parents=True, exist_ok=True)
+            measured_spectrum(scenario).save(path)
+            written.append(f"spectra/{self.key}.nc")
+        return written
 
 
 def _add_sidebands(scenario, result):
@@ -180,9 +223,12 @@ def _add_sidebands(scenario, result):
                 scenario, j, ASYMMETRY_SIGNIFICANCE).duration_s
 
 
-def _point_task(scenario_text, assignments):
-    # looked up at call time so that tests can substitute evaluate_point
-    return evaluate_point(scenario_text, assignments)
+def _point_task(common, payload):
+    # evaluate_point is looked up at call time so that tests can substitute it
+    scenario_text, folder, records, spectra = common
+    assignments, key, seed = payload
+    outputs = PointOutputs(folder, key, seed, records, spectra) if records or spectra else None
+    return evaluate_point(scenario_text, assignments, outputs)
 
 
 def _point_key(index):
@@ -218,8 +264,12 @@ def run_sweep(scenario, out, *, workers=None, dask=None, progress=True):
     tasks.prepare_folder(out, "sweep.json", {
         "format": FORMAT, "format_version": FORMAT_VERSION,
         "sha256": tasks.digest(text), "scenario_toml": text}, "sweep")
-    results = tasks.run_tasks(out / "points", _point_task, text,
-                              [(_point_key(index), a) for index, a in points],
+    seeds = np.random.SeedSequence(scenario.scenario.seed).spawn(len(points))
+    common = (text, str(out.resolve()), scenario.sweep.records, scenario.sweep.spectra)
+    results = tasks.run_tasks(out / "points", _point_task, common,
+                              [(_point_key(index), (a, _point_key(index),
+                                                    int(seed.generate_state(1)[0])))
+                               for (index, a), seed in zip(points, seeds, strict=True)],
                               workers=workers, dask=dask, progress=progress, desc="sweep",
                               unit="pt")
     dataset = assemble(scenario, axes, points, results)
@@ -247,6 +297,7 @@ def assemble(scenario, axes, points, results):
     data = {k: np.full(shape, np.nan) for k in POINT_QUANTITIES}
     data.update({k: np.full(shape + (len(modes),), np.nan) for k in MODE_QUANTITIES})
     errors = np.full(shape, "", dtype=object)
+    files = np.full(shape, "", dtype=object)
     for index, _ in points:
         r = results[_point_key(index)]
         for k in POINT_QUANTITIES:
@@ -254,11 +305,16 @@ def assemble(scenario, axes, points, results):
         for k in MODE_QUANTITIES:
             data[k][index] = r.get(k, np.nan)  # absent when the point failed early
         errors[index] = r["error"]
+        files[index] = " ".join(r.get("files", []))
     variables = {k: (dims, v, {"units": POINT_QUANTITIES[k]}) for k, v in
                  ((k, data[k]) for k in POINT_QUANTITIES)}
     variables.update({k: (dims + ("mode",), data[k], {"units": MODE_QUANTITIES[k]})
                       for k in MODE_QUANTITIES})
     variables["error"] = (dims, errors.astype(str), {"long_name": "error raised at the point"})
+    if scenario.sweep.records or scenario.sweep.spectra:
+        variables["files"] = (dims, files.astype(str),
+                              {"long_name": "files written for the point, relative to the "
+                                            "sweep folder"})
     for a in axes:
         if a.unit:
             values = np.asarray(a.values)

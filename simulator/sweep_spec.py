@@ -92,6 +92,13 @@ class Sweep:
         accepts="a table: parameter path = [values] or {start, stop, num, log = false, "
                 "unit = path}")
 
+    records: bool = param(
+        "also write a synthetic record at every stable point (DIR/records/<point>.h5; "
+        "seeds spawned per point from scenario.seed)", default=False)
+    spectra: bool = param(
+        "also write the analytic spectrum at every stable point (DIR/spectra/<point>.nc)",
+        default=False)
+
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
         if self.combine == "zip":

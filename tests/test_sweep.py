@@ -118,10 +118,10 @@ def test_failing_point_is_recorded_and_sweep_goes_on(tmp_path, monkeypatch):
 
     real = inspection.inspect_scenario
 
-    def flaky(scenario):
+    def flaky(scenario, **options):
         if scenario.drive.detuning_hz == 0.0:
             raise RuntimeError("injected failure")
-        return real(scenario)
+        return real(scenario, **options)
 
     monkeypatch.setattr(inspection, "inspect_scenario", flaky)
     ds = run_sweep(parse_scenario(GRID), tmp_path, workers=1, progress=False)
@@ -160,7 +160,7 @@ def test_killed_sweep_resumes_without_loss_or_repeat(tmp_path, monkeypatch):
     calls = []
     real = sweep.evaluate_point
     monkeypatch.setattr(sweep, "evaluate_point",
-                        lambda t, a: calls.append(a) or real(t, a))
+                        lambda t, a, o=None: calls.append(a) or real(t, a, o))
     scenario = parse_scenario(text, source=str(path))
     ds = run_sweep(scenario, out, workers=1, progress=False)
     assert len(calls) == 80 - len(stored)  # nothing repeated
@@ -184,3 +184,32 @@ def test_cli_sweep_json_and_bad_dask_address(tmp_path):
                          capture_output=True, text=True)
     assert bad.returncode == 2 and "Traceback" not in bad.stderr
     assert "nowhere" in bad.stderr
+
+
+def test_records_and_spectra_per_point(tmp_path):
+    """Per-point records use seeds spawned from the scenario seed (SeedSequence.spawn):
+    the same files whatever the worker count; unstable points write nothing."""
+    from simulator.recordfile import load_record
+
+    text = BASE + """
+[record]
+duration_s = 0.0002
+[sweep]
+records = true
+spectra = true
+[sweep.parameters]
+"drive.detuning_hz" = [-1.5e6, -1.0e6, 1.5e6]
+"""
+    sc = parse_scenario(text)
+    one = run_sweep(sc, tmp_path / "one", workers=1, progress=False)
+    two = run_sweep(sc, tmp_path / "two", workers=2, progress=False)
+    assert list(one["files"].values) == list(two["files"].values)
+    assert one["files"].values[2] == ""  # blue-detuned point: unstable
+    first, second = (load_record(tmp_path / "one" / "records" / f"{k}.h5") for k in
+                     ("00000", "00001"))
+    again = load_record(tmp_path / "two" / "records" / "00000.h5")
+    np.testing.assert_array_equal(first.counts, again.counts)
+    assert first.seed != second.seed
+    assert first.truth.occupation[0] == one["occupation"].values[0, 0]
+    spectrum = xr.load_dataset(tmp_path / "one" / "spectra" / "00001.nc")
+    assert spectrum.attrs["sided"] == "two-sided"
