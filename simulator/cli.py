@@ -120,7 +120,8 @@ def cmd_spectrum(args):
 
         spectrum = master_heterodyne_spectrum(scenario, kind=args.master_model)
     else:
-        spectrum = measured_spectrum(scenario, quadrature_angle=math.radians(args.angle_deg))
+        angle = None if args.angle_deg is None else math.radians(args.angle_deg)
+        spectrum = measured_spectrum(scenario, quadrature_angle=angle)
     # the sideband summary is the linear engine's; not shown beside a master spectrum
     summary = sideband_summary(scenario) if args.engine == "linear" else []
     files = {}
@@ -318,8 +319,9 @@ def build_parser():
     p.add_argument("scenario", help="scenario TOML file")
     p.add_argument("--out", default=None, help="write the spectrum: .nc (NetCDF) or .csv")
     p.add_argument("--plot", default=None, help="write a figure: .png, .pdf or .svg")
-    p.add_argument("--angle-deg", type=float, default=90.0, help="homodyne quadrature angle "
-                   "from the intracavity amplitude quadrature (default: %(default)s, phase)")
+    p.add_argument("--angle-deg", type=float, default=None, help="homodyne quadrature angle "
+                   "from the intracavity amplitude quadrature (default: the scenario's "
+                   "detection.quadrature_angle_rad)")
     p.add_argument("--engine", choices=("linear", "master"), default="linear",
                    help="linear state-space model (default) or the master equation "
                    "(QuTiP; heterodyne only, small occupations)")

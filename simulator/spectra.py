@@ -254,12 +254,15 @@ def homodyne_spectrum(scenario, frequency_hz=None, *, quadrature_angle=np.pi / 2
                     provenance=_provenance(scenario, "homodyne", eta, theta))
 
 
-def measured_spectrum(scenario, *, frequency_hz=None, quadrature_angle=np.pi / 2):
+def measured_spectrum(scenario, *, frequency_hz=None, quadrature_angle=None):
     """The spectrum of the scenario's own detection scheme (heterodyne or homodyne).
 
     The one call the command line makes; see :func:`heterodyne_spectrum` and
-    :func:`homodyne_spectrum`.
+    :func:`homodyne_spectrum`. The homodyne quadrature angle defaults to the
+    scenario's ``detection.quadrature_angle_rad``, as in its records.
     """
+    if quadrature_angle is None:
+        quadrature_angle = scenario.detection.quadrature_angle_rad
     if scenario.detection.scheme == "homodyne":
         return homodyne_spectrum(scenario, frequency_hz, quadrature_angle=quadrature_angle)
     return heterodyne_spectrum(scenario, frequency_hz)

@@ -14,21 +14,13 @@ from simulator.errors import InputError
 
 
 def record_psd(record, resolution_hz):
-    """Averaged periodogram of a public IQ record, corrected for integrate-and-dump.
-
-    Each sample is the average of the signal over one sample interval, which
-    multiplies the spectrum by sinc²(f/fs); it is divided out here (the
-    sampling scheme is public, part of the chain's description).
-    """
+    """Bartlett periodogram (boxcar window) of a public IQ record, in its own units."""
     if record.kind != "iq":
         raise InputError(f"record kind {record.kind!r}: the sideband thermometry needs an "
                          "IQ (complex heterodyne) record")
     fs = record.sample_rate_hz
     segment = int(2 ** np.ceil(np.log2(fs / resolution_hz)))
-    psd = averaged_periodogram(record.samples, fs, segment_samples=segment, window="boxcar")
-    import dataclasses
-
-    return dataclasses.replace(psd, density=psd.density / np.sinc(psd.frequency_hz / fs) ** 2)
+    return averaged_periodogram(record.samples, fs, segment_samples=segment, window="boxcar")
 
 
 def sideband_thermometry(record, mode=0):
@@ -44,7 +36,8 @@ def sideband_thermometry(record, mode=0):
     a_minus = g**2 * k / (k**2 / 4 + (cal.detuning_hz + cal.mechanical_frequency_hz) ** 2)
     width = cal.mechanical_linewidth_hz + a_minus - cal.stokes_rate_hz()
     psd = record_psd(record, resolution_hz=abs(width) / 8)
-    result = measure_occupation(psd, cal)
+    # integrate-and-dump samples: the model carries the sinc², the data stay as they are
+    result = measure_occupation(psd, cal, sample_rate_hz=record.sample_rate_hz)
     out = {f"occupation:{key}": value for key, value in (
         ("asymmetry", (result.occupation_asymmetry, result.occupation_asymmetry_error)),
         ("anti_stokes_area", (result.occupation_anti_stokes_area,

@@ -51,6 +51,7 @@ class Calibration:
     @classmethod
     def from_scenario(cls, scenario, mode=0):
         """Nominal calibration from a scenario (its operating point), not the truth."""
+        from simulator.chain import detection_chain
         from simulator.operating_point import operating_point
 
         point = operating_point(scenario)
@@ -58,7 +59,7 @@ class Calibration:
         return cls(cavity_linewidth_hz=point.cavity_linewidth_hz,
                    external_linewidth_hz=point.external_linewidth_hz,
                    detuning_hz=point.detuning_effective_hz,
-                   efficiency=scenario.detection.efficiency,
+                   efficiency=detection_chain(scenario, point).efficiency,
                    coupling_rate_hz=mp.coupling_rate_hz,
                    mechanical_frequency_hz=mp.frequency_hz,
                    mechanical_linewidth_hz=mp.linewidth_hz,
@@ -81,13 +82,20 @@ def cavity_filter(frequency_hz, cavity_linewidth_hz, detuning_hz):
     return half**2 / (half**2 + (np.asarray(frequency_hz) + detuning_hz) ** 2)
 
 
-def sideband_model(cal):
-    """Model S(ν; b, Ω, γ, c_S, c_AS) for :func:`fit_whittle` (see module notes)."""
+def sideband_model(cal, sample_rate_hz=None):
+    """Model S(ν; b, Ω, γ, c_S, c_AS) for :func:`fit_whittle` (see module notes).
+
+    With ``sample_rate_hz`` the sideband terms carry the sinc²(ν/fs) of
+    integrate-and-dump sampling; the white floor does not (its aliases sum
+    to a constant: Σ_k sinc²(x + k) = 1).
+    """
 
     def model(f, theta):
         floor, centre, width, c_s, c_as = theta
         lor = lambda x: (width / (2 * np.pi)) / (x**2 + width**2 / 4)  # noqa: E731
         filt = cavity_filter(f, cal.cavity_linewidth_hz, cal.detuning_hz)
+        if sample_rate_hz:
+            filt = filt * np.sinc(f / sample_rate_hz) ** 2
         return floor + filt * (c_s * lor(f + centre) + c_as * lor(f - centre))
 
     return model
@@ -121,7 +129,7 @@ class Thermometry:
         return out
 
 
-def measure_occupation(psd, cal, *, band_linewidths=40.0):
+def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None):
     """Fit the sidebands of one mode in a two-sided heterodyne PSD; estimate n.
 
     Parameters
@@ -133,6 +141,9 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0):
     band_linewidths : float
         Half-width of the fitted band around each sideband, in units of the
         expected effective linewidth (at least 20 frequency bins).
+    sample_rate_hz : float, optional
+        For a periodogram of integrate-and-dump samples: the sideband terms of
+        the model then carry sinc²(ν/fs) (the data are not altered).
 
     Returns
     -------
@@ -164,7 +175,7 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0):
     else:
         excess_as = max(excess_s - per_quantum, 1e-3 * per_quantum)
     initial = [floor0, omega, abs(width0), excess_s, excess_as]
-    model = sideband_model(cal)
+    model = sideband_model(cal, sample_rate_hz)
     fit = fit_whittle(model, f, p, psd.averages, initial, names=PARAMETERS,
                       lower=[0, 0.5 * omega, 0, 0, 0], upper=[np.inf, 1.5 * omega] + [np.inf] * 3)
     _, _, width, c_s, c_as = fit.values
