@@ -41,20 +41,25 @@ from simulator.errors import InputError
 ASYMMETRY_SIGNIFICANCE = 5.0
 
 
-def _spectrum_total(scenario, frequency_hz):
-    from simulator.spectra import heterodyne_spectrum, homodyne_spectrum
+def _record_chain(scenario):
+    """The detection chain of the scenario's record (iq for heterodyne)."""
+    from simulator.chain import detection_chain
 
-    if scenario.detection.scheme == "homodyne":
-        return homodyne_spectrum(scenario, frequency_hz).total
-    return heterodyne_spectrum(scenario, frequency_hz).total
+    return detection_chain(scenario)
+
+
+def _spectral_matrix(scenario, omega):
+    """Symmetrised spectral matrix of the record's output channels, chain included."""
+    return _record_chain(scenario).model.output_spectrum(omega)
 
 
 def _grid(scenario):
+    """Two-sided angular-frequency grid resolving every resonance of the record's model."""
+    from simulator.physics import angular
     from simulator.spectra import adaptive_grid, prepare
 
-    _, model = prepare(scenario)
-    return adaptive_grid(model, one_sided=scenario.detection.scheme == "homodyne",
-                         points_per_decade=64)
+    prepare(scenario)  # a clear error for an unstable operating point
+    return angular(adaptive_grid(_record_chain(scenario).model, points_per_decade=64))
 
 
 def _derivative(evaluate, scenario, path):
@@ -91,19 +96,36 @@ def fisher_matrix(scenario, paths, *, frequency_hz=None):
         Scenario parameter paths, e.g. ``["mechanics[0].bath_occupation",
         "mechanics[0].coupling_hz", "detection.efficiency"]``.
     frequency_hz : ndarray, optional
-        Integration grid; default the adaptive grid of the spectrum.
+        Two-sided integration grid (Hz); default the adaptive grid of the
+        record's model.
 
     Returns
     -------
     ndarray (k, k)
         In units of 1/(s · unit_i · unit_j).
+
+    Notes
+    -----
+    The record is the p output channels of the detection chain (I and Q for
+    heterodyne, one channel for homodyne), a real stationary Gaussian vector
+    process with symmetrised spectral matrix S(f), so
+
+        F_ij / T = ½ ∫ df tr[S⁻¹ ∂_i S S⁻¹ ∂_j S]     (f from −∞ to ∞),
+
+    (Whittle 1953). This includes everything the chain adds (amplifier
+    noise, electronic noise, filters, single-ended detection) and the
+    correlation of the two sidebands of a heterodyne record, which a
+    scalar formula over the complex I + iQ spectrum would miss.
     """
-    f = _grid(scenario) if frequency_hz is None else np.asarray(frequency_hz, float)
-    base = _spectrum_total(scenario, f)
-    logd = np.array([_derivative(lambda s: _spectrum_total(s, f), scenario, path) / base
-                     for path in paths])
-    integrand = logd[:, None, :] * logd[None, :, :]
-    return np.trapezoid(integrand, f, axis=-1)
+    from simulator.physics import angular
+
+    omega = _grid(scenario) if frequency_hz is None else angular(frequency_hz)
+    base = _spectral_matrix(scenario, omega)
+    derivs = np.array([np.linalg.solve(base, _derivative(
+        lambda s: _spectral_matrix(s, omega), scenario, path)) for path in paths])
+    # tr(X_i X_j) per frequency, X = S⁻¹ ∂S
+    integrand = np.einsum("iwab,jwba->ijw", derivs, derivs).real
+    return 0.5 * np.trapezoid(integrand, omega / (2 * np.pi), axis=-1)
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -122,11 +144,17 @@ class OccupationBound:
 
 
 def default_paths(scenario, mode=0):
-    """Bath (occupation or temperature), coupling, linewidth of the mode; efficiency."""
+    """Bath (occupation or temperature) and coupling of the mode; detection efficiency.
+
+    The intrinsic mechanical linewidth is taken as known (it is measured
+    separately, by ring-down, in common practice): in the spectrum it enters
+    almost only through Γm·n_th, so estimating it jointly with the bath makes
+    the information matrix nearly singular. Pass ``paths`` to choose others.
+    """
     m = scenario.mechanics[mode]
     bath = "bath_occupation" if m.bath_occupation is not None else "bath_temperature_k"
     return (f"mechanics[{mode}].{bath}", f"mechanics[{mode}].coupling_hz",
-            f"mechanics[{mode}].linewidth_hz", "detection.efficiency")
+            "detection.efficiency")
 
 
 def occupation_bound(scenario, mode=0, paths=None):
@@ -193,9 +221,8 @@ def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
     cal = Calibration.from_scenario(scenario, mode)
     state = steady_state(scenario).modes[mode]
     omega, width = state.effective_frequency_hz, state.effective_linewidth_hz
-    per_quantum = cal.area_per_quantum()
-    n = state.occupation
-    theta = np.array([1.0, omega, width, per_quantum * n, per_quantum])
+    theta = _lineshape_of_record(scenario, cal, omega, width)
+    per_quantum, n = theta[4], theta[3] / theta[4]
 
     def model(f, t):
         floor, centre, gamma, c_as, d = t
@@ -204,8 +231,8 @@ def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
         return floor + filt * ((c_as + d) * lor(f + centre) + c_as * lor(f - centre))
 
     df = width / 20.0
-    half = 200.0 * width
-    side = np.arange(-half, half + df / 2, df)
+    half = min(200.0 * width, omega)  # the two windows must not overlap
+    side = np.arange(-half, half, df)
     f = np.concatenate([-omega + side, omega + side])
     # (∂S/S)² per 1/T-wide bin, T·df bins per grid cell: per second, Σ (∂S/S)² df
     info = fisher_information(model, theta, f, 1) * df
@@ -218,3 +245,27 @@ def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
         occupation_error_one_second=float(np.sqrt(grad @ cov @ grad)),
         lineshape=dict(zip(("floor", "frequency_hz", "linewidth_hz", "anti_stokes_area",
                             "asymmetry_area"), map(float, theta), strict=True)))
+
+
+def _lineshape_of_record(scenario, cal, omega, width):
+    """Lineshape parameters (b, Ω, γ, c_AS, d) the reference fit finds in the record.
+
+    The reference model is fitted, noise-free, to the exact spectrum of the
+    iq record the scenario's chain delivers (shot-noise units, amplifier and
+    electronic noise included), so the floor and the sideband areas are those
+    of the actual record, not of an ideal detector.
+    """
+    from simulator.analysis.psd import PSDEstimate
+    from simulator.analysis.thermometry import measure_occupation
+
+    iq = scenario if scenario.record.kind in (None, "iq") else scenario.replace(
+        "record.kind", "iq")
+    df = width / 20.0
+    side = np.arange(-40.0 * width, 40.0 * width, df)
+    f = np.concatenate([-omega + side, omega + side])
+    exact = _record_chain(iq).record_spectrum(f)
+    psd = PSDEstimate(frequency_hz=f, density=exact, averages=10**9, sided="two-sided",
+                      resolution_hz=df, noise_bandwidth_hz=df, window="boxcar")
+    fit = measure_occupation(psd, cal).fit
+    floor, centre, gamma, c_s, c_as = fit.values
+    return np.array([floor, centre, gamma, c_as, c_s - c_as])
