@@ -50,6 +50,10 @@ def cmd_check(args):
     from simulator.scenario import load_scenario
 
     scenario = load_scenario(args.scenario)
+    if scenario.sweep is not None:
+        from simulator.sweep import sweep_axes, sweep_points
+
+        sweep_points(scenario, sweep_axes(scenario))  # every swept value, and the size
     modes = ", ".join(m.name for m in scenario.mechanics)
     print(f"{args.scenario}: valid scenario {scenario.scenario.name!r} "
           f"({len(scenario.mechanics)} mechanical mode(s): {modes})")
@@ -81,6 +85,8 @@ def cmd_inspect(args):
 
 def cmd_sweep(args):
     """``noisechain sweep``: run the scenario's parameter sweep."""
+    _require_output_folder(args.out)
+    _require_workers(args)
     from simulator.scenario import load_scenario
     from simulator.sweep import run_sweep
 
@@ -101,9 +107,36 @@ def cmd_sweep(args):
 
 
 def _require_suffix(path, allowed, option):
-    if path is not None and Path(path).suffix.lower() not in allowed:
+    """Refuse an output file with the wrong extension, or in a folder that cannot take it."""
+    if path is None:
+        return
+    if Path(path).suffix.lower() not in allowed:
         raise InputError(f"{option} {path!r} has extension {Path(path).suffix!r}; expected "
                          f"one of {', '.join(allowed)}")
+    _require_writable_folder(Path(path).parent or Path("."), option, path)
+
+
+def _require_writable_folder(folder, option, path):
+    folder = Path(folder) if str(folder) else Path(".")
+    if not folder.is_dir() or not os.access(folder, os.W_OK | os.X_OK):
+        raise InputError(f"{option} {str(path)!r}: folder {str(folder)!r} does not exist or "
+                         "is not writable; expected an existing, writable folder")
+
+
+def _require_output_folder(path, option="--out"):
+    """Refuse an output folder that cannot be created or written, before any work."""
+    target = Path(path)
+    if target.exists() and not target.is_dir():
+        raise InputError(f"{option} {path!r} is a file; expected a folder (new or existing)")
+    parent = target if target.exists() else target.parent
+    _require_writable_folder(parent, option, path)
+
+
+def _require_workers(args):
+    workers = getattr(args, "workers", None)
+    if workers is not None and workers < 1:
+        raise InputError(f"--workers {workers}: expected a positive number of worker "
+                         "processes")
 
 
 def cmd_spectrum(args):
@@ -212,6 +245,8 @@ def cmd_record(args):
 
 def cmd_trial(args):
     """``noisechain trial``: an estimator on many records, against the truth."""
+    _require_output_folder(args.out)
+    _require_workers(args)
     from simulator.scenario import load_scenario
     from simulator.trial import run_trials
 
@@ -223,6 +258,8 @@ def cmd_trial(args):
         return EXIT_OK
     print(f"{result.dataset.sizes['trial']} trials of {args.estimator}; "
           f"{len(result.errors)} failed; results in {result.out.resolve()}")
+    if result.errors:
+        print(f"  first failure (trial {result.errors[0][0]}): {result.errors[0][1]}")
     for q in result.quantities:
         truth = "no truth" if q.truth is None else f"truth {q.truth:.6g}"
         line = f"  {q.name}: mean {q.mean:.6g} ({truth}), spread {q.spread:.3g}"
@@ -232,6 +269,10 @@ def cmd_trial(args):
         print(line)
         print(f"      {q.verdict}")
     print(f"open {result.out / 'report.html'} for histograms and pulls")
+    if len(result.errors) == result.dataset.sizes["trial"]:
+        print("noisechain trial: every trial failed; see the first failure above",
+              file=sys.stderr)
+        return EXIT_FAILED
     return EXIT_OK
 
 
@@ -249,6 +290,8 @@ def _print_run(result, args):
 
 def cmd_run(args):
     """``noisechain run``: everything the scenario asks for, into a folder with a report."""
+    _require_output_folder(args.out)
+    _require_workers(args)
     from simulator.run import run_scenario
     from simulator.scenario import load_scenario
 
@@ -260,6 +303,8 @@ def cmd_run(args):
 
 def cmd_demo(args):
     """``noisechain demo``: run the bundled demo scenario into a folder."""
+    _require_output_folder(args.out)
+    _require_workers(args)
     from simulator.demo import demo_scenario
     from simulator.run import run_scenario
 
@@ -285,7 +330,9 @@ def build_parser():
     parser = argparse.ArgumentParser(
         prog="noisechain",
         description="Quantum-noise simulator of the optomechanical displacement-"
-                    "measurement chain: operating point, linear model, steady state.")
+                    "measurement chain: operating point and steady state, analytic "
+                    "spectra, synthetic records with their ground truth, sweeps, and "
+                    "validation of your own estimators.")
     from simulator import __version__
 
     parser.add_argument("--version", action="version", version=f"noisechain {__version__}")
@@ -395,10 +442,19 @@ def main(argv=None):
     except NoisechainError as exc:
         print(f"noisechain {args.verb}: {exc}", file=sys.stderr)
         return EXIT_FAILED
+    except OSError as exc:  # a path that cannot be read or written
+        where = exc.filename if exc.filename else "a file"
+        print(f"noisechain {args.verb}: error: cannot use {where}: "
+              f"{exc.strerror or exc}; check the path and its permissions",
+              file=sys.stderr)
+        return EXIT_INPUT
 
 
 def entry_point():
     """Console-script entry: run :func:`main` and exit with its status."""
+    from simulator import interrupt
+
+    interrupt.install()
     try:
         status = main()
         sys.stdout.flush()

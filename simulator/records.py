@@ -281,7 +281,7 @@ def generate(plan, sink, *, chunk, progress=False):
     """Run the recursion of ``plan`` chunk by chunk into ``sink``; return the clipped count."""
     from tqdm import tqdm
 
-    from simulator import kernels
+    from simulator import interrupt, kernels
     from simulator.calibration_tone import tone_signal
 
     chain, n_total = plan.chain, plan.n_samples
@@ -310,6 +310,7 @@ def generate(plan, sink, *, chunk, progress=False):
             clipped += n_clip
             sink.write(first, counts, mech if plan.watched.size else None)
             bar.update(count)
+            interrupt.check()  # a Ctrl-C swallowed inside a library callback still stops
     return clipped
 
 

@@ -29,11 +29,15 @@ class RunResult:
 
 def run_scenario(scenario, out, *, workers=None, dask=None, progress=True):
     """Run everything ``scenario`` asks for into folder ``out``; see the module notes."""
+    from simulator import tasks
     from simulator.cli import _clean
     from simulator.inspection import inspect_scenario
 
     out = Path(out)
-    out.mkdir(parents=True, exist_ok=True)
+    text = scenario.to_toml()
+    # refuse a folder that holds another scenario's run before writing anything
+    tasks.prepare_folder(out, "run.json", {"format": "noisechain-run", "format_version": 1,
+                                           "sha256": tasks.digest(text)}, "run")
     files, sections, figures = [], [], []
 
     def wrote(path):
@@ -48,7 +52,19 @@ def run_scenario(scenario, out, *, workers=None, dask=None, progress=True):
     atomic_write_text(wrote(out / "inspect.txt"), inspection.to_text() + "\n")
     sections.append(("Scenario", html.preformatted(scenario.to_toml())))
     sections.append(("Derived quantities", _derived_table(data)))
-    sections.append(("Regime warnings", html.warnings_block(data["warnings"])))
+    regime = data.get("regime")
+    notes = list(data["warnings"])
+    if regime is not None and regime.get("level") != "linear":
+        notes.insert(0, f"regime verdict: {regime['level']} — {regime['reason']}")
+    sections.append(("Regime warnings", html.warnings_block(notes)))
+    if data.get("feasibility"):
+        rows = [[f["mode"], f["occupation_error_1s"],
+                 "—" if f["asymmetry_time_s"] is None else f["asymmetry_time_s"]]
+                for f in data["feasibility"]]
+        sections.append(("Feasibility (Cramér–Rao, Whittle)", html.table(
+            rows, header=["mode", "occupation error after 1 s",
+                          f"time to resolve the asymmetry at "
+                          f"{data['feasibility'][0]['significance']:g}σ (s)"])))
 
     if inspection.stability.stable:
         sections.append(("Sideband summary", _spectrum_part(scenario, out, wrote, figures)))
@@ -184,7 +200,8 @@ def _plot_record_spectrum(scenario, record, path):
     axis = ("offset from the drive (> 0: anti-Stokes)" if record.kind == "iq"
             else "frequency")
     ax.set_xlabel(f"{axis} ({unit})")
-    ax.set_ylabel(f"{psd.sided} density\n(shot-noise units per Hz)")
+    floor = "1" if psd.sided == "two-sided" else "2 (one-sided)"
+    ax.set_ylabel(f"{psd.sided} density, record units²/Hz\n(vacuum floor {floor})")
     ax.set_title(f"{scenario.scenario.name}: synthetic record against the model")
     ax.legend(fontsize=8)
     ax.grid(alpha=0.3)

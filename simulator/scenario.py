@@ -249,7 +249,7 @@ def load_scenario(path):
                             source=str(path)) from None
     except (OSError, UnicodeDecodeError) as exc:
         raise ScenarioError(f"cannot read the file ({exc})", source=str(path)) from None
-    return parse_scenario(text, source=str(path))
+    return parse_scenario(text.removeprefix("\ufeff"), source=str(path))  # byte-order mark
 
 
 def parse_scenario(text, *, source="<string>"):

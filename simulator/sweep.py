@@ -14,6 +14,7 @@ result is one :class:`xarray.Dataset` with a dimension per swept parameter
 import dataclasses
 import functools
 import itertools
+import math
 import os
 import re
 from pathlib import Path
@@ -22,7 +23,7 @@ import numpy as np
 
 from simulator import tasks
 from simulator.errors import ScenarioError
-from simulator.sweep_spec import axis_numbers
+from simulator.sweep_spec import MAX_POINTS, axis_numbers
 
 FORMAT = "noisechain-sweep"
 FORMAT_VERSION = 1
@@ -62,6 +63,7 @@ class Axis:
     numbers: tuple  # as written in the scenario (in units of ``unit`` if given)
     values: tuple  # what is set at the path
     unit: str  # path of the unit parameter, or ""
+    log: bool = False  # logarithmically spaced range
 
     @property
     def name(self):
@@ -96,7 +98,9 @@ def sweep_axes(scenario):
                 raise ScenarioError(f"swept value {v!r} is invalid: {exc.detail}",
                                     source=scenario.source,
                                     key=f'sweep.parameters."{path}"') from None
-        axes.append(Axis(path=path, numbers=tuple(numbers), values=tuple(values), unit=unit))
+        log = not isinstance(spec, tuple) and bool(spec.get("log", False))
+        axes.append(Axis(path=path, numbers=tuple(numbers), values=tuple(values), unit=unit,
+                         log=log))
     return tuple(axes)
 
 
@@ -106,6 +110,11 @@ def sweep_points(scenario, axes=None):
     For ``combine = "zip"`` the index has one entry, the point number.
     """
     axes = sweep_axes(scenario) if axes is None else axes
+    total = math.prod(len(a.values) for a in axes)
+    if scenario.sweep.combine == "grid" and total > MAX_POINTS:
+        raise ScenarioError(f"the grid has {total} points; expected at most {MAX_POINTS} "
+                            "(split the sweep or use combine = \"zip\")",
+                            source=scenario.source, key="sweep.parameters")
     if scenario.sweep.combine == "zip":
         return [((i,), tuple((a.path, a.values[i]) for a in axes))
                 for i in range(len(axes[0].values))]
@@ -318,10 +327,10 @@ def assemble(scenario, axes, points, results):
     for a in axes:
         if a.unit:
             values = np.asarray(a.values)
-            if scenario.sweep.combine == "grid":
-                variables[f"{a.name}_value"] = (a.name, values, {"path": a.path})
-            else:
-                variables[f"{a.name}_value"] = ("point", values, {"path": a.path})
+            attrs = {"path": a.path, "units": _axis_attrs(
+                dataclasses.replace(a, unit=""))["units"]}
+            dim = a.name if scenario.sweep.combine == "grid" else "point"
+            variables[f"{a.name}_value"] = (dim, values, attrs)
     attrs = {"format": FORMAT, "format_version": FORMAT_VERSION,
              "scenario_toml": scenario.to_toml(), "combine": scenario.sweep.combine,
              "software_version": __version__, "scenario_name": scenario.scenario.name}
@@ -329,7 +338,7 @@ def assemble(scenario, axes, points, results):
 
 
 def _axis_attrs(axis):
-    attrs = {"path": axis.path}
+    attrs = {"path": axis.path, "spacing": "log" if axis.log else "linear"}
     if axis.unit:
         attrs["units"] = f"in units of {axis.unit}"
     else:

@@ -66,6 +66,7 @@ def plot_occupation(dataset, path):
             for m, name in enumerate(dataset["mode"].values):
                 axr.plot(x, dataset["sideband_ratio"].values[:, m], "-", label=name)
             axr.set_ylabel("sideband ratio anti-Stokes/Stokes")
+            axr.ticklabel_format(axis="y", useOffset=False)
             _shade_unstable(axr, x, dataset["stable"].values)
             axr.grid(alpha=0.3)
             axr.legend(fontsize=8)
@@ -78,6 +79,8 @@ def plot_occupation(dataset, path):
             axt.grid(alpha=0.3, which="both")
             axt.legend(fontsize=8)
         axes[-1, 0].set_xlabel(_axis_label(dataset, dim))
+        if dataset[dim].attrs.get("spacing") == "log":
+            axes[-1, 0].set_xscale("log")
         fig.suptitle(f"{dataset.attrs.get('scenario_name', '')}: occupation along the sweep")
     else:
         sub, note = _reduce(dataset, dims[:2])
@@ -92,11 +95,20 @@ def plot_occupation(dataset, path):
         fig.colorbar(mesh, ax=ax, label=f"occupation of {dataset['mode'].values[0]}")
         ax.set_xlabel(_axis_label(dataset, dims[0]))
         ax.set_ylabel(_axis_label(dataset, dims[1]))
+        _log_axes(ax, dataset, dims)
         ax.set_title("occupation (blank: unstable)" + (f"; {note}" if note else ""))
     fig.tight_layout()
     fig.savefig(path, dpi=120)
     plt.close(fig)
     return path
+
+
+def _log_axes(ax, dataset, dims):
+    """Logarithmic axes for parameters swept on a logarithmic range."""
+    if dataset[dims[0]].attrs.get("spacing") == "log":
+        ax.set_xscale("log")
+    if dataset[dims[1]].attrs.get("spacing") == "log":
+        ax.set_yscale("log")
 
 
 def _shade_unstable(ax, x, stable):
@@ -141,6 +153,7 @@ def plot_stability(dataset, path):
                       vmax=2, shading="nearest")
         ax.set_xlabel(_axis_label(dataset, dims[0]))
         ax.set_ylabel(_axis_label(dataset, dims[1]))
+        _log_axes(ax, dataset, dims)
         if note:
             ax.set_title(note)
     from matplotlib.patches import Patch

@@ -24,6 +24,7 @@ from simulator.errors import ScenarioError
 from simulator.schema import param
 
 RANGE_KEYS = ("start", "stop", "num", "log", "unit")
+MAX_POINTS = 1_000_000  # points in one sweep (a larger grid is almost surely a typo)
 
 
 def _range_problem(spec):
@@ -39,8 +40,8 @@ def _range_problem(spec):
         if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
             return f"range {k} = {v!r} is not a finite number"
     num = spec["num"]
-    if isinstance(num, bool) or not isinstance(num, int) or num < 1:
-        return f"range num = {num!r}; expected a positive integer"
+    if isinstance(num, bool) or not isinstance(num, int) or not 1 <= num <= MAX_POINTS:
+        return f"range num = {num!r}; expected an integer from 1 to {MAX_POINTS}"
     if not isinstance(spec.get("log", False), bool):
         return f"range log = {spec['log']!r}; expected true or false"
     if spec.get("log") and (spec["start"] <= 0 or spec["stop"] <= 0):

@@ -34,6 +34,7 @@ from simulator.errors import InputError
 FORMAT = "noisechain-trial"
 FORMAT_VERSION = 1
 ONE_SIGMA, TWO_SIGMA = 0.682689492137, 0.954499736104  # Gaussian interval contents
+MIN_TRIALS_FOR_VERDICT = 10  # fewer: statistics are reported, no verdict
 
 
 @dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
@@ -103,6 +104,17 @@ def load_estimator(spec):
     return func
 
 
+def _estimator_source_digest(spec):
+    """Digest of the file that defines the estimator (empty if it has no file)."""
+    func = load_estimator(spec)
+    module = sys.modules.get(getattr(func, "__module__", ""), None)
+    path = getattr(module, "__file__", None)
+    try:
+        return tasks.digest(Path(path).read_text(encoding="utf-8")) if path else ""
+    except OSError:
+        return ""
+
+
 def trial_seeds(scenario, n):
     """Independent record seeds for trials 0..n−1 (the first k never change with n)."""
     children = np.random.SeedSequence(scenario.scenario.seed).spawn(n)
@@ -123,13 +135,21 @@ def _trial_task(common, seed):
             warnings.simplefilter("always")
             record = simulate_record(scenario, seed=seed, duration_s=duration)
         estimates = load_estimator(spec)(public_view(record))
+        if not isinstance(estimates, dict) or not estimates:
+            raise TypeError(f"the estimator returned {type(estimates).__name__} "
+                            f"{str(estimates)[:80]!r}; expected a non-empty dict "
+                            "{name: (value, uncertainty)}")
         out = {}
-        for name, pair in dict(estimates).items():
+        for name, pair in estimates.items():
+            if (not isinstance(pair, (tuple, list)) or len(pair) != 2
+                    or not all(isinstance(x, (int, float, np.number)) for x in pair)):
+                raise TypeError(f"estimate {name!r} is {pair!r}; expected a pair of numbers "
+                                "(value, uncertainty)")
             value, error = pair
             out[str(name)] = [float(value), float(error)]
         return {"estimates": out, "error": "",
                 "warnings": [str(w.message) for w in caught]}
-    except Exception as exc:  # noqa: BLE001 - one failing trial must not stop the rest
+    except (Exception, SystemExit) as exc:  # noqa: BLE001 - user code: one trial fails, not the run
         return {"estimates": {}, "error": f"{type(exc).__name__}: {exc}", "warnings": []}
 
 
@@ -187,18 +207,23 @@ def summarise(name, estimates, uncertainties, truth, failures):
     n = estimates.size
     mean = float(estimates.mean()) if n else math.nan
     spread = float(estimates.std(ddof=1)) if n > 1 else math.nan
-    if truth is None or n < 2:
+    if truth is None or n < MIN_TRIALS_FOR_VERDICT:
         return QuantityReport(name=name, truth=truth, trials=n, failures=failures, mean=mean,
                               spread=spread, bias=None, bias_error=None, rmse=None,
                               pull_mean=None, pull_width=None, coverage_1sigma=None,
                               coverage_2sigma=None, verdict="no truth to compare with"
-                              if truth is None else "too few trials")
+                              if truth is None else f"too few trials for a verdict "
+                              f"({n} < {MIN_TRIALS_FOR_VERDICT})")
     bias = mean - truth
     bias_error = spread / math.sqrt(n)
     pulls = (estimates - truth) / uncertainties
     width = float(pulls.std(ddof=1))
     verdict = []
-    if abs(bias) > 3 * bias_error:
+    if bias_error == 0:  # identical estimates: any bias is exact
+        if bias != 0:
+            verdict.append(f"BIASED: every trial returned {mean:.6g} against the truth "
+                           f"{truth:.6g}")
+    elif abs(bias) > 3 * bias_error:
         verdict.append(f"BIASED: bias {bias:.4g} is {abs(bias) / bias_error:.1f} standard "
                        "errors from zero")
     tolerance = 3 / math.sqrt(2 * (n - 1))  # 3 standard errors of a standard deviation
@@ -227,7 +252,7 @@ class TrialResult:
 
     def to_dict(self):
         """Plain data for JSON."""
-        return {"out": str(self.out), "trials": int(self.dataset.sizes["trial"]),
+        return {"out": str(self.out.resolve()), "trials": int(self.dataset.sizes["trial"]),
                 "failed_trials": len(self.errors),
                 "quantities": [q.to_dict() for q in self.quantities],
                 "errors": [list(e) for e in self.errors[:20]]}
@@ -262,7 +287,10 @@ def run_trials(scenario, estimator, n_trials, out, *, duration_s=None, workers=N
     text = scenario.to_toml()
     table = truth_table(scenario)
     duration = scenario.record.duration_s if duration_s is None else float(duration_s)
-    identity = f"{text}\n{estimator}\n{duration!r}"
+    if not (math.isfinite(duration) and duration > 0):
+        raise InputError(f"--duration {duration_s!r}: expected a positive number of seconds")
+    # the estimator's code is part of the identity: edited code never reuses old results
+    identity = f"{text}\n{estimator}\n{duration!r}\n{_estimator_source_digest(estimator)}"
     tasks.prepare_folder(out, "trial.json", {
         "format": FORMAT, "format_version": FORMAT_VERSION, "sha256": tasks.digest(identity),
         "scenario_toml": text, "estimator": estimator, "duration_s": duration}, "trial")

@@ -6,9 +6,9 @@ from simulator.analysis.reference import sideband_thermometry
 
 
 def biased_thermometry(record):
-    """The reference asymmetry estimate inflated by 30 %: the harness must flag it."""
+    """The reference asymmetry estimate doubled: the harness must flag it."""
     value, error = sideband_thermometry(record)["occupation:asymmetry"]
-    return {"occupation:inflated": (1.3 * value, 1.3 * error)}
+    return {"occupation:inflated": (2.0 * value, 2.0 * error)}
 
 
 def shot_noise_level(record):

@@ -248,24 +248,36 @@ def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
 
 
 def _lineshape_of_record(scenario, cal, omega, width):
-    """Lineshape parameters (b, Ω, γ, c_AS, d) the reference fit finds in the record.
+    """Lineshape parameters (b, Ω, γ, c_AS, d) of the scenario's own record.
 
-    The reference model is fitted, noise-free, to the exact spectrum of the
-    iq record the scenario's chain delivers (shot-noise units, amplifier and
-    electronic noise included), so the floor and the sideband areas are those
-    of the actual record, not of an ideal detector.
+    Ω, γ and the occupation n are the exact ones; in weak coupling the
+    cavity-corrected areas are c_AS = c·n and c_S = c·(n + 1) with c the area
+    per quantum, so d = c. The floor b and the scale of c are read from the
+    exact spectrum of the iq record the scenario's chain delivers (amplifier
+    and electronic noise raise b; single-ended detection and filters lower
+    c), by comparing it with the ideal heterodyne spectrum at the anti-Stokes
+    peak.
     """
-    from simulator.analysis.psd import PSDEstimate
-    from simulator.analysis.thermometry import measure_occupation
+    from simulator.spectra import heterodyne_spectrum
+    from simulator.steady_state import steady_state
 
     iq = scenario if scenario.record.kind in (None, "iq") else scenario.replace(
         "record.kind", "iq")
-    df = width / 20.0
-    side = np.arange(-40.0 * width, 40.0 * width, df)
-    f = np.concatenate([-omega + side, omega + side])
-    exact = _record_chain(iq).record_spectrum(f)
-    psd = PSDEstimate(frequency_hz=f, density=exact, averages=10**9, sided="two-sided",
-                      resolution_hz=df, noise_bandwidth_hz=df, window="boxcar")
-    fit = measure_occupation(psd, cal).fit
-    floor, centre, gamma, c_s, c_as = fit.values
-    return np.array([floor, centre, gamma, c_as, c_s - c_as])
+    chain = _record_chain(iq)
+    # the record's axis is the optical offset (anti-Stokes at +f)
+    away = np.array([omega + 30 * width, -omega - 30 * width])
+    floor = float(np.mean(chain.record_spectrum(away)))
+    peak = np.array([omega])
+    ideal = heterodyne_spectrum(scenario, np.concatenate([peak, away]),
+                                efficiency=cal.efficiency).total
+    gain = float((chain.record_spectrum(peak)[0] - floor) / (ideal[0] - np.mean(ideal[1:])))
+    n = steady_state(scenario).modes[_mode_index(scenario, omega)].occupation
+    c = cal.area_per_quantum() * gain
+    return np.array([floor, omega, width, c * n, c])
+
+
+def _mode_index(scenario, omega):
+    from simulator.steady_state import steady_state
+
+    freqs = [m.effective_frequency_hz for m in steady_state(scenario).modes]
+    return int(np.argmin(np.abs(np.array(freqs) - omega)))

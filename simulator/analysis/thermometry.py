@@ -180,12 +180,22 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None):
                       lower=[0, 0.5 * omega, 0, 0, 0], upper=[np.inf, 1.5 * omega] + [np.inf] * 3)
     _, _, width, c_s, c_as = fit.values
     cov = fit.covariance
-    r = c_as / c_s
-    n_asym = r / (1 - r)
-    # ∂n/∂c_AS = c_S/(c_S − c_AS)², ∂n/∂c_S = −c_AS/(c_S − c_AS)²
-    grad = np.array([0, 0, 0, -c_as, c_s]) / (c_s - c_as) ** 2
-    err_asym = float(np.sqrt(max(grad @ cov @ grad, 0)))
-    errors = fit.errors
+    errors = fit.errors.copy()
+    nan = float("nan")
+    # an area pinned at its bound (0) is not an estimate: the record does not
+    # resolve that sideband, so everything built on it is reported as missing
+    if c_s <= 0 or c_as <= 0 or c_s == c_as:
+        n_asym = err_asym = nan
+    else:
+        r = c_as / c_s
+        n_asym = r / (1 - r)
+        # ∂n/∂c_AS = c_S/(c_S − c_AS)², ∂n/∂c_S = −c_AS/(c_S − c_AS)²
+        grad = np.array([0, 0, 0, -c_as, c_s]) / (c_s - c_as) ** 2
+        err_asym = float(np.sqrt(max(grad @ cov @ grad, 0)))
+    if c_s <= 0:
+        errors[3] = nan
+    if c_as <= 0:
+        errors[4] = nan
     n_damp = (cal.mechanical_linewidth_hz * cal.bath_occupation + cal.stokes_rate_hz()) / width
     return Thermometry(
         occupation_asymmetry=float(n_asym), occupation_asymmetry_error=err_asym,
