@@ -80,6 +80,9 @@ def cmd_inspect(args):
             from simulator.master.report import comparison_text
 
             print("\n" + comparison_text(master))
+        elif args.master:
+            print("\nmaster equation: not run, the operating point is unstable (no "
+                  "steady state to compare)")
     return EXIT_OK if report.stability.stable else EXIT_UNSTABLE
 
 

@@ -161,6 +161,12 @@ def inspect_scenario(scenario, *, feasibility=True):
             "the intracavity photon number is bistable (branches "
             + ", ".join(f"{b:.4g}" for b in point.branches)
             + f"); using the {point.branch} branch, set drive.bistable_branch to choose")
+    for mode in scenario.mechanics:
+        if mode.linewidth_hz > 0.1 * mode.frequency_hz:
+            warnings.append(
+                f"mode {mode.name}: linewidth {mode.linewidth_hz:.4g} Hz is more than a tenth "
+                f"of its frequency {mode.frequency_hz:.4g} Hz; the symmetric damping model "
+                "assumes a high quality factor and is not accurate here")
     steady = steady_state(scenario, model=model, point=point) if verdict.stable else None
     if steady is not None:
         for ms in steady.modes:

@@ -23,9 +23,9 @@ def _figure(dataset, q, truth, path):
     ax.hist(est[ok], bins=max(8, int(np.sqrt(ok.sum()))), color="tab:blue", alpha=0.75,
             label="estimates")
     if truth is not None:
-        ax.axvline(truth, color="k", lw=2, label=f"truth {truth:.4g}")
+        ax.axvline(truth, color="k", lw=2, label=f"truth {truth:.7g}")
     ax.axvline(np.mean(est[ok]), color="tab:orange", ls="--",
-               label=f"mean {np.mean(est[ok]):.4g}")
+               label=f"mean {np.mean(est[ok]):.7g}")
     ax.set_xlabel(q)
     ax.set_ylabel("trials")
     ax.legend(fontsize=8)
