@@ -289,7 +289,8 @@ def imprecision_backaction(scenario, frequency_hz, mode=0, *, quadrature_angle=n
     k = backaction_force_gain(model, point, j, f)
     direct = np.einsum("wi,ij,wj->w", h0, model.N, h0.conj()).real
     backaction = np.einsum("wi,ij,wj->w", k, model.N, k.conj()).real
-    with np.errstate(divide="ignore", invalid="ignore"):
+    # a quadrature blind to the motion has zero gain: infinite imprecision, not an error
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         imprecision = (eta * direct + (1.0 - eta) / 2.0) / (eta * np.abs(g) ** 2)
         correlation = np.einsum("wi,ij,wj->w", h0, model.N, k.conj()) / g
     return MeasurementNoise(frequency_hz=f, imprecision=imprecision, backaction=backaction,
