@@ -30,7 +30,7 @@ class RunResult:
 def run_scenario(scenario, out, *, workers=None, dask=None, progress=True):
     """Run everything ``scenario`` asks for into folder ``out``; see the module notes."""
     from simulator import tasks
-    from simulator.cli import _clean
+    from simulator.commands import _clean
     from simulator.inspection import inspect_scenario
 
     out = Path(out)
