@@ -9,6 +9,7 @@ between them.
 import numpy as np
 
 from simulator.laser_noise import vacuum_intensity
+from simulator.statespace import Resolvent
 
 FLOOR = "shot noise (vacuum floor)"
 CHUNK = 1 << 14
@@ -61,26 +62,6 @@ def budget_pieces(paths, w, groups):
         pieces[f"{name_a} × {name_b} correlation"] = 2.0 * quadratic(
             h[:, ia], model.N[np.ix_(ia, ib)], h[:, ib])
     return h, pieces
-
-
-class Resolvent:
-    """(−iω − a)⁻¹ for many ω: eigendecomposition, or batched solves near an exceptional point."""
-
-    def __init__(self, a):
-        self.a = a
-        self.lam, self.vec = np.linalg.eig(a)
-        self.well_conditioned = np.linalg.cond(self.vec) < 1e8
-        self.inv = np.linalg.inv(self.vec) if self.well_conditioned else None
-
-    def factor(self, w):
-        """1/(−iω − λ) for every ω (rows) and eigenvalue λ (columns)."""
-        return 1.0 / (-1j * w[:, None] - self.lam[None, :])
-
-    def solve_rows(self, left, w):
-        """left·(−iω − a)⁻¹ per ω by batched solves; ``left`` (n,) or (len(w), n)."""
-        left = np.broadcast_to(left, (w.size, self.a.shape[0]))
-        m = np.swapaxes(-1j * w[:, None, None] * np.eye(self.a.shape[0]) - self.a, 1, 2)
-        return np.linalg.solve(m, left[..., None])[..., 0]
 
 
 class Paths:

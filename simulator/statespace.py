@@ -120,22 +120,17 @@ class StateSpace:
         """
         omega = np.asarray(omega, dtype=float)
         flat = omega.reshape(-1)
-        a = self.A - self.coupling if uncoupled else self.A
-        lam, vec = np.linalg.eig(a)
+        res = Resolvent(self.A - self.coupling if uncoupled else self.A)
         out = np.empty((flat.size, len(self.outputs), len(self.inputs)), dtype=complex)
-        if np.linalg.cond(vec) < 1e8:
-            left = self.C @ vec
-            right = np.linalg.solve(vec, self.B)
-            for start in range(0, flat.size, _CHUNK):
-                w = flat[start:start + _CHUNK]
-                r = 1.0 / (-1j * w[:, None] - lam[None, :])
-                out[start:start + _CHUNK] = np.einsum("pn,wn,nm->wpm", left, r, right)
-        else:
-            eye = np.eye(len(self.states))
-            for start in range(0, flat.size, _CHUNK):
-                w = flat[start:start + _CHUNK]
-                x = np.linalg.solve(-1j * w[:, None, None] * eye - a, self.B)
-                out[start:start + _CHUNK] = self.C @ x
+        if res.well_conditioned:
+            left, right = self.C @ res.vec, res.inv @ self.B
+        for start in range(0, flat.size, _CHUNK):
+            w = flat[start:start + _CHUNK]
+            if res.well_conditioned:
+                out[start:start + _CHUNK] = np.einsum("pn,wn,nm->wpm", left, res.factor(w),
+                                                      right)
+            else:
+                out[start:start + _CHUNK] = self.C @ res.solve_columns(w, self.B)
         out += self.D
         return out.reshape(omega.shape + out.shape[1:])
 
@@ -153,3 +148,28 @@ class StateSpace:
 
 
 _CHUNK = 1 << 15
+
+
+class Resolvent:
+    """(−iω − a)⁻¹ for many ω: eigendecomposition, or batched solves near an exceptional point."""
+
+    def __init__(self, a):
+        self.a = a
+        self.lam, self.vec = np.linalg.eig(a)
+        self.well_conditioned = np.linalg.cond(self.vec) < 1e8
+        self.inv = np.linalg.inv(self.vec) if self.well_conditioned else None
+
+    def factor(self, w):
+        """1/(−iω − λ) for every ω (rows) and eigenvalue λ (columns)."""
+        return 1.0 / (-1j * w[:, None] - self.lam[None, :])
+
+    def solve_columns(self, w, right):
+        """(−iω − a)⁻¹·right per ω by batched solves; ``right`` (n, m)."""
+        m = -1j * w[:, None, None] * np.eye(self.a.shape[0]) - self.a
+        return np.linalg.solve(m, np.broadcast_to(right, (w.size,) + right.shape))
+
+    def solve_rows(self, left, w):
+        """left·(−iω − a)⁻¹ per ω by batched solves; ``left`` (n,) or (len(w), n)."""
+        left = np.broadcast_to(left, (w.size, self.a.shape[0]))
+        m = np.swapaxes(-1j * w[:, None, None] * np.eye(self.a.shape[0]) - self.a, 1, 2)
+        return np.linalg.solve(m, left[..., None])[..., 0]
