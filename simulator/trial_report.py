@@ -28,6 +28,7 @@ def _figure(dataset, q, truth, path):
                label=f"mean {np.mean(est[ok]):.7g}")
     ax.set_xlabel(q)
     ax.set_ylabel("trials")
+    ax.yaxis.get_major_locator().set_params(integer=True)
     ax.legend(fontsize=8)
     if truth is not None:
         pulls = (est[ok] - truth) / unc[ok]
