@@ -192,6 +192,12 @@ def cmd_spectrum(args):
               f"quanta), Stokes {s.stokes.frequency_hz:.9g} Hz ({s.stokes.area_quanta:.5g} "
               f"quanta); ratio {s.ratio:.5g} -> n = {s.occupation_from_ratio:.5g} "
               f"(steady state {s.steady_state_occupation:.5g})")
+        if s.warning:
+            print(f"    warning: {s.warning}")
+        fano = (s.anti_stokes.dispersive_quanta, s.stokes.dispersive_quanta)
+        if max(abs(fano[0]), abs(fano[1])) > 0.01 * abs(s.stokes.area_quanta):
+            print(f"    Fano-shaped: dispersive weights {fano[0]:.4g} (anti-Stokes), "
+                  f"{fano[1]:.4g} (Stokes) quanta: correlated noise interferes with the motion")
     for kind, path in files.items():
         print(f"  {kind} written to {path}")
     return EXIT_OK

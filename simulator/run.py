@@ -138,7 +138,9 @@ def _spectrum_part(scenario, out, wrote, figures):
             f"{html.escape(spectrum.units)}; axis: {html.escape(spectrum.axis)}.</p>"
             + html.table(rows, header=["mode", "anti-Stokes (Hz)", "area (quanta)",
                                        "Stokes (Hz)", "area (quanta)", "ratio",
-                                       "n from ratio", "n exact"]))
+                                       "n from ratio", "n exact"])
+            + "".join(f"<p>Warning, mode {html.escape(s.mode)}: {html.escape(s.warning)}.</p>"
+                      for s in summary if s.warning))
 
 
 def _record_part(scenario, out, wrote, figures, progress):

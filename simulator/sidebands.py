@@ -1,4 +1,4 @@
-"""Sideband summary: Stokes and anti-Stokes lineshapes of each mode, and the occupation.
+"""Sideband summary: Stokes and anti-Stokes lines of each mode, and the occupation.
 
 In the heterodyne spectrum a mode of occupation n scatters drive photons into
 an anti-Stokes sideband at ν ≈ +Ωm (area ∝ n) and a Stokes sideband at
@@ -7,14 +7,29 @@ an anti-Stokes sideband at ν ≈ +Ωm (area ∝ n) and a Stokes sideband at
     N_out(ν) − floor(ν) ≈ F(ν) · S_bb(ν),   F(ν) = κ_ex g² / (κ²/4 + (2πν + Δ)²),
 
 with S_bb the mechanical spectrum whose area is n (ν > 0) or n + 1 (ν < 0).
-The summary removes F point by point, integrates the whole corrected lineshape
-over a wide window and adds the Lorentzian tails beyond it from a fit, so the
-areas come out in phonon quanta. Their ratio R = n/(n + 1) gives the
-occupation n = R/(1 − R), reported beside the exact Lyapunov occupation.
 
-The naive alternative (integrate a window, divide by the cavity response at
-the peak) biases n by several per cent, and the ratio method amplifies any
-area error by about 2n + 1; hence the point-by-point correction here.
+The line of a sideband is taken from the spectrum itself, not from a fit. The
+normal-ordered output density N_out(ω) is a rational function of ω whose
+poles are the eigenvalues of the drift matrix: ω_k = iλ_k. Near the mode's
+pole it is c/(ω − ω_k) + c̄/(ω − ω̄_k) + (smooth), i.e. on the real axis
+
+    Im(c) · L(ν) + Re(c) · D(ν),
+
+a Lorentzian L of unit area (centre Re ω_k/2π, FWHM −2 Im ω_k/2π) and its
+dispersive partner D = (ν − ν0)/(π((ν − ν0)² + (w/2)²)). The sideband area
+is the Lorentzian weight Im(c) divided by F at the centre; the dispersive
+weight Re(c)/F is the Fano asymmetry, zero for vacuum inputs at the
+anti-Stokes line and large where classical noise the detector also sees
+interferes with the motion it drives. The weight is what a Lorentzian plus
+dispersive fit over a span of many linewidths (but much less than κ)
+returns, and it is unambiguous; the integral of the cavity-corrected
+spectrum over a wide window is not, once the dispersive part meets the
+cavity's frequency dependence. The residue is computed from the right and
+left eigenvectors of λ_k alone: c = Res(u·H) N (u·H(ω̄_k))†, with
+Res(u·H) = i (u C v_k)(w_k B)/(w_k v_k).
+
+The ratio of the areas R = n/(n + 1) gives the occupation n = R/(1 − R),
+reported beside the exact Lyapunov occupation.
 
 References
 ----------
@@ -27,29 +42,39 @@ Marquardt, Chen, Clerk, Girvin, Phys. Rev. Lett. 99, 093902 (2007) (rates A±).
 import dataclasses
 
 import numpy as np
-from scipy.optimize import least_squares
+import scipy.linalg
 
-from simulator.physics import angular
-from simulator.spectra import photon_flux_density, prepare
-from simulator.steady_state import effective_mechanics, steady_state
+from simulator.physics import TWO_PI, angular
+from simulator.spectra import prepare
+from simulator.steady_state import mode_eigenvalues, steady_state
+
+# |w_k v_k| below this (unit-norm vectors) is an eigenvalue at or near an
+# exceptional point: no isolated Lorentzian line, so no sideband area.
+DEFECTIVE = 1e-8
+# Below this overlap the line is a hybrid of mechanics and cavity (normal-mode
+# splitting, or near an exceptional point): its weights say little about n.
+HYBRID = 0.5
+NO_LINE = complex(np.nan, np.nan)
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class Sideband:
     """One sideband of one mode.
 
-    ``frequency_hz`` and ``linewidth_hz`` (FWHM) are from a Lorentzian fit to
-    the cavity-corrected lineshape; ``area_quanta`` is its area in phonon
-    quanta (n for anti-Stokes, n + 1 for Stokes); ``area_above_floor`` is the
-    uncorrected area of the detected spectrum above the imprecision floor, in
-    shot-noise units × Hz (η ∫ (N_out − floor) dν over the window).
+    ``frequency_hz`` and ``linewidth_hz`` (FWHM) are those of the mode's pole
+    of the spectrum (an eigenvalue of the drift matrix); ``area_quanta`` is
+    the Lorentzian weight in phonon quanta (n for anti-Stokes, n + 1 for
+    Stokes, in weak coupling and without classical noise); ``dispersive_quanta``
+    the weight of the dispersive partner on the same scale (the Fano
+    asymmetry); ``area_above_floor`` the Lorentzian weight of the detected
+    spectrum itself, in shot-noise units × Hz (η Im c).
     """
 
     frequency_hz: float
     linewidth_hz: float
     area_quanta: float
+    dispersive_quanta: float
     area_above_floor: float
-    window_hz: tuple
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -59,10 +84,11 @@ class SidebandSummary:
     mode: str
     stokes: Sideband
     anti_stokes: Sideband
-    ratio: float  # anti-Stokes / Stokes cavity-corrected area = n/(n+1)
+    ratio: float  # anti-Stokes / Stokes area = n/(n+1)
     occupation_from_ratio: float  # R/(1 − R)
     occupation_from_area: float  # anti-Stokes area in quanta (needs g, κ_ex)
     steady_state_occupation: float  # exact Lyapunov value
+    warning: str = ""  # why the weights are not to be read as n and n + 1, if so
 
     def to_dict(self):
         """Plain data for JSON (Hz, quanta, shot-noise units × Hz)."""
@@ -77,16 +103,17 @@ def cavity_filter(point, mode_index, frequency_hz):
     point : simulator.operating_point.OperatingPoint
     mode_index : int
     frequency_hz : array_like
-        Optical offsets ν from the drive (Hz).
+        Optical offsets ν from the drive (Hz); complex values continue F
+        analytically (to a pole of the spectrum).
     """
     kappa, kappa_ex, delta, g = angular([
         point.cavity_linewidth_hz, point.external_linewidth_hz,
         point.detuning_effective_hz, point.modes[mode_index].coupling_rate_hz])
-    omega = angular(frequency_hz)
+    omega = TWO_PI * np.asarray(frequency_hz)  # complex allowed, unlike angular()
     return kappa_ex * g**2 / (kappa**2 / 4 + (omega + delta) ** 2)
 
 
-def sideband_summary(scenario, *, point=None, model=None, points_per_decade=96):
+def sideband_summary(scenario, *, point=None, model=None):
     """Sideband summary of every mechanical mode of ``scenario``.
 
     Parameters
@@ -94,105 +121,100 @@ def sideband_summary(scenario, *, point=None, model=None, points_per_decade=96):
     scenario : simulator.scenario.Scenario
     point, model : optional
         Operating point and linear model, when already computed.
-    points_per_decade : int
-        Density of the log-spaced grid around each sideband.
 
     Returns
     -------
     tuple of SidebandSummary
         One per mode, in scenario order; NaN for a mode the light does not
-        couple to (g = 0, e.g. no drive).
+        couple to (g = 0, e.g. no drive) or whose pole is defective (an
+        exceptional point: the line is not a Lorentzian). ``warning`` says
+        when the line is a mechanics-cavity hybrid and its weights are not
+        to be read as n and n + 1.
 
     Notes
     -----
-    Each sideband is analysed on its own grid, dense in log offset around the
-    mode's effective frequency (an eigenvalue of A) out to a window of half
-    the distance to the nearest other sideband. The corrected lineshape
-    c(ν) = [N_out(ν) − floor(ν)] / F(ν) is fitted with a Lorentzian plus its
-    dispersive partner; the data minus the dispersive part are integrated by
-    the trapezoid rule and the fitted Lorentzian outside the window is added.
     The areas equal n and n + 1 in weak coupling (g ≪ κ), to about 1e-4 of n
-    at g/κ < 0.01; past it F no longer describes the filter exactly and the
-    summary reports what this estimator gives (n from the ratio 0.2 % low at
-    g/κ = 0.08 for the demo scenario), beside the exact occupation.
+    at g/κ < 0.01. Past it the line is no longer exactly a Lorentzian of
+    weight n or n + 1 (the self-energy varies across it) and the summary
+    reports what the weights give (n from the ratio 3 % low at g/κ = 0.08
+    for the demo scenario) beside the exact occupation. With classical noise on the
+    drive that also reaches the detector the areas carry its interference
+    with the motion it drives: the false asymmetry (docs/laser-noise.md).
     """
     point, model = prepare(scenario, point, model)
     steady = steady_state(scenario, model=model, point=point)
     eta = scenario.detection.efficiency
-    freqs, widths = effective_mechanics(model, len(point.modes))
-    peaks = np.concatenate([freqs, -np.asarray(freqs)])
+    poles = _Poles(model)
+    stokes_index = mode_eigenvalues(poles.lam, poles.right, len(point.modes))
     summaries = []
     for j, mode in enumerate(point.modes):
-        if mode.coupling_rate_hz == 0.0:  # no light on this mode: nothing to analyse
-            blank = Sideband(frequency_hz=np.nan, linewidth_hz=np.nan, area_quanta=np.nan,
-                             area_above_floor=0.0, window_hz=(np.nan, np.nan))
-            summaries.append(SidebandSummary(
-                mode=mode.name, stokes=blank, anti_stokes=blank, ratio=np.nan,
-                occupation_from_ratio=np.nan, occupation_from_area=np.nan,
-                steady_state_occupation=steady.modes[j].occupation))
-            continue
         sides = {}
         for sign in (+1, -1):
-            centre = sign * freqs[j]
-            others = np.abs(np.delete(peaks, j if sign > 0 else len(freqs) + j) - centre)
-            half = 0.5 * float(np.min(others, initial=2.0 * abs(centre)))
-            sides[sign] = _sideband(model, point, j, eta, centre, widths[j], half,
-                                    points_per_decade)
+            k = poles.anti_stokes_partner(stokes_index[j]) if sign > 0 else stokes_index[j]
+            coupled = mode.coupling_rate_hz != 0.0  # else no line: NaN weights
+            residue = poles.residue(k) if coupled else NO_LINE
+            weight = residue / cavity_filter(point, j, poles.pole_hz(k)) if coupled else NO_LINE
+            sides[sign] = Sideband(
+                frequency_hz=poles.frequency_hz(k), linewidth_hz=poles.linewidth_hz(k),
+                area_quanta=float(np.imag(weight)), dispersive_quanta=float(np.real(weight)),
+                area_above_floor=float(eta * np.imag(residue)))
         with np.errstate(divide="ignore", invalid="ignore"):
             ratio = np.float64(sides[+1].area_quanta) / sides[-1].area_quanta
             implied = ratio / (1.0 - ratio)
+        overlap = poles.overlap(stokes_index[j])
+        warning = "" if overlap >= HYBRID or not coupled else (
+            f"the line is a mechanics-cavity hybrid (eigenvector overlap {overlap:.2g} < "
+            f"{HYBRID}: strong coupling or near an exceptional point); its weights are "
+            "not n and n + 1")
         summaries.append(SidebandSummary(
             mode=mode.name, stokes=sides[-1], anti_stokes=sides[+1], ratio=float(ratio),
             occupation_from_ratio=float(implied),
             occupation_from_area=float(sides[+1].area_quanta),
-            steady_state_occupation=steady.modes[j].occupation))
+            steady_state_occupation=steady.modes[j].occupation, warning=warning))
     return tuple(summaries)
 
 
-def _sideband(model, point, j, eta, centre_hz, width_hz, half_window_hz, per_decade):
-    gamma = width_hz / 2.0
-    decades = max(np.log10(half_window_hz / gamma) + 4.0, 1.0)
-    offsets = gamma * np.logspace(-4.0, -4.0 + decades, int(decades * per_decade) + 1)
-    offsets = offsets[offsets <= half_window_hz]
-    f = centre_hz + np.concatenate([-offsets[::-1], [0.0], offsets])
-    above = photon_flux_density(model, f) - photon_flux_density(model, f, floor=True)
-    corrected = above / cavity_filter(point, j, f)
-    f0, fwhm, area, rest = _fit_lineshape(f, corrected, centre_hz, width_hz)
-    w = fwhm / 2.0
-    in_window = area / np.pi * (np.arctan((f[-1] - f0) / w) - np.arctan((f[0] - f0) / w))
-    inside = np.trapezoid(corrected - rest, f)
-    return Sideband(frequency_hz=float(f0), linewidth_hz=float(fwhm),
-                    area_quanta=float(inside + (area - in_window)),
-                    area_above_floor=float(eta * np.trapezoid(above, f)),
-                    window_hz=(float(f[0]), float(f[-1])))
+class _Poles:
+    """Poles ω_k = iλ_k of the heterodyne output density and their residues."""
 
+    def __init__(self, model):
+        self.model = model
+        # balance first: with laser-noise filter states the raw eigenvectors of a
+        # simple eigenvalue can be nearly orthogonal to its left ones (scaling only)
+        balanced, (self.scale, _) = scipy.linalg.matrix_balance(
+            model.A, permute=False, separate=True)
+        self.lam, self.left_b, self.right_b = scipy.linalg.eig(balanced, left=True, right=True)
+        self.right = self.scale[:, None] * self.right_b
+        u = np.array([1.0, 1.0j]) / np.sqrt(2.0)  # heterodyne projection (spectra.py)
+        self.uc, self.ud = u @ model.C, u @ model.D
 
-def _fit_lineshape(f, y, f0, fwhm):
-    """Fit y(f) = a·L(f) + d·D(f): a Lorentzian and its dispersive partner.
+    def anti_stokes_partner(self, k):
+        """Index of the eigenvalue λ̄_k (its pole iλ̄_k lies at ν > 0)."""
+        return int(np.argmin(np.abs(self.lam - np.conj(self.lam[k]))))
 
-    The dispersive term takes up Fano-like asymmetry (from a hot cavity bath
-    or correlated inputs; with vacuum inputs the imprecision × back-action
-    term referred to displacement is exactly −ħ Im χ, absorptive), so that it
-    does not bias the centre and width. Returns centre, FWHM, Lorentzian
-    area a and the fitted dispersive part on ``f``. The centre and width are
-    found by least squares with the two linear amplitudes solved exactly at
-    each step (variable projection).
-    """
-    scale = abs(fwhm)
-    x = (f - f0) / scale
+    def pole_hz(self, k):
+        """The complex pole ω_k/2π = iλ_k/2π."""
+        return 1j * self.lam[k] / (2 * np.pi)
 
-    def basis(p):
-        c, w = p[0], abs(p[1]) / 2.0
-        den = (x - c) ** 2 + w**2
-        return np.column_stack([w / np.pi / den, (x - c) / np.pi / den])
+    def frequency_hz(self, k):
+        return float(np.real(1j * self.lam[k]) / (2 * np.pi))
 
-    def residual(p):
-        m = basis(p)
-        coef = np.linalg.lstsq(m, y * scale, rcond=None)[0]
-        return (m @ coef - y * scale) / np.max(np.abs(y * scale))
+    def linewidth_hz(self, k):
+        return float(-2.0 * np.real(self.lam[k]) / (2 * np.pi))
 
-    p = least_squares(residual, x0=[0.0, 1.0], xtol=1e-12, ftol=1e-12).x
-    m = basis(p)
-    coef = np.linalg.lstsq(m, y * scale, rcond=None)[0]
-    rest = m[:, 1:] @ coef[1:] / scale
-    return f0 + p[0] * scale, abs(p[1]) * scale, coef[0], rest
+    def overlap(self, k):
+        """|w_k v_k| of the balanced unit eigenvectors: 1 for an isolated line, 0 at an EP."""
+        vb, wb = self.right_b[:, k], self.left_b[:, k].conj()
+        return float(abs(wb @ vb) / (np.linalg.norm(wb) * np.linalg.norm(vb)))
+
+    def residue(self, k):
+        """c: residue of N_out(ω) at ω_k = iλ_k (ω in rad/s, N_out per Hz)."""
+        model, vb, wb = self.model, self.right_b[:, k], self.left_b[:, k].conj()
+        if self.overlap(k) < DEFECTIVE:
+            return NO_LINE
+        v, w = self.scale * vb, wb / self.scale
+        res_h = 1j * (self.uc @ v) * (w @ model.B) / (wb @ vb)
+        mirror = np.conj(1j * self.lam[k])  # ω̄_k, where u·H is analytic
+        n = model.A.shape[0]
+        h = self.uc @ np.linalg.solve(-1j * mirror * np.eye(n) - model.A, model.B) + self.ud
+        return complex(res_h @ model.N @ h.conj())

@@ -170,13 +170,23 @@ def _laser_occupation(scenario, point, mode):
 def effective_mechanics(model, n_modes):
     """Effective frequency and linewidth (Hz) of each mechanical mode.
 
-    Each mode is matched to the eigenvalue λ of A (taken with Im λ ≥ 0) whose
-    eigenvector has the largest weight on that mode's quadratures, one
-    eigenvalue per mode (an assignment problem). Frequency |Im λ|/2π,
-    energy linewidth −2 Re λ/2π. Past normal-mode splitting the assignment
-    picks the hybrid mode that is more mechanical.
+    The eigenvalue λ of A chosen for each mode by :func:`mode_eigenvalues`
+    gives frequency |Im λ|/2π and energy linewidth −2 Re λ/2π.
     """
     lam, vec = np.linalg.eig(model.A)
+    chosen = lam[mode_eigenvalues(lam, vec, n_modes)]
+    return (tuple(float(x) for x in np.abs(chosen.imag) / (2 * np.pi)),
+            tuple(float(x) for x in -2 * chosen.real / (2 * np.pi)))
+
+
+def mode_eigenvalues(lam, vec, n_modes):
+    """Index into ``lam`` of each mechanical mode's eigenvalue (the one with Im λ ≥ 0).
+
+    Each mode is matched to the eigenvalue whose (right) eigenvector has the
+    largest weight on that mode's quadratures, one eigenvalue per mode (an
+    assignment problem). Past normal-mode splitting the assignment picks the
+    hybrid mode that is more mechanical.
+    """
     candidates = np.flatnonzero(lam.imag >= -1e-12 * np.abs(lam))
     if len(candidates) < n_modes:
         candidates = np.arange(len(lam))
@@ -185,8 +195,7 @@ def effective_mechanics(model, n_modes):
     score = np.array([[weights[2 + 2 * j, k] + weights[3 + 2 * j, k] for k in candidates]
                       for j in range(n_modes)])
     rows, cols = linear_sum_assignment(-score) if n_modes else ((), ())
-    freq, width = np.zeros(n_modes), np.zeros(n_modes)
+    index = np.zeros(n_modes, dtype=int)
     for j, c in zip(rows, cols, strict=False):
-        chosen = lam[candidates[c]]
-        freq[j], width[j] = abs(chosen.imag) / (2 * np.pi), -2 * chosen.real / (2 * np.pi)
-    return tuple(float(x) for x in freq), tuple(float(x) for x in width)
+        index[j] = candidates[c]
+    return index
