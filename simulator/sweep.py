@@ -67,8 +67,29 @@ class Axis:
 
     @property
     def name(self):
-        """Dimension name safe for NetCDF, e.g. ``mechanics0_bath_temperature_k``."""
-        return re.sub(r"[^A-Za-z0-9_]", "", self.path.replace(".", "_"))
+        """Dimension name safe for NetCDF, e.g. ``mechanics0_bath_temperature_k``.
+
+        An axis in units of another parameter is named for the ratio it holds,
+        e.g. ``drive_detuning_over_mechanics0_frequency`` (Δ/Ωm); the values
+        set at the path are then the variable :attr:`value_name`.
+        """
+        if self.unit:
+            return f"{_without_units(self.path)}_over_{_without_units(self.unit)}"
+        return self.value_name
+
+    @property
+    def value_name(self):
+        """NetCDF name of the values set at the path, e.g. ``drive_detuning_hz``."""
+        return _netcdf_name(self.path)
+
+
+def _netcdf_name(path):
+    return re.sub(r"[^A-Za-z0-9_]", "", path.replace(".", "_"))
+
+
+def _without_units(path):
+    """``drive.detuning_hz`` → ``drive_detuning`` (the unit suffix dropped)."""
+    return re.sub(r"_(hz|w|k|m|kg|s)$", "", _netcdf_name(path))
 
 
 def sweep_axes(scenario):
@@ -330,7 +351,7 @@ def assemble(scenario, axes, points, results):
             attrs = {"path": a.path, "units": _axis_attrs(
                 dataclasses.replace(a, unit=""))["units"]}
             dim = a.name if scenario.sweep.combine == "grid" else "point"
-            variables[f"{a.name}_value"] = (dim, values, attrs)
+            coords[a.value_name] = (dim, values, attrs)
     attrs = {"format": FORMAT, "format_version": FORMAT_VERSION,
              "scenario_toml": scenario.to_toml(), "combine": scenario.sweep.combine,
              "software_version": __version__, "scenario_name": scenario.scenario.name}

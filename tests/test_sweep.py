@@ -102,8 +102,13 @@ def test_one_worker_two_workers_and_dask_agree_bit_for_bit(tmp_path):
     assert on_disk.attrs["scenario_toml"] == sc.to_toml()
     assert parse_scenario(on_disk.attrs["scenario_toml"]) == sc
     # red-detuned points are stable, far blue ones not
-    assert one["stable"].sel(drive_detuning_hz=-1.0).all()
-    assert not one["stable"].sel(drive_detuning_hz=1.0).any()
+    # the unit axis is named for the ratio it holds; the Hz values ride beside it
+    ratio = one["drive_detuning_over_mechanics0_frequency"]
+    assert ratio.attrs["units"] == "in units of mechanics[0].frequency_hz"
+    np.testing.assert_allclose(one["drive_detuning_hz"].values, ratio.values * 1.5e6)
+    assert one["drive_detuning_hz"].attrs["units"] == "Hz"
+    assert one["stable"].sel(drive_detuning_over_mechanics0_frequency=-1.0).all()
+    assert not one["stable"].sel(drive_detuning_over_mechanics0_frequency=1.0).any()
 
 
 def test_changed_scenario_is_refused(tmp_path):
@@ -125,7 +130,7 @@ def test_failing_point_is_recorded_and_sweep_goes_on(tmp_path, monkeypatch):
 
     monkeypatch.setattr(inspection, "inspect_scenario", flaky)
     ds = run_sweep(parse_scenario(GRID), tmp_path, workers=1, progress=False)
-    errors = ds["error"].sel(drive_detuning_hz=0.0).values
+    errors = ds["error"].sel(drive_detuning_over_mechanics0_frequency=0.0).values
     assert all("injected failure" in e for e in errors)
     assert (ds["error"] == "").sum() == ds["error"].size - 2
 
