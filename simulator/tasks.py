@@ -51,9 +51,40 @@ def prepare_folder(folder, manifest_name, manifest, what):
         atomic_write_text(path, json.dumps(manifest, indent=2))
 
 
+# Strict JSON has no NaN or infinity; a task result (e.g. the occupation of an
+# unstable point) may. They are stored as {"non_finite": "nan" | "inf" | "-inf"}.
+_NON_FINITE = "non_finite"
+
+
+def _tag_non_finite(obj):
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return {_NON_FINITE: "nan" if math.isnan(obj) else ("inf" if obj > 0 else "-inf")}
+    if isinstance(obj, dict):
+        return {k: _tag_non_finite(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_tag_non_finite(v) for v in obj]
+    return obj
+
+
+def _untag(obj):
+    if set(obj) == {_NON_FINITE} and obj[_NON_FINITE] in ("nan", "inf", "-inf"):
+        return float(obj[_NON_FINITE])
+    return obj
+
+
+def encode_result(result):
+    """Strict JSON text of a task result (non-finite floats tagged, not bare NaN)."""
+    return json.dumps(_tag_non_finite(result), allow_nan=False)
+
+
+def decode_result(text):
+    """Inverse of :func:`encode_result`: the same numbers, NaN and infinities included."""
+    return json.loads(text, object_hook=_untag)
+
+
 def _read(path):
     try:
-        return json.loads(path.read_text(encoding="utf-8"))
+        return decode_result(path.read_text(encoding="utf-8"))
     except (OSError, ValueError):
         return None  # missing or damaged: recomputed
 
@@ -102,8 +133,9 @@ def run_tasks(folder, func, common, tasks, *, workers=None, dask=None, progress=
     try:
         for key, result in _execute(func, common, todo, workers, dask):
             # a task file is recomputed if damaged, so skip the fsync per task
-            atomic_write_text(folder / f"{key}.json", json.dumps(result), durable=False)
-            results[key] = result
+            text = encode_result(result)
+            atomic_write_text(folder / f"{key}.json", text, durable=False)
+            results[key] = decode_result(text)  # what a resumed run reads, exactly
             if bar is not None:
                 bar.update(1)
     finally:

@@ -111,6 +111,29 @@ def test_one_worker_two_workers_and_dask_agree_bit_for_bit(tmp_path):
     assert not one["stable"].sel(drive_detuning_over_mechanics0_frequency=1.0).any()
 
 
+def test_stored_points_are_strict_json_and_read_back_exactly(tmp_path):
+    """Unstable points carry NaN occupations; the per-point files hold strict
+    JSON (no bare NaN, which other JSON readers refuse) and read back the same
+    numbers, so a resumed sweep equals a fresh one."""
+    import json
+
+    from simulator.tasks import decode_result, encode_result
+
+    one = run_sweep(parse_scenario(GRID), tmp_path, workers=1, progress=False)
+    assert np.isnan(one["occupation"].values).any()
+    stored = [p for p in tmp_path.rglob("*.json") if p.name != "run.json"]
+    assert stored
+    for path in stored:
+        json.loads(path.read_text(), parse_constant=lambda c: pytest.fail(f"{path}: {c}"))
+    value = {"a": [float("nan"), 1.5, float("-inf")], "b": float("inf"), "c": "nan"}
+    back = decode_result(encode_result(value))
+    assert np.isnan(back["a"][0]) and back["a"][1:] == [1.5, float("-inf")]
+    assert back["b"] == float("inf") and back["c"] == "nan"
+    again = run_sweep(parse_scenario(GRID), tmp_path, workers=1, progress=False)
+    for name in one.data_vars:
+        np.testing.assert_array_equal(one[name].values, again[name].values)
+
+
 def test_changed_scenario_is_refused(tmp_path):
     run_sweep(parse_scenario(GRID), tmp_path, workers=1, progress=False)
     changed = parse_scenario(GRID.replace("power_w = 0.25e-6", "power_w = 0.3e-6"))
