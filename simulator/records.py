@@ -269,12 +269,41 @@ def simulate_record(scenario, *, seed=None, duration_s=None, out=None, form="aut
     with sink:
         clipped = generate(plan, sink, chunk=int(chunk), progress=progress)
         record = sink.finish(clipped)
+    coarse = quantisation_share(plan)
+    if coarse > QUANTISATION_WARNING:
+        warnings.warn(f"the digitiser's step ({plan.bits} bits over ±{plan.full_scale_v:.6g} V) "
+                      f"adds rounding noise of {100.0 * coarse:.3g} % of the record's variance "
+                      "(Δ²/12), and so coarse a rounding is no longer independent of the "
+                      "signal; raise digitizer.bits or lower digitizer.full_scale_v",
+                      RecordWarning, stacklevel=2)
     if clipped:
         warnings.warn(f"{clipped} of {plan.n_samples} samples "
                       f"({100.0 * clipped / plan.n_samples:.3g} %) clipped at the digitiser's "
                       f"full scale ±{plan.full_scale_v:.6g} V; raise digitizer.full_scale_v "
                       "or lower electronics.transimpedance_ohm", RecordWarning, stacklevel=2)
     return record
+
+
+QUANTISATION_WARNING = 0.01  # rounding variance Δ²/12 above 1 % of the signal's
+
+
+def quantisation_share(plan):
+    """Rounding variance Δ²/12 over the sample variance of the record (its weakest channel).
+
+    Widrow and Kollár, Quantization Noise (Cambridge, 2008), Ch. 4: for a
+    signal spanning many steps the rounding error is uniform, white and
+    independent of the signal, of variance Δ²/12.
+    """
+    discrete = plan.discrete
+    cov = (discrete.output @ discrete.state_covariance @ discrete.output.T
+           + discrete.output_noise)
+    if plan.chain.receiver == "if":  # r = 2(cos φ Re ρ − sin φ Im ρ), averaged over φ
+        variance = 2.0 * float(np.trace(cov))
+    else:
+        variance = float(np.min(np.diag(cov)))
+    variance *= plan.chain.volts_per_unit**2
+    step = 2.0 * plan.full_scale_v / 2.0**plan.bits
+    return step**2 / 12.0 / variance
 
 
 def generate(plan, sink, *, chunk, progress=False):

@@ -21,6 +21,7 @@ Proc. IEEE 66, 51 (1978) (window properties).
 """
 
 import dataclasses
+import warnings
 
 import numpy as np
 import pytest
@@ -338,6 +339,22 @@ def test_quantisation_noise_is_delta_squared_over_twelve():
     assert coarse.clipped_samples == 0
     assert np.mean(err**2) == pytest.approx(delta**2 / 12, rel=Z_LIMIT * np.sqrt(0.8 / err.size))
     assert abs(np.mean(err)) < Z_LIMIT * delta / np.sqrt(12 * err.size)
+
+
+def test_coarse_digitiser_is_warned_about():
+    """Two bits over the automatic ±8σ range: the step is 4σ, the rounding
+    variance Δ²/12 exceeds the signal's and the Δ²/12 model itself fails
+    (Widrow and Kollár 2008, Ch. 4); the record says so. 16 bits: silence."""
+    from simulator.records import RecordWarning, quantisation_share
+
+    scenario = make(samples=4096)
+    assert quantisation_share(plan_record(scenario.replace("digitizer.bits", 2))) == (
+        pytest.approx((16 / 4) ** 2 / 12, rel=0.05))
+    with pytest.warns(RecordWarning, match="rounding noise"):
+        simulate_record(scenario.replace("digitizer.bits", 2), seed=1)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        simulate_record(scenario.replace("digitizer.bits", 16), seed=1)
 
 
 @pytest.mark.parametrize("side, kind", [("below", "iq"), ("below", "if"), ("above", "if")])

@@ -123,8 +123,11 @@ def test_stored_points_are_strict_json_and_read_back_exactly(tmp_path):
     assert np.isnan(one["occupation"].values).any()
     stored = [p for p in tmp_path.rglob("*.json") if p.name != "run.json"]
     assert stored
+    def refuse(constant):
+        raise AssertionError(f"bare {constant} in a stored point")
+
     for path in stored:
-        json.loads(path.read_text(), parse_constant=lambda c: pytest.fail(f"{path}: {c}"))
+        json.loads(path.read_text(), parse_constant=refuse)
     value = {"a": [float("nan"), 1.5, float("-inf")], "b": float("inf"), "c": "nan"}
     back = decode_result(encode_result(value))
     assert np.isnan(back["a"][0]) and back["a"][1:] == [1.5, float("-inf")]
