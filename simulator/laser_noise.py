@@ -27,9 +27,12 @@ LO phase references (``detection.local_oscillator_source``):
   every mechanical frequency. τ = 0: ρ = −φ_S, no state.
 - locked (a separate source with a first-order phase lock of bandwidth ω_B):
   dφ_LO/dt = ω_B (φ − φ_LO), so dρ/dt = −ω_B ρ + δω − ω_B φ_S.
-- independent (a separate, noise-free source): ρ = φ_W, a random walk — the
-  beat note diffuses and no stationary spectrum exists, so white frequency
-  noise is refused; ρ = 0 otherwise.
+- independent (a separate source): ρ = φ_W − φ_S,LO. φ_W is a random walk —
+  the beat note diffuses and no stationary spectrum exists, so white
+  frequency noise is refused (on the drive and on the LO alike); the LO's own
+  stationary noise φ_S,LO (``[detection.local_oscillator_phase_noise]``:
+  floor and peak, states ``laser.lo.*``) beats with the reflected carrier and
+  adds imprecision only: it never reaches the cavity.
 
 The tone is on the drive path only (the electro-optic modulator sits after
 the LO is split off), so the LO never carries it. LO intensity noise is
@@ -63,10 +66,11 @@ _SQRT2 = np.sqrt(2.0)
 
 
 def is_quiet(scenario):
-    """True when the drive carries no classical noise and no tone (the default)."""
+    """True when neither the drive nor the local oscillator carries classical noise or a tone."""
     d = scenario.drive
     return all(x == type(x)() for x in (d.phase_noise, d.intensity_noise,
-                                        d.calibration_tone))
+                                        d.calibration_tone,
+                                        scenario.detection.local_oscillator_phase_noise))
 
 
 def local_oscillator_problems(scenario):
@@ -89,6 +93,16 @@ def local_oscillator_problems(scenario):
                "noise is a random walk (the beat note diffuses), which has no "
                'stationary spectrum; expected local_oscillator_source = "common" (with '
                'local_oscillator_delay_s) or "locked", or linewidth_hz = 0')
+    own = det.local_oscillator_phase_noise
+    if own != type(own)() and source != "independent":
+        yield ("detection.local_oscillator_phase_noise", f'given with '
+               f'local_oscillator_source = "{source}"; expected it only for "independent" '
+               '(a common or locked local oscillator takes its phase from the drive)')
+    if own.linewidth_hz > 0:
+        yield ("detection.local_oscillator_phase_noise.linewidth_hz", f"{own.linewidth_hz!r} "
+               "Hz: the beat of two free-running sources is a random walk in phase with no "
+               "stationary spectrum; expected 0 (give the floor and peak of the local "
+               'oscillator\'s phase noise), or local_oscillator_source = "locked"')
     if source == "common" and tau > 0:
         for mode in scenario.mechanics:
             x = float(angular(mode.frequency_hz)) * tau
@@ -250,21 +264,9 @@ def laser_model(model, scenario, point):
     port, direct, ref = np.sqrt(kappa_ex) * _quad(-1j * a_in), _quad(-1j * a_in), _quad(
         -1j * a_out)
     blocks = _Blocks()
-    phase_rows = []  # (state slice, C row): φ_S = Σ C x
-    if noise.floor_rad2_per_hz > 0:
-        a, b, c = _floor_filter(noise)
-        rows = blocks.add_states([f"laser.floor.{i}" for i in range(len(b))], a)
-        k = blocks.add_input("laser.floor", noise.floor_rad2_per_hz / 2,
-                             "laser phase-noise floor")
-        blocks.drive(k, rows, b)
-        phase_rows.append((rows, c))
-    if noise.peak_rad2_per_hz > 0:
-        a, b, c = _peak_filter(noise)
-        rows = blocks.add_states(["laser.peak.0", "laser.peak.1"], a)
-        k = blocks.add_input("laser.peak", noise.peak_rad2_per_hz / 2,
-                             "laser relaxation-oscillation peak")
-        blocks.drive(k, rows, b)
-        phase_rows.append((rows, c))
+    phase_rows = _stationary_shapes(blocks, noise, "laser.", "laser")  # φ_S = Σ C x
+    lo_rows = _stationary_shapes(blocks, det.local_oscillator_phase_noise, "laser.lo.",
+                                 "local-oscillator")  # its own φ_S,LO
     source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
     reference = None
     if source == "common" and tau > 0:
@@ -283,13 +285,34 @@ def laser_model(model, scenario, point):
                          cavity=np.sqrt(kappa_ex) * _quad(a_in / 2), output=_quad(a_in / 2))
     if scenario.drive.calibration_tone.depth_rad > 0:
         blocks.add_input(TONE_INPUT, 0.0, "calibration tone", cavity=port, output=direct)
-    return _assemble(model, blocks, phase_rows, reference, source, tau,
+    return _assemble(model, blocks, phase_rows, lo_rows, reference, source, tau,
                      port=port, direct=direct, ref=ref,
                      prompt=_quad(-1j * np.sqrt(kappa_ex) * alpha))
 
 
-def _assemble(model, blocks, phase_rows, reference, source, tau, *, port, direct, ref,
-              prompt):
+def _stationary_shapes(blocks, noise, prefix, who):
+    """Append the floor and peak of ``noise``; return their (state slice, C row) pairs."""
+    rows_out = []
+    if noise.floor_rad2_per_hz > 0:
+        a, b, c = _floor_filter(noise)
+        rows = blocks.add_states([f"{prefix}floor.{i}" for i in range(len(b))], a)
+        k = blocks.add_input(f"{prefix}floor", noise.floor_rad2_per_hz / 2,
+                             f"{who} phase-noise floor")
+        blocks.drive(k, rows, b)
+        rows_out.append((rows, c))
+    if noise.peak_rad2_per_hz > 0:
+        a, b, c = _peak_filter(noise)
+        rows = blocks.add_states([f"{prefix}peak.0", f"{prefix}peak.1"], a)
+        k = blocks.add_input(f"{prefix}peak", noise.peak_rad2_per_hz / 2,
+                             f"{who} relaxation-oscillation peak" if who == "laser"
+                             else f"{who} phase-noise peak")
+        blocks.drive(k, rows, b)
+        rows_out.append((rows, c))
+    return rows_out
+
+
+def _assemble(model, blocks, phase_rows, lo_rows, reference, source, tau, *, port, direct,
+              ref, prompt):
     """One StateSpace from the base model and the laser blocks."""
     n0, m0 = len(model.states), len(model.inputs)
     nl, ml = len(blocks.states), len(blocks.inputs)
@@ -322,6 +345,8 @@ def _assemble(model, blocks, phase_rows, reference, source, tau, *, port, direct
         a[n0 + r, n0:] += -gain * phase
         c[:, n0 + r] += ref
         c[:, n0:] += np.outer(direct + (ref if source == "common" else 0.0), phase)
+    for rows, row in lo_rows:  # ρ gains −φ_S,LO: the measured field gains +iā_out φ_S,LO
+        c[:, n0 + rows.start:n0 + rows.stop] -= np.outer(ref, row)
     n_total = np.zeros((m, m))
     n_total[:m0, :m0] = model.N
     n_total[m0:, m0:] = np.diag(blocks.intensity)
@@ -352,12 +377,13 @@ def device_eigenvalues(model, also=()):
 # -- what the noise does to the occupation ------------------------------------------
 
 def without_laser_noise(scenario):
-    """The same scenario with a shot-noise-limited drive and no tone."""
+    """The same scenario with a shot-noise-limited drive and LO, and no tone."""
     from simulator.scenario import scenario_from_dict
 
     data = scenario.to_dict()
     for key in ("phase_noise", "intensity_noise", "calibration_tone"):
         data["drive"].pop(key, None)
+    data.get("detection", {}).pop("local_oscillator_phase_noise", None)
     return scenario_from_dict(data, source=scenario.source)
 
 

@@ -215,8 +215,9 @@ class Detection:
     local_oscillator_source: str = param(
         "where the local oscillator comes from: \"common\", a copy of the drive "
         "laser (its phase noise cancels, up to the path delay); \"locked\", a "
-        "separate source phase-locked to the drive; \"independent\", a separate, "
-        "noise-free source", choices=("common", "locked", "independent"),
+        "separate source phase-locked to the drive; \"independent\", a separate "
+        "source, noise-free unless [detection.local_oscillator_phase_noise] is given",
+        choices=("common", "locked", "independent"),
         default="common")
     local_oscillator_delay_s: float = param(
         "extra delay of the local-oscillator path over the signal path (\"common\" "
@@ -228,6 +229,10 @@ class Detection:
         "balanced detection (both ports of the signal–local-oscillator beam splitter "
         "subtracted); false: one port of a 50:50 combiner, which halves the efficiency",
         default=True)
+    local_oscillator_phase_noise: PhaseNoise = section(
+        PhaseNoise, "own phase noise of an \"independent\" local oscillator (floor and "
+        "peak; a linewidth is refused: the beat of two free-running sources diffuses); "
+        "left out: a noise-free local oscillator")
 
 
 @_frozen

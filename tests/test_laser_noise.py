@@ -111,6 +111,34 @@ def test_laser_frame_model_equals_the_drive_frame_formula(name):
     assert np.allclose(laser, expected, rtol=1e-6, atol=1e-9 * expected.max())
 
 
+def test_an_independent_local_oscillator_adds_its_own_noise_as_imprecision():
+    """A separate LO with its own floor and peak: the detected classical noise is
+    the drive's (L = 0) plus η |ā_out|² S̄_LO(ω), the LO's phase noise beating
+    with the reflected carrier (drive frame, input-output theory); none of it
+    reaches the cavity, so the occupation is that of a clean LO."""
+    own = {"floor_rad2_per_hz": 3e-13, "floor_low_hz": 2e5, "floor_high_hz": 2e7,
+           "peak_rad2_per_hz": 1e-11, "peak_frequency_hz": 8e5, "peak_width_hz": 5e4}
+    detection = {"local_oscillator_source": "independent", "local_oscillator_phase_noise": own}
+    scenario = make_scenario(drive={"detuning_hz": -0.7e6, "phase_noise": FLOOR},
+                             mechanics={"coupling_hz": 0.0}, detection=detection)
+    f = np.linspace(-3e6, 3e6, 13) + 1234.5
+    spectrum = heterodyne_spectrum(scenario, f)
+    lo = sum(v for k, v in spectrum.contributions.items() if k.startswith("local-oscillator"))
+    laser = sum(v for k, v in spectrum.contributions.items() if k.startswith("laser"))
+    p = operating_point(scenario)
+    k, kex, d = 2 * np.pi * np.array([p.cavity_linewidth_hz, p.external_linewidth_hz,
+                                      p.detuning_effective_hz])
+    reflected = p.input_photon_flux * abs(1 - kex / (k / 2 - 1j * d)) ** 2
+    s_lo = laser_noise.phase_noise_density(scenario.detection.local_oscillator_phase_noise, f)
+    assert np.allclose(lo, scenario.detection.efficiency * reflected * s_lo, rtol=1e-9)
+    assert np.allclose(laser, drive_frame_density(scenario, f, lambda w: 0.0), rtol=1e-6)
+    assert not any(k.startswith("local-oscillator") and "motion" in k
+                   for k in spectrum.contributions)
+    coupled, clean = resolved(FLOOR, detection=detection), resolved(FLOOR, detection=INDEPENDENT)
+    assert steady_state(coupled).modes[0].occupation == pytest.approx(
+        steady_state(clean).modes[0].occupation, rel=1e-12)
+
+
 def test_delayed_reference_approaches_the_exact_delay():
     """The one-state Padé delay errs by at most (ωτ)²/6 in the phase-difference
     spectrum at ωτ ≤ 0.5 (exact: |1 − e^{iωτ}|² = 4 sin²(ωτ/2))."""
@@ -401,6 +429,12 @@ BAD = [
      "drive.phase_noise.peak_frequency_hz", "missing"),
     (dict(calibration_tone={"depth_rad": 0.5, "frequency_hz": 1e6}), {},
      "drive.calibration_tone.depth_rad", "at most 0.1"),
+    (dict(), {"local_oscillator_phase_noise": {"floor_rad2_per_hz": 1e-12,
+                                               "floor_high_hz": 1e7}},
+     "detection.local_oscillator_phase_noise", 'only for "independent"'),
+    (dict(), {"local_oscillator_source": "independent",
+              "local_oscillator_phase_noise": {"linewidth_hz": 10.0}},
+     "detection.local_oscillator_phase_noise.linewidth_hz", "random walk"),
 ]
 
 
