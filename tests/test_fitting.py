@@ -107,3 +107,26 @@ def test_bad_segment_length_is_a_clear_error():
 
     with pytest.raises(InputError, match="segment_samples"):
         averaged_periodogram(np.zeros(10), 1.0, segment_samples=100)
+
+
+@pytest.mark.parametrize("fit", ["whittle", "least_squares"])
+def test_fits_start_where_they_are_told_negative_values_included(fit):
+    """Parameters are scaled by |initial| internally; the first point tried must
+    still be the given one, sign and all (a start at |θ0| once sent a Fano fit
+    with negative dispersive weights into another basin). Recovers a falling
+    line exactly."""
+    f = np.linspace(0.0, 1.0, 200)
+    truth = np.array([2.0, -1.0])
+    tried = []
+
+    def line(x, theta):
+        tried.append(np.array(theta, dtype=float))
+        return theta[0] + theta[1] * x
+
+    start = [1.5, -0.5]
+    if fit == "whittle":
+        result = fit_whittle(line, f, line(f, truth), 10**6, start)
+    else:
+        result = fit_least_squares(line, f, line(f, truth), start)
+    assert np.array_equal(tried[1], start)  # tried[0] made the data
+    assert np.allclose(result.values, truth, rtol=1e-6)

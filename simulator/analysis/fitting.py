@@ -120,7 +120,7 @@ def fit_whittle(model, frequency, density, averages, initial, *, names=None,
     def objective(u):
         return whittle_nll(model, u * scale, f, p, averages) / f.size
 
-    res = scipy.optimize.minimize(objective, np.ones(theta0.size), method="L-BFGS-B"
+    res = scipy.optimize.minimize(objective, theta0 / scale, method="L-BFGS-B"
                                   if bounds else "BFGS", bounds=bounds,
                                   options={"maxiter": 2000})
     theta, converged = _fisher_scoring(model, res.x * scale, f, p, averages, scale, bounds)
@@ -185,7 +185,7 @@ def fit_least_squares(model, frequency, density, initial, *, names=None, log=Fal
     else:
         def residual(u):
             return model(frequency, u * scale) - density
-    res = scipy.optimize.least_squares(residual, np.ones(theta0.size), method="lm",
+    res = scipy.optimize.least_squares(residual, theta0 / scale, method="lm",
                                        xtol=1e-12, ftol=1e-12)
     jac = res.jac / scale
     dof = max(frequency.size - theta0.size, 1)

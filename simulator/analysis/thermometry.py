@@ -82,26 +82,45 @@ def cavity_filter(frequency_hz, cavity_linewidth_hz, detuning_hz):
     return half**2 / (half**2 + (np.asarray(frequency_hz) + detuning_hz) ** 2)
 
 
-def sideband_model(cal, sample_rate_hz=None):
-    """Model S(ν; b, Ω, γ, c_S, c_AS) for :func:`fit_whittle` (see module notes).
+def sideband_model(cal, sample_rate_hz=None, fano_band_hz=None):
+    """Model S(ν; θ) for :func:`fit_whittle`, θ named by PARAMETERS (+ FANO_PARAMETERS).
 
     With ``sample_rate_hz`` the sideband terms carry the sinc²(ν/fs) of
     integrate-and-dump sampling; the white floor does not (its aliases sum
-    to a constant: Σ_k sinc²(x + k) = 1).
+    to a constant: Σ_k sinc²(x + k) = 1). With ``fano_band_hz`` (the half
+    width of the fitted band around each line) each sideband also has a
+    dispersive partner d D(x), D(x) = (x/π)/(x² + γ²/4), x the offset from
+    the line (the shape classical noise gives a line when the detector sees
+    it too, docs/laser-noise.md), and the background on each side is a
+    quadratic in x/band, b + b₁ x/band + b₂ (x/band)²: that noise shapes the
+    floor on the cavity's scale, and a flat floor would let D's 1/x tails
+    mimic its slope.
     """
 
     def model(f, theta):
-        floor, centre, width, c_s, c_as = theta
+        floor, centre, width, c_s, c_as = theta[:5]
         lor = lambda x: (width / (2 * np.pi)) / (x**2 + width**2 / 4)  # noqa: E731
         filt = cavity_filter(f, cal.cavity_linewidth_hz, cal.detuning_hz)
         if sample_rate_hz:
             filt = filt * np.sinc(f / sample_rate_hz) ** 2
-        return floor + filt * (c_s * lor(f + centre) + c_as * lor(f - centre))
+        lines = c_s * lor(f + centre) + c_as * lor(f - centre)
+        if not fano_band_hz:
+            return floor + filt * lines
+        d_s, d_as, floor_as, s_s, q_s, s_as, q_as = theta[5:]
+        disp = lambda x: (x / np.pi) / (x**2 + width**2 / 4)  # noqa: E731
+        lines = lines + d_s * disp(f + centre) + d_as * disp(f - centre)
+        x_s, x_as = (f + centre) / fano_band_hz, (f - centre) / fano_band_hz
+        background = np.where(f > 0, floor_as + s_as * x_as + q_as * x_as**2,
+                              floor + s_s * x_s + q_s * x_s**2)
+        return background + filt * lines
 
     return model
 
 
 PARAMETERS = ("floor", "frequency_hz", "linewidth_hz", "stokes_area", "anti_stokes_area")
+FANO_PARAMETERS = ("stokes_dispersive", "anti_stokes_dispersive", "anti_stokes_floor",
+                   "stokes_floor_slope", "stokes_floor_curvature", "anti_stokes_floor_slope",
+                   "anti_stokes_floor_curvature")  # "floor" is then the Stokes side's
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -129,7 +148,7 @@ class Thermometry:
         return out
 
 
-def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None):
+def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, fano=False):
     """Fit the sidebands of one mode in a two-sided heterodyne PSD; estimate n.
 
     Parameters
@@ -144,6 +163,12 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None):
     sample_rate_hz : float, optional
         For a periodogram of integrate-and-dump samples: the sideband terms of
         the model then carry sinc²(ν/fs) (the data are not altered).
+    fano : bool
+        Fit each sideband's dispersive partner too, so that Fano-shaped
+        lines (classical noise the detector also sees) do not bias the
+        areas. The areas are then the Lorentzian weights, which such noise
+        shifts as well: the asymmetry reads the apparent occupation of
+        :func:`simulator.sidebands.sideband_summary`, not the true one.
 
     Returns
     -------
@@ -175,10 +200,14 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None):
     else:
         excess_as = max(excess_s - per_quantum, 1e-3 * per_quantum)
     initial = [floor0, omega, abs(width0), excess_s, excess_as]
-    model = sideband_model(cal, sample_rate_hz)
-    fit = fit_whittle(model, f, p, psd.averages, initial, names=PARAMETERS,
-                      lower=[0, 0.5 * omega, 0, 0, 0], upper=[np.inf, 1.5 * omega] + [np.inf] * 3)
-    _, _, width, c_s, c_as = fit.values
+    lower, upper = [0, 0.5 * omega, 0, 0, 0], [np.inf, 1.5 * omega] + [np.inf] * 3
+    if fano:
+        fit = _fano_fit(omega, abs(width0), cal, f, p, psd.averages, half_band, sample_rate_hz,
+                        lower, upper)
+    else:
+        fit = fit_whittle(sideband_model(cal, sample_rate_hz), f, p, psd.averages, initial,
+                          names=PARAMETERS, lower=lower, upper=upper)
+    _, _, width, c_s, c_as = fit.values[:5]
     cov = fit.covariance
     errors = fit.errors.copy()
     nan = float("nan")
@@ -190,7 +219,8 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None):
         r = c_as / c_s
         n_asym = r / (1 - r)
         # ∂n/∂c_AS = c_S/(c_S − c_AS)², ∂n/∂c_S = −c_AS/(c_S − c_AS)²
-        grad = np.array([0, 0, 0, -c_as, c_s]) / (c_s - c_as) ** 2
+        grad = np.zeros(len(fit.values))
+        grad[3:5] = np.array([-c_as, c_s]) / (c_s - c_as) ** 2
         err_asym = float(np.sqrt(max(grad @ cov @ grad, 0)))
     if c_s <= 0:
         errors[3] = nan
@@ -206,3 +236,33 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None):
         occupation_damping=float(n_damp),
         occupation_damping_error=float(n_damp * errors[2] / width),
         fit=fit)
+
+
+def _fano_fit(centre, width, cal, f, p, averages, half_band, sample_rate_hz, lower, upper):
+    """Whittle fit of the Fano model from the expected centre and width.
+
+    Twelve parameters from a cold start wander off, and a Lorentzian fit on a
+    shaped floor is no better start (it takes the floor for a broad line);
+    given the centre and width the model is linear in the other ten, so they
+    start from an ordinary least-squares solution on each side.
+    """
+    filt = cavity_filter(f, cal.cavity_linewidth_hz, cal.detuning_hz)
+    if sample_rate_hz:
+        filt = filt * np.sinc(f / sample_rate_hz) ** 2
+    coef = {}
+    for side, sign in (("s", -1), ("as", +1)):
+        sel = np.sign(f) == sign
+        x = f[sel] - sign * centre
+        den = x**2 + width**2 / 4
+        basis = np.column_stack([filt[sel] * width / (2 * np.pi) / den,
+                                 filt[sel] * x / np.pi / den,
+                                 np.ones_like(x), x / half_band, (x / half_band) ** 2])
+        coef[side] = np.linalg.lstsq(basis, p[sel], rcond=None)[0]
+    cs, cas = coef["s"], coef["as"]
+    initial = [cs[2], centre, width, max(cs[0], 1e-6 * abs(cs[0]) + 1e-12),
+               max(cas[0], 1e-12), cs[1], cas[1], cas[2], cs[3], cs[4], cas[3], cas[4]]
+    initial = [v if v != 0 else 1e-12 for v in initial]
+    n_extra = len(FANO_PARAMETERS)
+    return fit_whittle(sideband_model(cal, sample_rate_hz, half_band), f, p, averages,
+                       initial, names=PARAMETERS + FANO_PARAMETERS,
+                       lower=lower + [-np.inf] * n_extra, upper=upper + [np.inf] * n_extra)
