@@ -271,11 +271,12 @@ def simulate_record(scenario, *, seed=None, duration_s=None, out=None, form="aut
         record = sink.finish(clipped)
     coarse = quantisation_share(plan)
     if coarse > QUANTISATION_WARNING:
+        coarse_words = (" (a step this close to the signal's standard deviation also makes "
+                        "the rounding error depend on the signal)" if coarse > 1.0 / 12 else "")
         warnings.warn(f"the digitiser's step ({plan.bits} bits over ±{plan.full_scale_v:.6g} V) "
-                      f"adds rounding noise of {100.0 * coarse:.3g} % of the record's variance "
-                      "(Δ²/12), and so coarse a rounding is no longer independent of the "
-                      "signal; raise digitizer.bits or lower digitizer.full_scale_v",
-                      RecordWarning, stacklevel=2)
+                      f"adds rounding noise Δ²/12 of {100.0 * coarse:.3g} % of the record's "
+                      f"variance{coarse_words}; raise digitizer.bits or lower "
+                      "digitizer.full_scale_v", RecordWarning, stacklevel=2)
     if clipped:
         warnings.warn(f"{clipped} of {plan.n_samples} samples "
                       f"({100.0 * clipped / plan.n_samples:.3g} %) clipped at the digitiser's "
@@ -284,7 +285,7 @@ def simulate_record(scenario, *, seed=None, duration_s=None, out=None, form="aut
     return record
 
 
-QUANTISATION_WARNING = 0.01  # rounding variance Δ²/12 above 1 % of the signal's
+QUANTISATION_WARNING = 0.01  # rounding variance Δ²/12 above 1 % of the signal's (our choice)
 
 
 def quantisation_share(plan):

@@ -16,9 +16,10 @@ pole it is c/(ω − ω_k) + c̄/(ω − ω̄_k) + (smooth), i.e. on the real ax
     Im(c) · L(ν) + Re(c) · D(ν),
 
 a Lorentzian L of unit area (centre Re ω_k/2π, FWHM −2 Im ω_k/2π) and its
-dispersive partner D = (ν − ν0)/(π((ν − ν0)² + (w/2)²)). The sideband area
-is the Lorentzian weight Im(c) divided by F at the centre; the dispersive
-weight Re(c)/F is the Fano asymmetry, zero for vacuum inputs at the
+dispersive partner D = (ν − ν0)/(π((ν − ν0)² + (w/2)²)). In quanta, the
+sideband area is Im(c/F) and the dispersive weight Re(c/F), with F continued
+analytically to the complex pole (it differs from F at the centre by order
+γ/κ); the dispersive weight is the Fano asymmetry, zero for vacuum inputs at the
 anti-Stokes line and large where classical noise the detector also sees
 interferes with the motion it drives. The weight is what a Lorentzian plus
 dispersive fit over a span of many linewidths (but much less than κ)
@@ -48,12 +49,14 @@ from simulator.physics import TWO_PI, angular
 from simulator.spectra import prepare
 from simulator.steady_state import mode_eigenvalues, steady_state
 
-# |w_k v_k| below this (unit-norm vectors) is an eigenvalue at or near an
-# exceptional point: no isolated Lorentzian line, so no sideband area.
+# |w_k v_k| below this (unit-norm vectors of the cavity–mechanics block) is an
+# eigenvalue at an exceptional point: no isolated Lorentzian line, no area.
 DEFECTIVE = 1e-8
-# Below this overlap the line is a hybrid of mechanics and cavity (normal-mode
-# splitting, or near an exceptional point): its weights say little about n.
-HYBRID = 0.5
+# The mode's share of its pole's residue projector, p = Σ_mode v_i w_i / (w v),
+# is 1 for a mechanical line, about ½ past normal-mode splitting (with the
+# cavity or another mode) and large near an exceptional point; beyond this
+# distance from 1 the weights say little about n.
+HYBRID = 0.1
 NO_LINE = complex(np.nan, np.nan)
 
 
@@ -144,8 +147,8 @@ def sideband_summary(scenario, *, point=None, model=None):
     point, model = prepare(scenario, point, model)
     steady = steady_state(scenario, model=model, point=point)
     eta = scenario.detection.efficiency
-    poles = _Poles(model)
-    stokes_index = mode_eigenvalues(poles.lam, poles.right, len(point.modes))
+    poles = _Poles(model, len(point.modes))
+    stokes_index = [poles.index_of(lam) for lam in mode_eigenvalues(model, len(point.modes))]
     summaries = []
     for j, mode in enumerate(point.modes):
         sides = {}
@@ -161,11 +164,7 @@ def sideband_summary(scenario, *, point=None, model=None):
         with np.errstate(divide="ignore", invalid="ignore"):
             ratio = np.float64(sides[+1].area_quanta) / sides[-1].area_quanta
             implied = ratio / (1.0 - ratio)
-        overlap = poles.overlap(stokes_index[j])
-        warning = "" if overlap >= HYBRID or not coupled else (
-            f"the line is a mechanics-cavity hybrid (eigenvector overlap {overlap:.2g} < "
-            f"{HYBRID}: strong coupling or near an exceptional point); its weights are "
-            "not n and n + 1")
+        warning = _warning(poles, stokes_index[j], j) if coupled else ""
         summaries.append(SidebandSummary(
             mode=mode.name, stokes=sides[-1], anti_stokes=sides[+1], ratio=float(ratio),
             occupation_from_ratio=float(implied),
@@ -174,11 +173,30 @@ def sideband_summary(scenario, *, point=None, model=None):
     return tuple(summaries)
 
 
+def _warning(poles, k, j):
+    """Why the weights of mode j's line (pole k) are not to be read as n and n + 1, or ""."""
+    if poles.defective(k):
+        return ("the mode's pole is defective (an exceptional point, or a noise resonance "
+                "exactly on the line): the line is no Lorentzian and has no weights")
+    share = poles.participation(k, j)
+    if abs(share - 1) > HYBRID:
+        return (f"the line is a hybrid, not the mode alone (its share of the pole is "
+                f"{share:.3g}, not 1: normal-mode splitting with the cavity or another "
+                "mode, or near an exceptional point); its weights are not n and n + 1")
+    near = poles.noise_resonance_near(k)
+    if near is not None:
+        return (f"a laser-noise resonance at {near[0]:.6g} Hz (width {near[1]:.3g} Hz) "
+                "overlaps the line: it is not a Lorentzian plus its dispersive partner, "
+                "and the weights are not n and n + 1")
+    return ""
+
+
 class _Poles:
     """Poles ω_k = iλ_k of the heterodyne output density and their residues."""
 
-    def __init__(self, model):
+    def __init__(self, model, n_modes):
         self.model = model
+        self.device = 2 + 2 * n_modes  # cavity and mechanics come first
         # balance first: with laser-noise filter states the raw eigenvectors of a
         # simple eigenvalue can be nearly orthogonal to its left ones (scaling only)
         balanced, (self.scale, _) = scipy.linalg.matrix_balance(
@@ -202,15 +220,44 @@ class _Poles:
     def linewidth_hz(self, k):
         return float(-2.0 * np.real(self.lam[k]) / (2 * np.pi))
 
-    def overlap(self, k):
-        """|w_k v_k| of the balanced unit eigenvectors: 1 for an isolated line, 0 at an EP."""
+    def index_of(self, lam):
+        """Index of the eigenvalue of the whole drift nearest ``lam``."""
+        return int(np.argmin(np.abs(self.lam - lam)))
+
+    def participation(self, k, mode_index):
+        """Mode ``mode_index``'s share Σ v_i w_i / (w v) of the residue projector of λ_k."""
+        v, w = self.right_b[:, k] * self.scale, self.left_b[:, k].conj() / self.scale
+        device = slice(0, self.device)
+        quads = slice(2 + 2 * mode_index, 4 + 2 * mode_index)
+        return complex(w[quads] @ v[quads] / (w[device] @ v[device]))
+
+    def defective(self, k):
+        """True at an exceptional point: left and right vectors orthogonal.
+
+        Checked on the cavity–mechanics block (a mode at its exceptional
+        point) and on the whole, balanced drift (a noise filter pole exactly
+        on the mode's: a double pole, whose line is no Lorentzian).
+        """
+        v, w = self.right_b[:, k] * self.scale, self.left_b[:, k].conj() / self.scale
         vb, wb = self.right_b[:, k], self.left_b[:, k].conj()
-        return float(abs(wb @ vb) / (np.linalg.norm(wb) * np.linalg.norm(vb)))
+        return any(abs(y @ x) < DEFECTIVE * np.linalg.norm(y) * np.linalg.norm(x)
+                   for x, y in ((v[:self.device], w[:self.device]), (vb, wb)))
+
+    def noise_resonance_near(self, k):
+        """A pole of the noise filters (not of the cavity or mechanics) within the
+        half-width |Re λ_k| of pole k, as its (frequency, FWHM) in Hz, or None."""
+        device = np.linalg.eigvals(self.model.A[:self.device, :self.device])
+        for lam in self.lam:
+            if np.min(np.abs(device - lam)) <= 1e-9 * abs(lam) + 1e-12:
+                continue  # an eigenvalue of the cavity–mechanics block
+            if abs(lam - self.lam[k]) < abs(self.lam[k].real):
+                return (abs(lam.imag) / (2 * np.pi), -2 * lam.real / (2 * np.pi))
+        return None
 
     def residue(self, k):
         """c: residue of N_out(ω) at ω_k = iλ_k (ω in rad/s, N_out per Hz)."""
         model, vb, wb = self.model, self.right_b[:, k], self.left_b[:, k].conj()
-        if self.overlap(k) < DEFECTIVE:
+        if self.defective(k):
             return NO_LINE
         v, w = self.scale * vb, wb / self.scale
         res_h = 1j * (self.uc @ v) * (w @ model.B) / (wb @ vb)

@@ -170,23 +170,28 @@ def _laser_occupation(scenario, point, mode):
 def effective_mechanics(model, n_modes):
     """Effective frequency and linewidth (Hz) of each mechanical mode.
 
-    The eigenvalue λ of A chosen for each mode by :func:`mode_eigenvalues`
-    gives frequency |Im λ|/2π and energy linewidth −2 Re λ/2π.
+    The eigenvalue λ chosen for each mode by :func:`mode_eigenvalues` gives
+    frequency |Im λ|/2π and energy linewidth −2 Re λ/2π.
     """
-    lam, vec = np.linalg.eig(model.A)
-    chosen = lam[mode_eigenvalues(lam, vec, n_modes)]
+    chosen = mode_eigenvalues(model, n_modes)
     return (tuple(float(x) for x in np.abs(chosen.imag) / (2 * np.pi)),
             tuple(float(x) for x in -2 * chosen.real / (2 * np.pi)))
 
 
-def mode_eigenvalues(lam, vec, n_modes):
-    """Index into ``lam`` of each mechanical mode's eigenvalue (the one with Im λ ≥ 0).
+def mode_eigenvalues(model, n_modes):
+    """Each mechanical mode's eigenvalue of the drift matrix (the one with Im λ ≥ 0).
 
-    Each mode is matched to the eigenvalue whose (right) eigenvector has the
-    largest weight on that mode's quadratures, one eigenvalue per mode (an
-    assignment problem). Past normal-mode splitting the assignment picks the
-    hybrid mode that is more mechanical.
+    Taken from the cavity–mechanics block alone (the first 2 + 2·modes
+    states): classical laser-noise filters drive that block and detection
+    states are driven by it, neither feeds back, so its eigenvalues are
+    exactly eigenvalues of the whole A, and a filter pole next to a mode
+    cannot be mistaken for it. Each mode is matched to the eigenvalue whose
+    eigenvector has the largest weight on that mode's quadratures, one
+    eigenvalue per mode (an assignment problem); past normal-mode splitting
+    the assignment picks the hybrid mode that is more mechanical.
     """
+    size = 2 + 2 * n_modes
+    lam, vec = np.linalg.eig(model.A[:size, :size])
     candidates = np.flatnonzero(lam.imag >= -1e-12 * np.abs(lam))
     if len(candidates) < n_modes:
         candidates = np.arange(len(lam))
@@ -195,7 +200,7 @@ def mode_eigenvalues(lam, vec, n_modes):
     score = np.array([[weights[2 + 2 * j, k] + weights[3 + 2 * j, k] for k in candidates]
                       for j in range(n_modes)])
     rows, cols = linear_sum_assignment(-score) if n_modes else ((), ())
-    index = np.zeros(n_modes, dtype=int)
+    chosen = np.zeros(n_modes, dtype=complex)
     for j, c in zip(rows, cols, strict=False):
-        index[j] = candidates[c]
-    return index
+        chosen[j] = lam[candidates[c]]
+    return chosen

@@ -26,7 +26,7 @@ from simulator.errors import ScenarioError
 from simulator.sweep_spec import MAX_POINTS, axis_numbers
 
 FORMAT = "noisechain-sweep"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2  # 2: a unit axis is named for the ratio it holds
 
 # Per-point scalar results, with units (NaN where the point has no steady state).
 POINT_QUANTITIES = {

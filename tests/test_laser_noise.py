@@ -233,12 +233,14 @@ def interference_closed_form(scenario, reference):
     """Weak-coupling closed form of the shifts of the sideband weights by classical drive noise.
 
     Derived from the linearised input-output equations (Gardiner and Collett,
-    Phys. Rev. A 31, 3761 (1985)) in the way Safavi-Naeini et al., New J.
-    Phys. 15, 035007 (2013) and Jayich et al., New J. Phys. 14, 115018 (2012)
-    treat laser noise; the derivation is in docs/laser-noise.md. With the
+    Phys. Rev. A 31, 3761 (1985)) in the way, as we recall it (from memory),
+    Safavi-Naeini et al., New J. Phys. 15, 035007 (2013) and Jayich et al.,
+    New J. Phys. 14, 115018 (2012) treat laser noise; the derivation is in
+    docs/laser-noise.md. With the
     intracavity mean field real, the drive has phase e^{iθ} ∝ κ/2 − iΔ and a
-    noise quadrature q enters as δa_in = s q √Φ: s = i e^{iθ} (phase, q = φ),
-    s = e^{iθ}/2 (intensity, q = ε). At ω_σ = σΩm (σ = +1 anti-Stokes)
+    noise quadrature q enters as δa_in = s q √Φ: s = −i e^{iθ} (phase, q = φ,
+    δa_in = −iā_in φ), s = e^{iθ}/2 (intensity, q = ε); δ_σ is even in s.
+    At ω_σ = σΩm (σ = +1 anti-Stokes)
 
         δ_σ = σ Φ S̄_qq(Ωm) [D(ω_σ) s]* K(ω_σ) / χ_c(ω_σ)*,
         K(ω) = χ_c(ω) s + χ_c(−ω)* s*,   χ_c(ω) = 1/(κ/2 − i(Δ + ω)),
@@ -259,7 +261,7 @@ def interference_closed_form(scenario, reference):
 
     theta = (k / 2 - 1j * d) / abs(k / 2 - 1j * d)
     drive = scenario.drive
-    quadratures = [(1j * theta, laser_noise.phase_noise_density(drive.phase_noise, om / 2 / np.pi),
+    quadratures = [(-1j * theta, laser_noise.phase_noise_density(drive.phase_noise, om / 2 / np.pi),
                     reference),
                    (theta / 2, drive.intensity_noise.relative_intensity_noise_per_hz / 2,
                     lambda w: 0.0)]
@@ -330,6 +332,9 @@ def test_resolved_sideband_limits_of_the_false_asymmetry(name, coupling):
     want_as, want_s = limits(coupling)
     assert d_as.real == pytest.approx(want_as * n_c, abs=0.02 * n_c)
     assert d_s.real == pytest.approx(want_s * n_c, abs=0.02 * n_c)
+    # the ratio thermometer reads (n + δ_AS)/(1 + δ_S − δ_AS): low or high by row
+    a, b = want_as * n_c, want_s * n_c
+    assert apparent == pytest.approx((n + a) / (1 + b - a), rel=0.02)
     if name == "phase noise, common LO":
         assert apparent == pytest.approx(n - 2 * coupling * n_c, rel=0.01)
 
@@ -359,6 +364,32 @@ def test_the_local_oscillator_changes_the_reading_not_the_heating():
     *_, low, n = sideband_shifts(common)
     *_, high, _ = sideband_shifts(independent)
     assert low < n < high
+
+
+@pytest.mark.parametrize("centre, width, expect", [
+    (19.5e6, 1e5, "clean"), (20e6, 1e6, "clean"), (20e6, 50.0, "warned"),
+    (20e6, 110.0, "no line")])
+def test_a_noise_resonance_is_never_taken_for_the_mode(centre, width, expect):
+    """A faint phase-noise peak (1e-16 rad²/Hz) near or on the mode's line: the
+    mode keeps its own pole (effective linewidth Γm + Γopt = 110 Hz, not the
+    peak's), and the summary's weights stay n and n + 1 when the peak is
+    apart; when it overlaps the line the summary warns, and when its pole
+    coincides with the mode's (a double pole: no Lorentzian) the weights are
+    NaN with the reason."""
+    scenario = resolved({"peak_rad2_per_hz": 1e-16, "peak_frequency_hz": centre,
+                         "peak_width_hz": width})
+    mode_state = steady_state(scenario).modes[0]
+    assert mode_state.effective_linewidth_hz == pytest.approx(110.0, rel=1e-3)
+    s = sideband_summary(scenario)[0]
+    n = mode_state.occupation
+    if expect == "clean":
+        assert s.warning == ""
+        assert s.anti_stokes.area_quanta == pytest.approx(n, rel=1e-3)
+        assert s.stokes.area_quanta == pytest.approx(n + 1, rel=1e-3)
+    elif expect == "warned":
+        assert "laser-noise resonance" in s.warning
+    else:
+        assert "defective" in s.warning and np.isnan(s.anti_stokes.area_quanta)
 
 
 def test_budget_sums_and_the_vacuum_floor_stays_one():

@@ -171,3 +171,17 @@ def test_bad_options_are_input_errors():
             master_steady_state(scenario, "linearised", **kwargs)
     with pytest.raises(InputError):
         master_steady_state(scenario, "quadratic")
+
+
+def test_classical_laser_noise_is_refused_not_ignored():
+    """The master engine has no classical noise inputs: a scenario with laser
+    noise or a tone is refused with the tables named, never compared silently
+    with a noise-free model."""
+    from simulator.scenario import scenario_from_dict
+
+    data = scenario_with_coupling(**WEAK["blue side, stable"]).to_dict()
+    data["drive"]["intensity_noise"] = {"relative_intensity_noise_per_hz": 1e-14}
+    noisy = scenario_from_dict(data, source="<test>")
+    for kind in ("full", "linearised"):
+        with pytest.raises(InputError, match=r"\[drive.phase_noise\].*linear engine"):
+            master_steady_state(noisy, kind)

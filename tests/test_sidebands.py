@@ -132,9 +132,10 @@ def test_summary_of_an_undriven_mode_is_empty_not_an_error():
 
 
 def test_a_hybrid_line_is_flagged_not_read_as_n():
-    """Near the exceptional point of the red-detuned beam splitter (g ≈ κ/4)
-    the mode's pole has nearly parallel left and right eigenvectors and huge
-    cancelling residues; the summary says so instead of passing the weights
+    """The mode's share of its pole's residue projector is 1 for a mechanical
+    line, large near the exceptional point of the red-detuned beam splitter
+    (g ≈ κ/4, huge cancelling residues) and about ½ past normal-mode
+    splitting (g ≫ κ/4); the summary says so instead of passing the weights
     off as n and n + 1. Weak coupling carries no warning."""
     def summary(g_hz):
         return sideband_summary(scenario_with_coupling(
@@ -143,4 +144,19 @@ def test_a_hybrid_line_is_flagged_not_read_as_n():
     near = summary(0.2499e6)
     assert "hybrid" in near.warning and "exceptional point" in near.warning
     assert near.stokes.area_quanta > 5 * (near.steady_state_occupation + 1)  # meaningless
+    for g_hz in (1e6, 2e6):  # split: each line is half cavity, half mechanics
+        split = summary(g_hz)
+        assert "hybrid" in split.warning and "0.5" in split.warning
+        assert split.stokes.area_quanta == pytest.approx(0.5, abs=0.03)
     assert summary(1e4).warning == ""
+
+
+def test_modes_hybridised_through_the_cavity_are_flagged():
+    """Two modes 5 Hz apart, both coupled to one cavity: the light sees a bright
+    and a dark combination, neither line is one mode's, and both summaries
+    say so (each mode's share of its pole ≈ ½)."""
+    out = sideband_summary(scenario_with_coupling(
+        g_hz=1e4, detuning_hz=-20e6,
+        modes=[mode("a", frequency_hz=20e6, linewidth_hz=50.0, bath_occupation=5.0),
+               mode("b", frequency_hz=20e6 + 5, linewidth_hz=20.0, bath_occupation=10.0)]))
+    assert all("hybrid" in s.warning for s in out)

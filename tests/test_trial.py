@@ -120,7 +120,8 @@ def _noisy(scenario, floor):
     return scenario_from_dict(data, source="<noisy harness scenario>")
 
 
-def test_fano_fit_of_the_exact_record_spectrum_gives_the_summary_weights(scenario):
+@pytest.mark.parametrize("floor", [1e-10, 3e-10])
+def test_fano_fit_of_the_exact_record_spectrum_gives_the_summary_weights(scenario, floor):
     """The Fano-aware thermometry fitted to the exact expected periodogram of a
     record with phase noise (the chain's sampled spectrum, very many averages)
     returns the sideband summary's Lorentzian and dispersive weights: records
@@ -131,7 +132,7 @@ def test_fano_fit_of_the_exact_record_spectrum_gives_the_summary_weights(scenari
     from simulator.records import plan_record
     from simulator.sidebands import sideband_summary
 
-    noisy = _noisy(scenario, 1e-10)
+    noisy = _noisy(scenario, floor)
     plan = plan_record(noisy)
     fs = plan.sample_rate_hz
     cal = Calibration.from_scenario(noisy)
@@ -146,13 +147,16 @@ def test_fano_fit_of_the_exact_record_spectrum_gives_the_summary_weights(scenari
     per_quantum = cal.area_per_quantum()
     for key, side in (("anti_stokes", summary.anti_stokes), ("stokes", summary.stokes)):
         assert weights[f"{key}_area"][0] / per_quantum == pytest.approx(side.area_quanta,
-                                                                          rel=0.01)
+                                                                          rel=0.01, abs=2e-3)
         assert weights[f"{key}_dispersive"][0] / per_quantum == pytest.approx(
             side.dispersive_quanta, rel=0.03)
-    assert result.occupation_asymmetry == pytest.approx(summary.occupation_from_ratio, rel=0.02)
+    assert result.occupation_asymmetry == pytest.approx(summary.occupation_from_ratio, rel=0.02,
+                                                        abs=2e-3)
+    if floor > 1e-10:  # the noise pushes the anti-Stokes weight below zero: still fitted
+        assert summary.anti_stokes.area_quanta < 0 and result.occupation_asymmetry < 0
     assert summary.occupation_from_ratio < 0.5 * summary.steady_state_occupation
     plain = measure_occupation(psd, cal, sample_rate_hz=fs)
-    assert abs(plain.occupation_asymmetry - summary.occupation_from_ratio) > 0.02
+    assert not abs(plain.occupation_asymmetry - summary.occupation_from_ratio) <= 0.02  # or NaN
 
 
 def test_laser_noise_shows_as_a_bias_against_the_truth_not_the_apparent_value(

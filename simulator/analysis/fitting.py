@@ -120,9 +120,10 @@ def fit_whittle(model, frequency, density, averages, initial, *, names=None,
     def objective(u):
         return whittle_nll(model, u * scale, f, p, averages) / f.size
 
-    res = scipy.optimize.minimize(objective, theta0 / scale, method="L-BFGS-B"
-                                  if bounds else "BFGS", bounds=bounds,
-                                  options={"maxiter": 2000})
+    with np.errstate(invalid="ignore", over="ignore"):  # trial steps may leave the domain
+        res = scipy.optimize.minimize(objective, theta0 / scale, method="L-BFGS-B"
+                                      if bounds else "BFGS", bounds=bounds,
+                                      options={"maxiter": 2000})
     theta, converged = _fisher_scoring(model, res.x * scale, f, p, averages, scale, bounds)
     info = fisher_information(model, theta, f, averages, scale)
     try:

@@ -201,7 +201,8 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
         excess_as = max(excess_s - per_quantum, 1e-3 * per_quantum)
     initial = [floor0, omega, abs(width0), excess_s, excess_as]
     lower, upper = [0, 0.5 * omega, 0, 0, 0], [np.inf, 1.5 * omega] + [np.inf] * 3
-    if fano:
+    if fano:  # Lorentzian weights may be negative here: noise can push them below 0
+        lower[3:5] = [-np.inf, -np.inf]
         fit = _fano_fit(omega, abs(width0), cal, f, p, psd.averages, half_band, sample_rate_hz,
                         lower, upper)
     else:
@@ -213,7 +214,9 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
     nan = float("nan")
     # an area pinned at its bound (0) is not an estimate: the record does not
     # resolve that sideband, so everything built on it is reported as missing
-    if c_s <= 0 or c_as <= 0 or c_s == c_as:
+    # (the Fano fit has no such bound)
+    pinned_s, pinned_as = (False, False) if fano else (c_s <= 0, c_as <= 0)
+    if pinned_s or pinned_as or c_s == c_as:
         n_asym = err_asym = nan
     else:
         r = c_as / c_s
@@ -222,11 +225,12 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
         grad = np.zeros(len(fit.values))
         grad[3:5] = np.array([-c_as, c_s]) / (c_s - c_as) ** 2
         err_asym = float(np.sqrt(max(grad @ cov @ grad, 0)))
-    if c_s <= 0:
+    if pinned_s:
         errors[3] = nan
-    if c_as <= 0:
+    if pinned_as:
         errors[4] = nan
-    n_damp = (cal.mechanical_linewidth_hz * cal.bath_occupation + cal.stokes_rate_hz()) / width
+    n_damp = ((cal.mechanical_linewidth_hz * cal.bath_occupation + cal.stokes_rate_hz()) / width
+              if width > 0 else nan)  # a fit collapsed to zero width estimates nothing
     return Thermometry(
         occupation_asymmetry=float(n_asym), occupation_asymmetry_error=err_asym,
         occupation_anti_stokes_area=float(c_as / per_quantum),
@@ -234,7 +238,7 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
         occupation_stokes_area=float(c_s / per_quantum - 1),
         occupation_stokes_area_error=float(errors[3] / per_quantum),
         occupation_damping=float(n_damp),
-        occupation_damping_error=float(n_damp * errors[2] / width),
+        occupation_damping_error=float(n_damp * errors[2] / width) if width > 0 else nan,
         fit=fit)
 
 
@@ -259,8 +263,8 @@ def _fano_fit(centre, width, cal, f, p, averages, half_band, sample_rate_hz, low
                                  np.ones_like(x), x / half_band, (x / half_band) ** 2])
         coef[side] = np.linalg.lstsq(basis, p[sel], rcond=None)[0]
     cs, cas = coef["s"], coef["as"]
-    initial = [cs[2], centre, width, max(cs[0], 1e-6 * abs(cs[0]) + 1e-12),
-               max(cas[0], 1e-12), cs[1], cas[1], cas[2], cs[3], cs[4], cas[3], cas[4]]
+    initial = [cs[2], centre, width, cs[0], cas[0], cs[1], cas[1], cas[2], cs[3], cs[4],
+               cas[3], cas[4]]
     initial = [v if v != 0 else 1e-12 for v in initial]
     n_extra = len(FANO_PARAMETERS)
     return fit_whittle(sideband_model(cal, sample_rate_hz, half_band), f, p, averages,

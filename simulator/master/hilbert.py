@@ -159,6 +159,15 @@ def build_model(scenario, kind="full", *, frame="auto", cutoffs=None,
 
     if kind not in KINDS:
         raise InputError(f"master-equation model {kind!r}; expected one of {', '.join(KINDS)}")
+    from simulator import laser_noise
+
+    if not laser_noise.is_quiet(scenario):
+        raise InputError(
+            "the master-equation engine models a shot-noise-limited drive and local "
+            "oscillator only; this scenario has classical laser noise or a calibration tone "
+            "([drive.phase_noise], [drive.intensity_noise], [drive.calibration_tone] or "
+            "[detection.local_oscillator_phase_noise]). Remove them to compare engines, "
+            "or use the linear engine, which models them")
     if frame not in FRAMES:
         raise InputError(f"master-equation frame {frame!r}; expected one of "
                          f"{', '.join(FRAMES)}")
