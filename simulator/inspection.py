@@ -184,6 +184,10 @@ def inspect_scenario(scenario, *, feasibility=True):
                             [ms.occupation for ms in steady.modes])
     laser = (() if steady is None or laser_noise.is_quiet(scenario)
              else laser_noise.occupation_report(scenario, point, steady))
+    warnings += [f"mode {ms.name}: the apparent (sideband ratio) occupation is not to be "
+                 f"trusted: {entry['apparent_occupation_warning']}"
+                 for ms, entry in zip(steady.modes if steady else (), laser, strict=False)
+                 if "apparent_occupation_warning" in entry]
     return Inspection(scenario=scenario, point=point, stability=verdict, steady=steady,
                       warnings=tuple(warnings), feasibility=feasibility, regime=regime,
                       laser=laser)

@@ -359,5 +359,7 @@ def occupation_report(scenario, point, steady):
                  "laser_noise_excess_occupation": mode.occupation - quiet.modes[j].occupation}
         if summaries is not None:
             entry["apparent_occupation_from_asymmetry"] = summaries[j].occupation_from_ratio
+            if summaries[j].warning:
+                entry["apparent_occupation_warning"] = summaries[j].warning
         out.append(entry)
     return tuple(out)

@@ -491,3 +491,19 @@ def test_inspect_reports_excess_and_apparent_occupation():
     assert "apparent (sideband ratio)" in report.to_text()
     plain = inspect_scenario(resolved()).to_dict()["modes"][0]
     assert "laser_noise_excess_occupation" not in plain
+
+
+def test_inspect_warns_when_the_apparent_occupation_is_not_to_be_trusted():
+    """Past weak coupling (g/κ ≈ 0.15 here) the summary's weights are not n and
+    n + 1 even without noise; `inspect` says so beside the apparent occupation."""
+    strong = scenario_with_coupling(
+        g_hz=0.15e6, linewidth_hz=1e6, detuning_hz=-4e6,
+        modes=[mode(frequency_hz=4e6, linewidth_hz=10.0, coupling_hz=100.0,
+                    bath_occupation=10.0)]).to_dict()
+    strong["drive"]["phase_noise"] = FLOOR
+    report = inspect_scenario(scenario_from_dict(strong, source="<test>"))
+    assert any("apparent (sideband ratio) occupation is not to be trusted" in w
+               for w in report.warnings)
+    assert "apparent_occupation_warning" in report.to_dict()["modes"][0]
+    quiet = inspect_scenario(resolved(FLOOR))
+    assert not any("apparent" in w for w in quiet.warnings)
