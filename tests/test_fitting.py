@@ -130,3 +130,29 @@ def test_fits_start_where_they_are_told_negative_values_included(fit):
         result = fit_least_squares(line, f, line(f, truth), start)
     assert np.array_equal(tried[1], start)  # tried[0] made the data
     assert np.allclose(result.values, truth, rtol=1e-6)
+
+
+@pytest.mark.parametrize("window", ["boxcar", "hann"])
+def test_windowed_expectation_is_the_density_convolved_with_the_window_kernel(window):
+    """E[P_k] from the autocovariance sum equals the brute-force convolution of
+    the density with |Σ w_n e^{−2πifn/fs}|²/(fs N) (Percival & Walden 1993,
+    Sec. 6.3), and its sum over the bins is the variance (Parseval)."""
+    import scipy.signal
+
+    from simulator.analysis.psd import WindowedExpectation
+
+    fs, n, f0, gamma = 1000.0, 64, 100.3, 40.0
+
+    def density(f):
+        return (gamma / (2 * np.pi)) / ((f - f0) ** 2 + gamma**2 / 4) + 0.01
+
+    expect = WindowedExpectation(fs, n, window, oversample=8)
+    e = expect(density)
+    w = scipy.signal.get_window(window, n, fftbins=True)
+    w = w / np.sqrt(np.mean(w**2))
+    fine = np.linspace(-fs / 2, fs / 2, 40_001)[:-1]
+    for k in range(0, n, 4):
+        kernel = np.abs(np.exp(-2j * np.pi * np.outer(expect.frequency_hz[k] - fine,
+                                                      np.arange(n)) / fs) @ w) ** 2 / (fs * n)
+        assert e[k] == pytest.approx(np.trapezoid(density(fine) * kernel, fine), rel=2e-3)
+    assert np.sum(e) * fs / n == pytest.approx(np.trapezoid(density(fine), fine), rel=1e-4)

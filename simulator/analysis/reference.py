@@ -8,7 +8,7 @@ nominal calibration, never the truth.
 
 import numpy as np
 
-from simulator.analysis.psd import averaged_periodogram
+from simulator.analysis.psd import WindowedExpectation, averaged_periodogram
 from simulator.analysis.thermometry import Calibration, measure_occupation
 from simulator.errors import InputError
 
@@ -38,8 +38,11 @@ def sideband_thermometry(record, mode=0, *, fano=False):
     a_minus = g**2 * k / (k**2 / 4 + (cal.detuning_hz + cal.mechanical_frequency_hz) ** 2)
     width = cal.mechanical_linewidth_hz + a_minus - cal.stokes_rate_hz()
     psd = record_psd(record, resolution_hz=abs(width) / 8)
+    # the periodogram's own kernel (boxcar: Fejér) convolves the model lines
+    smear = WindowedExpectation(record.sample_rate_hz, psd.frequency_hz.size, psd.window)
     # integrate-and-dump samples: the model carries the sinc², the data stay as they are
-    result = measure_occupation(psd, cal, sample_rate_hz=record.sample_rate_hz, fano=fano)
+    result = measure_occupation(psd, cal, sample_rate_hz=record.sample_rate_hz, fano=fano,
+                                smear=smear)
     out = {f"occupation:{key}": value for key, value in (
         ("asymmetry", (result.occupation_asymmetry, result.occupation_asymmetry_error)),
         ("anti_stokes_area", (result.occupation_anti_stokes_area,

@@ -82,7 +82,7 @@ def cavity_filter(frequency_hz, cavity_linewidth_hz, detuning_hz):
     return half**2 / (half**2 + (np.asarray(frequency_hz) + detuning_hz) ** 2)
 
 
-def sideband_model(cal, sample_rate_hz=None, fano_band_hz=None):
+def sideband_model(cal, sample_rate_hz=None, fano_band_hz=None, smear=None):
     """Model S(ν; θ) for :func:`fit_whittle`, θ named by PARAMETERS (+ FANO_PARAMETERS).
 
     With ``sample_rate_hz`` the sideband terms carry the sinc²(ν/fs) of
@@ -94,25 +94,40 @@ def sideband_model(cal, sample_rate_hz=None, fano_band_hz=None):
     it too, docs/laser-noise.md), and the background on each side is a
     quadratic in x/band, b + b₁ x/band + b₂ (x/band)²: that noise shapes the
     floor on the cavity's scale, and a flat floor would let D's 1/x tails
-    mimic its slope.
+    mimic its slope. With ``smear`` (a
+    :class:`simulator.analysis.psd.WindowedExpectation`) the lines are what
+    the periodogram expects of them, convolved with its window's kernel, so
+    a line a few bins wide is not read as broader than it is; the model is
+    then evaluated on that periodogram's bins only.
     """
 
-    def model(f, theta):
-        floor, centre, width, c_s, c_as = theta[:5]
+    def lines(f, theta):
+        centre, width, c_s, c_as = theta[1:5]
         lor = lambda x: (width / (2 * np.pi)) / (x**2 + width**2 / 4)  # noqa: E731
         filt = cavity_filter(f, cal.cavity_linewidth_hz, cal.detuning_hz)
         if sample_rate_hz:
             filt = filt * np.sinc(f / sample_rate_hz) ** 2
-        lines = c_s * lor(f + centre) + c_as * lor(f - centre)
+        out = c_s * lor(f + centre) + c_as * lor(f - centre)
+        if fano_band_hz:
+            d_s, d_as = theta[5:7]
+            disp = lambda x: (x / np.pi) / (x**2 + width**2 / 4)  # noqa: E731
+            out = out + d_s * disp(f + centre) + d_as * disp(f - centre)
+        return filt * out
+
+    def background(f, theta):
         if not fano_band_hz:
-            return floor + filt * lines
-        d_s, d_as, floor_as, s_s, q_s, s_as, q_as = theta[5:]
-        disp = lambda x: (x / np.pi) / (x**2 + width**2 / 4)  # noqa: E731
-        lines = lines + d_s * disp(f + centre) + d_as * disp(f - centre)
+            return theta[0]
+        floor, centre = theta[:2]
+        floor_as, s_s, q_s, s_as, q_as = theta[7:]
         x_s, x_as = (f + centre) / fano_band_hz, (f - centre) / fano_band_hz
-        background = np.where(f > 0, floor_as + s_as * x_as + q_as * x_as**2,
-                              floor + s_s * x_s + q_s * x_s**2)
-        return background + filt * lines
+        return np.where(f > 0, floor_as + s_as * x_as + q_as * x_as**2,
+                        floor + s_s * x_s + q_s * x_s**2)
+
+    def model(f, theta):
+        if smear is None:
+            return background(f, theta) + lines(f, theta)
+        index = np.rint((f - smear.frequency_hz[0]) * smear.n / smear.fs).astype(int)
+        return background(f, theta) + smear(lambda x: lines(x, theta))[index]
 
     return model
 
@@ -148,7 +163,8 @@ class Thermometry:
         return out
 
 
-def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, fano=False):
+def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, fano=False,
+                       smear=None):
     """Fit the sidebands of one mode in a two-sided heterodyne PSD; estimate n.
 
     Parameters
@@ -169,6 +185,11 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
         areas. The areas are then the Lorentzian weights, which such noise
         shifts as well: the asymmetry reads the apparent occupation of
         :func:`simulator.sidebands.sideband_summary`, not the true one.
+    smear : simulator.analysis.psd.WindowedExpectation, optional
+        The expectation operator of the periodogram ``psd`` came from (same
+        sample rate, segment and window): the model lines are then convolved
+        with the window's kernel, which removes the broadening a resolution
+        of a few bins per linewidth gives the fitted width.
 
     Returns
     -------
@@ -177,6 +198,10 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
     if psd.sided != "two-sided":
         raise InputError("sideband thermometry needs a two-sided (IQ heterodyne) spectrum; "
                          f"got a {psd.sided} one")
+    if smear is not None and not (smear.frequency_hz.size == psd.frequency_hz.size and np.allclose(
+            smear.frequency_hz, psd.frequency_hz)):
+        raise InputError("smear: its bins are not those of the periodogram; expected the "
+                         "WindowedExpectation of the same sample rate, segment and window")
     omega = cal.mechanical_frequency_hz
     k, g = cal.cavity_linewidth_hz, cal.coupling_rate_hz
     a_minus = g**2 * k / (k**2 / 4 + (cal.detuning_hz + omega) ** 2)
@@ -204,10 +229,10 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
     if fano:  # Lorentzian weights may be negative here: noise can push them below 0
         lower[3:5] = [-np.inf, -np.inf]
         fit = _fano_fit(omega, abs(width0), cal, f, p, psd.averages, half_band, sample_rate_hz,
-                        lower, upper)
+                        lower, upper, smear)
     else:
-        fit = fit_whittle(sideband_model(cal, sample_rate_hz), f, p, psd.averages, initial,
-                          names=PARAMETERS, lower=lower, upper=upper)
+        fit = fit_whittle(sideband_model(cal, sample_rate_hz, smear=smear), f, p,
+                          psd.averages, initial, names=PARAMETERS, lower=lower, upper=upper)
     _, _, width, c_s, c_as = fit.values[:5]
     cov = fit.covariance
     errors = fit.errors.copy()
@@ -242,7 +267,8 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
         fit=fit)
 
 
-def _fano_fit(centre, width, cal, f, p, averages, half_band, sample_rate_hz, lower, upper):
+def _fano_fit(centre, width, cal, f, p, averages, half_band, sample_rate_hz, lower, upper,
+              smear):
     """Whittle fit of the Fano model from the expected centre and width.
 
     Twelve parameters from a cold start wander off, and a Lorentzian fit on a
@@ -267,6 +293,6 @@ def _fano_fit(centre, width, cal, f, p, averages, half_band, sample_rate_hz, low
                cas[3], cas[4]]
     initial = [v if v != 0 else 1e-12 for v in initial]
     n_extra = len(FANO_PARAMETERS)
-    return fit_whittle(sideband_model(cal, sample_rate_hz, half_band), f, p, averages,
+    return fit_whittle(sideband_model(cal, sample_rate_hz, half_band, smear), f, p, averages,
                        initial, names=PARAMETERS + FANO_PARAMETERS,
                        lower=lower + [-np.inf] * n_extra, upper=upper + [np.inf] * n_extra)
