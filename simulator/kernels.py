@@ -5,7 +5,8 @@ has allocated. The random normals are drawn outside, in blocks, with numpy's
 Generator (faster than numba's own generator and reproducible by block), and
 passed in; there is no parallel loop, so the result never depends on
 threading. Only :mod:`simulator.records` calls these; it checks shapes and
-dtypes first.
+dtypes first. :func:`stepper` binds a record plan's matrices to the kernel of
+its form (full state, innovations, or innovations in modal coordinates).
 
 numba is imported here, lazily from the point of view of the command line:
 this module is loaded only when a record is generated.
@@ -266,3 +267,53 @@ def rotate_to_carrier(y, first, cycles_per_sample):
     k = np.arange(first + 1, first + 1 + len(y), dtype=np.float64)
     phase = 2 * np.pi * np.mod(k * cycles_per_sample, 1.0)
     return 2.0 * (np.cos(phase) * y[:, 0] - np.sin(phase) * y[:, 1])
+
+
+def stepper(plan):
+    """Normals per sample and a function advancing the recursion over one chunk.
+
+    The state is drawn from its stationary distribution (the state covariance
+    for the full state form, V − P for the innovations form) with normals of
+    its own stream, and carried from chunk to chunk.
+    """
+    from simulator.discretize import modal_form, noise_factor
+
+    disc = plan.discrete
+    phi, gam = np.ascontiguousarray(disc.transition), np.ascontiguousarray(disc.output)
+    if plan.form == "full-state":
+        factor = np.ascontiguousarray(noise_factor(disc.noise_covariance))
+        state = _stationary_start(plan.seed, disc.state_covariance)
+
+        def step(xi, y, mech):
+            full_state_step(phi, gam, factor, state, xi, y, plan.watched, mech)
+
+        return factor.shape[1], step
+    inn = plan.innovations
+    sigma_factor = np.ascontiguousarray(np.linalg.cholesky(inn.innovation_covariance))
+    drive = np.ascontiguousarray(inn.gain @ sigma_factor)
+    state = _stationary_start(plan.seed, inn.predictor_covariance)
+    modal = modal_form(phi, gam, drive)
+    if modal is None:
+        def step(xi, y, mech):
+            innovations_step(phi, gam, drive, sigma_factor, state, xi, y)
+
+        return sigma_factor.shape[0], step
+    m = modal.to_modal @ state
+    parts = [np.ascontiguousarray(x) for x in (
+        modal.eigenvalues.real, modal.eigenvalues.imag, modal.output.real,
+        modal.output.imag, modal.drive.real, modal.drive.imag)]
+    m_re, m_im = np.ascontiguousarray(m.real), np.ascontiguousarray(m.imag)
+
+    def step(xi, y, mech):
+        modal_innovations_step(*parts, sigma_factor, m_re, m_im, xi, y)
+
+    return sigma_factor.shape[0], step
+
+
+def _stationary_start(seed, covariance):
+    from simulator.discretize import noise_factor
+    from simulator.records import BLOCK_SAMPLES, START_STREAM
+
+    factor = noise_factor(covariance)
+    xi = NormalBlocks(seed, START_STREAM, factor.shape[1], BLOCK_SAMPLES).take(0, 1)[0]
+    return np.ascontiguousarray(factor @ xi)

@@ -315,7 +315,7 @@ def generate(plan, sink, *, chunk, progress=False):
     from simulator.calibration_tone import tone_signal
 
     chain, n_total = plan.chain, plan.n_samples
-    width, step = stepper(plan)
+    width, step = kernels.stepper(plan)
     normals = kernels.NormalBlocks(plan.seed, SAMPLE_STREAM, width, BLOCK_SAMPLES)
     p = len(chain.model.outputs)
     digitiser = kernels.Digitiser(plan)
@@ -342,57 +342,6 @@ def generate(plan, sink, *, chunk, progress=False):
             bar.update(count)
             interrupt.check()  # a Ctrl-C swallowed inside a library callback still stops
     return clipped
-
-
-def stepper(plan):
-    """Normals per sample and a function advancing the recursion over one chunk.
-
-    The state is drawn from its stationary distribution (the state covariance
-    for the full state form, V − P for the innovations form) with normals of
-    its own stream, and carried from chunk to chunk.
-    """
-    from simulator import kernels
-    from simulator.discretize import modal_form, noise_factor
-
-    disc = plan.discrete
-    phi, gam = np.ascontiguousarray(disc.transition), np.ascontiguousarray(disc.output)
-    if plan.form == "full-state":
-        factor = np.ascontiguousarray(noise_factor(disc.noise_covariance))
-        state = _stationary_start(plan.seed, disc.state_covariance)
-
-        def step(xi, y, mech):
-            kernels.full_state_step(phi, gam, factor, state, xi, y, plan.watched, mech)
-
-        return factor.shape[1], step
-    inn = plan.innovations
-    sigma_factor = np.ascontiguousarray(np.linalg.cholesky(inn.innovation_covariance))
-    drive = np.ascontiguousarray(inn.gain @ sigma_factor)
-    state = _stationary_start(plan.seed, inn.predictor_covariance)
-    modal = modal_form(phi, gam, drive)
-    if modal is None:
-        def step(xi, y, mech):
-            kernels.innovations_step(phi, gam, drive, sigma_factor, state, xi, y)
-
-        return sigma_factor.shape[0], step
-    m = modal.to_modal @ state
-    parts = [np.ascontiguousarray(x) for x in (
-        modal.eigenvalues.real, modal.eigenvalues.imag, modal.output.real,
-        modal.output.imag, modal.drive.real, modal.drive.imag)]
-    m_re, m_im = np.ascontiguousarray(m.real), np.ascontiguousarray(m.imag)
-
-    def step(xi, y, mech):
-        kernels.modal_innovations_step(*parts, sigma_factor, m_re, m_im, xi, y)
-
-    return sigma_factor.shape[0], step
-
-
-def _stationary_start(seed, covariance):
-    from simulator import kernels
-    from simulator.discretize import noise_factor
-
-    factor = noise_factor(covariance)
-    xi = kernels.NormalBlocks(seed, START_STREAM, factor.shape[1], BLOCK_SAMPLES).take(0, 1)[0]
-    return np.ascontiguousarray(factor @ xi)
 
 
 def record_header(plan, record_kind):

@@ -39,7 +39,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # tests/ for conft
 from conftest import mode, scenario_with_coupling  # noqa: E402
 
 from simulator.discretize import modal_form  # noqa: E402
-from simulator.records import BLOCK_SAMPLES, SAMPLE_STREAM, plan_record, stepper  # noqa: E402
+from simulator.kernels import stepper  # noqa: E402
+from simulator.records import BLOCK_SAMPLES, SAMPLE_STREAM, plan_record  # noqa: E402
 
 REPO = Path(__file__).resolve().parents[2]
 SUBSTEPS = 20  # Euler–Maruyama steps per sample (dt·κ/2 ≈ 0.02 at the rates below)
