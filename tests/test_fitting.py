@@ -132,7 +132,7 @@ def test_fits_start_where_they_are_told_negative_values_included(fit):
     assert np.allclose(result.values, truth, rtol=1e-6)
 
 
-@pytest.mark.parametrize("window", ["boxcar", "hann"])
+@pytest.mark.parametrize("window", ["boxcar", "hann", "flattop"])
 def test_windowed_expectation_is_the_density_convolved_with_the_window_kernel(window):
     """E[P_k] from the autocovariance sum equals the brute-force convolution of
     the density with |Σ w_n e^{−2πifn/fs}|²/(fs N) (Percival & Walden 1993,
@@ -156,3 +156,24 @@ def test_windowed_expectation_is_the_density_convolved_with_the_window_kernel(wi
                                                       np.arange(n)) / fs) @ w) ** 2 / (fs * n)
         assert e[k] == pytest.approx(np.trapezoid(density(fine) * kernel, fine), rel=2e-3)
     assert np.sum(e) * fs / n == pytest.approx(np.trapezoid(density(fine), fine), rel=1e-4)
+    # on chosen bins around a line (a fit's), the local sum over the bins and a
+    # margin equals the full computation (a flat floor would need no smearing)
+    def line(f):
+        return density(f) - 0.01
+
+    chosen = expect.frequency_hz[np.abs(expect.frequency_hz - f0) < 150]
+    full = expect(line)[np.searchsorted(expect.frequency_hz, chosen)]
+    assert np.allclose(expect.at(line, chosen, margin_bins=16), full, rtol=2e-3)
+
+
+def test_windowed_expectation_refuses_bad_input():
+    from simulator.analysis.psd import WindowedExpectation
+    from simulator.errors import InputError
+
+    for args in ((0.0, 64, "boxcar"), (1e3, 1, "boxcar"), (1e3, 64, "no-such-window")):
+        with pytest.raises(InputError):
+            WindowedExpectation(*args)
+    with pytest.raises(InputError, match="oversample"):
+        WindowedExpectation(1e3, 64, "boxcar", oversample=1)
+    with pytest.raises(InputError, match="not bins"):
+        WindowedExpectation(1e3, 64, "boxcar").at(np.ones_like, [1.0])

@@ -121,14 +121,21 @@ class WindowedExpectation:
     For a stationary sequence with autocovariance R(m) = E[x_{n+m} x_n*] the
     windowed periodogram of :func:`averaged_periodogram` has expectation
 
-        E[P_k] = (1/(fs N)) Σ_{|m|<N} c(m) R(m) e^{−2πikm/N},
-        c(m) = Σ_n w_{n+m} w_n   (w at unit mean square),
+        E[P_k] = (1/(fs N)) Σ_{|m|<N} c(m) R(m) e^{−2πikm/N}
+               = ∫ S(f) K(f − f_k) df,   K(u) = |Σ_n w_n e^{2πiun/fs}|²/(fs N),
 
-    the density convolved with the window's kernel (the Fejér kernel for a
-    boxcar): a line narrower than a few bins comes out broadened, which a fit
-    with the bare density misreads. R(m) is computed from the density sampled
-    on a grid ``oversample`` times finer than the bins (its periodic images
-    sit ``oversample``·N lags away, where R of a resolved line has died out).
+    c(m) = Σ_n w_{n+m} w_n (w at unit mean square): the density convolved
+    with the window's kernel (the Fejér kernel for a boxcar). A line a few
+    bins wide comes out broadened, which a fit with the bare density
+    misreads (fitting the expected periodogram instead is the idea of the
+    debiased Whittle likelihood, Sykulski et al., Biometrika 106, 251 (2019),
+    cited from memory; Percival & Walden, Spectral Analysis for Physical
+    Applications (Cambridge, 1993), Sec. 6.3 for the expectation).
+
+    The integral is a sum over a grid ``oversample`` times finer than the
+    bins. That is exact for a density whose autocovariance has died out
+    (oversample − 1)·N lags away, i.e. for lines wider than about a bin at
+    the default 2 (narrower lines need more).
 
     Parameters
     ----------
@@ -138,26 +145,42 @@ class WindowedExpectation:
     window : str
         The :func:`scipy.signal.get_window` name the periodogram used.
     oversample : int
+        At least 2.
 
     Notes
     -----
-    Calling the object with a vectorised density ``S(f)`` (two-sided, per Hz,
-    over −fs/2 ≤ f < fs/2) returns E[P] on the bins of :attr:`frequency_hz`
-    (sorted, negative to positive, as :func:`averaged_periodogram` returns
-    them). See Percival & Walden, Spectral Analysis for Physical Applications
-    (Cambridge, 1993), Sec. 6.3 (expectation of tapered periodograms).
+    Calling the object with a vectorised density ``S(f)`` (two-sided, per
+    Hz, over −fs/2 ≤ f < fs/2) returns E[P] on every bin of
+    :attr:`frequency_hz` (sorted, as :func:`averaged_periodogram` returns
+    them), at a cost growing with N; :meth:`at` returns it on chosen bins
+    only, summing the density over those bins and a margin around them, at a
+    cost independent of N (what a fit of a few lines needs).
     """
 
     def __init__(self, sample_rate_hz, segment_samples, window, oversample=2):
+        if not (np.isfinite(sample_rate_hz) and sample_rate_hz > 0):
+            raise InputError(f"sample_rate_hz = {sample_rate_hz!r}; expected a positive rate")
+        if isinstance(segment_samples, bool) or int(segment_samples) != segment_samples \
+                or segment_samples < 2:
+            raise InputError(f"segment_samples = {segment_samples!r}; expected an integer ≥ 2")
+        if isinstance(oversample, bool) or int(oversample) != oversample or oversample < 2:
+            raise InputError(f"oversample = {oversample!r}; expected an integer ≥ 2")
         n = int(segment_samples)
-        w = scipy.signal.get_window(window, n, fftbins=True)
+        try:
+            w = scipy.signal.get_window(window, n, fftbins=True)
+        except ValueError as exc:
+            raise InputError(f"window = {window!r}: {exc}") from None
         w = w / np.sqrt(np.mean(w**2))
-        lags = np.abs(np.fft.ifft(np.abs(np.fft.fft(w, 2 * n)) ** 2).real)[:n]  # c(m), m ≥ 0
-        self.fs, self.n, self.m = float(sample_rate_hz), n, n * int(oversample)
+        self.window, self.fs, self.n = window, float(sample_rate_hz), n
+        self.m = n * int(oversample)
+        self.oversample = int(oversample)
+        self.c = np.fft.ifft(np.abs(np.fft.fft(w, 2 * n)) ** 2).real[:n]  # c(m), m ≥ 0
+        # K at offsets q·fs/M, q = 0 … M − 1 (periodic), from the zero-padded window
+        self.kernel = np.abs(np.fft.fft(w, self.m)) ** 2 / (self.fs * n)
         self.fine_hz = np.fft.fftfreq(self.m, d=1.0 / self.fs)  # fft order
         self.frequency_hz = np.sort(np.fft.fftfreq(n, d=1.0 / self.fs))
         self.order = np.argsort(np.fft.fftfreq(n, d=1.0 / self.fs))
-        self.c = lags
+        self._local = {}
 
     def __call__(self, density):
         """E[P] on :attr:`frequency_hz` of the density function ``density(f)``."""
@@ -170,3 +193,39 @@ class WindowedExpectation:
         folded[self.n - m] += self.c[m] * r[self.m - m]  # negative lags, at −m mod N
         expected = np.fft.fft(folded).real / (self.fs * self.n)
         return expected[self.order]
+
+    def at(self, density, frequency_hz, margin_bins=64):
+        """E[P] at the bins ``frequency_hz`` (a subset of :attr:`frequency_hz`).
+
+        Sums S(f) K(f − f_k) over each run of adjacent bins widened by
+        ``margin_bins`` on both sides: the density farther away reaches those
+        bins only through the kernel's far tails (below 1/(π² margin²) of
+        the density there for a boxcar).
+        """
+        f = np.asarray(frequency_hz, dtype=float)
+        key = (f.tobytes(), int(margin_bins))
+        if key not in self._local:
+            self._local[key] = self._runs(f, int(margin_bins))
+        out = np.empty(f.size)
+        step = self.fs / self.m
+        for where, fine, weights in self._local[key]:
+            out[where] = weights @ density(fine) * step
+        return out
+
+    def _runs(self, f, margin):
+        res = self.fs / self.n
+        k = np.rint(f / res).astype(np.int64)
+        if not np.allclose(k * res, f, rtol=0, atol=1e-6 * res) or np.any(
+                np.abs(f) > self.fs / 2 + 1e-9 * self.fs):
+            raise InputError("frequencies are not bins of this periodogram; expected a subset "
+                             "of WindowedExpectation.frequency_hz")
+        order = np.argsort(k)
+        breaks = np.flatnonzero(np.diff(k[order]) > 1) + 1
+        runs = []
+        for chunk in np.split(order, breaks):
+            lo, hi = k[chunk].min() - margin, k[chunk].max() + margin
+            j = np.arange(lo * self.oversample, hi * self.oversample + 1)  # fine offsets
+            fine = (j * self.fs / self.m + self.fs / 2) % self.fs - self.fs / 2  # periodic
+            q = (k[chunk][:, None] * self.oversample - j[None, :]) % self.m
+            runs.append((chunk, fine, self.kernel[q]))
+        return runs

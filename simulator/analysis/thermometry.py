@@ -32,6 +32,7 @@ import dataclasses
 import numpy as np
 
 from simulator.analysis.fitting import fit_whittle
+from simulator.analysis.psd import WindowedExpectation
 from simulator.errors import InputError
 
 
@@ -98,7 +99,8 @@ def sideband_model(cal, sample_rate_hz=None, fano_band_hz=None, smear=None):
     :class:`simulator.analysis.psd.WindowedExpectation`) the lines are what
     the periodogram expects of them, convolved with its window's kernel, so
     a line a few bins wide is not read as broader than it is; the model is
-    then evaluated on that periodogram's bins only.
+    then evaluated on that periodogram's bins only (anything else is an
+    InputError).
     """
 
     def lines(f, theta):
@@ -126,8 +128,7 @@ def sideband_model(cal, sample_rate_hz=None, fano_band_hz=None, smear=None):
     def model(f, theta):
         if smear is None:
             return background(f, theta) + lines(f, theta)
-        index = np.rint((f - smear.frequency_hz[0]) * smear.n / smear.fs).astype(int)
-        return background(f, theta) + smear(lambda x: lines(x, theta))[index]
+        return background(f, theta) + smear.at(lambda x: lines(x, theta), f)
 
     return model
 
@@ -198,10 +199,13 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
     if psd.sided != "two-sided":
         raise InputError("sideband thermometry needs a two-sided (IQ heterodyne) spectrum; "
                          f"got a {psd.sided} one")
-    if smear is not None and not (smear.frequency_hz.size == psd.frequency_hz.size and np.allclose(
-            smear.frequency_hz, psd.frequency_hz)):
-        raise InputError("smear: its bins are not those of the periodogram; expected the "
-                         "WindowedExpectation of the same sample rate, segment and window")
+    if smear is not None and not (
+            isinstance(smear, WindowedExpectation) and smear.window == psd.window
+            and smear.frequency_hz.size == psd.frequency_hz.size
+            and np.allclose(smear.frequency_hz, psd.frequency_hz)):
+        raise InputError("smear: its bins or window are not those of the periodogram; "
+                         "expected the WindowedExpectation of the same sample rate, segment "
+                         f"and window ({psd.window!r})")
     omega = cal.mechanical_frequency_hz
     k, g = cal.cavity_linewidth_hz, cal.coupling_rate_hz
     a_minus = g**2 * k / (k**2 / 4 + (cal.detuning_hz + omega) ** 2)
