@@ -156,15 +156,22 @@ class DetectionChain:
             return float(d[0, 0] + d[1, 1])
         return 2.0 * float(d[0, 0] + d[1, 1])
 
+    @staticmethod
+    def sample_covariance(discrete):
+        """Covariance of one sample of the outputs, in chain units (Γ V Γᵀ + output noise).
+
+        ``discrete`` is the sampled chain model (:func:`simulator.discretize.discretize`).
+        """
+        return (discrete.output @ discrete.state_covariance @ discrete.output.T
+                + discrete.output_noise)
+
     def record_std(self, discrete):
         """Largest standard deviation (V) of a sample, over channels and carrier phases.
 
-        ``discrete`` is the sampled chain model (:func:`simulator.discretize.discretize`);
-        for if records r = 2(cos φ Re ρ − sin φ Im ρ), whose variance is at
+        For if records r = 2(cos φ Re ρ − sin φ Im ρ), whose variance is at
         most 4 times the largest eigenvalue of the covariance of (Re ρ, Im ρ).
         """
-        cov = (discrete.output @ discrete.state_covariance @ discrete.output.T
-               + discrete.output_noise)
+        cov = self.sample_covariance(discrete)
         if self.receiver == "if":
             var = 4.0 * float(np.linalg.eigvalsh(cov).max())
         else:

@@ -295,16 +295,12 @@ def quantisation_share(plan):
     signal spanning many steps the rounding error is uniform, white and
     independent of the signal, of variance Δ²/12.
     """
-    discrete = plan.discrete
-    cov = (discrete.output @ discrete.state_covariance @ discrete.output.T
-           + discrete.output_noise)
+    cov = plan.chain.sample_covariance(plan.discrete)
     if plan.chain.receiver == "if":  # r = 2(cos φ Re ρ − sin φ Im ρ), averaged over φ
         variance = 2.0 * float(np.trace(cov))
     else:
         variance = float(np.min(np.diag(cov)))
-    variance *= plan.chain.volts_per_unit**2
-    step = 2.0 * plan.full_scale_v / 2.0**plan.bits
-    return step**2 / 12.0 / variance
+    return plan.volts_per_count**2 / 12.0 / (variance * plan.chain.volts_per_unit**2)
 
 
 def generate(plan, sink, *, chunk, progress=False):

@@ -202,7 +202,7 @@ class _Poles:
         balanced, (self.scale, _) = scipy.linalg.matrix_balance(
             model.A, permute=False, separate=True)
         self.lam, self.left_b, self.right_b = scipy.linalg.eig(balanced, left=True, right=True)
-        self.right = self.scale[:, None] * self.right_b
+        self.device_lam = np.linalg.eigvals(model.A[:self.device, :self.device])
         u = np.array([1.0, 1.0j]) / np.sqrt(2.0)  # heterodyne projection (spectra.py)
         self.uc, self.ud = u @ model.C, u @ model.D
 
@@ -246,9 +246,8 @@ class _Poles:
     def noise_resonance_near(self, k):
         """A pole of the noise filters (not of the cavity or mechanics) within the
         half-width |Re λ_k| of pole k, as its (frequency, FWHM) in Hz, or None."""
-        device = np.linalg.eigvals(self.model.A[:self.device, :self.device])
         for lam in self.lam:
-            if np.min(np.abs(device - lam)) <= 1e-9 * abs(lam) + 1e-12:
+            if np.min(np.abs(self.device_lam - lam)) <= 1e-9 * abs(lam) + 1e-12:
                 continue  # an eigenvalue of the cavity–mechanics block
             if abs(lam - self.lam[k]) < abs(self.lam[k].real):
                 return (abs(lam.imag) / (2 * np.pi), -2 * lam.real / (2 * np.pi))

@@ -58,17 +58,17 @@ def welch(record, nperseg=SEGMENT):
                         nperseg=nperseg, noverlap=0, detrend=False, return_onesided=False)
 
 
-def expected_welch(plan, nperseg=SEGMENT):
+def expected_welch(plan, nperseg=SEGMENT, window="hann", quantisation=True):
     """Exact E[welch] of the stored record, from the sampled model's autocovariance.
 
     E[W(f_k)] = Σ_τ c_w(τ) R(τ) e^{−2πikτ/L} / (fs Σ w²), with c_w the window's
     autocorrelation and R the record's autocovariance (complex I + iQ for iq;
     the time average 2 Re[e^{iθTτ} R_ρ(τ)] of the rotated real record for if),
-    plus the quantisation noise Δ²/12 per real channel. Frequencies in the
-    order of numpy.fft.fftfreq, as welch returns them.
+    plus (with ``quantisation``) the rounding noise Δ²/12 per real channel.
+    Frequencies in the order of numpy.fft.fftfreq, as welch returns them.
     """
     chain, lags = plan.chain, plan.discrete.autocovariance(nperseg)
-    q = plan.shot_noise_per_count**2 / 12.0
+    q = plan.shot_noise_per_count**2 / 12.0 if quantisation else 0.0
     if chain.receiver == "homodyne":
         r = lags[:, 0, 0].astype(complex)
         r[0] += q
@@ -80,7 +80,7 @@ def expected_welch(plan, nperseg=SEGMENT):
             r[0] += q
         else:
             r[0] += 2 * q
-    w = signal.get_window("hann", nperseg)
+    w = signal.get_window(window, nperseg)
     cw = np.correlate(w, w, "full")[nperseg - 1:]
     seq = cw * r
     m = np.arange(1, nperseg)

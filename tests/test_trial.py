@@ -8,6 +8,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from test_records import expected_welch
 
 from simulator.errors import InputError
 from simulator.scenario import load_scenario
@@ -199,14 +200,9 @@ def test_the_window_kernel_in_the_model_removes_the_width_bias(scenario):
     fs = plan.sample_rate_hz
     truth = steady_state(scenario).modes[0].effective_linewidth_hz
     segment = int(2 ** np.ceil(np.log2(fs / (truth / 8))))
-    # the exact expected boxcar periodogram of the record, from the sampled
-    # model's autocovariance (as tests/test_records.py::expected_welch does)
-    lags = plan.discrete.autocovariance(segment)
-    r = lags[:, 0, 0] + lags[:, 1, 1] + 1j * (lags[:, 1, 0] - lags[:, 0, 1])
-    seq = (segment - np.arange(segment)) * r
-    m = np.arange(1, segment)
-    seq[m] += np.conj((segment - (segment - m)) * r[segment - m])
-    exact = np.fft.fft(seq).real / (fs * segment)
+    # the exact expected boxcar periodogram of the record (before rounding),
+    # from the sampled model's autocovariance
+    exact = expected_welch(plan, segment, window="boxcar", quantisation=False)
     order = np.argsort(np.fft.fftfreq(segment, d=1 / fs))
     smear = WindowedExpectation(fs, segment, "boxcar")
     psd = PSDEstimate(frequency_hz=smear.frequency_hz, density=exact[order],

@@ -278,25 +278,21 @@ def _fano_fit(centre, width, cal, f, p, averages, half_band, sample_rate_hz, low
     Twelve parameters from a cold start wander off, and a Lorentzian fit on a
     shaped floor is no better start (it takes the floor for a broad line);
     given the centre and width the model is linear in the other ten, so they
-    start from an ordinary least-squares solution on each side.
+    start from an ordinary least-squares solution, its columns the model
+    itself with one of them set to 1.
     """
-    filt = cavity_filter(f, cal.cavity_linewidth_hz, cal.detuning_hz)
-    if sample_rate_hz:
-        filt = filt * np.sinc(f / sample_rate_hz) ** 2
-    coef = {}
-    for side, sign in (("s", -1), ("as", +1)):
-        sel = np.sign(f) == sign
-        x = f[sel] - sign * centre
-        den = x**2 + width**2 / 4
-        basis = np.column_stack([filt[sel] * width / (2 * np.pi) / den,
-                                 filt[sel] * x / np.pi / den,
-                                 np.ones_like(x), x / half_band, (x / half_band) ** 2])
-        coef[side] = np.linalg.lstsq(basis, p[sel], rcond=None)[0]
-    cs, cas = coef["s"], coef["as"]
-    initial = [cs[2], centre, width, cs[0], cas[0], cs[1], cas[1], cas[2], cs[3], cs[4],
-               cas[3], cas[4]]
-    initial = [v if v != 0 else 1e-12 for v in initial]
+    model = sideband_model(cal, sample_rate_hz, half_band, smear)
+    names = PARAMETERS + FANO_PARAMETERS
+    linear = [i for i in range(len(names)) if i not in (1, 2)]  # all but centre, width
+    base = np.zeros(len(names))
+    base[1:3] = centre, width
+    columns = []
+    for i in linear:
+        theta = base.copy()
+        theta[i] = 1.0
+        columns.append(model(f, theta))
+    base[linear] = np.linalg.lstsq(np.column_stack(columns), p, rcond=None)[0]
+    initial = [v if v != 0 else 1e-12 for v in base]
     n_extra = len(FANO_PARAMETERS)
-    return fit_whittle(sideband_model(cal, sample_rate_hz, half_band, smear), f, p, averages,
-                       initial, names=PARAMETERS + FANO_PARAMETERS,
+    return fit_whittle(model, f, p, averages, initial, names=names,
                        lower=lower + [-np.inf] * n_extra, upper=upper + [np.inf] * n_extra)
