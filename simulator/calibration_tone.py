@@ -73,6 +73,21 @@ def tone_lines(model, scenario, projection, efficiency, *, one_sided=False):
                          power=float(efficiency * abs(lower) ** 2)))
 
 
+def tone_amplitude(chain, scenario):
+    """Largest amplitude the tone reaches in any record channel (chain units); 0 without.
+
+    An upper bound on |:func:`tone_signal`| (the sample averaging only lowers
+    it, by sinc), for the digitiser's automatic full scale.
+    """
+    if scenario.drive.calibration_tone.depth_rad == 0:
+        return 0.0
+    big_y = _tone_response(chain.model, scenario)
+    if chain.receiver == "if":
+        return float(abs(big_y[0] + 1j * big_y[1])
+                     + abs(np.conj(big_y[0]) + 1j * np.conj(big_y[1])))
+    return float(np.max(np.abs(big_y[:1] if chain.receiver == "homodyne" else big_y)))
+
+
 def tone_signal(chain, scenario, sample_rate_hz):
     """The tone's exact contribution to the record samples, or None without a tone.
 

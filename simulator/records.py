@@ -149,6 +149,7 @@ def plan_record(scenario, *, seed=None, duration_s=None, form="auto", store_mech
 
     See :func:`simulate_record` for the parameters.
     """
+    from simulator.calibration_tone import tone_amplitude
     from simulator.chain import automatic_sample_rate, detection_chain
     from simulator.discretize import discretize, innovations_form
     from simulator.model import linear_model
@@ -188,7 +189,9 @@ def plan_record(scenario, *, seed=None, duration_s=None, form="auto", store_mech
                          "gives no sample; expected a duration of at least one sample "
                          "interval")
     discrete = discretize(chain.model, 1.0 / fs, integrator_drift=chain.integrator_drift())
-    full_scale = dig.full_scale_v or FULL_SCALE_SIGMAS * chain.record_std(discrete)
+    full_scale = dig.full_scale_v or (  # the noise's 8σ plus the coherent tone on top
+        FULL_SCALE_SIGMAS * chain.record_std(discrete)
+        + tone_amplitude(chain, scenario) * chain.volts_per_unit)
     names = tuple(m.name for m in point.modes)
     watched = np.array([chain.model.index(f"{name}.{q}") for name in names for q in "qp"]
                        if store else [], dtype=np.int64)

@@ -273,8 +273,9 @@ class Digitizer:
     bits: int = param("resolution of the converter, 2 to 32 bits", check="positive",
                       default=16)
     full_scale_v: float | None = param(
-        "input range ±full_scale_v; left out: eight times the record's standard "
-        "deviation", unit="V", check="positive", default=None)
+        "input range ±full_scale_v; left out: eight times the record's noise standard "
+        "deviation plus the calibration tone's amplitude", unit="V", check="positive",
+        default=None)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""

@@ -179,3 +179,27 @@ def test_calibration_refuses_what_it_cannot_use():
     with pytest.raises(InputError, match="two-sided"):
         calibrate_coupling(real, device, depth_rad=1e-2, tone_frequency_hz=TONE_HZ)
     assert make_scenario().drive.calibration_tone.depth_rad == 0.0
+
+
+@pytest.mark.parametrize("kind", ["iq", "if"])
+def test_the_automatic_full_scale_makes_room_for_the_tone(kind):
+    """A strong tone on a weak noise floor (the example scenario's, about 7σ
+    of the noise) must not clip: the automatic range is the noise's 8σ plus
+    the tone's amplitude, which bounds every sample of the tone's exact
+    response."""
+    from pathlib import Path
+
+    from simulator.calibration_tone import tone_amplitude, tone_signal
+    from simulator.scenario import load_scenario
+
+    path = Path(__file__).parents[1] / "scenarios" / "membrane_phase_noise.toml"
+    scenario = load_scenario(path)
+    if kind == "if":
+        scenario = scenario.replace("detection.intermediate_frequency_hz", 4e6)
+    scenario = scenario.replace("record.kind", kind)
+    plan = plan_record(scenario, duration_s=0.004)
+    peak = tone_amplitude(plan.chain, scenario)
+    tone = tone_signal(plan.chain, scenario, plan.sample_rate_hz)(0, plan.n_samples)
+    assert np.max(np.abs(tone)) <= peak
+    assert peak > 2 * plan.chain.record_std(plan.discrete) / plan.chain.volts_per_unit
+    assert simulate_record(scenario, seed=5, duration_s=0.004).clipped_samples == 0
