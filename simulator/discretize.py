@@ -32,6 +32,7 @@ import numpy as np
 import scipy.linalg
 
 from simulator.errors import OperatingPointError
+from simulator.statespace import power_of_two_scale
 
 
 @dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
@@ -142,15 +143,31 @@ def discretize(model, sample_interval_s, *, integrator_drift=None):
     is taken over h = T/2^k with ‖F‖h ≤ 1 and doubled k times exactly
     (Φ(2h) = Φ(h)², Q(2h) = Φ(h) Q(h) Φ(h)ᵀ + Q(h)), which avoids the
     growth of e^{−Fh} for stiff models.
+
+    The states are first rescaled by powers of two close to their stationary
+    standard deviations, and the integrators by powers of two close to the
+    standard deviation of the state part of their output (an exact
+    similarity transform: no rounding), so that
+    a state of tiny variance strongly coupled to the cavity — a laser-noise
+    peak in radians beside a field of many photons — does not cost the block
+    exponential its precision; the result is transformed back exactly.
     """
     t = float(sample_interval_s)
     if not (np.isfinite(t) and t > 0):
         raise ValueError(f"sample_interval_s = {sample_interval_s!r}; expected a positive "
                          "interval in seconds")
     n, p = len(model.states), len(model.outputs)
+    covariance = model.covariance()
+    s = power_of_two_scale(covariance)
+    # the integrators by the size of the state part of their output, C V Cᵀ (which keeps
+    # the relative precision of Γ), or of its white part D N Dᵀ / T where that is all
+    state_part = np.diag(model.C @ covariance @ model.C.T)
+    white_part = np.diag(model.D @ model.N @ model.D.T) / t
+    u = power_of_two_scale(np.diag(np.where(state_part > 0, state_part, white_part)))
     r = np.zeros((p, p)) if integrator_drift is None else np.asarray(integrator_drift, float)
-    f = np.block([[model.A, np.zeros((n, p))], [model.C, r]])
-    g = np.vstack([model.B, model.D])
+    f = np.block([[model.A * np.outer(1.0 / s, s), np.zeros((n, p))],
+                  [model.C * np.outer(1.0 / u, s), r * np.outer(1.0 / u, u)]])
+    g = np.vstack([model.B / s[:, None], model.D / u[:, None]])
     w = g @ model.N @ g.T
     k = max(0, int(np.ceil(np.log2(max(np.linalg.norm(f, 1) * t, 1e-300)))))
     h = t / 2**k
@@ -166,10 +183,11 @@ def discretize(model, sample_interval_s, *, integrator_drift=None):
         q = phi @ q @ phi.T + q
         phi = phi @ phi
     q = 0.5 * (q + q.T)
-    scale = np.concatenate([np.ones(n), np.full(p, 1.0 / t)])
-    return DiscreteModel(transition=phi[:n, :n], output=phi[n:, :n] / t,
+    scale = np.concatenate([s, u / t])
+    return DiscreteModel(transition=phi[:n, :n] * np.outer(s, 1.0 / s),
+                         output=phi[n:, :n] * np.outer(u, 1.0 / s) / t,
                          noise_covariance=q * np.outer(scale, scale),
-                         state_covariance=model.covariance(), sample_interval_s=t,
+                         state_covariance=covariance, sample_interval_s=t,
                          states=model.states, outputs=model.outputs)
 
 
@@ -246,6 +264,10 @@ def innovations_form(discrete):
                            error_covariance=p)
 
 
+MODAL_MAX_CONDITION = 1e6  # eigenvector condition above which Φ counts as near-defective
+MODAL_RECONSTRUCTION_RTOL = 1e-9  # largest accepted relative error of the rebuilt (Φ, Γ, U)
+
+
 @dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
 class ModalForm:
     """A real recursion x_{n+1} = Φ x_n + U ξ_n, y_n = Γ x_n + … in eigen-coordinates.
@@ -256,34 +278,102 @@ class ModalForm:
     eigenvalue kept once (w_j = 1). This halves the arithmetic of a model made
     of oscillators and shortens the chain of dependent operations per sample
     to one complex multiply-add.
+
+    Attributes
+    ----------
+    eigenvalues : ndarray (k,) complex
+        λ_j of the kept coordinates (real ones with zero imaginary part).
+    output : ndarray (p, k) complex
+        w_j (ΓV)_j, the weights included.
+    drive : ndarray (k, r) complex
+        V⁻¹U, kept rows.
+    to_modal : ndarray (k, n) complex
+        The kept rows of V⁻¹: m = to_modal @ x.
+    basis : ndarray (n, k) complex
+        w_j V_j: x = Re(basis @ m).
+    reconstruction_error : float
+        Largest relative error of Φ, Γ, U, the identity and the left-eigenvector
+        relation rebuilt from the kept coordinates (see :func:`modal_form`).
     """
 
-    eigenvalues: np.ndarray  # (k,) complex
-    output: np.ndarray  # (p, k) complex, weights included
-    drive: np.ndarray  # (k, r) complex
-    to_modal: np.ndarray  # (k, n) complex: rows of V⁻¹ that are kept
+    eigenvalues: np.ndarray
+    output: np.ndarray
+    drive: np.ndarray
+    to_modal: np.ndarray
+    basis: np.ndarray
+    reconstruction_error: float
 
 
-def modal_form(transition, output, drive, max_condition=1e6):
-    """:class:`ModalForm` of (Φ, Γ, U), or None if Φ is too close to defective.
+def modal_form(transition, output, drive, max_condition=MODAL_MAX_CONDITION,
+               rtol=MODAL_RECONSTRUCTION_RTOL):
+    """:class:`ModalForm` of (Φ, Γ, U), or None when it cannot be trusted.
 
     Returns None when the eigenvector matrix has a condition number above
     ``max_condition`` (near an exceptional point, e.g. at the onset of
-    normal-mode splitting), where the dense recursion must be used instead.
+    normal-mode splitting), when the eigenvalues do not come in real ones and
+    conjugate pairs, or when the kept coordinates fail to rebuild the model
+    to ``rtol``: the dense recursion must then be used instead.
+
+    Notes
+    -----
+    Eigenvalues are sorted into real ones and conjugate pairs without a
+    tolerance on the imaginary part: an eigenvalue is real only when its
+    imaginary part is exactly zero (the real LAPACK eigensolver, dgeev, returns
+    real eigenvalues so, with real eigenvectors, and every complex one beside
+    its conjugate with the conjugate eigenvector), and the member of each pair
+    in the upper half-plane is kept. A repeated real eigenvalue that the solver
+    returns as a pair λ ± iε (two identical electronics filters on the I and
+    Q channels can do this) is therefore kept as one complex coordinate of
+    weight 2, which spans both real directions.
+
+    The result is then verified, whatever the eigensolver returned. With B the
+    weighted kept eigenvectors and T the kept rows of V⁻¹, the recursion is
+    exact when Re(B T) = 1, Re(B Λ T) = Φ, T Φ = Λ T, Re(Γ B T) = Γ and
+    Re(B T U) = U; each is checked to ``rtol`` relative to the size of the
+    matrix it rebuilds, so a basis that lost part of an invariant subspace
+    can never be used.
     """
+    transition = np.asarray(transition, dtype=float)
     lam, vec = np.linalg.eig(transition)
     if not np.all(np.isfinite(lam)) or np.linalg.cond(vec) > max_condition:
         return None
     inv = np.linalg.inv(vec)
-    tol = 1e-12 * max(1.0, np.abs(lam).max())
-    real = np.abs(lam.imag) <= tol
-    upper = lam.imag > tol
-    if np.count_nonzero(upper) != np.count_nonzero(lam.imag < -tol):
+    real = lam.imag == 0.0
+    upper = np.flatnonzero(lam.imag > 0)
+    if upper.size != np.count_nonzero(lam.imag < 0):
         return None
-    keep = np.flatnonzero(real | upper)
+    keep = np.sort(np.concatenate([np.flatnonzero(real), upper]))
     weight = np.where(real[keep], 1.0, 2.0)
     vec_k, inv_k = vec[:, keep], inv[keep]
     vec_k[:, real[keep]] = vec_k[:, real[keep]].real
-    return ModalForm(eigenvalues=np.where(real[keep], lam[keep].real, lam[keep]),
-                     output=(output @ vec_k) * weight, drive=inv_k @ drive,
-                     to_modal=inv_k)
+    eigenvalues = np.where(real[keep], lam[keep].real, lam[keep])
+    basis = vec_k * weight
+    modal = ModalForm(eigenvalues=eigenvalues, output=output @ basis, drive=inv_k @ drive,
+                      to_modal=inv_k, basis=basis, reconstruction_error=0.0)
+    error = modal_reconstruction_error(modal, transition, output, drive)
+    if not error <= rtol:
+        return None
+    return dataclasses.replace(modal, reconstruction_error=error)
+
+
+def modal_reconstruction_error(modal, transition, output, drive):
+    """Largest relative error of 1, Φ, T Φ = Λ T, Γ and U rebuilt from ``modal``.
+
+    Each error is the largest absolute entry of the difference over the
+    largest entry of the matrices it compares (for T Φ − Λ T: over the largest
+    entry of T times that of Φ).
+    """
+    b, t, lam = modal.basis, modal.to_modal, modal.eigenvalues
+    tiny = np.finfo(float).tiny
+
+    def size(m):
+        return max(float(np.abs(m).max(initial=0.0)), tiny)
+
+    def rel(rebuilt, exact, scale=None):
+        return float(np.abs(rebuilt - exact).max(initial=0.0)) / (scale or size(exact))
+
+    return max(rel(np.real(b @ t), np.eye(transition.shape[0])),
+               rel(np.real(b @ (lam[:, None] * t)), transition),
+               rel(t @ transition, lam[:, None] * t, size(t) * size(transition)),
+               rel(np.real(modal.output @ t), output),
+               rel(np.real(b @ modal.drive), drive))

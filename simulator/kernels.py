@@ -6,11 +6,14 @@ Generator (faster than numba's own generator and reproducible by block), and
 passed in; there is no parallel loop, so the result never depends on
 threading. Only :mod:`simulator.records` calls these; it checks shapes and
 dtypes first. :func:`stepper` binds a record plan's matrices to the kernel of
-its form (full state, innovations, or innovations in modal coordinates).
+its form (full state, innovations, or innovations in modal coordinates)
+and states, as a :class:`Recursion`, exactly which matrices that kernel runs.
 
 numba is imported here, lazily from the point of view of the command line:
 this module is loaded only when a record is generated.
 """
+
+import dataclasses
 
 import numba
 import numpy as np
@@ -269,17 +272,111 @@ def rotate_to_carrier(y, first, cycles_per_sample):
     return 2.0 * (np.cos(phase) * y[:, 0] - np.sin(phase) * y[:, 1])
 
 
-def stepper(plan):
-    """Normals per sample and a function advancing the recursion over one chunk.
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class Recursion:
+    """The real linear recursion a record runs, written out for checking.
+
+    z_{n+1} = F z_n + G ξ_n, y_n = H z_n + J ξ_n with ξ_n independent standard
+    normals and z_0 drawn with covariance ``start_covariance``. For the modal
+    kernel z holds the real and imaginary parts of the modal coordinates
+    (z = (Re m, Im m)), so the matrices here are the ones the kernel
+    multiplies, not the model it was derived from.
+
+    Attributes
+    ----------
+    kind : str
+        ``"full-state"``, ``"innovations"`` (dense) or ``"modal innovations"``.
+    transition, drive, output, feedthrough : ndarray
+        F, G, H, J.
+    start_covariance : ndarray
+        Covariance of z_0.
+    """
+
+    kind: str
+    transition: np.ndarray
+    drive: np.ndarray
+    output: np.ndarray
+    feedthrough: np.ndarray
+    start_covariance: np.ndarray
+
+    def autocovariance(self, lags):
+        """E[y_{n+τ} y_nᵀ] for τ = 0 … lags − 1 from the matrices, assuming z_0 stationary.
+
+        R(0) = H P Hᵀ + J Jᵀ and R(τ) = H F^{τ−1} (F P Hᵀ + G Jᵀ), P the start
+        covariance; :meth:`output_stationarity_error` says whether the outputs
+        are stationary from the first sample.
+        """
+        f, g, h, j, p = (self.transition, self.drive, self.output, self.feedthrough,
+                         self.start_covariance)
+        out = np.empty((int(lags), h.shape[0], h.shape[0]))
+        out[0] = h @ p @ h.T + j @ j.T
+        m = f @ p @ h.T + g @ j.T
+        for tau in range(1, int(lags)):
+            out[tau] = h @ m
+            m = f @ m
+        return out
+
+    def state_drift(self):
+        """Δ = F P Fᵀ + G Gᵀ − P: the change of the state covariance over one sample."""
+        f, g, p = self.transition, self.drive, self.start_covariance
+        return f @ p @ f.T + g @ g.T - p
+
+    def state_stationarity_error(self):
+        """Largest entry of Δ over the largest entry of P: zero for a stationary state."""
+        return float(np.abs(self.state_drift()).max() / np.abs(self.start_covariance).max())
+
+    def output_stationarity_error(self, lags):
+        """How far E[y_{1+τ} y_1ᵀ] is from E[y_τ y_0ᵀ], τ < ``lags``, relative to R(0).
+
+        The difference is H F^τ Δ Hᵀ. Only the outputs need to be stationary
+        from the first sample: a state combination that never reaches them (a
+        dark combination of two degenerate modes) may start anywhere.
+        """
+        h, f = self.output, self.transition
+        scale = np.abs(self.autocovariance(1)[0]).max()
+        m, worst = self.state_drift() @ h.T, 0.0
+        for _ in range(int(lags)):
+            worst = max(worst, float(np.abs(h @ m).max()))
+            m = f @ m
+        return worst / scale
+
+
+class Stepper:
+    """A record plan's recursion bound to its numba kernel, with its carried state.
+
+    Attributes
+    ----------
+    width : int
+        Standard normals per sample.
+    recursion : Recursion
+        The matrices the kernel runs, for checks (:meth:`Recursion.autocovariance`).
+    start : ndarray
+        z_0 in the coordinates of ``recursion`` (a copy; the carried state moves on).
+    """
+
+    def __init__(self, width, recursion, step, start):
+        self.width, self.recursion, self._step = width, recursion, step
+        self.start = np.array(start, dtype=float)
+
+    def __call__(self, normals, out, watched_out):
+        """Advance over ``len(normals)`` samples, writing outputs (and watched states)."""
+        self._step(normals, out, watched_out)
+
+
+def stepper(plan, *, modal=True):
+    """The :class:`Stepper` of ``plan``'s form: full state, dense or modal innovations.
 
     The state is drawn from its stationary distribution (the state covariance
     for the full state form, V − P for the innovations form) with normals of
-    its own stream, and carried from chunk to chunk.
+    its own stream, and carried from chunk to chunk. The innovations form runs
+    in eigen-coordinates when :func:`simulator.discretize.modal_form` returns
+    a verified modal form (and ``modal`` is true), and densely otherwise.
     """
     from simulator.discretize import modal_form, noise_factor
 
     disc = plan.discrete
     phi, gam = np.ascontiguousarray(disc.transition), np.ascontiguousarray(disc.output)
+    n = phi.shape[0]
     if plan.form == "full-state":
         factor = np.ascontiguousarray(noise_factor(disc.noise_covariance))
         state = _stationary_start(plan.seed, disc.state_covariance)
@@ -287,17 +384,21 @@ def stepper(plan):
         def step(xi, y, mech):
             full_state_step(phi, gam, factor, state, xi, y, plan.watched, mech)
 
-        return factor.shape[1], step
+        return Stepper(factor.shape[1], Recursion(
+            kind="full-state", transition=phi, drive=factor[:n], output=gam,
+            feedthrough=factor[n:], start_covariance=disc.state_covariance), step, state)
     inn = plan.innovations
     sigma_factor = np.ascontiguousarray(np.linalg.cholesky(inn.innovation_covariance))
     drive = np.ascontiguousarray(inn.gain @ sigma_factor)
     state = _stationary_start(plan.seed, inn.predictor_covariance)
-    modal = modal_form(phi, gam, drive)
+    modal = modal_form(phi, gam, drive) if modal else None
     if modal is None:
         def step(xi, y, mech):
             innovations_step(phi, gam, drive, sigma_factor, state, xi, y)
 
-        return sigma_factor.shape[0], step
+        return Stepper(sigma_factor.shape[0], Recursion(
+            kind="innovations", transition=phi, drive=drive, output=gam,
+            feedthrough=sigma_factor, start_covariance=inn.predictor_covariance), step, state)
     m = modal.to_modal @ state
     parts = [np.ascontiguousarray(x) for x in (
         modal.eigenvalues.real, modal.eigenvalues.imag, modal.output.real,
@@ -307,7 +408,16 @@ def stepper(plan):
     def step(xi, y, mech):
         modal_innovations_step(*parts, sigma_factor, m_re, m_im, xi, y)
 
-    return sigma_factor.shape[0], step
+    lam_re, lam_im, out_re, out_im, drive_re, drive_im = parts
+    to_real = np.vstack([modal.to_modal.real, modal.to_modal.imag])
+    return Stepper(sigma_factor.shape[0], Recursion(
+        kind="modal innovations",
+        transition=np.block([[np.diag(lam_re), -np.diag(lam_im)],
+                             [np.diag(lam_im), np.diag(lam_re)]]),
+        drive=np.vstack([drive_re, drive_im]), output=np.hstack([out_re, -out_im]),
+        feedthrough=sigma_factor,
+        start_covariance=to_real @ inn.predictor_covariance @ to_real.T), step,
+        np.concatenate([m_re, m_im]))
 
 
 def _stationary_start(seed, covariance):

@@ -314,8 +314,8 @@ def generate(plan, sink, *, chunk, progress=False):
     from simulator.calibration_tone import tone_signal
 
     chain, n_total = plan.chain, plan.n_samples
-    width, step = kernels.stepper(plan)
-    normals = kernels.NormalBlocks(plan.seed, SAMPLE_STREAM, width, BLOCK_SAMPLES)
+    step = kernels.stepper(plan)
+    normals = kernels.NormalBlocks(plan.seed, SAMPLE_STREAM, step.width, BLOCK_SAMPLES)
     p = len(chain.model.outputs)
     digitiser = kernels.Digitiser(plan)
     tone = tone_signal(plan.chain, plan.scenario, plan.sample_rate_hz)

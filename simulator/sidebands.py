@@ -58,6 +58,9 @@ DEFECTIVE = 1e-8
 # distance from 1 the weights say little about n.
 HYBRID = 0.1
 NO_LINE = complex(np.nan, np.nan)
+# A line whose Stokes weight is below this (in quanta; a line the light reaches has n + 1 ≥ 1)
+# is dark: a combination of degenerate modes that does not couple to the cavity.
+DARK = 1e-9
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -157,6 +160,11 @@ def sideband_summary(scenario, *, point=None, model=None):
             coupled = mode.coupling_rate_hz != 0.0  # else no line: NaN weights
             residue = poles.residue(k) if coupled else NO_LINE
             weight = residue / cavity_filter(point, j, poles.pole_hz(k)) if coupled else NO_LINE
+            if coupled and sign < 0 and abs(weight) < DARK:
+                coupled, residue, weight = False, NO_LINE, NO_LINE
+                sides[+1] = dataclasses.replace(sides[+1], area_quanta=np.nan,
+                                                dispersive_quanta=np.nan,
+                                                area_above_floor=np.nan)
             sides[sign] = Sideband(
                 frequency_hz=poles.frequency_hz(k), linewidth_hz=poles.linewidth_hz(k),
                 area_quanta=float(np.imag(weight)), dispersive_quanta=float(np.real(weight)),
@@ -165,6 +173,10 @@ def sideband_summary(scenario, *, point=None, model=None):
             ratio = np.float64(sides[+1].area_quanta) / sides[-1].area_quanta
             implied = ratio / (1.0 - ratio)
         warning = _warning(poles, stokes_index[j], j) if coupled else ""
+        if mode.coupling_rate_hz != 0.0 and not coupled:
+            warning = ("the mode's line does not reach the output (its weights vanish): it "
+                       "is a combination of degenerate modes that the light does not couple "
+                       "to; the coupled combination carries the lines of both")
         summaries.append(SidebandSummary(
             mode=mode.name, stokes=sides[-1], anti_stokes=sides[+1], ratio=float(ratio),
             occupation_from_ratio=float(implied),

@@ -199,10 +199,20 @@ def _liouvillian(hamiltonian, collapse):
         qutip.liouvillian(hamiltonian, list(collapse)).to("csr").data.as_scipy())
 
 
+PRECONDITIONER_MAX_CONDITION = 1e10  # eigenvector condition above which K is near-defective
+
+
 def _eigenbasis(k):
-    """Eigenvalues λ, eigenvectors V and V⁻¹ of K; the Schur basis if V is near-singular."""
+    """Eigenvalues λ, eigenvectors V and V⁻¹ of K; the Schur basis if V is near-singular.
+
+    The basis serves only the preconditioner. Near an exceptional point of K
+    (a degenerate or defective no-jump generator) the unitary Schur basis
+    with the diagonal of the triangular factor is an approximate inverse, not
+    an exact one: it costs GMRES steps, not accuracy, because every solve's
+    residual is checked against the full generator (:meth:`LindbladSolver.solve`).
+    """
     lam, vec = np.linalg.eig(k)
-    if np.linalg.cond(vec) < 1e10:
+    if np.all(np.isfinite(lam)) and np.linalg.cond(vec) < PRECONDITIONER_MAX_CONDITION:
         return lam, vec, np.linalg.inv(vec)
     r, vec = scipy.linalg.schur(k, output="complex")  # unitary; diag(R) only approximates
     return np.diag(r).copy(), vec, vec.conj().T
