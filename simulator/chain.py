@@ -41,8 +41,6 @@ import numpy as np
 from scipy import constants
 
 from simulator.laser_noise import device_eigenvalues
-from simulator.model import linear_model
-from simulator.operating_point import operating_point
 from simulator.physics import angular, ordinary
 from simulator.statespace import StateSpace
 
@@ -200,15 +198,18 @@ def receiver_of(scenario):
     return scenario.record.kind or "iq"
 
 
-def detection_chain(scenario, point=None, model=None):
+def detection_chain(scenario, point, model):
     """The scenario's linear model with its detection chain appended.
+
+    Built once per :class:`simulator.system.System` (its ``chain``); call
+    that rather than this.
 
     Parameters
     ----------
     scenario : simulator.scenario.Scenario
-    point : simulator.operating_point.OperatingPoint, optional
-    model : simulator.statespace.StateSpace, optional
-        The model of :func:`simulator.model.linear_model`; built when not given.
+    point : simulator.operating_point.OperatingPoint
+    model : simulator.statespace.StateSpace
+        The model of :func:`simulator.model.linear_model`.
 
     Returns
     -------
@@ -227,10 +228,6 @@ def detection_chain(scenario, point=None, model=None):
     to see the same detector efficiency as the signal) and b = 1 (balanced)
     or ½ (single-ended: one port of a 50:50 combiner, which also halves η).
     """
-    if point is None:
-        point = operating_point(scenario)
-    if model is None:
-        model = linear_model(scenario, point)
     det, el = scenario.detection, scenario.electronics
     receiver = receiver_of(scenario)
     share = 1.0 if det.balanced else 0.5

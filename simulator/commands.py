@@ -69,7 +69,7 @@ def cmd_inspect(args):
     if args.master and report.steady is not None:
         from simulator.master.report import master_comparison
 
-        master = master_comparison(scenario, report, kind=args.master_model)
+        master = master_comparison(report, kind=args.master_model)
     if args.json:
         print_json(report.to_dict() | ({"master": master} if args.master else {}))
     else:
@@ -147,17 +147,19 @@ def cmd_spectrum(args):
     from simulator.scenario import load_scenario
     from simulator.sidebands import sideband_summary
     from simulator.spectra import measured_spectrum
+    from simulator.system import System
 
     scenario = load_scenario(args.scenario)
+    system = System(scenario)  # built once: spectrum, summary and referral share it
     if args.engine == "master":
         from simulator.master.spectra import master_heterodyne_spectrum
 
-        spectrum = master_heterodyne_spectrum(scenario, kind=args.master_model)
+        spectrum = master_heterodyne_spectrum(system, kind=args.master_model)
     else:
         angle = None if args.angle_deg is None else math.radians(args.angle_deg)
-        spectrum = measured_spectrum(scenario, quadrature_angle=angle)
+        spectrum = measured_spectrum(system, quadrature_angle=angle)
     # the sideband summary is the linear engine's; not shown beside a master spectrum
-    summary = sideband_summary(scenario) if args.engine == "linear" else []
+    summary = sideband_summary(system) if args.engine == "linear" else []
     files = {}
     if args.out:
         files["data"] = str(spectrum.save(args.out))
@@ -165,7 +167,7 @@ def cmd_spectrum(args):
         from simulator.plots import plot_spectrum
         from simulator.transduction import to_displacement
 
-        plot_spectrum(spectrum, args.plot, displacement=to_displacement(spectrum, scenario),
+        plot_spectrum(spectrum, args.plot, displacement=to_displacement(spectrum, system),
                       summary=summary, title=f"{scenario.scenario.name}: {spectrum.quantity}")
         files["plot"] = str(args.plot)
     report = {"scenario": scenario.scenario.name, "engine": args.engine,

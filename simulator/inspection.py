@@ -10,23 +10,36 @@ import dataclasses
 import math
 
 from simulator import laser_noise
-from simulator.model import linear_model
-from simulator.operating_point import operating_point
-from simulator.steady_state import STRONG_COUPLING_TOLERANCE, stability, steady_state
+from simulator.laser_effects import occupation_report
+from simulator.steady_state import STRONG_COUPLING_TOLERANCE, steady_state
+from simulator.system import as_system
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class Inspection:
     """Operating point, stability and (when stable) steady state of a scenario."""
 
-    scenario: object
-    point: object
-    stability: object
+    system: object  # simulator.system.System
     steady: object  # SteadyState, or None when unstable
     warnings: tuple
     feasibility: tuple = ()  # per mode: dict of measurement-time bounds (heterodyne)
     regime: object = None  # simulator.master.regime.RegimeVerdict: is the linear engine valid?
     laser: tuple = ()  # per mode: laser-noise occupations (simulator.laser_noise)
+
+    @property
+    def scenario(self):
+        """The scenario inspected."""
+        return self.system.scenario
+
+    @property
+    def point(self):
+        """Its operating point."""
+        return self.system.point
+
+    @property
+    def stability(self):
+        """Its stability verdict."""
+        return self.system.stability
 
     def to_dict(self):
         """Plain data for JSON: numbers in SI units, frequencies in Hz."""
@@ -142,7 +155,7 @@ def _finite(x):
     return x if math.isfinite(x) else None
 
 
-def inspect_scenario(scenario, *, feasibility=True):
+def inspect_scenario(system, *, feasibility=True):
     """Operating point, stability, steady state and warnings of ``scenario``.
 
     ``feasibility=False`` leaves out the Cramér–Rao bounds (the costliest
@@ -152,9 +165,8 @@ def inspect_scenario(scenario, *, feasibility=True):
     Unlike :func:`simulator.steady_state.steady_state`, an unstable operating
     point does not raise: the report says so and carries no steady state.
     """
-    point = operating_point(scenario)
-    model = linear_model(scenario, point)
-    verdict = stability(model, point)
+    system = as_system(system)
+    scenario, point, verdict = system.scenario, system.point, system.stability
     warnings = []
     if point.bistable:
         warnings.append(
@@ -167,7 +179,7 @@ def inspect_scenario(scenario, *, feasibility=True):
                 f"mode {mode.name}: linewidth {mode.linewidth_hz:.4g} Hz is more than a tenth "
                 f"of its frequency {mode.frequency_hz:.4g} Hz; the symmetric damping model "
                 "assumes a high quality factor and is not accurate here")
-    steady = steady_state(scenario, model=model, point=point) if verdict.stable else None
+    steady = steady_state(system) if verdict.stable else None
     if steady is not None:
         for ms in steady.modes:
             exact, weak = ms.occupation, ms.weak_coupling_occupation
@@ -183,12 +195,12 @@ def inspect_scenario(scenario, *, feasibility=True):
     regime = regime_verdict(point, None if steady is None else
                             [ms.occupation for ms in steady.modes])
     laser = (() if steady is None or laser_noise.is_quiet(scenario)
-             else laser_noise.occupation_report(scenario, point, steady))
+             else occupation_report(system, steady))
     warnings += [f"mode {ms.name}: the apparent (sideband ratio) occupation is not to be "
                  f"trusted: {entry['apparent_occupation_warning']}"
                  for ms, entry in zip(steady.modes if steady else (), laser, strict=False)
                  if "apparent_occupation_warning" in entry]
-    return Inspection(scenario=scenario, point=point, stability=verdict, steady=steady,
+    return Inspection(system=system, steady=steady,
                       warnings=tuple(warnings), feasibility=feasibility, regime=regime,
                       laser=laser)
 

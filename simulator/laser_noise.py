@@ -68,7 +68,6 @@ from simulator.statespace import StateSpace
 
 PREFIX = "laser."
 TONE_INPUT = "laser.tone"
-DELAY_LIMIT = 0.5  # largest 2π f_m τ of the one-state (Padé) delay
 _SQRT2 = np.sqrt(2.0)
 
 
@@ -78,46 +77,6 @@ def is_quiet(scenario):
     return all(x == type(x)() for x in (d.phase_noise, d.intensity_noise,
                                         d.calibration_tone,
                                         scenario.detection.local_oscillator_phase_noise))
-
-
-def local_oscillator_problems(scenario):
-    """Cross-section checks of the LO reference: yields ``(key, message)``."""
-    det, noise = scenario.detection, scenario.drive.phase_noise
-    source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
-    if source == "locked" and det.local_oscillator_lock_bandwidth_hz is None:
-        yield ("detection.local_oscillator_lock_bandwidth_hz", 'missing with '
-               'local_oscillator_source = "locked"; expected the lock bandwidth in Hz')
-    if source != "locked" and det.local_oscillator_lock_bandwidth_hz is not None:
-        yield ("detection.local_oscillator_lock_bandwidth_hz", f'set with '
-               f'local_oscillator_source = "{source}"; expected it only for "locked"')
-    if source != "common" and tau > 0:
-        yield ("detection.local_oscillator_delay_s", f'{tau!r} s with '
-               f'local_oscillator_source = "{source}"; expected 0 (a delay applies to a '
-               'common local oscillator only)')
-    if source == "independent" and noise.linewidth_hz > 0:
-        yield ("drive.phase_noise.linewidth_hz", f"{noise.linewidth_hz!r} Hz with an "
-               "independent local oscillator: the relative phase of white frequency "
-               "noise is a random walk (the beat note diffuses), which has no "
-               'stationary spectrum; expected local_oscillator_source = "common" (with '
-               'local_oscillator_delay_s) or "locked", or linewidth_hz = 0')
-    own = det.local_oscillator_phase_noise
-    if own != type(own)() and source != "independent":
-        yield ("detection.local_oscillator_phase_noise", f'given with '
-               f'local_oscillator_source = "{source}"; expected it only for "independent" '
-               '(a common or locked local oscillator takes its phase from the drive)')
-    if own.linewidth_hz > 0:
-        yield ("detection.local_oscillator_phase_noise.linewidth_hz", f"{own.linewidth_hz!r} "
-               "Hz: the beat of two free-running sources is a random walk in phase with no "
-               "stationary spectrum; expected 0 (give the floor and peak of the local "
-               'oscillator\'s phase noise), or local_oscillator_source = "locked"')
-    if source == "common" and tau > 0:
-        for mode in scenario.mechanics:
-            x = float(angular(mode.frequency_hz)) * tau
-            if x > DELAY_LIMIT:
-                yield ("detection.local_oscillator_delay_s", f"{tau!r} s gives 2π f τ = "
-                       f"{x:.3g} at mode {mode.name}; expected 2π f τ ≤ {DELAY_LIMIT}, "
-                       "where the one-state delay model errs by at most (2π f τ)²/6 "
-                       "≈ 4 % in the phase-difference spectrum")
 
 
 # -- the state-space model ----------------------------------------------------------
@@ -316,50 +275,3 @@ def device_eigenvalues(model, also=()):
     """
     keep = [i for i, s in enumerate(model.states) if not s.startswith((PREFIX, *also))]
     return np.linalg.eigvals(model.A[np.ix_(keep, keep)])
-
-
-# -- what the noise does to the occupation ------------------------------------------
-
-def without_laser_noise(scenario):
-    """The same scenario with a shot-noise-limited drive and LO, and no tone."""
-    from simulator.scenario import scenario_from_dict
-
-    data = scenario.to_dict()
-    for key in ("phase_noise", "intensity_noise", "calibration_tone"):
-        data["drive"].pop(key, None)
-    data.get("detection", {}).pop("local_oscillator_phase_noise", None)
-    return scenario_from_dict(data, source=scenario.source)
-
-
-def occupation_report(scenario, point, steady):
-    """Per mode: laser input occupation, excess occupation and the apparent one.
-
-    Returns
-    -------
-    tuple of dict
-        ``laser_input_occupation`` (η_c n_c at the mode frequency, see
-        :func:`input_occupation`), ``laser_noise_excess_occupation`` (exact
-        occupation minus that of the same scenario without laser noise) and,
-        for heterodyne detection, ``apparent_occupation_from_asymmetry`` (the
-        sideband-ratio occupation of :func:`simulator.sidebands.sideband_summary`,
-        which laser noise biases: the classical noise the detector sees
-        interferes with the motion it drives, as the vacuum does).
-    """
-    from simulator.sidebands import sideband_summary
-    from simulator.steady_state import steady_state
-
-    quiet = steady_state(without_laser_noise(scenario))
-    share = point.external_linewidth_hz / point.cavity_linewidth_hz
-    summaries = (sideband_summary(scenario) if scenario.detection.scheme == "heterodyne"
-                 else None)
-    out = []
-    for j, mode in enumerate(steady.modes):
-        entry = {"laser_input_occupation": share * float(
-                     input_occupation(scenario, point, point.modes[j].frequency_hz)),
-                 "laser_noise_excess_occupation": mode.occupation - quiet.modes[j].occupation}
-        if summaries is not None:
-            entry["apparent_occupation_from_asymmetry"] = summaries[j].occupation_from_ratio
-            if summaries[j].warning:
-                entry["apparent_occupation_warning"] = summaries[j].warning
-        out.append(entry)
-    return tuple(out)

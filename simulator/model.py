@@ -33,7 +33,6 @@ and VII (linearised dynamics and input-output theory).
 import numpy as np
 
 from simulator import laser_noise
-from simulator.operating_point import operating_point
 from simulator.physics import angular
 from simulator.statespace import StateSpace
 
@@ -41,14 +40,16 @@ CAVITY_STATES = ("cavity.X", "cavity.Y")
 OUTPUTS = ("output.X", "output.Y")
 
 
-def linear_model(scenario, point=None):
+def linear_model(scenario, point):
     """Build the linearised model of ``scenario`` around its operating point.
+
+    Built once per :class:`simulator.system.System` (its ``model``); call
+    that rather than this.
 
     Parameters
     ----------
     scenario : simulator.scenario.Scenario
-    point : simulator.operating_point.OperatingPoint, optional
-        Computed from the scenario when not given.
+    point : simulator.operating_point.OperatingPoint
 
     Returns
     -------
@@ -59,8 +60,6 @@ def linear_model(scenario, point=None):
         :func:`simulator.laser_noise.laser_model` appends ``laser.*`` states
         and inputs; otherwise the model is exactly the one above.
     """
-    if point is None:
-        point = operating_point(scenario)
     kappa, kappa_ex, delta = angular([point.cavity_linewidth_hz,
                                       point.external_linewidth_hz,
                                       point.detuning_effective_hz])

@@ -120,6 +120,7 @@ class Record:
 class RecordPlan:
     """Everything fixed before the first sample: models, scales and sizes."""
 
+    system: object
     scenario: object
     seed: int
     form: str
@@ -144,18 +145,19 @@ class RecordPlan:
         return self.volts_per_count / self.chain.volts_per_unit
 
 
-def plan_record(scenario, *, seed=None, duration_s=None, form="auto", store_mechanics=None):
+def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechanics=None):
     """Resolve every setting of a record and build its exact discrete model.
 
     See :func:`simulate_record` for the parameters.
     """
     from simulator.calibration_tone import tone_amplitude
-    from simulator.chain import automatic_sample_rate, detection_chain
+    from simulator.chain import automatic_sample_rate
     from simulator.discretize import discretize, innovations_form
-    from simulator.model import linear_model
-    from simulator.operating_point import operating_point
     from simulator.steady_state import steady_state
+    from simulator.system import as_system
 
+    system = as_system(system)
+    scenario = system.scenario
     seed = scenario.scenario.seed if seed is None else seed
     if (isinstance(seed, bool) or not isinstance(seed, (int, np.integer))
             or not 0 <= seed < 2**63):
@@ -165,9 +167,10 @@ def plan_record(scenario, *, seed=None, duration_s=None, form="auto", store_mech
                 and duration_s > 0):
             raise InputError(f"duration = {duration_s!r} s; expected a positive number of "
                              "seconds")
-        scenario = scenario.replace("record.duration_s", float(duration_s))
+        system = system.replace("record.duration_s", float(duration_s))
     if store_mechanics is not None and store_mechanics != scenario.record.store_mechanics:
-        scenario = scenario.replace("record.store_mechanics", bool(store_mechanics))
+        system = system.replace("record.store_mechanics", bool(store_mechanics))
+    scenario = system.scenario
     store = scenario.record.store_mechanics
     if form not in ("auto", "full-state", "innovations"):
         raise InputError(f"form = {form!r}; expected 'auto', 'full-state' or 'innovations'")
@@ -177,10 +180,7 @@ def plan_record(scenario, *, seed=None, duration_s=None, form="auto", store_mech
     if form == "auto":
         form = "full-state" if store else "innovations"
 
-    point = operating_point(scenario)
-    model = linear_model(scenario, point)
-    steady = steady_state(scenario, model=model, point=point)
-    chain = detection_chain(scenario, point, model)
+    point, steady, chain = system.point, steady_state(system), system.chain
     det, dig = scenario.detection, scenario.digitizer
     fs = dig.sample_rate_hz or automatic_sample_rate(chain, det.intermediate_frequency_hz)
     n = int(round(scenario.record.duration_s * fs))
@@ -206,7 +206,7 @@ def plan_record(scenario, *, seed=None, duration_s=None, form="auto", store_mech
                   coupling_rate_hz=tuple(m.coupling_rate_hz for m in point.modes),
                   zero_point_amplitude_m=tuple(m.zero_point_amplitude_m for m in point.modes),
                   cavity_occupation=steady.cavity_occupation, calibration=calibration)
-    return RecordPlan(scenario=scenario, seed=int(seed), form=form, chain=chain,
+    return RecordPlan(system=system, scenario=scenario, seed=int(seed), form=form, chain=chain,
                       discrete=discrete, sample_rate_hz=float(fs), n_samples=n,
                       full_scale_v=float(full_scale), bits=dig.bits, truth=truth,
                       watched=watched,
@@ -214,13 +214,14 @@ def plan_record(scenario, *, seed=None, duration_s=None, form="auto", store_mech
                       else None)
 
 
-def simulate_record(scenario, *, seed=None, duration_s=None, out=None, form="auto",
+def simulate_record(system, *, seed=None, duration_s=None, out=None, form="auto",
                     store_mechanics=None, chunk_samples=None, progress=False):
-    """Generate a digitised record of ``scenario`` with its ground truth.
+    """Generate a digitised record of ``system`` with its ground truth.
 
     Parameters
     ----------
-    scenario : simulator.scenario.Scenario
+    system : simulator.system.System
+        Or a scenario, built into one.
     seed : int, optional
         Default: ``scenario.scenario.seed``.
     duration_s : float, optional
@@ -258,7 +259,7 @@ def simulate_record(scenario, *, seed=None, duration_s=None, out=None, form="aut
     RecordWarning
         When samples were clipped at the digitiser's full scale.
     """
-    plan = plan_record(scenario, seed=seed, duration_s=duration_s, form=form,
+    plan = plan_record(system, seed=seed, duration_s=duration_s, form=form,
                        store_mechanics=store_mechanics)
     chunk = plan.scenario.record.chunk_samples if chunk_samples is None else chunk_samples
     if isinstance(chunk, bool) or not isinstance(chunk, (int, np.integer)) or chunk < 1:

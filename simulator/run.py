@@ -32,6 +32,7 @@ def run_scenario(scenario, out, *, workers=None, dask=None, progress=True):
     from simulator import tasks
     from simulator.commands import _clean
     from simulator.inspection import inspect_scenario
+    from simulator.system import System
 
     out = Path(out)
     text = scenario.to_toml()
@@ -46,7 +47,8 @@ def run_scenario(scenario, out, *, workers=None, dask=None, progress=True):
 
     wrote(out / "scenario.toml")
     atomic_write_text(out / "scenario.toml", scenario.to_toml())
-    inspection = inspect_scenario(scenario)
+    system = System(scenario)  # built once: every part below takes it
+    inspection = inspect_scenario(system)
     data = _clean(inspection.to_dict())
     atomic_write_text(wrote(out / "inspect.json"), json.dumps(data, indent=2))
     atomic_write_text(wrote(out / "inspect.txt"), inspection.to_text() + "\n")
@@ -67,12 +69,12 @@ def run_scenario(scenario, out, *, workers=None, dask=None, progress=True):
                           f"{data['feasibility'][0]['significance']:g}σ (s)"])))
 
     if inspection.stability.stable:
-        sections.append(("Sideband summary", _spectrum_part(scenario, out, wrote, figures)))
+        sections.append(("Sideband summary", _spectrum_part(system, out, wrote, figures)))
     else:
         sections.append(("Spectrum", "<p>No spectrum: the operating point is unstable ("
                          + html.escape(inspection.stability.cause) + ").</p>"))
 
-    record_part = _record_part(scenario, out, wrote, figures, progress)
+    record_part = _record_part(system, out, wrote, figures, progress)
     if record_part:
         sections.append(("Record", record_part))
 
@@ -118,18 +120,19 @@ def _derived_table(data):
     return table + html.table(rows, header=["per mode"] + [m["name"] for m in modes])
 
 
-def _spectrum_part(scenario, out, wrote, figures):
+def _spectrum_part(system, out, wrote, figures):
     from simulator.plots import plot_spectrum
     from simulator.sidebands import sideband_summary
     from simulator.spectra import measured_spectrum
     from simulator.transduction import to_displacement
 
-    spectrum = measured_spectrum(scenario)
-    summary = sideband_summary(scenario)
+    spectrum = measured_spectrum(system)
+    summary = sideband_summary(system)
     spectrum.save(wrote(out / "spectrum.nc"))
     png = wrote(out / "spectrum.png")
-    plot_spectrum(spectrum, png, displacement=to_displacement(spectrum, scenario),
-                  summary=summary, title=f"{scenario.scenario.name}: {spectrum.quantity}")
+    plot_spectrum(spectrum, png, displacement=to_displacement(spectrum, system),
+                  summary=summary,
+                  title=f"{system.scenario.scenario.name}: {spectrum.quantity}")
     figures.append(png)
     rows = [[s.mode, s.anti_stokes.frequency_hz, s.anti_stokes.area_quanta,
              s.stokes.frequency_hz, s.stokes.area_quanta, s.ratio, s.occupation_from_ratio,
@@ -143,9 +146,9 @@ def _spectrum_part(scenario, out, wrote, figures):
                       for s in summary if s.warning))
 
 
-def _record_part(scenario, out, wrote, figures, progress):
+def _record_part(system, out, wrote, figures, progress):
     """Write the record the scenario asks for, and its spectrum beside the analytic one."""
-    if not getattr(scenario.record, "in_run", False):  # key added with the records stage
+    if not system.scenario.record.in_run:
         return ""
     import warnings
 
@@ -154,9 +157,9 @@ def _record_part(scenario, out, wrote, figures, progress):
     path = wrote(out / "record.h5")
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        record = simulate_record(scenario, out=path, progress=progress)
+        record = simulate_record(system, out=path, progress=progress)
     png = wrote(out / "record_spectrum.png")
-    _plot_record_spectrum(scenario, record, png)
+    _plot_record_spectrum(system, record, png)
     figures.append(png)
     truth = record.truth
     rows = [[name, n, f, w] for name, n, f, w in zip(
@@ -170,7 +173,7 @@ def _record_part(scenario, out, wrote, figures, progress):
                                        "linewidth (Hz)"]))
 
 
-def _plot_record_spectrum(scenario, record, path):
+def _plot_record_spectrum(system, record, path):
     """Periodogram of the record over the exact density of its samples."""
     import matplotlib
 
@@ -179,7 +182,6 @@ def _plot_record_spectrum(scenario, record, path):
     import numpy as np
 
     from simulator.analysis.psd import averaged_periodogram
-    from simulator.chain import detection_chain
 
     fs = record.sample_rate_hz
     # bins of a quarter of the narrowest line, but at least 16 averages
@@ -190,7 +192,7 @@ def _plot_record_spectrum(scenario, record, path):
                                window="boxcar")
     step = max(1, psd.frequency_hz.size // 1024)  # the exact curve is smooth: 1024 points
     f_exact = psd.frequency_hz[::step]
-    exact = detection_chain(scenario).sampled_spectrum(f_exact, fs, aliases=40)
+    exact = system.chain.sampled_spectrum(f_exact, fs, aliases=40)
     if psd.sided == "one-sided":
         exact = 2 * exact
     fig, ax = plt.subplots(figsize=(9, 4.5))
@@ -204,7 +206,7 @@ def _plot_record_spectrum(scenario, record, path):
     ax.set_xlabel(f"{axis} ({unit})")
     floor = "1" if psd.sided == "two-sided" else "2 (one-sided)"
     ax.set_ylabel(f"{psd.sided} density, record units²/Hz\n(vacuum floor {floor})")
-    ax.set_title(f"{scenario.scenario.name}: synthetic record against the model")
+    ax.set_title(f"{system.scenario.scenario.name}: synthetic record against the model")
     ax.legend(fontsize=8)
     ax.grid(alpha=0.3)
     fig.tight_layout()

@@ -46,8 +46,8 @@ import numpy as np
 import scipy.linalg
 
 from simulator.physics import TWO_PI, angular
-from simulator.spectra import prepare
 from simulator.steady_state import mode_eigenvalues, steady_state
+from simulator.system import as_system
 
 # |w_k v_k| below this (unit-norm vectors of the cavity–mechanics block) is an
 # eigenvalue at an exceptional point: no isolated Lorentzian line, no area.
@@ -119,14 +119,13 @@ def cavity_filter(point, mode_index, frequency_hz):
     return kappa_ex * g**2 / (kappa**2 / 4 + (omega + delta) ** 2)
 
 
-def sideband_summary(scenario, *, point=None, model=None):
-    """Sideband summary of every mechanical mode of ``scenario``.
+def sideband_summary(system):
+    """Sideband summary of every mechanical mode of ``system``.
 
     Parameters
     ----------
-    scenario : simulator.scenario.Scenario
-    point, model : optional
-        Operating point and linear model, when already computed.
+    system : simulator.system.System
+        Or a scenario, built into one.
 
     Returns
     -------
@@ -147,8 +146,9 @@ def sideband_summary(scenario, *, point=None, model=None):
     drive that also reaches the detector the areas carry its interference
     with the motion it drives: the false asymmetry (docs/laser-noise.md).
     """
-    point, model = prepare(scenario, point, model)
-    steady = steady_state(scenario, model=model, point=point)
+    system = as_system(system).require_stable()
+    scenario, point, model = system.scenario, system.point, system.model
+    steady = steady_state(system)
     eta = scenario.detection.efficiency
     poles = _Poles(model, len(point.modes))
     stokes_index = [poles.index_of(lam) for lam in mode_eigenvalues(model, len(point.modes))]

@@ -56,32 +56,14 @@ from simulator.budget import (
 from simulator.calibration_tone import tone_lines
 from simulator.errors import InputError
 from simulator.laser_noise import device_eigenvalues
-from simulator.model import linear_model
-from simulator.operating_point import operating_point
 from simulator.physics import angular, ordinary
 from simulator.spectrum import Spectrum
 from simulator.statespace import StateSpace
-from simulator.steady_state import require_stable, stability
+from simulator.system import as_system
 
 HETERODYNE_AXIS = "optical offset from the drive (> 0: anti-Stokes, above the drive)"
 HOMODYNE_AXIS = "baseband frequency f >= 0"
 SHOT_NOISE_UNITS = "shot-noise units (vacuum = 1)"
-
-
-def prepare(scenario, point=None, model=None):
-    """Operating point and linear model of ``scenario``, checked for stability.
-
-    Raises
-    ------
-    simulator.errors.OperatingPointError
-        If the operating point is unstable: no stationary spectrum exists.
-    """
-    if point is None:
-        point = operating_point(scenario)
-    if model is None:
-        model = linear_model(scenario, point)
-    require_stable(stability(model, point))
-    return point, model
 
 
 def adaptive_grid(model, *, span_hz=None, one_sided=False, points_per_decade=48,
@@ -172,20 +154,18 @@ def _grid(frequency_hz, model, one_sided):
     return f
 
 
-def heterodyne_spectrum(scenario, frequency_hz=None, *, efficiency=None, point=None,
-                        model=None):
+def heterodyne_spectrum(system, frequency_hz=None, *, efficiency=None):
     """Heterodyne spectrum of the output field with its noise budget.
 
     Parameters
     ----------
-    scenario : simulator.scenario.Scenario
+    system : simulator.system.System
+        Or a scenario, built into one.
     frequency_hz : array_like, optional
         Optical offsets ν from the drive (Hz), two-sided. Default: the
         adaptive grid of :func:`adaptive_grid`.
     efficiency : float, optional
         Detection efficiency η; default ``scenario.detection.efficiency``.
-    point, model : optional
-        Operating point and linear model, when already computed.
 
     Returns
     -------
@@ -204,7 +184,8 @@ def heterodyne_spectrum(scenario, frequency_hz=None, *, efficiency=None, point=N
     ----------
     Weinstein et al., Phys. Rev. X 4, 041003 (2014) (heterodyne sideband spectra).
     """
-    point, model = prepare(scenario, point, model)
+    system = as_system(system).require_stable()
+    scenario, model = system.scenario, system.model
     eta = _efficiency(scenario, efficiency)
     f = _grid(frequency_hz, model, one_sided=False)
     u = np.array([1.0, 1.0j]) / np.sqrt(2.0)
@@ -216,20 +197,21 @@ def heterodyne_spectrum(scenario, frequency_hz=None, *, efficiency=None, point=N
                     provenance=_provenance(scenario, "heterodyne", eta))
 
 
-def homodyne_spectrum(scenario, frequency_hz=None, *, quadrature_angle=np.pi / 2,
-                      efficiency=None, point=None, model=None):
+def homodyne_spectrum(system, frequency_hz=None, *, quadrature_angle=np.pi / 2,
+                      efficiency=None):
     """Homodyne spectrum of one output quadrature with its noise budget.
 
     Parameters
     ----------
-    scenario : simulator.scenario.Scenario
+    system : simulator.system.System
+        Or a scenario, built into one.
     frequency_hz : array_like, optional
         Frequencies f >= 0 (Hz). Default: the one-sided adaptive grid.
     quadrature_angle : float
         θ (rad) of X_θ = cos θ X_out + sin θ Y_out, from the amplitude
         quadrature of the intracavity field; π/2 (default) is the phase
         quadrature, which carries the motion for a resonant drive.
-    efficiency, point, model : optional
+    efficiency : float, optional
         As in :func:`heterodyne_spectrum`.
 
     Returns
@@ -237,7 +219,8 @@ def homodyne_spectrum(scenario, frequency_hz=None, *, quadrature_angle=np.pi / 2
     simulator.spectrum.Spectrum
         One-sided density in shot-noise units, S(f) = 1 + η(2 S̄_θθ(f) − 1).
     """
-    point, model = prepare(scenario, point, model)
+    system = as_system(system).require_stable()
+    scenario, model = system.scenario, system.model
     eta = _efficiency(scenario, efficiency)
     theta = float(quadrature_angle)
     if not np.isfinite(theta):
@@ -254,18 +237,20 @@ def homodyne_spectrum(scenario, frequency_hz=None, *, quadrature_angle=np.pi / 2
                     provenance=_provenance(scenario, "homodyne", eta, theta))
 
 
-def measured_spectrum(scenario, *, frequency_hz=None, quadrature_angle=None):
-    """The spectrum of the scenario's own detection scheme (heterodyne or homodyne).
+def measured_spectrum(system, *, frequency_hz=None, quadrature_angle=None):
+    """The spectrum of the system's own detection scheme (heterodyne or homodyne).
 
     The one call the command line makes; see :func:`heterodyne_spectrum` and
     :func:`homodyne_spectrum`. The homodyne quadrature angle defaults to the
     scenario's ``detection.quadrature_angle_rad``, as in its records.
     """
+    system = as_system(system)
+    detection = system.scenario.detection
     if quadrature_angle is None:
-        quadrature_angle = scenario.detection.quadrature_angle_rad
-    if scenario.detection.scheme == "homodyne":
-        return homodyne_spectrum(scenario, frequency_hz, quadrature_angle=quadrature_angle)
-    return heterodyne_spectrum(scenario, frequency_hz)
+        quadrature_angle = detection.quadrature_angle_rad
+    if detection.scheme == "homodyne":
+        return homodyne_spectrum(system, frequency_hz, quadrature_angle=quadrature_angle)
+    return heterodyne_spectrum(system, frequency_hz)
 
 
 def photon_flux_density(model, frequency_hz, *, floor=False):

@@ -1,7 +1,7 @@
-"""Stability and the exact steady state of the linear model.
+"""The exact steady state of the linear model.
 
-Stability comes from the eigenvalues of the drift matrix A; the stationary
-covariance from the Lyapunov equation A V + V Aᵀ + B N Bᵀ = 0, which is exact
+For a stable system (:mod:`simulator.stability`) the stationary
+covariance comes from the Lyapunov equation A V + V Aᵀ + B N Bᵀ = 0, which is exact
 for the linear model at any coupling strength. Occupations follow from the
 quadrature variances, n = (⟨X²⟩ + ⟨Y²⟩ − 1)/2. Each mode's effective frequency
 and linewidth are read from the eigenvalue of A whose eigenvector lies most on
@@ -15,23 +15,11 @@ import numpy as np
 from scipy.optimize import linear_sum_assignment
 
 from simulator import weak_coupling
-from simulator.errors import OperatingPointError
-from simulator.model import linear_model
-from simulator.operating_point import operating_point
 from simulator.physics import angular, ordinary
+from simulator.system import as_system
 
 # Weak-coupling and exact occupations further apart than this flag strong coupling.
 STRONG_COUPLING_TOLERANCE = 0.10
-
-
-@dataclasses.dataclass(frozen=True, kw_only=True)
-class Stability:
-    """Stability verdict of the linear model."""
-
-    stable: bool
-    growth_rate_hz: float  # max Re(λ)/2π: amplitude growth (> 0) or decay (< 0)
-    cause: str  # plain statement; empty when stable
-    eigenvalues_hz: tuple  # λ/2π, complex, sorted by decreasing real part
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -64,55 +52,13 @@ class SteadyState:
     modes: tuple  # ModeState per mechanical mode
 
 
-def stability(model, point):
-    """Stability verdict from the eigenvalues of ``model.A``.
+def steady_state(system):
+    """Exact steady state of a system's linear model.
 
     Parameters
     ----------
-    model : simulator.statespace.StateSpace
-    point : simulator.operating_point.OperatingPoint
-        Used to name the cause in the physicist's terms.
-    """
-    lam = model.eigenvalues()
-    scale = np.max(np.abs(np.diag(model.A))) + 1e-300
-    top = lam[0]
-    stable = bool(top.real < -1e-12 * scale)
-    cause = ""
-    if not stable:
-        if abs(top.imag) <= 1e-9 * abs(top) + 1e-300:
-            cause = ("static instability: a real eigenvalue of the drift matrix is "
-                     "positive (det A < 0), the optical spring has pulled a mechanical "
-                     "frequency through zero; this is the unstable branch of a bistable "
-                     "response or an overly strong drive")
-        elif point.detuning_effective_hz > 0:
-            cause = ("parametric instability on blue detuning: optical anti-damping "
-                     "exceeds the intrinsic mechanical damping (Γm + Γopt < 0), so the "
-                     "mechanics self-oscillates")
-        else:
-            cause = ("oscillatory instability: an eigenvalue of the drift matrix has a "
-                     "positive real part")
-    return Stability(stable=stable, growth_rate_hz=float(ordinary(top.real)), cause=cause,
-                     eigenvalues_hz=tuple(complex(x) / (2 * np.pi) for x in lam))
-
-
-def require_stable(verdict):
-    """Raise :class:`OperatingPointError` if the verdict is unstable."""
-    if not verdict.stable:
-        raise OperatingPointError(
-            f"the operating point is unstable (amplitude growth rate "
-            f"{verdict.growth_rate_hz:.6g} Hz): {verdict.cause}. Change the detuning, "
-            "power or damping; the steady state does not exist here.")
-
-
-def steady_state(scenario=None, *, model=None, point=None):
-    """Exact steady state of a scenario's linear model.
-
-    Parameters
-    ----------
-    scenario : simulator.scenario.Scenario, optional
-        Used to build ``point`` and ``model`` where they are not given.
-    model : StateSpace, optional
-    point : OperatingPoint, optional
+    system : simulator.system.System
+        Or a scenario, built into one (:func:`simulator.system.as_system`).
 
     Returns
     -------
@@ -123,11 +69,8 @@ def steady_state(scenario=None, *, model=None, point=None):
     OperatingPointError
         If the operating point is unstable (no steady state exists).
     """
-    if point is None:
-        point = operating_point(scenario)
-    if model is None:
-        model = linear_model(scenario, point)
-    require_stable(stability(model, point))
+    system = as_system(system).require_stable()
+    scenario, point, model = system.scenario, system.point, system.model
     v = model.covariance()
     cavity_occupation = (v[0, 0] + v[1, 1] - 1.0) / 2.0
     frequencies, linewidths = effective_mechanics(model, len(point.modes))
@@ -161,7 +104,7 @@ def _laser_occupation(scenario, point, mode):
     """η_c n_c: the drive's classical noise at Ωm as an input occupation (0 without)."""
     from simulator import laser_noise
 
-    if scenario is None or laser_noise.is_quiet(scenario):
+    if laser_noise.is_quiet(scenario):
         return 0.0
     share = point.external_linewidth_hz / point.cavity_linewidth_hz
     return share * float(laser_noise.input_occupation(scenario, point, mode.frequency_hz))

@@ -33,9 +33,9 @@ from scipy import constants
 
 from simulator.errors import InputError
 from simulator.physics import HBAR, angular, photon_energy_j
-from simulator.spectra import prepare
 from simulator.statespace import StateSpace
 from simulator.steady_state import effective_mechanics
+from simulator.system import as_system
 
 HBAR_SQUARED_OVER_4 = HBAR**2 / 4
 
@@ -113,28 +113,29 @@ def _scheme(spectrum, scenario):
     return scheme, eta, theta
 
 
-def transduction(spectrum, scenario, mode=0, *, point=None, model=None):
+def transduction(spectrum, system, mode=0):
     """Shot-noise units per (m²/Hz) of mode displacement, on the spectrum's grid.
 
     Heterodyne (two-sided ν): η|u·G(2πν)|², u = (1, i)/√2. Homodyne
     (one-sided f): η|G_θ(2πf)|², so that S_hom/transduction is the one-sided
     displacement density 2S̄_xx.
     """
-    point, model = prepare(scenario, point, model)
-    j = mode_index(point, mode)
-    return _gain(spectrum, scenario, model, point, j, spectrum.frequency_hz)
+    system = as_system(system).require_stable()
+    j = mode_index(system.point, mode)
+    return _gain(spectrum, system, j, spectrum.frequency_hz)
 
 
-def _gain(spectrum, scenario, model, point, j, frequency_hz):
-    scheme, eta, theta = _scheme(spectrum, scenario)
+def _gain(spectrum, system, j, frequency_hz):
+    scheme, eta, theta = _scheme(spectrum, system.scenario)
     if scheme == "heterodyne":
         u = np.array([1.0, 1.0j]) / np.sqrt(2.0)
     else:
         u = np.array([np.cos(theta), np.sin(theta)])
-    return eta * np.abs(displacement_gain(model, point, j, frequency_hz) @ u) ** 2
+    gain = displacement_gain(system.model, system.point, j, frequency_hz)
+    return eta * np.abs(gain @ u) ** 2
 
 
-def to_displacement(spectrum, scenario, mode=0, *, point=None, model=None):
+def to_displacement(spectrum, system, mode=0):
     """The detected spectrum referred to the displacement of one mode (m²/Hz).
 
     Parameters
@@ -142,7 +143,8 @@ def to_displacement(spectrum, scenario, mode=0, *, point=None, model=None):
     spectrum : simulator.spectrum.Spectrum
         A heterodyne or homodyne spectrum in shot-noise units (its provenance
         names the scheme, efficiency and quadrature angle).
-    scenario : simulator.scenario.Scenario
+    system : simulator.system.System
+        Or a scenario, built into one.
     mode : str or int
         The mechanical mode whose displacement the spectrum is referred to.
 
@@ -163,14 +165,15 @@ def to_displacement(spectrum, scenario, mode=0, *, point=None, model=None):
     back-action terms add ±ħ Im χ, so the anti-Stokes side shows n and the
     Stokes side n + 1 quanta.
     """
-    point, model = prepare(scenario, point, model)
+    system = as_system(system).require_stable()
+    point, model = system.point, system.model
     j = mode_index(point, mode)
     f = spectrum.frequency_hz
-    gain = _gain(spectrum, scenario, model, point, j, f)
+    gain = _gain(spectrum, system, j, f)
     chi = susceptibility(model, point, j, f)
     sides = 2.0 if spectrum.sided == "one-sided" else 1.0
     f_mode = effective_mechanics(model, len(point.modes))[0][j]
-    at = _gain(spectrum, scenario, model, point, j, np.array([f_mode]))[0]
+    at = _gain(spectrum, system, j, np.array([f_mode]))[0]
     return _referred(spectrum, gain, "m^2/Hz", f"displacement of mode {point.modes[j].name}",
                      {"standard quantum limit": sides * HBAR * np.abs(chi),
                       "zero-point motion": sides * HBAR * np.abs(chi.imag)},
@@ -178,17 +181,18 @@ def to_displacement(spectrum, scenario, mode=0, *, point=None, model=None):
                       "zero_point_amplitude_m": point.modes[j].zero_point_amplitude_m})
 
 
-def to_force(spectrum, scenario, mode=0, *, point=None, model=None):
+def to_force(spectrum, system, mode=0):
     """The detected spectrum referred to a force on one mode (N²/Hz).
 
     Displacement referral divided by |χ_eff(ω)|², the full susceptibility of
     the mode. References: "standard quantum limit" ħ/|χ_eff| and "zero-point
     force" ħ|Im χ_eff|/|χ_eff|² (doubled when one-sided).
     """
-    point, model = prepare(scenario, point, model)
-    x = to_displacement(spectrum, scenario, mode, point=point, model=model)
+    system = as_system(system).require_stable()
+    x = to_displacement(spectrum, system, mode)
+    point = system.point
     j = mode_index(point, mode)
-    chi2 = np.abs(susceptibility(model, point, j, spectrum.frequency_hz)) ** 2
+    chi2 = np.abs(susceptibility(system.model, point, j, spectrum.frequency_hz)) ** 2
     ref = {"standard quantum limit": x.reference["standard quantum limit"] / chi2,
            "zero-point force": x.reference["zero-point motion"] / chi2}
     return _referred(x, chi2, "N^2/Hz", f"force on mode {point.modes[j].name}", ref, {},
@@ -238,13 +242,14 @@ class MeasurementNoise:
                 + 2.0 * np.real(np.conj(chi) * self.correlation))
 
 
-def imprecision_backaction(scenario, frequency_hz, mode=0, *, quadrature_angle=np.pi / 2,
-                           scheme="homodyne", efficiency=None, point=None, model=None):
+def imprecision_backaction(system, frequency_hz, mode=0, *, quadrature_angle=np.pi / 2,
+                           scheme="homodyne", efficiency=None):
     """Imprecision and back-action noise of measuring quadrature θ of the output.
 
     Parameters
     ----------
-    scenario : simulator.scenario.Scenario
+    system : simulator.system.System
+        Or a scenario, built into one.
     frequency_hz : array_like
         Frequencies (Hz).
     mode : str or int
@@ -273,7 +278,8 @@ def imprecision_backaction(scenario, frequency_hz, mode=0, *, quadrature_angle=n
     (G_θ = 0, e.g. the amplitude quadrature at Δ = 0) the imprecision is
     infinite and the correlation undefined (inf or NaN).
     """
-    point, model = prepare(scenario, point, model)
+    system = as_system(system).require_stable()
+    scenario, point, model = system.scenario, system.point, system.model
     j = mode_index(point, mode)
     if scheme not in ("homodyne", "heterodyne"):
         raise InputError(f"scheme = {scheme!r}; expected 'homodyne' or 'heterodyne'")

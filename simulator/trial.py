@@ -155,11 +155,11 @@ def _trial_task(common, seed):
 
 def truth_table(scenario):
     """Truth by quantity name (see the module notes)."""
-    from simulator.operating_point import operating_point
     from simulator.steady_state import steady_state
+    from simulator.system import as_system
 
-    point = operating_point(scenario)
-    steady = steady_state(scenario, point=point)
+    system = as_system(scenario)
+    point, steady = system.point, steady_state(system)
     table = {"cavity_occupation": steady.cavity_occupation}
     for j, (mp, ms) in enumerate(zip(point.modes, steady.modes, strict=True)):
         values = {"occupation": ms.occupation,

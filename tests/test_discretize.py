@@ -20,10 +20,11 @@ import numpy as np
 import pytest
 from conftest import mode, scenario_with_coupling
 
-from simulator.chain import automatic_sample_rate, detection_chain
+from simulator.chain import automatic_sample_rate
 from simulator.discretize import discretize, innovations_form, noise_factor
 from simulator.scenario import scenario_from_dict
 from simulator.statespace import StateSpace
+from simulator.system import System
 
 
 def ou_model(gamma, intensity, feedthrough):
@@ -121,7 +122,7 @@ def test_sampled_spectrum_is_aliased_continuous_times_sinc2(name):
     is a filter with |H|² = sinc²(f/fs), then sampling aliases.
     """
     scenario = chain_scenario(**CHAINS[name])
-    chain = detection_chain(scenario)
+    chain = System(scenario).chain
     fs = automatic_sample_rate(chain, scenario.detection.intermediate_frequency_hz)
     disc = discretize(chain.model, 1 / fs, integrator_drift=chain.integrator_drift())
     f = np.linspace(-fs / 2, fs / 2, 41)[1:-1] + 0.123 * fs / 40
@@ -133,7 +134,7 @@ def test_sampled_spectrum_is_aliased_continuous_times_sinc2(name):
 @pytest.mark.parametrize("name", list(CHAINS))
 def test_stationary_covariance_is_invariant(name):
     scenario = chain_scenario(**CHAINS[name])
-    chain = detection_chain(scenario)
+    chain = System(scenario).chain
     disc = discretize(chain.model, 1 / 4e6, integrator_drift=chain.integrator_drift())
     v = disc.state_covariance
     step = disc.transition @ v @ disc.transition.T + disc.process_noise
@@ -145,7 +146,7 @@ def test_innovations_form_reproduces_the_autocovariance(name):
     """Anderson and Moore, Optimal Filtering (1979), Ch. 9: the innovations
     representation has the same output second-order statistics."""
     scenario = chain_scenario(**CHAINS[name])
-    chain = detection_chain(scenario)
+    chain = System(scenario).chain
     disc = discretize(chain.model, 1 / 4e6, integrator_drift=chain.integrator_drift())
     inn = innovations_form(disc)
     assert np.linalg.eigvalsh(inn.predictor_covariance).min() > -1e-12 * np.abs(

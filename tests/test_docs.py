@@ -16,10 +16,10 @@ import numpy as np
 import pytest
 
 from simulator import schema
-from simulator.model import linear_model
 from simulator.physics import angular
 from simulator.scenario import Scenario, load_scenario
 from simulator.steady_state import steady_state
+from simulator.system import System
 
 REPO = Path(__file__).resolve().parents[1]
 DOCS = REPO / "docs"
@@ -134,8 +134,9 @@ def test_heterodyne_sign_convention_of_the_state_space():
     """
     demo = load_scenario(REPO / "simulator" / "data" / "demo.toml")
     scenario = demo.replace("drive.power_w", demo.drive.power_w / 20)  # g/κ ≈ 0.02
-    model = linear_model(scenario)
-    mode = steady_state(scenario, model=model).modes[0]
+    system = System(scenario)
+    model = system.model
+    mode = steady_state(system).modes[0]
     centre = angular(mode.effective_frequency_hz)
     width = angular(mode.effective_linewidth_hz)
     offsets = np.linspace(-300 * width, 300 * width, 60001)

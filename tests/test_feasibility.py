@@ -14,6 +14,7 @@ from simulator.analysis.feasibility import asymmetry_time, fisher_matrix, occupa
 from simulator.analysis.psd import PSDEstimate
 from simulator.analysis.thermometry import Calibration, cavity_filter, measure_occupation
 from simulator.demo import demo_scenario
+from simulator.system import System
 
 
 @pytest.fixture(scope="module")
@@ -61,10 +62,11 @@ def test_matrix_fisher_formula_reduces_to_the_scalar_one_for_resolved_sidebands(
     Ark. Mat. 2, 423 (1953)); with resolved sidebands the record is nearly
     circular, so the two agree to better than 1 %. The scalar route uses the
     independent analytic heterodyne spectrum of simulator.spectra."""
-    from simulator.spectra import adaptive_grid, heterodyne_spectrum, prepare
+    from simulator.spectra import adaptive_grid, heterodyne_spectrum
 
     path = "mechanics[0].bath_temperature_k"
-    _, model = prepare(scenario)
+    system = System(scenario).require_stable()
+    _, model = system.point, system.model
     f = adaptive_grid(model, points_per_decade=64)
     base = heterodyne_spectrum(scenario, f).total
     t, h = scenario.get(path), 1e-4 * scenario.get(path)

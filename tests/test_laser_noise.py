@@ -16,12 +16,13 @@ from simulator.analysis.fitting import fit_whittle
 from simulator.analysis.psd import averaged_periodogram
 from simulator.errors import ScenarioError
 from simulator.inspection import inspect_scenario
-from simulator.model import linear_model
+from simulator.laser_effects import without_laser_noise
 from simulator.operating_point import operating_point
 from simulator.scenario import scenario_from_dict
 from simulator.sidebands import sideband_summary
 from simulator.spectra import heterodyne_spectrum, photon_flux_density, state_spectrum
 from simulator.steady_state import steady_state
+from simulator.system import System
 
 FLOOR = {"floor_rad2_per_hz": 1e-14, "floor_low_hz": 1e6, "floor_high_hz": 1e8}
 PEAK = {"peak_rad2_per_hz": 1e-10, "peak_frequency_hz": 1e6, "peak_width_hz": 1e5}
@@ -50,7 +51,7 @@ def test_a_quiet_drive_builds_exactly_the_old_model():
     plain = make_scenario()
     explicit = make_scenario(drive={"phase_noise": {}, "intensity_noise": {},
                                     "calibration_tone": {"depth_rad": 0.0}})
-    a, b = linear_model(plain), linear_model(explicit)
+    a, b = System(plain).model, System(explicit).model
     for name in ("A", "B", "N", "C", "D", "coupling"):
         assert np.array_equal(getattr(a, name), getattr(b, name))
     assert a.states == b.states and a.inputs == b.inputs and a.sources == b.sources
@@ -154,7 +155,7 @@ def test_realised_shapes_are_the_documented_two_sided_densities():
     ∫₀^∞ S_one-sided df = variance)."""
     shapes = {**FLOOR, **PEAK, "floor_low_hz": 2e5, "floor_high_hz": 5e6}
     scenario = make_scenario(drive={"phase_noise": shapes})
-    model = linear_model(scenario)
+    model = System(scenario).model
     names = [s for s in model.states if s in ("laser.floor.2", "laser.peak.1")]
     f = np.concatenate([-np.logspace(2, 9, 6000)[::-1], np.logspace(2, 9, 6000)])
     s = state_spectrum(model, f, names)
@@ -196,7 +197,7 @@ def test_heating_by_laser_noise_matches_the_weak_coupling_rate(name):
     scenario = resolved(shapes, rin)
     point = operating_point(scenario)
     exact = steady_state(scenario).modes[0].occupation
-    quiet = steady_state(laser_noise.without_laser_noise(scenario)).modes[0].occupation
+    quiet = steady_state(without_laser_noise(scenario)).modes[0].occupation
     m = point.modes[0]
     k, kex, d, g, om, gm = 2 * np.pi * np.array([
         point.cavity_linewidth_hz, point.external_linewidth_hz, point.detuning_effective_hz,
@@ -217,7 +218,7 @@ def sideband_shifts(scenario):
     without laser noise, minus the change of the exact occupation. Also the
     noise's n_c at Ωm, the ratio thermometer's occupation and the exact one."""
     point = operating_point(scenario)
-    calm_scenario = laser_noise.without_laser_noise(scenario)
+    calm_scenario = without_laser_noise(scenario)
     n = steady_state(scenario).modes[0].occupation
     heating = n - steady_state(calm_scenario).modes[0].occupation
     s = sideband_summary(scenario)[0]
@@ -405,7 +406,7 @@ def test_budget_sums_and_the_vacuum_floor_stays_one():
                  "laser relaxation-oscillation peak", "laser intensity noise"):
         for piece in ("imprecision", "back-action motion", "imprecision × back-action"):
             assert f"{part}: {piece}" in spectrum.contributions
-    model = linear_model(scenario)
+    model = System(scenario).model
     n_out = photon_flux_density(model, spectrum.frequency_hz)
     assert np.allclose(spectrum.total, 1 + 0.8 * n_out, rtol=1e-10)
 
@@ -424,7 +425,7 @@ def test_self_delayed_heterodyne():
     linewidth, tau = 1e3, 2e-9
     scenario = make_scenario(drive={"phase_noise": {"linewidth_hz": linewidth}},
                              detection={"local_oscillator_delay_s": tau})
-    model = linear_model(scenario)
+    model = System(scenario).model
     i = model.index("laser.reference")
     assert model.covariance()[i, i] == pytest.approx(2 * np.pi * linewidth * tau, rel=1e-10)
 
@@ -480,7 +481,7 @@ def test_inspect_reports_excess_and_apparent_occupation():
     scenario = resolved(FLOOR)
     report = inspect_scenario(scenario)
     entry = report.to_dict()["modes"][0]
-    quiet = steady_state(laser_noise.without_laser_noise(scenario)).modes[0].occupation
+    quiet = steady_state(without_laser_noise(scenario)).modes[0].occupation
     assert entry["laser_noise_excess_occupation"] == pytest.approx(
         entry["occupation"] - quiet, rel=1e-12)
     assert entry["apparent_occupation_from_asymmetry"] == pytest.approx(

@@ -20,9 +20,9 @@ from simulator.master.hilbert import build_model, displaced_thermal_cutoff
 from simulator.master.liouvillian import LindbladSolver
 from simulator.master.spectra import master_heterodyne_spectrum, output_flux_density
 from simulator.master.steady import master_steady_state
-from simulator.model import linear_model
 from simulator.spectra import FLOOR, HETERODYNE_AXIS, SHOT_NOISE_UNITS, photon_flux_density
 from simulator.steady_state import steady_state
+from simulator.system import System
 
 # Weak-coupling scenarios (g/κ ≤ 0.1), small occupations so the Fock spaces stay small.
 WEAK = {
@@ -62,7 +62,7 @@ def test_linearised_spectrum_matches_transfer_functions(weak_case):
     kappa = scenario.cavity.linewidth_hz
     f = np.array([-mech - kappa / 4, -mech, -mech / 2, 0.0, mech / 3, mech, mech + kappa / 3])
     spectrum = master_heterodyne_spectrum(scenario, f, steady=master)
-    flux = photon_flux_density(linear_model(scenario), f)
+    flux = photon_flux_density(System(scenario).model, f)
     eta = scenario.detection.efficiency
     master_flux = (spectrum.total - 1.0) / eta
     assert np.max(np.abs(master_flux - flux)) <= 3e-3 * np.max(flux)

@@ -19,10 +19,10 @@ from conftest import make_scenario, mode, power_for_photon_number
 
 from simulator.master.spectra import carrier_flux, output_flux_density
 from simulator.master.steady import master_steady_state
-from simulator.model import linear_model
 from simulator.operating_point import operating_point
 from simulator.spectra import photon_flux_density
 from simulator.steady_state import steady_state
+from simulator.system import System
 
 F_DRIVE = 2.8e14
 
@@ -53,7 +53,7 @@ def test_full_model_reproduces_the_linear_engine_in_its_regime():
     assert full.cavity.quanta == pytest.approx(point.photon_number, rel=1e-2)
     f = np.array([-2e6, -1e6, 0.0, 1.9e6, 2e6, 2.1e6])
     master, _ = output_flux_density(full, f)
-    flux = photon_flux_density(linear_model(scenario), f)
+    flux = photon_flux_density(System(scenario).model, f)
     assert np.max(np.abs(master - flux)) <= 1e-2 * flux.max()
     # the coherent output carrier: |√Φ − √κ_ex ᾱ|² from the mean field
     kappa_ex, kappa = 2 * np.pi * 0.5e6, 2 * np.pi * 1e6

@@ -27,8 +27,8 @@ import numpy as np
 import pytest
 from conftest import mode, scenario_with_coupling
 
-from simulator.model import linear_model
 from simulator.steady_state import effective_mechanics, steady_state
+from simulator.system import System
 
 KAPPA = 1e6  # Hz; every case below is scaled to this cavity linewidth
 
@@ -92,12 +92,12 @@ def test_damping_and_spring_agree_with_eigenvalues(g_ratio, om_ratio, delta_rati
     om, delta, g = om_ratio * KAPPA, delta_ratio * om_ratio * KAPPA, g_ratio * KAPPA
     a_minus, a_plus = rates_hz(g, KAPPA, delta, om)
     gamma_opt, spring = a_minus - a_plus, spring_hz(g, KAPPA, delta, om)
-    lam = mechanical_eigenvalue_hz(linear_model(s), om, gm)
+    lam = mechanical_eigenvalue_hz(System(s).model, om, gm)
     tol = 30 * g_ratio**2 + 1e-4  # next order is (g/κ)² relative
     assert -2 * lam.real - gm == pytest.approx(gamma_opt, rel=tol, abs=1e-9 * om)
     assert lam.imag - om == pytest.approx(spring, rel=tol, abs=1e-9 * om)
     # The engine assigns that same pole to the mode (stable or not).
-    (freq,), (width,) = effective_mechanics(linear_model(s), 1)
+    (freq,), (width,) = effective_mechanics(System(s).model, 1)
     assert width == pytest.approx(-2 * lam.real, rel=1e-9)
     assert freq == pytest.approx(lam.imag, rel=1e-12)
 
@@ -159,7 +159,7 @@ def test_normal_mode_splitting(g_ratio):
     # correction (order g²/Ωm) negligible.
     om, gm, g = 500 * KAPPA, 10.0, g_ratio * KAPPA
     s = case(g_ratio=g_ratio, om_ratio=500.0, delta_ratio=-1.0, gm_hz=gm)
-    lam = np.linalg.eigvals(linear_model(s).A) / (2 * math.pi)
+    lam = np.linalg.eigvals(System(s).model.A) / (2 * math.pi)
     upper = sorted(lam[lam.imag > 0], key=lambda z: z.imag)  # the two poles near +iΩm
     root = np.sqrt(complex(((KAPPA - gm) / 4) ** 2 - g**2))
     expected = sorted((1j * om - (KAPPA + gm) / 4 + r for r in (root, -root)),
@@ -177,7 +177,7 @@ def test_no_splitting_below_threshold():
     # [DWK]: for g < κ/4 the square root is real: one frequency, two decay rates.
     gm, g = 10.0, 0.15 * KAPPA
     s = case(g_ratio=0.15, om_ratio=500.0, delta_ratio=-1.0, gm_hz=gm)
-    lam = np.linalg.eigvals(linear_model(s).A) / (2 * math.pi)
+    lam = np.linalg.eigvals(System(s).model.A) / (2 * math.pi)
     upper = lam[lam.imag > 0]
     root = math.sqrt(((KAPPA - gm) / 4) ** 2 - g**2)
     assert abs(upper[0].imag - upper[1].imag) < 1e-3 * g

@@ -27,11 +27,11 @@ from scipy import signal
 from test_records import make as make_scenario
 
 from simulator import cli, load_record
-from simulator.chain import detection_chain
 from simulator.errors import InputError, ScenarioError
 from simulator.records import BLOCK_SAMPLES, RecordWarning, simulate_record
 from simulator.scenario import load_scenario
 from simulator.steady_state import steady_state
+from simulator.system import System
 
 FS = 2e6
 
@@ -214,7 +214,7 @@ def test_ideal_chain_spectrum_is_the_heterodyne_and_homodyne_spectrum():
     spectra = pytest.importorskip("simulator.spectra")
     scenario = make(detection={"efficiency": 0.7})
     nu = np.linspace(-1.5e6, 1.5e6, 301)
-    np.testing.assert_allclose(detection_chain(scenario).record_spectrum(nu),
+    np.testing.assert_allclose(System(scenario).chain.record_spectrum(nu),
                                spectra.heterodyne_spectrum(scenario, nu).total, rtol=1e-10)
     # One real photocurrent at f_IF: light at ν appears at f_IF + ν (local oscillator
     # below the drive) or f_IF − ν (above), together with its image at ∓2 f_IF − ν.
@@ -224,13 +224,13 @@ def test_ideal_chain_spectrum_is_the_heterodyne_and_homodyne_spectrum():
             "detection.local_oscillator_side", side).replace("record.kind", "if")
         image = -sign * 2 * f_if - nu
         het = spectra.heterodyne_spectrum(scenario, np.concatenate([nu, image])).total
-        np.testing.assert_allclose(detection_chain(real).record_spectrum(f_if + sign * nu),
+        np.testing.assert_allclose(System(real).chain.record_spectrum(f_if + sign * nu),
                                    het[:nu.size] + het[nu.size:] - 1.0, rtol=1e-10)
     hom = scenario.replace("detection.scheme", "homodyne").replace(
         "detection.quadrature_angle_rad", 0.7)
     f = np.linspace(0, 1.5e6, 151)
     np.testing.assert_allclose(
-        detection_chain(hom).record_spectrum(f),
+        System(hom).chain.record_spectrum(f),
         spectra.homodyne_spectrum(hom, f, quadrature_angle=0.7).total, rtol=1e-10)
 
 

@@ -7,6 +7,7 @@ from conftest import mode, scenario_with_coupling
 from simulator import spectra
 from simulator.demo import demo_scenario
 from simulator.sidebands import cavity_filter, sideband_summary
+from simulator.system import System
 
 
 def _weak(n_bath, *, external=1e6, g_hz=1e4):
@@ -44,7 +45,8 @@ def test_summary_of_the_demo_is_what_a_local_fit_returns():
     """
     sc = demo_scenario()
     s = sideband_summary(sc)[0]
-    point, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    point, model = system.point, system.model
     n = s.steady_state_occupation
     assert s.anti_stokes.area_quanta == pytest.approx(n, rel=3e-3)
     assert s.stokes.area_quanta == pytest.approx(n + 1, rel=0.015)
@@ -68,7 +70,8 @@ def test_summary_of_the_demo_is_what_a_local_fit_returns():
 
 def _corrected_areas(sc, centre, width):
     """∫ contribution/(η F) dν over ±0.4 MHz around ``centre``, per budget term."""
-    point, _ = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    point, _ = system.point, system.model
     off = width * np.logspace(-4, np.log10(4e5 / width), 3000)
     f = centre + np.concatenate([-off[::-1], [0.0], off])
     spec = spectra.heterodyne_spectrum(sc, f)

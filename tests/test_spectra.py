@@ -18,7 +18,8 @@ from simulator.demo import demo_scenario
 from simulator.errors import InputError, OperatingPointError
 from simulator.physics import angular
 from simulator.sidebands import cavity_filter, sideband_summary
-from simulator.steady_state import effective_mechanics, stability
+from simulator.steady_state import effective_mechanics
+from simulator.system import System
 
 U_HET = np.array([1.0, 1.0j]) / np.sqrt(2.0)
 
@@ -38,7 +39,8 @@ def test_heterodyne_total_is_one_plus_eta_normal_ordered_flux():
     """
     sc = demo_scenario()
     spec = spectra.heterodyne_spectrum(sc)
-    _, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    _, model = system.point, system.model
     s = model.output_spectrum(angular(spec.frequency_hz))
     s_zz = np.einsum("p,wpq,q->w", U_HET, s, U_HET.conj()).real
     eta = sc.detection.efficiency
@@ -56,7 +58,8 @@ def test_homodyne_total_matches_quadrature_spectrum():
     theta = 0.7
     spec = spectra.homodyne_spectrum(sc, quadrature_angle=theta)
     assert spec.sided == "one-sided" and np.all(spec.frequency_hz >= 0)
-    _, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    _, model = system.point, system.model
     u = np.array([np.cos(theta), np.sin(theta)])
     s = model.output_spectrum(angular(spec.frequency_hz))
     s_tt = np.einsum("p,wpq,q->w", u, s, u).real
@@ -77,7 +80,8 @@ def test_vacuum_in_vacuum_out():
     hom = spectra.homodyne_spectrum(sc, quadrature_angle=0.3)
     np.testing.assert_allclose(het.total, 1.0, atol=1e-13)
     np.testing.assert_allclose(hom.total, 1.0, atol=1e-13)
-    _, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    _, model = system.point, system.model
     assert np.max(np.abs(spectra.photon_flux_density(model, het.frequency_hz))) < 1e-14
 
 
@@ -90,7 +94,8 @@ def test_parseval_state_spectra_integrate_to_lyapunov_variances(make):
     from the Lyapunov equation (scipy), an independent route.
     """
     sc = make()
-    _, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    _, model = system.point, system.model
     rates = np.abs(np.linalg.eigvals(model.A)) / (2 * np.pi)
     f = spectra.adaptive_grid(model, span_hz=1e4 * rates.max())
     s = spectra.state_spectrum(model, f)
@@ -114,7 +119,8 @@ def test_anti_stokes_is_above_the_drive_by_a_time_domain_route():
                                 detuning_hz=-2e6,
                                 modes=[mode(frequency_hz=2e6, linewidth_hz=2e3,
                                             bath_occupation=2.0)])
-    point, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    point, model = system.point, system.model
     v = model.covariance()
     n = len(model.states)
     j = np.zeros((n, n))
@@ -160,7 +166,8 @@ def test_detailed_balance_of_a_bare_thermal_oscillator():
         g_hz=1e3, linewidth_hz=1e9, external_linewidth_hz=1e9, detuning_hz=0.0,
         modes=[mode(frequency_hz=fm, linewidth_hz=1e5, coupling_hz=1e3,
                     bath_temperature_k=temp)])
-    point, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    point, model = system.point, system.model
     boltzmann = np.exp(-constants.h * fm / (constants.k * temp))
     f = np.array([fm, -fm])
     anti_stokes, stokes = spectra.photon_flux_density(model, f) / cavity_filter(point, 0, f)
@@ -197,7 +204,8 @@ def test_adaptive_grid_resolves_a_one_hertz_peak_beside_a_megahertz_cavity():
     """Every resonance gets many points per linewidth, without a user resolution."""
     sc = make_scenario(mechanics={"linewidth_hz": 1.0, "coupling_hz": 1.0},
                        drive={"power_w": 1e-9})
-    _, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    _, model = system.point, system.model
     f = spectra.adaptive_grid(model)
     lam = np.linalg.eigvals(model.A)
     for centre, half in zip(-lam.imag / (2 * np.pi), -lam.real / (2 * np.pi), strict=True):
@@ -257,15 +265,12 @@ def test_budget_sums_and_spectra_are_physical_on_random_scenarios(sc, theta):
     N_out(ω) is the Fourier transform of the positive-definite ⟨a†(0)a(t)⟩
     (Bochner's theorem), hence non-negative (common practice).
     """
-    from simulator.model import linear_model
-    from simulator.operating_point import operating_point
-
-    point = operating_point(sc)
-    model = linear_model(sc, point)
-    assume(stability(model, point).stable)
+    system = System(sc)
+    model = system.model
+    assume(system.stable)
     assume(-np.max(np.linalg.eigvals(model.A).real) > 1e-6 * np.max(np.abs(model.A)))
-    het = spectra.heterodyne_spectrum(sc, point=point, model=model)
-    hom = spectra.homodyne_spectrum(sc, quadrature_angle=theta, point=point, model=model)
+    het = spectra.heterodyne_spectrum(system)
+    hom = spectra.homodyne_spectrum(system, quadrature_angle=theta)
     assert het.budget_residual() < 1e-10
     assert hom.budget_residual() < 1e-10
     scale = np.max(het.total)
@@ -276,7 +281,7 @@ def test_budget_sums_and_spectra_are_physical_on_random_scenarios(sc, theta):
 def test_solve_fallback_near_an_exceptional_point_agrees(monkeypatch):
     """Where A is close to defective the budget uses batched solves; same numbers."""
     sc = demo_scenario()
-    f = spectra.adaptive_grid(spectra.prepare(sc)[1])[::7]
+    f = spectra.adaptive_grid(System(sc).require_stable().model)[::7]
     fast = spectra.heterodyne_spectrum(sc, f)
     original = budget.Resolvent.__init__
 

@@ -13,6 +13,7 @@ from simulator import transduction as tr
 from simulator.demo import demo_scenario
 from simulator.errors import InputError, OperatingPointError
 from simulator.physics import HBAR, angular
+from simulator.system import System
 
 MASS, FM, GM = 1e-12, 2e6, 10.0
 
@@ -35,7 +36,8 @@ def test_bare_susceptibility_and_resonant_drive():
     spring or damping; Aspelmeyer et al., RMP 86, 1391 (2014), Sec. VII.A).
     """
     sc = _probe()
-    point, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    point, model = system.point, system.model
     f = np.array([0.0, 1e3, 1.99e6, 2e6, 2.01e6, 5e6])
     w, om, gm = angular(f), angular(FM), angular(GM)
     closed = 1.0 / (MASS * (om**2 + gm**2 / 4 - w**2 - 1j * gm * w))
@@ -44,7 +46,8 @@ def test_bare_susceptibility_and_resonant_drive():
     np.testing.assert_allclose(tr.susceptibility(model, point, 0, f), closed, rtol=1e-9)
     # on the red sideband the light damps the mode: |χ_eff(Ωm)| drops by Γm/Γeff
     red = _probe(detuning_hz=-FM)
-    p2, m2 = spectra.prepare(red)
+    system = System(red).require_stable()
+    p2, m2 = system.point, system.model
     assert abs(tr.susceptibility(m2, p2, 0, [FM])[0]) < 0.05 * abs(closed[3])
 
 
@@ -57,7 +60,8 @@ def test_displacement_referral_recovers_the_true_motion(scheme):
     from the state spectrum (two-sided; ×2 one-sided), an independent route.
     """
     sc = demo_scenario()
-    point, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    point, model = system.point, system.model
     spec = (spectra.heterodyne_spectrum(sc) if scheme == "heterodyne"
             else spectra.homodyne_spectrum(sc, quadrature_angle=1.1))
     x = tr.to_displacement(spec, sc, "trampoline")
@@ -79,7 +83,8 @@ def test_heterodyne_referral_shows_the_unsymmetrised_quantum_spectrum():
     Sec. II.B). Checked on a lossy, detuned cavity.
     """
     sc = _probe(detuning_hz=-1.3e6, external=0.4e6, g_hz=5e4, n_bath=3.0)
-    point, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    point, model = system.point, system.model
     f = np.array([-2.3e6, -2e6, -1.99e6, 1.99e6, 2e6, 2.4e6])
     x = tr.to_displacement(spectra.heterodyne_spectrum(sc, f), sc)
     cross = sum(v for k, v in x.contributions.items() if "×" in k)
@@ -90,7 +95,8 @@ def test_heterodyne_referral_shows_the_unsymmetrised_quantum_spectrum():
 def test_zero_point_reference_integrates_to_the_zero_point_variance():
     """∫ ħ|Im χ| df over both signs = x_zpf² = ħ/(2mΩm) (ground state; Q = 2e5)."""
     sc = _probe()
-    point, _ = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    point, _ = system.point, system.model
     wide = np.logspace(-2, 8, 6000)
     near = GM * np.linspace(-200, 200, 4001)
     f = np.sort(np.concatenate([-wide, wide, FM + near, -FM + near]))
@@ -120,7 +126,8 @@ def test_imprecision_backaction_product_is_hbar_squared_over_four():
     np.testing.assert_allclose(lossy.product / bound, 1 / (0.8 * 0.5), rtol=1e-9)
     # back-action force S_FF = ħ²G²n̄κ/(κ²/4 + ω²), G = g0/x_zpf (Aspelmeyer et al.,
     # RMP 86, 1391 (2014), Sec. VI.A; from memory, checked here)
-    point, _ = spectra.prepare(_probe())
+    system = System(_probe()).require_stable()
+    point, _ = system.point, system.model
     g, kappa, w = angular(1e4), angular(1e6), angular(f)
     x_zpf = point.modes[0].zero_point_amplitude_m
     np.testing.assert_allclose(ideal.backaction,
@@ -154,7 +161,8 @@ def _added_noise_at_resonance(log_power, route):
         x = tr.to_displacement(spectra.homodyne_spectrum(sc, f), sc)
         bath = sum(v for k, v in x.contributions.items() if "thermal" in k)
         return float((x.total - bath)[0]) / 2.0  # one-sided -> two-sided
-    point, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    point, model = system.point, system.model
     chi = tr.susceptibility(model, point, 0, f)
     return float(tr.imprecision_backaction(sc, f).added_noise(chi)[0])
 
@@ -166,7 +174,8 @@ def test_added_noise_touches_the_sql_at_the_optimum_power():
     and from S_imp + |χ|²S_FF agree at every power; the minimum equals the SQL.
     """
     sc = _probe()
-    point, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    point, model = system.point, system.model
     sql = HBAR * abs(tr.susceptibility(model, point, 0, [FM])[0])
     for lp in (-9.0, -7.0):
         assert _added_noise_at_resonance(lp, "budget") == pytest.approx(
@@ -179,7 +188,8 @@ def test_added_noise_touches_the_sql_at_the_optimum_power():
 
 def test_force_referral_divides_by_the_susceptibility():
     sc = demo_scenario()
-    point, model = spectra.prepare(sc)
+    system = System(sc).require_stable()
+    point, model = system.point, system.model
     spec = spectra.heterodyne_spectrum(sc)
     x = tr.to_displacement(spec, sc)
     force = tr.to_force(spec, sc, 0)

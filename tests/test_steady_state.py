@@ -40,7 +40,9 @@ from scipy.integrate import solve_ivp
 from simulator.errors import OperatingPointError
 from simulator.model import linear_model
 from simulator.operating_point import operating_point
-from simulator.steady_state import stability, steady_state
+from simulator.stability import stability
+from simulator.steady_state import steady_state
+from simulator.system import System
 
 TWO_PI = 2 * math.pi
 
@@ -113,7 +115,7 @@ def test_stability_verdict_agrees_with_routh_hurwitz(om_ratio, delta_ratio, rati
         modes.append(mode("b", frequency_hz=second_ratio * om, linewidth_hz=gm,
                           coupling_hz=60.0))
     s = scenario_with_coupling(g_hz=g, detuning_hz=delta, modes=modes)
-    model = linear_model(s)
+    model = System(s).model
     lam = np.linalg.eigvals(model.A)
     assume(abs(lam.real.max()) > 1e-9 * np.abs(model.A).max())  # not marginal
     exact = routh_hurwitz_stable(characteristic_polynomial(model.A))
@@ -141,7 +143,7 @@ def test_blue_growth_rate_matches_antidamping(excess):
     g = math.sqrt(excess * gm / -per_g2)
     s = scenario_with_coupling(g_hz=g, detuning_hz=delta,
                                modes=[mode(frequency_hz=om, linewidth_hz=gm)])
-    verdict = stability(linear_model(s), operating_point(s))
+    verdict = stability(System(s).model, operating_point(s))
     assert not verdict.stable and "blue" in verdict.cause
     assert verdict.growth_rate_hz == pytest.approx(-(gm + per_g2 * g**2) / 2, rel=1e-3)
     with pytest.raises(OperatingPointError) as info:
@@ -221,7 +223,7 @@ def demo_like():
 def test_covariance_matches_matrix_exponential_doubling(build):
     s = build()
     exact = steady_state(s)
-    v = covariance_by_doubling(linear_model(s))
+    v = covariance_by_doubling(System(s).model)
     np.testing.assert_allclose(exact.covariance, v, rtol=1e-7,
                                atol=1e-9 * np.abs(v).max())
 
@@ -230,7 +232,7 @@ def test_covariance_matches_time_integration():
     # solve_ivp from V(0) = vacuum until every mode has relaxed for 30 e-folds.
     s = scenario_with_coupling(g_hz=1e5, detuning_hz=-1e6, modes=[
         mode("a", frequency_hz=1.5e6, linewidth_hz=4e4, bath_occupation=20.0)])
-    model = linear_model(s)
+    model = System(s).model
     a, d = model.A, model.diffusion
     n = len(a)
     slowest = -np.linalg.eigvals(a).real.max()
@@ -248,7 +250,7 @@ def test_covariance_matches_time_integration():
 
 def test_lyapunov_residual_and_symmetry():
     s = demo_like()
-    model = linear_model(s)
+    model = System(s).model
     v = steady_state(s).covariance
     assert np.array_equal(v, v.T)
     residual = model.A @ v + v @ model.A.T + model.diffusion
@@ -287,16 +289,15 @@ def random_scenarios(draw):
 @settings(max_examples=40, deadline=None)
 @given(s=random_scenarios())
 def test_steady_state_properties(s):
-    point = operating_point(s)
-    model = linear_model(s, point)
-    assume(stability(model, point).stable)
-    st_ = steady_state(s, model=model, point=point)
+    system = System(s)
+    assume(system.stable)
+    st_ = steady_state(system)
     v = st_.covariance
     scale = max(1.0, np.abs(v).max())
     uncertainty = v + 0.5j * symplectic_form(len(v) // 2)
     assert np.linalg.eigvalsh(uncertainty).min() > -1e-9 * scale
     assert st_.cavity_occupation > -1e-9 * scale
-    for m, mp in zip(st_.modes, point.modes, strict=True):
+    for m, mp in zip(st_.modes, system.point.modes, strict=True):
         assert m.occupation > -1e-9 * scale
         if mp.coupling_rate_hz == 0.0:
             assert m.occupation == pytest.approx(mp.bath_occupation, abs=1e-9 * scale)

@@ -72,13 +72,14 @@ class Device:
     photon_number: float
 
     @classmethod
-    def from_scenario(cls, scenario, mode=0):
-        """Nominal device parameters from a scenario's operating point (not g0)."""
+    def from_scenario(cls, system, mode=0):
+        """Nominal device parameters from a system's (or scenario's) operating point (not g0)."""
         from simulator.analysis.thermometry import Calibration
-        from simulator.operating_point import operating_point
+        from simulator.system import as_system
 
-        known = Calibration.from_scenario(scenario, mode)
-        return cls(photon_number=operating_point(scenario).photon_number, **{
+        system = as_system(system)
+        known = Calibration.from_scenario(system, mode)
+        return cls(photon_number=system.point.photon_number, **{
             f.name: getattr(known, f.name) for f in dataclasses.fields(cls)
             if f.name != "photon_number"})
 

@@ -43,9 +43,9 @@ ASYMMETRY_SIGNIFICANCE = 5.0
 
 def _record_chain(scenario):
     """The detection chain of the scenario's record (iq for heterodyne)."""
-    from simulator.chain import detection_chain
+    from simulator.system import as_system
 
-    return detection_chain(scenario)
+    return as_system(scenario).chain
 
 
 def _spectral_matrix(scenario, omega):
@@ -56,10 +56,11 @@ def _spectral_matrix(scenario, omega):
 def _grid(scenario):
     """Two-sided angular-frequency grid resolving every resonance of the record's model."""
     from simulator.physics import angular
-    from simulator.spectra import adaptive_grid, prepare
+    from simulator.spectra import adaptive_grid
+    from simulator.system import as_system
 
-    prepare(scenario)  # a clear error for an unstable operating point
-    return angular(adaptive_grid(_record_chain(scenario).model, points_per_decade=64))
+    system = as_system(scenario).require_stable()  # a clear error for an unstable point
+    return angular(adaptive_grid(system.chain.model, points_per_decade=64))
 
 
 def _derivative(evaluate, scenario, path):

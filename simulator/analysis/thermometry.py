@@ -50,17 +50,17 @@ class Calibration:
     bath_occupation: float
 
     @classmethod
-    def from_scenario(cls, scenario, mode=0):
-        """Nominal calibration from a scenario (its operating point), not the truth."""
-        from simulator.chain import detection_chain
-        from simulator.operating_point import operating_point
+    def from_scenario(cls, system, mode=0):
+        """Nominal calibration from a system (or scenario): its operating point, not the truth."""
+        from simulator.system import as_system
 
-        point = operating_point(scenario)
+        system = as_system(system)
+        point = system.point
         mp = point.modes[mode]
         return cls(cavity_linewidth_hz=point.cavity_linewidth_hz,
                    external_linewidth_hz=point.external_linewidth_hz,
                    detuning_hz=point.detuning_effective_hz,
-                   efficiency=detection_chain(scenario, point).efficiency,
+                   efficiency=system.chain.efficiency,
                    coupling_rate_hz=mp.coupling_rate_hz,
                    mechanical_frequency_hz=mp.frequency_hz,
                    mechanical_linewidth_hz=mp.linewidth_hz,

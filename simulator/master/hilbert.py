@@ -52,8 +52,8 @@ import math
 import numpy as np
 
 from simulator.errors import InputError
-from simulator.operating_point import operating_point
 from simulator.physics import angular
+from simulator.system import as_system
 
 KINDS = ("full", "linearised")
 FRAMES = ("auto", "lab", "displaced")
@@ -101,7 +101,8 @@ class MasterModel:
     expected_occupations : tuple of float
         Mean quanta per factor the cutoffs were chosen for (coherent part
         included for the full model).
-    point : simulator.operating_point.OperatingPoint
+    system : simulator.system.System
+        The linear engine's system the model was built from.
     """
 
     kind: str
@@ -117,7 +118,12 @@ class MasterModel:
     mean_fields: tuple
     cavity_phase: float
     expected_occupations: tuple
-    point: object
+    system: object
+
+    @property
+    def point(self):
+        """The operating point (of :attr:`system`)."""
+        return self.system.point
 
     @property
     def dimension(self):
@@ -125,13 +131,14 @@ class MasterModel:
         return math.prod(self.cutoffs)
 
 
-def build_model(scenario, kind="full", *, frame="auto", cutoffs=None,
-                tolerance=DEFAULT_TOLERANCE, max_dimension=MAX_DIMENSION, point=None):
-    """The full or linearised master-equation model of ``scenario``.
+def build_model(system, kind="full", *, frame="auto", cutoffs=None,
+                tolerance=DEFAULT_TOLERANCE, max_dimension=MAX_DIMENSION):
+    """The full or linearised master-equation model of ``system``.
 
     Parameters
     ----------
-    scenario : simulator.scenario.Scenario
+    system : simulator.system.System
+        Or a scenario, built into one.
     kind : {"full", "linearised"}
     frame : {"auto", "lab", "displaced"}
         Fock basis of the full model (see the module doc); ``"auto"`` takes
@@ -149,7 +156,6 @@ def build_model(scenario, kind="full", *, frame="auto", cutoffs=None,
         Population allowed near each cutoff (used only to choose cutoffs).
     max_dimension : int
         Used only by ``frame="auto"``.
-    point : OperatingPoint, optional
 
     Returns
     -------
@@ -161,6 +167,8 @@ def build_model(scenario, kind="full", *, frame="auto", cutoffs=None,
         raise InputError(f"master-equation model {kind!r}; expected one of {', '.join(KINDS)}")
     from simulator import laser_noise
 
+    system = as_system(system)
+    scenario, point = system.scenario, system.point
     if not laser_noise.is_quiet(scenario):
         raise InputError(
             "the master-equation engine models a shot-noise-limited drive and local "
@@ -171,17 +179,15 @@ def build_model(scenario, kind="full", *, frame="auto", cutoffs=None,
     if frame not in FRAMES:
         raise InputError(f"master-equation frame {frame!r}; expected one of "
                          f"{', '.join(FRAMES)}")
-    if point is None:
-        point = operating_point(scenario)
     if kind == "linearised":
         frame = "displaced"
     elif frame == "auto":
-        lab = expected_cutoffs(scenario, "full", tolerance=tolerance, point=point)[1]
+        lab = expected_cutoffs(system, "full", tolerance=tolerance)[1]
         small = point.photon_number < 1 and math.prod(lab) <= max_dimension
         frame = "lab" if small else "displaced"
     displaced = frame == "displaced"
-    expected, guess = expected_cutoffs(scenario, kind if not displaced else "linearised",
-                                       tolerance=tolerance, point=point)
+    expected, guess = expected_cutoffs(system, kind if not displaced else "linearised",
+                                       tolerance=tolerance)
     dims = _merge_cutoffs(cutoffs, guess, ("cavity",) + tuple(m.name for m in point.modes))
     r = float(angular(point.cavity_linewidth_hz))
     kappa, kappa_ex = angular([point.cavity_linewidth_hz, point.external_linewidth_hz]) / r
@@ -236,20 +242,20 @@ def build_model(scenario, kind="full", *, frame="auto", cutoffs=None,
                        annihilators=tuple(annihilators), rate_unit_rad_s=r,
                        external_rate=float(kappa_ex), input_amplitude=amplitude,
                        mean_fields=tuple(mean_fields), cavity_phase=phase,
-                       expected_occupations=tuple(expected), point=point)
+                       expected_occupations=tuple(expected), system=system)
 
 
-def full_model(scenario, **options):
+def full_model(system, **options):
     """:func:`build_model` with ``kind="full"``: the nonlinear Hamiltonian."""
-    return build_model(scenario, "full", **options)
+    return build_model(system, "full", **options)
 
 
-def linearised_model(scenario, **options):
+def linearised_model(system, **options):
     """:func:`build_model` with ``kind="linearised"``: the displaced-frame model."""
-    return build_model(scenario, "linearised", **options)
+    return build_model(system, "linearised", **options)
 
 
-def expected_cutoffs(scenario, kind, *, tolerance=DEFAULT_TOLERANCE, point=None):
+def expected_cutoffs(system, kind, *, tolerance=DEFAULT_TOLERANCE):
     """Expected quanta and a Fock cutoff for every factor, from the linear engine.
 
     The fluctuations are taken thermal with the linear engine's (Lyapunov)
@@ -267,9 +273,9 @@ def expected_cutoffs(scenario, kind, *, tolerance=DEFAULT_TOLERANCE, point=None)
     """
     from simulator.steady_state import steady_state
 
-    if point is None:
-        point = operating_point(scenario)
-    linear = steady_state(scenario, point=point)
+    system = as_system(system)
+    point = system.point
+    linear = steady_state(system)
     thermal = [linear.cavity_occupation] + [m.occupation for m in linear.modes]
     if kind == "full":
         n = point.photon_number

@@ -9,14 +9,14 @@ import math
 from simulator.master.steady import master_steady_state
 
 
-def master_comparison(scenario, linear_report, kind="full", **options):
+def master_comparison(linear_report, kind="full", **options):
     """Steady-state numbers of the master equation next to the linear ones.
 
     Parameters
     ----------
-    scenario : simulator.scenario.Scenario
     linear_report : simulator.inspection.Inspection
-        The linear engine's report (its steady state must exist).
+        The linear engine's report (its steady state must exist); the master
+        model is built from its system.
     kind : {"full", "linearised"}
     **options
         Passed to :func:`~simulator.master.steady.master_steady_state`.
@@ -27,7 +27,7 @@ def master_comparison(scenario, linear_report, kind="full", **options):
         ``rows``: (quantity, linear, master) triples; ``steady``: the master
         steady state as plain data (cutoffs, truncation, solver).
     """
-    steady = master_steady_state(scenario, kind, point=linear_report.point, **options)
+    steady = master_steady_state(linear_report.system, kind, **options)
     linear = linear_report.steady
     rows = [("cavity occupation (fluctuations)", linear.cavity_occupation,
              steady.cavity.occupation)]

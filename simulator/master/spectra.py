@@ -33,6 +33,7 @@ from simulator.master.steady import expect, master_steady_state
 from simulator.physics import angular
 from simulator.spectra import FLOOR, HETERODYNE_AXIS, SHOT_NOISE_UNITS, adaptive_grid
 from simulator.spectrum import Spectrum
+from simulator.system import as_system
 
 MASTER_FLUX = "output photon flux (master equation)"
 DEFAULT_POINTS = 200
@@ -74,14 +75,15 @@ def output_flux_density(steady, frequency_hz, *, method="gmres"):
     return out, steps
 
 
-def master_heterodyne_spectrum(scenario, frequency_hz=None, *, kind="full", efficiency=None,
+def master_heterodyne_spectrum(system, frequency_hz=None, *, kind="full", efficiency=None,
                                steady=None, method="gmres", tolerance=DEFAULT_TOLERANCE,
                                **steady_options):
     """Heterodyne spectrum of the output field from the master equation.
 
     Parameters
     ----------
-    scenario : simulator.scenario.Scenario
+    system : simulator.system.System
+        Or a scenario, built into one.
     frequency_hz : array_like, optional
         Optical offsets ν from the drive (Hz). Default: :data:`DEFAULT_POINTS`
         points laid by :func:`simulator.spectra.adaptive_grid` around the
@@ -104,6 +106,8 @@ def master_heterodyne_spectrum(scenario, frequency_hz=None, *, kind="full", effi
         Two-sided density in shot-noise units, S(ν) = 1 + η N_out(ν), with
         the budget split into the shot-noise floor and the output photon flux.
     """
+    system = as_system(system)
+    scenario = system.scenario
     if scenario.detection.scheme != "heterodyne":
         raise InputError(f"detection.scheme = {scenario.detection.scheme!r}; the "
                          "master-equation engine computes heterodyne spectra only (use the "
@@ -112,9 +116,9 @@ def master_heterodyne_spectrum(scenario, frequency_hz=None, *, kind="full", effi
     if not 0.0 <= eta <= 1.0:
         raise InputError(f"detection efficiency = {eta!r}; expected a number in [0, 1]")
     if steady is None:
-        steady = master_steady_state(scenario, kind, method=method, tolerance=tolerance,
+        steady = master_steady_state(system, kind, method=method, tolerance=tolerance,
                                      **steady_options)
-    f = default_grid(scenario, steady.model.point) if frequency_hz is None else \
+    f = default_grid(steady.model.system) if frequency_hz is None else \
         np.asarray(frequency_hz, dtype=float)
     if f.ndim != 1 or f.size == 0 or not np.all(np.isfinite(f)):
         raise InputError(f"frequency grid of shape {f.shape}; expected a non-empty "
@@ -128,11 +132,9 @@ def master_heterodyne_spectrum(scenario, frequency_hz=None, *, kind="full", effi
         provenance=_provenance(scenario, steady, eta, steps, method))
 
 
-def default_grid(scenario, point, points=DEFAULT_POINTS):
-    """About ``points`` offsets (Hz) around the resonances of the linear model."""
-    from simulator.model import linear_model
-
-    grid = adaptive_grid(linear_model(scenario, point), coarse_points=points // 4,
+def default_grid(system, points=DEFAULT_POINTS):
+    """About ``points`` offsets (Hz) around the resonances of the system's linear model."""
+    grid = adaptive_grid(system.model, coarse_points=points // 4,
                          points_per_decade=8, closest=3e-2)
     if grid.size > points:
         grid = grid[np.unique(np.linspace(0, grid.size - 1, points).round().astype(int))]

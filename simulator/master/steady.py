@@ -29,7 +29,7 @@ from simulator.master.hilbert import (
     build_model,
 )
 from simulator.master.liouvillian import LindbladSolver, csr
-from simulator.operating_point import operating_point
+from simulator.system import as_system
 
 MAX_ROUNDS = 6
 
@@ -100,14 +100,15 @@ class MasterSteadyState:
                 "solver_seconds": self.solver.seconds}
 
 
-def master_steady_state(scenario, kind="full", *, frame="auto", cutoffs=None,
+def master_steady_state(system, kind="full", *, frame="auto", cutoffs=None,
                         tolerance=DEFAULT_TOLERANCE, adapt=True,
-                        max_dimension=MAX_DIMENSION, method="gmres", point=None):
+                        max_dimension=MAX_DIMENSION, method="gmres"):
     """Steady state of the scenario's master equation, with a checked truncation.
 
     Parameters
     ----------
-    scenario : simulator.scenario.Scenario
+    system : simulator.system.System
+        Or a scenario, built into one.
     kind : {"full", "linearised"}
         Nonlinear Hamiltonian with its drive, or the displaced-frame
         linearised model (see :mod:`simulator.master.hilbert`).
@@ -126,7 +127,6 @@ def master_steady_state(scenario, kind="full", *, frame="auto", cutoffs=None,
         Largest Hilbert-space dimension tried.
     method : {"gmres", "direct"}
         Solver, see :class:`~simulator.master.liouvillian.LindbladSolver`.
-    point : OperatingPoint, optional
 
     Returns
     -------
@@ -144,10 +144,9 @@ def master_steady_state(scenario, kind="full", *, frame="auto", cutoffs=None,
     if not 0 < tolerance < 1:
         raise InputError(f"truncation tolerance = {tolerance!r}; expected a population "
                          "in (0, 1)")
-    if point is None:
-        point = operating_point(scenario)
-    model = build_model(scenario, kind, frame=frame, cutoffs=cutoffs, tolerance=tolerance,
-                        max_dimension=max_dimension, point=point)
+    system = as_system(system)
+    model = build_model(system, kind, frame=frame, cutoffs=cutoffs, tolerance=tolerance,
+                        max_dimension=max_dimension)
     _check_size(model, max_dimension)
     for rounds in range(1, MAX_ROUNDS + 1):
         solver = LindbladSolver(model.hamiltonian, model.collapse, method=method)
@@ -164,8 +163,8 @@ def master_steady_state(scenario, kind="full", *, frame="auto", cutoffs=None,
         new = [raised.get(name, n) for name, n in zip(model.names, model.cutoffs, strict=True)]
         if math.prod(new) > max_dimension:
             raise InputError(_truncation_message(failing[0], tolerance, (new, max_dimension)))
-        model = build_model(scenario, kind, frame=model.frame, cutoffs=new,
-                            tolerance=tolerance, point=point)
+        model = build_model(system, kind, frame=model.frame, cutoffs=new,
+                            tolerance=tolerance)
     raise InputError(_truncation_message(failing[0], tolerance, None)
                      + f" after {MAX_ROUNDS} rounds of raising the cutoffs")
 

@@ -34,18 +34,20 @@ from simulator.errors import InputError
 from simulator.master.hilbert import DEFAULT_TOLERANCE
 from simulator.master.liouvillian import csr
 from simulator.master.steady import expect, master_steady_state
+from simulator.system import as_system
 
 FORM = "master-equation trajectory (stochastic master equation, ideal heterodyne receiver)"
 STEP_PHASE = 0.2  # solver step × largest |eigenvalue| of K = −iH − ½Σc†c
 
 
-def master_records(scenario, seeds, *, duration_s=None, kind="full", step_phase=STEP_PHASE,
+def master_records(system, seeds, *, duration_s=None, kind="full", step_phase=STEP_PHASE,
                    steady=None, out=None, tolerance=DEFAULT_TOLERANCE, **steady_options):
     """One heterodyne record per seed from stochastic-master-equation trajectories.
 
     Parameters
     ----------
-    scenario : simulator.scenario.Scenario
+    system : simulator.system.System
+        Or a scenario, built into one.
         Heterodyne detection with an ``iq`` record; sample rate from
         ``digitizer.sample_rate_hz`` or the linear engine's automatic choice.
     seeds : sequence of int
@@ -80,12 +82,14 @@ def master_records(scenario, seeds, *, duration_s=None, kind="full", step_phase=
         raise InputError(f"{len(out)} output files for {len(seeds)} seeds; expected one each")
     if not 0 < step_phase <= 1:
         raise InputError(f"step_phase = {step_phase!r}; expected a number in (0, 1]")
-    plan = plan_record(scenario, seed=seeds[0], duration_s=duration_s, store_mechanics=False)
+    system = as_system(system)
+    scenario = system.scenario
+    plan = plan_record(system, seed=seeds[0], duration_s=duration_s, store_mechanics=False)
     if plan.chain.receiver != "iq":
         raise InputError(f"master-equation records need heterodyne detection with an iq "
                          f"record; this scenario's receiver is {plan.chain.receiver!r}")
     if steady is None:
-        steady = master_steady_state(scenario, kind, tolerance=tolerance, **steady_options)
+        steady = master_steady_state(system, kind, tolerance=tolerance, **steady_options)
     model = steady.model
     r, eta = model.rate_unit_rad_s, scenario.detection.efficiency
     a = model.annihilators[0]
@@ -116,10 +120,11 @@ def master_records(scenario, seeds, *, duration_s=None, kind="full", step_phase=
             for i, (seed, trace) in enumerate(zip(seeds, w, strict=True))]
 
 
-def master_record(scenario, *, seed=None, out=None, **options):
+def master_record(system, *, seed=None, out=None, **options):
     """One record (see :func:`master_records`); seed default ``scenario.scenario.seed``."""
-    seed = scenario.scenario.seed if seed is None else seed
-    return master_records(scenario, [seed], out=None if out is None else [out], **options)[0]
+    system = as_system(system)
+    seed = system.scenario.scenario.seed if seed is None else seed
+    return master_records(system, [seed], out=None if out is None else [out], **options)[0]
 
 
 def _write(plan, trace, path):

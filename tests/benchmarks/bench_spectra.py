@@ -25,7 +25,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))  # the same scenarios a
 from bench_steady_state import five_modes, one_mode  # noqa: E402
 
 from simulator.physics import angular  # noqa: E402
-from simulator.spectra import heterodyne_spectrum, prepare  # noqa: E402
+from simulator.spectra import heterodyne_spectrum  # noqa: E402
+from simulator.system import System  # noqa: E402
 
 POINTS = 1_000_000
 LOOP_POINTS = 20_000
@@ -44,10 +45,11 @@ def reference_loop(model, f, eta):
 
 
 def run(label, scenario):
-    point, model = prepare(scenario)
+    system = System(scenario).require_stable()
+    model = system.model
     f = np.linspace(-8e6, 8e6, POINTS)
     t0 = time.perf_counter()
-    spec = heterodyne_spectrum(scenario, f, point=point, model=model)
+    spec = heterodyne_spectrum(system, f)
     engine = time.perf_counter() - t0
     sub = f[:: POINTS // LOOP_POINTS]
     t0 = time.perf_counter()
