@@ -1,10 +1,11 @@
-"""Tests of the code itself (STYLE.md, "tests of the code itself").
+"""Tests of the code itself (DEVELOPERS.md, "Conventions in the code").
 
 * every public field of every scenario section is documented, carries the
   unit its name promises, and appears in the generated scenario reference;
 * every public function, class and method of the package has a docstring;
 * physics modules keep plotting, the command line and file formats out of
-  their imports (STYLE.md "In this project", point 1).
+  their imports (DEVELOPERS.md: "Physics modules never import matplotlib,
+  the CLI or file formats").
 """
 
 import ast
@@ -22,7 +23,7 @@ from simulator.scenario import Scenario
 
 PACKAGE_DIR = Path(simulator.__file__).parent
 
-# Unit suffix of a key → unit symbol(s) its metadata must give (DESIGN.md §4).
+# Unit suffix of a key → unit symbol(s) its metadata must give (docs/physics.md §1).
 SUFFIX_UNITS = {
     "_a_per_sqrt_hz": ("A/√Hz",), "_rad2_per_hz": ("rad²/Hz",), "_per_hz": ("1/Hz",),
     "_hz": ("Hz",), "_w": ("W",), "_m": ("m",),
