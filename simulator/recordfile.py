@@ -1,6 +1,6 @@
 """Record files: one digitised record per HDF5 file, with its ground truth.
 
-Layout (DESIGN.md section 4; a reader needs h5py alone):
+Layout (docs/records.md, "The file"; a reader needs h5py alone):
 
 - root attributes ``format = "noisechain-record"``, ``format_version``,
   ``scenario_toml``, ``seed``, ``software_version``, ``sample_rate_hz``,

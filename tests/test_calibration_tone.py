@@ -95,7 +95,7 @@ def test_lines_are_the_reflected_modulation_sidebands():
 @pytest.mark.parametrize("kind", ["iq", "if"])
 def test_the_record_carries_the_line_power(kind):
     """The record's tone bin holds (line power × sinc²(f/fs)) / ENBW above the
-    exact background (integrate-and-dump samples: the sinc² of REFERENCES.md);
+    exact background (integrate-and-dump samples: the sinc² of docs/records.md, "Digitiser");
     a real if record's one-sided spectrum holds twice the two-sided line."""
     sections = {} if kind == "iq" else dict(
         detection={"intermediate_frequency_hz": IF_HZ}, record={"kind": "if"})

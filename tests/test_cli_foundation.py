@@ -3,7 +3,7 @@
 The numbers printed by ``inspect --json`` are compared with the Python API
 (which the physics tests check against published formulas), so the CLI is
 tested for faithful reporting, strict JSON and its exit statuses: 0 success,
-2 bad input, 3 unstable operating point (DESIGN.md section 4).
+2 bad input, 3 unstable operating point (DEVELOPERS.md, "Exit statuses").
 """
 
 import json
@@ -123,7 +123,7 @@ def test_json_has_no_infinities(tmp_path, capsys):
 @pytest.mark.parametrize("g_ratio", [0.005, 0.05, 0.1, 0.15, 0.2, 0.3])
 def test_strong_coupling_warning_exactly_when_occupations_differ(g_ratio, tmp_path, capsys):
     # The warning must appear exactly when |weak − exact| > 10 % of exact
-    # (issue 2); the occupations come from the API, already checked elsewhere.
+    # (docs/physics.md §11); the occupations come from the API, checked elsewhere.
     s = cooled(g_ratio)
     assert main(["inspect", str(write(tmp_path, s)), "--json"]) == 0
     data = strict_json(capsys.readouterr().out)
@@ -132,7 +132,7 @@ def test_strong_coupling_warning_exactly_when_occupations_differ(g_ratio, tmp_pa
     warned = [w for w in data["warnings"] if "drum" in w and "strong coupling" in w]
     assert bool(warned) == differs
     if g_ratio >= 0.2:
-        assert differs  # the rate equation is far off by then (REFERENCES.md)
+        assert differs  # the rate equation is far off by then (docs/physics.md §11)
     if g_ratio <= 0.05:
         assert not differs
 
@@ -175,8 +175,8 @@ def test_check_valid_file(tmp_path, capsys):
 # -- start-up stays light ---------------------------------------------------------
 
 def test_cli_does_not_load_heavy_libraries():
-    # DESIGN.md / issue 2: --help, check and inspect must not import qutip,
-    # numba, matplotlib (nor the file-format libraries).
+    # --help, check and inspect must stay fast, so they must not import qutip,
+    # numba, matplotlib (nor the file-format libraries): DEVELOPERS.md, "Set-up".
     code = (
         "import sys, contextlib, io\n"
         "from simulator.cli import main\n"

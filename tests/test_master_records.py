@@ -3,7 +3,7 @@
 The Welch spectrum averaged over many short records must agree, within its
 statistical error, with the master-equation spectrum sampled the way the
 record is: integrate-and-dump over each sample interval gives the aliased
-continuous spectrum times sinc² (REFERENCES.md, "Time domain"; the white
+continuous spectrum times sinc² (docs/records.md, "Digitiser"; the white
 shot-noise floor stays exactly 1). Heterodyne unravelling: Wiseman and
 Milburn, Quantum Measurement and Control (Cambridge, 2010), Ch. 4.
 """

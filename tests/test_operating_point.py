@@ -7,7 +7,7 @@ of ``simulator.operating_point``:
   Aspelmeyer, Kippenberg, Marquardt, Rev. Mod. Phys. 86, 1391 (2014),
   driven-cavity steady state with the photon flux written out);
 * static radiation-pressure shift per photon s = Σ 2 g0² Ωm/(Ωm² + Γm²/4)
-  for the symmetric damping the engine uses (REFERENCES.md; AKM RMP Sec. V.A,
+  for the symmetric damping the engine uses (docs/physics.md §4, §7; AKM RMP Sec. V.A,
   section number from memory, gives 2 g0²/Ωm for Γm → 0);
 * bistability: the real positive roots of the self-consistency cubic, found
   by bracketing between the cubic's own critical points and scipy's brentq.

@@ -128,7 +128,7 @@ def test_weak_coupling_occupation_within_one_percent(om_ratio, delta_ratio, n_th
     # [MCCG] rate equation for n_f, with a thermal cavity bath n_c weighted
     # by the internal loss: n_f = [Γm n_th + A+(n_c + 1) + A− n_c]/(Γm + Γopt).
     # At g/κ ≤ 0.01 it must match the exact Lyapunov occupation to < 1 %
-    # (REFERENCES.md: it is already ≈ 1 % off at g/κ = 0.05).
+    # (docs/physics.md §11: it is already ≈ 1 % off at g/κ = 0.05).
     s = case(g_ratio=g_ratio, om_ratio=om_ratio, delta_ratio=delta_ratio, gm_hz=50.0,
              n_th=n_th, n_cav=n_cav)
     m = steady_state(s).modes[0]
@@ -141,7 +141,7 @@ def test_weak_coupling_occupation_within_one_percent(om_ratio, delta_ratio, n_th
 
 
 def test_weak_coupling_formula_fails_at_stronger_coupling():
-    # REFERENCES.md trap: at g/κ = 0.05 (resolved sidebands) the rate equation is
+    # docs/physics.md §11: at g/κ = 0.05 (resolved sidebands) the rate equation is
     # off by about 1 %, at g/κ = 0.3 by tens of percent; the exact engine must show it.
     near = steady_state(case(g_ratio=0.05, om_ratio=20.0, delta_ratio=-1.0,
                              n_th=1000.0)).modes[0]
@@ -189,8 +189,8 @@ def test_no_splitting_below_threshold():
                                                (100.0, 2.0), (20.0, 0.2), (20.0, 0.5)])
 @pytest.mark.parametrize("n_th", [0.0, 1000.0])
 def test_strong_coupling_occupation(om_ratio, g_ratio, n_th):
-    # [DWK], strong-coupling-corrected final occupation at Δ = −Ωm (formula from
-    # memory per REFERENCES.md, kept because this test verifies it numerically):
+    # [DWK], strong-coupling-corrected final occupation at Δ = −Ωm (citation from
+    # memory, kept because this test verifies the formula numerically):
     #   n_f ≈ Γm n_th (4g² + κ²)/(4g²(κ + Γm)) + (κ² + 8g²)/(16 Ωm²),
     # valid for Γopt ≫ Γm and g, κ ≪ Ωm. Measured agreement with the exact
     # Lyapunov solution: better than 0.2 % over these cases.

@@ -145,7 +145,7 @@ def test_welch_psd_matches_analytic_chain_spectrum(name):
 
 
 def wrong_plan(plan):
-    """The TRAP of REFERENCES.md: output noise drawn independently of the state noise."""
+    """The classic mistake of docs/records.md: output noise drawn apart from the state noise."""
     disc = plan.discrete
     n = len(disc.states)
     cov = disc.noise_covariance.copy()
@@ -228,7 +228,7 @@ def sideband_areas(w, f, floor, fm, half_width, kappa_hz, fs):
     At a resonant drive the heterodyne signal at ν is the mechanical
     spectrum times the cavity's Lorentzian response κ²/4 / (κ²/4 + (2πν)²),
     and integrate-and-dump multiplies by sinc²(ν/fs): both are divided out
-    bin by bin (REFERENCES.md trap: not at the peak only).
+    bin by bin, not at the peak only (common practice; docs/analysis.md).
     """
     k = 2 * np.pi * kappa_hz
     response = (k**2 / 4) / (k**2 / 4 + (2 * np.pi * f) ** 2) * np.sinc(f / fs) ** 2

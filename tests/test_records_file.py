@@ -103,7 +103,7 @@ def test_hdf5_round_trip(tmp_path):
     assert back.truth.cavity_occupation == pytest.approx(truth.cavity_occupation, rel=1e-12)
     assert back.truth.calibration == pytest.approx(memory.truth.calibration, rel=1e-12)
     np.testing.assert_allclose(back.shot_noise_units(), memory.shot_noise_units())
-    # a reader needs h5py alone: the layout of DESIGN.md section 4
+    # a reader needs h5py alone: the layout of docs/records.md, "The file"
     with h5py.File(path, "r") as f:
         assert f.attrs["format"] == "noisechain-record"
         for key in ("format_version", "scenario_toml", "seed", "software_version",

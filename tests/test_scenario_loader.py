@@ -28,7 +28,8 @@ from simulator.scenario import (
 CORPUS = Path(__file__).parent / "bad_scenarios"
 BAD_FILES = sorted(CORPUS.glob("*.toml"))
 
-# Error classes issue 2 requires, each covered by at least one corpus file.
+# The error classes the loader must report (docs/validation.md, its first row),
+# each covered by at least one corpus file.
 REQUIRED_CLASSES = {
     "unknown key", "unknown section", "missing key", "wrong type", "nan or inf",
     "not positive", "external linewidth > total", "exclusive keys", "malformed TOML",

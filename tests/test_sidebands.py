@@ -22,8 +22,8 @@ def test_sideband_areas_are_n_and_n_plus_one_in_weak_coupling(n_bath):
     """Cavity-corrected areas: anti-Stokes n_f, Stokes n_f + 1, n_f from Lyapunov.
 
     Safavi-Naeini et al., PRL 108, 033602 (2012); Weinstein et al., PRX 4,
-    041003 (2014). Weak coupling g/κ = 0.01 (REFERENCES.md:
-    test the rate picture at g/κ ≲ 0.01).
+    041003 (2014). Weak coupling g/κ = 0.01, where the rate picture holds to
+    better than 1 % (docs/physics.md §11).
     """
     s = sideband_summary(_weak(n_bath))[0]
     n = s.steady_state_occupation

@@ -113,7 +113,7 @@ def test_anti_stokes_is_above_the_drive_by_a_time_domain_route():
     Σ₀ = V + (i/2)J. Its numerical transform ∫ e^(iωt)⟨a†(0)a(t)⟩ dt, times
     κ_ex (vacuum at the port), must equal N_out(ω) at ω = +Ωm and −Ωm
     separately: with the kernel of numpy's FFT (e^(−iωt)) the two would swap
-    (REFERENCES.md, "welch sign trap").
+    (docs/physics.md §12, "The FFT sign trap").
     """
     sc = scenario_with_coupling(g_hz=1.5e5, linewidth_hz=1e6, external_linewidth_hz=0.6e6,
                                 detuning_hz=-2e6,

@@ -1,4 +1,4 @@
-"""``noisechain spectrum``: files, figure, JSON and exit statuses (DESIGN.md section 4).
+"""``noisechain spectrum``: files, figure, JSON and exit statuses (DEVELOPERS.md).
 
 The numbers the verb writes are compared with the Python API, whose physics
 the other spectra tests check; here the verb is tested for faithful output.

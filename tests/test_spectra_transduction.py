@@ -104,7 +104,7 @@ def test_zero_point_reference_integrates_to_the_zero_point_variance():
     area = np.trapezoid(x.reference["zero-point motion"], f)
     assert area == pytest.approx(point.modes[0].zero_point_amplitude_m ** 2, rel=1e-3)
     at = x.reference["standard quantum limit"][np.argmin(np.abs(f - FM))]
-    # SQL on resonance ħ/(m Ωm Γm) (REFERENCES.md; Clerk et al., RMP 82, 1155 (2010), Sec. VI)
+    # SQL on resonance ħ/(m Ωm Γm) (Clerk et al., RMP 82, 1155 (2010), Sec. VI)
     assert at == pytest.approx(HBAR / (MASS * angular(FM) * angular(GM)), rel=1e-4)
 
 

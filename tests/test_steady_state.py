@@ -7,7 +7,7 @@
   eigenvalues by the Faddeev–LeVerrier recursion (common practice; e.g.
   Gantmacher, The Theory of Matrices (1959)). np.poly(A) would take
   the eigenvalues first, so it is only used as a cross-check of the recursion.
-* Instabilities (REFERENCES.md; Aspelmeyer, Kippenberg, Marquardt, Rev. Mod.
+* Instabilities (docs/physics.md §8; Aspelmeyer, Kippenberg, Marquardt, Rev. Mod.
   Phys. 86, 1391 (2014), static bistability and dynamical back-action):
   parametric on the blue side when Γm + Γopt < 0; static on the red side when det A < 0, with
   det A = (κ²/4 + Δ²)(Ωm² + Γm²/4) + 4g²ΩmΔ for one mode.
@@ -152,7 +152,7 @@ def test_blue_growth_rate_matches_antidamping(excess):
 
 
 def det_closed_form(point):
-    """(κ²/4 + Δ²)(Ωm² + Γm²/4) + 4g²ΩmΔ, angular units (REFERENCES.md)."""
+    """(κ²/4 + Δ²)(Ωm² + Γm²/4) + 4g²ΩmΔ, angular units (docs/physics.md §8)."""
     k, d = TWO_PI * point.cavity_linewidth_hz, TWO_PI * point.detuning_effective_hz
     m = point.modes[0]
     om, gm, g = (TWO_PI * x for x in (m.frequency_hz, m.linewidth_hz, m.coupling_rate_hz))

@@ -163,7 +163,14 @@ def test_fano_fit_of_the_exact_record_spectrum_gives_the_summary_weights(scenari
         assert summary.anti_stokes.area_quanta < 0 and result.occupation_asymmetry < 0
     assert summary.occupation_from_ratio < 0.5 * summary.steady_state_occupation
     plain = measure_occupation(psd, cal, sample_rate_hz=fs)
-    assert not abs(plain.occupation_asymmetry - summary.occupation_from_ratio) <= 0.02  # or NaN
+    # The Lorentzian-only fit takes the shaped floor for a broad line: its
+    # anti-Stokes weight comes out tens to hundreds of quanta off. It must be a
+    # number (a NaN would be a failure, not a thrown fit); its asymmetry
+    # estimate is not used here, because a Stokes weight fitted to zero makes
+    # r/(1 − r) undefined.
+    thrown = plain.fit.as_dict()["anti_stokes_area"][0] / per_quantum
+    assert np.isfinite(thrown), f"Lorentzian-only fit returned {thrown}"
+    assert abs(thrown - summary.anti_stokes.area_quanta) > 10, (thrown, summary.anti_stokes)
 
 
 def test_laser_noise_shows_as_a_bias_against_the_truth_not_the_apparent_value(

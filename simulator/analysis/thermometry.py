@@ -9,7 +9,8 @@ mechanical mode (shot-noise units, ν > 0 anti-Stokes) with
 by maximum likelihood on the averaged periodogram (Whittle). The cavity
 filter F is removed point by point inside the model instead of dividing
 windowed areas by its value at the peak, which biases n by several percent
-(REFERENCES.md). In weak coupling c_AS/c_S = n/(n + 1) and
+(common practice: the filter changes across the line; docs/analysis.md).
+In weak coupling c_AS/c_S = n/(n + 1) and
 c_AS = η (κ_ex/κ)(4g²/κ) n, c_S = η (κ_ex/κ)(4g²/κ)(n + 1).
 
 Three occupation estimates follow:

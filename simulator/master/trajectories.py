@@ -15,7 +15,8 @@ The stored record is the fluctuation of the output field, as in the linear
 engine's records: w = conj(−e^{iφ}(z − ⟨z⟩_ss)) in shot-noise units, with
 ⟨z⟩_ss the steady-state mean (the coherent carrier is not part of the
 record), φ the phase of the displaced frame, and the complex conjugate that
-puts the anti-Stokes sideband at positive frequency in an FFT (DESIGN.md §4).
+puts the anti-Stokes sideband at positive frequency in an FFT (docs/records.md,
+"Sign convention"; docs/physics.md §12).
 Its two-sided spectrum is 1 + η N_out(ν), integrate-and-dump sampled.
 
 Scope: an ideal iq heterodyne receiver; the scenario's amplifier,
