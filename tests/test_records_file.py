@@ -283,8 +283,11 @@ def test_cli_record_writes_the_file_and_a_summary(tmp_path, capsys):
     assert "20000 samples" in text and "clipped samples: 0" in text
     assert f"true occupation of trampoline: {truth.modes[0].occupation:.6g}" in text
     assert load_record(out).seed == 5
-    assert cli.main(["record", str(demo), "--out", str(out), "--duration", "0.001",
-                     "--json", "--quiet"]) == 0
+    again = ["record", str(demo), "--out", str(out), "--duration", "0.001", "--json",
+             "--quiet"]
+    assert cli.main(again) == 2  # an existing file is replaced only with --force
+    assert "already exists" in capsys.readouterr().err and load_record(out).seed == 5
+    assert cli.main(again + ["--force"]) == 0
     import json
 
     summary = json.loads(capsys.readouterr().out)

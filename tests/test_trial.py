@@ -11,8 +11,9 @@ import pytest
 from test_records import expected_welch
 
 from simulator.errors import InputError
+from simulator.estimator import load_estimator
 from simulator.scenario import load_scenario
-from simulator.trial import load_estimator, run_trials, summarise, trial_seeds
+from simulator.trial import run_trials, summarise, trial_seeds
 
 FAST = Path(__file__).parent / "data" / "fast_thermometry.toml"
 REFERENCE = "simulator.analysis.reference:sideband_thermometry"
