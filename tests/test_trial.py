@@ -65,8 +65,8 @@ def test_failures_are_recorded_and_runs_resume_and_extend(scenario, tmp_path):
     first = run_trials(scenario, spec, 6, tmp_path, duration_s=0.01, workers=1,
                        progress=False)
     stored = {p.name: p.read_text() for p in (tmp_path / "trials").glob("*.json")}
-    assert len(stored) == 6
     failed = [i for i, e in first.errors]
+    assert failed and len(stored) == 6 - len(failed)  # only successes are kept
     assert all("deliberate failure" in e for _, e in first.errors)
     (q,) = first.quantities
     assert q.failures == len(failed) and q.trials == 6 - len(failed)
@@ -75,6 +75,7 @@ def test_failures_are_recorded_and_runs_resume_and_extend(scenario, tmp_path):
                       progress=False)
     for name, text in stored.items():  # finished trials kept, not recomputed
         assert (tmp_path / "trials" / name).read_text() == text
+    assert [i for i, _ in more.errors if i < 6] == failed  # failures tried again, same seeds
     np.testing.assert_array_equal(more.dataset["estimate"].values[:6],
                                   first.dataset["estimate"].values)
     with pytest.raises(InputError, match="different scenario"):
