@@ -55,15 +55,15 @@ def process_alive(pid):
     return True
 
 
-def remove_stale_parts(folder):
+def remove_stale_parts(folder, *, rescan=False):
     """Delete the temporary files that dead processes of this host left in ``folder``.
 
     Only names of the form written by :class:`AtomicFile` are touched, and
     only when their process is gone; a live run's files are left alone.
-    Each folder is scanned once per process.
+    Each folder is scanned once per process unless ``rescan`` is given.
     """
     folder = Path(folder)
-    if folder in _swept_folders:
+    if folder in _swept_folders and not rescan:
         return
     _swept_folders.add(folder)
     try:
@@ -185,7 +185,9 @@ class AtomicFile:
 
 
 def _output_error(path, exc):
-    reason = os.strerror(exc.errno) if exc.errno else str(exc)
+    # HDF5 puts the system's error number inside its message ("errno = 28, ...")
+    number = exc.errno or next(map(int, re.findall(r"errno = (\d+)", str(exc))), None)
+    reason = os.strerror(number) if number else str(exc)
     return OutputError(f"cannot write {str(path)!r}: {reason}; nothing was written there "
                        "(check the free space, the file-size limit and the folder's "
                        "permissions)")
@@ -209,7 +211,7 @@ class FolderLock:
     holds the process id, host and start time of the holder for the message
     another run prints when it is refused. The operating system releases the
     lock when its process ends, however it ends, so a lock left by a killed
-    run is simply taken over. Entering also removes the stale temporary
+    run is simply taken over. Entering and leaving remove the stale temporary
     files of dead processes from the folder and its first-level subfolders.
 
     Parameters
@@ -242,17 +244,22 @@ class FolderLock:
         os.ftruncate(fd, 0)
         os.pwrite(fd, json.dumps({"pid": os.getpid(), "host": socket.gethostname(),
                                   "since": since, "what": self.what}).encode(), 0)
-        remove_stale_parts(self.folder)
-        for sub in self.folder.iterdir():
-            if sub.is_dir():
-                remove_stale_parts(sub)
+        self._clean()
         return self
 
     def __exit__(self, exc_type, exc, tb):
+        self._clean()  # what workers stopped mid-write left
         os.ftruncate(self.fd, 0)
         os.close(self.fd)  # releases the lock
         self.fd = None
         return False
+
+
+    def _clean(self):
+        remove_stale_parts(self.folder, rescan=True)
+        for sub in self.folder.iterdir():
+            if sub.is_dir():
+                remove_stale_parts(sub, rescan=True)
 
 
 def _holder(text):

@@ -103,9 +103,9 @@ class RecordFileWriter:
             return
         try:
             file.close()
-        except OSError:
+        except (OSError, RuntimeError) as exc:  # h5py reports a failed final flush as either
             if strict:
-                raise
+                raise OSError(str(exc)) from None
 
     def write(self, first, counts, mech):
         """Write a chunk of counts (and mechanical quadratures) from sample ``first``."""

@@ -189,18 +189,20 @@ def _execute(func, common, todo, workers, dask):
             "a worker process died (out of memory, or killed); every finished task is "
             "saved, so rerun the same command to resume, perhaps with fewer --workers"
         ) from None
-    except BaseException:  # interrupted (Ctrl-C, SIGTERM) or the consumer stopped early
+    except KeyboardInterrupt:  # Ctrl-C or SIGTERM: stop now, not after the current batches
         _stop(pool)
+        raise
+    except BaseException:  # a task's error (a full disk): let the running batches finish
+        pool.shutdown(cancel_futures=True)
         raise
     pool.shutdown()
 
 
 def _stop(pool):
-    """Stop the workers now: a plain shutdown would wait for their current batches."""
-    workers = list((pool._processes or {}).values())  # the executor has no public kill
-    pool.shutdown(wait=False, cancel_futures=True)
-    for process in workers:
+    """Kill the workers, then shut the executor down (it has no public kill)."""
+    for process in list((pool._processes or {}).values()):
         process.kill()
+    pool.shutdown(cancel_futures=True)
 
 
 def _execute_dask(func, common, todo, address):
