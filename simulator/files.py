@@ -99,7 +99,8 @@ def refuse_existing(path, *, overwrite, option="output"):
     if not overwrite:
         raise OutputError(f"{option} {str(path)!r} already exists; pass --force to "
                           "replace it, or choose another file name")
-    if not os.access(path, os.W_OK):
+    # no write bit for anyone counts too: a superuser may write anything
+    if not os.access(path, os.W_OK) or not path.stat().st_mode & 0o222:
         raise OutputError(f"{option} {str(path)!r} already exists and is read-only; it is "
                           "not replaced (make it writable first if you mean to)")
 
