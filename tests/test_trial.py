@@ -221,3 +221,40 @@ def test_the_window_kernel_in_the_model_removes_the_width_bias(scenario):
                   WindowedExpectation(fs, segment, "hann")):
         with pytest.raises(InputError, match="bins or window are not those"):
             measure_occupation(psd, cal, smear=wrong)
+
+
+@pytest.mark.parametrize("name, reason", [
+    ("exits", "the estimator called sys.exit(0)"),
+    ("ends_the_process", "ended with exit status 0 without returning a result"),
+    ("hangs", "no result within 1.5 s"),
+    ("runs_out_of_memory", "MemoryError: cannot allocate"),
+    ("returns_flags", "expected a pair of real numbers"),
+    ("returns_nan_for_one", "'broken' is (nan, 1.0); expected a finite value"),
+])
+def test_estimator_misbehaviour_makes_failed_trials_with_the_reason(scenario, tmp_path,
+                                                                    name, reason):
+    """The estimator runs in a child process per trial: exiting, hanging or
+    raising fails that trial (never the run, never silently), nothing failed
+    is stored, and a rerun tries the failed trials again."""
+    spec = f"tests.estimators_for_tests:{name}"
+    result = run_trials(scenario, spec, 2, tmp_path, duration_s=0.005, workers=1,
+                        progress=False, timeout_s=1.5)
+    assert [i for i, _ in result.errors] == [0, 1]
+    assert all(reason in e for _, e in result.errors), result.errors
+    assert list((tmp_path / "trials").glob("*.json")) == []
+    if name == "returns_nan_for_one":  # the good quantity is kept
+        assert [q.name for q in result.quantities] == ["level"]
+        assert result.quantities[0].trials == 2
+
+
+def test_estimator_that_exits_on_import_is_a_clear_error(tmp_path):
+    module = tmp_path / "quits.py"
+    module.write_text("import sys\nsys.exit(0)\n\ndef estimate(record):\n    return {}\n")
+    run = subprocess.run([sys.executable, "-m", "simulator", "trial", str(FAST),
+                          "--estimator", f"{module}:estimate", "--trials", "2",
+                          "--duration", "0.005", "--out", str(tmp_path / "out"),
+                          "--workers", "1", "--quiet"],
+                         capture_output=True, text=True, cwd=Path(__file__).parent.parent)
+    assert run.returncode == 2, run.stderr
+    assert "sys.exit(0)" in run.stderr and "Traceback" not in run.stderr
+    assert not (tmp_path / "out" / "trial.nc").exists()
