@@ -194,15 +194,34 @@ def _output_error(path, exc):
                        "permissions)")
 
 
-def atomic_write_text(path, text, *, overwrite=True, durable=True):
-    """Write ``text`` (UTF-8) to ``path`` through :class:`AtomicFile`.
+def atomic_write_bytes(path, data, *, overwrite=True, durable=True):
+    """Write ``data`` (bytes or a memoryview) to ``path`` through :class:`AtomicFile`.
 
-    Replaces by default: its callers write the manifests, results and
-    reports of folders they hold (see :class:`FolderLock`).
+    Replaces by default: its callers write the manifests, results, reports
+    and datasets of folders they hold (see :class:`FolderLock`).
     """
     with AtomicFile(path, overwrite=overwrite, durable=durable) as out:
-        out.tmp.write_text(text, encoding="utf-8")
+        out.tmp.write_bytes(data)
     return Path(path)
+
+
+def atomic_write_text(path, text, *, overwrite=True, durable=True):
+    """Write ``text`` (UTF-8) to ``path``, as :func:`atomic_write_bytes`."""
+    return atomic_write_bytes(path, text.encode("utf-8"), overwrite=overwrite,
+                              durable=durable)
+
+
+def write_netcdf(dataset, path, *, overwrite=True):
+    """Write an :class:`xarray.Dataset` as NetCDF-4 to ``path``, atomically.
+
+    xarray builds the file in memory (h5netcdf engine) and it is written
+    with :func:`atomic_write_bytes`. HDF5 writing straight to a disk that
+    fills up cannot close the file afterwards and crashes the interpreter at
+    exit; in memory it cannot fail that way, and a full disk is then an
+    ordinary write error. Sweep, trial and spectrum datasets are small.
+    """
+    return atomic_write_bytes(path, dataset.to_netcdf(engine="h5netcdf"),
+                              overwrite=overwrite)
 
 
 class FolderLock:

@@ -128,18 +128,17 @@ class Spectrum:
         from pathlib import Path
 
         from simulator.errors import InputError
-        from simulator.files import AtomicFile
+        from simulator.files import atomic_write_text, write_netcdf
 
         path = Path(path)
         suffix = path.suffix.lower()
         if suffix not in (".nc", ".csv"):
             raise InputError(f"output file {str(path)!r} has extension {path.suffix!r}; "
                              "expected .nc (NetCDF) or .csv")
-        with AtomicFile(path, overwrite=overwrite) as out:
-            if suffix == ".csv":
-                out.tmp.write_text(self._csv_text(), encoding="utf-8")
-            else:
-                self.to_dataset().to_netcdf(out.tmp, engine="h5netcdf")
+        if suffix == ".csv":
+            atomic_write_text(path, self._csv_text(), overwrite=overwrite)
+        else:
+            write_netcdf(self.to_dataset(), path, overwrite=overwrite)
         return path
 
     def _csv_text(self):

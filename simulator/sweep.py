@@ -22,7 +22,7 @@ import numpy as np
 
 from simulator import tasks
 from simulator.errors import ScenarioError
-from simulator.files import AtomicFile, OutputError
+from simulator.files import OutputError, write_netcdf
 from simulator.sweep_spec import MAX_POINTS, axis_numbers
 
 FORMAT = "noisechain-sweep"
@@ -372,7 +372,7 @@ def _axis_attrs(axis):
 
 
 def write_dataset(dataset, path, *, overwrite=True):
-    """Write a Dataset to NetCDF through :class:`simulator.files.AtomicFile`.
+    """Write a sweep or trial Dataset with :func:`simulator.files.write_netcdf`.
 
     ``overwrite`` defaults to true: the sweep and trial folders own their
     datasets (the folder lock and manifest make sure of it).
@@ -380,5 +380,4 @@ def write_dataset(dataset, path, *, overwrite=True):
     ds = dataset.copy()
     if "mode" in ds.coords:
         ds = ds.assign_coords(mode=ds["mode"].values.astype(str))
-    with AtomicFile(path, overwrite=overwrite) as out:
-        ds.to_netcdf(out.tmp, engine="h5netcdf")
+    write_netcdf(ds, path, overwrite=overwrite)
