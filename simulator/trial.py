@@ -1,14 +1,16 @@
 """Validation harness: run an estimator on many records and compare with the truth.
 
 The user writes ``estimator(record) -> {name: (value, uncertainty)}``. It
-receives a :class:`PublicRecord` — the samples, the sample rate, the
+receives a :class:`simulator.estimator.PublicRecord` — the samples, the sample rate, the
 calibration factors and the scenario as the experimenter describes it — and
 never the ground truth. ``noisechain trial`` generates N independent records
 (seeds from :class:`numpy.random.SeedSequence` spawned from the scenario's
 seed), runs the estimator on each through the same resumable executors as
 sweeps (local processes or Dask), and reports per quantity: bias, spread,
 root-mean-square error, the pull (estimate − truth)/uncertainty, coverage of
-the one- and two-sigma intervals, and failures.
+the one- and two-sigma intervals, and failures. The estimator runs in an
+isolated child process per trial (:mod:`simulator.estimator`); only
+successful trials are stored, so a rerun tries the failed ones again.
 
 A quantity is compared with the truth by its name: ``occupation`` (first
 mode), ``occupation[<mode>]``, ``effective_frequency_hz``,
