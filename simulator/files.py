@@ -163,8 +163,15 @@ class AtomicFile:
             raise
 
     def discard(self):
-        """Remove the temporary file (nothing appears at the target)."""
-        self.tmp.unlink(missing_ok=True)
+        """Remove the temporary file (nothing appears at the target).
+
+        If the folder no longer lets us (its permissions changed mid-run),
+        the file stays and a later run removes it (:func:`remove_stale_parts`).
+        """
+        try:
+            self.tmp.unlink(missing_ok=True)
+        except OSError:
+            pass
 
     def _publish(self):
         if self.overwrite:

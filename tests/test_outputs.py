@@ -90,6 +90,16 @@ def test_no_space_left_names_the_file_and_leaves_nothing(tmp_path, monkeypatch):
     assert os.listdir(tmp_path) == []
 
 
+def test_permission_lost_before_the_rename_is_a_clean_error(tmp_path, monkeypatch):
+    def denied(*args):
+        raise PermissionError(errno.EACCES, os.strerror(errno.EACCES))
+
+    monkeypatch.setattr(os, "replace", denied)
+    with pytest.raises(OutputError, match=r"a\.txt.*Permission denied"):
+        atomic_write_text(tmp_path / "a.txt", "x", overwrite=True)
+    assert os.listdir(tmp_path) == []
+
+
 @pytest.mark.parametrize("args, name", [
     (["record", "--duration", "0.05", "--quiet"], "r.h5"),
     (["spectrum"], "s.nc"),
