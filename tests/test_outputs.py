@@ -203,3 +203,18 @@ def test_spectrum_replaces_an_existing_file_only_with_force(tmp_path, capsys, op
     assert target.read_text() == "not ours"
     assert cli.main(args + ["--force"]) == 0
     assert target.stat().st_size > len("not ours")
+
+
+def test_run_into_its_own_folder_again_replaces_what_it_wrote(tmp_path):
+    """`make demo` twice: the run owns its folder, so the second replaces its
+    files (the same numbers) and is not refused."""
+    scenario = tmp_path / "s.toml"
+    scenario.write_text(BASE)
+    out = tmp_path / "out"
+    first = noisechain("run", str(scenario), "--out", str(out), "--quiet")
+    assert first.returncode == 0, first.stderr
+    inspected = (out / "inspect.json").read_text()
+    again = noisechain("run", str(scenario), "--out", str(out), "--quiet")
+    assert again.returncode == 0, again.stderr
+    assert (out / "inspect.json").read_text() == inspected
+    assert not list(out.rglob("*.part"))
