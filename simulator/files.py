@@ -284,9 +284,12 @@ class FolderLock:
 
     def _clean(self):
         remove_stale_parts(self.folder, rescan=True)
-        for sub in self.folder.iterdir():
-            if sub.is_dir():
-                remove_stale_parts(sub, rescan=True)
+        try:
+            subfolders = [sub for sub in self.folder.iterdir() if sub.is_dir()]
+        except OSError:
+            return  # the folder went away mid-run: the error that follows says so
+        for sub in subfolders:
+            remove_stale_parts(sub, rescan=True)
 
 
 def _holder(text):

@@ -211,10 +211,8 @@ def test_run_into_its_own_folder_again_replaces_what_it_wrote(tmp_path):
     scenario = tmp_path / "s.toml"
     scenario.write_text(BASE)
     out = tmp_path / "out"
-    first = noisechain("run", str(scenario), "--out", str(out), "--quiet")
-    assert first.returncode == 0, first.stderr
+    assert cli.main(["run", str(scenario), "--out", str(out), "--quiet"]) == 0
     inspected = (out / "inspect.json").read_text()
-    again = noisechain("run", str(scenario), "--out", str(out), "--quiet")
-    assert again.returncode == 0, again.stderr
+    assert cli.main(["run", str(scenario), "--out", str(out), "--quiet"]) == 0
     assert (out / "inspect.json").read_text() == inspected
     assert not list(out.rglob("*.part"))
