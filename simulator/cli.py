@@ -151,14 +151,15 @@ def build_parser():
     p = verbs.add_parser("run", help="everything the scenario asks for (inspect, "
                          "spectrum, record, sweep, figures) and an HTML report")
     p.add_argument("scenario", help="scenario TOML file")
-    p.add_argument("--out", required=True, help="output folder")
+    p.add_argument("--out", required=True, help="output folder, new or of an earlier run "
+                   "of the same scenario (whose files are replaced and sweep resumed)")
     _execution_options(p)
     p.set_defaults(func=cmd_run)
 
     p = verbs.add_parser("demo", help="run the bundled demo scenario and write its "
                          "outputs and report to a folder")
     p.add_argument("--out", default="demo-output", help="output folder (default: "
-                   "%(default)s)")
+                   "%(default)s); running the demo again replaces what it wrote there")
     _execution_options(p, dask=False)
     p.set_defaults(func=cmd_demo)
     return parser
