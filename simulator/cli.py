@@ -1,9 +1,20 @@
 """Command line: ``noisechain VERB ...`` (also ``python -m simulator``).
 
-Exit status 0 on success, 2 on bad input (a one-paragraph message, no
-traceback), 3 on a physically unstable or invalid operating point. Heavy
-libraries are imported inside the verbs that need them so that ``--help``,
-``check`` and ``inspect`` start fast.
+Exit status (a one-paragraph message, no traceback, for every failure):
+
+- 0 success, also when the reader of the output goes away early
+  (``noisechain inspect ... | head -1``);
+- 1 work that could not be completed (a worker process died, every trial
+  failed); what finished is kept;
+- 2 bad input, or an output that cannot be written: a file that exists
+  (without ``--force``), a missing or read-only folder, a full disk, a
+  folder in use by another run;
+- 3 a physically unstable or invalid operating point;
+- 130 stopped by Ctrl-C (SIGINT), 143 stopped by SIGTERM (128 + the signal
+  number); resumable verbs continue where they stopped on a rerun.
+
+Heavy libraries are imported inside the verbs that need them so that
+``--help``, ``check`` and ``inspect`` start fast.
 """
 
 import argparse
@@ -25,6 +36,7 @@ from simulator.commands import (
     cmd_trial,
 )
 from simulator.errors import InputError, NoisechainError, OperatingPointError
+from simulator.estimator import DEFAULT_TIMEOUT_S
 
 
 def _execution_options(p, *, dask=True):
@@ -36,6 +48,12 @@ def _execution_options(p, *, dask=True):
                        "for a LocalCluster or a scheduler address tcp://host:port")
     p.add_argument("--quiet", action="store_true", help="no progress bars")
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
+
+
+def _force_option(p):
+    p.add_argument("--force", action="store_true", help="replace output files that "
+                   "already exist (never read-only ones); without it an existing file is "
+                   "an error")
 
 
 def build_parser():
@@ -79,6 +97,7 @@ def build_parser():
     p.add_argument("scenario", help="scenario TOML file")
     p.add_argument("--out", default=None, help="write the spectrum: .nc (NetCDF) or .csv")
     p.add_argument("--plot", default=None, help="write a figure: .png, .pdf or .svg")
+    _force_option(p)
     p.add_argument("--angle-deg", type=float, default=None, help="homodyne quadrature angle "
                    "from the intracavity amplitude quadrature (default: the scenario's "
                    "detection.quadrature_angle_rad)")
@@ -94,6 +113,7 @@ def build_parser():
                          "truth, written to HDF5")
     p.add_argument("scenario", help="scenario TOML file")
     p.add_argument("--out", required=True, help="output file (.h5)")
+    _force_option(p)
     p.add_argument("--duration", type=float, default=None, metavar="S",
                    help="record length in seconds (default: the scenario's "
                    "record.duration_s)")
@@ -116,7 +136,11 @@ def build_parser():
     p.add_argument("scenario", help="scenario TOML file")
     p.add_argument("--estimator", required=True, metavar="MODULE:FUNCTION",
                    help="function(record) -> {name: (value, uncertainty)}; a module path "
-                   "or path/to/file.py:function")
+                   "or path/to/file.py:function. This runs that Python code, with your "
+                   "privileges, in a child process per trial")
+    p.add_argument("--timeout-s", type=float, default=DEFAULT_TIMEOUT_S, metavar="S",
+                   help="seconds the estimator may take on one record before the trial "
+                   "counts as failed (default: %(default)g)")
     p.add_argument("--trials", type=int, required=True, help="number of records")
     p.add_argument("--out", required=True, help="output folder (rerun to resume or extend)")
     p.add_argument("--duration", type=float, default=None, metavar="S",
@@ -127,14 +151,15 @@ def build_parser():
     p = verbs.add_parser("run", help="everything the scenario asks for (inspect, "
                          "spectrum, record, sweep, figures) and an HTML report")
     p.add_argument("scenario", help="scenario TOML file")
-    p.add_argument("--out", required=True, help="output folder")
+    p.add_argument("--out", required=True, help="output folder, new or of an earlier run "
+                   "of the same scenario (whose files are replaced and sweep resumed)")
     _execution_options(p)
     p.set_defaults(func=cmd_run)
 
     p = verbs.add_parser("demo", help="run the bundled demo scenario and write its "
                          "outputs and report to a folder")
     p.add_argument("--out", default="demo-output", help="output folder (default: "
-                   "%(default)s)")
+                   "%(default)s); running the demo again replaces what it wrote there")
     _execution_options(p, dask=False)
     p.set_defaults(func=cmd_demo)
     return parser
@@ -155,6 +180,8 @@ def main(argv=None):
     except NoisechainError as exc:
         print(f"noisechain {args.verb}: {exc}", file=sys.stderr)
         return EXIT_FAILED
+    except BrokenPipeError:
+        raise  # the reader went away: handled in entry_point, not a file error
     except OSError as exc:  # a path that cannot be read or written
         where = exc.filename if exc.filename else "a file"
         print(f"noisechain {args.verb}: error: cannot use {where}: "
@@ -172,10 +199,11 @@ def entry_point():
         status = main()
         sys.stdout.flush()
     except BrokenPipeError:
-        # the reader (e.g. `| head`) closed the pipe: not an error of ours
+        # the reader (e.g. `| head`) closed the pipe: not an error of ours; later
+        # writes (the interpreter's final flush) go nowhere instead of failing again
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         status = EXIT_OK
     except KeyboardInterrupt:
         print("noisechain: interrupted", file=sys.stderr)
-        status = 130
+        status = interrupt.exit_status()
     sys.exit(status)

@@ -5,42 +5,22 @@ the functions here do the work of one verb each and print its report. Heavy
 libraries are imported inside the verbs that need them.
 """
 
-import json
 import math
 import os
 import sys
 import warnings
 from pathlib import Path
 
+from simulator import jsontext
 from simulator.errors import InputError
+from simulator.files import refuse_existing
 
 EXIT_OK, EXIT_FAILED, EXIT_INPUT, EXIT_UNSTABLE = 0, 1, 2, 3
 
 
-def _json_default(value):
-    import numpy as np
-
-    if isinstance(value, np.generic):
-        return value.item()
-    if isinstance(value, np.ndarray):
-        return value.tolist()
-    raise TypeError(f"cannot write {type(value).__name__} as JSON")
-
-
-def _clean(value):
-    """Replace non-finite floats by None so the output is strict JSON."""
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {k: _clean(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_clean(v) for v in value]
-    return value
-
-
 def print_json(data):
     """Print ``data`` as strict, indented JSON (non-finite numbers become null)."""
-    print(json.dumps(_clean(data), indent=2, default=_json_default))
+    print(jsontext.dumps(data, indent=2))
 
 
 def cmd_check(args):
@@ -107,14 +87,16 @@ def cmd_sweep(args):
     return EXIT_OK
 
 
-def _require_suffix(path, allowed, option):
-    """Refuse an output file with the wrong extension, or in a folder that cannot take it."""
+def _require_output_file(path, allowed, option, force):
+    """Refuse, before any work, an output file with the wrong extension, in a folder
+    that cannot take it, or that exists (without ``--force``)."""
     if path is None:
         return
     if Path(path).suffix.lower() not in allowed:
         raise InputError(f"{option} {path!r} has extension {Path(path).suffix!r}; expected "
                          f"one of {', '.join(allowed)}")
     _require_writable_folder(Path(path).parent or Path("."), option, path)
+    refuse_existing(path, overwrite=force, option=option)
 
 
 def _require_writable_folder(folder, option, path):
@@ -142,8 +124,8 @@ def _require_workers(args):
 
 def cmd_spectrum(args):
     """``noisechain spectrum``: analytic output spectrum of a scenario."""
-    _require_suffix(args.out, (".nc", ".csv"), "--out")
-    _require_suffix(args.plot, (".png", ".pdf", ".svg"), "--plot")
+    _require_output_file(args.out, (".nc", ".csv"), "--out", args.force)
+    _require_output_file(args.plot, (".png", ".pdf", ".svg"), "--plot", args.force)
     from simulator.scenario import load_scenario
     from simulator.sidebands import sideband_summary
     from simulator.spectra import measured_spectrum
@@ -162,13 +144,14 @@ def cmd_spectrum(args):
     summary = sideband_summary(system) if args.engine == "linear" else []
     files = {}
     if args.out:
-        files["data"] = str(spectrum.save(args.out))
+        files["data"] = str(spectrum.save(args.out, overwrite=args.force))
     if args.plot:
         from simulator.plots import plot_spectrum
         from simulator.transduction import to_displacement
 
         plot_spectrum(spectrum, args.plot, displacement=to_displacement(spectrum, system),
-                      summary=summary, title=f"{scenario.scenario.name}: {spectrum.quantity}")
+                      summary=summary, title=f"{scenario.scenario.name}: {spectrum.quantity}",
+                      overwrite=args.force)
         files["plot"] = str(args.plot)
     report = {"scenario": scenario.scenario.name, "engine": args.engine,
               "quantity": spectrum.quantity,
@@ -210,7 +193,7 @@ def cmd_record(args):
     from simulator.records import simulate_record
     from simulator.scenario import load_scenario
 
-    _require_suffix(args.out, (".h5", ".hdf5"), "--out")
+    _require_output_file(args.out, (".h5", ".hdf5"), "--out", args.force)
     scenario = load_scenario(args.scenario)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
@@ -218,10 +201,12 @@ def cmd_record(args):
             from simulator.master.trajectories import master_record
 
             record = master_record(scenario, seed=args.seed, duration_s=args.duration,
-                                   out=args.out, kind=args.master_model)
+                                   out=args.out, kind=args.master_model,
+                                   overwrite=args.force)
         else:
             record = simulate_record(scenario, seed=args.seed, duration_s=args.duration,
-                                     out=args.out, form=args.form, progress=not args.quiet)
+                                     out=args.out, form=args.form, progress=not args.quiet,
+                                     overwrite=args.force)
     for warning in caught:
         print(f"noisechain record: warning: {warning.message}", file=sys.stderr)
     truth = record.truth
@@ -261,7 +246,7 @@ def cmd_trial(args):
 
     result = run_trials(load_scenario(args.scenario), args.estimator, args.trials, args.out,
                         duration_s=args.duration, workers=args.workers, dask=args.dask,
-                        progress=not args.quiet)
+                        progress=not args.quiet, timeout_s=args.timeout_s)
     if args.json:
         print_json(result.to_dict())
         return EXIT_OK

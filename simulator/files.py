@@ -1,33 +1,301 @@
-"""File writing that never leaves a half-written file that looks complete."""
+"""Output files that are either complete or absent, and folders used by one run at a time.
 
+Every file noisechain writes (text, HDF5 through h5py, NetCDF through
+xarray, figures) goes through :class:`AtomicFile`: the content is written
+under a temporary name in the target folder, closed, flushed to disk, and
+renamed onto the target, so a reader never sees a half-written file.
+
+- The temporary name is ``.NAME.HOST-PID-TOKEN.part``: unique per process
+  and per file, so two runs never share one. A ``.part`` file of this host
+  whose process is gone (a killed run) is removed the next time noisechain
+  writes into that folder.
+- The temporary file is created with mode 0o666 like any new file, so the
+  operating system applies the user's umask; nothing reads or changes the
+  process-wide umask.
+- An existing target is replaced only when the caller says so
+  (``overwrite=True``, the command line's ``--force``); otherwise the rename
+  refuses atomically (a hard link that fails if the name is taken).
+- A failed write (disk full, file-size limit, permissions changed mid-run)
+  removes the temporary file and raises :class:`OutputError` naming the file.
+
+:class:`FolderLock` gives one process at a time a results folder (sweeps,
+trials, runs); see there.
+"""
+
+import datetime
+import errno
+import fcntl
+import json
 import os
-import tempfile
+import re
+import secrets
+import socket
 from pathlib import Path
 
+from simulator.errors import InputError
 
-def atomic_write_text(path, text, *, durable=True):
-    """Write ``text`` to ``path`` through a temporary file and an atomic rename.
+HOST = re.sub(r"\W", "_", socket.gethostname().split(".")[0], flags=re.ASCII) or "host"
+_PART = re.compile(r"^\.(?P<name>.+)\.(?P<host>\w+)-(?P<pid>\d+)-[0-9a-f]{8}\.part$",
+                   re.ASCII)
+_swept_folders = set()
 
-    A killed process leaves either the old file or the new one, never a
-    partial one. ``durable`` also flushes the data to disk before the rename
-    (survives a power cut); small, recomputable files may skip that cost.
+
+class OutputError(InputError):
+    """An output that cannot be written: exists, read-only, disk full, folder in use."""
+
+
+def process_alive(pid):
+    """True if process ``pid`` exists on this host (one of another user counts)."""
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def remove_stale_parts(folder, *, rescan=False):
+    """Delete the temporary files that dead processes of this host left in ``folder``.
+
+    Only names of the form written by :class:`AtomicFile` are touched, and
+    only when their process is gone; a live run's files are left alone.
+    Each folder is scanned once per process unless ``rescan`` is given.
+    """
+    folder = Path(folder)
+    if folder in _swept_folders and not rescan:
+        return
+    _swept_folders.add(folder)
+    try:
+        entries = list(os.scandir(folder))
+    except OSError:
+        return  # not there yet, or not listable: nothing of ours to clean
+    for entry in entries:
+        match = _PART.match(entry.name)
+        if match and match["host"] == HOST and not process_alive(int(match["pid"])):
+            try:
+                os.unlink(entry.path)
+            except OSError:
+                pass  # a read-only folder or another cleaner was first: harmless
+
+
+def refuse_existing(path, *, overwrite, option="output"):
+    """Raise :class:`OutputError` if ``path`` exists and may not be replaced.
+
+    Parameters
+    ----------
+    path : path
+    overwrite : bool
+        The caller owns the file or the user passed ``--force``. A read-only
+        file is refused even then.
+    option : str
+        Words for the message, e.g. ``"--out"``.
     """
     path = Path(path)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".part")
+    if not path.exists():
+        return
+    if path.is_dir():
+        raise OutputError(f"{option} {str(path)!r} is a folder; expected a file name")
+    if not overwrite:
+        raise OutputError(f"{option} {str(path)!r} already exists; pass --force to "
+                          "replace it, or choose another file name")
+    # no write bit for anyone counts too: a superuser may write anything
+    if not os.access(path, os.W_OK) or not path.stat().st_mode & 0o222:
+        raise OutputError(f"{option} {str(path)!r} already exists and is read-only; it is "
+                          "not replaced (make it writable first if you mean to)")
+
+
+class AtomicFile:
+    """A temporary file that becomes ``path`` on :meth:`commit`, or vanishes on :meth:`discard`.
+
+    Use as a context manager (commit on a clean exit, discard on an
+    exception) or call the two methods (streaming writers). Write to
+    :attr:`tmp` with any library; close it before committing.
+
+    Parameters
+    ----------
+    path : path
+        The final file; its folder must exist.
+    overwrite : bool
+        Replace an existing file at ``path`` (else :class:`OutputError`).
+    durable : bool
+        Flush the content to the disk before the rename (survives a power
+        cut); small files that are recomputed if damaged may skip it.
+    """
+
+    def __init__(self, path, *, overwrite=False, durable=True):
+        self.path, self.overwrite, self.durable = Path(path), overwrite, durable
+        refuse_existing(self.path, overwrite=overwrite)
+        remove_stale_parts(self.path.parent)
+        self.tmp = self.path.with_name(
+            f".{self.path.name}.{HOST}-{os.getpid()}-{secrets.token_hex(4)}.part")
+        try:
+            os.close(os.open(self.tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666))
+        except OSError as exc:
+            raise _output_error(self.path, exc) from None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, exc_type, exc, tb):
+        if exc_type is None:
+            self.commit()
+            return False
+        self.discard()
+        if isinstance(exc, OSError) and not isinstance(exc, OutputError):
+            raise _output_error(self.path, exc) from None
+        return False
+
+    def commit(self):
+        """Flush (if durable) and rename the finished temporary file onto the target."""
+        try:
+            if self.durable:
+                fd = os.open(self.tmp, os.O_RDONLY)
+                try:
+                    os.fsync(fd)
+                finally:
+                    os.close(fd)
+            self._publish()
+        except BaseException as exc:
+            self.discard()
+            if isinstance(exc, OSError) and not isinstance(exc, OutputError):
+                raise _output_error(self.path, exc) from None
+            raise
+
+    def discard(self):
+        """Remove the temporary file (nothing appears at the target).
+
+        If the folder no longer lets us (its permissions changed mid-run),
+        the file stays and a later run removes it (:func:`remove_stale_parts`).
+        """
+        try:
+            self.tmp.unlink(missing_ok=True)
+        except OSError:
+            pass
+
+    def _publish(self):
+        if self.overwrite:
+            refuse_existing(self.path, overwrite=True)
+            os.replace(self.tmp, self.path)
+            return
+        try:
+            os.link(self.tmp, self.path)  # fails if the name was taken meanwhile
+        except FileExistsError:
+            refuse_existing(self.path, overwrite=False)
+            raise
+        except OSError as exc:
+            if exc.errno not in (errno.EPERM, errno.ENOTSUP, errno.EMLINK):
+                raise
+            refuse_existing(self.path, overwrite=False)  # no hard links on this file system
+            os.replace(self.tmp, self.path)
+            return
+        self.tmp.unlink()
+
+
+def _output_error(path, exc):
+    # HDF5 puts the system's error number inside its message ("errno = 28, ...")
+    number = exc.errno or next(map(int, re.findall(r"errno = (\d+)", str(exc))), None)
+    reason = os.strerror(number) if number else str(exc)
+    return OutputError(f"cannot write {str(path)!r}: {reason}; nothing was written there "
+                       "(check the free space, the file-size limit and the folder's "
+                       "permissions)")
+
+
+def atomic_write_bytes(path, data, *, overwrite=True, durable=True):
+    """Write ``data`` (bytes or a memoryview) to ``path`` through :class:`AtomicFile`.
+
+    Replaces by default: its callers write the manifests, results, reports
+    and datasets of folders they hold (see :class:`FolderLock`).
+    """
+    with AtomicFile(path, overwrite=overwrite, durable=durable) as out:
+        out.tmp.write_bytes(data)
+    return Path(path)
+
+
+def atomic_write_text(path, text, *, overwrite=True, durable=True):
+    """Write ``text`` (UTF-8) to ``path``, as :func:`atomic_write_bytes`."""
+    return atomic_write_bytes(path, text.encode("utf-8"), overwrite=overwrite,
+                              durable=durable)
+
+
+def write_netcdf(dataset, path, *, overwrite=True):
+    """Write an :class:`xarray.Dataset` as NetCDF-4 to ``path``, atomically.
+
+    xarray builds the file in memory (h5netcdf engine) and it is written
+    with :func:`atomic_write_bytes`. HDF5 writing straight to a disk that
+    fills up cannot close the file afterwards and crashes the interpreter at
+    exit; in memory it cannot fail that way, and a full disk is then an
+    ordinary write error. Sweep, trial and spectrum datasets are small.
+    """
+    return atomic_write_bytes(path, dataset.to_netcdf(engine="h5netcdf"),
+                              overwrite=overwrite)
+
+
+class FolderLock:
+    """Exclusive use of a results folder by one process, for the ``with`` block.
+
+    The lock is an advisory ``flock`` on ``FOLDER/.noisechain.lock``, which
+    holds the process id, host and start time of the holder for the message
+    another run prints when it is refused. The operating system releases the
+    lock when its process ends, however it ends, so a lock left by a killed
+    run is simply taken over. Entering and leaving remove the stale temporary
+    files of dead processes from the folder and its first-level subfolders.
+
+    Parameters
+    ----------
+    folder : path
+        Must exist.
+    what : str
+        Words for the message, e.g. ``"sweep"``.
+    """
+
+    NAME = ".noisechain.lock"
+
+    def __init__(self, folder, what):
+        self.folder, self.what, self.fd = Path(folder), what, None
+
+    def __enter__(self):
+        path = self.folder / self.NAME
+        fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o666)
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            holder = os.read(fd, 4096).decode("utf-8", "replace")
+            os.close(fd)
+            raise OutputError(
+                f"{str(self.folder)!r} is in use by another noisechain run ({_holder(holder)})"
+                f"; wait for it to finish or choose another --out folder (lock file "
+                f"{path})") from None
+        self.fd = fd
+        since = datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds")
+        os.ftruncate(fd, 0)
+        os.pwrite(fd, json.dumps({"pid": os.getpid(), "host": socket.gethostname(),
+                                  "since": since, "what": self.what}).encode(), 0)
+        self._clean()
+        return self
+
+    def __exit__(self, exc_type, exc, tb):
+        self._clean()  # what workers stopped mid-write left
+        os.ftruncate(self.fd, 0)
+        os.close(self.fd)  # releases the lock
+        self.fd = None
+        return False
+
+
+    def _clean(self):
+        remove_stale_parts(self.folder, rescan=True)
+        try:
+            subfolders = [sub for sub in self.folder.iterdir() if sub.is_dir()]
+        except OSError:
+            return  # the folder went away mid-run: the error that follows says so
+        for sub in subfolders:
+            remove_stale_parts(sub, rescan=True)
+
+
+def _holder(text):
     try:
-        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp's 0600 would hide results from others
-        with os.fdopen(fd, "w", encoding="utf-8") as handle:
-            handle.write(text)
-            if durable:
-                handle.flush()
-                os.fsync(handle.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-
-
-def _umask():
-    mask = os.umask(0)
-    os.umask(mask)
-    return mask
+        info = json.loads(text)
+        return (f"{info['what']} of process {info['pid']} on host {info['host']}, started "
+                f"{info['since']}")
+    except (ValueError, KeyError, TypeError):
+        return "a process that is just starting"

@@ -23,7 +23,8 @@ def _unit(span):
     return 1.0, "Hz"
 
 
-def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, title=None):
+def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, title=None,
+                  overwrite=False):
     """Save a figure of ``spectrum`` with its noise budget to ``path`` (PNG, PDF, SVG).
 
     Parameters
@@ -40,6 +41,8 @@ def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, titl
         centred on those of mode number ``mode``.
     mode : int
     title : str, optional
+    overwrite : bool
+        Replace an existing file at ``path`` (by default it is an error).
     """
     import matplotlib
 
@@ -68,8 +71,7 @@ def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, titl
             _displacement_zoom(fig.add_subplot(grid[2, k]), displacement, label, centre, width)
     handles, labels = ax.get_legend_handles_labels()
     fig.legend(handles, labels, loc="outside right upper", fontsize=8, frameon=False)
-    _save(fig, path)
-    plt.close(fig)
+    save_figure(fig, path, overwrite=overwrite)
     return path
 
 
@@ -171,19 +173,18 @@ def _displacement_zoom(ax, x_spec, label, centre, width):
     ax.legend(loc="upper right", fontsize=8, framealpha=0.9)
 
 
-def _save(fig, path):
-    """Save through a temporary file in the same folder and an atomic rename."""
-    import os
-    import tempfile
-    from pathlib import Path
+def save_figure(fig, path, *, overwrite=False, dpi=110):
+    """Save ``fig`` through :class:`simulator.files.AtomicFile` and close it.
 
-    path = Path(path)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.stem}.", suffix=path.suffix)
-    os.close(fd)
+    The format follows the extension (png, pdf, svg).
+    """
+    import matplotlib.pyplot as plt
+
+    from simulator.files import AtomicFile
+
     try:
-        fig.savefig(tmp, dpi=110, format=path.suffix.lstrip(".").lower() or "png")
-        os.chmod(tmp, 0o644)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+        with AtomicFile(path, overwrite=overwrite) as out:
+            fig.savefig(out.tmp, dpi=dpi, format=out.path.suffix.lstrip(".").lower() or "png")
+    finally:
+        plt.close(fig)
+    return out.path

@@ -19,13 +19,12 @@ killed run leaves behind is neither at the target path nor loadable.
 """
 
 import datetime
-import os
-import tempfile
 from pathlib import Path
 
 import numpy as np
 
 from simulator.errors import InputError
+from simulator.files import AtomicFile
 from simulator.records import Record, Truth, record_header
 
 FORMAT = "noisechain-record"
@@ -45,7 +44,7 @@ class RecordFileWriter:
     deletes the temporary file.
     """
 
-    def __init__(self, path, plan, chunk_rows=HDF5_CHUNK_ROWS):
+    def __init__(self, path, plan, chunk_rows=HDF5_CHUNK_ROWS, *, overwrite=False):
         import h5py
 
         self.path, self.plan = Path(path), plan
@@ -55,39 +54,58 @@ class RecordFileWriter:
         if not self.path.parent.is_dir():
             raise InputError(f"output folder {str(self.path.parent)!r} does not exist; "
                              "create it first")
-        fd, tmp = tempfile.mkstemp(dir=self.path.parent, prefix=f".{self.path.name}.",
-                                   suffix=".part")
-        os.close(fd)
-        mask = os.umask(0)
-        os.umask(mask)
-        os.chmod(tmp, 0o666 & ~mask)  # mkstemp makes it private; a record is an ordinary file
-        self.tmp = Path(tmp)
-        try:
-            self.file = h5py.File(self.tmp, "w")
-        except OSError as exc:
-            self.tmp.unlink(missing_ok=True)
-            raise InputError(f"cannot write {str(self.path)!r} ({exc})") from None
-        n, rows = plan.n_samples, max(1, min(chunk_rows, HDF5_CHUNK_ROWS, plan.n_samples))
-        shape = (n, 2) if plan.chain.record_kind == "iq" else (n,)
-        self.samples = self.file.create_dataset(
-            "samples", shape=shape, dtype=np.int16 if plan.bits <= 16 else np.int32,
-            chunks=(rows,) + shape[1:], compression="gzip", compression_opts=1,
-            shuffle=True)
-        self.truth = self.file.create_group("truth")
+        self.output = AtomicFile(self.path, overwrite=overwrite)
         self.mech = None
-        if plan.watched.size:
-            self.mech = self.truth.create_dataset(
-                "mechanical_quadratures", shape=(n, plan.watched.size), dtype=np.float64,
-                chunks=(rows, plan.watched.size), compression="gzip", compression_opts=1)
+        try:
+            # no chunk cache: a chunk reaches the file when written, so a full disk
+            # fails that write instead of a later flush that leaves HDF5 unable to
+            # close the file (and crashing the interpreter at exit)
+            self.file = h5py.File(self.output.tmp, "w", rdcc_nbytes=0)
+        except OSError as exc:
+            self.output.discard()
+            raise InputError(f"cannot write {str(self.path)!r} ({exc})") from None
+        try:
+            n, rows = plan.n_samples, max(1, min(chunk_rows, HDF5_CHUNK_ROWS, plan.n_samples))
+            shape = (n, 2) if plan.chain.record_kind == "iq" else (n,)
+            self.samples = self.file.create_dataset(
+                "samples", shape=shape, dtype=np.int16 if plan.bits <= 16 else np.int32,
+                chunks=(rows,) + shape[1:], compression="gzip", compression_opts=1,
+                shuffle=True)
+            self.truth = self.file.create_group("truth")
+            if plan.watched.size:
+                self.mech = self.truth.create_dataset(
+                    "mechanical_quadratures", shape=(n, plan.watched.size), dtype=np.float64,
+                    chunks=(rows, plan.watched.size), compression="gzip", compression_opts=1)
+        except BaseException as exc:
+            self.__exit__(type(exc), exc, None)
+            raise
 
     def __enter__(self):
         return self
 
     def __exit__(self, exc_type, exc, tb):
         if exc_type is not None:
-            self.file.close()
-            self.tmp.unlink(missing_ok=True)
+            self._close(strict=False)
+            self.output.__exit__(exc_type, exc, tb)  # removes the file; names a write error
         return False
+
+    def _close(self, *, strict):
+        """Close the file once (h5py closes its datasets first, then the file).
+
+        A second close of a file whose first close failed crashes HDF5, so
+        the handle is dropped before trying. ``strict`` re-raises a failing
+        close (disk full at the last flush); otherwise the error that brought
+        us here is the one to report.
+        """
+        file, self.file = self.file, None
+        self.mech = self.samples = self.truth = None
+        if file is None:
+            return
+        try:
+            file.close()
+        except (OSError, RuntimeError) as exc:  # h5py reports a failed final flush as either
+            if strict:
+                raise OSError(str(exc)) from None
 
     def write(self, first, counts, mech):
         """Write a chunk of counts (and mechanical quadratures) from sample ``first``."""
@@ -135,11 +153,8 @@ class RecordFileWriter:
         root["frequency_convention"] = FREQUENCY_CONVENTION
         root["format_version"] = FORMAT_VERSION
         root["format"] = FORMAT
-        self.file.flush()
-        self.file.close()
-        with open(self.tmp, "rb") as handle:
-            os.fsync(handle.fileno())
-        os.replace(self.tmp, self.path)
+        self._close(strict=True)
+        self.output.commit()
         return Record(counts=None, path=self.path, clipped_samples=clipped,
                       scenario=plan.scenario, truth=truth, created_utc=created,
                       mechanical_quadratures=None, **header)
@@ -182,13 +197,13 @@ def load_record(path, *, start=0, stop=None):
             raise InputError(f"{str(path)!r} is not a complete noisechain record (no "
                              f"format = {FORMAT!r} attribute; an interrupted write leaves "
                              "such a file)")
-        version = int(f.attrs["format_version"])
-        if version > FORMAT_VERSION:
-            raise InputError(f"{str(path)!r} has record format version {version}; this "
-                             f"software reads up to {FORMAT_VERSION}, upgrade noisechain")
-        a, s, t = f.attrs, f["samples"], f["truth"]
+        a, s, t = _checked_layout(f, path)
         counts = s[start:stop]
         mech = t["mechanical_quadratures"][start:stop] if "mechanical_quadratures" in t else None
+        if mech is not None and not np.isfinite(mech).all():
+            raise InputError(f"record file {str(path)!r}: truth/mechanical_quadratures holds "
+                             f"{int(np.size(mech) - np.isfinite(mech).sum())} non-finite "
+                             "values (NaN or infinity); expected finite numbers")
         truth = Truth(mode_names=tuple(_text(x) for x in t.attrs["mode_names"]),
                       **{k: tuple(float(x) for x in t.attrs[k]) for k in _TRUTH_ARRAYS},
                       cavity_occupation=float(t.attrs["cavity_occupation"]),
@@ -206,6 +221,60 @@ def load_record(path, *, start=0, stop=None):
             form=_text(a["form"]), scenario=scenario, truth=truth,
             software_version=_text(a["software_version"]),
             created_utc=_text(a["created_utc"]), mechanical_quadratures=mech)
+
+
+# What a record must hold, where: every name is read by load_record.
+_ROOT_NUMBERS = ("format_version", "seed", "sample_rate_hz", "n_samples",
+                 "intermediate_frequency_hz", "clipped_samples")
+_ROOT_TEXT = ("scenario_toml", "kind", "scheme", "form", "local_oscillator_side",
+              "software_version", "created_utc")
+_SAMPLE_NUMBERS = ("volts_per_count", "shot_noise_per_count", "full_scale_v", "bits")
+
+
+def _checked_layout(f, path):
+    """The root attributes, samples and truth of an open record, every part checked.
+
+    Raises :class:`InputError` naming the file and the missing or malformed
+    part; the sample counts must be integers (a float dataset could hold NaN).
+    """
+    import h5py
+
+    def bad(what, expected):
+        return InputError(f"record file {str(path)!r}: {what}; expected {expected} (a file "
+                          "written by `noisechain record`)")
+
+    for where, group, names in (("root", f, _ROOT_NUMBERS + _ROOT_TEXT),
+                                ("samples", f.get("samples"), _SAMPLE_NUMBERS),
+                                ("truth", f.get("truth"),
+                                 ("mode_names", "cavity_occupation") + _TRUTH_ARRAYS)):
+        if group is None:
+            raise bad(f"no {where!r} in the file", f"a dataset or group {where!r}")
+        missing = [n for n in names if n not in group.attrs]
+        if missing:
+            raise bad(f"{where} lacks the attribute(s) {', '.join(missing)}",
+                      "every attribute of the record format")
+    a, s, t = f.attrs, f["samples"], f["truth"]
+    for where, attrs, names in (("root", a, _ROOT_NUMBERS), ("samples", s.attrs,
+                                                             _SAMPLE_NUMBERS)):
+        for name in names:
+            value = np.asarray(attrs[name])
+            if value.shape != () or value.dtype.kind not in "iuf" or not np.isfinite(value):
+                raise bad(f"{where} attribute {name} = {value!r}", "one finite number")
+    version = int(a["format_version"])
+    if version > FORMAT_VERSION:
+        raise InputError(f"{str(path)!r} has record format version {version}; this "
+                         f"software reads up to {FORMAT_VERSION}, upgrade noisechain")
+    kind = _text(a["kind"])
+    shape = (int(a["n_samples"]), 2) if kind == "iq" else (int(a["n_samples"]),)
+    if not isinstance(s, h5py.Dataset) or s.dtype.kind not in "iu":
+        raise bad(f"samples are {getattr(s, 'dtype', 'a group')}, which can hold NaN or "
+                  "infinity", "a dataset of integer ADC counts")
+    if s.shape != shape:
+        raise bad(f"samples have shape {s.shape} for a {kind!r} record of "
+                  f"{int(a['n_samples'])} samples", f"shape {shape}")
+    if not isinstance(t.get("calibration"), h5py.Group):
+        raise bad("truth has no calibration group", "a group truth/calibration")
+    return a, s, t
 
 
 def _text(value):

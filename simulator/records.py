@@ -215,7 +215,7 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
 
 
 def simulate_record(system, *, seed=None, duration_s=None, out=None, form="auto",
-                    store_mechanics=None, chunk_samples=None, progress=False):
+                    store_mechanics=None, chunk_samples=None, progress=False, overwrite=False):
     """Generate a digitised record of ``system`` with its ground truth.
 
     Parameters
@@ -239,6 +239,8 @@ def simulate_record(system, *, seed=None, duration_s=None, out=None, form="auto"
         the result.
     progress : bool
         Show a progress bar (tqdm, on standard error).
+    overwrite : bool
+        Replace an existing file at ``out`` (by default it is an error).
 
     Returns
     -------
@@ -250,7 +252,9 @@ def simulate_record(system, *, seed=None, duration_s=None, out=None, form="auto"
     Raises
     ------
     simulator.errors.InputError
-        Bad seed, duration, form or output path.
+        Bad seed, duration, form or output path; an existing ``out`` without
+        ``overwrite``; a write that fails (disk full) as
+        :class:`simulator.files.OutputError`.
     simulator.errors.OperatingPointError
         Unstable operating point: no stationary record exists.
 
@@ -269,7 +273,8 @@ def simulate_record(system, *, seed=None, duration_s=None, out=None, form="auto"
     else:
         from simulator.recordfile import RecordFileWriter
 
-        sink = RecordFileWriter(out, plan, chunk_rows=int(min(chunk, plan.n_samples)))
+        sink = RecordFileWriter(out, plan, chunk_rows=int(min(chunk, plan.n_samples)),
+                                overwrite=overwrite)
     with sink:
         clipped = generate(plan, sink, chunk=int(chunk), progress=progress)
         record = sink.finish(clipped)

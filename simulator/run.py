@@ -10,9 +10,9 @@ the list of files written.
 """
 
 import dataclasses
-import json
 from pathlib import Path
 
+from simulator import jsontext
 from simulator import report as html
 from simulator.files import atomic_write_text
 
@@ -28,29 +28,38 @@ class RunResult:
 
 
 def run_scenario(scenario, out, *, workers=None, dask=None, progress=True):
-    """Run everything ``scenario`` asks for into folder ``out``; see the module notes."""
+    """Run everything ``scenario`` asks for into folder ``out``; see the module notes.
+
+    The folder belongs to the run: a rerun of the same scenario replaces the
+    files it wrote (the same numbers and the same record bits, a fresh
+    report) and resumes its sweep; a folder of another scenario, or one
+    holding other files, is refused, and so is a second run into the same
+    folder while the first is still going.
+    """
     from simulator import tasks
-    from simulator.commands import _clean
-    from simulator.inspection import inspect_scenario
-    from simulator.system import System
 
     out = Path(out)
     text = scenario.to_toml()
-    # refuse a folder that holds another scenario's run before writing anything
-    tasks.prepare_folder(out, "run.json", {"format": "noisechain-run", "format_version": 1,
-                                           "sha256": tasks.digest(text)}, "run")
+    with tasks.claim_folder(out, "run.json", {"format": "noisechain-run", "format_version": 1,
+                                              "sha256": tasks.digest(text)}, "run"):
+        return _run(scenario, out, workers, dask, progress)
+
+
+def _run(scenario, out, workers, dask, progress):
+    from simulator.inspection import inspect_scenario
+    from simulator.system import System
+
     files, sections, figures = [], [], []
 
     def wrote(path):
         files.append(Path(path))
         return Path(path)
 
-    wrote(out / "scenario.toml")
-    atomic_write_text(out / "scenario.toml", scenario.to_toml())
+    atomic_write_text(wrote(out / "scenario.toml"), scenario.to_toml())
     system = System(scenario)  # built once: every part below takes it
     inspection = inspect_scenario(system)
-    data = _clean(inspection.to_dict())
-    atomic_write_text(wrote(out / "inspect.json"), json.dumps(data, indent=2))
+    data = jsontext.plain(inspection.to_dict())  # non-finite numbers as None (null)
+    atomic_write_text(wrote(out / "inspect.json"), jsontext.dumps(data, indent=2))
     atomic_write_text(wrote(out / "inspect.txt"), inspection.to_text() + "\n")
     sections.append(("Scenario", html.preformatted(scenario.to_toml())))
     sections.append(("Derived quantities", _derived_table(data)))
@@ -128,11 +137,12 @@ def _spectrum_part(system, out, wrote, figures):
 
     spectrum = measured_spectrum(system)
     summary = sideband_summary(system)
-    spectrum.save(wrote(out / "spectrum.nc"))
+    spectrum.save(wrote(out / "spectrum.nc"), overwrite=True)
     png = wrote(out / "spectrum.png")
     plot_spectrum(spectrum, png, displacement=to_displacement(spectrum, system),
                   summary=summary,
-                  title=f"{system.scenario.scenario.name}: {spectrum.quantity}")
+                  title=f"{system.scenario.scenario.name}: {spectrum.quantity}",
+                  overwrite=True)
     figures.append(png)
     rows = [[s.mode, s.anti_stokes.frequency_hz, s.anti_stokes.area_quanta,
              s.stokes.frequency_hz, s.stokes.area_quanta, s.ratio, s.occupation_from_ratio,
@@ -157,7 +167,7 @@ def _record_part(system, out, wrote, figures, progress):
     path = wrote(out / "record.h5")
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        record = simulate_record(system, out=path, progress=progress)
+        record = simulate_record(system, out=path, progress=progress, overwrite=True)
     png = wrote(out / "record_spectrum.png")
     _plot_record_spectrum(system, record, png)
     figures.append(png)
@@ -182,6 +192,7 @@ def _plot_record_spectrum(system, record, path):
     import numpy as np
 
     from simulator.analysis.psd import averaged_periodogram
+    from simulator.plots import save_figure
 
     fs = record.sample_rate_hz
     # bins of a quarter of the narrowest line, but at least 16 averages
@@ -210,8 +221,7 @@ def _plot_record_spectrum(system, record, path):
     ax.legend(fontsize=8)
     ax.grid(alpha=0.3)
     fig.tight_layout()
-    fig.savefig(path, dpi=120)
-    plt.close(fig)
+    save_figure(fig, path, overwrite=True, dpi=120)  # the run's or sweep's own folder
 
 
 def _sweep_part(scenario, out, wrote, figures, workers, dask, progress):

@@ -117,19 +117,18 @@ class Spectrum:
         attrs.update({f"provenance_{k}": str(v) for k, v in self.provenance.items()})
         return xr.Dataset(data, coords=coords, attrs=attrs)
 
-    def save(self, path):
+    def save(self, path, *, overwrite=False):
         """Write the spectrum to ``path``: NetCDF (``.nc``) or CSV (``.csv``), atomically.
 
         The CSV starts with ``# key: value`` lines (axis, sidedness, units,
         calibration, provenance except the embedded scenario), then one column
-        per curve with a header row. Any other extension raises
-        :class:`~simulator.errors.InputError`.
+        per curve with a header row. Any other extension, or an existing file
+        without ``overwrite``, raises :class:`~simulator.errors.InputError`.
         """
-        import os
-        import tempfile
         from pathlib import Path
 
         from simulator.errors import InputError
+        from simulator.files import atomic_write_text, write_netcdf
 
         path = Path(path)
         suffix = path.suffix.lower()
@@ -137,19 +136,9 @@ class Spectrum:
             raise InputError(f"output file {str(path)!r} has extension {path.suffix!r}; "
                              "expected .nc (NetCDF) or .csv")
         if suffix == ".csv":
-            from simulator.files import atomic_write_text
-
-            atomic_write_text(path, self._csv_text())
-            return path
-        fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".part")
-        os.close(fd)
-        try:
-            self.to_dataset().to_netcdf(tmp, engine="h5netcdf")
-            os.chmod(tmp, 0o644)
-            os.replace(tmp, path)
-        except BaseException:
-            Path(tmp).unlink(missing_ok=True)
-            raise
+            atomic_write_text(path, self._csv_text(), overwrite=overwrite)
+        else:
+            write_netcdf(self.to_dataset(), path, overwrite=overwrite)
         return path
 
     def _csv_text(self):

@@ -15,7 +15,6 @@ import dataclasses
 import functools
 import itertools
 import math
-import os
 import re
 from pathlib import Path
 
@@ -23,6 +22,7 @@ import numpy as np
 
 from simulator import tasks
 from simulator.errors import ScenarioError
+from simulator.files import OutputError, write_netcdf
 from simulator.sweep_spec import MAX_POINTS, axis_numbers
 
 FORMAT = "noisechain-sweep"
@@ -199,6 +199,8 @@ def evaluate_point(scenario_text, assignments, outputs=None):
             _add_sidebands(scenario, result)
             if outputs is not None:
                 result["files"] = outputs.write(scenario)
+    except OutputError:
+        raise  # a full disk is not a property of the point: stop the sweep, keep what is done
     except Exception as exc:  # noqa: BLE001 - recorded with the point
         result["error"] = f"{type(exc).__name__}: {exc}"
         return result
@@ -228,14 +230,14 @@ class PointOutputs:
             path.parent.mkdir(parents=True, exist_ok=True)
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")  # clipping is counted in the file
-                simulate_record(scenario, seed=self.seed, out=path)
+                simulate_record(scenario, seed=self.seed, out=path, overwrite=True)
             written.append(f"records/{self.key}.h5")
         if self.spectra:
             from simulator.spectra import measured_spectrum
 
             path = Path(self.folder) / "spectra" / f"{self.key}.nc"
             path.parent.mkdir(parents=True, exist_ok=True)
-            measured_spectrum(scenario).save(path)
+            measured_spectrum(scenario).save(path, overwrite=True)
             written.append(f"spectra/{self.key}.nc")
         return written
 
@@ -291,19 +293,19 @@ def run_sweep(scenario, out, *, workers=None, dask=None, progress=True):
     text = scenario.to_toml()
     axes = sweep_axes(scenario)
     points = sweep_points(scenario, axes)
-    tasks.prepare_folder(out, "sweep.json", {
-        "format": FORMAT, "format_version": FORMAT_VERSION,
-        "sha256": tasks.digest(text), "scenario_toml": text}, "sweep")
-    seeds = np.random.SeedSequence(scenario.scenario.seed).spawn(len(points))
-    common = (text, str(out.resolve()), scenario.sweep.records, scenario.sweep.spectra)
-    results = tasks.run_tasks(out / "points", _point_task, common,
-                              [(_point_key(index), (a, _point_key(index),
-                                                    int(seed.generate_state(1)[0])))
-                               for (index, a), seed in zip(points, seeds, strict=True)],
-                              workers=workers, dask=dask, progress=progress, desc="sweep",
-                              unit="pt")
-    dataset = assemble(scenario, axes, points, results)
-    write_dataset(dataset, out / "sweep.nc")
+    with tasks.claim_folder(out, "sweep.json", {
+            "format": FORMAT, "format_version": FORMAT_VERSION,
+            "sha256": tasks.digest(text), "scenario_toml": text}, "sweep"):
+        seeds = np.random.SeedSequence(scenario.scenario.seed).spawn(len(points))
+        common = (text, str(out.resolve()), scenario.sweep.records, scenario.sweep.spectra)
+        results = tasks.run_tasks(out / "points", _point_task, common,
+                                  [(_point_key(index), (a, _point_key(index),
+                                                        int(seed.generate_state(1)[0])))
+                                   for (index, a), seed in zip(points, seeds, strict=True)],
+                                  workers=workers, dask=dask, progress=progress, desc="sweep",
+                                  unit="pt")
+        dataset = assemble(scenario, axes, points, results)
+        write_dataset(dataset, out / "sweep.nc")
     return dataset
 
 
@@ -369,12 +371,13 @@ def _axis_attrs(axis):
     return attrs
 
 
-def write_dataset(dataset, path):
-    """Write a Dataset to NetCDF atomically (temporary file, then rename)."""
-    path = Path(path)
-    tmp = path.with_name(f".{path.name}.part")
+def write_dataset(dataset, path, *, overwrite=True):
+    """Write a sweep or trial Dataset with :func:`simulator.files.write_netcdf`.
+
+    ``overwrite`` defaults to true: the sweep and trial folders own their
+    datasets (the folder lock and manifest make sure of it).
+    """
     ds = dataset.copy()
     if "mode" in ds.coords:
         ds = ds.assign_coords(mode=ds["mode"].values.astype(str))
-    ds.to_netcdf(tmp, engine="h5netcdf")
-    os.replace(tmp, path)
+    write_netcdf(ds, path, overwrite=overwrite)

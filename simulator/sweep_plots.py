@@ -8,6 +8,8 @@ dimensions (further dimensions at their first value, said in the title).
 
 import numpy as np
 
+from simulator.plots import save_figure
+
 
 def _pyplot():
     import matplotlib
@@ -98,8 +100,7 @@ def plot_occupation(dataset, path):
         _log_axes(ax, dataset, dims)
         ax.set_title("occupation (blank: unstable)" + (f"; {note}" if note else ""))
     fig.tight_layout()
-    fig.savefig(path, dpi=120)
-    plt.close(fig)
+    save_figure(fig, path, overwrite=True, dpi=120)  # the run's or sweep's own folder
     return path
 
 
@@ -162,6 +163,5 @@ def plot_stability(dataset, path):
               loc="upper left", fontsize=8, framealpha=0.9)
     fig.suptitle(f"{dataset.attrs.get('scenario_name', '')}: stability of the operating point")
     fig.tight_layout()
-    fig.savefig(path, dpi=120)
-    plt.close(fig)
+    save_figure(fig, path, overwrite=True, dpi=120)  # the run's or sweep's own folder
     return path

@@ -9,14 +9,16 @@ folder skips them, and a folder that belongs to different work (its manifest
 differs) is refused rather than mixed.
 """
 
+import contextlib
 import hashlib
 import json
 import math
 import os
 from pathlib import Path
 
+from simulator import jsontext
 from simulator.errors import ExecutionError, InputError
-from simulator.files import atomic_write_text
+from simulator.files import FolderLock, OutputError, atomic_write_text
 
 
 def digest(text):
@@ -24,8 +26,15 @@ def digest(text):
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
-def prepare_folder(folder, manifest_name, manifest, what):
-    """Create ``folder`` with its manifest, or check an existing one matches.
+@contextlib.contextmanager
+def claim_folder(folder, manifest_name, manifest, what):
+    """Hold ``folder`` for this run: lock it, then create or check its manifest.
+
+    The folder is created if needed. While the ``with`` block runs, another
+    run into the same folder is refused (:class:`simulator.files.FolderLock`).
+    A folder with a manifest of other work, or one that holds files but no
+    manifest (it is not ours), is refused: results are never mixed and
+    nobody else's files are replaced.
 
     Parameters
     ----------
@@ -34,63 +43,51 @@ def prepare_folder(folder, manifest_name, manifest, what):
     what : str
         Words for error messages, e.g. ``"sweep"``.
     """
-    folder.mkdir(parents=True, exist_ok=True)
-    path = folder / manifest_name
-    if path.exists():
-        try:
-            found = json.loads(path.read_text(encoding="utf-8"))
-        except (OSError, ValueError) as exc:
-            raise InputError(f"{path}: unreadable {what} manifest ({exc}); expected a folder "
-                             f"written by noisechain {what}, or a new folder") from None
-        if found.get("sha256") != manifest["sha256"]:
-            raise InputError(
-                f"{folder}: this folder holds a {what} of a different scenario or set-up "
-                f"(its {manifest_name} does not match); results are never mixed. Choose a "
-                "new --out folder or delete the old one.")
-    else:
-        atomic_write_text(path, json.dumps(manifest, indent=2))
-
-
-# Strict JSON has no NaN or infinity; a task result (e.g. the occupation of an
-# unstable point) may. They are stored as {"non_finite": "nan" | "inf" | "-inf"}.
-_NON_FINITE = "non_finite"
-
-
-def _tag_non_finite(obj):
-    if isinstance(obj, float) and not math.isfinite(obj):
-        return {_NON_FINITE: "nan" if math.isnan(obj) else ("inf" if obj > 0 else "-inf")}
-    if isinstance(obj, dict):
-        return {k: _tag_non_finite(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_tag_non_finite(v) for v in obj]
-    return obj
-
-
-def _untag(obj):
-    if set(obj) == {_NON_FINITE} and obj[_NON_FINITE] in ("nan", "inf", "-inf"):
-        return float(obj[_NON_FINITE])
-    return obj
-
-
-def encode_result(result):
-    """Strict JSON text of a task result (non-finite floats tagged, not bare NaN)."""
-    return json.dumps(_tag_non_finite(result), allow_nan=False)
-
-
-def decode_result(text):
-    """Inverse of :func:`encode_result`: the same numbers, NaN and infinities included."""
-    return json.loads(text, object_hook=_untag)
-
-
-def _read(path):
+    folder = Path(folder)
     try:
-        return decode_result(path.read_text(encoding="utf-8"))
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise OutputError(f"cannot create the output folder {str(folder)!r}: "
+                          f"{exc.strerror or exc}") from None
+    with FolderLock(folder, what):
+        path = folder / manifest_name
+        if path.exists():
+            try:
+                found = json.loads(path.read_text(encoding="utf-8"))
+            except (OSError, ValueError) as exc:
+                raise InputError(f"{path}: unreadable {what} manifest ({exc}); expected a "
+                                 f"folder written by noisechain {what}, or a new folder") from None
+            if found.get("sha256") != manifest["sha256"]:
+                raise InputError(
+                    f"{folder}: this folder holds a {what} of a different scenario or set-up "
+                    f"(its {manifest_name} does not match); results are never mixed. Choose a "
+                    "new --out folder or delete the old one.")
+        else:
+            foreign = sorted(p.name for p in folder.iterdir() if p.name != FolderLock.NAME)
+            if foreign:
+                raise InputError(
+                    f"{folder}: the folder is not empty ({', '.join(foreign[:3])}"
+                    f"{', ...' if len(foreign) > 3 else ''}) and holds no {manifest_name}, so "
+                    f"it is not a noisechain {what} folder; its files are not ours to replace. "
+                    "Choose a new or empty --out folder.")
+            atomic_write_text(path, jsontext.dumps(manifest, indent=2))
+        yield folder
+
+
+def _read(path, keep):
+    try:
+        result = jsontext.loads(path.read_text(encoding="utf-8"))
     except (OSError, ValueError):
         return None  # missing or damaged: recomputed
+    return result if keep(result) else None
+
+
+def _always(result):
+    return True
 
 
 def run_tasks(folder, func, common, tasks, *, workers=None, dask=None, progress=True,
-              desc="tasks", unit="task"):
+              desc="tasks", unit="task", keep=_always):
     """Run (or resume) ``tasks``, storing each result under ``folder``.
 
     Parameters
@@ -109,6 +106,10 @@ def run_tasks(folder, func, common, tasks, *, workers=None, dask=None, progress=
         ``tcp://host:port``; overrides ``workers``.
     progress : bool
         Show a progress bar with rate and time remaining.
+    keep : callable
+        ``keep(result)`` is true for a result worth storing; the others (a
+        failure that may pass on a second try) are returned but computed
+        again by the next run.
 
     Returns
     -------
@@ -119,7 +120,7 @@ def run_tasks(folder, func, common, tasks, *, workers=None, dask=None, progress=
     folder.mkdir(parents=True, exist_ok=True)
     results, todo = {}, []
     for key, payload in tasks:
-        stored = _read(folder / f"{key}.json")
+        stored = _read(folder / f"{key}.json", keep)
         if stored is not None:
             results[key] = stored
         else:
@@ -132,10 +133,11 @@ def run_tasks(folder, func, common, tasks, *, workers=None, dask=None, progress=
                    smoothing=0.1)
     try:
         for key, result in _execute(func, common, todo, workers, dask):
-            # a task file is recomputed if damaged, so skip the fsync per task
-            text = encode_result(result)
-            atomic_write_text(folder / f"{key}.json", text, durable=False)
-            results[key] = decode_result(text)  # what a resumed run reads, exactly
+            text = jsontext.dumps(result, keep_non_finite=True)
+            if keep(result):
+                # a task file is recomputed if damaged, so skip the fsync per task
+                atomic_write_text(folder / f"{key}.json", text, durable=False)
+            results[key] = jsontext.loads(text)  # what a resumed run reads, exactly
             if bar is not None:
                 bar.update(1)
     finally:
@@ -171,18 +173,36 @@ def _execute(func, common, todo, workers, dask):
     import concurrent.futures as cf
     import multiprocessing
 
-    context = multiprocessing.get_context("spawn")
+    from simulator.processes import end_with_parent
+
+    # workers end with this process, however it ends (kill -9 included)
+    pool = cf.ProcessPoolExecutor(max_workers=workers,
+                                  mp_context=multiprocessing.get_context("spawn"),
+                                  initializer=end_with_parent, initargs=(os.getpid(),))
     try:
-        with cf.ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
-            futures = [pool.submit(run_batch, func, common, b)
-                       for b in _batches(todo, workers)]
-            for future in cf.as_completed(futures):
-                yield from future.result()
+        futures = [pool.submit(run_batch, func, common, b) for b in _batches(todo, workers)]
+        for future in cf.as_completed(futures):
+            yield from future.result()
     except cf.process.BrokenProcessPool:
+        _stop(pool)
         raise ExecutionError(
             "a worker process died (out of memory, or killed); every finished task is "
             "saved, so rerun the same command to resume, perhaps with fewer --workers"
         ) from None
+    except KeyboardInterrupt:  # Ctrl-C or SIGTERM: stop now, not after the current batches
+        _stop(pool)
+        raise
+    except BaseException:  # a task's error (a full disk): let the running batches finish
+        pool.shutdown(cancel_futures=True)
+        raise
+    pool.shutdown()
+
+
+def _stop(pool):
+    """Kill the workers, then shut the executor down (it has no public kill)."""
+    for process in list((pool._processes or {}).values()):
+        process.kill()
+    pool.shutdown(cancel_futures=True)
 
 
 def _execute_dask(func, common, todo, address):

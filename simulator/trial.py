@@ -1,14 +1,16 @@
 """Validation harness: run an estimator on many records and compare with the truth.
 
 The user writes ``estimator(record) -> {name: (value, uncertainty)}``. It
-receives a :class:`PublicRecord` — the samples, the sample rate, the
+receives a :class:`simulator.estimator.PublicRecord` — the samples, the sample rate, the
 calibration factors and the scenario as the experimenter describes it — and
 never the ground truth. ``noisechain trial`` generates N independent records
 (seeds from :class:`numpy.random.SeedSequence` spawned from the scenario's
 seed), runs the estimator on each through the same resumable executors as
 sweeps (local processes or Dask), and reports per quantity: bias, spread,
 root-mean-square error, the pull (estimate − truth)/uncertainty, coverage of
-the one- and two-sigma intervals, and failures.
+the one- and two-sigma intervals, and failures. The estimator runs in an
+isolated child process per trial (:mod:`simulator.estimator`); only
+successful trials are stored, so a rerun tries the failed ones again.
 
 A quantity is compared with the truth by its name: ``occupation`` (first
 mode), ``occupation[<mode>]``, ``effective_frequency_hz``,
@@ -19,100 +21,20 @@ the occupation. Other names are reported without a truth (spread only).
 """
 
 import dataclasses
-import importlib
-import importlib.util
 import math
 import re
-import sys
 from pathlib import Path
 
 import numpy as np
 
 from simulator import tasks
 from simulator.errors import InputError
+from simulator.estimator import DEFAULT_TIMEOUT_S, check_estimator, estimate
 
 FORMAT = "noisechain-trial"
 FORMAT_VERSION = 1
 ONE_SIGMA, TWO_SIGMA = 0.682689492137, 0.954499736104  # Gaussian interval contents
 MIN_TRIALS_FOR_VERDICT = 10  # fewer: statistics are reported, no verdict
-
-
-@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
-class PublicRecord:
-    """What an estimator may see: the data and the public description, no truth.
-
-    ``samples`` are in shot-noise units (two-sided shot-noise density 1 per
-    Hz): complex I + iQ for an ``iq`` record (anti-Stokes at positive
-    frequency in an FFT), real for an ``if`` record.
-    """
-
-    samples: np.ndarray
-    kind: str
-    scheme: str
-    sample_rate_hz: float
-    intermediate_frequency_hz: float
-    local_oscillator_side: str
-    volts_per_count: float
-    shot_noise_per_count: float
-    scenario: object
-
-
-def public_view(record):
-    """The :class:`PublicRecord` of a :class:`simulator.records.Record`."""
-    return PublicRecord(samples=record.shot_noise_units(), kind=record.kind,
-                        scheme=record.scheme, sample_rate_hz=record.sample_rate_hz,
-                        intermediate_frequency_hz=record.intermediate_frequency_hz,
-                        local_oscillator_side=record.local_oscillator_side,
-                        volts_per_count=record.volts_per_count,
-                        shot_noise_per_count=record.shot_noise_per_count,
-                        scenario=record.scenario)
-
-
-_ESTIMATORS = {}
-
-
-def load_estimator(spec):
-    """Import ``module:function`` or ``path/to/file.py:function``."""
-    if spec in _ESTIMATORS:
-        return _ESTIMATORS[spec]
-    module_name, sep, func_name = str(spec).rpartition(":")
-    if not sep or not module_name or not func_name:
-        raise InputError(f"--estimator {spec!r}: expected 'module:function' or "
-                         "'path/to/file.py:function'")
-    try:
-        if module_name.endswith(".py"):
-            path = Path(module_name)
-            if not path.is_file():
-                raise InputError(f"--estimator {spec!r}: file {path} not found")
-            name = f"_noisechain_estimator_{abs(hash(str(path.resolve())))}"
-            module_spec = importlib.util.spec_from_file_location(name, path)
-            module = importlib.util.module_from_spec(module_spec)
-            sys.modules[name] = module
-            module_spec.loader.exec_module(module)
-        else:
-            module = importlib.import_module(module_name)
-    except InputError:
-        raise
-    except Exception as exc:  # noqa: BLE001 - user code: report, don't crash
-        raise InputError(f"--estimator {spec!r}: importing {module_name} failed "
-                         f"({type(exc).__name__}: {exc})") from None
-    func = getattr(module, func_name, None)
-    if not callable(func):
-        raise InputError(f"--estimator {spec!r}: {module_name} has no function "
-                         f"{func_name!r}")
-    _ESTIMATORS[spec] = func
-    return func
-
-
-def _estimator_source_digest(spec):
-    """Digest of the file that defines the estimator (empty if it has no file)."""
-    func = load_estimator(spec)
-    module = sys.modules.get(getattr(func, "__module__", ""), None)
-    path = getattr(module, "__file__", None)
-    try:
-        return tasks.digest(Path(path).read_text(encoding="utf-8")) if path else ""
-    except OSError:
-        return ""
 
 
 def trial_seeds(scenario, n):
@@ -122,35 +44,28 @@ def trial_seeds(scenario, n):
 
 
 def _trial_task(common, seed):
-    """One trial: generate a record, run the estimator; JSON-able result."""
+    """One trial: generate a record, run the estimator in isolation; JSON-able result."""
     import warnings
 
     from simulator.records import simulate_record
     from simulator.scenario import parse_scenario
 
-    text, spec, duration = common
+    text, spec, duration, timeout_s = common
     try:
         scenario = parse_scenario(text, source="<trial>")
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             record = simulate_record(scenario, seed=seed, duration_s=duration)
-        estimates = load_estimator(spec)(public_view(record))
-        if not isinstance(estimates, dict) or not estimates:
-            raise TypeError(f"the estimator returned {type(estimates).__name__} "
-                            f"{str(estimates)[:80]!r}; expected a non-empty dict "
-                            "{name: (value, uncertainty)}")
-        out = {}
-        for name, pair in estimates.items():
-            if (not isinstance(pair, (tuple, list)) or len(pair) != 2
-                    or not all(isinstance(x, (int, float, np.number)) for x in pair)):
-                raise TypeError(f"estimate {name!r} is {pair!r}; expected a pair of numbers "
-                                "(value, uncertainty)")
-            value, error = pair
-            out[str(name)] = [float(value), float(error)]
-        return {"estimates": out, "error": "",
-                "warnings": [str(w.message) for w in caught]}
-    except (Exception, SystemExit) as exc:  # noqa: BLE001 - user code: one trial fails, not the run
+    except Exception as exc:  # noqa: BLE001 - one trial fails, not the run
         return {"estimates": {}, "error": f"{type(exc).__name__}: {exc}", "warnings": []}
+    estimates, failure = estimate(spec, record, timeout_s)
+    return {"estimates": estimates, "error": failure,
+            "warnings": [str(w.message) for w in caught]}
+
+
+def succeeded(result):
+    """Only a trial without an error is kept; a failed one is run again on a rerun."""
+    return not result["error"]
 
 
 def truth_table(scenario):
@@ -259,7 +174,7 @@ class TrialResult:
 
 
 def run_trials(scenario, estimator, n_trials, out, *, duration_s=None, workers=None,
-               dask=None, progress=True):
+               dask=None, progress=True, timeout_s=DEFAULT_TIMEOUT_S):
     """Run ``estimator`` on ``n_trials`` independent records of ``scenario``.
 
     Parameters
@@ -275,6 +190,9 @@ def run_trials(scenario, estimator, n_trials, out, *, duration_s=None, workers=N
         Record length; default ``record.duration_s`` of the scenario.
     workers, dask, progress
         As for :func:`simulator.tasks.run_tasks`.
+    timeout_s : float
+        Seconds the estimator may take on one record (and to import) before
+        its process is stopped and the trial counts as failed.
 
     Returns
     -------
@@ -282,33 +200,40 @@ def run_trials(scenario, estimator, n_trials, out, *, duration_s=None, workers=N
     """
     if isinstance(n_trials, bool) or not isinstance(n_trials, int) or n_trials < 2:
         raise InputError(f"--trials {n_trials!r}: expected an integer of at least 2")
-    load_estimator(estimator)  # fail fast, in this process, with a clear message
+    if not (isinstance(timeout_s, (int, float)) and not isinstance(timeout_s, bool)
+            and math.isfinite(timeout_s) and timeout_s > 0):
+        raise InputError(f"--timeout-s {timeout_s!r}: expected a positive number of seconds")
     out = Path(out)
     text = scenario.to_toml()
     table = truth_table(scenario)
     duration = scenario.record.duration_s if duration_s is None else float(duration_s)
     if not (math.isfinite(duration) and duration > 0):
         raise InputError(f"--duration {duration_s!r}: expected a positive number of seconds")
-    # the estimator's code is part of the identity: edited code never reuses old results
-    identity = f"{text}\n{estimator}\n{duration!r}\n{_estimator_source_digest(estimator)}"
-    tasks.prepare_folder(out, "trial.json", {
-        "format": FORMAT, "format_version": FORMAT_VERSION, "sha256": tasks.digest(identity),
-        "scenario_toml": text, "estimator": estimator, "duration_s": duration}, "trial")
-    seeds = trial_seeds(scenario, n_trials)
-    results = tasks.run_tasks(out / "trials", _trial_task, (text, estimator, duration),
-                              [(f"{i:06d}", s) for i, s in enumerate(seeds)],
-                              workers=workers, dask=dask, progress=progress, desc="trials",
-                              unit="trial")
-    ordered = [results[f"{i:06d}"] for i in range(n_trials)]
-    dataset, reports, errors = _assemble(scenario, estimator, duration, seeds, ordered, table)
-    from simulator.sweep import write_dataset
+    # fail fast with a clear message; the estimator's code is part of the identity, so
+    # edited code never reuses old results
+    source = check_estimator(estimator, timeout_s)
+    identity = f"{text}\n{estimator}\n{duration!r}\n{source}"
+    with tasks.claim_folder(out, "trial.json", {
+            "format": FORMAT, "format_version": FORMAT_VERSION,
+            "sha256": tasks.digest(identity), "scenario_toml": text, "estimator": estimator,
+            "duration_s": duration}, "trial"):
+        seeds = trial_seeds(scenario, n_trials)
+        results = tasks.run_tasks(out / "trials", _trial_task,
+                                  (text, estimator, duration, float(timeout_s)),
+                                  [(f"{i:06d}", s) for i, s in enumerate(seeds)],
+                                  workers=workers, dask=dask, progress=progress,
+                                  desc="trials", unit="trial", keep=succeeded)
+        ordered = [results[f"{i:06d}"] for i in range(n_trials)]
+        dataset, reports, errors = _assemble(scenario, estimator, duration, seeds, ordered,
+                                             table)
+        from simulator.sweep import write_dataset
 
-    write_dataset(dataset, out / "trial.nc")
-    result = TrialResult(quantities=tuple(reports), dataset=dataset, errors=tuple(errors),
-                         out=out)
-    from simulator.trial_report import write_trial_report
+        write_dataset(dataset, out / "trial.nc")
+        result = TrialResult(quantities=tuple(reports), dataset=dataset, errors=tuple(errors),
+                             out=out)
+        from simulator.trial_report import write_trial_report
 
-    write_trial_report(result, scenario, estimator, out / "report.html")
+        write_trial_report(result, scenario, estimator, out / "report.html")
     return result
 
 

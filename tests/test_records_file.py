@@ -273,6 +273,55 @@ def test_load_record_refuses_other_files(tmp_path):
         load_record(tmp_path / "other.h5")
 
 
+def _damaged(tmp_path, damage):
+    path = tmp_path / "r.h5"
+    simulate_record(make(samples=2000), seed=3, out=path, store_mechanics=True)
+    with h5py.File(path, "r+") as f:
+        damage(f)
+    return path
+
+
+def _float_samples_with_nan(f):
+    counts = f["samples"][...].astype(float)
+    counts[7, 1] = np.nan
+    attrs = dict(f["samples"].attrs)
+    del f["samples"]
+    f["samples"] = counts
+    f["samples"].attrs.update(attrs)
+
+
+def _nan_quadrature(f):
+    f["truth/mechanical_quadratures"][5, 0] = np.inf
+
+
+@pytest.mark.parametrize("damage, words", [
+    (_float_samples_with_nan, "samples are float64, which can hold NaN"),
+    (_nan_quadrature, "mechanical_quadratures holds 1 non-finite"),
+    (lambda f: f.attrs.__delitem__("seed"), "root lacks the attribute(s) seed"),
+    (lambda f: f["samples"].attrs.__delitem__("volts_per_count"),
+     "samples lacks the attribute(s) volts_per_count"),
+    (lambda f: f["samples"].attrs.__setitem__("shot_noise_per_count", np.nan),
+     "shot_noise_per_count = array(nan)"),
+    (lambda f: f.__delitem__("truth"), "no 'truth' in the file"),
+    (lambda f: f.attrs.__setitem__("n_samples", 5), "samples have shape (2000, 2)"),
+])
+def test_load_record_names_the_file_and_what_is_wrong(tmp_path, damage, words):
+    path = _damaged(tmp_path, damage)
+    with pytest.raises(InputError) as caught:
+        load_record(path)
+    assert str(path) in str(caught.value) and words in str(caught.value)
+
+
+def test_reference_thermometry_refuses_non_finite_samples():
+    from simulator.analysis.reference import sideband_thermometry
+    from simulator.estimator import public_view
+
+    record = public_view(simulate_record(make(samples=4096), seed=2))
+    record.samples[100] = np.nan
+    with pytest.raises(InputError, match="1 non-finite samples .* index 100 of 4096"):
+        sideband_thermometry(record)
+
+
 def test_cli_record_writes_the_file_and_a_summary(tmp_path, capsys):
     out = tmp_path / "demo.h5"
     demo = REPO / "simulator/data/demo.toml"
@@ -283,8 +332,11 @@ def test_cli_record_writes_the_file_and_a_summary(tmp_path, capsys):
     assert "20000 samples" in text and "clipped samples: 0" in text
     assert f"true occupation of trampoline: {truth.modes[0].occupation:.6g}" in text
     assert load_record(out).seed == 5
-    assert cli.main(["record", str(demo), "--out", str(out), "--duration", "0.001",
-                     "--json", "--quiet"]) == 0
+    again = ["record", str(demo), "--out", str(out), "--duration", "0.001", "--json",
+             "--quiet"]
+    assert cli.main(again) == 2  # an existing file is replaced only with --force
+    assert "already exists" in capsys.readouterr().err and load_record(out).seed == 5
+    assert cli.main(again + ["--force"]) == 0
     import json
 
     summary = json.loads(capsys.readouterr().out)

@@ -11,8 +11,9 @@ import pytest
 from test_records import expected_welch
 
 from simulator.errors import InputError
+from simulator.estimator import load_estimator
 from simulator.scenario import load_scenario
-from simulator.trial import load_estimator, run_trials, summarise, trial_seeds
+from simulator.trial import run_trials, summarise, trial_seeds
 
 FAST = Path(__file__).parent / "data" / "fast_thermometry.toml"
 REFERENCE = "simulator.analysis.reference:sideband_thermometry"
@@ -64,8 +65,8 @@ def test_failures_are_recorded_and_runs_resume_and_extend(scenario, tmp_path):
     first = run_trials(scenario, spec, 6, tmp_path, duration_s=0.01, workers=1,
                        progress=False)
     stored = {p.name: p.read_text() for p in (tmp_path / "trials").glob("*.json")}
-    assert len(stored) == 6
     failed = [i for i, e in first.errors]
+    assert failed and len(stored) == 6 - len(failed)  # only successes are kept
     assert all("deliberate failure" in e for _, e in first.errors)
     (q,) = first.quantities
     assert q.failures == len(failed) and q.trials == 6 - len(failed)
@@ -74,6 +75,7 @@ def test_failures_are_recorded_and_runs_resume_and_extend(scenario, tmp_path):
                       progress=False)
     for name, text in stored.items():  # finished trials kept, not recomputed
         assert (tmp_path / "trials" / name).read_text() == text
+    assert [i for i, _ in more.errors if i < 6] == failed  # failures tried again, same seeds
     np.testing.assert_array_equal(more.dataset["estimate"].values[:6],
                                   first.dataset["estimate"].values)
     with pytest.raises(InputError, match="different scenario"):
@@ -226,3 +228,40 @@ def test_the_window_kernel_in_the_model_removes_the_width_bias(scenario):
                   WindowedExpectation(fs, segment, "hann")):
         with pytest.raises(InputError, match="bins or window are not those"):
             measure_occupation(psd, cal, smear=wrong)
+
+
+@pytest.mark.parametrize("name, reason", [
+    ("exits", "the estimator called sys.exit(0)"),
+    ("ends_the_process", "ended with exit status 0 without returning a result"),
+    ("hangs", "no result within 1.5 s"),
+    ("runs_out_of_memory", "MemoryError: cannot allocate"),
+    ("returns_flags", "expected a pair of real numbers"),
+    ("returns_nan_for_one", "'broken' is (nan, 1.0); expected a finite value"),
+])
+def test_estimator_misbehaviour_makes_failed_trials_with_the_reason(scenario, tmp_path,
+                                                                    name, reason):
+    """The estimator runs in a child process per trial: exiting, hanging or
+    raising fails that trial (never the run, never silently), nothing failed
+    is stored, and a rerun tries the failed trials again."""
+    spec = f"tests.estimators_for_tests:{name}"
+    result = run_trials(scenario, spec, 2, tmp_path, duration_s=0.005, workers=1,
+                        progress=False, timeout_s=1.5)
+    assert [i for i, _ in result.errors] == [0, 1]
+    assert all(reason in e for _, e in result.errors), result.errors
+    assert list((tmp_path / "trials").glob("*.json")) == []
+    if name == "returns_nan_for_one":  # the good quantity is kept
+        assert [q.name for q in result.quantities] == ["level"]
+        assert result.quantities[0].trials == 2
+
+
+def test_estimator_that_exits_on_import_is_a_clear_error(tmp_path):
+    module = tmp_path / "quits.py"
+    module.write_text("import sys\nsys.exit(0)\n\ndef estimate(record):\n    return {}\n")
+    run = subprocess.run([sys.executable, "-m", "simulator", "trial", str(FAST),
+                          "--estimator", f"{module}:estimate", "--trials", "2",
+                          "--duration", "0.005", "--out", str(tmp_path / "out"),
+                          "--workers", "1", "--quiet"],
+                         capture_output=True, text=True, cwd=Path(__file__).parent.parent)
+    assert run.returncode == 2, run.stderr
+    assert "sys.exit(0)" in run.stderr and "Traceback" not in run.stderr
+    assert not (tmp_path / "out" / "trial.nc").exists()

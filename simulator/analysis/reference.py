@@ -14,10 +14,23 @@ from simulator.errors import InputError
 
 
 def record_psd(record, resolution_hz):
-    """Bartlett periodogram (boxcar window) of a public IQ record, in its own units."""
+    """Bartlett periodogram (boxcar window) of a public IQ record, in its own units.
+
+    Raises
+    ------
+    simulator.errors.InputError
+        Not an IQ record, or samples that are not all finite (a periodogram
+        would spread one NaN over every bin and every estimate).
+    """
     if record.kind != "iq":
         raise InputError(f"record kind {record.kind!r}: the sideband thermometry needs an "
                          "IQ (complex heterodyne) record")
+    finite = np.isfinite(record.samples)
+    if not finite.all():
+        raise InputError(f"the record holds {int(finite.size - finite.sum())} non-finite "
+                         f"samples (NaN or infinity; the first at index "
+                         f"{int(np.argmin(finite))} of {finite.size}); the sideband "
+                         "thermometry needs finite samples")
     fs = record.sample_rate_hz
     segment = int(2 ** np.ceil(np.log2(fs / resolution_hz)))
     return averaged_periodogram(record.samples, fs, segment_samples=segment, window="boxcar")

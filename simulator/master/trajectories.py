@@ -42,7 +42,8 @@ STEP_PHASE = 0.2  # solver step × largest |eigenvalue| of K = −iH − ½Σc�
 
 
 def master_records(system, seeds, *, duration_s=None, kind="full", step_phase=STEP_PHASE,
-                   steady=None, out=None, tolerance=DEFAULT_TOLERANCE, **steady_options):
+                   steady=None, out=None, overwrite=False, tolerance=DEFAULT_TOLERANCE,
+                   **steady_options):
     """One heterodyne record per seed from stochastic-master-equation trajectories.
 
     Parameters
@@ -65,6 +66,8 @@ def master_records(system, seeds, *, duration_s=None, kind="full", step_phase=ST
     out : sequence of path, optional
         One HDF5 file per seed (same format as ``noisechain record``); the
         records are kept in memory otherwise.
+    overwrite : bool
+        Replace existing files at ``out`` (by default it is an error).
     tolerance, **steady_options
         Passed to :func:`~simulator.master.steady.master_steady_state`.
 
@@ -117,7 +120,7 @@ def master_records(system, seeds, *, duration_s=None, kind="full", step_phase=ST
         plan.truth, occupation=tuple(m.occupation for m in steady.modes),
         cavity_occupation=steady.cavity.occupation)
     return [_write(dataclasses.replace(plan, seed=seed, form=FORM, truth=truth), trace,
-                   None if out is None else out[i])
+                   None if out is None else out[i], overwrite)
             for i, (seed, trace) in enumerate(zip(seeds, w, strict=True))]
 
 
@@ -128,7 +131,7 @@ def master_record(system, *, seed=None, out=None, **options):
     return master_records(system, [seed], out=None if out is None else [out], **options)[0]
 
 
-def _write(plan, trace, path):
+def _write(plan, trace, path, overwrite):
     from simulator import kernels
     from simulator.records import MemorySink
 
@@ -137,7 +140,7 @@ def _write(plan, trace, path):
     else:
         from simulator.recordfile import RecordFileWriter
 
-        sink = RecordFileWriter(path, plan)
+        sink = RecordFileWriter(path, plan, overwrite=overwrite)
     y = np.column_stack([trace.real, trace.imag])
     with sink:
         counts, clipped = kernels.Digitiser(plan)(np.ascontiguousarray(y))
