@@ -341,7 +341,6 @@ KNOWN_CYCLES = {
         "simulator.sweep_spec", "simulator.laser_noise", "simulator.model",
         "simulator.calibration_tone", "simulator.steady_state", "simulator.sidebands",
         "simulator.spectra", "simulator.budget"},
-    "run and commands": {"simulator.run", "simulator.commands"},
     "records, kernels and the record file": {
         "simulator.records", "simulator.kernels", "simulator.recordfile"},
 }

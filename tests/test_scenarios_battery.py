@@ -24,7 +24,6 @@ from simulator import cli
 from simulator.discretize import discretize
 from simulator.errors import OperatingPointError
 from simulator.inspection import inspect_scenario
-from simulator.model import linear_model
 from simulator.scenario import load_scenario, parse_scenario
 from simulator.sidebands import sideband_summary
 from simulator.spectra import adaptive_grid, photon_flux_density
@@ -170,7 +169,7 @@ def test_steady_state_is_physical(case):
     # states after them carry no commutator and are left out of the relation
     quantum = 2 + 2 * len(scenario.mechanics)
     assert uncertainty_margin(st.covariance[:quantum, :quantum]) > -1e-10
-    model = linear_model(scenario, report.point)
+    model = report.system.model
     assert stationary_under_exact_sampling(model, st.covariance) < 1e-9, path.name
     # the check can fail: a covariance 1 ppm too large is not stationary
     assert stationary_under_exact_sampling(model, st.covariance * (1 + 1e-6)) > 1e-8
@@ -186,7 +185,7 @@ def test_sideband_lines_are_found(case):
     if declared_expectation(path) == "unstable":
         assert_refused_as_unstable(sideband_summary, path, scenario, report)
         return
-    model = linear_model(scenario, report.point)
+    model = report.system.model
     grid = adaptive_grid(model)
     above = photon_flux_density(model, grid) - photon_flux_density(model, grid, floor=True)
     for s, mode in zip(sideband_summary(scenario), report.point.modes, strict=True):
