@@ -1,5 +1,5 @@
 """``python -m simulator`` runs the ``noisechain`` command line."""
 
-from simulator.cli import entry_point
+from simulator.cli.parser import entry_point
 
 entry_point()

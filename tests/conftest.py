@@ -4,7 +4,7 @@
 scenario in the resolved-sideband regime, and merges each keyword into the
 section of that name: a dict updates the section's keys (for ``mechanics`` it
 updates the first mode), a list of dicts replaces the whole array of modes.
-Everything goes through :func:`simulator.scenario.scenario_from_dict`, so the
+Everything goes through :func:`simulator.scenario.loader.scenario_from_dict`, so the
 loader checks every helper-made scenario exactly as it checks a file.
 
 ``scenario_with_coupling`` sets the drive power so that the intracavity field
@@ -28,7 +28,7 @@ import numpy as np
 import pytest
 import scipy.constants
 
-from simulator.scenario import scenario_from_dict
+from simulator.scenario.loader import scenario_from_dict
 
 REPO = Path(__file__).resolve().parents[1]
 DEMO = REPO / "simulator" / "data" / "demo.toml"

@@ -17,11 +17,12 @@ from simulator.analysis.calibration import (
 )
 from simulator.analysis.psd import PSDEstimate, averaged_periodogram
 from simulator.errors import InputError
-from simulator.operating_point import operating_point
-from simulator.records import plan_record, simulate_record
-from simulator.scenario import scenario_from_dict
-from simulator.spectra import heterodyne_spectrum, homodyne_spectrum
-from simulator.steady_state import steady_state
+from simulator.linear.spectra import heterodyne_spectrum, homodyne_spectrum
+from simulator.linear.steady_state import steady_state
+from simulator.model.operating_point import operating_point
+from simulator.records.generate import plan_record
+from simulator.scenario.loader import scenario_from_dict
+from simulator.workflows.record import simulate_record
 
 FS, SEGMENT = 2e6, 1 << 16
 BIN = FS / SEGMENT
@@ -88,7 +89,9 @@ def test_lines_are_the_reflected_modulation_sidebands():
     x_theta = np.array([np.cos(theta), np.sin(theta)]) @ reflected_tone(scenario, TONE_HZ)
     (line,) = hom.lines
     assert line.power == pytest.approx(eta * phi0**2 * abs(x_theta) ** 2 / 2, rel=1e-9)
-    text = het._csv_text()
+    from simulator.io.spectrumfile import csv_text
+
+    text = csv_text(het)
     assert "# line: calibration tone, upper (anti-Stokes side)" in text
 
 
@@ -189,8 +192,8 @@ def test_the_automatic_full_scale_makes_room_for_the_tone(kind):
     response."""
     from pathlib import Path
 
-    from simulator.calibration_tone import tone_amplitude, tone_signal
-    from simulator.scenario import load_scenario
+    from simulator.model.tone import tone_amplitude, tone_signal
+    from simulator.scenario.loader import load_scenario
 
     path = Path(__file__).parents[1] / "scenarios" / "membrane_phase_noise.toml"
     scenario = load_scenario(path)

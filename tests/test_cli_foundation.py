@@ -16,9 +16,9 @@ from pathlib import Path
 import pytest
 from conftest import DEMO, REPO, mode, run_cli, scenario_with_coupling
 
-from simulator.cli import main
-from simulator.inspection import inspect_scenario
-from simulator.scenario import load_scenario
+from simulator.cli.parser import main
+from simulator.scenario.loader import load_scenario
+from simulator.workflows.inspection import inspect_scenario
 
 HEAVY = ("qutip", "numba", "matplotlib", "xarray", "h5py", "dask")
 
@@ -179,7 +179,7 @@ def test_cli_does_not_load_heavy_libraries():
     # numba, matplotlib (nor the file-format libraries): DEVELOPERS.md, "Set-up".
     code = (
         "import sys, contextlib, io\n"
-        "from simulator.cli import main\n"
+        "from simulator.cli.parser import main\n"
         "with contextlib.redirect_stdout(io.StringIO()):\n"
         f"    main(['check', {str(DEMO)!r}])\n"
         f"    main(['inspect', {str(DEMO)!r}, '--json'])\n"

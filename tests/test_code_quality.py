@@ -20,8 +20,8 @@ from pathlib import Path
 import pytest
 
 import simulator
-from simulator import schema
-from simulator.scenario import Scenario
+from simulator.scenario import schema
+from simulator.scenario.loader import Scenario
 
 PACKAGE_DIR = Path(simulator.__file__).parent
 
@@ -140,50 +140,55 @@ def test_every_public_function_has_a_docstring(name):
 
 # -- import discipline ------------------------------------------------------------
 #
-# DEVELOPERS.md: "Physics modules never import matplotlib, the CLI or file
-# formats." Every module of the package is a physics module except the edges
-# listed here, so a new module is checked without touching this test.
+# The package reads as the pipeline (docs/architecture.md): scenario → model →
+# linear and records → master and analysis; io and report at the edges;
+# workflows and the command line on top. A module imports only from its own
+# stage or the stages below it, and the physics stages never import the edges
+# or the libraries that belong to them.
 
-EDGE_MODULES = {
-    "simulator.__main__": "command-line entry point",
-    "simulator.cli": "command line: parser and exit statuses",
-    "simulator.commands": "command line: one function per verb",
-    "simulator.plots": "figures (matplotlib)",
-    "simulator.sweep_plots": "figures of a sweep (matplotlib)",
-    "simulator.report": "the self-contained HTML report",
-    "simulator.trial_report": "HTML report and figures of the validation harness",
-    "simulator.recordfile": "file format: one HDF5 record file (h5py)",
-    "simulator.run": "workflow: everything a scenario asks for, with its report",
-    "simulator.sweep": "workflow: sweeps into a NetCDF dataset (xarray)",
-    "simulator.trial": "workflow: the validation harness and its NetCDF output",
-    "simulator.tasks": "workflow: the resumable task runner, with a progress bar",
-    "simulator.inspection": "workflow: the report behind `noisechain inspect`",
-    "simulator.demo": "the bundled demo",
+LAYERS = {  # package → rank; a module may import packages of the same or a lower rank
+    "simulator.errors": 0,
+    "simulator.data": 0,
+    "simulator.scenario": 1,
+    "simulator.model": 2,
+    "simulator.linear": 3,
+    "simulator.records": 4,
+    "simulator.master": 5,
+    "simulator.analysis": 5,
+    "simulator.io": 6,
+    "simulator.report": 6,
+    "simulator.workflows": 7,
+    "simulator.cli": 8,
+    "simulator.__main__": 9,
+    "simulator": 0,  # the package face: __version__ and lazy names, nothing imported at load
 }
+PHYSICS = ("simulator.scenario", "simulator.model", "simulator.linear", "simulator.records",
+           "simulator.master", "simulator.analysis")
 
 # What a physics module must not import, by why.
 FORBIDDEN = {
-    "plotting": ("matplotlib", "simulator.plots", "simulator.sweep_plots"),
-    "the command line": ("simulator.cli", "simulator.commands", "simulator.__main__"),
-    "file formats": ("h5py", "xarray", "netCDF4", "h5netcdf", "simulator.recordfile"),
+    "plotting": ("matplotlib", "simulator.report"),
+    "the command line": ("simulator.cli", "simulator.__main__"),
+    "file formats": ("h5py", "xarray", "netCDF4", "h5netcdf", "simulator.io"),
     "terminal display": ("tqdm", "rich"),
-    "HTML": ("html", "simulator.report", "simulator.trial_report"),
+    "HTML": ("html",),
+    "workflows": ("simulator.workflows",),
 }
 
-# Physics modules that import an edge today: each (module, import) with its
-# reason. All are to be removed by the restructure into sub-packages; the test
-# below fails when one is no longer needed, so that this list only shrinks.
-RESTRUCTURE = "to be removed by the restructure into sub-packages"
-KNOWN_EXCEPTIONS = {
-    ("simulator.records", "tqdm"):
-        f"progress bar of generate(progress=True), imported lazily; {RESTRUCTURE}",
-    ("simulator.records", "simulator.recordfile"):
-        f"simulate_record(out=...) writes and Record reads HDF5, lazily; {RESTRUCTURE}",
-    ("simulator.master.trajectories", "simulator.recordfile"):
-        f"master_records writes record files, lazily; {RESTRUCTURE}",
-    ("simulator.spectrum", "xarray"):
-        f"Spectrum.to_dataset and save write NetCDF, lazily; {RESTRUCTURE}",
+# The one hand-off the design allows: a result type that saves itself by
+# passing itself to io (the formats live there), imported when called.
+ALLOWED_HANDOFFS = {
+    ("simulator.linear.spectrum", "simulator.io.spectrumfile"):
+        "Spectrum.save hands off to io.spectrumfile.save_spectrum",
 }
+
+
+def layer_of(module):
+    """The package ``module`` belongs to, as a key of LAYERS."""
+    parts = module.split(".")
+    while parts and ".".join(parts) not in LAYERS:
+        parts.pop()
+    return ".".join(parts)
 
 
 def module_files():
@@ -198,7 +203,7 @@ def module_files():
 
 
 MODULE_FILES = module_files()
-PHYSICS_MODULES = sorted(set(MODULE_FILES) - set(EDGE_MODULES))
+PHYSICS_MODULES = sorted(m for m in MODULE_FILES if layer_of(m) in PHYSICS)
 
 
 def imported_names(source, module):
@@ -227,50 +232,70 @@ def imported_names(source, module):
 def edge_imports(source, module):
     """(forbidden name, why) for every edge that ``source`` imports."""
     imported = imported_names(source, module)
-    return sorted({(f, why) for why, group in FORBIDDEN.items() for f in group
-                   for m in imported if m == f or m.startswith(f + ".")})
+    found = {(_module_of(m), why) for why, group in FORBIDDEN.items() for f in group
+             for m in imported if m == f or m.startswith(f + ".")}
+    # `from simulator.io import files` names the package too: report the module only
+    return sorted((m, why) for m, why in found
+                  if not any(o.startswith(m + ".") for o, _ in found))
 
 
-def test_the_edge_list_names_real_modules():
-    missing = sorted(set(EDGE_MODULES) - set(MODULE_FILES))
-    assert not missing, f"edge modules that do not exist (renamed?): {missing}"
-    assert len(PHYSICS_MODULES) >= 30 and "simulator.records" in PHYSICS_MODULES
+def _module_of(name):
+    """The module (not the name inside it) that an imported dotted name refers to."""
+    parts = name.split(".")
+    while len(parts) > 1 and ".".join(parts) not in MODULE_FILES:
+        parts.pop()
+    return ".".join(parts) if parts[0] == "simulator" else name.split(".")[0]
+
+
+def test_every_module_has_a_layer():
+    unplaced = sorted(m for m in MODULE_FILES if not layer_of(m))
+    assert not unplaced, f"modules outside every layer of LAYERS: {unplaced}"
+    assert len(PHYSICS_MODULES) >= 30 and "simulator.records.generate" in PHYSICS_MODULES
 
 
 @pytest.mark.parametrize("name", PHYSICS_MODULES)
 def test_physics_modules_do_not_import_the_edges(name):
     found = edge_imports(MODULE_FILES[name].read_text(encoding="utf-8"), name)
-    bad = [f"{f} ({why})" for f, why in found if (name, f) not in KNOWN_EXCEPTIONS]
+    bad = [f"{f} ({why})" for f, why in found if (name, f) not in ALLOWED_HANDOFFS]
     assert not bad, (f"{name} is a physics module but imports {', '.join(bad)}; move that "
-                     "code to an edge module (command line, plots, report, file format or "
-                     "workflow)")
+                     "code to an edge (command line, report, io or workflows)")
 
 
-@pytest.mark.parametrize("name, edge", sorted(KNOWN_EXCEPTIONS))
-def test_every_listed_exception_is_still_needed(name, edge):
+@pytest.mark.parametrize("name", sorted(MODULE_FILES))
+def test_imports_point_down_the_pipeline(name):
+    rank = LAYERS[layer_of(name)]
+    allowed = {edge for module, edge in ALLOWED_HANDOFFS if module == name}
+    imported = {layer_of(m) for m in imported_names(MODULE_FILES[name].read_text(
+        encoding="utf-8"), name) if m.split(".")[0] == "simulator"
+        and not any(m == a or m.startswith(a + ".") or a.startswith(m + ".") for a in allowed)}
+    upward = sorted(m for m in imported if m and LAYERS[m] > rank)
+    assert not upward, (f"{name} (layer {layer_of(name)}) imports {', '.join(upward)}, "
+                        "a later stage of the pipeline")
+
+
+@pytest.mark.parametrize("name, edge", sorted(ALLOWED_HANDOFFS))
+def test_every_allowed_handoff_is_still_there(name, edge):
     found = {f for f, _ in edge_imports(MODULE_FILES[name].read_text(encoding="utf-8"), name)}
-    assert edge in found, (f"{name} no longer imports {edge}: remove it from "
-                           "KNOWN_EXCEPTIONS")
+    assert edge in found, f"{name} no longer imports {edge}: remove it from ALLOWED_HANDOFFS"
 
 
 def test_the_import_check_can_fail():
     planted = ("import numpy as np\n"
                "def draw():\n"
                "    import matplotlib.pyplot as plt\n"
-               "    from simulator.cli import main\n"
-               "    from simulator import recordfile\n"
+               "    from simulator.cli.parser import main\n"
+               "    from simulator.io import recordfile\n"
                "    from tqdm import tqdm\n")
     found = [f for f, _ in edge_imports(planted, "simulator.planted")]
-    assert found == ["matplotlib", "simulator.cli", "simulator.recordfile", "tqdm"]
-    assert edge_imports("from .report import page\n", "simulator.planted") == [
-        ("simulator.report", "HTML")]
+    assert found == ["matplotlib", "simulator.cli.parser", "simulator.io.recordfile", "tqdm"]
+    assert edge_imports("from ..report import html\n", "simulator.linear.planted") == [
+        ("simulator.report.html", "plotting")]
 
 
 # -- import cycles ------------------------------------------------------------------
 #
 # A module graph without cycles can be read, tested and split from the bottom
-# up. The cycles of today are listed, each an expected failure until the
-# restructure into sub-packages removes it; any other cycle fails at once.
+# up; any cycle fails.
 
 def import_graph(files):
     """Module → set of package modules it imports (inside functions too)."""
@@ -335,31 +360,9 @@ def package_graph():
                          for name, path in MODULE_FILES.items()})
 
 
-KNOWN_CYCLES = {
-    "loader, laser noise and its consumers": {
-        "simulator.scenario", "simulator.schema", "simulator.sections",
-        "simulator.sweep_spec", "simulator.laser_noise", "simulator.model",
-        "simulator.calibration_tone", "simulator.steady_state", "simulator.sidebands",
-        "simulator.spectra", "simulator.budget"},
-    "records, kernels and the record file": {
-        "simulator.records", "simulator.kernels", "simulator.recordfile"},
-}
-
-
-def test_no_import_cycle_beyond_the_known_ones():
-    new = [c for c in import_cycles(package_graph())
-           if not any(set(c) <= known for known in KNOWN_CYCLES.values())]
-    assert not new, f"new import cycles: {new}"
-
-
-@pytest.mark.parametrize("name", [
-    pytest.param(name, marks=pytest.mark.xfail(
-        strict=True, reason=f"known import cycle today, {RESTRUCTURE}: "
-                            + " ↔ ".join(sorted(modules))))
-    for name, modules in KNOWN_CYCLES.items()])
-def test_import_graph_has_no_cycle(name):
-    tangled = [c for c in import_cycles(package_graph()) if len(set(c) & KNOWN_CYCLES[name]) > 1]
-    assert not tangled, f"import cycle ({name}): {tangled}"
+def test_import_graph_has_no_cycle():
+    cycles = import_cycles(package_graph())
+    assert not cycles, f"import cycles: {cycles}"
 
 
 def test_the_cycle_finder_can_fail():

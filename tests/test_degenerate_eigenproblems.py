@@ -27,12 +27,12 @@ import pytest
 from conftest import mode, scenario_with_coupling
 from test_record_recursions import MODE_SETS, chain_scenario
 
-from simulator.model import linear_model
-from simulator.operating_point import operating_point
-from simulator.records import plan_record
-from simulator.sidebands import sideband_summary
-from simulator.statespace import Resolvent
-from simulator.steady_state import mode_eigenvalues
+from simulator.linear.sidebands import sideband_summary
+from simulator.linear.steady_state import mode_eigenvalues
+from simulator.model.operating_point import operating_point
+from simulator.model.optomechanics import linear_model
+from simulator.model.statespace import Resolvent
+from simulator.records.generate import plan_record
 
 KAPPA_HZ, OMEGA_HZ, GAMMA_HZ = 200e3, 1e6, 30.0
 

@@ -20,11 +20,11 @@ import numpy as np
 import pytest
 from conftest import mode, scenario_with_coupling
 
-from simulator.chain import automatic_sample_rate
-from simulator.discretize import discretize, innovations_form, noise_factor
-from simulator.scenario import scenario_from_dict
-from simulator.statespace import StateSpace
-from simulator.system import System
+from simulator.model.chain import automatic_sample_rate
+from simulator.model.statespace import StateSpace
+from simulator.model.system import System
+from simulator.records.discretize import discretize, innovations_form, noise_factor
+from simulator.scenario.loader import scenario_from_dict
 
 
 def ou_model(gamma, intensity, feedthrough):

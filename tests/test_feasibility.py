@@ -13,8 +13,8 @@ import pytest
 from simulator.analysis.feasibility import asymmetry_time, fisher_matrix, occupation_bound
 from simulator.analysis.psd import PSDEstimate
 from simulator.analysis.thermometry import Calibration, cavity_filter, measure_occupation
-from simulator.demo import demo_scenario
-from simulator.system import System
+from simulator.model.system import System
+from simulator.workflows.demo import demo_scenario
 
 
 @pytest.fixture(scope="module")
@@ -61,8 +61,8 @@ def test_matrix_fisher_formula_reduces_to_the_scalar_one_for_resolved_sidebands(
     the scalar Whittle formula ∫(∂S_z/S_z)² over the I + iQ spectrum (Whittle,
     Ark. Mat. 2, 423 (1953)); with resolved sidebands the record is nearly
     circular, so the two agree to better than 1 %. The scalar route uses the
-    independent analytic heterodyne spectrum of simulator.spectra."""
-    from simulator.spectra import adaptive_grid, heterodyne_spectrum
+    independent analytic heterodyne spectrum of simulator.linear.spectra."""
+    from simulator.linear.spectra import adaptive_grid, heterodyne_spectrum
 
     path = "mechanics[0].bath_temperature_k"
     system = System(scenario).require_stable()

@@ -11,18 +11,19 @@ import numpy as np
 import pytest
 from conftest import make_scenario, mode, scenario_with_coupling
 
-from simulator import laser_noise, weak_coupling
 from simulator.analysis.fitting import fit_whittle
 from simulator.analysis.psd import averaged_periodogram
 from simulator.errors import ScenarioError
-from simulator.inspection import inspect_scenario
-from simulator.laser_effects import without_laser_noise
-from simulator.operating_point import operating_point
-from simulator.scenario import scenario_from_dict
-from simulator.sidebands import sideband_summary
-from simulator.spectra import heterodyne_spectrum, photon_flux_density, state_spectrum
-from simulator.steady_state import steady_state
-from simulator.system import System
+from simulator.linear import weak_coupling
+from simulator.linear.laser_effects import without_laser_noise
+from simulator.linear.sidebands import sideband_summary
+from simulator.linear.spectra import heterodyne_spectrum, photon_flux_density, state_spectrum
+from simulator.linear.steady_state import steady_state
+from simulator.model import laser_noise
+from simulator.model.operating_point import operating_point
+from simulator.model.system import System
+from simulator.scenario.loader import scenario_from_dict
+from simulator.workflows.inspection import inspect_scenario
 
 FLOOR = {"floor_rad2_per_hz": 1e-14, "floor_low_hz": 1e6, "floor_high_hz": 1e8}
 PEAK = {"peak_rad2_per_hz": 1e-10, "peak_frequency_hz": 1e6, "peak_width_hz": 1e5}

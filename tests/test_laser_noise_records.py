@@ -9,7 +9,8 @@ import numpy as np
 import pytest
 from test_records import FS, SAMPLES, SEGMENT, Z_LIMIT, expected_welch, gof_z, halves, make, welch
 
-from simulator.records import plan_record, simulate_record
+from simulator.records.generate import plan_record
+from simulator.workflows.record import simulate_record
 
 NOISE = {"phase_noise": {"linewidth_hz": 1.0, "floor_rad2_per_hz": 1e-12,
                          "floor_low_hz": 2e4, "floor_high_hz": 3e6,

@@ -16,13 +16,13 @@ import pytest
 from conftest import mode, scenario_with_coupling
 
 from simulator.errors import InputError
+from simulator.linear.spectra import FLOOR, HETERODYNE_AXIS, SHOT_NOISE_UNITS, photon_flux_density
+from simulator.linear.steady_state import steady_state
 from simulator.master.hilbert import build_model, displaced_thermal_cutoff
 from simulator.master.liouvillian import LindbladSolver
 from simulator.master.spectra import master_heterodyne_spectrum, output_flux_density
 from simulator.master.steady import master_steady_state
-from simulator.spectra import FLOOR, HETERODYNE_AXIS, SHOT_NOISE_UNITS, photon_flux_density
-from simulator.steady_state import steady_state
-from simulator.system import System
+from simulator.model.system import System
 
 # Weak-coupling scenarios (g/κ ≤ 0.1), small occupations so the Fock spaces stay small.
 WEAK = {
@@ -177,7 +177,7 @@ def test_classical_laser_noise_is_refused_not_ignored():
     """The master engine has no classical noise inputs: a scenario with laser
     noise or a tone is refused with the tables named, never compared silently
     with a noise-free model."""
-    from simulator.scenario import scenario_from_dict
+    from simulator.scenario.loader import scenario_from_dict
 
     data = scenario_with_coupling(**WEAK["blue side, stable"]).to_dict()
     data["drive"]["intensity_noise"] = {"relative_intensity_noise_per_hz": 1e-14}

@@ -17,12 +17,12 @@ import pytest
 import scipy.constants
 from conftest import make_scenario, mode, power_for_photon_number
 
+from simulator.linear.spectra import photon_flux_density
+from simulator.linear.steady_state import steady_state
 from simulator.master.spectra import carrier_flux, output_flux_density
 from simulator.master.steady import master_steady_state
-from simulator.operating_point import operating_point
-from simulator.spectra import photon_flux_density
-from simulator.steady_state import steady_state
-from simulator.system import System
+from simulator.model.operating_point import operating_point
+from simulator.model.system import System
 
 F_DRIVE = 2.8e14
 

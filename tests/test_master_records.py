@@ -17,6 +17,7 @@ from simulator.errors import InputError
 from simulator.master.spectra import output_flux_density
 from simulator.master.steady import master_steady_state
 from simulator.master.trajectories import FORM, master_records
+from simulator.workflows.record import master_records_to_files
 
 FS = 10e6
 
@@ -56,9 +57,9 @@ def test_averaged_welch_spectrum_of_records_matches_master_spectrum(tmp_path):
     up, down = (f > 1.2e6) & (f < 2.8e6), (f < -1.2e6) & (f > -2.8e6)
     assert periodograms[:, up].mean() > periodograms[:, down].mean()
     # the same trajectories written to files in the record format, same bits
-    from simulator.recordfile import load_record
+    from simulator.io.recordfile import load_record
 
-    written = master_records(sc, [0, 1], duration_s=2e-5, steady=steady, out=paths)
+    written = master_records_to_files(sc, [0, 1], paths, duration_s=2e-5, steady=steady)
     loaded = load_record(paths[1])
     np.testing.assert_array_equal(loaded.counts, records[1].counts)
     assert loaded.truth.occupation[0] == pytest.approx(steady.modes[0].occupation)
@@ -83,7 +84,7 @@ def test_cli_record_engine_master(tmp_path):
 
     from conftest import run_cli
 
-    from simulator.recordfile import load_record
+    from simulator.io.recordfile import load_record
 
     path = tmp_path / "s.toml"
     path.write_text(scenario().to_toml())

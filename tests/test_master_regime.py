@@ -19,7 +19,7 @@ import scipy.constants
 from conftest import DEMO, REPO, make_scenario, mode, run_cli
 
 from simulator.master.regime import MARGINAL, NONLINEAR, regime_checks, regime_verdict
-from simulator.operating_point import operating_point
+from simulator.model.operating_point import operating_point
 
 
 def test_demo_scenario_is_linear():
@@ -68,7 +68,7 @@ def test_single_photon_scenario_is_flagged_by_the_polaron_shift():
 
 
 def test_plain_inspect_and_help_do_not_import_qutip():
-    code = ("import sys\nfrom simulator.cli import main\n"
+    code = ("import sys\nfrom simulator.cli.parser import main\n"
             f"main(['inspect', {str(DEMO)!r}])\n"
             "assert 'qutip' not in sys.modules, 'inspect imported qutip'\n"
             "try:\n    main(['--help'])\nexcept SystemExit:\n    pass\n"
@@ -129,7 +129,7 @@ def test_inspect_master_json_sets_master_beside_linear(tmp_path):
 
 def test_master_too_large_is_a_clear_input_error(tmp_path):
     """The demo device barely driven keeps thousands of thermal phonons."""
-    from simulator.scenario import load_scenario
+    from simulator.scenario.loader import load_scenario
 
     path = tmp_path / "warm.toml"
     path.write_text(load_scenario(DEMO).replace("drive.power_w", 1e-12).to_toml())

@@ -1,7 +1,7 @@
 """Operating point: photon number, static shift, bistability, per-mode quantities.
 
 Reference values are computed here from the textbook relations, independently
-of ``simulator.operating_point``:
+of ``simulator.model.operating_point``:
 
 * driven cavity: n̄ = κ_ex Φ / (κ²/4 + Δ²), Φ = P/(hf) (common practice;
   Aspelmeyer, Kippenberg, Marquardt, Rev. Mod. Phys. 86, 1391 (2014),
@@ -29,9 +29,9 @@ from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 from scipy.optimize import brentq
 
-from simulator.inspection import inspect_scenario
-from simulator.operating_point import bath_occupation, operating_point
-from simulator.physics import bose_einstein
+from simulator.model.operating_point import bath_occupation, operating_point
+from simulator.model.units import bose_einstein
+from simulator.workflows.inspection import inspect_scenario
 
 TWO_PI = 2 * math.pi
 

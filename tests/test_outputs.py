@@ -24,10 +24,10 @@ import numpy as np
 import pytest
 from conftest import DEMO, REPO
 
-from simulator import cli
-from simulator.files import AtomicFile, FolderLock, OutputError, atomic_write_text
-from simulator.scenario import parse_scenario
-from simulator.sweep import run_sweep
+from simulator.cli import parser as cli
+from simulator.io.files import AtomicFile, FolderLock, OutputError, atomic_write_text
+from simulator.scenario.loader import parse_scenario
+from simulator.workflows.sweep import run_sweep
 
 BASE = (Path(__file__).parent / "data" / "sweep_base.toml").read_text()
 SWEEP = BASE + """
@@ -50,7 +50,7 @@ def noisechain(*args, limit_bytes=None):
 
 
 def test_new_files_get_the_permissions_of_the_umask(tmp_path):
-    code = ("import os, sys\nos.umask(0o027)\nfrom simulator.files import atomic_write_text\n"
+    code = ("import os, sys\nos.umask(0o027)\nfrom simulator.io.files import atomic_write_text\n"
             "atomic_write_text(sys.argv[1], 'x')\n")
     subprocess.run([sys.executable, "-c", code, str(tmp_path / "a.txt")], check=True,
                    cwd=REPO, env=ENV)

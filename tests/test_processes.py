@@ -14,7 +14,7 @@ from pathlib import Path
 import pytest
 from conftest import DEMO, REPO
 
-from simulator.files import HOST
+from simulator.io.files import HOST
 
 BASE = (Path(__file__).parent / "data" / "sweep_base.toml").read_text()
 LONG_SWEEP = BASE + """

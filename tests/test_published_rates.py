@@ -27,8 +27,8 @@ import numpy as np
 import pytest
 from conftest import mode, scenario_with_coupling
 
-from simulator.steady_state import effective_mechanics, steady_state
-from simulator.system import System
+from simulator.linear.steady_state import effective_mechanics, steady_state
+from simulator.model.system import System
 
 KAPPA = 1e6  # Hz; every case below is scaled to this cavity linewidth
 

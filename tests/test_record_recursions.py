@@ -10,9 +10,9 @@ deterministic computations of the same numbers.
   up to an exceptional point), the output autocovariance of each recursion
   the record generator can run — full state, dense innovations and modal
   innovations — equals the sampled model's autocovariance
-  (:meth:`simulator.discretize.DiscreteModel.autocovariance`) at lags 0 … L,
+  (:meth:`simulator.records.discretize.DiscreteModel.autocovariance`) at lags 0 … L,
   computed from the matrices the kernel multiplies
-  (:class:`simulator.kernels.Recursion`), and its outputs are stationary from
+  (:class:`simulator.records.kernels.Recursion`), and its outputs are stationary from
   the first sample (the full state form's state too).
 - The numba kernel runs exactly those matrices: its output equals a plain
   numpy evaluation of the same recursion from the same start and normals.
@@ -34,16 +34,16 @@ from conftest import mode, scenario_with_coupling
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from simulator.discretize import (
+from simulator.records.discretize import (
     MODAL_RECONSTRUCTION_RTOL,
     discretize,
     innovations_form,
     modal_form,
     modal_reconstruction_error,
 )
-from simulator.kernels import NormalBlocks, stepper
-from simulator.records import plan_record
-from simulator.scenario import scenario_from_dict
+from simulator.records.generate import plan_record
+from simulator.records.kernels import NormalBlocks, stepper
+from simulator.scenario.loader import scenario_from_dict
 
 LAGS = 48
 RTOL = 1e-10  # relative to the largest entry of R(0)

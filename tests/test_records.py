@@ -28,8 +28,9 @@ import pytest
 from conftest import mode, scenario_with_coupling
 from scipy import signal, special
 
-from simulator.records import MemorySink, generate, plan_record, simulate_record
-from simulator.scenario import scenario_from_dict
+from simulator.records.generate import MemorySink, generate, plan_record
+from simulator.scenario.loader import scenario_from_dict
+from simulator.workflows.record import simulate_record
 
 FS = 2e6
 SEGMENT = 1024
@@ -345,7 +346,7 @@ def test_coarse_digitiser_is_warned_about():
     """Two bits over the automatic ±8σ range: the step is 4σ, the rounding
     variance Δ²/12 exceeds the signal's and the Δ²/12 model itself fails
     (Widrow and Kollár 2008, Ch. 4); the record says so. 16 bits: silence."""
-    from simulator.records import RecordWarning, quantisation_share
+    from simulator.records.generate import RecordWarning, quantisation_share
 
     scenario = make(samples=4096)
     assert quantisation_share(plan_record(scenario.replace("digitizer.bits", 2))) == (

@@ -8,7 +8,7 @@
   looks complete;
 - clipping is counted and warned about;
 - the ideal chain's spectrum is the heterodyne (homodyne) spectrum of
-  simulator.spectra;
+  simulator.linear.spectra;
 - bad input is refused with errors that name the input.
 """
 
@@ -26,12 +26,15 @@ from conftest import REPO, run_cli
 from scipy import signal
 from test_records import make as make_scenario
 
-from simulator import cli, load_record
+from simulator import load_record
+from simulator.cli import parser as cli
 from simulator.errors import InputError, ScenarioError
-from simulator.records import BLOCK_SAMPLES, RecordWarning, simulate_record
-from simulator.scenario import load_scenario
-from simulator.steady_state import steady_state
-from simulator.system import System
+from simulator.linear.steady_state import steady_state
+from simulator.model.system import System
+from simulator.records.generate import RecordWarning
+from simulator.records.kernels import BLOCK_SAMPLES
+from simulator.scenario.loader import load_scenario
+from simulator.workflows.record import simulate_record
 
 FS = 2e6
 
@@ -130,7 +133,7 @@ def test_if_record_file_is_real(tmp_path):
 
 
 def test_exception_midway_leaves_nothing(tmp_path, monkeypatch):
-    from simulator import kernels
+    from simulator.records import kernels
 
     calls = []
 
@@ -153,8 +156,8 @@ def test_exception_midway_leaves_nothing(tmp_path, monkeypatch):
 
 KILL_SCRIPT = """
 import sys
-from simulator.records import simulate_record
-from simulator.scenario import load_scenario
+from simulator.workflows.record import simulate_record
+from simulator.scenario.loader import load_scenario
 s = load_scenario(sys.argv[1])
 simulate_record(s, duration_s=60.0, out=sys.argv[2], chunk_samples=20000)
 """
@@ -207,11 +210,11 @@ def test_clipping_is_counted_and_warned():
 
 def test_ideal_chain_spectrum_is_the_heterodyne_and_homodyne_spectrum():
     """For ideal electronics (no current noise, no filter, no amplifier) the
-    chain's record spectrum in shot-noise units equals simulator.spectra's
+    chain's record spectrum in shot-noise units equals simulator.linear.spectra's
     S_het(ν) = 1 + η N_out(ν) (iq; and, for a real if photocurrent, S_het at ν
     plus its image band) and S_hom(f) = 1 + η (2 S̄_θθ − 1) (both built from
     the same linear model by a different route)."""
-    spectra = pytest.importorskip("simulator.spectra")
+    spectra = pytest.importorskip("simulator.linear.spectra")
     scenario = make(detection={"efficiency": 0.7})
     nu = np.linspace(-1.5e6, 1.5e6, 301)
     np.testing.assert_allclose(System(scenario).chain.record_spectrum(nu),
@@ -314,7 +317,7 @@ def test_load_record_names_the_file_and_what_is_wrong(tmp_path, damage, words):
 
 def test_reference_thermometry_refuses_non_finite_samples():
     from simulator.analysis.reference import sideband_thermometry
-    from simulator.estimator import public_view
+    from simulator.workflows.estimator import public_view
 
     record = public_view(simulate_record(make(samples=4096), seed=2))
     record.samples[100] = np.nan

@@ -16,9 +16,9 @@ from conftest import make_scenario, run_cli, scenario_dict
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from simulator.cli import main
+from simulator.cli.parser import main
 from simulator.errors import InputError, ScenarioError
-from simulator.scenario import (
+from simulator.scenario.loader import (
     Scenario,
     load_scenario,
     parse_scenario,

@@ -20,15 +20,15 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from simulator import cli
-from simulator.discretize import discretize
+from simulator.cli import parser as cli
 from simulator.errors import OperatingPointError
-from simulator.inspection import inspect_scenario
-from simulator.scenario import load_scenario, parse_scenario
-from simulator.sidebands import sideband_summary
-from simulator.spectra import adaptive_grid, photon_flux_density
-from simulator.steady_state import steady_state
-from simulator.sweep import sweep_points
+from simulator.linear.sidebands import sideband_summary
+from simulator.linear.spectra import adaptive_grid, photon_flux_density
+from simulator.linear.steady_state import steady_state
+from simulator.records.discretize import discretize
+from simulator.scenario.loader import load_scenario, parse_scenario
+from simulator.workflows.inspection import inspect_scenario
+from simulator.workflows.sweep import sweep_points
 
 SCENARIO_DIR = Path(__file__).resolve().parents[1] / "scenarios"
 DEMO = Path(str(resources.files("simulator.data").joinpath("demo.toml")))
@@ -91,7 +91,7 @@ def stationary_under_exact_sampling(model, v):
     Anderson and Moore, Optimal Filtering (1979), Ch. 4, citation from
     memory). Φ and Q come from Van Loan's block matrix exponential
     (Van Loan, IEEE Trans. Autom. Control 23, 395 (1978)) in
-    :func:`simulator.discretize.discretize`, a computation independent of
+    :func:`simulator.records.discretize.discretize`, a computation independent of
     the Lyapunov solver that gave V (it only reads V's diagonal to pick
     power-of-two scales, an exact similarity). Two intervals: the fastest
     time of the drift (Φ near 1, Q a small increment) and the slowest decay

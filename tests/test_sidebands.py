@@ -4,10 +4,10 @@ import numpy as np
 import pytest
 from conftest import mode, scenario_with_coupling
 
-from simulator import spectra
-from simulator.demo import demo_scenario
-from simulator.sidebands import cavity_filter, sideband_summary
-from simulator.system import System
+from simulator.linear import spectra
+from simulator.linear.sidebands import cavity_filter, sideband_summary
+from simulator.model.system import System
+from simulator.workflows.demo import demo_scenario
 
 
 def _weak(n_bath, *, external=1e6, g_hz=1e4):

@@ -13,13 +13,13 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from scipy import constants
 
-from simulator import budget, spectra
-from simulator.demo import demo_scenario
 from simulator.errors import InputError, OperatingPointError
-from simulator.physics import angular
-from simulator.sidebands import cavity_filter, sideband_summary
-from simulator.steady_state import effective_mechanics
-from simulator.system import System
+from simulator.linear import budget, spectra
+from simulator.linear.sidebands import cavity_filter, sideband_summary
+from simulator.linear.steady_state import effective_mechanics
+from simulator.model.system import System
+from simulator.model.units import angular
+from simulator.workflows.demo import demo_scenario
 
 U_HET = np.array([1.0, 1.0j]) / np.sqrt(2.0)
 

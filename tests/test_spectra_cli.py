@@ -10,10 +10,10 @@ import numpy as np
 import pytest
 from conftest import DEMO, mode, run_cli, scenario_with_coupling
 
-from simulator.cli import main
-from simulator.demo import demo_scenario
-from simulator.sidebands import sideband_summary
-from simulator.spectra import heterodyne_spectrum
+from simulator.cli.parser import main
+from simulator.linear.sidebands import sideband_summary
+from simulator.linear.spectra import heterodyne_spectrum
+from simulator.workflows.demo import demo_scenario
 
 
 def _strict(text):

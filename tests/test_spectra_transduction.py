@@ -8,12 +8,12 @@ from hypothesis import strategies as st
 from scipy import constants
 from scipy.optimize import minimize_scalar
 
-from simulator import spectra
-from simulator import transduction as tr
-from simulator.demo import demo_scenario
 from simulator.errors import InputError, OperatingPointError
-from simulator.physics import HBAR, angular
-from simulator.system import System
+from simulator.linear import referral as tr
+from simulator.linear import spectra
+from simulator.model.system import System
+from simulator.model.units import HBAR, angular
+from simulator.workflows.demo import demo_scenario
 
 MASS, FM, GM = 1e-12, 2e6, 10.0
 

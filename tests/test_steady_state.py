@@ -38,11 +38,11 @@ from hypothesis import strategies as st
 from scipy.integrate import solve_ivp
 
 from simulator.errors import OperatingPointError
-from simulator.model import linear_model
-from simulator.operating_point import operating_point
-from simulator.stability import stability
-from simulator.steady_state import steady_state
-from simulator.system import System
+from simulator.linear.steady_state import steady_state
+from simulator.model.operating_point import operating_point
+from simulator.model.optomechanics import linear_model
+from simulator.model.stability import stability
+from simulator.model.system import System
 
 TWO_PI = 2 * math.pi
 

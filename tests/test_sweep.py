@@ -13,9 +13,9 @@ import pytest
 import xarray as xr
 
 from simulator.errors import InputError, ScenarioError
-from simulator.scenario import parse_scenario
-from simulator.steady_state import steady_state
-from simulator.sweep import evaluate_point, run_sweep, sweep_axes, sweep_points
+from simulator.linear.steady_state import steady_state
+from simulator.scenario.loader import parse_scenario
+from simulator.workflows.sweep import evaluate_point, run_sweep, sweep_axes, sweep_points
 
 BASE = (Path(__file__).parent / "data" / "sweep_base.toml").read_text()
 
@@ -117,7 +117,7 @@ def test_stored_points_are_strict_json_and_read_back_exactly(tmp_path):
     numbers, so a resumed sweep equals a fresh one."""
     import json
 
-    from simulator import jsontext
+    from simulator.io import jsontext
 
     one = run_sweep(parse_scenario(GRID), tmp_path, workers=1, progress=False)
     assert np.isnan(one["occupation"].values).any()
@@ -145,7 +145,7 @@ def test_changed_scenario_is_refused(tmp_path):
 
 
 def test_failing_point_is_recorded_and_sweep_goes_on(tmp_path, monkeypatch):
-    import simulator.inspection as inspection
+    import simulator.workflows.inspection as inspection
 
     real = inspection.inspect_scenario
 
@@ -186,7 +186,7 @@ def test_killed_sweep_resumes_without_loss_or_repeat(tmp_path, monkeypatch):
     for content in stored.values():
         json.loads(content)  # every stored point is complete
 
-    import simulator.sweep as sweep
+    import simulator.workflows.sweep as sweep
 
     calls = []
     real = sweep.evaluate_point
@@ -220,7 +220,7 @@ def test_cli_sweep_json_and_bad_dask_address(tmp_path):
 def test_records_and_spectra_per_point(tmp_path):
     """Per-point records use seeds spawned from the scenario seed (SeedSequence.spawn):
     the same files whatever the worker count; unstable points write nothing."""
-    from simulator.recordfile import load_record
+    from simulator.io.recordfile import load_record
 
     text = BASE + """
 [record]

@@ -11,9 +11,9 @@ import pytest
 from test_records import expected_welch
 
 from simulator.errors import InputError
-from simulator.estimator import load_estimator
-from simulator.scenario import load_scenario
-from simulator.trial import run_trials, summarise, trial_seeds
+from simulator.scenario.loader import load_scenario
+from simulator.workflows.estimator import load_estimator
+from simulator.workflows.trial import run_trials, summarise, trial_seeds
 
 FAST = Path(__file__).parent / "data" / "fast_thermometry.toml"
 REFERENCE = "simulator.analysis.reference:sideband_thermometry"
@@ -121,7 +121,7 @@ def test_cli_trial_json(tmp_path):
 
 def _noisy(scenario, floor):
     """The harness scenario with a laser phase-noise floor (common local oscillator)."""
-    from simulator.scenario import scenario_from_dict
+    from simulator.scenario.loader import scenario_from_dict
 
     data = scenario.to_dict()
     data["drive"]["phase_noise"] = {"floor_rad2_per_hz": floor, "floor_low_hz": 1e3,
@@ -138,8 +138,8 @@ def test_fano_fit_of_the_exact_record_spectrum_gives_the_summary_weights(scenari
     methods); the Lorentzian-only fit is thrown by the shaped floor."""
     from simulator.analysis.psd import PSDEstimate
     from simulator.analysis.thermometry import Calibration, measure_occupation
-    from simulator.records import plan_record
-    from simulator.sidebands import sideband_summary
+    from simulator.linear.sidebands import sideband_summary
+    from simulator.records.generate import plan_record
 
     noisy = _noisy(scenario, floor)
     plan = plan_record(noisy)
@@ -181,7 +181,7 @@ def test_laser_noise_shows_as_a_bias_against_the_truth_not_the_apparent_value(
     estimate is consistent with the apparent occupation the summary predicts
     (weights shifted by the noise's interference) and flagged as biased
     against the true occupation."""
-    from simulator.sidebands import sideband_summary
+    from simulator.linear.sidebands import sideband_summary
 
     noisy = _noisy(scenario, 1e-10)
     summary = sideband_summary(noisy)[0]
@@ -202,8 +202,8 @@ def test_the_window_kernel_in_the_model_removes_the_width_bias(scenario):
     1e-4 (Percival & Walden 1993, Sec. 6.3)."""
     from simulator.analysis.psd import PSDEstimate, WindowedExpectation
     from simulator.analysis.thermometry import Calibration, measure_occupation
-    from simulator.records import plan_record
-    from simulator.steady_state import steady_state
+    from simulator.linear.steady_state import steady_state
+    from simulator.records.generate import plan_record
 
     plan = plan_record(scenario)
     fs = plan.sample_rate_hz

@@ -75,7 +75,7 @@ class Device:
     def from_scenario(cls, system, mode=0):
         """Nominal device parameters from a system's (or scenario's) operating point (not g0)."""
         from simulator.analysis.thermometry import Calibration
-        from simulator.system import as_system
+        from simulator.model.system import as_system
 
         system = as_system(system)
         known = Calibration.from_scenario(system, mode)

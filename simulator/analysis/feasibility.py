@@ -43,7 +43,7 @@ ASYMMETRY_SIGNIFICANCE = 5.0
 
 def _record_chain(scenario):
     """The detection chain of the scenario's record (iq for heterodyne)."""
-    from simulator.system import as_system
+    from simulator.model.system import as_system
 
     return as_system(scenario).chain
 
@@ -55,9 +55,9 @@ def _spectral_matrix(scenario, omega):
 
 def _grid(scenario):
     """Two-sided angular-frequency grid resolving every resonance of the record's model."""
-    from simulator.physics import angular
-    from simulator.spectra import adaptive_grid
-    from simulator.system import as_system
+    from simulator.linear.spectra import adaptive_grid
+    from simulator.model.system import as_system
+    from simulator.model.units import angular
 
     system = as_system(scenario).require_stable()  # a clear error for an unstable point
     return angular(adaptive_grid(system.chain.model, points_per_decade=64))
@@ -118,7 +118,7 @@ def fisher_matrix(scenario, paths, *, frequency_hz=None):
     correlation of the two sidebands of a heterodyne record, which a
     scalar formula over the complex I + iQ spectrum would miss.
     """
-    from simulator.physics import angular
+    from simulator.model.units import angular
 
     omega = _grid(scenario) if frequency_hz is None else angular(frequency_hz)
     base = _spectral_matrix(scenario, omega)
@@ -166,7 +166,7 @@ def occupation_bound(scenario, mode=0, paths=None):
     steady state. All parameters are treated as unknown, so the bound includes
     the cost of estimating the nuisance parameters.
     """
-    from simulator.steady_state import steady_state
+    from simulator.linear.steady_state import steady_state
 
     paths = tuple(paths) if paths is not None else default_paths(scenario, mode)
     fisher = fisher_matrix(scenario, paths)
@@ -211,7 +211,7 @@ def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
     """
     from simulator.analysis.fitting import fisher_information
     from simulator.analysis.thermometry import Calibration, cavity_filter
-    from simulator.steady_state import steady_state
+    from simulator.linear.steady_state import steady_state
 
     if scenario.detection.scheme != "heterodyne":
         raise InputError(f"detection.scheme = {scenario.detection.scheme!r}: the sideband "
@@ -259,8 +259,8 @@ def _lineshape_of_record(scenario, cal, omega, width):
     c), by comparing it with the ideal heterodyne spectrum at the anti-Stokes
     peak.
     """
-    from simulator.spectra import heterodyne_spectrum
-    from simulator.steady_state import steady_state
+    from simulator.linear.spectra import heterodyne_spectrum
+    from simulator.linear.steady_state import steady_state
 
     iq = scenario if scenario.record.kind in (None, "iq") else scenario.replace(
         "record.kind", "iq")
@@ -278,7 +278,7 @@ def _lineshape_of_record(scenario, cal, omega, width):
 
 
 def _mode_index(scenario, omega):
-    from simulator.steady_state import steady_state
+    from simulator.linear.steady_state import steady_state
 
     freqs = [m.effective_frequency_hz for m in steady_state(scenario).modes]
     return int(np.argmin(np.abs(np.array(freqs) - omega)))

@@ -74,7 +74,7 @@ def fano_sideband_thermometry(record, mode=0):
     For drives with classical noise the detector also sees: the fit then
     returns the Lorentzian weights without bias, and those are shifted by the
     noise (docs/laser-noise.md), so the asymmetry estimates the apparent
-    occupation of :func:`simulator.sidebands.sideband_summary`, not the true
+    occupation of :func:`simulator.linear.sidebands.sideband_summary`, not the true
     one; the harness shows the difference as a bias.
     """
     return sideband_thermometry(record, mode, fano=True)

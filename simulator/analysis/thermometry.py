@@ -53,7 +53,7 @@ class Calibration:
     @classmethod
     def from_scenario(cls, system, mode=0):
         """Nominal calibration from a system (or scenario): its operating point, not the truth."""
-        from simulator.system import as_system
+        from simulator.model.system import as_system
 
         system = as_system(system)
         point = system.point
@@ -186,7 +186,7 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
         lines (classical noise the detector also sees) do not bias the
         areas. The areas are then the Lorentzian weights, which such noise
         shifts as well: the asymmetry reads the apparent occupation of
-        :func:`simulator.sidebands.sideband_summary`, not the true one.
+        :func:`simulator.linear.sidebands.sideband_summary`, not the true one.
     smear : simulator.analysis.psd.WindowedExpectation, optional
         The expectation operator of the periodogram ``psd`` came from (same
         sample rate, segment and window): the model lines are then convolved

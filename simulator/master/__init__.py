@@ -1,6 +1,6 @@
 """Master-equation branch: the scenario in a truncated Fock space, solved with QuTiP.
 
-Two models are built from the same :class:`~simulator.scenario.Scenario` as the
+Two models are built from the same :class:`~simulator.scenario.loader.Scenario` as the
 linear engine (:mod:`simulator.master.hilbert`): the full nonlinear
 Hamiltonian with its coherent drive, and the linearised model in the displaced
 frame, which must reproduce the linear engine to truncation error. From either

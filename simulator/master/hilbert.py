@@ -23,7 +23,7 @@ not use the operating point at all and so checks it independently.
 
 Linearised model (effective detuning Δ, g_j = g0_j √n̄), acting on the
 fluctuations around the operating point, with the intracavity mean taken real
-as in :mod:`simulator.model`::
+as in :mod:`simulator.model.optomechanics`::
 
     H_lin = −Δ a†a + Σ_j [Ωj b_j†b_j − g_j (a + a†)(b_j + b_j†)]
 
@@ -32,7 +32,7 @@ Collapse operators, the same in both models (Lindblad form):
 (internal loss, bath occupation n_c = ``cavity.bath_occupation``),
 √(Γj (n_j + 1)) b_j and √(Γj n_j) b_j† (symmetric, rotating-wave mechanical
 damping as in the linear engine). With these the linearised master equation
-has exactly the Lyapunov steady state of :mod:`simulator.steady_state`, up to
+has exactly the Lyapunov steady state of :mod:`simulator.linear.steady_state`, up to
 truncation.
 
 Every operator is stored in units of a reference rate r = κ (rad/s) so that
@@ -52,8 +52,8 @@ import math
 import numpy as np
 
 from simulator.errors import InputError
-from simulator.physics import angular
-from simulator.system import as_system
+from simulator.model.system import as_system
+from simulator.model.units import angular
 
 KINDS = ("full", "linearised")
 FRAMES = ("auto", "lab", "displaced")
@@ -101,7 +101,7 @@ class MasterModel:
     expected_occupations : tuple of float
         Mean quanta per factor the cutoffs were chosen for (coherent part
         included for the full model).
-    system : simulator.system.System
+    system : simulator.model.system.System
         The linear engine's system the model was built from.
     """
 
@@ -137,7 +137,7 @@ def build_model(system, kind="full", *, frame="auto", cutoffs=None,
 
     Parameters
     ----------
-    system : simulator.system.System
+    system : simulator.model.system.System
         Or a scenario, built into one.
     kind : {"full", "linearised"}
     frame : {"auto", "lab", "displaced"}
@@ -165,7 +165,7 @@ def build_model(system, kind="full", *, frame="auto", cutoffs=None,
 
     if kind not in KINDS:
         raise InputError(f"master-equation model {kind!r}; expected one of {', '.join(KINDS)}")
-    from simulator import laser_noise
+    from simulator.model import laser_noise
 
     system = as_system(system)
     scenario, point = system.scenario, system.point
@@ -271,7 +271,7 @@ def expected_cutoffs(system, kind, *, tolerance=DEFAULT_TOLERANCE):
         Mean quanta |displacement|² + thermal occupation, cavity first.
     cutoffs : list of int
     """
-    from simulator.steady_state import steady_state
+    from simulator.linear.steady_state import steady_state
 
     system = as_system(system)
     point = system.point

@@ -87,7 +87,7 @@ def regime_checks(point, occupations=None):
 
     Parameters
     ----------
-    point : simulator.operating_point.OperatingPoint
+    point : simulator.model.operating_point.OperatingPoint
     occupations : sequence of float, optional
         Mode occupations (e.g. the linear steady state); default the bath
         occupations, the larger value for a cooled mode.
@@ -116,7 +116,7 @@ def regime_verdict(point, occupations=None):
 
     Parameters
     ----------
-    point : simulator.operating_point.OperatingPoint
+    point : simulator.model.operating_point.OperatingPoint
     occupations : sequence of float, optional
         Mode occupations to use in the thermal-jitter check.
 

@@ -14,7 +14,7 @@ def master_comparison(linear_report, kind="full", **options):
 
     Parameters
     ----------
-    linear_report : simulator.inspection.Inspection
+    linear_report : simulator.workflows.inspection.Inspection
         The linear engine's report (its steady state must exist); the master
         model is built from its system.
     kind : {"full", "linearised"}

@@ -16,7 +16,7 @@ integration of correlation functions). ω > 0 is light above the drive
 ν = 0) is left out of the density and its photon flux
 |√Φ − √κ_ex ⟨a⟩|² is reported in the provenance. The detected spectrum in
 shot-noise units is S(ν) = 1 + η N_out(ν), two-sided in the optical offset ν,
-exactly the convention of :func:`simulator.spectra.heterodyne_spectrum`.
+exactly the convention of :func:`simulator.linear.spectra.heterodyne_spectrum`.
 
 References
 ----------
@@ -27,13 +27,13 @@ Gardiner and Collett, Phys. Rev. A 31, 3761 (1985) (input-output theory).
 import numpy as np
 
 from simulator.errors import InputError
+from simulator.linear.spectra import FLOOR, HETERODYNE_AXIS, SHOT_NOISE_UNITS, adaptive_grid
+from simulator.linear.spectrum import Spectrum
 from simulator.master.hilbert import DEFAULT_TOLERANCE
 from simulator.master.liouvillian import LindbladSolver, csr
 from simulator.master.steady import expect, master_steady_state
-from simulator.physics import angular
-from simulator.spectra import FLOOR, HETERODYNE_AXIS, SHOT_NOISE_UNITS, adaptive_grid
-from simulator.spectrum import Spectrum
-from simulator.system import as_system
+from simulator.model.system import as_system
+from simulator.model.units import angular
 
 MASTER_FLUX = "output photon flux (master equation)"
 DEFAULT_POINTS = 200
@@ -82,11 +82,11 @@ def master_heterodyne_spectrum(system, frequency_hz=None, *, kind="full", effici
 
     Parameters
     ----------
-    system : simulator.system.System
+    system : simulator.model.system.System
         Or a scenario, built into one.
     frequency_hz : array_like, optional
         Optical offsets ν from the drive (Hz). Default: :data:`DEFAULT_POINTS`
-        points laid by :func:`simulator.spectra.adaptive_grid` around the
+        points laid by :func:`simulator.linear.spectra.adaptive_grid` around the
         linear model's resonances.
     kind : {"full", "linearised"}
         Model (ignored when ``steady`` is given).
@@ -102,7 +102,7 @@ def master_heterodyne_spectrum(system, frequency_hz=None, *, kind="full", effici
 
     Returns
     -------
-    simulator.spectrum.Spectrum
+    simulator.linear.spectrum.Spectrum
         Two-sided density in shot-noise units, S(ν) = 1 + η N_out(ν), with
         the budget split into the shot-noise floor and the output photon flux.
     """

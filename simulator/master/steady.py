@@ -29,7 +29,7 @@ from simulator.master.hilbert import (
     build_model,
 )
 from simulator.master.liouvillian import LindbladSolver, csr
-from simulator.system import as_system
+from simulator.model.system import as_system
 
 MAX_ROUNDS = 6
 
@@ -107,7 +107,7 @@ def master_steady_state(system, kind="full", *, frame="auto", cutoffs=None,
 
     Parameters
     ----------
-    system : simulator.system.System
+    system : simulator.model.system.System
         Or a scenario, built into one.
     kind : {"full", "linearised"}
         Nonlinear Hamiltonian with its drive, or the displaced-frame

@@ -35,20 +35,19 @@ from simulator.errors import InputError
 from simulator.master.hilbert import DEFAULT_TOLERANCE
 from simulator.master.liouvillian import csr
 from simulator.master.steady import expect, master_steady_state
-from simulator.system import as_system
+from simulator.model.system import as_system
 
 FORM = "master-equation trajectory (stochastic master equation, ideal heterodyne receiver)"
 STEP_PHASE = 0.2  # solver step × largest |eigenvalue| of K = −iH − ½Σc†c
 
 
 def master_records(system, seeds, *, duration_s=None, kind="full", step_phase=STEP_PHASE,
-                   steady=None, out=None, overwrite=False, tolerance=DEFAULT_TOLERANCE,
-                   **steady_options):
+                   steady=None, sink=None, tolerance=DEFAULT_TOLERANCE, **steady_options):
     """One heterodyne record per seed from stochastic-master-equation trajectories.
 
     Parameters
     ----------
-    system : simulator.system.System
+    system : simulator.model.system.System
         Or a scenario, built into one.
         Heterodyne detection with an ``iq`` record; sample rate from
         ``digitizer.sample_rate_hz`` or the linear engine's automatic choice.
@@ -63,27 +62,25 @@ def master_records(system, seeds, *, duration_s=None, kind="full", step_phase=ST
         few percent in the spectra at 0.2; the SME has time-step error).
     steady : MasterSteadyState, optional
         Reuse a steady state already computed (it fixes ``kind``).
-    out : sequence of path, optional
-        One HDF5 file per seed (same format as ``noisechain record``); the
-        records are kept in memory otherwise.
-    overwrite : bool
-        Replace existing files at ``out`` (by default it is an error).
+    sink : callable, optional
+        ``sink(plan, index)`` returns where record ``index`` goes (as in
+        :func:`simulator.records.generate.generate_record`); memory by default.
+        :func:`simulator.workflows.record.master_records_to_files` passes one
+        HDF5 file per seed.
     tolerance, **steady_options
         Passed to :func:`~simulator.master.steady.master_steady_state`.
 
     Returns
     -------
-    list of simulator.records.Record
+    list of simulator.records.generate.Record
     """
     import qutip
 
-    from simulator.records import plan_record
+    from simulator.records.generate import plan_record
 
     seeds = [_check_seed(s) for s in seeds]
     if not seeds:
         raise InputError("no seeds given; expected one seed per record")
-    if out is not None and len(out) != len(seeds):
-        raise InputError(f"{len(out)} output files for {len(seeds)} seeds; expected one each")
     if not 0 < step_phase <= 1:
         raise InputError(f"step_phase = {step_phase!r}; expected a number in (0, 1]")
     system = as_system(system)
@@ -120,32 +117,27 @@ def master_records(system, seeds, *, duration_s=None, kind="full", step_phase=ST
         plan.truth, occupation=tuple(m.occupation for m in steady.modes),
         cavity_occupation=steady.cavity.occupation)
     return [_write(dataclasses.replace(plan, seed=seed, form=FORM, truth=truth), trace,
-                   None if out is None else out[i], overwrite)
+                   sink, i)
             for i, (seed, trace) in enumerate(zip(seeds, w, strict=True))]
 
 
-def master_record(system, *, seed=None, out=None, **options):
+def master_record(system, *, seed=None, **options):
     """One record (see :func:`master_records`); seed default ``scenario.scenario.seed``."""
     system = as_system(system)
     seed = system.scenario.scenario.seed if seed is None else seed
-    return master_records(system, [seed], out=None if out is None else [out], **options)[0]
+    return master_records(system, [seed], **options)[0]
 
 
-def _write(plan, trace, path, overwrite):
-    from simulator import kernels
-    from simulator.records import MemorySink
+def _write(plan, trace, sink, index):
+    from simulator.records import kernels
+    from simulator.records.generate import MemorySink
 
-    if path is None:
-        sink = MemorySink(plan)
-    else:
-        from simulator.recordfile import RecordFileWriter
-
-        sink = RecordFileWriter(path, plan, overwrite=overwrite)
+    target = MemorySink(plan) if sink is None else sink(plan, index)
     y = np.column_stack([trace.real, trace.imag])
-    with sink:
+    with target:
         counts, clipped = kernels.Digitiser(plan)(np.ascontiguousarray(y))
-        sink.write(0, counts, None)
-        return sink.finish(clipped)
+        target.write(0, counts, None)
+        return target.finish(clipped)
 
 
 def _check_seed(seed):

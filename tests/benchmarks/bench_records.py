@@ -41,9 +41,13 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # tests/ for conft
 
 from conftest import mode, scenario_with_coupling  # noqa: E402
 
-from simulator.discretize import modal_form  # noqa: E402
-from simulator.kernels import stepper  # noqa: E402
-from simulator.records import BLOCK_SAMPLES, SAMPLE_STREAM, plan_record  # noqa: E402
+from simulator.records.discretize import modal_form  # noqa: E402
+from simulator.records.generate import plan_record  # noqa: E402
+from simulator.records.kernels import (  # noqa: E402
+    BLOCK_SAMPLES,
+    SAMPLE_STREAM,
+    stepper,  # noqa: E402
+)
 
 REPO = Path(__file__).resolve().parents[2]
 SUBSTEPS = 20  # Euler–Maruyama steps per sample (dt·κ/2 ≈ 0.02 at the rates below)
@@ -67,7 +71,7 @@ def best_of(fn, repeats=3):
 
 
 def innovations_against_normals(n):
-    from simulator import kernels
+    from simulator.records import kernels
 
     plan = plan_record(scenario(n / 2e6), form="innovations")
     step = stepper(plan)
@@ -100,7 +104,7 @@ def innovations_against_normals(n):
 
 
 def modal_against_dense(n):
-    from simulator import kernels
+    from simulator.records import kernels
 
     plan = plan_record(scenario(n / 2e6), form="innovations")
     normals = kernels.NormalBlocks(plan.seed, SAMPLE_STREAM, 2, BLOCK_SAMPLES).take(0, n)
@@ -143,11 +147,11 @@ def qutip_heterodyne(plan, samples, substeps):
     """qutip.smesolve, heterodyne, on the linearised model truncated to small Fock spaces."""
     import qutip
 
-    from simulator.physics import angular
+    from simulator.model.units import angular
 
     point = plan.scenario
     sc, m0 = point, point.mechanics[0]
-    from simulator.operating_point import operating_point
+    from simulator.model.operating_point import operating_point
 
     op = operating_point(sc)
     kappa, kappa_ex = angular([sc.cavity.linewidth_hz, sc.cavity.external_linewidth_hz])
@@ -169,7 +173,7 @@ def qutip_heterodyne(plan, samples, substeps):
 
 
 def full_state_against_baselines(n, skip_qutip):
-    from simulator import kernels
+    from simulator.records import kernels
 
     plan = plan_record(scenario(n / 2e6), form="full-state")
     step = stepper(plan)
@@ -205,7 +209,7 @@ import resource, sys, time
 from pathlib import Path
 sys.path.insert(0, {tests!r})
 from bench_records import scenario
-from simulator.records import simulate_record
+from simulator.workflows.record import simulate_record
 n = int(float(sys.argv[1]))
 simulate_record(scenario(1e-3), out=sys.argv[2], seed=1)  # load the compiled kernels
 t = time.perf_counter()

@@ -2,7 +2,7 @@
 
 Prints points per second of
 
-* the engine: :func:`simulator.spectra.heterodyne_spectrum` on 10⁶ frequency
+* the engine: :func:`simulator.linear.spectra.heterodyne_spectrum` on 10⁶ frequency
   points (chunked, batched eigen-decomposition products, every budget term), and
 * a plain reference measured in the same run: a Python loop over frequencies
   with one ``numpy.linalg.solve`` per point for H(ω) = C(−iω − A)⁻¹B + D and
@@ -24,9 +24,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))  # the same scenarios a
 
 from bench_steady_state import five_modes, one_mode  # noqa: E402
 
-from simulator.physics import angular  # noqa: E402
-from simulator.spectra import heterodyne_spectrum  # noqa: E402
-from simulator.system import System  # noqa: E402
+from simulator.linear.spectra import heterodyne_spectrum  # noqa: E402
+from simulator.model.system import System  # noqa: E402
+from simulator.model.units import angular  # noqa: E402
 
 POINTS = 1_000_000
 LOOP_POINTS = 20_000

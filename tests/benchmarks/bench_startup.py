@@ -8,7 +8,7 @@ wall time and its ratio to ``python -c pass`` measured in the same run:
 * ``python -m simulator inspect <demo>``
 
 Then reports (without asserting; tests/test_cli_foundation.py asserts it)
-which heavy libraries are loaded after importing ``simulator.cli`` and
+which heavy libraries are loaded after importing ``simulator.cli.parser`` and
 running ``inspect``: qutip, numba and matplotlib must not be. Run:
 ``.venv/bin/python tests/benchmarks/bench_startup.py``.
 """
@@ -37,7 +37,7 @@ def wall_time(args):
 def heavy_modules_after_inspect():
     code = (
         "import sys, contextlib, io\n"
-        "from simulator.cli import main\n"
+        "from simulator.cli.parser import main\n"
         "with contextlib.redirect_stdout(io.StringIO()):\n"
         f"    main(['inspect', {str(DEMO)!r}])\n"
         f"print(','.join(sorted({{m.split('.')[0] for m in sys.modules}} & set({HEAVY!r}))))\n")
@@ -58,7 +58,7 @@ def main():
         t = wall_time(args)
         print(f"  {label:<40}{1e3 * t:8.1f} ms   ratio {t / base:4.1f}")
     loaded, code = heavy_modules_after_inspect()
-    print(f"heavy libraries loaded by import simulator.cli + inspect: {loaded} "
+    print(f"heavy libraries loaded by import simulator.cli.parser + inspect: {loaded} "
           f"(exit status {code})")
 
 

@@ -23,9 +23,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # tests/ for conft
 
 from conftest import mode, scenario_with_coupling  # noqa: E402
 
-from simulator.model import linear_model  # noqa: E402
-from simulator.operating_point import operating_point  # noqa: E402
-from simulator.steady_state import steady_state  # noqa: E402
+from simulator.linear.steady_state import steady_state  # noqa: E402
+from simulator.model.operating_point import operating_point  # noqa: E402
+from simulator.model.optomechanics import linear_model  # noqa: E402
 
 POINTS = 1000
 

@@ -12,9 +12,9 @@ import tempfile
 import time
 from pathlib import Path
 
-from simulator.inspection import inspect_scenario
-from simulator.scenario import parse_scenario
-from simulator.sweep import run_sweep, sweep_axes
+from simulator.scenario.loader import parse_scenario
+from simulator.workflows.inspection import inspect_scenario
+from simulator.workflows.sweep import run_sweep, sweep_axes
 
 TEXT = (Path(__file__).parent.parent / "data" / "sweep_base.toml").read_text() + """
 [sweep]

@@ -11,8 +11,8 @@ import tempfile
 import time
 from pathlib import Path
 
-from simulator.scenario import load_scenario
-from simulator.trial import run_trials
+from simulator.scenario.loader import load_scenario
+from simulator.workflows.trial import run_trials
 
 SCENARIO = Path(__file__).parent.parent / "data" / "fast_thermometry.toml"
 ESTIMATOR = "simulator.analysis.reference:sideband_thermometry"

@@ -1,0 +1,307 @@
+"""The verbs of the command line: each ``cmd_*`` takes the parsed arguments.
+
+:mod:`simulator.cli.parser` builds the parser and turns errors into exit statuses;
+the functions here do the work of one verb each and print its report. Heavy
+libraries are imported inside the verbs that need them.
+"""
+
+import math
+import os
+import sys
+import warnings
+from pathlib import Path
+
+from simulator.errors import InputError
+from simulator.io import jsontext
+from simulator.io.files import refuse_existing
+
+EXIT_OK, EXIT_FAILED, EXIT_INPUT, EXIT_UNSTABLE = 0, 1, 2, 3
+
+
+def print_json(data):
+    """Print ``data`` as strict, indented JSON (non-finite numbers become null)."""
+    print(jsontext.dumps(data, indent=2))
+
+
+def cmd_check(args):
+    """``noisechain check SCENARIO``: validate the file and report its modes."""
+    from simulator.scenario.loader import load_scenario
+
+    scenario = load_scenario(args.scenario)
+    if scenario.sweep is not None:
+        from simulator.workflows.sweep import sweep_axes, sweep_points
+
+        sweep_points(scenario, sweep_axes(scenario))  # every swept value, and the size
+    modes = ", ".join(m.name for m in scenario.mechanics)
+    print(f"{args.scenario}: valid scenario {scenario.scenario.name!r} "
+          f"({len(scenario.mechanics)} mechanical mode(s): {modes})")
+    return EXIT_OK
+
+
+def cmd_inspect(args):
+    """``noisechain inspect SCENARIO [--json]``: exit 0 if stable, 3 if not."""
+    from simulator.scenario.loader import load_scenario
+    from simulator.workflows.inspection import inspect_scenario
+
+    scenario = load_scenario(args.scenario)
+    report = inspect_scenario(scenario)
+    master = None
+    if args.master and report.steady is not None:
+        from simulator.master.report import master_comparison
+
+        master = master_comparison(report, kind=args.master_model)
+    if args.json:
+        print_json(report.to_dict() | ({"master": master} if args.master else {}))
+    else:
+        print(report.to_text())
+        if master is not None:
+            from simulator.master.report import comparison_text
+
+            print("\n" + comparison_text(master))
+        elif args.master:
+            print("\nmaster equation: not run, the operating point is unstable (no "
+                  "steady state to compare)")
+    return EXIT_OK if report.stability.stable else EXIT_UNSTABLE
+
+
+def cmd_sweep(args):
+    """``noisechain sweep``: run the scenario's parameter sweep."""
+    _require_output_folder(args.out)
+    _require_workers(args)
+    from simulator.scenario.loader import load_scenario
+    from simulator.workflows.sweep import run_sweep
+
+    scenario = load_scenario(args.scenario)
+    dataset = run_sweep(scenario, args.out, workers=args.workers, dask=args.dask,
+                        progress=not args.quiet)
+    failed = int((dataset["error"] != "").sum())
+    unstable = int((dataset["stable"] == 0).sum())
+    summary = {"out": str(Path(args.out).resolve()), "dataset": "sweep.nc",
+               "points": int(dataset["stable"].size), "unstable_points": unstable,
+               "failed_points": failed, "dimensions": dict(dataset["stable"].sizes)}
+    if args.json:
+        print_json(summary)
+    else:
+        print(f"sweep of {summary['points']} points written to {summary['out']}/sweep.nc "
+              f"({unstable} unstable, {failed} failed)")
+    return EXIT_OK
+
+
+def _require_output_file(path, allowed, option, force):
+    """Refuse, before any work, an output file with the wrong extension, in a folder
+    that cannot take it, or that exists (without ``--force``)."""
+    if path is None:
+        return
+    if Path(path).suffix.lower() not in allowed:
+        raise InputError(f"{option} {path!r} has extension {Path(path).suffix!r}; expected "
+                         f"one of {', '.join(allowed)}")
+    _require_writable_folder(Path(path).parent or Path("."), option, path)
+    refuse_existing(path, overwrite=force, option=option)
+
+
+def _require_writable_folder(folder, option, path):
+    folder = Path(folder) if str(folder) else Path(".")
+    if not folder.is_dir() or not os.access(folder, os.W_OK | os.X_OK):
+        raise InputError(f"{option} {str(path)!r}: folder {str(folder)!r} does not exist or "
+                         "is not writable; expected an existing, writable folder")
+
+
+def _require_output_folder(path, option="--out"):
+    """Refuse an output folder that cannot be created or written, before any work."""
+    target = Path(path)
+    if target.exists() and not target.is_dir():
+        raise InputError(f"{option} {path!r} is a file; expected a folder (new or existing)")
+    parent = target if target.exists() else target.parent
+    _require_writable_folder(parent, option, path)
+
+
+def _require_workers(args):
+    workers = getattr(args, "workers", None)
+    if workers is not None and workers < 1:
+        raise InputError(f"--workers {workers}: expected a positive number of worker "
+                         "processes")
+
+
+def cmd_spectrum(args):
+    """``noisechain spectrum``: analytic output spectrum of a scenario."""
+    _require_output_file(args.out, (".nc", ".csv"), "--out", args.force)
+    _require_output_file(args.plot, (".png", ".pdf", ".svg"), "--plot", args.force)
+    from simulator.linear.sidebands import sideband_summary
+    from simulator.linear.spectra import measured_spectrum
+    from simulator.model.system import System
+    from simulator.scenario.loader import load_scenario
+
+    scenario = load_scenario(args.scenario)
+    system = System(scenario)  # built once: spectrum, summary and referral share it
+    if args.engine == "master":
+        from simulator.master.spectra import master_heterodyne_spectrum
+
+        spectrum = master_heterodyne_spectrum(system, kind=args.master_model)
+    else:
+        angle = None if args.angle_deg is None else math.radians(args.angle_deg)
+        spectrum = measured_spectrum(system, quadrature_angle=angle)
+    # the sideband summary is the linear engine's; not shown beside a master spectrum
+    summary = sideband_summary(system) if args.engine == "linear" else []
+    files = {}
+    if args.out:
+        files["data"] = str(spectrum.save(args.out, overwrite=args.force))
+    if args.plot:
+        from simulator.linear.referral import to_displacement
+        from simulator.report.plots import plot_spectrum
+
+        plot_spectrum(spectrum, args.plot, displacement=to_displacement(spectrum, system),
+                      summary=summary, title=f"{scenario.scenario.name}: {spectrum.quantity}",
+                      overwrite=args.force)
+        files["plot"] = str(args.plot)
+    report = {"scenario": scenario.scenario.name, "engine": args.engine,
+              "quantity": spectrum.quantity,
+              "axis": spectrum.axis, "sided": spectrum.sided, "units": spectrum.units,
+              "points": int(spectrum.frequency_hz.size),
+              "frequency_range_hz": [float(spectrum.frequency_hz.min()),
+                                     float(spectrum.frequency_hz.max())],
+              "peak": float(spectrum.total.max()),
+              "contributions": list(spectrum.contributions),
+              "budget_residual": spectrum.budget_residual(),
+              "sidebands": [s.to_dict() for s in summary], "files": files}
+    if args.json:
+        print_json(report)
+        return EXIT_OK
+    print(f"{report['scenario']}: {report['quantity']}, {report['sided']} density in "
+          f"{report['units']}, {report['points']} points over "
+          f"{report['frequency_range_hz'][0]:.6g} .. {report['frequency_range_hz'][1]:.6g} Hz")
+    print(f"  peak {report['peak']:.6g}; budget of {len(report['contributions'])} terms sums "
+          f"to the total within {report['budget_residual']:.1e}")
+    for s in summary:
+        print(f"  mode {s.mode}: anti-Stokes {s.anti_stokes.frequency_hz:.9g} Hz "
+              f"(width {s.anti_stokes.linewidth_hz:.4g} Hz, {s.anti_stokes.area_quanta:.5g} "
+              f"quanta), Stokes {s.stokes.frequency_hz:.9g} Hz ({s.stokes.area_quanta:.5g} "
+              f"quanta); ratio {s.ratio:.5g} -> n = {s.occupation_from_ratio:.5g} "
+              f"(steady state {s.steady_state_occupation:.5g})")
+        if s.warning:
+            print(f"    warning: {s.warning}")
+        fano = (s.anti_stokes.dispersive_quanta, s.stokes.dispersive_quanta)
+        if max(abs(fano[0]), abs(fano[1])) > 0.01 * abs(s.stokes.area_quanta):
+            print(f"    Fano-shaped: dispersive weights {fano[0]:.4g} (anti-Stokes), "
+                  f"{fano[1]:.4g} (Stokes) quanta: correlated noise interferes with the motion")
+    for kind, path in files.items():
+        print(f"  {kind} written to {path}")
+    return EXIT_OK
+
+
+def cmd_record(args):
+    """``noisechain record``: synthesise a time-domain record with its ground truth."""
+    from simulator.scenario.loader import load_scenario
+    from simulator.workflows.record import master_records_to_files, simulate_record
+
+    _require_output_file(args.out, (".h5", ".hdf5"), "--out", args.force)
+    scenario = load_scenario(args.scenario)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        if args.engine == "master":
+            seed = scenario.scenario.seed if args.seed is None else args.seed
+            record = master_records_to_files(scenario, [seed], [args.out],
+                                             duration_s=args.duration, kind=args.master_model,
+                                             overwrite=args.force)[0]
+        else:
+            record = simulate_record(scenario, seed=args.seed, duration_s=args.duration,
+                                     out=args.out, form=args.form, progress=not args.quiet,
+                                     overwrite=args.force)
+    for warning in caught:
+        print(f"noisechain record: warning: {warning.message}", file=sys.stderr)
+    truth = record.truth
+    summary = {"out": str(Path(args.out).resolve()), "samples": record.n_samples,
+               "sample_rate_hz": record.sample_rate_hz, "kind": record.kind,
+               "seed": record.seed, "form": record.form,
+               "clipped_samples": record.clipped_samples,
+               "shot_noise_per_count": record.shot_noise_per_count,
+               "volts_per_count": record.volts_per_count,
+               "modes": [{"name": name, "occupation": n, "effective_frequency_hz": f,
+                          "effective_linewidth_hz": w}
+                         for name, n, f, w in zip(truth.mode_names, truth.occupation,
+                                                  truth.effective_frequency_hz,
+                                                  truth.effective_linewidth_hz, strict=True)],
+               "cavity_occupation": truth.cavity_occupation}
+    if args.json:
+        print_json(summary)
+        return EXIT_OK
+    print(f"record of {record.n_samples} samples ({record.kind}, "
+          f"{record.sample_rate_hz:.6g} samples/s, seed {record.seed}, {record.form} form) "
+          f"written to {summary['out']}")
+    print(f"  clipped samples: {record.clipped_samples}")
+    for mode in summary["modes"]:
+        print(f"  true occupation of {mode['name']}: {mode['occupation']:.6g} "
+              f"(at {mode['effective_frequency_hz']:.9g} Hz, linewidth "
+              f"{mode['effective_linewidth_hz']:.4g} Hz)")
+    print(f"  cavity occupation: {truth.cavity_occupation:.4g}")
+    return EXIT_OK
+
+
+def cmd_trial(args):
+    """``noisechain trial``: an estimator on many records, against the truth."""
+    _require_output_folder(args.out)
+    _require_workers(args)
+    from simulator.scenario.loader import load_scenario
+    from simulator.workflows.trial import run_trials
+
+    result = run_trials(load_scenario(args.scenario), args.estimator, args.trials, args.out,
+                        duration_s=args.duration, workers=args.workers, dask=args.dask,
+                        progress=not args.quiet, timeout_s=args.timeout_s)
+    if args.json:
+        print_json(result.to_dict())
+        return EXIT_OK
+    print(f"{result.dataset.sizes['trial']} trials of {args.estimator}; "
+          f"{len(result.errors)} failed; results in {result.out.resolve()}")
+    if result.errors:
+        print(f"  first failure (trial {result.errors[0][0]}): {result.errors[0][1]}")
+    for q in result.quantities:
+        truth = "no truth" if q.truth is None else f"truth {q.truth:.6g}"
+        line = f"  {q.name}: mean {q.mean:.6g} ({truth}), spread {q.spread:.3g}"
+        if q.bias is not None:
+            line += (f", bias {q.bias:+.3g} ± {q.bias_error:.2g}, pull width "
+                     f"{q.pull_width:.3g}, 1σ coverage {q.coverage_1sigma:.0%}")
+        print(line)
+        print(f"      {q.verdict}")
+    print(f"open {result.out / 'report.html'} for histograms and pulls")
+    if len(result.errors) == result.dataset.sizes["trial"]:
+        print("noisechain trial: every trial failed; see the first failure above",
+              file=sys.stderr)
+        return EXIT_FAILED
+    return EXIT_OK
+
+
+def _print_run(result, args):
+    """Summary of a run (or the demo): the files written and the report."""
+    if args.json:
+        print_json({"out": str(result.out.resolve()), "report": str(result.report),
+                    "stable": result.stable, "files": [str(p) for p in result.files]})
+        return
+    print(f"outputs written to {result.out.resolve()}:")
+    for path in result.files:
+        print(f"  {path}")
+    print(f"open {result.report} in a browser for the report")
+
+
+def cmd_run(args):
+    """``noisechain run``: everything the scenario asks for, into a folder with a report."""
+    _require_output_folder(args.out)
+    _require_workers(args)
+    from simulator.scenario.loader import load_scenario
+    from simulator.workflows.run import run_scenario
+
+    result = run_scenario(load_scenario(args.scenario), args.out, workers=args.workers,
+                          dask=args.dask, progress=not args.quiet)
+    _print_run(result, args)
+    return EXIT_OK if result.stable else EXIT_UNSTABLE
+
+
+def cmd_demo(args):
+    """``noisechain demo``: run the bundled demo scenario into a folder."""
+    _require_output_folder(args.out)
+    _require_workers(args)
+    from simulator.workflows.demo import demo_scenario
+    from simulator.workflows.run import run_scenario
+
+    result = run_scenario(demo_scenario(), args.out, workers=args.workers,
+                          progress=not args.quiet)
+    _print_run(result, args)
+    return EXIT_OK

@@ -1,0 +1,293 @@
+"""Record files: one digitised record per HDF5 file, with its ground truth.
+
+Layout (docs/records.md, "The file"; a reader needs h5py alone):
+
+- root attributes ``format = "noisechain-record"``, ``format_version``,
+  ``scenario_toml``, ``seed``, ``software_version``, ``sample_rate_hz``,
+  ``kind`` (``"iq"`` or ``"if"``), ``created_utc``, and the detection
+  settings that place the record on the optical axis;
+- dataset ``samples``: integer ADC counts, (N, 2) for I, Q or (N,) for if,
+  chunked and gzip-compressed, with attributes ``volts_per_count`` and
+  ``shot_noise_per_count``;
+- group ``truth``: per-mode attribute arrays and the cavity occupation,
+  subgroup ``truth/calibration`` with the conversion factors, optional
+  dataset ``truth/mechanical_quadratures`` (N, 2 × modes).
+
+The file is written under a temporary name in the target folder and renamed
+when complete; the ``format`` attribute is written last, so a file that a
+killed run leaves behind is neither at the target path nor loadable.
+"""
+
+import datetime
+import functools
+from pathlib import Path
+
+import numpy as np
+
+from simulator.errors import InputError
+from simulator.io.files import AtomicFile
+from simulator.records.generate import Record, Truth, record_header
+
+FORMAT = "noisechain-record"
+FORMAT_VERSION = 1
+HDF5_CHUNK_ROWS = 1 << 18  # 1 MB chunks of int16 pairs: few chunks even for 10⁹ samples
+FREQUENCY_CONVENTION = ("I + iQ: anti-Stokes sideband (light above the drive) at positive "
+                        "frequency of numpy.fft / scipy.signal.welch; if records: local "
+                        "oscillator below the drive puts it above the intermediate frequency")
+_TRUTH_ARRAYS = ("occupation", "effective_frequency_hz", "effective_linewidth_hz",
+                 "coupling_rate_hz", "zero_point_amplitude_m")
+
+
+class RecordFileWriter:
+    """Streams a record into a temporary HDF5 file; renames it on :meth:`finish`.
+
+    Use as a context manager: leaving the block by an exception closes and
+    deletes the temporary file.
+    """
+
+    def __init__(self, path, plan, chunk_rows=HDF5_CHUNK_ROWS, *, overwrite=False):
+        import h5py
+
+        self.path, self.plan = Path(path), plan
+        if self.path.is_dir():
+            raise InputError(f"output {str(self.path)!r} is a folder; expected a file name "
+                             "such as record.h5")
+        if not self.path.parent.is_dir():
+            raise InputError(f"output folder {str(self.path.parent)!r} does not exist; "
+                             "create it first")
+        self.output = AtomicFile(self.path, overwrite=overwrite)
+        self.mech = None
+        try:
+            # no chunk cache: a chunk reaches the file when written, so a full disk
+            # fails that write instead of a later flush that leaves HDF5 unable to
+            # close the file (and crashing the interpreter at exit)
+            self.file = h5py.File(self.output.tmp, "w", rdcc_nbytes=0)
+        except OSError as exc:
+            self.output.discard()
+            raise InputError(f"cannot write {str(self.path)!r} ({exc})") from None
+        try:
+            n, rows = plan.n_samples, max(1, min(chunk_rows, HDF5_CHUNK_ROWS, plan.n_samples))
+            shape = (n, 2) if plan.chain.record_kind == "iq" else (n,)
+            self.samples = self.file.create_dataset(
+                "samples", shape=shape, dtype=np.int16 if plan.bits <= 16 else np.int32,
+                chunks=(rows,) + shape[1:], compression="gzip", compression_opts=1,
+                shuffle=True)
+            self.truth = self.file.create_group("truth")
+            if plan.watched.size:
+                self.mech = self.truth.create_dataset(
+                    "mechanical_quadratures", shape=(n, plan.watched.size), dtype=np.float64,
+                    chunks=(rows, plan.watched.size), compression="gzip", compression_opts=1)
+        except BaseException as exc:
+            self.__exit__(type(exc), exc, None)
+            raise
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, exc_type, exc, tb):
+        if exc_type is not None:
+            self._close(strict=False)
+            self.output.__exit__(exc_type, exc, tb)  # removes the file; names a write error
+        return False
+
+    def _close(self, *, strict):
+        """Close the file once (h5py closes its datasets first, then the file).
+
+        A second close of a file whose first close failed crashes HDF5, so
+        the handle is dropped before trying. ``strict`` re-raises a failing
+        close (disk full at the last flush); otherwise the error that brought
+        us here is the one to report.
+        """
+        file, self.file = self.file, None
+        self.mech = self.samples = self.truth = None
+        if file is None:
+            return
+        try:
+            file.close()
+        except (OSError, RuntimeError) as exc:  # h5py reports a failed final flush as either
+            if strict:
+                raise OSError(str(exc)) from None
+
+    def write(self, first, counts, mech):
+        """Write a chunk of counts (and mechanical quadratures) from sample ``first``."""
+        self.samples[first:first + len(counts)] = counts
+        if mech is not None:
+            self.mech[first:first + len(mech)] = mech
+
+    def finish(self, clipped):
+        """Write the attributes, close, and rename into place; return the Record."""
+        import h5py
+
+        plan = self.plan
+        header = record_header(plan, plan.chain.record_kind)
+        created = datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds")
+        s = self.samples.attrs
+        s["volts_per_count"] = header["volts_per_count"]
+        s["shot_noise_per_count"] = header["shot_noise_per_count"]
+        s["full_scale_v"] = header["full_scale_v"]
+        s["bits"] = header["bits"]
+        s["columns"] = np.array(["I", "Q"] if header["kind"] == "iq" else ["r"],
+                                dtype=h5py.string_dtype())
+        truth = plan.truth
+        t = self.truth.attrs
+        t["mode_names"] = np.array(truth.mode_names, dtype=h5py.string_dtype())
+        for name in _TRUTH_ARRAYS:
+            t[name] = np.asarray(getattr(truth, name), dtype=float)
+        t["cavity_occupation"] = truth.cavity_occupation
+        cal = self.truth.create_group("calibration").attrs
+        for key, value in truth.calibration.items():
+            cal[key] = value
+        if self.mech is not None:
+            self.mech.attrs["columns"] = np.array(
+                [f"{m}.{q}" for m in truth.mode_names for q in "qp"], dtype=h5py.string_dtype())
+            self.mech.attrs["meaning"] = ("mode quadratures q, p at the start of each sample "
+                                          "interval, vacuum variance 1/2; displacement "
+                                          "x = sqrt(2) * zero_point_amplitude_m * q")
+        root = self.file.attrs
+        root["scenario_toml"] = plan.scenario.to_toml()
+        for key in ("seed", "software_version", "sample_rate_hz", "kind", "scheme", "form",
+                    "n_samples", "intermediate_frequency_hz", "local_oscillator_side"):
+            root[key] = header[key]
+        root["duration_s"] = plan.n_samples / plan.sample_rate_hz
+        root["clipped_samples"] = clipped
+        root["created_utc"] = created
+        root["frequency_convention"] = FREQUENCY_CONVENTION
+        root["format_version"] = FORMAT_VERSION
+        root["format"] = FORMAT
+        self._close(strict=True)
+        self.output.commit()
+        return Record(counts=None, path=self.path, clipped_samples=clipped,
+                      scenario=plan.scenario, truth=truth, created_utc=created,
+                      mechanical_quadratures=None,
+                      reader=functools.partial(_counts_of, self.path), **header)
+
+
+def _counts_of(path):
+    return load_record(path).counts
+
+
+def load_record(path, *, start=0, stop=None):
+    """Read a record file back, with its ground truth and scenario.
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+    start, stop : int, optional
+        Read only samples [start, stop) (and the same rows of the stored
+        mechanical quadratures); by default the whole record.
+
+    Returns
+    -------
+    simulator.records.generate.Record
+
+    Raises
+    ------
+    simulator.errors.InputError
+        Missing file, not HDF5, not a complete noisechain record, or a newer
+        format version.
+    """
+    import h5py
+
+    from simulator.scenario.loader import parse_scenario
+
+    path = Path(path)
+    if not path.is_file():
+        raise InputError(f"record file {str(path)!r} not found; expected an HDF5 file "
+                         "written by `noisechain record`")
+    try:
+        handle = h5py.File(path, "r")
+    except OSError as exc:
+        raise InputError(f"{str(path)!r} is not a readable HDF5 file ({exc})") from None
+    with handle as f:
+        if f.attrs.get("format") != FORMAT:
+            raise InputError(f"{str(path)!r} is not a complete noisechain record (no "
+                             f"format = {FORMAT!r} attribute; an interrupted write leaves "
+                             "such a file)")
+        a, s, t = _checked_layout(f, path)
+        counts = s[start:stop]
+        mech = t["mechanical_quadratures"][start:stop] if "mechanical_quadratures" in t else None
+        if mech is not None and not np.isfinite(mech).all():
+            raise InputError(f"record file {str(path)!r}: truth/mechanical_quadratures holds "
+                             f"{int(np.size(mech) - np.isfinite(mech).sum())} non-finite "
+                             "values (NaN or infinity); expected finite numbers")
+        truth = Truth(mode_names=tuple(_text(x) for x in t.attrs["mode_names"]),
+                      **{k: tuple(float(x) for x in t.attrs[k]) for k in _TRUTH_ARRAYS},
+                      cavity_occupation=float(t.attrs["cavity_occupation"]),
+                      calibration={k: _plain(v) for k, v in t["calibration"].attrs.items()})
+        scenario = parse_scenario(_text(a["scenario_toml"]), source=f"{path}:scenario_toml")
+        return Record(
+            counts=counts, path=path, kind=_text(a["kind"]), scheme=_text(a["scheme"]),
+            sample_rate_hz=float(a["sample_rate_hz"]), n_samples=int(a["n_samples"]),
+            volts_per_count=float(s.attrs["volts_per_count"]),
+            shot_noise_per_count=float(s.attrs["shot_noise_per_count"]),
+            full_scale_v=float(s.attrs["full_scale_v"]), bits=int(s.attrs["bits"]),
+            clipped_samples=int(a["clipped_samples"]),
+            intermediate_frequency_hz=float(a["intermediate_frequency_hz"]),
+            local_oscillator_side=_text(a["local_oscillator_side"]), seed=int(a["seed"]),
+            form=_text(a["form"]), scenario=scenario, truth=truth,
+            software_version=_text(a["software_version"]),
+            created_utc=_text(a["created_utc"]), mechanical_quadratures=mech)
+
+
+# What a record must hold, where: every name is read by load_record.
+_ROOT_NUMBERS = ("format_version", "seed", "sample_rate_hz", "n_samples",
+                 "intermediate_frequency_hz", "clipped_samples")
+_ROOT_TEXT = ("scenario_toml", "kind", "scheme", "form", "local_oscillator_side",
+              "software_version", "created_utc")
+_SAMPLE_NUMBERS = ("volts_per_count", "shot_noise_per_count", "full_scale_v", "bits")
+
+
+def _checked_layout(f, path):
+    """The root attributes, samples and truth of an open record, every part checked.
+
+    Raises :class:`InputError` naming the file and the missing or malformed
+    part; the sample counts must be integers (a float dataset could hold NaN).
+    """
+    import h5py
+
+    def bad(what, expected):
+        return InputError(f"record file {str(path)!r}: {what}; expected {expected} (a file "
+                          "written by `noisechain record`)")
+
+    for where, group, names in (("root", f, _ROOT_NUMBERS + _ROOT_TEXT),
+                                ("samples", f.get("samples"), _SAMPLE_NUMBERS),
+                                ("truth", f.get("truth"),
+                                 ("mode_names", "cavity_occupation") + _TRUTH_ARRAYS)):
+        if group is None:
+            raise bad(f"no {where!r} in the file", f"a dataset or group {where!r}")
+        missing = [n for n in names if n not in group.attrs]
+        if missing:
+            raise bad(f"{where} lacks the attribute(s) {', '.join(missing)}",
+                      "every attribute of the record format")
+    a, s, t = f.attrs, f["samples"], f["truth"]
+    for where, attrs, names in (("root", a, _ROOT_NUMBERS), ("samples", s.attrs,
+                                                             _SAMPLE_NUMBERS)):
+        for name in names:
+            value = np.asarray(attrs[name])
+            if value.shape != () or value.dtype.kind not in "iuf" or not np.isfinite(value):
+                raise bad(f"{where} attribute {name} = {value!r}", "one finite number")
+    version = int(a["format_version"])
+    if version > FORMAT_VERSION:
+        raise InputError(f"{str(path)!r} has record format version {version}; this "
+                         f"software reads up to {FORMAT_VERSION}, upgrade noisechain")
+    kind = _text(a["kind"])
+    shape = (int(a["n_samples"]), 2) if kind == "iq" else (int(a["n_samples"]),)
+    if not isinstance(s, h5py.Dataset) or s.dtype.kind not in "iu":
+        raise bad(f"samples are {getattr(s, 'dtype', 'a group')}, which can hold NaN or "
+                  "infinity", "a dataset of integer ADC counts")
+    if s.shape != shape:
+        raise bad(f"samples have shape {s.shape} for a {kind!r} record of "
+                  f"{int(a['n_samples'])} samples", f"shape {shape}")
+    if not isinstance(t.get("calibration"), h5py.Group):
+        raise bad("truth has no calibration group", "a group truth/calibration")
+    return a, s, t
+
+
+def _text(value):
+    return value.decode("utf-8") if isinstance(value, bytes) else str(value)
+
+
+def _plain(value):
+    if isinstance(value, np.generic):
+        return value.item()
+    return _text(value) if isinstance(value, (bytes, str)) else value

@@ -1,0 +1,149 @@
+"""The exact steady state of the linear model.
+
+For a stable system (:mod:`simulator.model.stability`) the stationary
+covariance comes from the Lyapunov equation A V + V Aᵀ + B N Bᵀ = 0, which is exact
+for the linear model at any coupling strength. Occupations follow from the
+quadrature variances, n = (⟨X²⟩ + ⟨Y²⟩ − 1)/2. Each mode's effective frequency
+and linewidth are read from the eigenvalue of A whose eigenvector lies most on
+that mode; the weak-coupling formulas of :mod:`simulator.linear.weak_coupling` are
+reported beside them as diagnostics.
+"""
+
+import dataclasses
+
+import numpy as np
+from scipy.optimize import linear_sum_assignment
+
+from simulator.linear import weak_coupling
+from simulator.model.system import as_system
+from simulator.model.units import angular, ordinary
+
+# Weak-coupling and exact occupations further apart than this flag strong coupling.
+STRONG_COUPLING_TOLERANCE = 0.10
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class ModeState:
+    """Steady-state and diagnostic quantities of one mechanical mode.
+
+    Rates are ordinary frequencies (Hz). ``optical_damping_hz`` is an energy
+    damping rate; ``optical_spring_hz`` the shift of the resonance frequency.
+    """
+
+    name: str
+    occupation: float
+    effective_frequency_hz: float
+    effective_linewidth_hz: float
+    anti_stokes_rate_hz: float  # A−/2π
+    stokes_rate_hz: float  # A+/2π
+    optical_damping_hz: float
+    optical_spring_hz: float
+    backaction_limit: float  # n_min
+    weak_coupling_occupation: float
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class SteadyState:
+    """Exact stationary state of the linear model."""
+
+    states: tuple
+    covariance: np.ndarray  # symmetrised, vacuum = ½·identity
+    cavity_occupation: float
+    modes: tuple  # ModeState per mechanical mode
+
+
+def steady_state(system):
+    """Exact steady state of a system's linear model.
+
+    Parameters
+    ----------
+    system : simulator.model.system.System
+        Or a scenario, built into one (:func:`simulator.model.system.as_system`).
+
+    Returns
+    -------
+    SteadyState
+
+    Raises
+    ------
+    OperatingPointError
+        If the operating point is unstable (no steady state exists).
+    """
+    system = as_system(system).require_stable()
+    scenario, point, model = system.scenario, system.point, system.model
+    v = model.covariance()
+    cavity_occupation = (v[0, 0] + v[1, 1] - 1.0) / 2.0
+    frequencies, linewidths = effective_mechanics(model, len(point.modes))
+    kappa, delta = angular([point.cavity_linewidth_hz, point.detuning_effective_hz])
+    kappa_in_fraction = 1 - point.external_linewidth_hz / point.cavity_linewidth_hz
+    n_cavity_bath = kappa_in_fraction * point.cavity_bath_occupation
+    modes = []
+    for j, mode in enumerate(point.modes):
+        s = 2 + 2 * j
+        rates = dict(g=float(angular(mode.coupling_rate_hz)), kappa=kappa, detuning=delta,
+                     frequency=float(angular(mode.frequency_hz)))
+        a_minus, a_plus = weak_coupling.scattering_rates(**rates)
+        modes.append(ModeState(
+            name=mode.name,
+            occupation=float((v[s, s] + v[s + 1, s + 1] - 1.0) / 2.0),
+            effective_frequency_hz=frequencies[j], effective_linewidth_hz=linewidths[j],
+            anti_stokes_rate_hz=float(ordinary(a_minus)),
+            stokes_rate_hz=float(ordinary(a_plus)),
+            optical_damping_hz=float(ordinary(a_minus - a_plus)),
+            optical_spring_hz=float(ordinary(weak_coupling.optical_spring(**rates))),
+            backaction_limit=float(weak_coupling.backaction_limit(**rates)),
+            weak_coupling_occupation=float(weak_coupling.weak_coupling_occupation(
+                **rates, linewidth=float(angular(mode.linewidth_hz)),
+                bath_occupation=mode.bath_occupation,
+                cavity_occupation=n_cavity_bath + _laser_occupation(scenario, point, mode)))))
+    return SteadyState(states=model.states, covariance=v,
+                       cavity_occupation=float(cavity_occupation), modes=tuple(modes))
+
+
+def _laser_occupation(scenario, point, mode):
+    """η_c n_c: the drive's classical noise at Ωm as an input occupation (0 without)."""
+    from simulator.model import laser_noise
+
+    if laser_noise.is_quiet(scenario):
+        return 0.0
+    share = point.external_linewidth_hz / point.cavity_linewidth_hz
+    return share * float(laser_noise.input_occupation(scenario, point, mode.frequency_hz))
+
+
+def effective_mechanics(model, n_modes):
+    """Effective frequency and linewidth (Hz) of each mechanical mode.
+
+    The eigenvalue λ chosen for each mode by :func:`mode_eigenvalues` gives
+    frequency |Im λ|/2π and energy linewidth −2 Re λ/2π.
+    """
+    chosen = mode_eigenvalues(model, n_modes)
+    return (tuple(float(x) for x in np.abs(chosen.imag) / (2 * np.pi)),
+            tuple(float(x) for x in -2 * chosen.real / (2 * np.pi)))
+
+
+def mode_eigenvalues(model, n_modes):
+    """Each mechanical mode's eigenvalue of the drift matrix (the one with Im λ ≥ 0).
+
+    Taken from the cavity–mechanics block alone (the first 2 + 2·modes
+    states): classical laser-noise filters drive that block and detection
+    states are driven by it, neither feeds back, so its eigenvalues are
+    exactly eigenvalues of the whole A, and a filter pole next to a mode
+    cannot be mistaken for it. Each mode is matched to the eigenvalue whose
+    eigenvector has the largest weight on that mode's quadratures, one
+    eigenvalue per mode (an assignment problem); past normal-mode splitting
+    the assignment picks the hybrid mode that is more mechanical.
+    """
+    size = 2 + 2 * n_modes
+    lam, vec = np.linalg.eig(model.A[:size, :size])
+    candidates = np.flatnonzero(lam.imag >= -1e-12 * np.abs(lam))
+    if len(candidates) < n_modes:
+        candidates = np.arange(len(lam))
+    weights = np.abs(vec) ** 2
+    weights /= weights.sum(axis=0, keepdims=True)
+    score = np.array([[weights[2 + 2 * j, k] + weights[3 + 2 * j, k] for k in candidates]
+                      for j in range(n_modes)])
+    rows, cols = linear_sum_assignment(-score) if n_modes else ((), ())
+    chosen = np.zeros(n_modes, dtype=complex)
+    for j, c in zip(rows, cols, strict=False):
+        chosen[j] = lam[candidates[c]]
+    return chosen

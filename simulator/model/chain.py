@@ -1,0 +1,373 @@
+"""The detection chain as extra inputs, states and outputs of the one linear model.
+
+:func:`detection_chain` takes the scenario's linear model (cavity and
+mechanics, outputs ``output.X/Y`` = the field leaving the port) and appends
+everything linear that lies between that field and the digitiser: detection
+loss, the heterodyne or homodyne receiver, an optional phase-preserving
+amplifier, the input-referred current noise of the electronics and a
+single-pole low-pass filter. The result is again one
+:class:`~simulator.model.statespace.StateSpace`, whose outputs are the record in
+shot-noise units; the analytic spectra, the stationary covariance and the
+time-domain records are all computed from it.
+
+Receivers (quadratures X, Y with vacuum variance ½; z = (X + iY)/√2):
+
+- ``iq`` heterodyne: z_d = √η z_out + √(1−η) z_v is mixed with a second,
+  independent noise z_a of density ½ (the vacuum of the 50:50 split, Caves
+  1982) or n_add (a phase-preserving amplifier with that added noise); the
+  record is w = I + iQ = (z_d + z_a)* plus current noise on each channel. The
+  complex conjugate, taken here and nowhere else, puts the anti-Stokes
+  sideband at positive frequency in an FFT or scipy.signal.welch.
+- ``if`` heterodyne: one real photocurrent r(t) = 2 Re[e^{iθt} u(t)],
+  u = z_d + z_a + current noise, θ = ±2π f_IF (local oscillator above/below
+  the drive). The model's outputs are Re u and Im u; θ enters the filter and
+  the sampling (:mod:`simulator.records.discretize`) and the rotation of each sample.
+- homodyne: r = 2 Re[e^{−iφ}(z_d + z_a)] + current noise = √2 X_φ for an ideal
+  detector, X_φ = cos φ X + sin φ Y.
+
+In every case the record's two-sided vacuum density is 1 per Hz (the unit
+``shot_noise_per_count`` refers to) when the electronics add nothing.
+
+References
+----------
+Caves, Phys. Rev. D 26, 1817 (1982) (added noise of phase-preserving
+amplifiers and of heterodyne detection).
+Yuen and Chan, Opt. Lett. 8, 177 (1983) (balanced homodyne detection).
+"""
+
+import dataclasses
+
+import numpy as np
+from scipy import constants
+
+from simulator.model.laser_noise import device_eigenvalues
+from simulator.model.statespace import StateSpace
+from simulator.model.units import angular, ordinary
+
+OVERSAMPLING = 2.5  # automatic sample rate: this many times the highest relevant frequency
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class DetectionChain:
+    """The scenario's model with the detection chain appended, and its scales.
+
+    Attributes
+    ----------
+    model : StateSpace
+        Outputs in shot-noise units: ``record.I, record.Q`` (iq),
+        ``record.envelope.re, record.envelope.im`` (if) or ``record`` (homodyne).
+    receiver : str
+        ``"iq"``, ``"if"`` or ``"homodyne"``.
+    carrier_rad_s : float
+        θ (rad/s) of r = 2 Re[e^{iθt} u] for the if receiver; 0 otherwise.
+    efficiency : float
+        Signal efficiency of the receiver (detection efficiency, halved for
+        single-ended detection).
+    added_quanta : float
+        Density of the extra circular noise z_a (½ for heterodyne without an
+        amplifier, n_add with one, 0 otherwise).
+    electronic_noise : float
+        Two-sided density of the current noise in record units, per real channel.
+    amperes_per_unit : float
+        Photocurrent (A) per record unit (per channel for iq).
+    volts_per_unit : float
+        Voltage at the digitiser (V) per record unit.
+    """
+
+    model: StateSpace
+    receiver: str
+    carrier_rad_s: float
+    efficiency: float
+    added_quanta: float
+    electronic_noise: float
+    amperes_per_unit: float
+    volts_per_unit: float
+    lo_photocurrent_a: float
+
+    @property
+    def record_kind(self):
+        """``"iq"`` (complex, shape (N, 2)) or ``"if"`` (real, shape (N,))."""
+        return "iq" if self.receiver == "iq" else "if"
+
+    def integrator_drift(self):
+        """Drift R of the integrate-and-dump integrator dρ = (R ρ + y) dt.
+
+        Zero (a plain integrator) except for the if receiver, where ρ rotates
+        at −θ so that e^{iθT} ρ(T) = ∫₀ᵀ e^{iθs} u ds.
+        """
+        p = len(self.model.outputs)
+        if self.receiver != "if":
+            return np.zeros((p, p))
+        t = self.carrier_rad_s
+        return np.array([[0.0, t], [-t, 0.0]])
+
+    def record_spectrum(self, frequency_hz):
+        """Two-sided density (shot-noise units per Hz) of the continuous record.
+
+        On the axis of an FFT or ``scipy.signal.welch(..., return_onesided=False)``
+        of the stored record: for iq, f > 0 is anti-Stokes; for if and homodyne
+        the record is real and the density even in f. For if it is the time
+        average of the cyclostationary photocurrent.
+
+        Notes
+        -----
+        The model's spectrum S(ω) = H N H† uses the kernel e^{+iωt}
+        (x(t) = ∫dω/2π e^{−iωt} x(ω)), the FFT the kernel e^{−iωt}, so the
+        record's density at f is the model's at ω = −2πf. For if,
+        r = e^{iθt}u + e^{−iθt}u* gives S_r(f) = S_u(θ − 2πf) + S_u(θ + 2πf).
+        """
+        f = np.asarray(frequency_hz, dtype=float)
+        if self.receiver == "homodyne":
+            return self.model.output_spectrum(-angular(f))[..., 0, 0].real
+        c = np.array([1.0, 1.0j])
+        if self.receiver == "iq":
+            return _project(self.model.output_spectrum(-angular(f)), c)
+        w, t = angular(f), self.carrier_rad_s
+        return (_project(self.model.output_spectrum(t - w), c)
+                + _project(self.model.output_spectrum(t + w), c))
+
+    def sampled_spectrum(self, frequency_hz, sample_rate_hz, aliases=400):
+        """Density of the integrate-and-dump samples: aliased continuous × sinc².
+
+        S_n(f) = Σ_k S(f + k fs) sinc²((f + k fs)/fs), the exact density of
+        samples that average the continuous record over each interval
+        1/fs. The white part of S (its limit at high frequency) is summed in
+        closed form (Σ_k sinc²(x + k) = 1); the rest falls at least as 1/f³
+        after the sinc² and is summed over |k| ≤ ``aliases``, symmetrically so
+        that its part odd in f (∝ 1/f) cancels between k and −k.
+        """
+        f = np.asarray(frequency_hz, dtype=float)
+        fs = float(sample_rate_hz)
+        white = self._white_density()
+        k = np.arange(-aliases, aliases + 1)
+        total = np.full(f.shape, white)
+        for chunk in np.array_split(k, max(1, k.size // 64)):
+            g = f[..., None] + chunk * fs
+            total += ((self.record_spectrum(g) - white) * np.sinc(g / fs) ** 2).sum(axis=-1)
+        return total
+
+    def _white_density(self):
+        d = self.model.D @ self.model.N @ self.model.D.T
+        if self.receiver == "homodyne":
+            return float(d[0, 0])
+        if self.receiver == "iq":
+            return float(d[0, 0] + d[1, 1])
+        return 2.0 * float(d[0, 0] + d[1, 1])
+
+    @staticmethod
+    def sample_covariance(discrete):
+        """Covariance of one sample of the outputs, in chain units (Γ V Γᵀ + output noise).
+
+        ``discrete`` is the sampled chain model (:func:`simulator.records.discretize.discretize`).
+        """
+        return (discrete.output @ discrete.state_covariance @ discrete.output.T
+                + discrete.output_noise)
+
+    def record_std(self, discrete):
+        """Largest standard deviation (V) of a sample, over channels and carrier phases.
+
+        For if records r = 2(cos φ Re ρ − sin φ Im ρ), whose variance is at
+        most 4 times the largest eigenvalue of the covariance of (Re ρ, Im ρ).
+        """
+        cov = self.sample_covariance(discrete)
+        if self.receiver == "if":
+            var = 4.0 * float(np.linalg.eigvalsh(cov).max())
+        else:
+            var = float(np.max(np.diag(cov)))
+        return np.sqrt(var) * self.volts_per_unit
+
+    def calibration(self):
+        """Conversion factors with their units in the key names."""
+        return {"detection_efficiency": self.efficiency,
+                "added_noise_quanta": self.added_quanta,
+                "electronic_noise_shot_noise_units": self.electronic_noise,
+                "amperes_per_shot_noise_unit": self.amperes_per_unit,
+                "volts_per_shot_noise_unit": self.volts_per_unit,
+                "local_oscillator_photocurrent_a": self.lo_photocurrent_a}
+
+
+def _project(s, c):
+    """c S c† for a projection vector c over the last two axes."""
+    return np.einsum("i,...ij,j->...", c, s, c.conj()).real
+
+
+def receiver_of(scenario):
+    """``"iq"``, ``"if"`` or ``"homodyne"`` from the scenario's detection and record."""
+    if scenario.detection.scheme == "homodyne":
+        return "homodyne"
+    return scenario.record.kind or "iq"
+
+
+def detection_chain(scenario, point, model):
+    """The scenario's linear model with its detection chain appended.
+
+    Built once per :class:`simulator.model.system.System` (its ``chain``); call
+    that rather than this.
+
+    Parameters
+    ----------
+    scenario : simulator.scenario.loader.Scenario
+    point : simulator.model.operating_point.OperatingPoint
+    model : simulator.model.statespace.StateSpace
+        The model of :func:`simulator.model.optomechanics.linear_model`.
+
+    Returns
+    -------
+    DetectionChain
+
+    Notes
+    -----
+    New inputs (symmetrised intensities): ``loss.X/Y`` (½, the vacuum mixed in
+    by the efficiency η < 1), ``added.X/Y`` (n_a, the heterodyne split or the
+    amplifier), ``electronics.*`` (the current noise). With a low-pass of
+    corner ω_c each record channel s gets a state f, df = ω_c (s − f) dt; for
+    the if receiver the pair (Re f, Im f) also rotates at θ, the
+    baseband-equivalent of a real low-pass acting on the real photocurrent.
+    The photocurrent per record unit is e √(b Φ_LO), Φ_LO = η P_LO/(h f_LO)
+    the local oscillator's photoelectron flux (the local oscillator is taken
+    to see the same detector efficiency as the signal) and b = 1 (balanced)
+    or ½ (single-ended: one port of a 50:50 combiner, which also halves η).
+    """
+    det, el = scenario.detection, scenario.electronics
+    receiver = receiver_of(scenario)
+    share = 1.0 if det.balanced else 0.5
+    eta = det.efficiency * share
+    added = el.amplifier_added_quanta
+    if receiver == "iq" and added == 0.0:
+        added = 0.5
+    side = 1.0 if det.local_oscillator_side == "above" else -1.0
+    f_lo = scenario.drive.carrier_frequency_hz + side * det.intermediate_frequency_hz
+    flux = det.efficiency * det.local_oscillator_power_w / (constants.h * f_lo)
+    amps = constants.e * np.sqrt(share * flux)
+    electronic = el.current_noise_a_per_sqrt_hz ** 2 / 2.0 / amps ** 2
+
+    builder = _Builder(model)
+    x_d = builder.detected(np.sqrt(eta))
+    if added > 0:
+        a = builder.add_inputs(("added.X", "added.Y"), added)
+        x_d = [_add(x_d[0], a[0]), _add(x_d[1], a[1])]
+    if receiver == "iq":
+        channels = [x_d[0] / np.sqrt(2), -x_d[1] / np.sqrt(2)]
+        names, noise_names, noise = ("record.I", "record.Q"), ("electronics.I",
+                                                               "electronics.Q"), electronic
+    elif receiver == "if":
+        channels = [x_d[0] / np.sqrt(2), x_d[1] / np.sqrt(2)]
+        names = ("record.envelope.re", "record.envelope.im")
+        noise_names, noise = ("electronics.re", "electronics.im"), electronic / 4.0
+    else:
+        phi = det.quadrature_angle_rad
+        channels = [np.sqrt(2) * (np.cos(phi) * x_d[0] + np.sin(phi) * x_d[1])]
+        names, noise_names, noise = ("record",), ("electronics",), electronic
+    if noise > 0:
+        e = builder.add_inputs(noise_names, noise)
+        channels = [_add(ch, ei) for ch, ei in zip(channels, e, strict=True)]
+    theta = float(angular(side * det.intermediate_frequency_hz)) if receiver == "if" else 0.0
+    chain_model = builder.finish(channels, names, el.bandwidth_hz, theta)
+    return DetectionChain(model=chain_model, receiver=receiver, carrier_rad_s=theta,
+                          efficiency=eta, added_quanta=added, electronic_noise=electronic,
+                          amperes_per_unit=float(amps),
+                          volts_per_unit=float(amps * el.transimpedance_ohm),
+                          lo_photocurrent_a=float(constants.e * flux))
+
+
+class _Builder:
+    """Collects signal rows over (base states | all inputs) while inputs are added."""
+
+    def __init__(self, model):
+        self.base = model
+        self.inputs = list(model.inputs)
+        self.intensity = []
+        self.sources = list(model.sources)
+
+    def _row(self, state_part, input_part):
+        return np.concatenate([state_part, input_part])
+
+    def detected(self, gain):
+        """Rows of the quadratures at the detector, X_d and Y_d."""
+        rows = [gain * self._row(self.base.C[i], self.base.D[i]) for i in range(2)]
+        if gain < 1.0:
+            loss = self.add_inputs(("loss.X", "loss.Y"), 0.5, "detection loss vacuum")
+            rows = [_add(r, np.sqrt(1 - gain**2) * lo) for r, lo in zip(rows, loss, strict=True)]
+        return rows
+
+    def add_inputs(self, names, intensity, source=None):
+        """Append white inputs of the given intensity; return their unit rows."""
+        start = len(self.inputs)
+        self.inputs += list(names)
+        self.intensity.append(np.full(len(names), float(intensity)))
+        width = len(self.base.states) + len(self.inputs)
+        rows = []
+        for k in range(len(names)):
+            row = np.zeros(width)
+            row[len(self.base.states) + start + k] = 1.0
+            rows.append(row)
+        label = source or {"added": "added noise (heterodyne split or amplifier)",
+                           "electronics": "electronics current noise"}[names[0].split(".")[0]]
+        self.sources.append((label, tuple(range(start, start + len(names)))))
+        return rows
+
+    def finish(self, channels, names, bandwidth_hz, theta):
+        base, n0 = self.base, len(self.base.states)
+        m = len(self.inputs)
+        rows = np.array([_pad(ch, n0 + m) for ch in channels])
+        c_sig, d_sig = rows[:, :n0], rows[:, n0:]
+        m0 = len(base.inputs)
+        N = np.zeros((m, m))
+        N[:m0, :m0] = base.N
+        if m > m0:
+            N[m0:, m0:] = np.diag(np.concatenate(self.intensity))
+        p = len(names)
+        if bandwidth_hz is None:
+            A, B = base.A, np.hstack([base.B, np.zeros((n0, m - m0))])
+            return StateSpace(A=A, B=B, N=N, C=c_sig, D=d_sig, states=base.states,
+                              inputs=tuple(self.inputs), outputs=names,
+                              sources=tuple(self.sources),
+                              coupling=base.coupling)
+        wc = float(angular(bandwidth_hz))
+        filt = -wc * np.eye(p)
+        if p == 2:
+            filt += np.array([[0.0, theta], [-theta, 0.0]])
+        A = np.block([[base.A, np.zeros((n0, p))], [wc * c_sig, filt]])
+        B = np.vstack([np.hstack([base.B, np.zeros((n0, m - m0))]), wc * d_sig])
+        coupling = np.zeros_like(A)
+        coupling[:n0, :n0] = base.coupling
+        states = base.states + tuple(f"filter.{name.split('.', 1)[1]}" if "." in name
+                                     else "filter" for name in names)
+        C = np.hstack([np.zeros((p, n0)), np.eye(p)])
+        return StateSpace(A=A, B=B, N=N, C=C, D=np.zeros((p, m)), states=states,
+                          inputs=tuple(self.inputs), outputs=names,
+                          sources=tuple(self.sources), coupling=coupling)
+
+
+def _pad(row, width):
+    return np.concatenate([row, np.zeros(width - row.size)])
+
+
+def _add(a, b):
+    """Sum of two signal rows, the shorter one padded with zeros (later inputs)."""
+    width = max(a.size, b.size)
+    return _pad(a, width) + _pad(b, width)
+
+
+def automatic_sample_rate(chain, intermediate_frequency_hz=0.0):
+    """Sample rate (Hz) that takes in every resonance of the cavity and mechanics.
+
+    Each eigenvalue λ of the cavity–mechanics drift is a line at |Im λ| with
+    half-width |Re λ|; the highest relevant frequency is the largest
+    |Im λ| + 3|Re λ|, plus the intermediate frequency for a real if record.
+    The rate is 2.5 times that (complex baseband: the band ±fs/2; real: 0 to
+    fs/2), rounded up to 1, 2, 2.5 or 5 times a power of ten.
+    """
+    lam = device_eigenvalues(chain.model, also=("filter",))
+    top = float(ordinary(np.max(np.abs(lam.imag) + 3.0 * np.abs(lam.real))))
+    if chain.receiver == "if":
+        top += float(intermediate_frequency_hz)
+    return _round_up(OVERSAMPLING * top)
+
+
+def _round_up(x):
+    decade = 10.0 ** np.floor(np.log10(x))
+    for step in (1.0, 2.0, 2.5, 5.0, 10.0):
+        if step * decade >= x * (1 - 1e-12):
+            return float(step * decade)
+    return float(10 * decade)

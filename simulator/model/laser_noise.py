@@ -1,0 +1,277 @@
+"""Classical laser noise and the calibration tone as parts of the one linear model.
+
+The drive's phase φ(t) = φ_W(t) + φ_S(t) has a random-walk part φ_W from white
+frequency noise δω = φ̇_W (a Lorentzian line of FWHM Δν_L) and a stationary
+part φ_S (a flat floor over a band and a resonant peak, each white noise
+through a filter). With the input written ā_in e^{−iφ} (frequency ω_L + φ̇),
+the model works in the frame that co-rotates with φ_W, where
+
+- δω shifts the detuning, exactly as cavity-frequency motion does:
+  d(δa)/dt gains iᾱ δω, i.e. dY/dt gains √2 ᾱ δω (ᾱ real), the place where
+  the mechanics enters through 2g q; no state is needed and φ_W never appears;
+- φ_S and the tone φ_tone = φ0 cos Ω t remain input modulations,
+  δa_in = −iā_in (φ_S + φ_tone), entering through √κ_ex and the direct
+  reflection; white relative intensity noise ε adds δa_in = ā_in ε/2;
+- the detected field is referred to the local oscillator (LO):
+  measured = δa_out − iā_out ρ, ā_out = ā_in − √κ_ex ᾱ the reflected carrier,
+  ρ = [φ_W(t) − φ_W,LO(t)] − φ_S,LO(t).
+
+LO phase references (``detection.local_oscillator_source``):
+
+- common (a copy of the drive, extra path delay τ): φ_LO(t) = φ(t − τ). The
+  delay is replaced by its first-order Padé approximant
+  e^{−sτ} ≈ (1 − sτ/2)/(1 + sτ/2), so φ_W(t) − φ_W(t − τ) = τ δω/(1 + sτ/2):
+  one state ξ, dξ/dt = −(2/τ)ξ + 2δω − (4/τ)φ_S, ρ = ξ + φ_S. Its variance
+  for white δω is exactly the phase diffusion 2πΔν_L τ; its spectrum errs by
+  (ωτ)²/6 at ωτ ≪ 1 (exact: 4 sin²(ωτ/2)/ω²), so ωτ ≤ 0.5 is required at
+  every mechanical frequency. τ = 0: ρ = −φ_S, no state.
+- locked (a separate source with a first-order phase lock of bandwidth ω_B):
+  dφ_LO/dt = ω_B (φ − φ_LO), so dρ/dt = −ω_B ρ + δω − ω_B φ_S.
+- independent (a separate source): ρ = φ_W − φ_S,LO. φ_W is a random walk —
+  the beat note diffuses and no stationary spectrum exists, so white
+  frequency noise is refused (on the drive and on the LO alike); the LO's own
+  stationary noise φ_S,LO (``[detection.local_oscillator_phase_noise]``:
+  floor and peak, states ``laser.lo.*``) beats with the reflected carrier and
+  adds imprecision only: it never reaches the cavity.
+
+The tone is on the drive path only (the electro-optic modulator sits after
+the LO is split off), so the LO never carries it. LO intensity noise is
+cancelled by balanced detection (common practice) and not modelled.
+
+Every classical input is a white input of the model, named ``laser.*``, with
+its own two-sided intensity (no vacuum ½); the tone input has intensity 0
+and is used only through its transfer function (lines in spectra, a
+sinusoid in records).
+
+References
+----------
+Rabl, Genes, Hammerer, Aspelmeyer, Phys. Rev. A 80, 063819 (2009) (phase
+noise in optomechanical cooling).
+Jayich et al., New J. Phys. 14, 115018 (2012); Safavi-Naeini et al., New J.
+Phys. 15, 035007 (2013) (laser noise in cooling and sideband thermometry).
+Di Domenico, Schilt, Thomann, Appl. Opt. 49, 4801 (2010) (linewidth and
+frequency-noise density).
+Gorodetsky et al., Opt. Express 18, 23236 (2010) (phase-modulation calibration).
+"""
+
+import numpy as np
+
+from simulator.model.laser_spectra import (  # noqa: F401  (the shapes are part of this module's API)
+    floor_shape,
+    frequency_noise_density,
+    input_occupation,
+    peak_shape,
+    phase_noise_density,
+)
+from simulator.model.statespace import StateSpace
+from simulator.model.units import angular
+
+PREFIX = "laser."
+TONE_INPUT = "laser.tone"
+_SQRT2 = np.sqrt(2.0)
+
+
+def is_quiet(scenario):
+    """True when neither the drive nor the local oscillator carries classical noise or a tone."""
+    d = scenario.drive
+    return all(x == type(x)() for x in (d.phase_noise, d.intensity_noise,
+                                        d.calibration_tone,
+                                        scenario.detection.local_oscillator_phase_noise))
+
+
+# -- the state-space model ----------------------------------------------------------
+
+def _quad(c):
+    """Quadratures (X, Y) = √2 (Re, Im) of a complex field amplitude."""
+    return _SQRT2 * np.array([np.real(c), np.imag(c)])
+
+
+def _floor_filter(noise):
+    """(A, B, C) with φ = C x for white input: Butterworth high-pass then low-pass."""
+    wh = float(angular(noise.floor_high_hz))
+    low = ([[0.0, wh], [-wh, -_SQRT2 * wh]], [0.0, wh], [1.0, 0.0])
+    if noise.floor_low_hz == 0:
+        return tuple(np.array(x) for x in low)
+    wl = float(angular(noise.floor_low_hz))
+    a = np.array([[0.0, wl, 0.0, 0.0], [-wl, -_SQRT2 * wl, 0.0, 0.0],
+                  [0.0, 0.0, 0.0, wh], [-wh, -_SQRT2 * wh, -wh, -_SQRT2 * wh]])
+    return a, np.array([0.0, wl, 0.0, wh]), np.array([0.0, 0.0, 1.0, 0.0])
+
+
+def _peak_filter(noise):
+    """(A, B, C) of γ s/(s² + γ s + ω0²), states (ω0 z, dz/dt)."""
+    w0, gamma = (float(x) for x in angular([noise.peak_frequency_hz, noise.peak_width_hz]))
+    return (np.array([[0.0, w0], [-w0, -gamma]]), np.array([0.0, 1.0]),
+            np.array([0.0, gamma]))
+
+
+class _Blocks:
+    """Laser states and inputs being appended to a model, with their couplings."""
+
+    def __init__(self):
+        self.states, self.inputs, self.sources, self.intensity = [], [], [], []
+        self.a = np.zeros((0, 0))
+        self.b = {}  # input index -> column over the laser states
+        self.cavity = {}  # input index -> cavity rows (X, Y)
+        self.output = {}  # input index -> output rows (X, Y)
+
+    def add_input(self, name, intensity, source, cavity=None, output=None):
+        k = len(self.inputs)
+        self.inputs.append(name)
+        self.intensity.append(float(intensity))
+        self.sources.append((source, k))
+        self.cavity[k] = np.zeros(2) if cavity is None else cavity
+        self.output[k] = np.zeros(2) if output is None else output
+        return k
+
+    def add_states(self, names, a):
+        n = len(self.states)
+        self.states += list(names)
+        grown = np.zeros((n + len(names),) * 2)
+        grown[:n, :n] = self.a
+        grown[n:, n:] = a
+        self.a = grown
+        return slice(n, n + len(names))
+
+    def drive(self, k, rows, column):
+        col = self.b.setdefault(k, np.zeros(0))
+        full = np.zeros(len(self.states))
+        full[:col.size] = col
+        full[rows] += column
+        self.b[k] = full
+
+
+def laser_model(model, scenario, point):
+    """``model`` with the drive's classical noise, LO reference and tone appended.
+
+    Parameters
+    ----------
+    model : simulator.model.statespace.StateSpace
+        The cavity–mechanics model of :func:`simulator.model.optomechanics.linear_model`.
+    scenario : simulator.scenario.loader.Scenario
+    point : simulator.model.operating_point.OperatingPoint
+
+    Returns
+    -------
+    StateSpace
+        New states ``laser.*`` after the mechanics, new inputs ``laser.*``
+        after the baths; the outputs and the optomechanical ``coupling`` are
+        those of ``model``. See the module docstring for the equations.
+    """
+    noise, det = scenario.drive.phase_noise, scenario.detection
+    kappa, kappa_ex, delta = (float(x) for x in angular([
+        point.cavity_linewidth_hz, point.external_linewidth_hz, point.detuning_effective_hz]))
+    alpha = np.sqrt(point.photon_number)
+    a_in = alpha * (kappa / 2 - 1j * delta) / np.sqrt(kappa_ex)
+    a_out = alpha * (kappa / 2 - kappa_ex - 1j * delta) / np.sqrt(kappa_ex)
+    port, direct, ref = np.sqrt(kappa_ex) * _quad(-1j * a_in), _quad(-1j * a_in), _quad(
+        -1j * a_out)
+    blocks = _Blocks()
+    phase_rows = _stationary_shapes(blocks, noise, "laser.", "laser")  # φ_S = Σ C x
+    lo_rows = _stationary_shapes(blocks, det.local_oscillator_phase_noise, "laser.lo.",
+                                 "local-oscillator")  # its own φ_S,LO
+    source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
+    reference = None
+    if source == "common" and tau > 0:
+        reference = (blocks.add_states(["laser.reference"], [[-2.0 / tau]]), 2.0, 4.0 / tau)
+    elif source == "locked":
+        wb = float(angular(det.local_oscillator_lock_bandwidth_hz))
+        reference = (blocks.add_states(["laser.reference"], [[-wb]]), 1.0, wb)
+    if noise.linewidth_hz > 0:
+        k = blocks.add_input("laser.frequency", frequency_noise_density(noise.linewidth_hz),
+                             "laser frequency noise", cavity=_quad(1j * alpha))
+        if reference is not None:
+            blocks.drive(k, reference[0], reference[1])
+    rin = scenario.drive.intensity_noise.relative_intensity_noise_per_hz
+    if rin > 0:
+        blocks.add_input("laser.intensity", rin / 2, "laser intensity noise",
+                         cavity=np.sqrt(kappa_ex) * _quad(a_in / 2), output=_quad(a_in / 2))
+    if scenario.drive.calibration_tone.depth_rad > 0:
+        blocks.add_input(TONE_INPUT, 0.0, "calibration tone", cavity=port, output=direct)
+    return _assemble(model, blocks, phase_rows, lo_rows, reference, source, tau,
+                     port=port, direct=direct, ref=ref,
+                     prompt=_quad(-1j * np.sqrt(kappa_ex) * alpha))
+
+
+def _stationary_shapes(blocks, noise, prefix, who):
+    """Append the floor and peak of ``noise``; return their (state slice, C row) pairs."""
+    rows_out = []
+    if noise.floor_rad2_per_hz > 0:
+        a, b, c = _floor_filter(noise)
+        rows = blocks.add_states([f"{prefix}floor.{i}" for i in range(len(b))], a)
+        k = blocks.add_input(f"{prefix}floor", noise.floor_rad2_per_hz / 2,
+                             f"{who} phase-noise floor")
+        blocks.drive(k, rows, b)
+        rows_out.append((rows, c))
+    if noise.peak_rad2_per_hz > 0:
+        a, b, c = _peak_filter(noise)
+        rows = blocks.add_states([f"{prefix}peak.0", f"{prefix}peak.1"], a)
+        k = blocks.add_input(f"{prefix}peak", noise.peak_rad2_per_hz / 2,
+                             f"{who} relaxation-oscillation peak" if who == "laser"
+                             else f"{who} phase-noise peak")
+        blocks.drive(k, rows, b)
+        rows_out.append((rows, c))
+    return rows_out
+
+
+def _assemble(model, blocks, phase_rows, lo_rows, reference, source, tau, *, port, direct,
+              ref, prompt):
+    """One StateSpace from the base model and the laser blocks."""
+    n0, m0 = len(model.states), len(model.inputs)
+    nl, ml = len(blocks.states), len(blocks.inputs)
+    n, m = n0 + nl, m0 + ml
+    a = np.zeros((n, n))
+    a[:n0, :n0] = model.A
+    a[n0:, n0:] = blocks.a
+    b = np.zeros((n, m))
+    b[:n0, :m0] = model.B
+    c = np.zeros((len(model.outputs), n))
+    c[:, :n0] = model.C
+    d = np.zeros((len(model.outputs), m))
+    d[:, :m0] = model.D
+    for k in range(ml):
+        b[0:2, m0 + k] = blocks.cavity[k]
+        d[:, m0 + k] = blocks.output[k]
+        if k in blocks.b:
+            b[n0:n0 + blocks.b[k].size, m0 + k] = blocks.b[k]
+    phase = np.zeros(nl)  # φ_S as a row over the laser states
+    for rows, row in phase_rows:
+        phase[rows] = row
+    a[0:2, n0:] = np.outer(port, phase)
+    if source == "common" and tau == 0:
+        c[:, n0:] += np.outer(prompt, phase)  # −iā_in φ_S + iā_out φ_S = −i√κ_ex ᾱ φ_S
+    elif reference is None:
+        c[:, n0:] += np.outer(direct, phase)
+    else:
+        rows, _, gain = reference
+        r = rows.start
+        a[n0 + r, n0:] += -gain * phase
+        c[:, n0 + r] += ref
+        c[:, n0:] += np.outer(direct + (ref if source == "common" else 0.0), phase)
+    for rows, row in lo_rows:  # ρ gains −φ_S,LO: the measured field gains +iā_out φ_S,LO
+        c[:, n0 + rows.start:n0 + rows.stop] -= np.outer(ref, row)
+    n_total = np.zeros((m, m))
+    n_total[:m0, :m0] = model.N
+    n_total[m0:, m0:] = np.diag(blocks.intensity)
+    coupling = np.zeros((n, n))
+    coupling[:n0, :n0] = model.coupling
+    sources = tuple(model.sources) + tuple((name, (m0 + k,)) for name, k in blocks.sources)
+    return StateSpace(A=a, B=b, N=n_total, C=c, D=d, states=model.states + tuple(
+        blocks.states), inputs=model.inputs + tuple(blocks.inputs), outputs=model.outputs,
+        sources=sources, coupling=coupling)
+
+
+def vacuum_intensity(model):
+    """Vacuum part of each input's intensity: ½ for quantum inputs, 0 for ``laser.*``."""
+    return np.array([0.0 if name.startswith(PREFIX) else 0.5 for name in model.inputs])
+
+
+def device_eigenvalues(model, also=()):
+    """Eigenvalues of the drift without the ``laser.*`` states (and any prefix in ``also``).
+
+    The laser-noise filters drive the cavity but are not driven by it, so the
+    drift is block triangular and these are exactly the cavity–mechanics
+    eigenvalues: what sets the default spectrum span and the sample rate.
+    """
+    keep = [i for i, s in enumerate(model.states) if not s.startswith((PREFIX, *also))]
+    return np.linalg.eigvals(model.A[np.ix_(keep, keep)])

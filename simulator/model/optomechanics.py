@@ -1,0 +1,103 @@
+"""The linearised optomechanical model of a scenario, as one :class:`StateSpace`.
+
+In the frame rotating at the drive, with fluctuations around the operating
+point (ħ = 1, angular frequencies),
+
+    H_lin = −Δ a†a + Σ_j [Ωj b_j†b_j − g_j (a + a†)(b_j + b_j†)],   g_j = g0_j √n̄,
+
+and quadratures X = (a + a†)/√2, Y = (a − a†)/(i√2) (vacuum variance ½) for
+the cavity and q_j, p_j for each mode. Per mode this gives the drift
+
+    d/dt (X, Y, q, p) = [[−κ/2, −Δ, 0, 0], [Δ, −κ/2, 2g, 0],
+                         [0, 0, −Γm/2, Ωm], [2g, 0, −Ωm, −Γm/2]] (X, Y, q, p) + noise,
+
+with Δ the effective detuning. The phase of the intracavity field is chosen
+real, so the amplitude quadrature of the fluctuations is X.
+
+Noise inputs, each a pair of white quadratures with symmetrised intensity n + ½:
+the external (driven and detected) port with rate κ_ex and vacuum, the internal
+loss with rate κ − κ_ex and occupation ``cavity.bath_occupation``, and one bath
+per mode with rate Γm and its thermal occupation. The outputs are the
+quadratures of the field leaving the external port, a_out = a_in − √κ_ex a.
+
+Mechanical damping is the symmetric (rotating-wave) form, damping q and p
+alike at Γm/2 each; it differs from Brownian (velocity) damping at order
+Γm/Ωm, which is negligible for the high-Q modes this tool is built for.
+
+References
+----------
+Aspelmeyer, Kippenberg, Marquardt, Rev. Mod. Phys. 86, 1391 (2014), Secs. II
+and VII (linearised dynamics and input-output theory).
+"""
+
+import numpy as np
+
+from simulator.model import laser_noise
+from simulator.model.statespace import StateSpace
+from simulator.model.units import angular
+
+CAVITY_STATES = ("cavity.X", "cavity.Y")
+OUTPUTS = ("output.X", "output.Y")
+
+
+def linear_model(scenario, point):
+    """Build the linearised model of ``scenario`` around its operating point.
+
+    Built once per :class:`simulator.model.system.System` (its ``model``); call
+    that rather than this.
+
+    Parameters
+    ----------
+    scenario : simulator.scenario.loader.Scenario
+    point : simulator.model.operating_point.OperatingPoint
+
+    Returns
+    -------
+    simulator.model.statespace.StateSpace
+        States ``cavity.X, cavity.Y, <mode>.q, <mode>.p, ...``; inputs in pairs
+        ``external.X/Y, internal.X/Y, <mode>.bath.q/p``; outputs ``output.X/Y``.
+        When the drive carries classical noise or a calibration tone,
+        :func:`simulator.model.laser_noise.laser_model` appends ``laser.*`` states
+        and inputs; otherwise the model is exactly the one above.
+    """
+    kappa, kappa_ex, delta = angular([point.cavity_linewidth_hz,
+                                      point.external_linewidth_hz,
+                                      point.detuning_effective_hz])
+    kappa_in = max(kappa - kappa_ex, 0.0)
+    n_modes = len(point.modes)
+    n = 2 + 2 * n_modes
+    m = 4 + 2 * n_modes
+    A = np.zeros((n, n))
+    coupling = np.zeros((n, n))
+    B = np.zeros((n, m))
+    N = np.zeros((m, m))
+    A[0:2, 0:2] = [[-kappa / 2, -delta], [delta, -kappa / 2]]
+    B[0:2, 0:2] = np.sqrt(kappa_ex) * np.eye(2)
+    B[0:2, 2:4] = np.sqrt(kappa_in) * np.eye(2)
+    N[0:2, 0:2] = 0.5 * np.eye(2)
+    N[2:4, 2:4] = (point.cavity_bath_occupation + 0.5) * np.eye(2)
+    states, inputs = list(CAVITY_STATES), ["external.X", "external.Y",
+                                           "internal.X", "internal.Y"]
+    sources = [("external port vacuum", (0, 1)),
+               ("internal loss bath", (2, 3))]
+    for j, mode in enumerate(point.modes):
+        s, i = 2 + 2 * j, 4 + 2 * j
+        om, gm, g = angular([mode.frequency_hz, mode.linewidth_hz, mode.coupling_rate_hz])
+        A[s:s + 2, s:s + 2] = [[-gm / 2, om], [-om, -gm / 2]]
+        coupling[1, s] = coupling[s + 1, 0] = 2 * g
+        B[s:s + 2, i:i + 2] = np.sqrt(gm) * np.eye(2)
+        N[i:i + 2, i:i + 2] = (mode.bath_occupation + 0.5) * np.eye(2)
+        states += [f"{mode.name}.q", f"{mode.name}.p"]
+        inputs += [f"{mode.name}.bath.q", f"{mode.name}.bath.p"]
+        sources.append((f"{mode.name} thermal bath", (i, i + 1)))
+    A = A + coupling
+    C = np.zeros((2, n))
+    C[:, 0:2] = -np.sqrt(kappa_ex) * np.eye(2)
+    D = np.zeros((2, m))
+    D[:, 0:2] = np.eye(2)
+    model = StateSpace(A=A, B=B, N=N, C=C, D=D, states=tuple(states),
+                       inputs=tuple(inputs), outputs=OUTPUTS, sources=tuple(sources),
+                       coupling=coupling)
+    if laser_noise.is_quiet(scenario):
+        return model
+    return laser_noise.laser_model(model, scenario, point)

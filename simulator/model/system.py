@@ -1,0 +1,114 @@
+"""One built system per scenario: what every stage after the scenario takes.
+
+A :class:`System` is built once from a :class:`simulator.scenario.loader.Scenario`:
+the operating point (intracavity field, static shift, bistability, g = g0·√n̄,
+bath occupations), the linear state-space model with its named states and
+signals (cavity, mechanical modes, laser-noise states), and the stability
+verdict; the detection chain (losses, local oscillator, amplifier,
+electronics, the record's channels) is built on first use and kept.
+Steady state, spectra, sideband summary, noise budget, records, feasibility
+and the master-equation comparison all take this object; none of them
+rebuilds the operating point or the model it was handed.
+
+A System is immutable, like the scenario it holds. New ones are derived by
+path (:meth:`System.replace`); a change that cannot alter the physics (the
+record's duration or chunking, its seed) keeps the operating point and model.
+"""
+
+import functools
+
+from simulator.model.chain import detection_chain
+from simulator.model.operating_point import operating_point
+from simulator.model.optomechanics import linear_model
+from simulator.model.stability import require_stable, stability
+
+# Scenario paths that do not change the operating point, the model or its chain.
+_RECORD_ONLY = ("record.duration_s", "record.chunk_samples", "record.store_mechanics",
+                "record.in_run", "scenario.seed", "scenario.name", "scenario.description")
+
+
+class System:
+    """A scenario built once: operating point, linear model, stability, chain, steady state.
+
+    Parameters
+    ----------
+    scenario : simulator.scenario.loader.Scenario
+
+    Attributes
+    ----------
+    scenario : Scenario
+    point : simulator.model.operating_point.OperatingPoint
+    model : simulator.model.statespace.StateSpace
+        The device model: cavity quadratures, mechanical modes, laser-noise states.
+    stability : simulator.model.stability.Stability
+    chain : simulator.model.chain.DetectionChain
+        The model extended by the detection chain to the record's channels
+        (built on first use).
+    """
+
+    def __init__(self, scenario, *, _parts=None):
+        point, model, verdict = _parts or _build(scenario)
+        for name, value in (("scenario", scenario), ("point", point), ("model", model),
+                            ("stability", verdict)):
+            object.__setattr__(self, name, value)
+
+    def __setattr__(self, name, value):
+        raise AttributeError(f"a System is immutable; derive a new one with "
+                             f"System.replace (tried to set {name!r})")
+
+    def __repr__(self):
+        return (f"System({self.scenario.scenario.name!r}, {len(self.point.modes)} mode(s), "
+                f"{len(self.model.states)} states, "
+                f"{'stable' if self.stability.stable else 'unstable'})")
+
+    @property
+    def stable(self):
+        """True when every eigenvalue of the drift matrix decays."""
+        return self.stability.stable
+
+    def require_stable(self):
+        """This system, or :class:`simulator.errors.OperatingPointError` if it is unstable."""
+        require_stable(self.stability)
+        return self
+
+    @functools.cached_property
+    def chain(self):
+        """The model extended by the detection chain (built on first use, then kept)."""
+        return detection_chain(self.scenario, self.point, self.model)
+
+    def replace(self, path, value):
+        """A new System of the scenario with ``path`` set to ``value``.
+
+        Paths that cannot change the physics (the record's length, chunking
+        and stored quadratures, the seed and the names) keep this system's
+        operating point and model; any other path builds them anew.
+        """
+        scenario = self.scenario.replace(path, value)
+        if path not in _RECORD_ONLY:
+            return System(scenario)
+        derived = System(scenario, _parts=(self.point, self.model, self.stability))
+        if "chain" in self.__dict__:  # built already: the chain does not depend on them either
+            derived.__dict__["chain"] = self.__dict__["chain"]
+        return derived
+
+
+def _build(scenario):
+    point = operating_point(scenario)
+    model = linear_model(scenario, point)
+    return point, model, stability(model, point)
+
+
+def as_system(item):
+    """``item`` if it is a :class:`System`; a System built from it if it is a Scenario.
+
+    The one-line path for scripts (``steady_state(scenario)``); a caller that
+    evaluates one scenario several ways builds the System once and passes it.
+    """
+    if isinstance(item, System):
+        return item
+    from simulator.scenario.loader import Scenario
+
+    if isinstance(item, Scenario):
+        return System(item)
+    raise TypeError(f"expected a simulator.System or a simulator.scenario.loader.Scenario; got "
+                    f"{type(item).__name__}")

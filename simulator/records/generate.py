@@ -1,0 +1,371 @@
+"""Synthetic digitised records with exactly the statistics of the linear model.
+
+:func:`generate_record` is the engine: system and seed in, a :class:`Record`
+out, chunk by chunk into a sink (memory here; the HDF5 file of
+:mod:`simulator.io.recordfile` through
+:func:`simulator.workflows.record.simulate_record`, so that memory does not
+grow with the duration). The pipeline is
+
+    scenario ► detection chain (:mod:`simulator.model.chain`) ► exact discretisation
+    at the sample interval (:mod:`simulator.records.discretize`) ► numba recursion
+    (:mod:`simulator.records.kernels`) ► carrier rotation (if records) ► volts ►
+    digitiser (quantisation, clipping) ► counts.
+
+Two exact forms generate the same process: the full state form (one normal
+per noise direction and sample; it also yields the true mechanical
+quadratures) and the innovations form (one normal per output channel and
+sample). Both start in the stationary state.
+
+Reproducibility: the random normals of sample block k (``kernels.BLOCK_SAMPLES``
+samples) come from their own generator, seeded by (seed, k) through
+:class:`numpy.random.SeedSequence`. A record is therefore the same bits for a
+given (scenario, seed, form) whatever the chunk size used to make it.
+"""
+
+import dataclasses
+import warnings
+
+import numpy as np
+
+from simulator.errors import InputError
+
+FULL_SCALE_SIGMAS = 8.0  # automatic full scale, in standard deviations of the record
+
+
+class RecordWarning(UserWarning):
+    """Something in a generated record deserves attention (clipping)."""
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class Truth:
+    """The exact answer stored beside a record.
+
+    Per-mode tuples follow ``mode_names``. ``calibration`` holds the
+    conversion factors with their units in the key names (see
+    :meth:`simulator.model.chain.DetectionChain.calibration`).
+    """
+
+    mode_names: tuple
+    occupation: tuple
+    effective_frequency_hz: tuple
+    effective_linewidth_hz: tuple
+    coupling_rate_hz: tuple
+    zero_point_amplitude_m: tuple
+    cavity_occupation: float
+    calibration: dict
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class Record:
+    """A digitised record with its ground truth and provenance.
+
+    Attributes
+    ----------
+    counts : ndarray or None
+        ADC counts, shape (N, 2) for I, Q (kind ``"iq"``) or (N,) (``"if"``);
+        None when the record lives only in its file (:meth:`samples` reads it).
+    kind : str
+        ``"iq"`` or ``"if"``.
+    sample_rate_hz, volts_per_count, shot_noise_per_count : float
+        counts × shot_noise_per_count is the record in units whose two-sided
+        shot-noise density is 1 per Hz; I + iQ has the anti-Stokes sideband at
+        positive frequency in an FFT.
+    mechanical_quadratures : ndarray or None
+        (N, 2 × modes): q, p of each mode at the start of each sample interval
+        (vacuum variance ½), when stored.
+    path : path or None
+        The file the record was written to, if any.
+    reader : callable or None
+        Returns the counts of a record that lives only in its file (set by
+        the file writer, :mod:`simulator.io.recordfile`).
+    """
+
+    counts: np.ndarray | None
+    kind: str
+    scheme: str
+    sample_rate_hz: float
+    n_samples: int
+    volts_per_count: float
+    shot_noise_per_count: float
+    full_scale_v: float
+    bits: int
+    clipped_samples: int
+    intermediate_frequency_hz: float
+    local_oscillator_side: str
+    seed: int
+    form: str
+    scenario: object
+    truth: Truth
+    software_version: str
+    created_utc: str = ""
+    mechanical_quadratures: np.ndarray | None = None
+    path: object = None
+    reader: object = None
+
+    def samples(self):
+        """The ADC counts, read from the file when not held in memory."""
+        return self.counts if self.counts is not None else self.reader()
+
+    def shot_noise_units(self):
+        """The record in shot-noise units: complex I + iQ (iq) or real (if)."""
+        c = self.samples()
+        if self.kind == "iq":
+            return (c[:, 0] + 1j * c[:, 1]) * self.shot_noise_per_count
+        return c * self.shot_noise_per_count
+
+    def volts(self):
+        """The digitised voltage (V); complex I + iQ for an iq record."""
+        return self.shot_noise_units() * (self.volts_per_count / self.shot_noise_per_count)
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class RecordPlan:
+    """Everything fixed before the first sample: models, scales and sizes."""
+
+    system: object
+    scenario: object
+    seed: int
+    form: str
+    chain: object
+    discrete: object
+    sample_rate_hz: float
+    n_samples: int
+    full_scale_v: float
+    bits: int
+    truth: Truth
+    watched: np.ndarray  # state indices of the mechanical quadratures to store
+    innovations: object = None
+
+    @property
+    def volts_per_count(self):
+        """Voltage step of one digitiser count (V): full range 2·full_scale_v / 2^bits."""
+        return 2.0 * self.full_scale_v / 2.0**self.bits
+
+    @property
+    def shot_noise_per_count(self):
+        """One count in shot-noise units (two-sided shot-noise density 1 per Hz)."""
+        return self.volts_per_count / self.chain.volts_per_unit
+
+
+def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechanics=None):
+    """Resolve every setting of a record and build its exact discrete model.
+
+    See :func:`simulator.workflows.record.simulate_record` for the parameters.
+    """
+    from simulator.linear.steady_state import steady_state
+    from simulator.model.chain import automatic_sample_rate
+    from simulator.model.system import as_system
+    from simulator.model.tone import tone_amplitude
+    from simulator.records.discretize import discretize, innovations_form
+
+    system = as_system(system)
+    scenario = system.scenario
+    seed = scenario.scenario.seed if seed is None else seed
+    if (isinstance(seed, bool) or not isinstance(seed, (int, np.integer))
+            or not 0 <= seed < 2**63):
+        raise InputError(f"seed = {seed!r}; expected a non-negative integer below 2**63")
+    if duration_s is not None:
+        if not (isinstance(duration_s, (int, float)) and np.isfinite(duration_s)
+                and duration_s > 0):
+            raise InputError(f"duration = {duration_s!r} s; expected a positive number of "
+                             "seconds")
+        system = system.replace("record.duration_s", float(duration_s))
+    if store_mechanics is not None and store_mechanics != scenario.record.store_mechanics:
+        system = system.replace("record.store_mechanics", bool(store_mechanics))
+    scenario = system.scenario
+    store = scenario.record.store_mechanics
+    if form not in ("auto", "full-state", "innovations"):
+        raise InputError(f"form = {form!r}; expected 'auto', 'full-state' or 'innovations'")
+    if form == "innovations" and store:
+        raise InputError("the innovations form does not carry the mechanical state; use "
+                         "form = 'full-state' to store the mechanical quadratures")
+    if form == "auto":
+        form = "full-state" if store else "innovations"
+
+    point, steady, chain = system.point, steady_state(system), system.chain
+    det, dig = scenario.detection, scenario.digitizer
+    fs = dig.sample_rate_hz or automatic_sample_rate(chain, det.intermediate_frequency_hz)
+    n = int(round(scenario.record.duration_s * fs))
+    if n < 1:
+        raise InputError(f"duration {scenario.record.duration_s!r} s at {fs:.6g} samples/s "
+                         "gives no sample; expected a duration of at least one sample "
+                         "interval")
+    discrete = discretize(chain.model, 1.0 / fs, integrator_drift=chain.integrator_drift())
+    full_scale = dig.full_scale_v or (  # the noise's 8σ plus the coherent tone on top
+        FULL_SCALE_SIGMAS * chain.record_std(discrete)
+        + tone_amplitude(chain, scenario) * chain.volts_per_unit)
+    names = tuple(m.name for m in point.modes)
+    watched = np.array([chain.model.index(f"{name}.{q}") for name in names for q in "qp"]
+                       if store else [], dtype=np.int64)
+    calibration = dict(chain.calibration(), full_scale_v=full_scale, bits=dig.bits,
+                       transimpedance_ohm=scenario.electronics.transimpedance_ohm,
+                       bandwidth_hz=scenario.electronics.bandwidth_hz or float("inf"),
+                       local_oscillator_power_w=det.local_oscillator_power_w)
+    truth = Truth(mode_names=names,
+                  occupation=tuple(m.occupation for m in steady.modes),
+                  effective_frequency_hz=tuple(m.effective_frequency_hz for m in steady.modes),
+                  effective_linewidth_hz=tuple(m.effective_linewidth_hz for m in steady.modes),
+                  coupling_rate_hz=tuple(m.coupling_rate_hz for m in point.modes),
+                  zero_point_amplitude_m=tuple(m.zero_point_amplitude_m for m in point.modes),
+                  cavity_occupation=steady.cavity_occupation, calibration=calibration)
+    return RecordPlan(system=system, scenario=scenario, seed=int(seed), form=form, chain=chain,
+                      discrete=discrete, sample_rate_hz=float(fs), n_samples=n,
+                      full_scale_v=float(full_scale), bits=dig.bits, truth=truth,
+                      watched=watched,
+                      innovations=innovations_form(discrete) if form == "innovations"
+                      else None)
+
+
+def generate_record(system, *, seed=None, duration_s=None, form="auto",
+                    store_mechanics=None, chunk_samples=None, sink=None, progress=None):
+    """Generate a digitised record of ``system`` into a sink; return the Record.
+
+    The engine behind :func:`simulator.workflows.record.simulate_record`,
+    which adds the output file and the progress bar.
+
+    Parameters
+    ----------
+    system : simulator.model.system.System
+        Or a scenario, built into one.
+    seed, duration_s, form, store_mechanics, chunk_samples
+        As in :func:`simulator.workflows.record.simulate_record`.
+    sink : callable, optional
+        ``sink(plan, chunk_rows)`` returns the object the counts go to (a
+        context manager with ``write(first, counts, mechanics)`` and
+        ``finish(clipped)``, which returns the Record); default: memory.
+    progress : callable, optional
+        Called with the number of samples of each chunk and the total, after
+        each chunk.
+
+    Warns
+    -----
+    RecordWarning
+        When samples were clipped at the digitiser's full scale, or the
+        digitiser's step is coarse.
+    """
+    plan = plan_record(system, seed=seed, duration_s=duration_s, form=form,
+                       store_mechanics=store_mechanics)
+    chunk = plan.scenario.record.chunk_samples if chunk_samples is None else chunk_samples
+    if isinstance(chunk, bool) or not isinstance(chunk, (int, np.integer)) or chunk < 1:
+        raise InputError(f"chunk_samples = {chunk!r}; expected a positive integer")
+    target = MemorySink(plan) if sink is None else sink(plan, int(min(chunk, plan.n_samples)))
+    with target:
+        clipped = generate(plan, target, chunk=int(chunk), progress=progress)
+        record = target.finish(clipped)
+    coarse = quantisation_share(plan)
+    if coarse > QUANTISATION_WARNING:
+        coarse_words = (" (a step this close to the signal's standard deviation also makes "
+                        "the rounding error depend on the signal)" if coarse > 1.0 / 12 else "")
+        warnings.warn(f"the digitiser's step ({plan.bits} bits over ±{plan.full_scale_v:.6g} V) "
+                      f"adds rounding noise Δ²/12 of {100.0 * coarse:.3g} % of the record's "
+                      f"variance{coarse_words}; raise digitizer.bits or lower "
+                      "digitizer.full_scale_v", RecordWarning, stacklevel=3)
+    if clipped:
+        warnings.warn(f"{clipped} of {plan.n_samples} samples "
+                      f"({100.0 * clipped / plan.n_samples:.3g} %) clipped at the digitiser's "
+                      f"full scale ±{plan.full_scale_v:.6g} V; raise digitizer.full_scale_v "
+                      "or lower electronics.transimpedance_ohm", RecordWarning, stacklevel=3)
+    return record
+
+
+QUANTISATION_WARNING = 0.01  # rounding variance Δ²/12 above 1 % of the signal's (our choice)
+
+
+def quantisation_share(plan):
+    """Rounding variance Δ²/12 over the sample variance of the record (its weakest channel).
+
+    Widrow and Kollár, Quantization Noise (Cambridge, 2008), Ch. 4: for a
+    signal spanning many steps the rounding error is uniform, white and
+    independent of the signal, of variance Δ²/12.
+    """
+    cov = plan.chain.sample_covariance(plan.discrete)
+    if plan.chain.receiver == "if":  # r = 2(cos φ Re ρ − sin φ Im ρ), averaged over φ
+        variance = 2.0 * float(np.trace(cov))
+    else:
+        variance = float(np.min(np.diag(cov)))
+    return plan.volts_per_count**2 / 12.0 / (variance * plan.chain.volts_per_unit**2)
+
+
+def generate(plan, sink, *, chunk, progress=None):
+    """Run the recursion of ``plan`` chunk by chunk into ``sink``; return the clipped count.
+
+    ``progress``, when given, is called with the number of samples of each
+    chunk once it is written and the record's total (a progress bar; a check
+    for Ctrl-C).
+    """
+    from simulator.model.tone import tone_signal
+    from simulator.records import kernels
+
+    chain, n_total = plan.chain, plan.n_samples
+    step = kernels.stepper(plan)
+    normals = kernels.NormalBlocks(plan.seed, kernels.SAMPLE_STREAM, step.width,
+                                   kernels.BLOCK_SAMPLES)
+    p = len(chain.model.outputs)
+    digitiser = kernels.Digitiser(plan)
+    tone = tone_signal(plan.chain, plan.scenario, plan.sample_rate_hz)
+    clipped = 0
+    for first in range(0, n_total, chunk):
+        count = min(chunk, n_total - first)
+        y = np.empty((count, p))
+        mech = np.empty((count, plan.watched.size))
+        for pos, xi in normals.pieces(first, count):
+            step(xi, y[pos:pos + len(xi)], mech[pos:pos + len(xi)])
+        if chain.receiver == "homodyne":
+            y = y[:, 0]
+        elif chain.receiver == "if":
+            y = kernels.rotate_to_carrier(
+                y, first, chain.carrier_rad_s / (2 * np.pi * plan.sample_rate_hz))
+        if tone is not None:  # the calibration tone's exact response, by linearity
+            y = y + tone(first, count)
+        counts, n_clip = digitiser(y)
+        clipped += n_clip
+        sink.write(first, counts, mech if plan.watched.size else None)
+        if progress is not None:
+            progress(count, n_total)
+    return clipped
+
+
+def record_header(plan, record_kind):
+    """Fields shared by the in-memory record and the file's attributes."""
+    from simulator import __version__
+
+    det = plan.scenario.detection
+    return dict(kind=record_kind, scheme=det.scheme, sample_rate_hz=plan.sample_rate_hz,
+                n_samples=plan.n_samples, volts_per_count=plan.volts_per_count,
+                shot_noise_per_count=plan.shot_noise_per_count,
+                full_scale_v=plan.full_scale_v, bits=plan.bits,
+                intermediate_frequency_hz=det.intermediate_frequency_hz,
+                local_oscillator_side=det.local_oscillator_side, seed=plan.seed,
+                form=plan.form, software_version=__version__)
+
+
+class MemorySink:
+    """Holds a record in memory: the default sink of :func:`generate_record`."""
+
+    def __init__(self, plan):
+        self.plan = plan
+        shape = (plan.n_samples, 2) if plan.chain.record_kind == "iq" else (plan.n_samples,)
+        self.counts = np.empty(shape, dtype=np.int16 if plan.bits <= 16 else np.int32)
+        self.mech = np.empty((plan.n_samples, plan.watched.size)) if plan.watched.size else None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        return False
+
+    def write(self, first, counts, mech):
+        """Store a chunk of counts (and mechanical quadratures) from sample ``first``."""
+        self.counts[first:first + len(counts)] = counts
+        if mech is not None:
+            self.mech[first:first + len(mech)] = mech
+
+    def finish(self, clipped):
+        """Return the finished in-memory Record, with ``clipped`` clipped samples."""
+        import datetime
+
+        created = datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds")
+        return Record(counts=self.counts, clipped_samples=clipped, scenario=self.plan.scenario,
+                      truth=self.plan.truth, mechanical_quadratures=self.mech,
+                      created_utc=created, **record_header(self.plan,
+                                                           self.plan.chain.record_kind))

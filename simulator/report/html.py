@@ -1,0 +1,89 @@
+"""Self-contained HTML reports: text, tables and PNG figures embedded in one file.
+
+Sits at the edge of the package with the plots: nothing in the physics
+imports it. The page uses no scripts and no external resources, so it opens
+the same on an air-gapped lab computer and can be archived with the data.
+"""
+
+import base64
+import datetime
+import html
+from pathlib import Path
+
+from simulator.io.files import atomic_write_text
+
+_STYLE = """
+body { font-family: sans-serif; max-width: 70em; margin: 2em auto; padding: 0 1em;
+       color: #222; line-height: 1.45; }
+h1 { font-size: 1.5em; border-bottom: 2px solid #444; }
+h2 { font-size: 1.2em; margin-top: 2em; border-bottom: 1px solid #bbb; }
+table { border-collapse: collapse; margin: 0.5em 0; }
+th, td { border: 1px solid #ccc; padding: 0.25em 0.6em; text-align: right; }
+th { background: #f0f0f0; } td:first-child, th:first-child { text-align: left; }
+pre { background: #f7f7f7; padding: 0.8em; overflow-x: auto; font-size: 0.85em; }
+.warn { background: #fff4e0; border-left: 4px solid #d08000; padding: 0.4em 0.8em; }
+img { max-width: 100%; border: 1px solid #ddd; margin: 0.5em 0; }
+.meta { color: #666; font-size: 0.85em; }
+"""
+
+
+def escape(text):
+    """HTML-escape ``text``."""
+    return html.escape(str(text))
+
+
+def png_tag(path, alt):
+    """An <img> element carrying the PNG at ``path`` inline (base64)."""
+    data = base64.b64encode(Path(path).read_bytes()).decode("ascii")
+    return f'<img alt="{escape(alt)}" src="data:image/png;base64,{data}">'
+
+
+def table(rows, header=None):
+    """An HTML table from rows of cells; floats printed with 6 significant digits."""
+
+    def cell(value, tag):
+        text = f"{value:.6g}" if isinstance(value, float) else value
+        return f"<{tag}>{escape(text)}</{tag}>"
+
+    parts = ["<table>"]
+    if header:
+        parts.append("<tr>" + "".join(cell(h, "th") for h in header) + "</tr>")
+    parts += ["<tr>" + "".join(cell(c, "td") for c in row) + "</tr>" for row in rows]
+    parts.append("</table>")
+    return "\n".join(parts)
+
+
+def preformatted(text):
+    """A <pre> block."""
+    return f"<pre>{escape(text)}</pre>"
+
+
+def warnings_block(warnings):
+    """Warnings highlighted, or a line saying there are none."""
+    if not warnings:
+        return "<p>No regime warnings.</p>"
+    return "\n".join(f'<p class="warn">{escape(w)}</p>' for w in warnings)
+
+
+def write_report(path, title, sections, *, meta=""):
+    """Write a report page atomically.
+
+    Parameters
+    ----------
+    path : path
+    title : str
+    sections : sequence of (heading, html)
+        Section bodies are trusted HTML built with the helpers above.
+    meta : str
+        One line of provenance under the title.
+    """
+    stamp = datetime.datetime.now(datetime.UTC).strftime("%Y-%m-%d %H:%M UTC")
+    body = [f"<h1>{escape(title)}</h1>",
+            f'<p class="meta">{escape(meta)} · written {stamp}</p>']
+    for heading, content in sections:
+        body += [f"<h2>{escape(heading)}</h2>", content]
+    page = ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+            f"<title>{escape(title)}</title><style>{_STYLE}</style></head><body>\n"
+            + "\n".join(body) + "\n</body></html>\n")
+    atomic_write_text(path, page)
+    return Path(path)

@@ -1,0 +1,203 @@
+"""Figures of analytic spectra (matplotlib, imported only when plotting, outside pyplot).
+
+The command line imports this module lazily; the physics modules never do.
+
+The spectrum figure has up to three rows: the whole spectrum on a log scale
+(excess above shot noise, so a cavity-suppressed Stokes sideband stays
+visible), zooms on the Stokes and anti-Stokes sidebands of one mode on a
+linear scale with every budget term and the occupations, and the same zooms
+referred to displacement with the standard quantum limit and zero-point
+motion.
+"""
+
+import numpy as np
+
+_PREFIXES = ((1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz"), (1.0, "Hz"))
+ZOOM_LINEWIDTHS = 6.0
+
+
+def _unit(span):
+    for scale, name in _PREFIXES:
+        if span >= 2 * scale:
+            return scale, name
+    return 1.0, "Hz"
+
+
+def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, title=None,
+                  overwrite=False):
+    """Save a figure of ``spectrum`` with its noise budget to ``path`` (PNG, PDF, SVG).
+
+    Parameters
+    ----------
+    spectrum : simulator.linear.spectrum.Spectrum
+        Detected spectrum in shot-noise units with its contributions (the
+        first contribution is the shot-noise floor).
+    path : str or pathlib.Path
+    displacement : simulator.linear.spectrum.Spectrum, optional
+        The same spectrum referred to displacement (m²/Hz) with reference
+        curves (standard quantum limit, zero-point motion).
+    summary : sequence of simulator.linear.sidebands.SidebandSummary
+        Labels the sidebands with their occupations; the zoom panels are
+        centred on those of mode number ``mode``.
+    mode : int
+    title : str, optional
+    overwrite : bool
+        Replace an existing file at ``path`` (by default it is an error).
+    """
+    import matplotlib
+
+    two_sided = spectrum.sided == "two-sided"
+    zooms = _zooms(summary, mode, two_sided)
+    rows = 1 + bool(zooms) + bool(zooms and displacement is not None)
+    fig = figure(figsize=(13, 3.6 * rows + 0.5), layout="constrained")
+    grid = fig.add_gridspec(rows, max(len(zooms), 1))
+    names = list(spectrum.contributions)
+    # ten distinct default colours suffice for a plain budget; laser-noise terms
+    # make it longer, and a repeated colour would pair unrelated terms
+    palette = ([f"C{i}" for i in range(10)] if len(names) <= 11
+               else [matplotlib.colormaps["tab20"](i % 20) for i in range(len(names))])
+    colours = {name: ("0.45" if i == 0 else palette[(i - 1) % len(palette)])
+               for i, name in enumerate(names)}
+    ax = fig.add_subplot(grid[0, :])
+    _overview(ax, spectrum, colours, summary)
+    fig.suptitle(title or spectrum.quantity, x=0.02, ha="left")
+    for k, (label, centre, width) in enumerate(zooms):
+        zx = fig.add_subplot(grid[1, k])
+        _zoom(zx, spectrum, colours, label, centre, width)
+        if displacement is not None:
+            _displacement_zoom(fig.add_subplot(grid[2, k]), displacement, label, centre, width)
+    handles, labels = ax.get_legend_handles_labels()
+    fig.legend(handles, labels, loc="outside right upper", fontsize=8, frameon=False)
+    save_figure(fig, path, overwrite=overwrite)
+    return path
+
+
+def _zooms(summary, mode, two_sided):
+    if not summary:
+        return []
+    s = summary[min(mode, len(summary) - 1)]
+    if not np.isfinite(s.anti_stokes.frequency_hz):  # the light does not see this mode
+        return []
+    sides = [("Stokes", s.stokes, f"area n + 1 = {s.stokes.area_quanta:.4g}")] if two_sided \
+        else []
+    sides.append(("anti-Stokes", s.anti_stokes,
+                  f"area n = {s.anti_stokes.area_quanta:.4g}\nn from ratio = "
+                  f"{s.occupation_from_ratio:.4g}\nsteady state n = "
+                  f"{s.steady_state_occupation:.4g}"))
+    out = []
+    for name, side, text in sides:
+        centre = side.frequency_hz if two_sided else abs(side.frequency_hz)
+        if not two_sided:
+            name, text = "mechanical peak", f"heterodyne sideband summary:\n{text}"
+        out.append((f"{s.mode} {name}\n{text}", centre, side.linewidth_hz))
+    return out
+
+
+def _overview(ax, spectrum, colours, summary):
+    scale, unit = _unit(np.ptp(spectrum.frequency_hz))
+    f = spectrum.frequency_hz / scale
+    excess = spectrum.total - 1.0
+    ax.semilogy(f, np.where(excess > 0, excess, np.nan), color="black", lw=3.0, alpha=0.4,
+                label="total", zorder=1)
+    for name, curve in list(spectrum.contributions.items())[1:]:
+        ax.semilogy(f, np.where(curve > 0, curve, np.nan), color=colours[name], lw=1.2,
+                    label=name)
+        if np.any(curve < 0):
+            ax.semilogy(f, np.where(curve < 0, -curve, np.nan), color=colours[name], lw=1.2,
+                        ls="--", label=f"−({name}) where negative")
+    for line in getattr(spectrum, "lines", ()):
+        # a line is a power (density units × Hz), not a density: marked, not drawn
+        ax.axvline(line.frequency_hz / scale, color="magenta", lw=1.0, ls="-.",
+                   label=f"{line.name}: power {line.power:.3g} (units × Hz)")
+    positive = excess[excess > 1e-12]
+    if positive.size:
+        ax.set_ylim(max(positive.max() * 1e-9, positive.min() / 3), positive.max() * 3)
+    else:
+        ax.text(0.5, 0.5, "no excess noise: the spectrum is the shot-noise floor, S = 1",
+                transform=ax.transAxes, ha="center", va="center", fontsize=11)
+    ax.set_xlim(f.min(), f.max())
+    for s in summary:
+        sides = ((s.stokes, "S"), (s.anti_stokes, "aS"))
+        for side, tag in sides if spectrum.sided == "two-sided" else sides[1:]:
+            where = side.frequency_hz / scale
+            if spectrum.sided == "one-sided":
+                where, tag = abs(where), ""
+            ax.axvline(where, color="0.75", lw=0.8, ls=":", zorder=0)
+            ax.annotate(f"{s.mode} {tag}".strip(), xy=(where, 1.0),
+                        xycoords=("data", "axes fraction"), xytext=(2, -2),
+                        textcoords="offset points", rotation=90, va="top", fontsize=7,
+                        color="0.35")
+    ax.set_xlabel(f"{spectrum.axis} ({unit})")
+    ax.set_ylabel(f"S − 1: excess above shot noise\n({spectrum.sided}, {spectrum.units})")
+    gaps = "; gaps in the total: below shot noise" if np.any(excess < -1e-12) else ""
+    ax.set_title(f"whole spectrum, log scale (dashed: magnitude of negative terms{gaps})",
+                 fontsize=10)
+
+
+def _window(spectrum, centre, width):
+    half = ZOOM_LINEWIDTHS * width
+    f = spectrum.frequency_hz
+    inside = (f >= centre - half) & (f <= centre + half)
+    scale, unit = _unit(2 * half)
+    return inside, (f[inside] - centre) / scale, unit, centre - half, centre + half
+
+
+def _zoom(ax, spectrum, colours, label, centre, width):
+    inside, x, unit, _, _ = _window(spectrum, centre, width)
+    ax.plot(x, spectrum.total[inside] - 1.0, color="black", lw=3.0, alpha=0.4, zorder=1)
+    for name, curve in list(spectrum.contributions.items())[1:]:
+        ax.plot(x, curve[inside], color=colours[name], lw=1.2)
+    ax.axhline(0.0, color="0.6", lw=0.8, zorder=0)
+    ax.set_xlabel(f"offset from {centre / 1e6:.6g} MHz ({unit})")
+    ax.set_ylabel(f"S − 1, linear scale\n({spectrum.units})")
+    ax.text(0.02, 0.96, label, transform=ax.transAxes, va="top", fontsize=8,
+            bbox=dict(boxstyle="round", fc="white", ec="0.7", alpha=0.9))
+
+
+def _displacement_zoom(ax, x_spec, label, centre, width):
+    inside, x, unit, _, _ = _window(x_spec, centre, width)
+    ax.semilogy(x, x_spec.total[inside], color="black", lw=2.0, label="measured, referred")
+    floor = next(iter(x_spec.contributions.values()), None)
+    if floor is not None:
+        ax.semilogy(x, floor[inside], ls="--", color="0.45", label="shot-noise imprecision")
+    for (name, curve), style in zip(x_spec.reference.items(), ("-.", ":", "-"), strict=False):
+        ax.semilogy(x, curve[inside], ls=style, lw=1.6, label=name)
+    ax.set_xlabel(f"offset from {centre / 1e6:.6g} MHz ({unit})")
+    ax.set_ylabel(f"{x_spec.sided} density\n({x_spec.units.replace('^2', '²')})")
+    ax.set_title(f"{label.splitlines()[0]}: referred to displacement", fontsize=10)
+    low, high = ax.get_ylim()
+    ax.set_ylim(low, high * (high / low) ** 0.8)
+    ax.legend(loc="upper right", fontsize=8, framealpha=0.9)
+
+
+FIGURE_DPI = 110  # every saved figure (png); vector formats ignore it
+
+
+def figure(**options):
+    """A new :class:`matplotlib.figure.Figure`, outside pyplot.
+
+    Figures are built without pyplot, so no backend is chosen or switched
+    (the user's interactive backend stays as it was) and nothing is left open
+    in pyplot's list of figures; saving picks the renderer from the extension.
+    """
+    from matplotlib.figure import Figure
+
+    return Figure(**options)
+
+
+def subplots(*grid, figsize, layout=None, **options):
+    """``figure(figsize=..., layout=...)`` and its ``Figure.subplots(*grid, **options)``."""
+    fig = figure(figsize=figsize, layout=layout)
+    return fig, fig.subplots(*grid, **options)
+
+
+def save_figure(fig, path, *, overwrite=False, dpi=FIGURE_DPI):
+    """Save ``fig`` through :class:`simulator.io.files.AtomicFile`.
+
+    The format follows the extension (png, pdf, svg).
+    """
+    from simulator.io.files import AtomicFile
+
+    with AtomicFile(path, overwrite=overwrite) as out:
+        fig.savefig(out.tmp, dpi=dpi, format=out.path.suffix.lstrip(".").lower() or "png")
+    return out.path

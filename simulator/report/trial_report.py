@@ -1,0 +1,80 @@
+"""HTML report of a validation run: per-quantity table, histograms and pull plots."""
+
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+from simulator.report import html
+
+
+def _figure(dataset, q, truth, path):
+    from simulator.report.plots import save_figure, subplots
+
+    est = dataset["estimate"].sel(quantity=q).values
+    unc = dataset["uncertainty"].sel(quantity=q).values
+    ok = np.isfinite(est) & np.isfinite(unc) & (unc > 0)
+    fig, axes = subplots(1, 2 if truth is not None else 1, figsize=(10, 3.6),
+                             squeeze=False)
+    ax = axes[0, 0]
+    ax.hist(est[ok], bins=max(8, int(np.sqrt(ok.sum()))), color="tab:blue", alpha=0.75,
+            label="estimates")
+    if truth is not None:
+        ax.axvline(truth, color="k", lw=2, label=f"truth {truth:.7g}")
+    ax.axvline(np.mean(est[ok]), color="tab:orange", ls="--",
+               label=f"mean {np.mean(est[ok]):.7g}")
+    ax.set_xlabel(q)
+    ax.set_ylabel("trials")
+    ax.yaxis.get_major_locator().set_params(integer=True)
+    ax.legend(fontsize=8)
+    if truth is not None:
+        pulls = (est[ok] - truth) / unc[ok]
+        ax = axes[0, 1]
+        edges = np.linspace(-5, 5, 41)
+        ax.hist(np.clip(pulls, -5, 5), bins=edges, density=True, color="tab:green",
+                alpha=0.75, label="pulls (clipped at ±5)")
+        x = np.linspace(-5, 5, 400)
+        ax.plot(x, np.exp(-x**2 / 2) / np.sqrt(2 * np.pi), "k-",
+                label="unit normal (honest errors)")
+        ax.set_xlabel("(estimate − truth) / stated uncertainty")
+        ax.set_ylabel("density")
+        ax.legend(fontsize=8)
+    fig.suptitle(f"{q}: {ok.sum()} trials")
+    fig.tight_layout()
+    save_figure(fig, path, overwrite=True)  # the trial's own folder
+
+
+def write_trial_report(result, scenario, estimator, path):
+    """Write the report page of a :class:`simulator.workflows.trial.TrialResult`."""
+    rows = []
+    for q in result.quantities:
+        rows.append([q.name, "—" if q.truth is None else q.truth, q.trials, q.failures,
+                     q.mean, q.spread, "—" if q.bias is None else q.bias,
+                     "—" if q.bias_error is None else q.bias_error,
+                     "—" if q.rmse is None else q.rmse,
+                     "—" if q.pull_width is None else q.pull_width,
+                     "—" if q.coverage_1sigma is None else q.coverage_1sigma,
+                     "—" if q.coverage_2sigma is None else q.coverage_2sigma, q.verdict])
+    table = html.table(rows, header=["quantity", "truth", "trials", "failures", "mean",
+                                     "spread", "bias", "± (s.e.)", "rms error", "pull width",
+                                     "1σ coverage", "2σ coverage", "verdict"])
+    figures = []
+    with tempfile.TemporaryDirectory() as tmp:
+        for i, q in enumerate(result.quantities):
+            png = Path(tmp) / f"q{i}.png"
+            _figure(result.dataset, q.name, q.truth, png)
+            figures.append(html.png_tag(png, q.name))
+    errors = ("<p>No trial failed.</p>" if not result.errors else html.table(
+        [[i, e] for i, e in result.errors[:50]], header=["trial", "error"]))
+    sections = [
+        ("Summary", "<p>Expected for an unbiased estimator with honest uncertainties: "
+                    "bias within a few standard errors of zero, pull width 1, coverage "
+                    "68.3 % (1σ) and 95.4 % (2σ).</p>" + table),
+        ("Histograms and pulls", "\n".join(figures)),
+        ("Failed trials", errors),
+        ("Scenario", html.preformatted(scenario.to_toml())),
+    ]
+    return html.write_report(path, f"noisechain trial: {scenario.scenario.name}", sections,
+                             meta=f"estimator {estimator} · "
+                                  f"{result.dataset.sizes['trial']} trials · record "
+                                  f"{result.dataset.attrs['duration_s']:.6g} s")

@@ -1,0 +1,376 @@
+"""Scenario: the device, drive and detection, loaded from TOML into frozen values.
+
+A scenario file has one table per section (``[drive]``, ``[cavity]``, ...) and
+one ``[[mechanics]]`` table per mechanical mode. Keys carry their unit as a
+suffix and every frequency is an ordinary frequency in Hz. Loading checks
+every key and value and raises :class:`~simulator.errors.ScenarioError` with
+the file, the key path, the value and what was expected.
+
+A :class:`Scenario` is immutable; :meth:`Scenario.replace` derives a new one
+from a parameter path such as ``"mechanics[0].bath_temperature_k"``.
+"""
+
+import dataclasses
+import difflib
+import math
+import re
+import tomllib
+from collections.abc import Mapping
+from pathlib import Path
+
+from simulator.errors import ScenarioError
+from simulator.scenario import schema
+from simulator.scenario.schema import optional_section, required_section, section
+from simulator.scenario.sections import (  # noqa: F401 - re-exported for users of the loader
+    CalibrationTone,
+    Cavity,
+    Detection,
+    Digitizer,
+    Drive,
+    Electronics,
+    IntensityNoise,
+    Mechanics,
+    PhaseNoise,
+    RecordOptions,
+    ScenarioInfo,
+)
+from simulator.scenario.sweep_section import Sweep
+
+_frozen = dataclasses.dataclass(frozen=True, kw_only=True)
+
+
+@_frozen
+class Scenario:
+    """A complete, validated scenario. Build with :func:`load_scenario`."""
+
+    scenario: ScenarioInfo = required_section("what this scenario is")
+    drive: Drive = required_section("the coherent drive at the cavity input")
+    cavity: Cavity = required_section("the optical or microwave mode")
+    mechanics: tuple[Mechanics, ...] = required_section(
+        "one table per mechanical mode")
+    detection: Detection = section(Detection, "how the output field is measured")
+    electronics: Electronics = section(
+        Electronics, "amplifier and photocurrent electronics before the digitiser")
+    digitizer: Digitizer = section(Digitizer, "the analogue-to-digital converter")
+    record: RecordOptions = section(RecordOptions, "the synthetic time-domain record")
+    sweep: Sweep | None = optional_section(
+        "parameters to vary, for `noisechain sweep` (see simulator.scenario.sweep_section)")
+    source: str = dataclasses.field(default="<memory>", compare=False,
+                                    metadata={"internal": True})
+
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        seen = set()
+        for i, mode in enumerate(self.mechanics):
+            if mode.name in seen:
+                yield (f"mechanics[{i}].name",
+                       f"{mode.name!r} is used by an earlier mode; expected unique names")
+            seen.add(mode.name)
+        yield from self._chain_problems()
+        yield from self._local_oscillator_problems()
+        if self.sweep is not None:
+            for path, spec in self.sweep.parameters.items():
+                for p in (path, *([spec["unit"]] if "unit" in spec else [])):
+                    yield from self._sweep_path_problems(p, path)
+
+    def _chain_problems(self):
+        detection, kind = self.detection, self.record.kind
+        if detection.scheme == "homodyne":
+            if kind == "iq":
+                yield ("record.kind", '"iq" is not available for homodyne, which measures '
+                       'one quadrature; expected "if" (a real record) or leave it out')
+            if detection.intermediate_frequency_hz != 0:
+                yield ("detection.intermediate_frequency_hz",
+                       f"{detection.intermediate_frequency_hz!r} Hz with homodyne, whose "
+                       "local oscillator is at the drive frequency; expected 0")
+        elif kind == "if" and detection.intermediate_frequency_hz == 0:
+            yield ("detection.intermediate_frequency_hz",
+                   '0 Hz with an "if" heterodyne record; expected a positive intermediate '
+                   "frequency")
+
+    def _local_oscillator_problems(self):
+        yield from local_oscillator_problems(self)
+
+    def _sweep_path_problems(self, path, swept):
+        key = f'sweep.parameters."{swept}"'
+        try:
+            value = self.get(path)
+        except ScenarioError as exc:
+            close = difflib.get_close_matches(path, self.parameter_paths(), n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else (
+                "; expected a path such as 'drive.detuning_hz'")
+            yield key, exc.detail + hint
+            return
+        if path.split(".")[0] == "sweep" or dataclasses.is_dataclass(value) or isinstance(
+                value, tuple):
+            yield key, f"{path!r} does not name a single scenario parameter"
+
+    def parameter_paths(self):
+        """Every path naming a single parameter, e.g. ``"mechanics[0].frequency_hz"``."""
+        paths = []
+        for f in schema.public_fields(type(self)):
+            kind, cls, _ = schema.field_kind(type(self), f.name)
+            if f.name == "sweep" or kind == "scalar":
+                continue
+            prefixes = ([f"{f.name}[{i}]" for i in range(len(getattr(self, f.name)))]
+                        if kind == "sections" else [f.name])
+            for prefix in prefixes:
+                paths += _leaf_paths(cls, prefix)
+        return paths
+
+    def to_dict(self):
+        """The scenario as nested plain data, as it would appear in TOML."""
+        return _as_data(self)
+
+    def to_toml(self):
+        """The full scenario as TOML text (embedded in every output file)."""
+        import tomli_w
+
+        return tomli_w.dumps(self.to_dict())
+
+    def get(self, path):
+        """Value at a parameter path such as ``"mechanics[0].frequency_hz"``."""
+        node = self
+        for name, index in _split_path(path, self.source):
+            try:
+                node = getattr(node, name)
+                if index is not None:
+                    node = node[index]
+            except (AttributeError, IndexError, TypeError):
+                raise ScenarioError(f"no parameter at path {path!r}",
+                                    source=self.source, key=path) from None
+        return node
+
+    def replace(self, path, value):
+        """New scenario with the parameter at ``path`` set to ``value``, re-validated.
+
+        Setting one of two exclusive keys (for example ``bath_temperature_k``)
+        clears the other one.
+        """
+        data = self.to_dict()
+        *parents, (leaf, leaf_index) = _split_path(path, self.source)
+        node = data
+        for name, index in parents:
+            if name not in node:
+                node[name] = {}
+            try:
+                node = node[name] if index is None else node[name][index]
+            except (KeyError, IndexError, TypeError):
+                raise ScenarioError(f"no parameter at path {path!r}",
+                                    source=self.source, key=path) from None
+        if leaf_index is not None or not isinstance(node, dict):
+            raise ScenarioError(f"path {path!r} does not name a single parameter",
+                                source=self.source, key=path)
+        node[leaf] = value
+        owner = self.get(".".join(_join(parents))) if parents else self
+        for group in getattr(type(owner), "EXCLUSIVE", ()):
+            if leaf in group:
+                for other in group:
+                    if other != leaf:
+                        node.pop(other, None)
+        return scenario_from_dict(data, source=self.source)
+
+
+def _join(parts):
+    return [name if index is None else f"{name}[{index}]" for name, index in parts]
+
+
+_PATH_PART = re.compile(r"^([A-Za-z_][A-Za-z0-9_]*)(?:\[(\d+)\])?$")
+
+
+def _split_path(path, source):
+    parts = []
+    for token in str(path).split("."):
+        match = _PATH_PART.match(token)
+        if not match:
+            raise ScenarioError(
+                f"malformed parameter path {path!r}; expected names joined by dots, "
+                "with [index] after an array of tables, e.g. 'mechanics[0].frequency_hz'",
+                source=source, key=str(path))
+        index = match.group(2)
+        parts.append((match.group(1), None if index is None else int(index)))
+    return parts
+
+
+def _leaf_paths(cls, prefix):
+    """Paths of the scalar keys of section ``cls`` at ``prefix``, nested tables included."""
+    paths = []
+    for sub in schema.public_fields(cls):
+        kind, inner, _ = schema.field_kind(cls, sub.name)
+        if kind == "section":
+            paths += _leaf_paths(inner, f"{prefix}.{sub.name}")
+        else:
+            paths.append(f"{prefix}.{sub.name}")
+    return paths
+
+
+def _as_data(obj):
+    """Plain data of ``obj``; a table nested in a section is left out while at its defaults."""
+    if dataclasses.is_dataclass(obj):
+        out = {}
+        nested = not isinstance(obj, Scenario)
+        for f in schema.public_fields(type(obj)):
+            value = getattr(obj, f.name)
+            if value is None or (nested and dataclasses.is_dataclass(value)
+                                 and value == type(value)()):
+                continue
+            out[f.name] = _as_data(value)
+        return out
+    if isinstance(obj, tuple):
+        return [_as_data(v) for v in obj]
+    if isinstance(obj, Mapping):
+        return {k: _as_data(v) for k, v in obj.items()}
+    return obj
+
+
+def load_scenario(path):
+    """Load and validate a scenario file.
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        TOML file.
+
+    Returns
+    -------
+    Scenario
+
+    Raises
+    ------
+    ScenarioError
+        If the file is missing, malformed or describes an invalid scenario.
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ScenarioError("file not found; expected a scenario TOML file",
+                            source=str(path)) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ScenarioError(f"cannot read the file ({exc})", source=str(path)) from None
+    return parse_scenario(text.removeprefix("\ufeff"), source=str(path))  # byte-order mark
+
+
+def parse_scenario(text, *, source="<string>"):
+    """Validate a scenario given as TOML text; see :func:`load_scenario`."""
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ScenarioError(f"malformed TOML: {exc}", source=source) from None
+    return scenario_from_dict(data, source=source)
+
+
+def scenario_from_dict(data, *, source="<memory>"):
+    """Validate nested plain data (as parsed from TOML) into a :class:`Scenario`."""
+    built = _build(Scenario, data, "", source)
+    return dataclasses.replace(built, source=source)
+
+
+def _build(cls, data, path, source):
+    label = f"[{path}]" if path else "the top level"
+    if not isinstance(data, dict):
+        raise ScenarioError(f"{data!r} is not a table; expected a TOML table",
+                            source=source, key=path or None)
+    fields = {f.name: f for f in schema.public_fields(cls)}
+    for key in data:
+        if key not in fields:
+            close = difflib.get_close_matches(key, list(fields), n=1, cutoff=0.5)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            valid = ", ".join(fields)
+            raise ScenarioError(f"unknown key {key!r} in {label}{hint} "
+                                f"(valid keys: {valid})",
+                                source=source, key=_key(path, key))
+    values = {}
+    for name, f in fields.items():
+        key = _key(path, name)
+        kind, tp, optional = schema.field_kind(cls, name)
+        if name not in data:
+            if f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING:
+                what = "table" if kind == "section" else (
+                    "array of tables" if kind == "sections" else "key")
+                accepts = ("" if kind != "scalar"
+                           else f" as {schema.expectation(f, tp)}")
+                raise ScenarioError(f"missing required {what} {name!r} in {label}; "
+                                    f"expected {f.metadata.get('doc', name)}{accepts}",
+                                    source=source, key=key)
+            continue
+        value = data[name]
+        if kind == "section":
+            values[name] = _build(tp, value, key, source)
+        elif kind == "sections":
+            if not isinstance(value, list) or not value:
+                raise ScenarioError(f"expected one or more [[{name}]] tables, got {value!r}",
+                                    source=source, key=key)
+            values[name] = tuple(_build(tp, item, f"{key}[{i}]", source)
+                                 for i, item in enumerate(value))
+        else:
+            if f.metadata.get("parser"):
+                values[name] = f.metadata["parser"](value, key, source)
+                continue
+            ok, converted = schema.convert_scalar(value, tp)
+            if not ok:
+                raise ScenarioError(
+                    f"{value!r} has the wrong type ({type(value).__name__}); expected "
+                    f"{schema.expectation(f, tp)}", source=source, key=key)
+            problem = schema.range_problem(f, tp, converted)
+            if problem:
+                raise ScenarioError(problem, source=source, key=key)
+            values[name] = converted
+    for group in getattr(cls, "EXCLUSIVE", ()):
+        given = [k for k in group if k in values and values[k] is not None]
+        if len(given) != 1:
+            found = ("none" if not given else "both: " + ", ".join(
+                f"{k} = {values[k]!r}" for k in given))
+            raise ScenarioError(f"give exactly one of {' or '.join(group)} in {label}; "
+                                f"found {found}", source=source, key=_key(path, group[0]))
+    obj = cls(**values)
+    for key, message in getattr(obj, "problems", lambda: ())():
+        raise ScenarioError(message, source=source, key=_key(path, key))
+    return obj
+
+
+def _key(path, name):
+    return f"{path}.{name}" if path else name
+
+
+DELAY_LIMIT = 0.5  # largest 2π f_m τ of the one-state (Padé) delay of the LO path
+
+
+def local_oscillator_problems(scenario):
+    """Cross-section checks of the LO reference: yields ``(key, message)``."""
+    det, noise = scenario.detection, scenario.drive.phase_noise
+    source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
+    if source == "locked" and det.local_oscillator_lock_bandwidth_hz is None:
+        yield ("detection.local_oscillator_lock_bandwidth_hz", 'missing with '
+               'local_oscillator_source = "locked"; expected the lock bandwidth in Hz')
+    if source != "locked" and det.local_oscillator_lock_bandwidth_hz is not None:
+        yield ("detection.local_oscillator_lock_bandwidth_hz", f'set with '
+               f'local_oscillator_source = "{source}"; expected it only for "locked"')
+    if source != "common" and tau > 0:
+        yield ("detection.local_oscillator_delay_s", f'{tau!r} s with '
+               f'local_oscillator_source = "{source}"; expected 0 (a delay applies to a '
+               'common local oscillator only)')
+    if source == "independent" and noise.linewidth_hz > 0:
+        yield ("drive.phase_noise.linewidth_hz", f"{noise.linewidth_hz!r} Hz with an "
+               "independent local oscillator: the relative phase of white frequency "
+               "noise is a random walk (the beat note diffuses), which has no "
+               'stationary spectrum; expected local_oscillator_source = "common" (with '
+               'local_oscillator_delay_s) or "locked", or linewidth_hz = 0')
+    own = det.local_oscillator_phase_noise
+    if own != type(own)() and source != "independent":
+        yield ("detection.local_oscillator_phase_noise", f'given with '
+               f'local_oscillator_source = "{source}"; expected it only for "independent" '
+               '(a common or locked local oscillator takes its phase from the drive)')
+    if own.linewidth_hz > 0:
+        yield ("detection.local_oscillator_phase_noise.linewidth_hz", f"{own.linewidth_hz!r} "
+               "Hz: the beat of two free-running sources is a random walk in phase with no "
+               "stationary spectrum; expected 0 (give the floor and peak of the local "
+               'oscillator\'s phase noise), or local_oscillator_source = "locked"')
+    if source == "common" and tau > 0:
+        for mode in scenario.mechanics:
+            x = 2 * math.pi * mode.frequency_hz * tau
+            if x > DELAY_LIMIT:
+                yield ("detection.local_oscillator_delay_s", f"{tau!r} s gives 2π f τ = "
+                       f"{x:.3g} at mode {mode.name}; expected 2π f τ ≤ {DELAY_LIMIT}, "
+                       "where the one-state delay model errs by at most (2π f τ)²/6 "
+                       "≈ 4 % in the phase-difference spectrum")

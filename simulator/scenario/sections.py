@@ -1,0 +1,304 @@
+"""The sections of a scenario file, one frozen dataclass each.
+
+Every field is declared with :func:`simulator.scenario.schema.param` (meaning, unit,
+admissible range, default), which the loader in :mod:`simulator.scenario.loader`
+walks generically and the scenario reference in ``docs/`` is generated from.
+A section may define ``EXCLUSIVE`` (groups of keys of which exactly one must
+be given) and ``problems()`` (checks across its keys).
+"""
+
+import dataclasses
+
+from simulator.scenario.schema import param, section
+
+_frozen = dataclasses.dataclass(frozen=True, kw_only=True)
+
+
+@_frozen
+class ScenarioInfo:
+    """``[scenario]``: what this scenario is."""
+
+    name: str = param("short name used in reports and file names")
+    description: str = param("free text describing the device and purpose", default="")
+    seed: int = param("seed of every random draw made for this scenario",
+                      check="nonnegative", default=0)
+
+
+@_frozen
+class PhaseNoise:
+    """``[drive.phase_noise]``: classical phase noise of the drive, a sum of shapes.
+
+    Densities are one-sided (f ≥ 0), as phase noise is specified in practice;
+    the model uses the two-sided half of each (see docs/laser-noise.md).
+    """
+
+    linewidth_hz: float = param(
+        "full width at half maximum of the drive's Lorentzian line from white "
+        "frequency noise (one-sided frequency-noise density linewidth/π in Hz²/Hz); "
+        "0: none", unit="Hz", check="nonnegative", default=0.0)
+    floor_rad2_per_hz: float = param(
+        "one-sided phase-noise density S_φ(f) of a flat floor between floor_low_hz "
+        "and floor_high_hz (2nd-order Butterworth edges); 0: none", unit="rad²/Hz",
+        check="nonnegative", default=0.0)
+    floor_low_hz: float = param(
+        "lower edge of the phase-noise floor; 0: the floor reaches down to zero "
+        "frequency", unit="Hz", check="nonnegative", default=0.0)
+    floor_high_hz: float | None = param(
+        "upper edge of the phase-noise floor; needed when floor_rad2_per_hz > 0",
+        unit="Hz", check="positive", default=None)
+    peak_rad2_per_hz: float = param(
+        "one-sided phase-noise density at the centre of a resonant peak (e.g. a "
+        "laser relaxation oscillation); 0: none", unit="rad²/Hz", check="nonnegative",
+        default=0.0)
+    peak_frequency_hz: float | None = param(
+        "centre of the phase-noise peak", unit="Hz", check="positive", default=None)
+    peak_width_hz: float | None = param(
+        "full width at half maximum of the phase-noise peak", unit="Hz",
+        check="positive", default=None)
+
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if self.floor_rad2_per_hz > 0:
+            if self.floor_high_hz is None:
+                yield ("floor_high_hz", "missing while floor_rad2_per_hz > 0; expected the "
+                       "upper edge of the floor in Hz")
+            elif self.floor_high_hz <= self.floor_low_hz:
+                yield ("floor_high_hz", f"{self.floor_high_hz!r} is not above floor_low_hz "
+                       f"= {self.floor_low_hz!r}; expected floor_low_hz < floor_high_hz")
+        if self.peak_rad2_per_hz > 0:
+            for key in ("peak_frequency_hz", "peak_width_hz"):
+                if getattr(self, key) is None:
+                    yield (key, f"missing while peak_rad2_per_hz > 0; expected the peak's "
+                           f"{key.split('_')[1]} in Hz")
+
+
+@_frozen
+class IntensityNoise:
+    """``[drive.intensity_noise]``: classical amplitude noise of the drive."""
+
+    relative_intensity_noise_per_hz: float = param(
+        "one-sided relative intensity noise RIN = S_δP/P²(f), white; 0: none "
+        "(10^(dBc/Hz / 10) for a value in dBc/Hz)", unit="1/Hz", check="nonnegative",
+        default=0.0)
+
+
+@_frozen
+class CalibrationTone:
+    """``[drive.calibration_tone]``: phase modulation φ0 cos(2π f t) on the drive."""
+
+    depth_rad: float = param(
+        "modulation depth φ0, at most 0.1 (the model keeps first-order sidebands, "
+        "J1(φ0) ≈ φ0/2); 0: no tone", unit="rad", check="nonnegative", default=0.0)
+    frequency_hz: float | None = param(
+        "modulation frequency; needed when depth_rad > 0", unit="Hz", check="positive",
+        default=None)
+
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if self.depth_rad > 0.1:
+            yield ("depth_rad", f"{self.depth_rad!r} rad is too deep for the linear model; "
+                   "expected at most 0.1 rad (second-order sidebands neglected)")
+        if self.depth_rad > 0 and self.frequency_hz is None:
+            yield ("frequency_hz", "missing while depth_rad > 0; expected the modulation "
+                   "frequency in Hz")
+
+
+@_frozen
+class Drive:
+    """``[drive]``: the coherent drive (laser or microwave tone) at the cavity input."""
+
+    EXCLUSIVE = (("wavelength_m", "frequency_hz"),)
+
+    wavelength_m: float | None = param("vacuum wavelength of the drive", unit="m",
+                                       check="positive", default=None)
+    frequency_hz: float | None = param("carrier frequency of the drive", unit="Hz",
+                                       check="positive", default=None)
+    power_w: float = param("drive power arriving at the cavity's external port",
+                           unit="W", check="nonnegative")
+    detuning_hz: float = param("Δ/2π = drive minus cavity frequency; red detuning is "
+                               "negative", unit="Hz", check="real")
+    detuning_reference: str = param(
+        "cavity frequency the detuning is measured from: the bare resonance (no "
+        "light inside) or the effective one including the static radiation-pressure "
+        "shift", choices=("bare", "effective"), default="bare")
+    bistable_branch: str = param(
+        "solution used where the intracavity photon number is bistable, by photon "
+        "number", choices=("lowest", "middle", "highest"), default="lowest")
+    phase_noise: PhaseNoise = section(
+        PhaseNoise, "classical phase noise of the drive; left out: none (shot-noise "
+        "limited)")
+    intensity_noise: IntensityNoise = section(
+        IntensityNoise, "classical intensity noise of the drive; left out: none")
+    calibration_tone: CalibrationTone = section(
+        CalibrationTone, "phase-modulation calibration tone on the drive path only (not "
+        "the local oscillator); left out: none")
+
+    @property
+    def carrier_frequency_hz(self):
+        """Drive carrier frequency (Hz), from whichever key the file gave."""
+        if self.frequency_hz is not None:
+            return self.frequency_hz
+        from scipy.constants import c
+
+        return c / self.wavelength_m
+
+
+@_frozen
+class Cavity:
+    """``[cavity]``: the optical or microwave mode."""
+
+    linewidth_hz: float = param("total energy decay rate κ/2π (FWHM)", unit="Hz",
+                                check="positive")
+    external_linewidth_hz: float = param(
+        "decay rate κ_ex/2π into the port that is driven and detected", unit="Hz",
+        check="positive")
+    bath_occupation: float = param(
+        "thermal photon occupation of the internal-loss bath (microwave cavities)",
+        check="nonnegative", default=0.0)
+
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if self.external_linewidth_hz > self.linewidth_hz:
+            yield ("external_linewidth_hz",
+                   f"{self.external_linewidth_hz!r} is larger than linewidth_hz = "
+                   f"{self.linewidth_hz!r}; expected external_linewidth_hz ≤ "
+                   "linewidth_hz (the external port is part of the total loss)")
+
+
+@_frozen
+class Mechanics:
+    """``[[mechanics]]``: one mechanical mode coupled to the cavity."""
+
+    EXCLUSIVE = (("bath_temperature_k", "bath_occupation"),)
+
+    name: str = param("name of the mode, unique within the scenario")
+    frequency_hz: float = param("resonance frequency Ωm/2π", unit="Hz", check="positive")
+    linewidth_hz: float = param("intrinsic energy damping rate Γm/2π", unit="Hz",
+                                check="positive")
+    effective_mass_kg: float = param("effective mass of the mode", unit="kg",
+                                     check="positive")
+    coupling_hz: float = param("single-photon coupling rate g0/2π", unit="Hz",
+                               check="nonnegative")
+    bath_temperature_k: float | None = param(
+        "temperature of the mode's thermal bath", unit="K", check="nonnegative",
+        default=None)
+    bath_occupation: float | None = param(
+        "mean phonon occupation of the mode's thermal bath", check="nonnegative",
+        default=None)
+
+
+@_frozen
+class Detection:
+    """``[detection]``: how the output field is measured."""
+
+    scheme: str = param("detection scheme", choices=("heterodyne", "homodyne"),
+                        default="heterodyne")
+    efficiency: float = param(
+        "total efficiency from the cavity port to the photocurrent (transmission "
+        "losses times detector quantum efficiency)", check="fraction", default=1.0)
+    local_oscillator_power_w: float = param(
+        "local-oscillator power at the detector; sets the photocurrent scale and so "
+        "the weight of the electronic noise against shot noise", unit="W",
+        check="positive", default=1e-3)
+    intermediate_frequency_hz: float = param(
+        "offset of the local oscillator from the drive, |f_LO − f_drive|: the carrier "
+        "of an \"if\" record; 0 for homodyne", unit="Hz", check="nonnegative",
+        default=0.0)
+    local_oscillator_side: str = param(
+        "side of the drive the local oscillator sits on; below puts the anti-Stokes "
+        "sideband above the intermediate frequency, above mirrors it",
+        choices=("below", "above"), default="below")
+    quadrature_angle_rad: float = param(
+        "homodyne quadrature θ of X_θ = cos θ X + sin θ Y, from the amplitude "
+        "quadrature; π/2 is the phase quadrature", unit="rad", check="real",
+        default=1.5707963267948966)
+    local_oscillator_source: str = param(
+        "where the local oscillator comes from: \"common\", a copy of the drive "
+        "laser (its phase noise cancels, up to the path delay); \"locked\", a "
+        "separate source phase-locked to the drive; \"independent\", a separate "
+        "source, noise-free unless [detection.local_oscillator_phase_noise] is given",
+        choices=("common", "locked", "independent"),
+        default="common")
+    local_oscillator_delay_s: float = param(
+        "extra delay of the local-oscillator path over the signal path (\"common\" "
+        "only)", unit="s", check="nonnegative", default=0.0)
+    local_oscillator_lock_bandwidth_hz: float | None = param(
+        "bandwidth of the first-order phase lock (\"locked\" only)", unit="Hz",
+        check="positive", default=None)
+    balanced: bool = param(
+        "balanced detection (both ports of the signal–local-oscillator beam splitter "
+        "subtracted); false: one port of a 50:50 combiner, which halves the efficiency",
+        default=True)
+    local_oscillator_phase_noise: PhaseNoise = section(
+        PhaseNoise, "own phase noise of an \"independent\" local oscillator (floor and "
+        "peak; a linewidth is refused: the beat of two free-running sources diffuses); "
+        "left out: a noise-free local oscillator")
+
+
+@_frozen
+class Electronics:
+    """``[electronics]``: amplifier and photocurrent electronics before the digitiser."""
+
+    transimpedance_ohm: float = param(
+        "transimpedance gain from photocurrent to voltage", unit="V/A",
+        check="positive", default=1e4)
+    bandwidth_hz: float | None = param(
+        "−3 dB frequency of the single-pole analogue low-pass; left out: no filter",
+        unit="Hz", check="positive", default=None)
+    current_noise_a_per_sqrt_hz: float = param(
+        "input-referred current noise of the electronics, one-sided density",
+        unit="A/√Hz", check="nonnegative", default=0.0)
+    amplifier_added_quanta: float = param(
+        "noise added by a phase-preserving amplifier ahead of the detector (the "
+        "microwave case: 10–20 for a cryogenic transistor amplifier), in quanta "
+        "referred to its input; 0: no amplifier", check="nonnegative", default=0.0)
+
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if 0.0 < self.amplifier_added_quanta < 0.5:
+            yield ("amplifier_added_quanta",
+                   f"{self.amplifier_added_quanta!r} is below the quantum limit of a "
+                   "phase-preserving amplifier; expected 0 (no amplifier) or at least 0.5 "
+                   "quanta (Caves, Phys. Rev. D 26, 1817 (1982))")
+
+
+@_frozen
+class Digitizer:
+    """``[digitizer]``: the analogue-to-digital converter that delivers the record."""
+
+    sample_rate_hz: float | None = param(
+        "sample rate; left out: chosen to take in the cavity line and every "
+        "mechanical sideband (see docs/records.md)", unit="Hz", check="positive",
+        default=None)
+    bits: int = param("resolution of the converter, 2 to 32 bits", check="positive",
+                      default=16)
+    full_scale_v: float | None = param(
+        "input range ±full_scale_v; left out: eight times the record's noise standard "
+        "deviation plus the calibration tone's amplitude", unit="V", check="positive",
+        default=None)
+
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if not 2 <= self.bits <= 32:
+            yield ("bits", f"{self.bits!r} is out of range; expected an integer from 2 to 32")
+
+
+@_frozen
+class RecordOptions:
+    """``[record]``: the synthetic record written by ``noisechain record``."""
+
+    duration_s: float = param("length of the record", unit="s", check="positive",
+                              default=0.1)
+    kind: str | None = param(
+        "\"iq\": complex baseband I + iQ (heterodyne); \"if\": real samples at the "
+        "intermediate frequency; left out: \"iq\" for heterodyne, \"if\" for homodyne "
+        "(a real record at zero intermediate frequency)", choices=("iq", "if"),
+        default=None)
+    chunk_samples: int = param(
+        "samples generated and written per step; sets memory use, not the result",
+        check="positive", default=262144)
+    store_mechanics: bool = param(
+        "store the true mechanical quadratures beside the record", default=False)
+    in_run: bool = param(
+        "write this record (and its spectrum beside the analytic one) during "
+        "`noisechain run`", default=False)

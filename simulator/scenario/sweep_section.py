@@ -1,0 +1,117 @@
+"""The ``[sweep]`` section: which parameters to vary and how to combine them.
+
+    [sweep]
+    combine = "grid"                      # or "zip"
+    [sweep.parameters]
+    "drive.detuning_hz" = { start = -1.5, stop = 1.5, num = 61,
+                            unit = "mechanics[0].frequency_hz" }
+    "mechanics[0].bath_temperature_k" = [0.1, 1.0, 4.0]
+
+Each entry maps a parameter path to a list of values or to a range table with
+``start``, ``stop``, ``num`` and optionally ``log`` (logarithmic spacing) and
+``unit`` (a path whose value in the base scenario multiplies the numbers, so
+a detuning can be given in mechanical frequencies). The sweep engine is
+:mod:`simulator.workflows.sweep`.
+"""
+
+import dataclasses
+import math
+import types
+
+import numpy as np
+
+from simulator.errors import ScenarioError
+from simulator.scenario.schema import param
+
+RANGE_KEYS = ("start", "stop", "num", "log", "unit")
+MAX_POINTS = 1_000_000  # points in one sweep (a larger grid is almost surely a typo)
+
+
+def _range_problem(spec):
+    unknown = [k for k in spec if k not in RANGE_KEYS]
+    if unknown:
+        return (f"unknown key {unknown[0]!r} in a range; expected keys "
+                + ", ".join(RANGE_KEYS))
+    for k in ("start", "stop", "num"):
+        if k not in spec:
+            return f"a range needs {k!r}; expected {{start = .., stop = .., num = ..}}"
+    for k in ("start", "stop"):
+        v = spec[k]
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            return f"range {k} = {v!r} is not a finite number"
+    num = spec["num"]
+    if isinstance(num, bool) or not isinstance(num, int) or not 1 <= num <= MAX_POINTS:
+        return f"range num = {num!r}; expected an integer from 1 to {MAX_POINTS}"
+    if not isinstance(spec.get("log", False), bool):
+        return f"range log = {spec['log']!r}; expected true or false"
+    if spec.get("log") and (spec["start"] <= 0 or spec["stop"] <= 0):
+        return "a logarithmic range needs start > 0 and stop > 0"
+    if "unit" in spec and not isinstance(spec["unit"], str):
+        return f"range unit = {spec['unit']!r}; expected a parameter path as text"
+    return None
+
+
+def parse_parameters(value, key, source):
+    """Check ``[sweep.parameters]`` and freeze it (read-only mappings)."""
+    if not isinstance(value, dict) or not value:
+        raise ScenarioError(f"{value!r} is not a table of swept parameters; expected "
+                            "[sweep.parameters] mapping parameter paths to a list of "
+                            "values or a range table", source=source, key=key)
+    frozen = {}
+    for path, spec in value.items():
+        where = f'{key}."{path}"'
+        if isinstance(spec, list):
+            if not spec:
+                raise ScenarioError("empty list of values; expected at least one",
+                                    source=source, key=where)
+            for v in spec:
+                if isinstance(v, float) and not math.isfinite(v):
+                    raise ScenarioError(f"{v!r} is not a finite number", source=source,
+                                        key=where)
+            frozen[path] = tuple(spec)
+        elif isinstance(spec, dict):
+            problem = _range_problem(spec)
+            if problem:
+                raise ScenarioError(problem, source=source, key=where)
+            frozen[path] = types.MappingProxyType(dict(spec))
+        else:
+            raise ScenarioError(f"{spec!r} is neither a list of values nor a range table",
+                                source=source, key=where)
+    return types.MappingProxyType(frozen)
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class Sweep:
+    """``[sweep]``: parameters varied over a grid or element by element."""
+
+    combine: str = param("how several swept parameters combine: every combination "
+                         "(grid) or element by element (zip)", choices=("grid", "zip"),
+                         default="grid")
+    parameters: dict = param(
+        "parameter path → list of values, or range {start, stop, num, log, unit}",
+        parser=parse_parameters,
+        accepts="a table: parameter path = [values] or {start, stop, num, log = false, "
+                "unit = path}")
+
+    records: bool = param(
+        "also write a synthetic record at every stable point (DIR/records/<point>.h5; "
+        "seeds spawned per point from scenario.seed)", default=False)
+    spectra: bool = param(
+        "also write the analytic spectrum at every stable point (DIR/spectra/<point>.nc)",
+        default=False)
+
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if self.combine == "zip":
+            lengths = {p: len(axis_numbers(spec)) for p, spec in self.parameters.items()}
+            if len(set(lengths.values())) > 1:
+                yield ("parameters", "zipped parameters need equal lengths; got "
+                       + ", ".join(f"{p}: {n}" for p, n in lengths.items()))
+
+
+def axis_numbers(spec):
+    """The numbers of one swept parameter before any ``unit`` scaling."""
+    if isinstance(spec, (tuple, list)):
+        return list(spec)
+    space = np.geomspace if spec.get("log", False) else np.linspace
+    return [float(x) for x in space(spec["start"], spec["stop"], spec["num"])]

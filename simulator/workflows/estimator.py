@@ -1,0 +1,177 @@
+"""The user's estimator: what it sees, how it is loaded, run in isolation and checked.
+
+``--estimator module:function`` (or ``path/to/file.py:function``) names
+Python code that noisechain imports and runs with the user's privileges. It
+is never imported into noisechain's own processes: the check before a run
+and every trial run it in a forked child (:func:`simulator.workflows.processes.call_isolated`)
+with a time limit, so an estimator that raises, exits, hangs or crashes
+makes a failed trial with the reason, never a failed or silent run.
+
+The function receives a :class:`PublicRecord` and returns
+``{name: (value, uncertainty)}``. Each pair must hold two real numbers
+(``bool`` is not a number here), both finite, the uncertainty positive; a
+quantity that breaks this is left out of the trial and named in its error.
+"""
+
+import dataclasses
+import hashlib
+import importlib
+import importlib.util
+import math
+import numbers
+import sys
+from pathlib import Path
+
+import numpy as np
+
+from simulator.errors import InputError
+from simulator.workflows.processes import call_isolated
+
+DEFAULT_TIMEOUT_S = 600.0  # per trial; generous for a fit of a long record (our choice)
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class PublicRecord:
+    """What an estimator may see: the data and the public description, no truth.
+
+    ``samples`` are in shot-noise units (two-sided shot-noise density 1 per
+    Hz): complex I + iQ for an ``iq`` record (anti-Stokes at positive
+    frequency in an FFT), real for an ``if`` record.
+    """
+
+    samples: np.ndarray
+    kind: str
+    scheme: str
+    sample_rate_hz: float
+    intermediate_frequency_hz: float
+    local_oscillator_side: str
+    volts_per_count: float
+    shot_noise_per_count: float
+    scenario: object
+
+
+def public_view(record):
+    """The :class:`PublicRecord` of a :class:`simulator.records.generate.Record`."""
+    return PublicRecord(samples=record.shot_noise_units(), kind=record.kind,
+                        scheme=record.scheme, sample_rate_hz=record.sample_rate_hz,
+                        intermediate_frequency_hz=record.intermediate_frequency_hz,
+                        local_oscillator_side=record.local_oscillator_side,
+                        volts_per_count=record.volts_per_count,
+                        shot_noise_per_count=record.shot_noise_per_count,
+                        scenario=record.scenario)
+
+
+def load_estimator(spec):
+    """Import ``module:function`` or ``path/to/file.py:function`` into this process.
+
+    This runs the user's code here; noisechain itself calls it only inside
+    the isolated child (see :func:`check_estimator` and :func:`estimate`).
+    """
+    module_name, sep, func_name = str(spec).rpartition(":")
+    if not sep or not module_name or not func_name:
+        raise InputError(f"--estimator {spec!r}: expected 'module:function' or "
+                         "'path/to/file.py:function'")
+    try:
+        if module_name.endswith(".py"):
+            path = Path(module_name)
+            if not path.is_file():
+                raise InputError(f"--estimator {spec!r}: file {path} not found")
+            name = f"_noisechain_estimator_{hashlib.sha256(bytes(path.resolve())).hexdigest()}"
+            module_spec = importlib.util.spec_from_file_location(name, path)
+            module = importlib.util.module_from_spec(module_spec)
+            sys.modules[name] = module
+            module_spec.loader.exec_module(module)
+        else:
+            module = importlib.import_module(module_name)
+    except InputError:
+        raise
+    except Exception as exc:  # noqa: BLE001 - user code: report, don't crash
+        raise InputError(f"--estimator {spec!r}: importing {module_name} failed "
+                         f"({type(exc).__name__}: {exc})") from None
+    func = getattr(module, func_name, None)
+    if not callable(func):
+        raise InputError(f"--estimator {spec!r}: {module_name} has no function "
+                         f"{func_name!r}")
+    return func
+
+
+def _source_digest(spec):
+    """Loads the estimator (in the child); digest of its module's source file."""
+    func = load_estimator(spec)
+    path = getattr(sys.modules.get(getattr(func, "__module__", ""), None), "__file__", None)
+    try:
+        return hashlib.sha256(Path(path).read_bytes()).hexdigest() if path else ""
+    except OSError:
+        return ""
+
+
+def check_estimator(spec, timeout_s=DEFAULT_TIMEOUT_S):
+    """Import the estimator in an isolated child; return the digest of its source.
+
+    Raises
+    ------
+    simulator.errors.InputError
+        The spec is malformed, the module does not import (whatever it does:
+        raise, exit, hang), or it has no such function.
+    """
+    digest, failure = call_isolated(lambda: _source_digest(spec), timeout_s)
+    if failure:
+        if failure.startswith("InputError: "):
+            raise InputError(failure.removeprefix("InputError: "))
+        raise InputError(f"--estimator {spec!r}: loading it failed: {failure}")
+    return digest
+
+
+def estimate(spec, record, timeout_s=DEFAULT_TIMEOUT_S):
+    """Run the estimator on ``record`` in an isolated child.
+
+    Returns
+    -------
+    estimates : dict
+        ``{name: [value, uncertainty]}`` of the quantities that passed the
+        checks (see the module notes).
+    failure : str
+        Empty when every quantity passed; else the reasons, in words.
+    """
+    view = public_view(record)
+    outcome, failure = call_isolated(lambda: checked(load_estimator(spec)(view)), timeout_s)
+    if failure:
+        return {}, failure
+    return outcome["estimates"], "; ".join(outcome["rejected"])
+
+
+def checked(estimates):
+    """Split an estimator's return value into valid estimates and rejections.
+
+    Returns
+    -------
+    dict
+        ``{"estimates": {name: [value, uncertainty]}, "rejected": [reason, ...]}``
+
+    Raises
+    ------
+    TypeError
+        Not a non-empty dict.
+    """
+    if not isinstance(estimates, dict) or not estimates:
+        raise TypeError(f"the estimator returned {type(estimates).__name__} "
+                        f"{str(estimates)[:80]!r}; expected a non-empty dict "
+                        "{name: (value, uncertainty)}")
+    good, rejected = {}, []
+    for name, pair in estimates.items():
+        if (not isinstance(pair, (tuple, list)) or len(pair) != 2
+                or not all(_real(x) for x in pair)):
+            rejected.append(f"estimate {str(name)!r} is {str(pair)[:80]}; expected a pair "
+                            "of real numbers (value, uncertainty)")
+            continue
+        value, error = (float(x) for x in pair)
+        if not (math.isfinite(value) and math.isfinite(error) and error > 0):
+            rejected.append(f"estimate {str(name)!r} is ({value!r}, {error!r}); expected a "
+                            "finite value and a finite, positive uncertainty")
+            continue
+        good[str(name)] = [value, error]
+    return {"estimates": good, "rejected": rejected}
+
+
+def _real(x):
+    return isinstance(x, numbers.Real) and not isinstance(x, (bool, np.bool_))

@@ -1,0 +1,223 @@
+"""Everything the linear engine says about a scenario, in one frozen report.
+
+:func:`inspect_scenario` runs operating point, linear model, stability and
+steady state, and collects the regime warnings an experimenter should read.
+The report converts to plain data (``to_dict``) for ``noisechain inspect
+--json`` and to text for the terminal.
+"""
+
+import dataclasses
+import math
+
+from simulator.linear.laser_effects import occupation_report
+from simulator.linear.steady_state import STRONG_COUPLING_TOLERANCE, steady_state
+from simulator.model import laser_noise
+from simulator.model.system import as_system
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class Inspection:
+    """Operating point, stability and (when stable) steady state of a scenario."""
+
+    system: object  # simulator.model.system.System
+    steady: object  # SteadyState, or None when unstable
+    warnings: tuple
+    feasibility: tuple = ()  # per mode: dict of measurement-time bounds (heterodyne)
+    regime: object = None  # simulator.master.regime.RegimeVerdict: is the linear engine valid?
+    laser: tuple = ()  # per mode: laser-noise occupations (simulator.model.laser_noise)
+
+    @property
+    def scenario(self):
+        """The scenario inspected."""
+        return self.system.scenario
+
+    @property
+    def point(self):
+        """Its operating point."""
+        return self.system.point
+
+    @property
+    def stability(self):
+        """Its stability verdict."""
+        return self.system.stability
+
+    def to_dict(self):
+        """Plain data for JSON: numbers in SI units, frequencies in Hz."""
+        p, st = self.point, self.steady
+        modes = []
+        for j, mp in enumerate(p.modes):
+            entry = {
+                "name": mp.name,
+                "frequency_hz": mp.frequency_hz,
+                "linewidth_hz": mp.linewidth_hz,
+                "single_photon_coupling_hz": mp.single_photon_coupling_hz,
+                "g_hz": mp.coupling_rate_hz,
+                "zero_point_amplitude_m": mp.zero_point_amplitude_m,
+                "bath_occupation": mp.bath_occupation,
+                "cooperativity": mp.cooperativity,
+                "quantum_cooperativity": _finite(mp.quantum_cooperativity),
+                "sideband_resolution": mp.sideband_resolution,
+            }
+            if st is not None:
+                ms = st.modes[j]
+                entry.update({
+                    "optical_damping_hz": ms.optical_damping_hz,
+                    "optical_spring_hz": ms.optical_spring_hz,
+                    "anti_stokes_rate_hz": ms.anti_stokes_rate_hz,
+                    "stokes_rate_hz": ms.stokes_rate_hz,
+                    "effective_frequency_hz": ms.effective_frequency_hz,
+                    "effective_linewidth_hz": ms.effective_linewidth_hz,
+                    "occupation": ms.occupation,
+                    "weak_coupling_occupation": _finite(ms.weak_coupling_occupation),
+                    "backaction_limit": _finite(ms.backaction_limit),
+                })
+            if self.laser:
+                entry.update(self.laser[j])
+            modes.append(entry)
+        return {
+            "scenario": self.scenario.scenario.name,
+            "source": self.scenario.source,
+            "drive_frequency_hz": p.drive_frequency_hz,
+            "input_photon_flux_per_s": p.input_photon_flux,
+            "photon_number": p.photon_number,
+            "photon_number_branches": list(p.branches),
+            "bistable": p.bistable,
+            "branch": p.branch,
+            "detuning_bare_hz": p.detuning_bare_hz,
+            "detuning_effective_hz": p.detuning_effective_hz,
+            "static_shift_hz": p.static_shift_hz,
+            "stable": self.stability.stable,
+            "growth_rate_hz": self.stability.growth_rate_hz,
+            "instability_cause": self.stability.cause,
+            "cavity_occupation": None if st is None else st.cavity_occupation,
+            "modes": modes,
+            "feasibility": [dict(f) for f in self.feasibility],
+            "regime": None if self.regime is None else self.regime.to_dict(),
+            "warnings": list(self.warnings),
+        }
+
+    def to_text(self):
+        """Human-readable report for the terminal."""
+        d = self.to_dict()
+        lines = [f"scenario {d['scenario']}  ({d['source']})", "",
+                 "operating point"]
+        lines.append(f"  intracavity photons    {d['photon_number']:.6g}"
+                     + ("   (bistable: branches " + ", ".join(
+                         f"{b:.6g}" for b in d["photon_number_branches"])
+                        + f"; using {d['branch']})" if d["bistable"] else ""))
+        lines.append(f"  detuning bare          {d['detuning_bare_hz']:.6g} Hz")
+        lines.append(f"  detuning effective     {d['detuning_effective_hz']:.6g} Hz"
+                     f"   (static shift {d['static_shift_hz']:.6g} Hz)")
+        verdict = "stable" if d["stable"] else f"UNSTABLE: {d['instability_cause']}"
+        lines.append(f"  stability              {verdict}"
+                     f"   (max growth rate {d['growth_rate_hz']:.6g} Hz)")
+        if d["cavity_occupation"] is not None:
+            lines.append(f"  cavity occupation      {d['cavity_occupation']:.6g}")
+        rows = [("g (Hz)", "g_hz"), ("bath occupation", "bath_occupation"),
+                ("cooperativity", "cooperativity"),
+                ("quantum cooperativity", "quantum_cooperativity"),
+                ("sideband resolution Ωm/κ", "sideband_resolution"),
+                ("optical damping (Hz)", "optical_damping_hz"),
+                ("optical spring (Hz)", "optical_spring_hz"),
+                ("effective frequency (Hz)", "effective_frequency_hz"),
+                ("effective linewidth (Hz)", "effective_linewidth_hz"),
+                ("occupation (exact)", "occupation"),
+                ("occupation (weak coupling)", "weak_coupling_occupation"),
+                ("laser noise η_c n_c", "laser_input_occupation"),
+                ("excess from laser noise", "laser_noise_excess_occupation"),
+                ("apparent (sideband ratio)", "apparent_occupation_from_asymmetry"),
+                ("back-action limit n_min", "backaction_limit")]
+        for mode in d["modes"]:
+            lines += ["", f"mode {mode['name']}"]
+            for label, key in rows:
+                if key in mode:
+                    value = mode[key]
+                    text = "inf" if value is None else f"{value:.6g}"
+                    lines.append(f"  {label:<28}{text}")
+        for f in d["feasibility"]:
+            lines += ["", f"feasibility, mode {f['mode']} (Cramér–Rao, Whittle)"]
+            lines.append(f"  occupation error after 1 s       "
+                         f"{f['occupation_error_1s']:.4g}  (exact model; all of "
+                         f"{', '.join(f['parameters'])} unknown)")
+            if f.get("asymmetry_time_s") is not None:
+                lines.append(f"  time to resolve the asymmetry    "
+                             f"{f['asymmetry_time_s']:.4g} s at {f['significance']:g} "
+                             "standard deviations")
+        if d["regime"] is not None:
+            lines += ["", f"regime (linear engine validity)  {d['regime']['level']}",
+                      f"  {d['regime']['reason']}"]
+        if d["warnings"]:
+            lines += ["", "warnings"] + [f"  - {w}" for w in d["warnings"]]
+        return "\n".join(lines)
+
+
+def _finite(x):
+    return x if math.isfinite(x) else None
+
+
+def inspect_scenario(system, *, feasibility=True):
+    """Operating point, stability, steady state and warnings of ``scenario``.
+
+    ``feasibility=False`` leaves out the Cramér–Rao bounds (the costliest
+    part, a few tenths of a second), for callers such as sweeps that do not
+    report them.
+
+    Unlike :func:`simulator.linear.steady_state.steady_state`, an unstable operating
+    point does not raise: the report says so and carries no steady state.
+    """
+    system = as_system(system)
+    scenario, point, verdict = system.scenario, system.point, system.stability
+    warnings = []
+    if point.bistable:
+        warnings.append(
+            "the intracavity photon number is bistable (branches "
+            + ", ".join(f"{b:.4g}" for b in point.branches)
+            + f"); using the {point.branch} branch, set drive.bistable_branch to choose")
+    for mode in scenario.mechanics:
+        if mode.linewidth_hz > 0.1 * mode.frequency_hz:
+            warnings.append(
+                f"mode {mode.name}: linewidth {mode.linewidth_hz:.4g} Hz is more than a tenth "
+                f"of its frequency {mode.frequency_hz:.4g} Hz; the symmetric damping model "
+                "assumes a high quality factor and is not accurate here")
+    steady = steady_state(system) if verdict.stable else None
+    if steady is not None:
+        for ms in steady.modes:
+            exact, weak = ms.occupation, ms.weak_coupling_occupation
+            if not math.isfinite(weak) or abs(weak - exact) > STRONG_COUPLING_TOLERANCE * exact:
+                warnings.append(
+                    f"mode {ms.name}: weak-coupling occupation {weak:.4g} differs from the "
+                    f"exact {exact:.4g} by more than {STRONG_COUPLING_TOLERANCE:.0%}; the "
+                    "system is near or in strong coupling and the rate-equation "
+                    "diagnostics do not apply")
+    feasibility = _feasibility(scenario) if steady is not None and feasibility else ()
+    from simulator.master.regime import regime_verdict  # pure formulas, no QuTiP
+
+    regime = regime_verdict(point, None if steady is None else
+                            [ms.occupation for ms in steady.modes])
+    laser = (() if steady is None or laser_noise.is_quiet(scenario)
+             else occupation_report(system, steady))
+    warnings += [f"mode {ms.name}: the apparent (sideband ratio) occupation is not to be "
+                 f"trusted: {entry['apparent_occupation_warning']}"
+                 for ms, entry in zip(steady.modes if steady else (), laser, strict=False)
+                 if "apparent_occupation_warning" in entry]
+    return Inspection(system=system, steady=steady,
+                      warnings=tuple(warnings), feasibility=feasibility, regime=regime,
+                      laser=laser)
+
+
+def _feasibility(scenario):
+    """Per-mode measurement-time bounds (simulator.analysis.feasibility)."""
+    from simulator.analysis import feasibility as fz
+
+    out = []
+    for j, mode in enumerate(scenario.mechanics):
+        if mode.coupling_hz == 0 or scenario.drive.power_w == 0:
+            continue  # the record carries no information about this mode
+        bound = fz.occupation_bound(scenario, j)
+        entry = {"mode": mode.name, "occupation_error_1s": bound.error_one_second,
+                 "parameters": list(bound.paths), "significance": fz.ASYMMETRY_SIGNIFICANCE,
+                 "asymmetry_time_s": None}
+        if scenario.detection.scheme == "heterodyne":
+            entry["asymmetry_time_s"] = fz.asymmetry_time(scenario, j).duration_s
+        out.append(entry)
+    return tuple(out)

@@ -1,0 +1,100 @@
+"""A record as a user asks for it: in memory or streamed to its HDF5 file, with progress.
+
+:func:`simulate_record` composes the record engine
+(:func:`simulator.records.generate.generate_record`) with the file writer of
+:mod:`simulator.io.recordfile` and a progress bar that also lets Ctrl-C stop
+the run between chunks; :func:`master_records_to_files` does the same for the
+master equation's trajectory records.
+"""
+
+from simulator.records.generate import generate_record
+
+
+def simulate_record(system, *, seed=None, duration_s=None, out=None, form="auto",
+                    store_mechanics=None, chunk_samples=None, progress=False, overwrite=False):
+    """Generate a digitised record of ``system`` with its ground truth.
+
+    Parameters
+    ----------
+    system : simulator.model.system.System
+        Or a scenario, built into one.
+    seed : int, optional
+        Default: ``scenario.scenario.seed``.
+    duration_s : float, optional
+        Overrides ``record.duration_s`` (the embedded scenario says so).
+    out : str or pathlib.Path, optional
+        HDF5 file to stream the record to (written through a temporary file
+        and renamed when complete). Without it the record is kept in memory.
+    form : {"auto", "full-state", "innovations"}
+        Exact generator; "auto" takes the full state form when the mechanical
+        quadratures are stored and the innovations form otherwise.
+    store_mechanics : bool, optional
+        Overrides ``record.store_mechanics``.
+    chunk_samples : int, optional
+        Samples per step; overrides ``record.chunk_samples``. Does not change
+        the result.
+    progress : bool
+        Show a progress bar (tqdm, on standard error).
+    overwrite : bool
+        Replace an existing file at ``out`` (by default it is an error).
+
+    Returns
+    -------
+    simulator.records.generate.Record
+        In memory, or (with ``out``) describing the file: ``Record.samples()``
+        reads the counts, :func:`simulator.io.recordfile.load_record` everything
+        including the stored mechanical quadratures.
+
+    Raises
+    ------
+    simulator.errors.InputError
+        Bad seed, duration, form or output path; an existing ``out`` without
+        ``overwrite``; a write that fails (disk full) as
+        :class:`simulator.io.files.OutputError`.
+    simulator.errors.OperatingPointError
+        Unstable operating point: no stationary record exists.
+
+    Warns
+    -----
+    simulator.records.generate.RecordWarning
+        When samples were clipped at the digitiser's full scale.
+    """
+    from tqdm import tqdm
+
+    from simulator.workflows import interrupt
+
+    sink = None
+    if out is not None:
+        from simulator.io.recordfile import RecordFileWriter
+
+        def sink(plan, rows):
+            return RecordFileWriter(out, plan, chunk_rows=rows, overwrite=overwrite)
+
+    with tqdm(unit="sample", unit_scale=True, disable=not progress, desc="record") as bar:
+        def advance(count, total):
+            bar.total = total
+            bar.update(count)
+            interrupt.check()  # a Ctrl-C swallowed inside a library callback still stops
+
+        return generate_record(system, seed=seed, duration_s=duration_s, form=form,
+                               store_mechanics=store_mechanics, chunk_samples=chunk_samples,
+                               sink=sink, progress=advance)
+
+
+def master_records_to_files(system, seeds, out, *, overwrite=False, **options):
+    """Master-equation trajectory records, one HDF5 file per seed (``out``, a list of paths).
+
+    See :func:`simulator.master.trajectories.master_records` for ``options``.
+    """
+    from simulator.errors import InputError
+    from simulator.io.recordfile import RecordFileWriter
+    from simulator.master.trajectories import master_records
+
+    out = list(out)
+    if len(out) != len(seeds):
+        raise InputError(f"{len(out)} output files for {len(seeds)} seeds; expected one each")
+
+    def sink(plan, index):
+        return RecordFileWriter(out[index], plan, overwrite=overwrite)
+
+    return master_records(system, seeds, sink=sink, **options)

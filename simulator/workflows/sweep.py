@@ -1,0 +1,383 @@
+"""Sweeps: evaluate a scenario over a grid (or zip) of parameter values.
+
+Each point is an independent scenario derived from the base one by parameter
+paths (nothing is mutated). A point is evaluated by :func:`evaluate_point`,
+a pure function of the scenario text and the point's values, so the results
+are bit for bit the same whichever executor runs it and however many workers
+there are. Finished points are stored one file each, atomically, under
+``OUT/points/``; an interrupted sweep rerun with the same output folder skips
+them, and a folder holding a different scenario is refused. The assembled
+result is one :class:`xarray.Dataset` with a dimension per swept parameter
+(``grid``) or one ``point`` dimension (``zip``), saved as NetCDF.
+"""
+
+import dataclasses
+import functools
+import itertools
+import math
+import re
+from pathlib import Path
+
+import numpy as np
+
+from simulator.errors import ScenarioError
+from simulator.io.files import OutputError, write_netcdf
+from simulator.scenario.sweep_section import MAX_POINTS, axis_numbers
+from simulator.workflows import tasks
+
+FORMAT = "noisechain-sweep"
+FORMAT_VERSION = 2  # 2: a unit axis is named for the ratio it holds
+
+# Per-point scalar results, with units (NaN where the point has no steady state).
+POINT_QUANTITIES = {
+    "photon_number": "",
+    "branch_count": "",
+    "bistable": "",
+    "stable": "",
+    "growth_rate_hz": "Hz",
+    "detuning_effective_hz": "Hz",
+    "cavity_occupation": "",
+}
+# Per-point, per-mode results.
+MODE_QUANTITIES = {
+    "occupation": "",
+    "weak_coupling_occupation": "",
+    "bath_occupation": "",
+    "g_hz": "Hz",
+    "cooperativity": "",
+    "optical_damping_hz": "Hz",
+    "optical_spring_hz": "Hz",
+    "effective_frequency_hz": "Hz",
+    "effective_linewidth_hz": "Hz",
+    "sideband_ratio": "",
+    "occupation_from_ratio": "",
+    "asymmetry_time_s": "s",
+}
+
+
+@dataclasses.dataclass(frozen=True)
+class Axis:
+    """One swept parameter: its path, the numbers as given and the values applied."""
+
+    path: str
+    numbers: tuple  # as written in the scenario (in units of ``unit`` if given)
+    values: tuple  # what is set at the path
+    unit: str  # path of the unit parameter, or ""
+    log: bool = False  # logarithmically spaced range
+
+    @property
+    def name(self):
+        """Dimension name safe for NetCDF, e.g. ``mechanics0_bath_temperature_k``.
+
+        An axis in units of another parameter is named for the ratio it holds,
+        e.g. ``drive_detuning_over_mechanics0_frequency`` (Δ/Ωm); the values
+        set at the path are then the variable :attr:`value_name`.
+        """
+        if self.unit:
+            return f"{_without_units(self.path)}_over_{_without_units(self.unit)}"
+        return self.value_name
+
+    @property
+    def value_name(self):
+        """NetCDF name of the values set at the path, e.g. ``drive_detuning_hz``."""
+        return _netcdf_name(self.path)
+
+
+def _netcdf_name(path):
+    return re.sub(r"[^A-Za-z0-9_]", "", path.replace(".", "_"))
+
+
+def _without_units(path):
+    """``drive.detuning_hz`` → ``drive_detuning`` (the unit suffix dropped)."""
+    return re.sub(r"_(hz|w|k|m|kg|s)$", "", _netcdf_name(path))
+
+
+def sweep_axes(scenario):
+    """The swept parameters of ``scenario`` with every value checked.
+
+    Raises
+    ------
+    ScenarioError
+        If the scenario has no ``[sweep]`` or a value would make an invalid
+        scenario (the message names the path and the value).
+    """
+    if scenario.sweep is None:
+        raise ScenarioError("the scenario has no [sweep] section; expected [sweep] with "
+                            "[sweep.parameters] to run a sweep", source=scenario.source,
+                            key="sweep")
+    base = dataclasses.replace(scenario, sweep=None)
+    axes = []
+    for path, spec in scenario.sweep.parameters.items():
+        numbers = axis_numbers(spec)
+        unit = spec.get("unit", "") if not isinstance(spec, tuple) else ""
+        scale = float(base.get(unit)) if unit else 1.0
+        values = [x * scale if unit else x for x in numbers]
+        for v in sorted(set(values), key=values.index):
+            try:
+                base.replace(path, v)
+            except ScenarioError as exc:
+                raise ScenarioError(f"swept value {v!r} is invalid: {exc.detail}",
+                                    source=scenario.source,
+                                    key=f'sweep.parameters."{path}"') from None
+        log = not isinstance(spec, tuple) and bool(spec.get("log", False))
+        axes.append(Axis(path=path, numbers=tuple(numbers), values=tuple(values), unit=unit,
+                         log=log))
+    return tuple(axes)
+
+
+def sweep_points(scenario, axes=None):
+    """Every point as ``(index, assignments)``; index is a tuple per grid axis.
+
+    For ``combine = "zip"`` the index has one entry, the point number.
+    """
+    axes = sweep_axes(scenario) if axes is None else axes
+    total = math.prod(len(a.values) for a in axes)
+    if scenario.sweep.combine == "grid" and total > MAX_POINTS:
+        raise ScenarioError(f"the grid has {total} points; expected at most {MAX_POINTS} "
+                            "(split the sweep or use combine = \"zip\")",
+                            source=scenario.source, key="sweep.parameters")
+    if scenario.sweep.combine == "zip":
+        return [((i,), tuple((a.path, a.values[i]) for a in axes))
+                for i in range(len(axes[0].values))]
+    ranges = [range(len(a.values)) for a in axes]
+    return [(idx, tuple((a.path, a.values[i]) for a, i in zip(axes, idx, strict=True)))
+            for idx in itertools.product(*ranges)]
+
+
+@functools.lru_cache(maxsize=8)
+def _base_from_text(text):
+    from simulator.scenario.loader import parse_scenario
+
+    return dataclasses.replace(parse_scenario(text, source="<sweep>"), sweep=None)
+
+
+def evaluate_point(scenario_text, assignments, outputs=None):
+    """Evaluate one sweep point: operating point, stability, steady state.
+
+    Parameters
+    ----------
+    scenario_text : str
+        The base scenario as TOML (its ``[sweep]`` is ignored).
+    assignments : sequence of (path, value)
+    outputs : PointOutputs, optional
+        Where and whether to write this point's record and spectrum files.
+
+    Returns
+    -------
+    dict
+        ``POINT_QUANTITIES`` and ``MODE_QUANTITIES`` (lists per mode) as plain
+        floats, and ``error``: empty, or the message of an error raised by this
+        point (the sweep records it and goes on).
+    """
+    from simulator.workflows.inspection import inspect_scenario
+
+    nan = float("nan")
+    result = {k: nan for k in POINT_QUANTITIES}
+    try:
+        scenario = _base_from_text(scenario_text)
+        n_modes = len(scenario.mechanics)
+        result.update({k: [nan] * n_modes for k in MODE_QUANTITIES})
+        for path, value in assignments:
+            scenario = scenario.replace(path, value)
+        report = inspect_scenario(scenario, feasibility=False).to_dict()
+    except Exception as exc:  # noqa: BLE001 - one failing point must not stop a sweep
+        result["error"] = f"{type(exc).__name__}: {exc}"
+        return result
+    result["photon_number"] = report["photon_number"]
+    result["branch_count"] = len(report["photon_number_branches"])
+    result["bistable"] = float(report["bistable"])
+    result["stable"] = float(report["stable"])
+    result["growth_rate_hz"] = report["growth_rate_hz"]
+    result["detuning_effective_hz"] = report["detuning_effective_hz"]
+    if report["cavity_occupation"] is not None:
+        result["cavity_occupation"] = report["cavity_occupation"]
+    for k in MODE_QUANTITIES:
+        result[k] = [nan if m.get(k) is None else float(m[k]) for m in report["modes"]]
+    result["files"] = []
+    try:
+        if report["stable"]:
+            _add_sidebands(scenario, result)
+            if outputs is not None:
+                result["files"] = outputs.write(scenario)
+    except OutputError:
+        raise  # a full disk is not a property of the point: stop the sweep, keep what is done
+    except Exception as exc:  # noqa: BLE001 - recorded with the point
+        result["error"] = f"{type(exc).__name__}: {exc}"
+        return result
+    result["error"] = ""
+    return result
+
+
+@dataclasses.dataclass(frozen=True)
+class PointOutputs:
+    """The files a sweep point writes beside the dataset (records, spectra)."""
+
+    folder: str
+    key: str
+    seed: int
+    records: bool
+    spectra: bool
+
+    def write(self, scenario):
+        """Write the requested files for ``scenario``; return their paths relative to the folder."""
+        written = []
+        if self.records:
+            import warnings
+
+            from simulator.workflows.record import simulate_record
+
+            path = Path(self.folder) / "records" / f"{self.key}.h5"
+            path.parent.mkdir(parents=True, exist_ok=True)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")  # clipping is counted in the file
+                simulate_record(scenario, seed=self.seed, out=path, overwrite=True)
+            written.append(f"records/{self.key}.h5")
+        if self.spectra:
+            from simulator.linear.spectra import measured_spectrum
+
+            path = Path(self.folder) / "spectra" / f"{self.key}.nc"
+            path.parent.mkdir(parents=True, exist_ok=True)
+            measured_spectrum(scenario).save(path, overwrite=True)
+            written.append(f"spectra/{self.key}.nc")
+        return written
+
+
+def _add_sidebands(scenario, result):
+    """Sideband ratio, the occupation it implies, and the asymmetry integration time."""
+    from simulator.analysis.feasibility import ASYMMETRY_SIGNIFICANCE, asymmetry_time
+    from simulator.linear.sidebands import sideband_summary
+
+    for j, s in enumerate(sideband_summary(scenario)):
+        result["sideband_ratio"][j] = s.ratio
+        result["occupation_from_ratio"][j] = s.occupation_from_ratio
+        if scenario.detection.scheme == "heterodyne":
+            result["asymmetry_time_s"][j] = asymmetry_time(
+                scenario, j, ASYMMETRY_SIGNIFICANCE).duration_s
+
+
+def _point_task(common, payload):
+    # evaluate_point is looked up at call time so that tests can substitute it
+    scenario_text, folder, records, spectra = common
+    assignments, key, seed = payload
+    outputs = PointOutputs(folder, key, seed, records, spectra) if records or spectra else None
+    return evaluate_point(scenario_text, assignments, outputs)
+
+
+def _point_key(index):
+    return "-".join(f"{i:05d}" for i in index)
+
+
+def run_sweep(scenario, out, *, workers=None, dask=None, progress=True):
+    """Run (or resume) the sweep of ``scenario``, storing results under ``out``.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        With a ``[sweep]`` section.
+    out : path
+        Output folder: ``sweep.json`` (manifest), ``points/`` (one JSON file
+        per finished point) and ``sweep.nc`` (the assembled Dataset).
+    workers : int, optional
+        Local worker processes (default: all cores); 1 runs in this process.
+    dask : str, optional
+        ``"local"`` for a Dask LocalCluster, or a scheduler address
+        ``tcp://host:port``; overrides ``workers``.
+    progress : bool
+        Show a progress bar with rate and time remaining.
+
+    Returns
+    -------
+    xarray.Dataset
+    """
+    out = Path(out)
+    text = scenario.to_toml()
+    axes = sweep_axes(scenario)
+    points = sweep_points(scenario, axes)
+    with tasks.claim_folder(out, "sweep.json", {
+            "format": FORMAT, "format_version": FORMAT_VERSION,
+            "sha256": tasks.digest(text), "scenario_toml": text}, "sweep"):
+        seeds = np.random.SeedSequence(scenario.scenario.seed).spawn(len(points))
+        common = (text, str(out.resolve()), scenario.sweep.records, scenario.sweep.spectra)
+        results = tasks.run_tasks(out / "points", _point_task, common,
+                                  [(_point_key(index), (a, _point_key(index),
+                                                        int(seed.generate_state(1)[0])))
+                                   for (index, a), seed in zip(points, seeds, strict=True)],
+                                  workers=workers, dask=dask, progress=progress, desc="sweep",
+                                  unit="pt")
+        dataset = assemble(scenario, axes, points, results)
+        write_dataset(dataset, out / "sweep.nc")
+    return dataset
+
+
+def assemble(scenario, axes, points, results):
+    """Build the sweep Dataset from per-point results (dimension per swept axis)."""
+    import xarray as xr
+
+    from simulator import __version__
+
+    modes = [m.name for m in scenario.mechanics]
+    if scenario.sweep.combine == "zip":
+        shape, dims = (len(points),), ("point",)
+        coords = {"point": np.arange(len(points))}
+        for a in axes:
+            coords[a.name] = ("point", np.asarray(a.numbers), _axis_attrs(a))
+    else:
+        shape = tuple(len(a.values) for a in axes)
+        dims = tuple(a.name for a in axes)
+        coords = {a.name: (a.name, np.asarray(a.numbers), _axis_attrs(a)) for a in axes}
+    coords["mode"] = np.asarray(modes, dtype=object)
+    data = {k: np.full(shape, np.nan) for k in POINT_QUANTITIES}
+    data.update({k: np.full(shape + (len(modes),), np.nan) for k in MODE_QUANTITIES})
+    errors = np.full(shape, "", dtype=object)
+    files = np.full(shape, "", dtype=object)
+    for index, _ in points:
+        r = results[_point_key(index)]
+        for k in POINT_QUANTITIES:
+            data[k][index] = r.get(k, np.nan)  # absent when the point failed early
+        for k in MODE_QUANTITIES:
+            data[k][index] = r.get(k, np.nan)  # absent when the point failed early
+        errors[index] = r["error"]
+        files[index] = " ".join(r.get("files", []))
+    variables = {k: (dims, v, {"units": POINT_QUANTITIES[k]}) for k, v in
+                 ((k, data[k]) for k in POINT_QUANTITIES)}
+    variables.update({k: (dims + ("mode",), data[k], {"units": MODE_QUANTITIES[k]})
+                      for k in MODE_QUANTITIES})
+    variables["error"] = (dims, errors.astype(str), {"long_name": "error raised at the point"})
+    if scenario.sweep.records or scenario.sweep.spectra:
+        variables["files"] = (dims, files.astype(str),
+                              {"long_name": "files written for the point, relative to the "
+                                            "sweep folder"})
+    for a in axes:
+        if a.unit:
+            values = np.asarray(a.values)
+            attrs = {"path": a.path, "units": _axis_attrs(
+                dataclasses.replace(a, unit=""))["units"]}
+            dim = a.name if scenario.sweep.combine == "grid" else "point"
+            coords[a.value_name] = (dim, values, attrs)
+    attrs = {"format": FORMAT, "format_version": FORMAT_VERSION,
+             "scenario_toml": scenario.to_toml(), "combine": scenario.sweep.combine,
+             "software_version": __version__, "scenario_name": scenario.scenario.name}
+    return xr.Dataset(variables, coords=coords, attrs=attrs)
+
+
+def _axis_attrs(axis):
+    attrs = {"path": axis.path, "spacing": "log" if axis.log else "linear"}
+    if axis.unit:
+        attrs["units"] = f"in units of {axis.unit}"
+    else:
+        suffix = axis.path.rsplit("_", 1)[-1]
+        attrs["units"] = {"hz": "Hz", "w": "W", "k": "K", "m": "m", "kg": "kg",
+                          "s": "s"}.get(suffix, "")
+    return attrs
+
+
+def write_dataset(dataset, path, *, overwrite=True):
+    """Write a sweep or trial Dataset with :func:`simulator.io.files.write_netcdf`.
+
+    ``overwrite`` defaults to true: the sweep and trial folders own their
+    datasets (the folder lock and manifest make sure of it).
+    """
+    ds = dataset.copy()
+    if "mode" in ds.coords:
+        ds = ds.assign_coords(mode=ds["mode"].values.astype(str))
+    write_netcdf(ds, path, overwrite=overwrite)

@@ -1,0 +1,276 @@
+"""Validation harness: run an estimator on many records and compare with the truth.
+
+The user writes ``estimator(record) -> {name: (value, uncertainty)}``. It
+receives a :class:`simulator.workflows.estimator.PublicRecord` — the samples, the sample rate, the
+calibration factors and the scenario as the experimenter describes it — and
+never the ground truth. ``noisechain trial`` generates N independent records
+(seeds from :class:`numpy.random.SeedSequence` spawned from the scenario's
+seed), runs the estimator on each through the same resumable executors as
+sweeps (local processes or Dask), and reports per quantity: bias, spread,
+root-mean-square error, the pull (estimate − truth)/uncertainty, coverage of
+the one- and two-sigma intervals, and failures. The estimator runs in an
+isolated child process per trial (:mod:`simulator.workflows.estimator`); only
+successful trials are stored, so a rerun tries the failed ones again.
+
+A quantity is compared with the truth by its name: ``occupation`` (first
+mode), ``occupation[<mode>]``, ``effective_frequency_hz``,
+``effective_linewidth_hz``, ``coupling_rate_hz`` (also with ``[<mode>]``) and
+``cavity_occupation``. Text after a colon labels a variant, so
+``occupation:asymmetry`` and ``occupation:damping`` are both compared with
+the occupation. Other names are reported without a truth (spread only).
+"""
+
+import dataclasses
+import math
+import re
+from pathlib import Path
+
+import numpy as np
+
+from simulator.errors import InputError
+from simulator.workflows import tasks
+from simulator.workflows.estimator import DEFAULT_TIMEOUT_S, check_estimator, estimate
+
+FORMAT = "noisechain-trial"
+FORMAT_VERSION = 1
+ONE_SIGMA, TWO_SIGMA = 0.682689492137, 0.954499736104  # Gaussian interval contents
+MIN_TRIALS_FOR_VERDICT = 10  # fewer: statistics are reported, no verdict
+
+
+def trial_seeds(scenario, n):
+    """Independent record seeds for trials 0..n−1 (the first k never change with n)."""
+    children = np.random.SeedSequence(scenario.scenario.seed).spawn(n)
+    return [int(c.generate_state(1, dtype=np.uint32)[0]) for c in children]
+
+
+def _trial_task(common, seed):
+    """One trial: generate a record, run the estimator in isolation; JSON-able result."""
+    import warnings
+
+    from simulator.scenario.loader import parse_scenario
+    from simulator.workflows.record import simulate_record
+
+    text, spec, duration, timeout_s = common
+    try:
+        scenario = parse_scenario(text, source="<trial>")
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            record = simulate_record(scenario, seed=seed, duration_s=duration)
+    except Exception as exc:  # noqa: BLE001 - one trial fails, not the run
+        return {"estimates": {}, "error": f"{type(exc).__name__}: {exc}", "warnings": []}
+    estimates, failure = estimate(spec, record, timeout_s)
+    return {"estimates": estimates, "error": failure,
+            "warnings": [str(w.message) for w in caught]}
+
+
+def succeeded(result):
+    """Only a trial without an error is kept; a failed one is run again on a rerun."""
+    return not result["error"]
+
+
+def truth_table(scenario):
+    """Truth by quantity name (see the module notes)."""
+    from simulator.linear.steady_state import steady_state
+    from simulator.model.system import as_system
+
+    system = as_system(scenario)
+    point, steady = system.point, steady_state(system)
+    table = {"cavity_occupation": steady.cavity_occupation}
+    for j, (mp, ms) in enumerate(zip(point.modes, steady.modes, strict=True)):
+        values = {"occupation": ms.occupation,
+                  "effective_frequency_hz": ms.effective_frequency_hz,
+                  "effective_linewidth_hz": ms.effective_linewidth_hz,
+                  "coupling_rate_hz": mp.coupling_rate_hz}
+        for key, value in values.items():
+            table[f"{key}[{mp.name}]"] = value
+            if j == 0:
+                table[key] = value
+    return table
+
+
+def truth_of(name, table):
+    """Truth for quantity ``name`` (``base`` or ``base:label``), or None."""
+    return table.get(name.split(":", 1)[0])
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class QuantityReport:
+    """Performance of an estimator for one quantity over the trials."""
+
+    name: str
+    truth: float | None
+    trials: int  # trials that returned a finite value and uncertainty
+    failures: int
+    mean: float
+    spread: float  # sample standard deviation
+    bias: float | None
+    bias_error: float | None  # standard error of the bias
+    rmse: float | None
+    pull_mean: float | None
+    pull_width: float | None
+    coverage_1sigma: float | None
+    coverage_2sigma: float | None
+    verdict: str
+
+    def to_dict(self):
+        """Plain data for JSON."""
+        return dataclasses.asdict(self)
+
+
+def summarise(name, estimates, uncertainties, truth, failures):
+    """Statistics of one quantity; ``estimates`` and ``uncertainties`` finite arrays."""
+    n = estimates.size
+    mean = float(estimates.mean()) if n else math.nan
+    spread = float(estimates.std(ddof=1)) if n > 1 else math.nan
+    if truth is None or n < MIN_TRIALS_FOR_VERDICT:
+        return QuantityReport(name=name, truth=truth, trials=n, failures=failures, mean=mean,
+                              spread=spread, bias=None, bias_error=None, rmse=None,
+                              pull_mean=None, pull_width=None, coverage_1sigma=None,
+                              coverage_2sigma=None, verdict="no truth to compare with"
+                              if truth is None else f"too few trials for a verdict "
+                              f"({n} < {MIN_TRIALS_FOR_VERDICT})")
+    bias = mean - truth
+    bias_error = spread / math.sqrt(n)
+    pulls = (estimates - truth) / uncertainties
+    width = float(pulls.std(ddof=1))
+    verdict = []
+    if bias_error == 0:  # identical estimates: any bias is exact
+        if bias != 0:
+            verdict.append(f"BIASED: every trial returned {mean:.6g} against the truth "
+                           f"{truth:.6g}")
+    elif abs(bias) > 3 * bias_error:
+        verdict.append(f"BIASED: bias {bias:.4g} is {abs(bias) / bias_error:.1f} standard "
+                       "errors from zero")
+    tolerance = 3 / math.sqrt(2 * (n - 1))  # 3 standard errors of a standard deviation
+    if width > 1 + tolerance:
+        verdict.append(f"uncertainties UNDERSTATED: pull width {width:.3g}")
+    elif width < 1 - tolerance:
+        verdict.append(f"uncertainties OVERSTATED: pull width {width:.3g}")
+    return QuantityReport(
+        name=name, truth=float(truth), trials=n, failures=failures, mean=mean, spread=spread,
+        bias=float(bias), bias_error=float(bias_error),
+        rmse=float(np.sqrt(np.mean((estimates - truth) ** 2))),
+        pull_mean=float(pulls.mean()), pull_width=width,
+        coverage_1sigma=float(np.mean(np.abs(pulls) <= 1)),
+        coverage_2sigma=float(np.mean(np.abs(pulls) <= 2)),
+        verdict="; ".join(verdict) or "consistent: no bias, honest uncertainties")
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class TrialResult:
+    """Per-quantity reports, the per-trial data and where they were written."""
+
+    quantities: tuple
+    dataset: object
+    errors: tuple  # (trial, message) of failed trials
+    out: Path
+
+    def to_dict(self):
+        """Plain data for JSON."""
+        return {"out": str(self.out.resolve()), "trials": int(self.dataset.sizes["trial"]),
+                "failed_trials": len(self.errors),
+                "quantities": [q.to_dict() for q in self.quantities],
+                "errors": [list(e) for e in self.errors[:20]]}
+
+
+def run_trials(scenario, estimator, n_trials, out, *, duration_s=None, workers=None,
+               dask=None, progress=True, timeout_s=DEFAULT_TIMEOUT_S):
+    """Run ``estimator`` on ``n_trials`` independent records of ``scenario``.
+
+    Parameters
+    ----------
+    scenario : Scenario
+    estimator : str
+        ``module:function`` or ``path/to/file.py:function``.
+    n_trials : int
+    out : path
+        Folder: ``trial.json`` (manifest), ``trials/`` (one file per trial,
+        so an interrupted run resumes), ``trial.nc`` and ``report.html``.
+    duration_s : float, optional
+        Record length; default ``record.duration_s`` of the scenario.
+    workers, dask, progress
+        As for :func:`simulator.workflows.tasks.run_tasks`.
+    timeout_s : float
+        Seconds the estimator may take on one record (and to import) before
+        its process is stopped and the trial counts as failed.
+
+    Returns
+    -------
+    TrialResult
+    """
+    if isinstance(n_trials, bool) or not isinstance(n_trials, int) or n_trials < 2:
+        raise InputError(f"--trials {n_trials!r}: expected an integer of at least 2")
+    if not (isinstance(timeout_s, (int, float)) and not isinstance(timeout_s, bool)
+            and math.isfinite(timeout_s) and timeout_s > 0):
+        raise InputError(f"--timeout-s {timeout_s!r}: expected a positive number of seconds")
+    out = Path(out)
+    text = scenario.to_toml()
+    table = truth_table(scenario)
+    duration = scenario.record.duration_s if duration_s is None else float(duration_s)
+    if not (math.isfinite(duration) and duration > 0):
+        raise InputError(f"--duration {duration_s!r}: expected a positive number of seconds")
+    # fail fast with a clear message; the estimator's code is part of the identity, so
+    # edited code never reuses old results
+    source = check_estimator(estimator, timeout_s)
+    identity = f"{text}\n{estimator}\n{duration!r}\n{source}"
+    with tasks.claim_folder(out, "trial.json", {
+            "format": FORMAT, "format_version": FORMAT_VERSION,
+            "sha256": tasks.digest(identity), "scenario_toml": text, "estimator": estimator,
+            "duration_s": duration}, "trial"):
+        seeds = trial_seeds(scenario, n_trials)
+        results = tasks.run_tasks(out / "trials", _trial_task,
+                                  (text, estimator, duration, float(timeout_s)),
+                                  [(f"{i:06d}", s) for i, s in enumerate(seeds)],
+                                  workers=workers, dask=dask, progress=progress,
+                                  desc="trials", unit="trial", keep=succeeded)
+        ordered = [results[f"{i:06d}"] for i in range(n_trials)]
+        dataset, reports, errors = _assemble(scenario, estimator, duration, seeds, ordered,
+                                             table)
+        from simulator.workflows.sweep import write_dataset
+
+        write_dataset(dataset, out / "trial.nc")
+        result = TrialResult(quantities=tuple(reports), dataset=dataset, errors=tuple(errors),
+                             out=out)
+        from simulator.report.trial_report import write_trial_report
+
+        write_trial_report(result, scenario, estimator, out / "report.html")
+    return result
+
+
+def _assemble(scenario, estimator, duration, seeds, ordered, table):
+    import xarray as xr
+
+    from simulator import __version__
+
+    names = sorted({k for r in ordered for k in r["estimates"]})
+    n = len(ordered)
+    est = np.full((n, len(names)), np.nan)
+    unc = np.full((n, len(names)), np.nan)
+    errors = [(i, r["error"]) for i, r in enumerate(ordered) if r["error"]]
+    for i, r in enumerate(ordered):
+        for j, name in enumerate(names):
+            if name in r["estimates"]:
+                est[i, j], unc[i, j] = r["estimates"][name]
+    truths = np.array([np.nan if truth_of(q, table) is None else truth_of(q, table)
+                       for q in names])
+    reports = []
+    for j, name in enumerate(names):
+        ok = np.isfinite(est[:, j]) & np.isfinite(unc[:, j]) & (unc[:, j] > 0)
+        reports.append(summarise(name, est[ok, j], unc[ok, j], truth_of(name, table),
+                                 int(n - ok.sum())))
+    dataset = xr.Dataset(
+        {"estimate": (("trial", "quantity"), est),
+         "uncertainty": (("trial", "quantity"), unc),
+         "truth": (("quantity",), truths),
+         "seed": (("trial",), np.array(seeds, dtype=np.int64)),
+         "error": (("trial",), np.array([r["error"] for r in ordered], dtype=str))},
+        coords={"trial": np.arange(n), "quantity": np.array(names, dtype=str)},
+        attrs={"format": FORMAT, "format_version": FORMAT_VERSION,
+               "scenario_toml": scenario.to_toml(), "estimator": estimator,
+               "duration_s": duration, "software_version": __version__})
+    return dataset, reports, errors
+
+
+def sanitize(name):
+    """File-name-safe version of a quantity name."""
+    return re.sub(r"[^A-Za-z0-9_.-]", "_", name)
