@@ -98,23 +98,6 @@ def averaged_periodogram(samples, sample_rate_hz, *, segment_samples, window="ha
                        noise_bandwidth_hz=enbw, window=window)
 
 
-def block_average(estimate, bins):
-    """Average ``bins`` adjacent frequency bins: Gamma shape grows to K·bins.
-
-    Valid where the spectrum is flat across the block and bins are independent
-    (boxcar window); see Nørrelykke & Flyvbjerg (2010), Sec. III.
-    """
-    n = int(bins)
-    if n < 1:
-        raise InputError(f"bins = {bins}; expected a positive integer")
-    m = estimate.frequency_hz.size // n
-    f = estimate.frequency_hz[:m * n].reshape(m, n).mean(axis=1)
-    d = estimate.density[:m * n].reshape(m, n).mean(axis=1)
-    return dataclasses.replace(estimate, frequency_hz=f, density=d,
-                               averages=estimate.averages * n,
-                               resolution_hz=estimate.resolution_hz * n)
-
-
 class WindowedExpectation:
     """E[periodogram] of a two-sided density, exactly for the window and segment used.
 

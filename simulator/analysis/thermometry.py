@@ -35,6 +35,7 @@ import numpy as np
 from simulator.analysis.fitting import fit_whittle
 from simulator.analysis.psd import WindowedExpectation
 from simulator.errors import InputError
+from simulator.linear.sidebands import cavity_response
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -79,9 +80,11 @@ class Calibration:
 
 
 def cavity_filter(frequency_hz, cavity_linewidth_hz, detuning_hz):
-    """F(ν) = (κ/2)²/((κ/2)² + (ν + Δ)²): the cavity's power response at offset ν."""
-    half = cavity_linewidth_hz / 2
-    return half**2 / (half**2 + (np.asarray(frequency_hz) + detuning_hz) ** 2)
+    """F(ν) = (κ/2)²/((κ/2)² + (ν + Δ)²): the cavity's power response at offset ν.
+
+    :func:`simulator.linear.sidebands.cavity_response`, the one definition.
+    """
+    return cavity_response(frequency_hz, cavity_linewidth_hz, detuning_hz)
 
 
 def sideband_model(cal, sample_rate_hz=None, fano_band_hz=None, smear=None):

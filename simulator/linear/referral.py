@@ -33,6 +33,7 @@ from scipy import constants
 
 from simulator.errors import InputError
 from simulator.linear.steady_state import effective_mechanics
+from simulator.model.optomechanics import mode_states
 from simulator.model.statespace import StateSpace
 from simulator.model.system import as_system
 from simulator.model.units import HBAR, angular, photon_energy_j
@@ -67,7 +68,7 @@ def displacement_gain(model, point, j, frequency_hz):
     Units 1/(m·√Hz·...) as quadrature amplitude per metre; |u·G|² multiplies
     S̄_xx (m²/Hz) to give the output quadrature density.
     """
-    s = 2 + 2 * j
+    s = mode_states(j).start  # q of mode j; p follows
     x_zpf = point.modes[j].zero_point_amplitude_m
     uncoupled = model.A - model.coupling
     probe = _probe(model, uncoupled, model.coupling[:, s] / (np.sqrt(2.0) * x_zpf), model.C)
@@ -80,7 +81,7 @@ def susceptibility(model, point, j, frequency_hz, *, bare=False):
     ``bare=False`` (default) uses the full model, with optical spring and
     damping; ``bare=True`` the mode alone.
     """
-    s = 2 + 2 * j
+    s = mode_states(j).start  # q of mode j; p follows
     x_zpf = point.modes[j].zero_point_amplitude_m
     b = np.zeros(len(model.states))
     b[s + 1] = np.sqrt(2.0) * x_zpf / HBAR
@@ -92,7 +93,7 @@ def susceptibility(model, point, j, frequency_hz, *, bare=False):
 
 def backaction_force_gain(model, point, j, frequency_hz):
     """Force on mode j (N) per model input, through the uncoupled cavity: K_j(ω)."""
-    s = 2 + 2 * j
+    s = mode_states(j).start  # q of mode j; p follows
     x_zpf = point.modes[j].zero_point_amplitude_m
     row = model.coupling[s + 1, :] * HBAR / (np.sqrt(2.0) * x_zpf)
     probe = StateSpace(A=model.A - model.coupling, B=model.B, N=model.N, C=row[None, :],

@@ -46,8 +46,9 @@ import numpy as np
 import scipy.linalg
 
 from simulator.linear.steady_state import mode_eigenvalues, steady_state
+from simulator.model.optomechanics import device_size, mode_states
 from simulator.model.system import as_system
-from simulator.model.units import TWO_PI, angular
+from simulator.model.units import angular
 
 # |w_k v_k| below this (unit-norm vectors of the cavity–mechanics block) is an
 # eigenvalue at an exceptional point: no isolated Lorentzian line, no area.
@@ -101,8 +102,21 @@ class SidebandSummary:
         return dataclasses.asdict(self)
 
 
+def cavity_response(frequency_hz, linewidth_hz, detuning_hz):
+    """The cavity's power response (κ/2)² / ((κ/2)² + (ν + Δ)²) at optical offset ν.
+
+    One at the cavity resonance (ν = −Δ); all arguments in Hz (the ratio is
+    the same in angular units). Complex ``frequency_hz`` continues it
+    analytically (to a pole of the spectrum).
+    """
+    half = linewidth_hz / 2
+    return half**2 / (half**2 + (np.asarray(frequency_hz) + detuning_hz) ** 2)
+
+
 def cavity_filter(point, mode_index, frequency_hz):
     """Cavity filter F(ν) = κ_ex g² / (κ²/4 + (2πν + Δ)²) (photons/s per quantum).
+
+    The scale 4 κ_ex g²/κ² times :func:`cavity_response`.
 
     Parameters
     ----------
@@ -112,11 +126,10 @@ def cavity_filter(point, mode_index, frequency_hz):
         Optical offsets ν from the drive (Hz); complex values continue F
         analytically (to a pole of the spectrum).
     """
-    kappa, kappa_ex, delta, g = angular([
-        point.cavity_linewidth_hz, point.external_linewidth_hz,
-        point.detuning_effective_hz, point.modes[mode_index].coupling_rate_hz])
-    omega = TWO_PI * np.asarray(frequency_hz)  # complex allowed, unlike angular()
-    return kappa_ex * g**2 / (kappa**2 / 4 + (omega + delta) ** 2)
+    kappa, kappa_ex, g = angular([point.cavity_linewidth_hz, point.external_linewidth_hz,
+                                  point.modes[mode_index].coupling_rate_hz])
+    return 4 * kappa_ex * g**2 / kappa**2 * cavity_response(
+        frequency_hz, point.cavity_linewidth_hz, point.detuning_effective_hz)
 
 
 def sideband_summary(system):
@@ -208,7 +221,7 @@ class _Poles:
 
     def __init__(self, model, n_modes):
         self.model = model
-        self.device = 2 + 2 * n_modes  # cavity and mechanics come first
+        self.device = device_size(n_modes)
         # balance first: with laser-noise filter states the raw eigenvectors of a
         # simple eigenvalue can be nearly orthogonal to its left ones (scaling only)
         balanced, (self.scale, _) = scipy.linalg.matrix_balance(
@@ -240,7 +253,7 @@ class _Poles:
         """Mode ``mode_index``'s share Σ v_i w_i / (w v) of the residue projector of λ_k."""
         v, w = self.right_b[:, k] * self.scale, self.left_b[:, k].conj() / self.scale
         device = slice(0, self.device)
-        quads = slice(2 + 2 * mode_index, 4 + 2 * mode_index)
+        quads = mode_states(mode_index)
         return complex(w[quads] @ v[quads] / (w[device] @ v[device]))
 
     def defective(self, k):

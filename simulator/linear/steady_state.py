@@ -15,6 +15,7 @@ import numpy as np
 from scipy.optimize import linear_sum_assignment
 
 from simulator.linear import weak_coupling
+from simulator.model.optomechanics import device_size, mode_states
 from simulator.model.system import as_system
 from simulator.model.units import angular, ordinary
 
@@ -79,7 +80,7 @@ def steady_state(system):
     n_cavity_bath = kappa_in_fraction * point.cavity_bath_occupation
     modes = []
     for j, mode in enumerate(point.modes):
-        s = 2 + 2 * j
+        s = mode_states(j).start
         rates = dict(g=float(angular(mode.coupling_rate_hz)), kappa=kappa, detuning=delta,
                      frequency=float(angular(mode.frequency_hz)))
         a_minus, a_plus = weak_coupling.scattering_rates(**rates)
@@ -133,14 +134,14 @@ def mode_eigenvalues(model, n_modes):
     eigenvalue per mode (an assignment problem); past normal-mode splitting
     the assignment picks the hybrid mode that is more mechanical.
     """
-    size = 2 + 2 * n_modes
+    size = device_size(n_modes)
     lam, vec = np.linalg.eig(model.A[:size, :size])
     candidates = np.flatnonzero(lam.imag >= -1e-12 * np.abs(lam))
     if len(candidates) < n_modes:
         candidates = np.arange(len(lam))
     weights = np.abs(vec) ** 2
     weights /= weights.sum(axis=0, keepdims=True)
-    score = np.array([[weights[2 + 2 * j, k] + weights[3 + 2 * j, k] for k in candidates]
+    score = np.array([[weights[mode_states(j), k].sum() for k in candidates]
                       for j in range(n_modes)])
     rows, cols = linear_sum_assignment(-score) if n_modes else ((), ())
     chosen = np.zeros(n_modes, dtype=complex)

@@ -26,13 +26,6 @@ def scattering_rates(*, g, kappa, detuning, frequency):
     return a_minus, a_plus
 
 
-def optical_damping(*, g, kappa, detuning, frequency):
-    """Optical damping rate Γopt = A− − A+ (energy damping, 1/s)."""
-    a_minus, a_plus = scattering_rates(g=g, kappa=kappa, detuning=detuning,
-                                       frequency=frequency)
-    return a_minus - a_plus
-
-
 def optical_spring(*, g, kappa, detuning, frequency):
     """Optical-spring frequency shift δΩm (rad/s).
 

@@ -40,6 +40,17 @@ CAVITY_STATES = ("cavity.X", "cavity.Y")
 OUTPUTS = ("output.X", "output.Y")
 
 
+def device_size(n_modes):
+    """Number of cavity and mechanical states: they come first in every model."""
+    return len(CAVITY_STATES) + 2 * n_modes
+
+
+def mode_states(j):
+    """Slice of the states (q, p) of mechanical mode ``j``: after the cavity's X, Y."""
+    start = device_size(j)
+    return slice(start, start + 2)
+
+
 def linear_model(scenario, point):
     """Build the linearised model of ``scenario`` around its operating point.
 
@@ -65,7 +76,7 @@ def linear_model(scenario, point):
                                       point.detuning_effective_hz])
     kappa_in = max(kappa - kappa_ex, 0.0)
     n_modes = len(point.modes)
-    n = 2 + 2 * n_modes
+    n = device_size(n_modes)
     m = 4 + 2 * n_modes
     A = np.zeros((n, n))
     coupling = np.zeros((n, n))
@@ -81,7 +92,7 @@ def linear_model(scenario, point):
     sources = [("external port vacuum", (0, 1)),
                ("internal loss bath", (2, 3))]
     for j, mode in enumerate(point.modes):
-        s, i = 2 + 2 * j, 4 + 2 * j
+        s, i = mode_states(j).start, 4 + 2 * j  # inputs: external, internal, then baths
         om, gm, g = angular([mode.frequency_hz, mode.linewidth_hz, mode.coupling_rate_hz])
         A[s:s + 2, s:s + 2] = [[-gm / 2, om], [-om, -gm / 2]]
         coupling[1, s] = coupling[s + 1, 0] = 2 * g

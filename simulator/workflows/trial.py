@@ -22,7 +22,6 @@ the occupation. Other names are reported without a truth (spread only).
 
 import dataclasses
 import math
-import re
 from pathlib import Path
 
 import numpy as np
@@ -269,8 +268,3 @@ def _assemble(scenario, estimator, duration, seeds, ordered, table):
                "scenario_toml": scenario.to_toml(), "estimator": estimator,
                "duration_s": duration, "software_version": __version__})
     return dataset, reports, errors
-
-
-def sanitize(name):
-    """File-name-safe version of a quantity name."""
-    return re.sub(r"[^A-Za-z0-9_.-]", "_", name)
