@@ -51,8 +51,7 @@ import numpy as np
 from simulator.analysis.fitting import fit_whittle
 from simulator.analysis.thermometry import PARAMETERS, cavity_filter, sideband_model
 from simulator.errors import InputError
-
-TWO_PI = 2.0 * np.pi
+from simulator.model.units import TWO_PI
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)

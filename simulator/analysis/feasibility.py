@@ -126,7 +126,9 @@ def fisher_matrix(scenario, paths, *, frequency_hz=None):
         lambda s: _spectral_matrix(s, omega), scenario, path)) for path in paths])
     # tr(X_i X_j) per frequency, X = S⁻¹ ∂S
     integrand = np.einsum("iwab,jwba->ijw", derivs, derivs).real
-    return 0.5 * np.trapezoid(integrand, omega / (2 * np.pi), axis=-1)
+    from simulator.model.units import ordinary
+
+    return 0.5 * np.trapezoid(integrand, ordinary(omega), axis=-1)
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)

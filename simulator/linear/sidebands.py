@@ -48,7 +48,7 @@ import scipy.linalg
 from simulator.linear.steady_state import mode_eigenvalues, steady_state
 from simulator.model.optomechanics import device_size, mode_states
 from simulator.model.system import as_system
-from simulator.model.units import angular
+from simulator.model.units import angular, ordinary
 
 # |w_k v_k| below this (unit-norm vectors of the cavity–mechanics block) is an
 # eigenvalue at an exceptional point: no isolated Lorentzian line, no area.
@@ -237,13 +237,13 @@ class _Poles:
 
     def pole_hz(self, k):
         """The complex pole ω_k/2π = iλ_k/2π."""
-        return 1j * self.lam[k] / (2 * np.pi)
+        return complex(ordinary(1j * self.lam[k]))
 
     def frequency_hz(self, k):
-        return float(np.real(1j * self.lam[k]) / (2 * np.pi))
+        return float(ordinary(np.real(1j * self.lam[k])))
 
     def linewidth_hz(self, k):
-        return float(-2.0 * np.real(self.lam[k]) / (2 * np.pi))
+        return float(ordinary(-2.0 * np.real(self.lam[k])))
 
     def index_of(self, lam):
         """Index of the eigenvalue of the whole drift nearest ``lam``."""
@@ -275,7 +275,7 @@ class _Poles:
             if np.min(np.abs(self.device_lam - lam)) <= 1e-9 * abs(lam) + 1e-12:
                 continue  # an eigenvalue of the cavity–mechanics block
             if abs(lam - self.lam[k]) < abs(self.lam[k].real):
-                return (abs(lam.imag) / (2 * np.pi), -2 * lam.real / (2 * np.pi))
+                return (float(ordinary(abs(lam.imag))), float(ordinary(-2 * lam.real)))
         return None
 
     def residue(self, k):

@@ -118,8 +118,8 @@ def effective_mechanics(model, n_modes):
     frequency |Im λ|/2π and energy linewidth −2 Re λ/2π.
     """
     chosen = mode_eigenvalues(model, n_modes)
-    return (tuple(float(x) for x in np.abs(chosen.imag) / (2 * np.pi)),
-            tuple(float(x) for x in -2 * chosen.real / (2 * np.pi)))
+    return (tuple(float(x) for x in ordinary(np.abs(chosen.imag))),
+            tuple(float(x) for x in ordinary(-2 * chosen.real)))
 
 
 def mode_eigenvalues(model, n_modes):

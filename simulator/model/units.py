@@ -13,13 +13,19 @@ def angular(frequency_hz):
 
     The scenario and every report use ordinary frequencies; the linear model
     works in angular units. This is the one place the factor 2π is applied.
+    Complex values (a pole, an eigenvalue) stay complex.
     """
-    return TWO_PI * np.asarray(frequency_hz, dtype=float)
+    return TWO_PI * _real_or_complex(frequency_hz)
 
 
 def ordinary(angular_rad_s):
-    """Ordinary frequency (Hz) of an angular frequency in rad/s."""
-    return np.asarray(angular_rad_s, dtype=float) / TWO_PI
+    """Ordinary frequency (Hz) of an angular frequency in rad/s (complex stays complex)."""
+    return _real_or_complex(angular_rad_s) / TWO_PI
+
+
+def _real_or_complex(x):
+    x = np.asarray(x)
+    return x if np.iscomplexobj(x) else x.astype(float)
 
 
 def bose_einstein(frequency_hz, temperature_k):
