@@ -105,6 +105,10 @@ class Scenario:
         if path.split(".")[0] == "sweep" or dataclasses.is_dataclass(value) or isinstance(
                 value, tuple):
             yield key, f"{path!r} does not name a single scenario parameter"
+        elif _leaf_type(type(self), path, self.source) not in (int, float):
+            role = "sweepable" if path == swept else "usable as the unit of a range"
+            yield key, (f"{path!r} is not a numeric parameter, so it is not {role}; "
+                        "expected a number such as 'drive.detuning_hz'")
 
     def parameter_paths(self):
         """Every path naming a single parameter, e.g. ``"mechanics[0].frequency_hz"``."""
@@ -193,6 +197,13 @@ def _split_path(path, source):
     return parts
 
 
+def _leaf_type(cls, path, source):
+    """Scalar type (``float``, ``int``, ``str``, ``bool``) of the key at ``path``."""
+    for name, _ in _split_path(path, source):
+        _, cls, _ = schema.field_kind(cls, name)
+    return cls
+
+
 def _leaf_paths(cls, prefix):
     """Paths of the scalar keys of section ``cls`` at ``prefix``, nested tables included."""
     paths = []
@@ -258,6 +269,10 @@ def parse_scenario(text, *, source="<string>"):
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ScenarioError(f"malformed TOML: {exc}", source=source) from None
+    except RecursionError:  # the TOML parser recurses once per level of nesting
+        raise ScenarioError("malformed TOML: tables or arrays nested too deeply for the "
+                            "parser; expected the sections of a scenario, nested at most "
+                            "a few levels", source=source) from None
     return scenario_from_dict(data, source=source)
 
 
