@@ -178,6 +178,11 @@ def inspect_scenario(scenario, *, feasibility=True):
                     "system is near or in strong coupling and the rate-equation "
                     "diagnostics do not apply")
     feasibility = _feasibility(scenario) if steady is not None and feasibility else ()
+    warnings += [f"mode {f['mode']}: the record carries too little information about this "
+                 "mode for a finite measurement-time bound (reported as infinite, null in "
+                 "JSON); raise the drive power or the coupling"
+                 for f in feasibility if not (math.isfinite(f["occupation_error_1s"]) and
+                                              math.isfinite(f["asymmetry_time_s"] or 0.0))]
     from simulator.master.regime import regime_verdict  # pure formulas, no QuTiP
 
     regime = regime_verdict(point, None if steady is None else

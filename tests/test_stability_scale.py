@@ -8,8 +8,8 @@ below. Each verdict here is checked against two independent references:
   characteristic polynomial of the same drift matrix (``exact_stability``);
 * in weak coupling, the amplitude decay rate −(Γm + Γopt)/2 with the optical
   damping Γopt = A− − A+ of the sideband scattering rates (Marquardt, Chen,
-  Clerk, Girvin, Phys. Rev. Lett. 99, 093902 (2007), Eq. 2; Aspelmeyer,
-  Kippenberg, Marquardt, Rev. Mod. Phys. 86, 1391 (2014), Eq. 7.24).
+  Clerk, Girvin, Phys. Rev. Lett. 99, 093902 (2007); Aspelmeyer,
+  Kippenberg, Marquardt, Rev. Mod. Phys. 86, 1391 (2014), Sec. VII).
 """
 
 import math

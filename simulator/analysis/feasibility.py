@@ -32,6 +32,7 @@ Whittle, Ark. Mat. 2, 423 (1953); Cramér, Mathematical Methods of Statistics
 """
 
 import dataclasses
+import math
 
 import numpy as np
 
@@ -175,6 +176,8 @@ def occupation_bound(scenario, mode=0, paths=None):
         variance = float(grad @ np.linalg.solve(fisher, grad))
     except np.linalg.LinAlgError:
         variance = np.inf  # some parameter leaves no trace in the record
+    if not variance >= 0:  # NaN or negative: the information matrix is numerically empty
+        variance = np.inf
     return OccupationBound(mode=scenario.mechanics[mode].name,
                            occupation=steady_state(scenario).modes[mode].occupation,
                            paths=paths, error_one_second=float(np.sqrt(variance)),
@@ -234,18 +237,23 @@ def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
     half = min(200.0 * width, omega)  # the two windows must not overlap
     side = np.arange(-half, half, df)
     f = np.concatenate([-omega + side, omega + side])
-    # (∂S/S)² per 1/T-wide bin, T·df bins per grid cell: per second, Σ (∂S/S)² df
-    info = fisher_information(model, theta, f, 1) * df
-    try:
-        cov = np.linalg.inv(info)
-    except np.linalg.LinAlgError:  # the record carries no trace of the sidebands
-        cov = np.full((5, 5), np.inf)
-    rel = float(np.sqrt(cov[4, 4]) / per_quantum)
     grad = np.array([0, 0, 0, 1 / per_quantum, -n / per_quantum])  # n = c_AS/d
+    with np.errstate(all="ignore"):  # a record without information gives no bound
+        # (∂S/S)² per 1/T-wide bin, T·df bins per grid cell: per second, Σ (∂S/S)² df
+        info = fisher_information(model, theta, f, 1) * df
+        try:
+            cov = np.linalg.inv(info)
+        except np.linalg.LinAlgError:
+            cov = np.full((5, 5), np.nan)
+        rel = float(np.sqrt(cov[4, 4]) / per_quantum)
+        occupation_error = float(np.sqrt(grad @ cov @ grad))
+    if not (math.isfinite(rel) and math.isfinite(occupation_error)):
+        # the record carries no usable trace of the sidebands: no finite time resolves them
+        rel = occupation_error = math.inf
     return AsymmetryTime(
         mode=scenario.mechanics[mode].name, significance=float(significance),
         duration_s=float((significance * rel) ** 2), relative_asymmetry_error_one_second=rel,
-        occupation_error_one_second=float(np.sqrt(grad @ cov @ grad)),
+        occupation_error_one_second=occupation_error,
         lineshape=dict(zip(("floor", "frequency_hz", "linewidth_hz", "anti_stokes_area",
                             "asymmetry_area"), map(float, theta), strict=True)))
 
