@@ -32,7 +32,8 @@ BAD_FILES = sorted(CORPUS.glob("*.toml"))
 REQUIRED_CLASSES = {
     "unknown key", "unknown section", "missing key", "wrong type", "nan or inf",
     "not positive", "external linewidth > total", "exclusive keys", "malformed TOML",
-    "duplicate mode names", "empty mechanics",
+    "duplicate mode names", "empty mechanics", "outside physical limits", "bad name",
+    "non-numeric sweep",
 }
 
 
