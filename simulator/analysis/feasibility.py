@@ -36,6 +36,7 @@ import math
 
 import numpy as np
 
+from simulator.analysis.information import fisher_blocks, steps
 from simulator.errors import InputError
 
 # Default significance (standard deviations) for "the asymmetry is resolved".
@@ -49,11 +50,6 @@ def _record_chain(scenario):
     return detection_chain(scenario)
 
 
-def _spectral_matrix(scenario, omega):
-    """Symmetrised spectral matrix of the record's output channels, chain included."""
-    return _record_chain(scenario).model.output_spectrum(omega)
-
-
 def _grid(scenario):
     """Two-sided angular-frequency grid resolving every resonance of the record's model."""
     from simulator.physics import angular
@@ -61,30 +57,6 @@ def _grid(scenario):
 
     prepare(scenario)  # a clear error for an unstable operating point
     return angular(adaptive_grid(_record_chain(scenario).model, points_per_decade=64))
-
-
-def _derivative(evaluate, scenario, path):
-    """d evaluate(scenario)/d(parameter at path), central where the range allows.
-
-    At a boundary of the admissible range (a bath occupation of 0, an
-    efficiency of 1) the one-sided difference is used instead.
-    """
-    from simulator.errors import ScenarioError
-
-    value = scenario.get(path)
-    if not isinstance(value, (int, float)) or isinstance(value, bool):
-        raise InputError(f"{path} = {value!r}: the Fisher information needs a numeric "
-                         "parameter that is set in the scenario")
-    h = 1e-4 * abs(value) if value != 0 else 1e-6
-    try:
-        up, hi = evaluate(scenario.replace(path, value + h)), h
-    except ScenarioError:
-        up, hi = evaluate(scenario), 0.0
-    try:
-        down, lo = evaluate(scenario.replace(path, value - h)), h
-    except ScenarioError:
-        down, lo = evaluate(scenario), 0.0
-    return (up - down) / (hi + lo)
 
 
 def fisher_matrix(scenario, paths, *, frequency_hz=None):
@@ -121,12 +93,11 @@ def fisher_matrix(scenario, paths, *, frequency_hz=None):
     from simulator.physics import angular
 
     omega = _grid(scenario) if frequency_hz is None else angular(frequency_hz)
-    base = _spectral_matrix(scenario, omega)
-    derivs = np.array([np.linalg.solve(base, _derivative(
-        lambda s: _spectral_matrix(s, omega), scenario, path)) for path in paths])
-    # tr(X_i X_j) per frequency, X = S⁻¹ ∂S
-    integrand = np.einsum("iwab,jwba->ijw", derivs, derivs).real
-    return 0.5 * np.trapezoid(integrand, omega / (2 * np.pi), axis=-1)
+    return fisher_blocks(_record_model, scenario, [tuple(paths)], omega)[0]
+
+
+def _record_model(scenario):
+    return _record_chain(scenario).model
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -166,22 +137,98 @@ def occupation_bound(scenario, mode=0, paths=None):
     steady state. All parameters are treated as unknown, so the bound includes
     the cost of estimating the nuisance parameters.
     """
-    from simulator.steady_state import steady_state
-
     paths = tuple(paths) if paths is not None else default_paths(scenario, mode)
-    fisher = fisher_matrix(scenario, paths)
-    grad = np.array([_derivative(lambda s: steady_state(s).modes[mode].occupation,
-                                 scenario, path) for path in paths])
-    try:
-        variance = float(grad @ np.linalg.solve(fisher, grad))
-    except np.linalg.LinAlgError:
-        variance = np.inf  # some parameter leaves no trace in the record
-    if not variance >= 0:  # NaN or negative: the information matrix is numerically empty
-        variance = np.inf
-    return OccupationBound(mode=scenario.mechanics[mode].name,
-                           occupation=steady_state(scenario).modes[mode].occupation,
-                           paths=paths, error_one_second=float(np.sqrt(variance)),
-                           fisher_per_second=fisher)
+    return occupation_bounds(scenario, [mode], [paths])[0]
+
+
+def occupation_bounds(scenario, modes=None, paths=None):
+    """:func:`occupation_bound` of several modes, sharing one pass over the spectrum.
+
+    Parameters
+    ----------
+    scenario : Scenario
+    modes : sequence of int, optional
+        Default: every mode.
+    paths : sequence of sequences of str, optional
+        Per mode; default :func:`default_paths`.
+
+    Returns
+    -------
+    list of OccupationBound
+    """
+    modes = range(len(scenario.mechanics)) if modes is None else modes
+    paths = [default_paths(scenario, j) for j in modes] if paths is None else paths
+    fishers = fisher_blocks(_record_model, scenario, paths, _grid(scenario))
+    response = _CovarianceResponse(scenario)
+    bounds = []
+    for mode, group, fisher in zip(modes, paths, fishers, strict=True):
+        grad = np.array([response.occupation_derivative(path, mode) for path in group])
+        try:
+            variance = float(grad @ np.linalg.solve(fisher, grad))
+        except np.linalg.LinAlgError:
+            variance = np.inf  # some parameter leaves no trace in the record
+        if not variance >= 0:  # NaN or negative: the information matrix is numerically empty
+            variance = np.inf
+        bounds.append(OccupationBound(
+            mode=scenario.mechanics[mode].name, occupation=response.occupation(mode),
+            paths=tuple(group), error_one_second=float(np.sqrt(variance)),
+            fisher_per_second=fisher))
+    return bounds
+
+
+class _CovarianceResponse:
+    """Derivatives of the stationary covariance V by the linear response of A V + V Aᵀ + D = 0.
+
+    A parameter step changes A and D = B N Bᵀ (the operating point
+    re-solved); to first order A ∂V + ∂V Aᵀ = −(∂A V + V ∂Aᵀ + ∂D), a
+    Lyapunov equation with the same A, solved with one real Schur form of A
+    for every parameter (Bartels and Stewart, Commun. ACM 15, 820 (1972)).
+    """
+
+    def __init__(self, scenario):
+        import scipy.linalg
+
+        from simulator.model import linear_model
+        from simulator.operating_point import operating_point
+        from simulator.steady_state import require_stable, stability
+
+        point = operating_point(scenario)
+        self.model = linear_model(scenario, point)
+        require_stable(stability(self.model, point))
+        self.scenario = scenario
+        self.v = self.model.covariance()
+        self.schur, self.basis = scipy.linalg.schur(self.model.A)
+        self._dv = {}
+
+    def occupation(self, mode):
+        """Exact occupation n = (⟨q²⟩ + ⟨p²⟩ − 1)/2 of one mode."""
+        s = 2 + 2 * mode
+        return float((self.v[s, s] + self.v[s + 1, s + 1] - 1.0) / 2.0)
+
+    def occupation_derivative(self, path, mode):
+        """∂n/∂(parameter at path) of one mode."""
+        if path not in self._dv:
+            self._dv[path] = self._covariance_derivative(path)
+        dv, s = self._dv[path], 2 + 2 * mode
+        return float((dv[s, s] + dv[s + 1, s + 1]) / 2.0)
+
+    def _covariance_derivative(self, path):
+        from scipy.linalg.lapack import dtrsyl
+
+        from simulator.model import linear_model
+
+        up, down, span = steps(self.scenario, path)
+        mu, md = linear_model(up), linear_model(down)
+        if mu.A.shape != self.model.A.shape or md.A.shape != self.model.A.shape:
+            return (mu.covariance() - md.covariance()) / span  # the model changed shape
+        da = (mu.A - md.A) / span
+        rhs = -(da @ self.v + self.v @ da.T + (mu.diffusion - md.diffusion) / span)
+        u = self.basis
+        x, scale, info = dtrsyl(self.schur, self.schur, u.T @ rhs @ u, tranb="T")
+        if info < 0:
+            raise ValueError(f"the Sylvester solver rejected argument {-info}")
+        dv = u @ (x / scale) @ u.T
+        return 0.5 * (dv + dv.T)
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -196,7 +243,7 @@ class AsymmetryTime:
     lineshape: dict  # parameter values the bound was evaluated at
 
 
-def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
+def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE, steady=None):
     """Integration time to tell the sideband asymmetry d = c_S − c_AS from zero.
 
     Parameters
@@ -206,6 +253,8 @@ def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
     mode : int
     significance : float
         Required d/σ_d, e.g. 5 for a five-standard-deviation detection.
+    steady : SteadyState, optional
+        The scenario's steady state, when the caller has it already.
 
     Returns
     -------
@@ -222,9 +271,10 @@ def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
         raise InputError(f"significance = {significance!r}; expected a positive number "
                          "of standard deviations")
     cal = Calibration.from_scenario(scenario, mode)
-    state = steady_state(scenario).modes[mode]
+    steady = steady_state(scenario) if steady is None else steady
+    state = steady.modes[mode]
     omega, width = state.effective_frequency_hz, state.effective_linewidth_hz
-    theta = _lineshape_of_record(scenario, cal, omega, width)
+    theta = _lineshape_of_record(scenario, cal, omega, width, steady)
     per_quantum, n = theta[4], theta[3] / theta[4]
 
     def model(f, t):
@@ -258,7 +308,7 @@ def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
                             "asymmetry_area"), map(float, theta), strict=True)))
 
 
-def _lineshape_of_record(scenario, cal, omega, width):
+def _lineshape_of_record(scenario, cal, omega, width, steady):
     """Lineshape parameters (b, Ω, γ, c_AS, d) of the scenario's own record.
 
     Ω, γ and the occupation n are the exact ones; in weak coupling the
@@ -270,7 +320,6 @@ def _lineshape_of_record(scenario, cal, omega, width):
     peak.
     """
     from simulator.spectra import heterodyne_spectrum
-    from simulator.steady_state import steady_state
 
     iq = scenario if scenario.record.kind in (None, "iq") else scenario.replace(
         "record.kind", "iq")
@@ -282,13 +331,7 @@ def _lineshape_of_record(scenario, cal, omega, width):
     ideal = heterodyne_spectrum(scenario, np.concatenate([peak, away]),
                                 efficiency=cal.efficiency).total
     gain = float((chain.record_spectrum(peak)[0] - floor) / (ideal[0] - np.mean(ideal[1:])))
-    n = steady_state(scenario).modes[_mode_index(scenario, omega)].occupation
+    freqs = np.array([m.effective_frequency_hz for m in steady.modes])
+    n = steady.modes[int(np.argmin(np.abs(freqs - omega)))].occupation
     c = cal.area_per_quantum() * gain
     return np.array([floor, omega, width, c * n, c])
-
-
-def _mode_index(scenario, omega):
-    from simulator.steady_state import steady_state
-
-    freqs = [m.effective_frequency_hz for m in steady_state(scenario).modes]
-    return int(np.argmin(np.abs(np.array(freqs) - omega)))
