@@ -163,7 +163,7 @@ def convert_scalar(value, tp):
         try:
             return True, float(value)
         except OverflowError:
-            return True, math.copysign(math.inf, value)
+            return True, (math.inf if value > 0 else -math.inf)
     if tp is int and isinstance(value, int):
         return True, value
     if tp is str and isinstance(value, str):
