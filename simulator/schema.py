@@ -36,7 +36,7 @@ CHECKS = {
 
 
 def param(doc, *, unit="", check=None, choices=None, default=dataclasses.MISSING,
-          parser=None, accepts=None, low=None, high=None, why=None, smallest=None):
+          parser=None, accepts=None, low=None, high=None, why=None):
     """Field of a scenario section with its documentation and admissible values.
 
     Parameters
@@ -63,15 +63,11 @@ def param(doc, *, unit="", check=None, choices=None, default=dataclasses.MISSING
         finite. A value outside is refused with ``why``.
     why : str, optional
         Short reason for ``low``/``high``, quoted in errors and the reference.
-    smallest : float, optional
-        For a key where 0 means "none": the smallest non-zero value accepted,
-        below which a positive value is absurd and only underflows later.
     """
     if check is not None and check not in CHECKS:
         raise ValueError(f"unknown check {check!r}; expected one of {sorted(CHECKS)}")
     meta = {"doc": doc, "unit": unit, "check": check, "choices": choices,
-            "parser": parser, "accepts": accepts, "low": low, "high": high, "why": why,
-            "smallest": smallest}
+            "parser": parser, "accepts": accepts, "low": low, "high": high, "why": why}
     return dataclasses.field(default=default, metadata=meta)
 
 
@@ -136,13 +132,11 @@ def expectation(f, tp):
         text = text.replace("number", "integer")
     if meta.get("unit"):
         text += f" in {meta['unit']}"
-    low, high, zero = meta.get("low"), meta.get("high"), ""
-    if meta.get("smallest") is not None:  # 0 ("none") or a value that is not absurdly small
-        low, zero = meta["smallest"], "0 or "
+    low, high = meta.get("low"), meta.get("high")
     if low is not None and high is not None:
-        text += f", {zero}from {_limit(low)} to {_limit(high)}"
+        text += f", from {_limit(low)} to {_limit(high)}"
     elif low is not None:
-        text += f", {zero}at least {_limit(low)}"
+        text += f", at least {_limit(low)}"
     elif high is not None:
         text += f", at most {_limit(high)}"
     if meta.get("why"):
@@ -179,10 +173,8 @@ def range_problem(f, tp, value):
             return f"{value!r} is not a finite number; expected {expectation(f, tp)}"
         check = meta.get("check")
         low, high = meta.get("low"), meta.get("high")
-        smallest = meta.get("smallest")
         if ((check and not CHECKS[check][0](value)) or (low is not None and value < low)
-                or (high is not None and value > high)
-                or (smallest is not None and 0 < value < smallest)):
+                or (high is not None and value > high)):
             return f"{value!r} is out of range; expected {expectation(f, tp)}"
     if tp is str and meta.get("check") and not CHECKS[meta["check"]][0](value):
         return f"{_short(value)} is not allowed; expected {expectation(f, tp)}"

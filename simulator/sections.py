@@ -121,7 +121,7 @@ class Drive:
         "carrier frequency of the drive", unit="Hz", check="positive", default=None,
         low=3e7, high=3e15, why="radio waves to ultraviolet, the span of wavelength_m")
     power_w: float = param("drive power arriving at the cavity's external port",
-                           unit="W", check="nonnegative", high=1e3, smallest=1e-24,
+                           unit="W", check="nonnegative", high=1e3,
                            why="1 kW, above any continuous drive a device survives")
     detuning_hz: float = param("Δ/2π = drive minus cavity frequency; red detuning is "
                                "negative; |Δ| below the drive frequency", unit="Hz",
@@ -173,7 +173,7 @@ class Cavity:
         check="positive", low=1e-3, high=1e14)
     bath_occupation: float = param(
         "thermal photon occupation of the internal-loss bath (microwave cavities)",
-        check="nonnegative", default=0.0, high=1e8, smallest=1e-30)
+        check="nonnegative", default=0.0, high=1e8)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
@@ -200,14 +200,13 @@ class Mechanics:
         "effective mass of the mode", unit="kg", check="positive", low=1e-27, high=1e3,
         why="a hydrogen atom to a tonne")
     coupling_hz: float = param("single-photon coupling rate g0/2π", unit="Hz",
-                               check="nonnegative", high=1e9, smallest=1e-12)
+                               check="nonnegative", high=1e9)
     bath_temperature_k: float | None = param(
         "temperature of the mode's thermal bath", unit="K", check="nonnegative",
-        default=None, high=1e4, why="hotter than any solid device survives",
-        smallest=1e-6)
+        default=None, high=1e4, why="hotter than any solid device survives")
     bath_occupation: float | None = param(
         "mean phonon occupation of the mode's thermal bath", check="nonnegative",
-        default=None, high=1e18, smallest=1e-30)
+        default=None, high=1e18)
 
 
 @_frozen

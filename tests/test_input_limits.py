@@ -47,7 +47,7 @@ def test_replace_by_path_equals_a_full_reload(path, parts, value, drop):
 
 @pytest.mark.parametrize(("path", "value", "words"), [
     ("mechanics[1].name", "a", "used by an earlier mode"),  # a check across sections
-    ("drive.power_w", 2e3, "to 1000"),
+    ("drive.power_w", 2e3, "at most 1000"),
     ("drive.detuning_hz", 3e15, "below the drive frequency"),
     ("cavity.external_linewidth_hz", 5e6, "larger than linewidth_hz"),
 ])

@@ -158,6 +158,8 @@ def occupation_bounds(scenario, modes=None, paths=None):
     """
     modes = range(len(scenario.mechanics)) if modes is None else modes
     paths = [default_paths(scenario, j) for j in modes] if paths is None else paths
+    if not paths:
+        return []
     fishers = fisher_blocks(_record_model, scenario, paths, _grid(scenario))
     response = _CovarianceResponse(scenario)
     bounds = []

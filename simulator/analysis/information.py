@@ -30,7 +30,8 @@ _CHUNK = 2048  # frequencies per pass: bounds memory at chunk × states × outpu
 def steps(scenario, path):
     """Scenarios a small step above and below the parameter at ``path``, and the span.
 
-    The step is 10⁻⁴ of the value (10⁻⁶ at 0). At a boundary of the
+    The step is 10⁻⁴ of the value (10⁻⁶ at 0, or where 10⁻⁴ of the value is
+    below the smallest normal float and would be lost). At a boundary of the
     admissible range (an occupation of 0, an efficiency of 1) the scenario
     itself stands in for the side that is not allowed (a one-sided step).
     """
@@ -38,7 +39,9 @@ def steps(scenario, path):
     if not isinstance(value, (int, float)) or isinstance(value, bool):
         raise InputError(f"{path} = {value!r}: the Fisher information needs a numeric "
                          "parameter that is set in the scenario")
-    h = 1e-4 * abs(value) if value != 0 else 1e-6
+    h = 1e-4 * abs(value)
+    if h < np.finfo(float).tiny:
+        h = 1e-6
     try:
         up, hi = scenario.replace(path, value + h), h
     except ScenarioError:
@@ -92,7 +95,8 @@ def fisher_blocks(model_of, scenario, groups, omega):
         w = omega[start:start + _CHUNK]
         pieces = _Pieces(base, res, w) if entries else None
         s = pieces.s if pieces else base.output_spectrum(w)
-        x = np.linalg.inv(s) @ _spectral_changes(pieces, entries, changes, w)
+        x = np.linalg.inv(s) @ _spectral_changes(pieces, entries, changes, w,
+                                                 len(base.outputs))
         weight = weights[start:start + _CHUNK]
         for matrix, group in zip(out, groups, strict=True):
             xs = x[[where[p] for p in group]]
@@ -157,9 +161,8 @@ class _Entries:
                                    for d, *_ in changes])
 
 
-def _spectral_changes(pieces, entries, changes, w):
+def _spectral_changes(pieces, entries, changes, w, outputs):
     """∂S on the frequencies ``w`` for every parameter, shape (parameters, w, p, p)."""
-    outputs = len(changes[0][1].outputs)
     out = np.empty((len(changes), w.size, outputs, outputs), dtype=complex)
     if pieces is not None:
         t = _combine(entries.weights_a_b, [
