@@ -27,7 +27,7 @@ from simulator.cli import main
 SEED = int(os.environ.get("NOISECHAIN_FUZZ_SEED", time.time_ns() % 2**32))
 IN_PROCESS_CASES = 300
 SPECTRUM_CASES = 40
-SUBPROCESS_CASES = 12
+SUBPROCESS_CASES = 24
 SECONDS_PER_CASE = 20  # generous: a case that takes longer is a hang, not a slow machine
 
 # What a refusal must name: a key path, or the file's own defect.
