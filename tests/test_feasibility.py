@@ -9,6 +9,7 @@ variate), so the check isolates the estimator and the bound.
 
 import numpy as np
 import pytest
+from conftest import REPO
 
 from simulator.analysis.feasibility import asymmetry_time, fisher_matrix, occupation_bound
 from simulator.analysis.psd import PSDEstimate
@@ -97,3 +98,49 @@ def test_fisher_matrix_is_symmetric_positive_and_grows_with_efficiency(scenario)
     assert np.allclose(f1, f1.T) and np.all(np.linalg.eigvalsh(f1) > 0)
     better = fisher_matrix(scenario.replace("detection.efficiency", 0.9), paths[:1])
     assert better[0, 0] > f1[0, 0]
+
+
+def test_fisher_matrix_equals_differences_of_whole_spectra():
+    """The first-order spectral changes built from the model matrices' changes give
+    the same Fisher matrix as central differences of whole re-computed spectra (the
+    direct route, written out here), for every default parameter of two modes."""
+    from simulator.analysis.feasibility import _grid, default_paths
+    from simulator.model.system import System
+    from simulator.scenario.loader import load_scenario
+
+    scenario = load_scenario(REPO / "scenarios" / "membrane_4k.toml")
+    omega = _grid(System(scenario))[::7]  # a sub-grid keeps the direct route quick
+    paths = default_paths(scenario, 1)
+    spectrum = lambda s: System(s).chain.model.output_spectrum(omega)  # noqa: E731
+    base = spectrum(scenario)
+    derivs = []
+    for path in paths:
+        value = scenario.get(path)
+        h = 1e-4 * value
+        up, down = scenario.replace(path, value + h), scenario.replace(path, value - h)
+        derivs.append(np.linalg.solve(base, (spectrum(up) - spectrum(down)) / (2 * h)))
+    direct = 0.5 * np.trapezoid(np.einsum("iwab,jwba->ijw", derivs, derivs).real,
+                                omega / (2 * np.pi), axis=-1)
+    fast = fisher_matrix(scenario, paths, frequency_hz=omega / (2 * np.pi))
+    np.testing.assert_allclose(fast, direct, rtol=1e-5)
+
+
+def test_occupation_gradient_equals_differences_of_steady_states():
+    """∂n/∂θ from the linear response of the Lyapunov equation equals central
+    differences of the full steady state re-solved on either side."""
+    from simulator.analysis.feasibility import _CovarianceResponse, default_paths
+    from simulator.linear.steady_state import steady_state
+    from simulator.model.system import System
+    from simulator.scenario.loader import load_scenario
+
+    scenario = load_scenario(REPO / "scenarios" / "membrane_4k.toml")
+    response = _CovarianceResponse(System(scenario))
+    for mode in (0, 1):
+        for path in default_paths(scenario, mode)[:2]:
+            value = scenario.get(path)
+            h = 1e-4 * value
+            direct = (steady_state(scenario.replace(path, value + h)).modes[mode].occupation
+                      - steady_state(scenario.replace(path, value - h)).modes[mode].occupation
+                      ) / (2 * h)
+            assert response.occupation_derivative(path, mode) == pytest.approx(direct,
+                                                                               rel=1e-5)

@@ -33,7 +33,8 @@ BAD_FILES = sorted(CORPUS.glob("*.toml"))
 REQUIRED_CLASSES = {
     "unknown key", "unknown section", "missing key", "wrong type", "nan or inf",
     "not positive", "external linewidth > total", "exclusive keys", "malformed TOML",
-    "duplicate mode names", "empty mechanics",
+    "duplicate mode names", "empty mechanics", "outside physical limits", "bad name",
+    "non-numeric sweep",
 }
 
 
@@ -182,25 +183,29 @@ def test_round_trip_base_and_demo():
         assert again.to_toml() == s.to_toml()
 
 
-finite = st.floats(min_value=1e-12, max_value=1e12, allow_nan=False, allow_infinity=False)
+# Values across the physical limits of each key (docs/scenario-reference.md).
+finite = st.floats(min_value=1e-3, max_value=1e12, allow_nan=False, allow_infinity=False)
+printable = st.characters(categories=("L", "M", "N", "P", "S"))
 
 
 @settings(max_examples=40, deadline=None)
-@given(kappa=finite, frac=st.floats(1e-6, 1.0), power=finite,
+@given(kappa=finite, frac=st.floats(1e-3, 1.0),
+       power=st.floats(0.0, 1e3),
        detuning=st.floats(-1e9, 1e9), freqs=st.lists(finite, min_size=1, max_size=4),
        use_temperature=st.booleans(), seed=st.integers(0, 2**62),
-       name=st.text(min_size=1, max_size=12))
+       name=st.text(printable, min_size=1, max_size=12))
 def test_round_trip_exact(kappa, frac, power, detuning, freqs, use_temperature, seed, name):
     # tomli-w writes floats by repr, so every value must come back bit for bit.
     modes = []
     for i, f in enumerate(freqs):
         m = {"name": f"{name}{i}", "frequency_hz": f, "linewidth_hz": f * 1e-6,
              "effective_mass_kg": 1e-12, "coupling_hz": 10.0}
-        m["bath_temperature_k" if use_temperature else "bath_occupation"] = f * 1e-9
+        m["bath_temperature_k" if use_temperature else "bath_occupation"] = 1e-6 + f * 1e-9
         modes.append(m)
     s = make_scenario(scenario={"name": name, "seed": seed},
                       drive={"power_w": power, "detuning_hz": detuning},
-                      cavity={"linewidth_hz": kappa, "external_linewidth_hz": kappa * frac},
+                      cavity={"linewidth_hz": kappa,
+                              "external_linewidth_hz": max(kappa * frac, 1e-3)},
                       mechanics=modes)
     again = parse_scenario(s.to_toml())
     assert again == s

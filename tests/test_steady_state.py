@@ -33,6 +33,7 @@ from conftest import (
     scenario_for_cubic,
     scenario_with_coupling,
 )
+from exact_stability import characteristic_polynomial, routh_hurwitz_stable
 from hypothesis import assume, event, given, settings
 from hypothesis import strategies as st
 from scipy.integrate import solve_ivp
@@ -48,40 +49,6 @@ TWO_PI = 2 * math.pi
 
 
 # -- Routh–Hurwitz in exact arithmetic -------------------------------------------
-
-def characteristic_polynomial(a):
-    """Coefficients [1, c1, ..., cn] of det(sI − A), exactly (Faddeev–LeVerrier)."""
-    n = len(a)
-    a = [[Fraction(float(x)) for x in row] for row in a]
-    m = [[Fraction(0)] * n for _ in range(n)]
-    coeffs = [Fraction(1)]
-    for k in range(1, n + 1):
-        # M_k = A M_{k-1} + c_{k-1} I ;  c_k = −tr(A M_k)/k
-        m = [[sum(a[i][j] * m[j][col] for j in range(n)) + (coeffs[-1] if i == col else 0)
-              for col in range(n)] for i in range(n)]
-        am = [[sum(a[i][j] * m[j][col] for j in range(n)) for col in range(n)]
-              for i in range(n)]
-        coeffs.append(-sum(am[i][i] for i in range(n)) / k)
-    return coeffs
-
-
-def routh_hurwitz_stable(coeffs):
-    """True when every root has a negative real part; None when a zero pivot
-    makes the case marginal (the exact-arithmetic test cannot decide)."""
-    rows = [coeffs[0::2], coeffs[1::2]]
-    width = len(rows[0])
-    rows = [r + [Fraction(0)] * (width - len(r)) for r in rows]
-    while len(rows) < len(coeffs):
-        up, low = rows[-2], rows[-1]
-        if low[0] == 0:
-            return None
-        new = [(low[0] * up[i + 1] - up[0] * low[i + 1]) / low[0] for i in range(width - 1)]
-        rows.append(new + [Fraction(0)])
-    first = [r[0] for r in rows]
-    if any(x == 0 for x in first):
-        return None
-    return all(x > 0 for x in first)
-
 
 def test_routh_hurwitz_helper_on_known_polynomials():
     # (s+1)(s+2)(s+3) stable; (s−1)(s+2)(s+3) not; s²+s+1 stable; s⁴ + ... check.

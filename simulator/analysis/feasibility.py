@@ -32,67 +32,54 @@ Whittle, Ark. Mat. 2, 423 (1953); Cramér, Mathematical Methods of Statistics
 """
 
 import dataclasses
+import math
 
 import numpy as np
 
+from simulator.analysis.information import fisher_blocks, steps
 from simulator.errors import InputError
+from simulator.model.optomechanics import mode_states
 
 # Default significance (standard deviations) for "the asymmetry is resolved".
 ASYMMETRY_SIGNIFICANCE = 5.0
 
 
-def _record_chain(scenario):
-    """The detection chain of the scenario's record (iq for heterodyne)."""
+def _system(item):
+    """The System of ``item`` (a System, or a scenario built into one), checked stable."""
     from simulator.model.system import as_system
 
-    return as_system(scenario).chain
+    return as_system(item).require_stable()  # a clear error for an unstable point
 
 
-def _spectral_matrix(scenario, omega):
-    """Symmetrised spectral matrix of the record's output channels, chain included."""
-    return _record_chain(scenario).model.output_spectrum(omega)
-
-
-def _grid(scenario):
+def _grid(system):
     """Two-sided angular-frequency grid resolving every resonance of the record's model."""
     from simulator.linear.spectra import adaptive_grid
-    from simulator.model.system import as_system
     from simulator.model.units import angular
 
-    system = as_system(scenario).require_stable()  # a clear error for an unstable point
     return angular(adaptive_grid(system.chain.model, points_per_decade=64))
 
 
-def _derivative(evaluate, scenario, path):
-    """d evaluate(scenario)/d(parameter at path), central where the range allows.
+def _record_model_of(system):
+    """``model_of(scenario)``: the record's model; the system's own for its own scenario.
 
-    At a boundary of the admissible range (a bath occupation of 0, an
-    efficiency of 1) the one-sided difference is used instead.
+    The base is the system's (built once); the stepped scenarios of the
+    derivatives are other scenarios and get Systems of their own.
     """
-    from simulator.errors import ScenarioError
+    from simulator.model.system import System
 
-    value = scenario.get(path)
-    if not isinstance(value, (int, float)) or isinstance(value, bool):
-        raise InputError(f"{path} = {value!r}: the Fisher information needs a numeric "
-                         "parameter that is set in the scenario")
-    h = 1e-4 * abs(value) if value != 0 else 1e-6
-    try:
-        up, hi = evaluate(scenario.replace(path, value + h)), h
-    except ScenarioError:
-        up, hi = evaluate(scenario), 0.0
-    try:
-        down, lo = evaluate(scenario.replace(path, value - h)), h
-    except ScenarioError:
-        down, lo = evaluate(scenario), 0.0
-    return (up - down) / (hi + lo)
+    def model_of(scenario):
+        return (system.chain if scenario is system.scenario else System(scenario).chain).model
+
+    return model_of
 
 
-def fisher_matrix(scenario, paths, *, frequency_hz=None):
+def fisher_matrix(system, paths, *, frequency_hz=None):
     """Fisher information per unit time (1/s) about the parameters at ``paths``.
 
     Parameters
     ----------
-    scenario : Scenario
+    system : simulator.model.system.System
+        Or a scenario, built into one.
     paths : sequence of str
         Scenario parameter paths, e.g. ``["mechanics[0].bath_occupation",
         "mechanics[0].coupling_hz", "detection.efficiency"]``.
@@ -120,15 +107,9 @@ def fisher_matrix(scenario, paths, *, frequency_hz=None):
     """
     from simulator.model.units import angular
 
-    omega = _grid(scenario) if frequency_hz is None else angular(frequency_hz)
-    base = _spectral_matrix(scenario, omega)
-    derivs = np.array([np.linalg.solve(base, _derivative(
-        lambda s: _spectral_matrix(s, omega), scenario, path)) for path in paths])
-    # tr(X_i X_j) per frequency, X = S⁻¹ ∂S
-    integrand = np.einsum("iwab,jwba->ijw", derivs, derivs).real
-    from simulator.model.units import ordinary
-
-    return 0.5 * np.trapezoid(integrand, ordinary(omega), axis=-1)
+    system = _system(system)
+    omega = _grid(system) if frequency_hz is None else angular(frequency_hz)
+    return fisher_blocks(_record_model_of(system), system.scenario, [tuple(paths)], omega)[0]
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -160,7 +141,7 @@ def default_paths(scenario, mode=0):
             "detection.efficiency")
 
 
-def occupation_bound(scenario, mode=0, paths=None):
+def occupation_bound(system, mode=0, paths=None):
     """Cramér–Rao bound on the exact occupation n of ``mode`` from the record.
 
     n is a function of the parameters at ``paths`` (the first is the bath);
@@ -168,20 +149,98 @@ def occupation_bound(scenario, mode=0, paths=None):
     steady state. All parameters are treated as unknown, so the bound includes
     the cost of estimating the nuisance parameters.
     """
-    from simulator.linear.steady_state import steady_state
+    system = _system(system)
+    paths = tuple(paths) if paths is not None else default_paths(system.scenario, mode)
+    return occupation_bounds(system, [mode], [paths])[0]
 
-    paths = tuple(paths) if paths is not None else default_paths(scenario, mode)
-    fisher = fisher_matrix(scenario, paths)
-    grad = np.array([_derivative(lambda s: steady_state(s).modes[mode].occupation,
-                                 scenario, path) for path in paths])
-    try:
-        variance = float(grad @ np.linalg.solve(fisher, grad))
-    except np.linalg.LinAlgError:
-        variance = np.inf  # some parameter leaves no trace in the record
-    return OccupationBound(mode=scenario.mechanics[mode].name,
-                           occupation=steady_state(scenario).modes[mode].occupation,
-                           paths=paths, error_one_second=float(np.sqrt(variance)),
-                           fisher_per_second=fisher)
+
+def occupation_bounds(system, modes=None, paths=None):
+    """:func:`occupation_bound` of several modes, sharing one pass over the spectrum.
+
+    Parameters
+    ----------
+    system : simulator.model.system.System
+        Or a scenario, built into one.
+    modes : sequence of int, optional
+        Default: every mode.
+    paths : sequence of sequences of str, optional
+        Per mode; default :func:`default_paths`.
+
+    Returns
+    -------
+    list of OccupationBound
+    """
+    system = _system(system)
+    scenario = system.scenario
+    modes = range(len(scenario.mechanics)) if modes is None else modes
+    paths = [default_paths(scenario, j) for j in modes] if paths is None else paths
+    if not paths:
+        return []
+    fishers = fisher_blocks(_record_model_of(system), scenario, paths, _grid(system))
+    response = _CovarianceResponse(system)
+    bounds = []
+    for mode, group, fisher in zip(modes, paths, fishers, strict=True):
+        grad = np.array([response.occupation_derivative(path, mode) for path in group])
+        try:
+            variance = float(grad @ np.linalg.solve(fisher, grad))
+        except np.linalg.LinAlgError:
+            variance = np.inf  # some parameter leaves no trace in the record
+        if not variance >= 0:  # NaN or negative: the information matrix is numerically empty
+            variance = np.inf
+        bounds.append(OccupationBound(
+            mode=scenario.mechanics[mode].name, occupation=response.occupation(mode),
+            paths=tuple(group), error_one_second=float(np.sqrt(variance)),
+            fisher_per_second=fisher))
+    return bounds
+
+
+class _CovarianceResponse:
+    """Derivatives of the stationary covariance V by the linear response of A V + V Aᵀ + D = 0.
+
+    A parameter step changes A and D = B N Bᵀ (the operating point
+    re-solved); to first order A ∂V + ∂V Aᵀ = −(∂A V + V ∂Aᵀ + ∂D), a
+    Lyapunov equation with the same A, solved with one real Schur form of A
+    for every parameter (Bartels and Stewart, Commun. ACM 15, 820 (1972)).
+    """
+
+    def __init__(self, system):
+        import scipy.linalg
+
+        self.model = system.model
+        self.scenario = system.scenario
+        self.v = self.model.covariance()
+        self.schur, self.basis = scipy.linalg.schur(self.model.A)
+        self._dv = {}
+
+    def occupation(self, mode):
+        """Exact occupation n = (⟨q²⟩ + ⟨p²⟩ − 1)/2 of one mode."""
+        s = mode_states(mode).start
+        return float((self.v[s, s] + self.v[s + 1, s + 1] - 1.0) / 2.0)
+
+    def occupation_derivative(self, path, mode):
+        """∂n/∂(parameter at path) of one mode."""
+        if path not in self._dv:
+            self._dv[path] = self._covariance_derivative(path)
+        dv, s = self._dv[path], mode_states(mode).start
+        return float((dv[s, s] + dv[s + 1, s + 1]) / 2.0)
+
+    def _covariance_derivative(self, path):
+        from scipy.linalg.lapack import dtrsyl
+
+        from simulator.model.system import System
+
+        up, down, span = steps(self.scenario, path)
+        mu, md = System(up).model, System(down).model
+        if mu.A.shape != self.model.A.shape or md.A.shape != self.model.A.shape:
+            return (mu.covariance() - md.covariance()) / span  # the model changed shape
+        da = (mu.A - md.A) / span
+        rhs = -(da @ self.v + self.v @ da.T + (mu.diffusion - md.diffusion) / span)
+        u = self.basis
+        x, scale, info = dtrsyl(self.schur, self.schur, u.T @ rhs @ u, tranb="T")
+        if info < 0:
+            raise ValueError(f"the Sylvester solver rejected argument {-info}")
+        dv = u @ (x / scale) @ u.T
+        return 0.5 * (dv + dv.T)
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -196,16 +255,19 @@ class AsymmetryTime:
     lineshape: dict  # parameter values the bound was evaluated at
 
 
-def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
+def asymmetry_time(system, mode=0, significance=ASYMMETRY_SIGNIFICANCE, steady=None):
     """Integration time to tell the sideband asymmetry d = c_S − c_AS from zero.
 
     Parameters
     ----------
-    scenario : Scenario
-        Heterodyne detection (the asymmetry needs both sidebands).
+    system : simulator.model.system.System
+        Or a scenario, built into one; heterodyne detection (the asymmetry
+        needs both sidebands).
     mode : int
     significance : float
         Required d/σ_d, e.g. 5 for a five-standard-deviation detection.
+    steady : SteadyState, optional
+        The scenario's steady state, when the caller has it already.
 
     Returns
     -------
@@ -215,16 +277,19 @@ def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
     from simulator.analysis.thermometry import Calibration, cavity_filter
     from simulator.linear.steady_state import steady_state
 
+    system = _system(system)
+    scenario = system.scenario
     if scenario.detection.scheme != "heterodyne":
         raise InputError(f"detection.scheme = {scenario.detection.scheme!r}: the sideband "
                          "asymmetry needs heterodyne detection of both sidebands")
     if not significance > 0:
         raise InputError(f"significance = {significance!r}; expected a positive number "
                          "of standard deviations")
-    cal = Calibration.from_scenario(scenario, mode)
-    state = steady_state(scenario).modes[mode]
+    cal = Calibration.from_scenario(system, mode)
+    steady = steady_state(system) if steady is None else steady
+    state = steady.modes[mode]
     omega, width = state.effective_frequency_hz, state.effective_linewidth_hz
-    theta = _lineshape_of_record(scenario, cal, omega, width)
+    theta = _lineshape_of_record(system, cal, omega, width, steady)
     per_quantum, n = theta[4], theta[3] / theta[4]
 
     def model(f, t):
@@ -237,20 +302,28 @@ def asymmetry_time(scenario, mode=0, significance=ASYMMETRY_SIGNIFICANCE):
     half = min(200.0 * width, omega)  # the two windows must not overlap
     side = np.arange(-half, half, df)
     f = np.concatenate([-omega + side, omega + side])
-    # (∂S/S)² per 1/T-wide bin, T·df bins per grid cell: per second, Σ (∂S/S)² df
-    info = fisher_information(model, theta, f, 1) * df
-    cov = np.linalg.inv(info)
-    rel = float(np.sqrt(cov[4, 4]) / per_quantum)
     grad = np.array([0, 0, 0, 1 / per_quantum, -n / per_quantum])  # n = c_AS/d
+    with np.errstate(all="ignore"):  # a record without information gives no bound
+        # (∂S/S)² per 1/T-wide bin, T·df bins per grid cell: per second, Σ (∂S/S)² df
+        info = fisher_information(model, theta, f, 1) * df
+        try:
+            cov = np.linalg.inv(info)
+        except np.linalg.LinAlgError:
+            cov = np.full((5, 5), np.nan)
+        rel = float(np.sqrt(cov[4, 4]) / per_quantum)
+        occupation_error = float(np.sqrt(grad @ cov @ grad))
+    if not (math.isfinite(rel) and math.isfinite(occupation_error)):
+        # the record carries no usable trace of the sidebands: no finite time resolves them
+        rel = occupation_error = math.inf
     return AsymmetryTime(
         mode=scenario.mechanics[mode].name, significance=float(significance),
         duration_s=float((significance * rel) ** 2), relative_asymmetry_error_one_second=rel,
-        occupation_error_one_second=float(np.sqrt(grad @ cov @ grad)),
+        occupation_error_one_second=occupation_error,
         lineshape=dict(zip(("floor", "frequency_hz", "linewidth_hz", "anti_stokes_area",
                             "asymmetry_area"), map(float, theta), strict=True)))
 
 
-def _lineshape_of_record(scenario, cal, omega, width):
+def _lineshape_of_record(system, cal, omega, width, steady):
     """Lineshape parameters (b, Ω, γ, c_AS, d) of the scenario's own record.
 
     Ω, γ and the occupation n are the exact ones; in weak coupling the
@@ -262,25 +335,20 @@ def _lineshape_of_record(scenario, cal, omega, width):
     peak.
     """
     from simulator.linear.spectra import heterodyne_spectrum
-    from simulator.linear.steady_state import steady_state
 
-    iq = scenario if scenario.record.kind in (None, "iq") else scenario.replace(
-        "record.kind", "iq")
-    chain = _record_chain(iq)
+    scenario = system.scenario
+    chain = (system if scenario.record.kind in (None, "iq")
+             else system.replace("record.kind", "iq")).chain
     # the record's axis is the optical offset (anti-Stokes at +f)
     away = np.array([omega + 30 * width, -omega - 30 * width])
     floor = float(np.mean(chain.record_spectrum(away)))
     peak = np.array([omega])
-    ideal = heterodyne_spectrum(scenario, np.concatenate([peak, away]),
+    ideal = heterodyne_spectrum(system, np.concatenate([peak, away]),
                                 efficiency=cal.efficiency).total
-    gain = float((chain.record_spectrum(peak)[0] - floor) / (ideal[0] - np.mean(ideal[1:])))
-    n = steady_state(scenario).modes[_mode_index(scenario, omega)].occupation
+    with np.errstate(divide="ignore", invalid="ignore"):  # no line at all: no finite bound
+        gain = float((chain.record_spectrum(peak)[0] - floor)
+                     / (ideal[0] - np.mean(ideal[1:])))
+    freqs = np.array([m.effective_frequency_hz for m in steady.modes])
+    n = steady.modes[int(np.argmin(np.abs(freqs - omega)))].occupation
     c = cal.area_per_quantum() * gain
     return np.array([floor, omega, width, c * n, c])
-
-
-def _mode_index(scenario, omega):
-    from simulator.linear.steady_state import steady_state
-
-    freqs = [m.effective_frequency_hz for m in steady_state(scenario).modes]
-    return int(np.argmin(np.abs(np.array(freqs) - omega)))

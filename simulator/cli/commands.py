@@ -39,12 +39,12 @@ def cmd_check(args):
 
 
 def cmd_inspect(args):
-    """``noisechain inspect SCENARIO [--json]``: exit 0 if stable, 3 if not."""
+    """``noisechain inspect SCENARIO [--json] [--no-feasibility]``: exit 0 if stable, 3 if not."""
     from simulator.scenario.loader import load_scenario
     from simulator.workflows.inspection import inspect_scenario
 
     scenario = load_scenario(args.scenario)
-    report = inspect_scenario(scenario)
+    report = inspect_scenario(scenario, feasibility=not args.no_feasibility)
     master = None
     if args.master and report.steady is not None:
         from simulator.master.report import master_comparison

@@ -82,6 +82,9 @@ def build_parser():
                    "state (QuTiP) beside the linear numbers; small occupations only")
     p.add_argument("--master-model", choices=("full", "linearised"), default="full",
                    help="master-equation model for --master (default: %(default)s)")
+    p.add_argument("--no-feasibility", action="store_true", help="leave out the "
+                   "measurement-time bounds (Fisher information), the slowest part for "
+                   "scenarios with many modes")
     p.set_defaults(func=cmd_inspect)
 
     p = verbs.add_parser("sweep", help="evaluate the scenario over its [sweep] grid; "
@@ -182,6 +185,15 @@ def main(argv=None):
         return EXIT_FAILED
     except BrokenPipeError:
         raise  # the reader went away: handled in entry_point, not a file error
+    except (ArithmeticError, ValueError) as exc:
+        # a numerical failure inside the engine (overflow, a singular matrix, a
+        # non-finite array): the input is beyond what the model can represent
+        print(f"noisechain {args.verb}: error: {getattr(args, 'scenario', 'the input')}: "
+              f"the computation failed numerically ({type(exc).__name__}: {exc}); a value "
+              "of the scenario is probably outside the range the model can represent; "
+              "expected values within the limits of docs/scenario-reference.md",
+              file=sys.stderr)
+        return EXIT_INPUT
     except OSError as exc:  # a path that cannot be read or written
         where = exc.filename if exc.filename else "a file"
         print(f"noisechain {args.verb}: error: cannot use {where}: "

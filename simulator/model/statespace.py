@@ -142,8 +142,8 @@ class StateSpace:
         for start in range(0, flat.size, _CHUNK):
             w = flat[start:start + _CHUNK]
             if res.well_conditioned:
-                out[start:start + _CHUNK] = np.einsum("pn,wn,nm->wpm", left, res.factor(w),
-                                                      right)
+                # (C V) diag(f) (V⁻¹ B) as one batched matrix product per chunk
+                out[start:start + _CHUNK] = (left * res.factor(w)[:, None, :]) @ right
             else:
                 out[start:start + _CHUNK] = self.C @ res.solve_columns(w, self.B)
         out += self.D
@@ -159,7 +159,8 @@ class StateSpace:
         ∫ S dω/2π equals the variance. Shape ``omega.shape + (p, p)``.
         """
         h = self.transfer(omega)
-        return np.einsum("...pm,mn,...qn->...pq", h, self.N, h.conj())
+        # two batched matrix products: cost linear in the number of inputs squared
+        return (h @ self.N) @ np.swapaxes(h.conj(), -1, -2)
 
 
 _CHUNK = 1 << 15

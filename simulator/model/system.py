@@ -22,9 +22,12 @@ from simulator.model.operating_point import operating_point
 from simulator.model.optomechanics import linear_model
 from simulator.model.stability import require_stable, stability
 
-# Scenario paths that do not change the operating point, the model or its chain.
+# Scenario paths that change neither the operating point, the model nor its chain;
+# and those that change the chain only (the receiver's record kind, the electronics
+# after the detector, the digitiser).
 _RECORD_ONLY = ("record.duration_s", "record.chunk_samples", "record.store_mechanics",
                 "record.in_run", "scenario.seed", "scenario.name", "scenario.description")
+_CHAIN_ONLY = ("record.kind", "electronics.", "digitizer.")
 
 
 class System:
@@ -79,15 +82,16 @@ class System:
     def replace(self, path, value):
         """A new System of the scenario with ``path`` set to ``value``.
 
-        Paths that cannot change the physics (the record's length, chunking
-        and stored quadratures, the seed and the names) keep this system's
-        operating point and model; any other path builds them anew.
+        Paths that cannot change the device (the record's length, kind,
+        chunking and stored quadratures, the electronics and the digitiser,
+        the seed and the names) keep this system's operating point and model;
+        any other path builds them anew.
         """
         scenario = self.scenario.replace(path, value)
-        if path not in _RECORD_ONLY:
+        if path not in _RECORD_ONLY and not path.startswith(_CHAIN_ONLY):
             return System(scenario)
         derived = System(scenario, _parts=(self.point, self.model, self.stability))
-        if "chain" in self.__dict__:  # built already: the chain does not depend on them either
+        if path in _RECORD_ONLY and "chain" in self.__dict__:  # the chain is the same too
             derived.__dict__["chain"] = self.__dict__["chain"]
         return derived
 

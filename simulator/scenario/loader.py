@@ -104,6 +104,10 @@ class Scenario:
         if path.split(".")[0] == "sweep" or dataclasses.is_dataclass(value) or isinstance(
                 value, tuple):
             yield key, f"{path!r} does not name a single scenario parameter"
+        elif _leaf_type(type(self), path, self.source) not in (int, float):
+            role = "sweepable" if path == swept else "usable as the unit of a range"
+            yield key, (f"{path!r} is not a numeric parameter, so it is not {role}; "
+                        "expected a number such as 'drive.detuning_hz'")
 
     def parameter_paths(self):
         """Every path naming a single parameter, e.g. ``"mechanics[0].frequency_hz"``."""
@@ -147,28 +151,58 @@ class Scenario:
         Setting one of two exclusive keys (for example ``bath_temperature_k``)
         clears the other one.
         """
+        parts = _split_path(path, self.source)
+        (head, index), rest = parts[0], parts[1:]
+        fields = {f.name for f in schema.public_fields(type(self))}
+        kind = schema.field_kind(type(self), head)[0] if head in fields else None
+        items = getattr(self, head) if head in fields else None
+        if rest and ((kind == "section" and index is None and items is not None) or (
+                kind == "sections" and index is not None and index < len(items))):
+            # only the section holding the key is rebuilt, then the checks across sections:
+            # the same checks as a full reload, at a cost that does not grow with the file
+            prefix = _join(parts[:1])[0]
+            section = items if index is None else items[index]
+            data = _as_data(section)
+            _assign(data, section, rest, value, path, self.source)
+            built = _build(type(section), data, prefix, self.source)
+            if index is not None:
+                built = items[:index] + (built,) + items[index + 1:]
+            new = dataclasses.replace(self, **{head: built})
+            for key, message in new.problems():
+                raise ScenarioError(message, source=self.source, key=key)
+            return new
         data = self.to_dict()
-        *parents, (leaf, leaf_index) = _split_path(path, self.source)
-        node = data
-        for name, index in parents:
-            if name not in node:
-                node[name] = {}
-            try:
-                node = node[name] if index is None else node[name][index]
-            except (KeyError, IndexError, TypeError):
-                raise ScenarioError(f"no parameter at path {path!r}",
-                                    source=self.source, key=path) from None
-        if leaf_index is not None or not isinstance(node, dict):
-            raise ScenarioError(f"path {path!r} does not name a single parameter",
-                                source=self.source, key=path)
-        node[leaf] = value
-        owner = self.get(".".join(_join(parents))) if parents else self
-        for group in getattr(type(owner), "EXCLUSIVE", ()):
-            if leaf in group:
-                for other in group:
-                    if other != leaf:
-                        node.pop(other, None)
+        _assign(data, self, parts, value, path, self.source)
         return scenario_from_dict(data, source=self.source)
+
+
+def _assign(data, owner, parts, value, path, source):
+    """Set ``value`` at ``parts`` in plain ``data`` (of the object ``owner``), in place.
+
+    Setting one key of an exclusive pair removes the other.
+    """
+    *parents, (leaf, leaf_index) = parts
+    node = data
+    for name, index in parents:
+        if name not in node:
+            node[name] = {}
+        try:
+            node = node[name] if index is None else node[name][index]
+        except (KeyError, IndexError, TypeError):
+            raise ScenarioError(f"no parameter at path {path!r}", source=source,
+                                key=path) from None
+    if leaf_index is not None or not isinstance(node, dict):
+        raise ScenarioError(f"path {path!r} does not name a single parameter",
+                            source=source, key=path)
+    node[leaf] = value
+    for name, index in parents:
+        owner = getattr(owner, name, None)
+        owner = owner[index] if index is not None and owner is not None else owner
+    for group in getattr(type(owner), "EXCLUSIVE", ()):
+        if leaf in group:
+            for other in group:
+                if other != leaf:
+                    node.pop(other, None)
 
 
 def _join(parts):
@@ -190,6 +224,13 @@ def _split_path(path, source):
         index = match.group(2)
         parts.append((match.group(1), None if index is None else int(index)))
     return parts
+
+
+def _leaf_type(cls, path, source):
+    """Scalar type (``float``, ``int``, ``str``, ``bool``) of the key at ``path``."""
+    for name, _ in _split_path(path, source):
+        _, cls, _ = schema.field_kind(cls, name)
+    return cls
 
 
 def _leaf_paths(cls, prefix):
@@ -257,6 +298,10 @@ def parse_scenario(text, *, source="<string>"):
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ScenarioError(f"malformed TOML: {exc}", source=source) from None
+    except RecursionError:  # the TOML parser recurses once per level of nesting
+        raise ScenarioError("malformed TOML: tables or arrays nested too deeply for the "
+                            "parser; expected the sections of a scenario, nested at most "
+                            "a few levels", source=source) from None
     return scenario_from_dict(data, source=source)
 
 

@@ -14,6 +14,15 @@ import math
 import types
 import typing
 
+# Longest name accepted for a scenario or a mode (it becomes part of file names).
+MAX_NAME_LENGTH = 100
+
+
+def _is_label(text):
+    """A name fit for reports and file names: one printable line, not blank."""
+    return bool(text.strip()) and len(text) <= MAX_NAME_LENGTH and text.isprintable()
+
+
 # Range checks a parameter can declare, with the words used in error messages.
 CHECKS = {
     "positive": (lambda v: v > 0, "a positive number (> 0)"),
@@ -21,11 +30,13 @@ CHECKS = {
     "fraction": (lambda v: 0 < v <= 1, "a fraction in (0, 1]"),
     "unit_interval": (lambda v: 0 <= v <= 1, "a number in [0, 1]"),
     "real": (lambda v: True, "a finite number"),
+    "label": (_is_label, f"text of 1 to {MAX_NAME_LENGTH} printable characters on one "
+                         "line, not blank"),
 }
 
 
 def param(doc, *, unit="", check=None, choices=None, default=dataclasses.MISSING,
-          parser=None, accepts=None):
+          parser=None, accepts=None, low=None, high=None, why=None):
     """Field of a scenario section with its documentation and admissible values.
 
     Parameters
@@ -46,11 +57,17 @@ def param(doc, *, unit="", check=None, choices=None, default=dataclasses.MISSING
         converted value or raises :class:`~simulator.errors.ScenarioError`.
     accepts : str, optional
         Words describing what a ``parser`` parameter accepts, for the reference.
+    low, high : float, optional
+        Physical limits of a number, inclusive, beyond the sign of ``check``:
+        the span of real devices, which also keeps the engine's arithmetic
+        finite. A value outside is refused with ``why``.
+    why : str, optional
+        Short reason for ``low``/``high``, quoted in errors and the reference.
     """
     if check is not None and check not in CHECKS:
         raise ValueError(f"unknown check {check!r}; expected one of {sorted(CHECKS)}")
     meta = {"doc": doc, "unit": unit, "check": check, "choices": choices,
-            "parser": parser, "accepts": accepts}
+            "parser": parser, "accepts": accepts, "low": low, "high": high, "why": why}
     return dataclasses.field(default=default, metadata=meta)
 
 
@@ -115,19 +132,32 @@ def expectation(f, tp):
         text = text.replace("number", "integer")
     if meta.get("unit"):
         text += f" in {meta['unit']}"
+    low, high = meta.get("low"), meta.get("high")
+    if low is not None and high is not None:
+        text += f", from {_limit(low)} to {_limit(high)}"
+    elif low is not None:
+        text += f", at least {_limit(low)}"
+    elif high is not None:
+        text += f", at most {_limit(high)}"
+    if meta.get("why"):
+        text += f" ({meta['why']})"
     return text
 
 
 def convert_scalar(value, tp):
     """Check the TOML type of ``value`` against ``tp``; return it converted.
 
-    Returns ``(ok, value)``: integers are accepted where a float is expected;
+    Returns ``(ok, value)``: integers are accepted where a float is expected
+    (one too large for a float becomes an infinity, refused as not finite);
     booleans are never taken for numbers.
     """
     if isinstance(value, bool):
         return (tp is bool), value
     if tp is float and isinstance(value, (int, float)):
-        return True, float(value)
+        try:
+            return True, float(value)
+        except OverflowError:
+            return True, (math.inf if value > 0 else -math.inf)
     if tp is int and isinstance(value, int):
         return True, value
     if tp is str and isinstance(value, str):
@@ -142,11 +172,27 @@ def range_problem(f, tp, value):
         if isinstance(value, float) and not math.isfinite(value):
             return f"{value!r} is not a finite number; expected {expectation(f, tp)}"
         check = meta.get("check")
-        if check and not CHECKS[check][0](value):
+        low, high = meta.get("low"), meta.get("high")
+        if ((check and not CHECKS[check][0](value)) or (low is not None and value < low)
+                or (high is not None and value > high)):
             return f"{value!r} is out of range; expected {expectation(f, tp)}"
+    if tp is str and meta.get("check") and not CHECKS[meta["check"]][0](value):
+        return f"{_short(value)} is not allowed; expected {expectation(f, tp)}"
     if meta.get("choices") and value not in meta["choices"]:
         return f"{value!r} is not allowed; expected {expectation(f, tp)}"
     return None
+
+
+def _limit(x):
+    """A limit as written in the reference: integers in full, floats compactly."""
+    if isinstance(x, int):
+        return str(x)
+    return f"{x:g}".replace("e+0", "e").replace("e-0", "e-").replace("e+", "e")
+
+
+def _short(text, limit=40):
+    """``repr`` of a text value, cut short for an error message."""
+    return repr(text) if len(text) <= limit else repr(text[:limit]) + f"… ({len(text)} characters)"
 
 
 def reference_markdown(root):
@@ -180,10 +226,14 @@ def reference_markdown(root):
         "A scenario is a TOML file with the sections below. Keys carry their unit",
         "as a suffix (`_hz`, `_w`, `_m`, `_kg`, `_k`); every frequency or rate is an",
         "ordinary frequency in Hz, the value of ω/2π. Numbers must be finite;",
-        "integers are accepted where a number is expected. Unknown keys are errors",
-        "and the message suggests the closest valid key. A key is named by its",
-        "path, `section.key`, with an index for repeated tables:",
-        "`mechanics[0].frequency_hz` is the first `[[mechanics]]` table. Error",
+        "integers are accepted where a number is expected. Many keys also have",
+        "physical limits, listed beside them: the span of real devices, which also",
+        "keeps every number the engine derives finite; a value outside them is",
+        "refused with the limit and its reason. Names are one line of printable",
+        "text. Unknown keys are errors and the message suggests the closest valid",
+        "key. A key is named by its path, `section.key`, with an index for",
+        "repeated tables: `mechanics[0].frequency_hz` is the first `[[mechanics]]`",
+        "table. Only numeric keys can be swept. Error",
         "messages and `Scenario.get` / `Scenario.replace` use the same paths.",
         "",
         "Sections: " + ", ".join(f"`{_table_header(root, f)}`" for f in fields) + ".",

@@ -13,15 +13,19 @@ from simulator.scenario.schema import param, section
 
 _frozen = dataclasses.dataclass(frozen=True, kw_only=True)
 
+# Upper limit of the frequency of a noise shape, tone, filter or lock (1 THz).
+MAX_AUXILIARY_HZ = 1e12
+
 
 @_frozen
 class ScenarioInfo:
     """``[scenario]``: what this scenario is."""
 
-    name: str = param("short name used in reports and file names")
+    name: str = param("short name used in reports and file names", check="label")
     description: str = param("free text describing the device and purpose", default="")
     seed: int = param("seed of every random draw made for this scenario",
-                      check="nonnegative", default=0)
+                      check="nonnegative", default=0, high=2**63 - 1,
+                      why="the random generators take 64-bit seeds")
 
 
 @_frozen
@@ -35,26 +39,27 @@ class PhaseNoise:
     linewidth_hz: float = param(
         "full width at half maximum of the drive's Lorentzian line from white "
         "frequency noise (one-sided frequency-noise density linewidth/π in Hz²/Hz); "
-        "0: none", unit="Hz", check="nonnegative", default=0.0)
+        "0: none", unit="Hz", check="nonnegative", default=0.0, high=MAX_AUXILIARY_HZ)
     floor_rad2_per_hz: float = param(
         "one-sided phase-noise density S_φ(f) of a flat floor between floor_low_hz "
         "and floor_high_hz (2nd-order Butterworth edges); 0: none", unit="rad²/Hz",
-        check="nonnegative", default=0.0)
+        check="nonnegative", default=0.0, high=1.0)
     floor_low_hz: float = param(
         "lower edge of the phase-noise floor; 0: the floor reaches down to zero "
-        "frequency", unit="Hz", check="nonnegative", default=0.0)
+        "frequency", unit="Hz", check="nonnegative", default=0.0, high=MAX_AUXILIARY_HZ)
     floor_high_hz: float | None = param(
         "upper edge of the phase-noise floor; needed when floor_rad2_per_hz > 0",
-        unit="Hz", check="positive", default=None)
+        unit="Hz", check="positive", default=None, high=MAX_AUXILIARY_HZ)
     peak_rad2_per_hz: float = param(
         "one-sided phase-noise density at the centre of a resonant peak (e.g. a "
         "laser relaxation oscillation); 0: none", unit="rad²/Hz", check="nonnegative",
-        default=0.0)
+        default=0.0, high=1.0)
     peak_frequency_hz: float | None = param(
-        "centre of the phase-noise peak", unit="Hz", check="positive", default=None)
+        "centre of the phase-noise peak", unit="Hz", check="positive", default=None,
+        high=MAX_AUXILIARY_HZ)
     peak_width_hz: float | None = param(
         "full width at half maximum of the phase-noise peak", unit="Hz",
-        check="positive", default=None)
+        check="positive", default=None, high=MAX_AUXILIARY_HZ)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
@@ -79,7 +84,7 @@ class IntensityNoise:
     relative_intensity_noise_per_hz: float = param(
         "one-sided relative intensity noise RIN = S_δP/P²(f), white; 0: none "
         "(10^(dBc/Hz / 10) for a value in dBc/Hz)", unit="1/Hz", check="nonnegative",
-        default=0.0)
+        default=0.0, high=1e-2)
 
 
 @_frozen
@@ -91,7 +96,7 @@ class CalibrationTone:
         "J1(φ0) ≈ φ0/2); 0: no tone", unit="rad", check="nonnegative", default=0.0)
     frequency_hz: float | None = param(
         "modulation frequency; needed when depth_rad > 0", unit="Hz", check="positive",
-        default=None)
+        default=None, high=MAX_AUXILIARY_HZ)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
@@ -109,14 +114,18 @@ class Drive:
 
     EXCLUSIVE = (("wavelength_m", "frequency_hz"),)
 
-    wavelength_m: float | None = param("vacuum wavelength of the drive", unit="m",
-                                       check="positive", default=None)
-    frequency_hz: float | None = param("carrier frequency of the drive", unit="Hz",
-                                       check="positive", default=None)
+    wavelength_m: float | None = param(
+        "vacuum wavelength of the drive", unit="m", check="positive", default=None,
+        low=1e-7, high=10.0, why="ultraviolet to radio waves, the span of frequency_hz")
+    frequency_hz: float | None = param(
+        "carrier frequency of the drive", unit="Hz", check="positive", default=None,
+        low=3e7, high=3e15, why="radio waves to ultraviolet, the span of wavelength_m")
     power_w: float = param("drive power arriving at the cavity's external port",
-                           unit="W", check="nonnegative")
+                           unit="W", check="nonnegative", high=1e3,
+                           why="1 kW, above any continuous drive a device survives")
     detuning_hz: float = param("Δ/2π = drive minus cavity frequency; red detuning is "
-                               "negative", unit="Hz", check="real")
+                               "negative; |Δ| below the drive frequency", unit="Hz",
+                               check="real")
     detuning_reference: str = param(
         "cavity frequency the detuning is measured from: the bare resonance (no "
         "light inside) or the effective one including the static radiation-pressure "
@@ -133,6 +142,16 @@ class Drive:
         CalibrationTone, "phase-modulation calibration tone on the drive path only (not "
         "the local oscillator); left out: none")
 
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        carrier = self.carrier_frequency_hz
+        if not abs(self.detuning_hz) < carrier:
+            yield ("detuning_hz", f"{self.detuning_hz!r} Hz puts the cavity at "
+                   f"{carrier - self.detuning_hz:.6g} Hz for a drive at {carrier:.6g} Hz; "
+                   "expected |detuning_hz| below the drive frequency (the cavity frequency "
+                   "f_drive − detuning_hz must be positive, and the rotating-frame model "
+                   "assumes |Δ| ≪ f_drive)")
+
     @property
     def carrier_frequency_hz(self):
         """Drive carrier frequency (Hz), from whichever key the file gave."""
@@ -148,13 +167,13 @@ class Cavity:
     """``[cavity]``: the optical or microwave mode."""
 
     linewidth_hz: float = param("total energy decay rate κ/2π (FWHM)", unit="Hz",
-                                check="positive")
+                                check="positive", low=1e-3, high=1e14)
     external_linewidth_hz: float = param(
         "decay rate κ_ex/2π into the port that is driven and detected", unit="Hz",
-        check="positive")
+        check="positive", low=1e-3, high=1e14)
     bath_occupation: float = param(
         "thermal photon occupation of the internal-loss bath (microwave cavities)",
-        check="nonnegative", default=0.0)
+        check="nonnegative", default=0.0, high=1e8)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
@@ -171,20 +190,23 @@ class Mechanics:
 
     EXCLUSIVE = (("bath_temperature_k", "bath_occupation"),)
 
-    name: str = param("name of the mode, unique within the scenario")
-    frequency_hz: float = param("resonance frequency Ωm/2π", unit="Hz", check="positive")
+    name: str = param("name of the mode, unique within the scenario", check="label")
+    frequency_hz: float = param(
+        "resonance frequency Ωm/2π", unit="Hz", check="positive", low=1e-3, high=1e12,
+        why="a millihertz pendulum to terahertz phonons")
     linewidth_hz: float = param("intrinsic energy damping rate Γm/2π", unit="Hz",
-                                check="positive")
-    effective_mass_kg: float = param("effective mass of the mode", unit="kg",
-                                     check="positive")
+                                check="positive", low=1e-12, high=1e12)
+    effective_mass_kg: float = param(
+        "effective mass of the mode", unit="kg", check="positive", low=1e-27, high=1e3,
+        why="a hydrogen atom to a tonne")
     coupling_hz: float = param("single-photon coupling rate g0/2π", unit="Hz",
-                               check="nonnegative")
+                               check="nonnegative", high=1e9)
     bath_temperature_k: float | None = param(
         "temperature of the mode's thermal bath", unit="K", check="nonnegative",
-        default=None)
+        default=None, high=1e4, why="hotter than any solid device survives")
     bath_occupation: float | None = param(
         "mean phonon occupation of the mode's thermal bath", check="nonnegative",
-        default=None)
+        default=None, high=1e18)
 
 
 @_frozen
@@ -195,15 +217,16 @@ class Detection:
                         default="heterodyne")
     efficiency: float = param(
         "total efficiency from the cavity port to the photocurrent (transmission "
-        "losses times detector quantum efficiency)", check="fraction", default=1.0)
+        "losses times detector quantum efficiency)", check="fraction", default=1.0,
+        low=1e-6, why="−60 dB; below it the record holds no signal")
     local_oscillator_power_w: float = param(
         "local-oscillator power at the detector; sets the photocurrent scale and so "
         "the weight of the electronic noise against shot noise", unit="W",
-        check="positive", default=1e-3)
+        check="positive", default=1e-3, low=1e-18, high=1.0)
     intermediate_frequency_hz: float = param(
         "offset of the local oscillator from the drive, |f_LO − f_drive|: the carrier "
         "of an \"if\" record; 0 for homodyne", unit="Hz", check="nonnegative",
-        default=0.0)
+        default=0.0, high=MAX_AUXILIARY_HZ)
     local_oscillator_side: str = param(
         "side of the drive the local oscillator sits on; below puts the anti-Stokes "
         "sideband above the intermediate frequency, above mirrors it",
@@ -221,10 +244,10 @@ class Detection:
         default="common")
     local_oscillator_delay_s: float = param(
         "extra delay of the local-oscillator path over the signal path (\"common\" "
-        "only)", unit="s", check="nonnegative", default=0.0)
+        "only)", unit="s", check="nonnegative", default=0.0, high=1.0)
     local_oscillator_lock_bandwidth_hz: float | None = param(
         "bandwidth of the first-order phase lock (\"locked\" only)", unit="Hz",
-        check="positive", default=None)
+        check="positive", default=None, high=MAX_AUXILIARY_HZ)
     balanced: bool = param(
         "balanced detection (both ports of the signal–local-oscillator beam splitter "
         "subtracted); false: one port of a 50:50 combiner, which halves the efficiency",
@@ -241,17 +264,18 @@ class Electronics:
 
     transimpedance_ohm: float = param(
         "transimpedance gain from photocurrent to voltage", unit="V/A",
-        check="positive", default=1e4)
+        check="positive", default=1e4, low=1e-3, high=1e12)
     bandwidth_hz: float | None = param(
         "−3 dB frequency of the single-pole analogue low-pass; left out: no filter",
-        unit="Hz", check="positive", default=None)
+        unit="Hz", check="positive", default=None, high=MAX_AUXILIARY_HZ)
     current_noise_a_per_sqrt_hz: float = param(
         "input-referred current noise of the electronics, one-sided density",
-        unit="A/√Hz", check="nonnegative", default=0.0)
+        unit="A/√Hz", check="nonnegative", default=0.0, high=1e-3)
     amplifier_added_quanta: float = param(
         "noise added by a phase-preserving amplifier ahead of the detector (the "
         "microwave case: 10–20 for a cryogenic transistor amplifier), in quanta "
-        "referred to its input; 0: no amplifier", check="nonnegative", default=0.0)
+        "referred to its input; 0: no amplifier", check="nonnegative", default=0.0,
+        high=1e6)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
@@ -269,13 +293,13 @@ class Digitizer:
     sample_rate_hz: float | None = param(
         "sample rate; left out: chosen to take in the cavity line and every "
         "mechanical sideband (see docs/records.md)", unit="Hz", check="positive",
-        default=None)
+        default=None, low=1.0, high=MAX_AUXILIARY_HZ)
     bits: int = param("resolution of the converter, 2 to 32 bits", check="positive",
                       default=16)
     full_scale_v: float | None = param(
         "input range ±full_scale_v; left out: eight times the record's noise standard "
         "deviation plus the calibration tone's amplitude", unit="V", check="positive",
-        default=None)
+        default=None, low=1e-12, high=1e6)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
@@ -288,7 +312,7 @@ class RecordOptions:
     """``[record]``: the synthetic record written by ``noisechain record``."""
 
     duration_s: float = param("length of the record", unit="s", check="positive",
-                              default=0.1)
+                              default=0.1, high=1e6, why="about 12 days")
     kind: str | None = param(
         "\"iq\": complex baseband I + iQ (heterodyne); \"if\": real samples at the "
         "intermediate frequency; left out: \"iq\" for heterodyne, \"if\" for homodyne "
@@ -296,7 +320,7 @@ class RecordOptions:
         default=None)
     chunk_samples: int = param(
         "samples generated and written per step; sets memory use, not the result",
-        check="positive", default=262144)
+        check="positive", default=262144, high=2**30)
     store_mechanics: bool = param(
         "store the true mechanical quadratures beside the record", default=False)
     in_run: bool = param(

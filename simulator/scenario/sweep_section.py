@@ -27,6 +27,14 @@ RANGE_KEYS = ("start", "stop", "num", "log", "unit")
 MAX_POINTS = 1_000_000  # points in one sweep (a larger grid is almost surely a typo)
 
 
+def _finite(number):
+    """True for an int or float that a float holds as a finite number."""
+    try:
+        return math.isfinite(float(number))
+    except OverflowError:  # an integer beyond the largest float
+        return False
+
+
 def _range_problem(spec):
     unknown = [k for k in spec if k not in RANGE_KEYS]
     if unknown:
@@ -37,7 +45,7 @@ def _range_problem(spec):
             return f"a range needs {k!r}; expected {{start = .., stop = .., num = ..}}"
     for k in ("start", "stop"):
         v = spec[k]
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not _finite(v):
             return f"range {k} = {v!r} is not a finite number"
     num = spec["num"]
     if isinstance(num, bool) or not isinstance(num, int) or not 1 <= num <= MAX_POINTS:
@@ -65,15 +73,16 @@ def parse_parameters(value, key, source):
                 raise ScenarioError("empty list of values; expected at least one",
                                     source=source, key=where)
             for v in spec:
-                if isinstance(v, float) and not math.isfinite(v):
-                    raise ScenarioError(f"{v!r} is not a finite number", source=source,
-                                        key=where)
+                if isinstance(v, bool) or not isinstance(v, (int, float)) or not _finite(v):
+                    raise ScenarioError(f"{v!r} is not a finite number; expected a list of "
+                                        "numbers", source=source, key=where)
             frozen[path] = tuple(spec)
         elif isinstance(spec, dict):
             problem = _range_problem(spec)
             if problem:
                 raise ScenarioError(problem, source=source, key=where)
-            frozen[path] = types.MappingProxyType(dict(spec))
+            spec = dict(spec, start=float(spec["start"]), stop=float(spec["stop"]))
+            frozen[path] = types.MappingProxyType(spec)
         else:
             raise ScenarioError(f"{spec!r} is neither a list of values nor a range table",
                                 source=source, key=where)

@@ -189,7 +189,13 @@ def inspect_scenario(system, *, feasibility=True):
                     f"exact {exact:.4g} by more than {STRONG_COUPLING_TOLERANCE:.0%}; the "
                     "system is near or in strong coupling and the rate-equation "
                     "diagnostics do not apply")
-    feasibility = _feasibility(scenario) if steady is not None and feasibility else ()
+    feasibility = (_feasibility(system, steady) if steady is not None and feasibility
+                   else ())
+    warnings += [f"mode {f['mode']}: the record carries too little information about this "
+                 "mode for a finite measurement-time bound (reported as infinite, null in "
+                 "JSON); raise the drive power or the coupling"
+                 for f in feasibility if not (math.isfinite(f["occupation_error_1s"]) and
+                                              math.isfinite(f["asymmetry_time_s"] or 0.0))]
     from simulator.master.regime import regime_verdict  # pure formulas, no QuTiP
 
     regime = regime_verdict(point, None if steady is None else
@@ -205,19 +211,21 @@ def inspect_scenario(system, *, feasibility=True):
                       laser=laser)
 
 
-def _feasibility(scenario):
+def _feasibility(system, steady):
     """Per-mode measurement-time bounds (simulator.analysis.feasibility)."""
     from simulator.analysis import feasibility as fz
 
+    scenario = system.scenario
+    # a mode without coupling or drive leaves no trace in the record: no bound
+    informative = [j for j, mode in enumerate(scenario.mechanics)
+                   if mode.coupling_hz != 0 and scenario.drive.power_w != 0]
     out = []
-    for j, mode in enumerate(scenario.mechanics):
-        if mode.coupling_hz == 0 or scenario.drive.power_w == 0:
-            continue  # the record carries no information about this mode
-        bound = fz.occupation_bound(scenario, j)
-        entry = {"mode": mode.name, "occupation_error_1s": bound.error_one_second,
+    for j, bound in zip(informative, fz.occupation_bounds(system, informative),
+                        strict=True):
+        entry = {"mode": bound.mode, "occupation_error_1s": bound.error_one_second,
                  "parameters": list(bound.paths), "significance": fz.ASYMMETRY_SIGNIFICANCE,
                  "asymmetry_time_s": None}
         if scenario.detection.scheme == "heterodyne":
-            entry["asymmetry_time_s"] = fz.asymmetry_time(scenario, j).duration_s
+            entry["asymmetry_time_s"] = fz.asymmetry_time(system, j, steady=steady).duration_s
         out.append(entry)
     return tuple(out)

@@ -112,7 +112,7 @@ def sweep_axes(scenario):
         unit = spec.get("unit", "") if not isinstance(spec, tuple) else ""
         scale = float(base.get(unit)) if unit else 1.0
         values = [x * scale if unit else x for x in numbers]
-        for v in sorted(set(values), key=values.index):
+        for v in dict.fromkeys(values):  # each distinct value once, in order
             try:
                 base.replace(path, v)
             except ScenarioError as exc:
