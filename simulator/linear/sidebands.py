@@ -62,6 +62,8 @@ NO_LINE = complex(np.nan, np.nan)
 # A line whose Stokes weight is below this (in quanta; a line the light reaches has n + 1 ≥ 1)
 # is dark: a combination of degenerate modes that does not couple to the cavity.
 DARK = 1e-9
+# Two eigenvalues closer than this fraction of their size are the same pole.
+SAME_POLE_RTOL = 1e-9
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -272,7 +274,7 @@ class _Poles:
         """A pole of the noise filters (not of the cavity or mechanics) within the
         half-width |Re λ_k| of pole k, as its (frequency, FWHM) in Hz, or None."""
         for lam in self.lam:
-            if np.min(np.abs(self.device_lam - lam)) <= 1e-9 * abs(lam) + 1e-12:
+            if np.min(np.abs(self.device_lam - lam)) <= SAME_POLE_RTOL * abs(lam) + 1e-12:
                 continue  # an eigenvalue of the cavity–mechanics block
             if abs(lam - self.lam[k]) < abs(self.lam[k].real):
                 return (float(ordinary(abs(lam.imag))), float(ordinary(-2 * lam.real)))

@@ -21,6 +21,9 @@ from simulator.model.units import angular, ordinary
 
 # Weak-coupling and exact occupations further apart than this flag strong coupling.
 STRONG_COUPLING_TOLERANCE = 0.10
+# An eigenvalue counts as in the upper half-plane (a mode's, not its mirror's) down to
+# Im λ = −this × |λ|: an overdamped mode's real eigenvalue carries rounding in Im λ.
+UPPER_HALF_RTOL = 1e-12
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -136,7 +139,7 @@ def mode_eigenvalues(model, n_modes):
     """
     size = device_size(n_modes)
     lam, vec = np.linalg.eig(model.A[:size, :size])
-    candidates = np.flatnonzero(lam.imag >= -1e-12 * np.abs(lam))
+    candidates = np.flatnonzero(lam.imag >= -UPPER_HALF_RTOL * np.abs(lam))
     if len(candidates) < n_modes:
         candidates = np.arange(len(lam))
     weights = np.abs(vec) ** 2

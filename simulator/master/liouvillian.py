@@ -44,6 +44,8 @@ import scipy.sparse.linalg
 from simulator.errors import InputError
 
 GMRES_RTOL = 1e-10
+# A decay rate of K below this fraction of its largest |eigenvalue| counts as undamped.
+UNDAMPED_RTOL = 1e-12
 RESTART = 80
 MAX_STEPS = 4000
 
@@ -91,7 +93,7 @@ class LindbladSolver:
             lam, vec, inv = _eigenbasis(self.K.toarray())
         self.scale = float(np.mean(np.abs(lam.real))) or 1.0
         self.method = method
-        if method == "gmres" and np.max(lam.real) >= -1e-12 * np.max(np.abs(lam)):
+        if method == "gmres" and np.max(lam.real) >= -UNDAMPED_RTOL * np.max(np.abs(lam)):
             self.method = "direct"  # an undamped state of K: the preconditioner is singular
         self.lam, self.vec, self.inv = lam, vec, inv
         self.vec_h, self.inv_h = vec.conj().T, inv.conj().T

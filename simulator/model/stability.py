@@ -20,6 +20,8 @@ from simulator.model.units import ordinary
 # real part is further from zero than this many times n·ε·‖A_b‖_F, the rounding
 # error of the eigenvalue computation (ε the unit roundoff).
 STABILITY_ROUNDING_MARGIN = 8.0
+# |Im λ| below this fraction of |λ|: the growing eigenvalue is real (a static instability).
+REAL_EIGENVALUE_RTOL = 1e-9
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -79,7 +81,7 @@ def stability(model, point):
                  "belongs to), so the sign of the growth rate cannot be decided; the "
                  "steady state would not be reliable")
     elif not stable:
-        if abs(top.imag) <= 1e-9 * abs(top) + 1e-300:
+        if abs(top.imag) <= REAL_EIGENVALUE_RTOL * abs(top) + 1e-300:
             cause = ("static instability: a real eigenvalue of the drift matrix is "
                      "positive (det A < 0), the optical spring has pulled a mechanical "
                      "frequency through zero; this is the unstable branch of a bistable "
