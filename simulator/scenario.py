@@ -153,28 +153,56 @@ class Scenario:
         clears the other one.
         """
         parts = _split_path(path, self.source)
-        (head, index), rest = parts[0], parts[1:]
-        fields = {f.name for f in schema.public_fields(type(self))}
-        kind = schema.field_kind(type(self), head)[0] if head in fields else None
-        items = getattr(self, head) if head in fields else None
-        if rest and ((kind == "section" and index is None and items is not None) or (
-                kind == "sections" and index is not None and index < len(items))):
-            # only the section holding the key is rebuilt, then the checks across sections:
-            # the same checks as a full reload, at a cost that does not grow with the file
-            prefix = _join(parts[:1])[0]
-            section = items if index is None else items[index]
-            data = _as_data(section)
-            _assign(data, section, rest, value, path, self.source)
-            built = _build(type(section), data, prefix, self.source)
-            if index is not None:
-                built = items[:index] + (built,) + items[index + 1:]
-            new = dataclasses.replace(self, **{head: built})
-            for key, message in new.problems():
-                raise ScenarioError(message, source=self.source, key=key)
+        chain = _objects_along(self, parts)
+        if chain is not None:
+            # a plain key: check it, rebuild the objects above it and run their
+            # cross-field checks; the rest is valid already (same checks as a reload)
+            leaf, owner = parts[-1][0], chain[-1]
+            f = next(f for f in schema.public_fields(type(owner)) if f.name == leaf)
+            _, tp, _ = schema.field_kind(type(owner), leaf)
+            changes = {leaf: _scalar(f, tp, value, path, self.source)}
+            for group in getattr(type(owner), "EXCLUSIVE", ()):
+                changes.update({k: None for k in group if k != leaf and leaf in group})
+            new = dataclasses.replace(owner, **changes)
+            for depth in range(len(parts) - 1, -1, -1):
+                _require_no_problems(new, ".".join(_join(parts[:depth])), self.source)
+                if depth:
+                    name, index = parts[depth - 1]
+                    parent = chain[depth - 1]
+                    if index is not None:
+                        items = getattr(parent, name)
+                        new = items[:index] + (new,) + items[index + 1:]
+                    new = dataclasses.replace(parent, **{name: new})
             return new
         data = self.to_dict()
         _assign(data, self, parts, value, path, self.source)
         return scenario_from_dict(data, source=self.source)
+
+
+def _objects_along(scenario, parts):
+    """The objects from the scenario down to the owner of a plain key, or ``None``.
+
+    ``None`` when the path leaves the sections (a missing optional section, a
+    bad index, a structured value such as the sweep's parameters): the full
+    reload then reports it.
+    """
+    chain = [scenario]
+    for depth, (name, index) in enumerate(parts):
+        node = chain[-1]
+        fields = {f.name: f for f in schema.public_fields(type(node))}
+        if name not in fields:
+            return None
+        kind, _, _ = schema.field_kind(type(node), name)
+        if depth == len(parts) - 1:
+            plain = kind == "scalar" and index is None and not fields[name].metadata.get("parser")
+            return chain if plain else None
+        child = getattr(node, name)
+        if kind == "sections" and index is not None and index < len(child):
+            child = child[index]
+        elif kind != "section" or index is not None or child is None:
+            return None
+        chain.append(child)
+    return None
 
 
 def _assign(data, owner, parts, value, path, source):
@@ -353,15 +381,7 @@ def _build(cls, data, path, source):
             if f.metadata.get("parser"):
                 values[name] = f.metadata["parser"](value, key, source)
                 continue
-            ok, converted = schema.convert_scalar(value, tp)
-            if not ok:
-                raise ScenarioError(
-                    f"{value!r} has the wrong type ({type(value).__name__}); expected "
-                    f"{schema.expectation(f, tp)}", source=source, key=key)
-            problem = schema.range_problem(f, tp, converted)
-            if problem:
-                raise ScenarioError(problem, source=source, key=key)
-            values[name] = converted
+            values[name] = _scalar(f, tp, value, key, source)
     for group in getattr(cls, "EXCLUSIVE", ()):
         given = [k for k in group if k in values and values[k] is not None]
         if len(given) != 1:
@@ -370,9 +390,26 @@ def _build(cls, data, path, source):
             raise ScenarioError(f"give exactly one of {' or '.join(group)} in {label}; "
                                 f"found {found}", source=source, key=_key(path, group[0]))
     obj = cls(**values)
+    _require_no_problems(obj, path, source)
+    return obj
+
+
+def _scalar(f, tp, value, key, source):
+    """``value`` converted to the type of field ``f``, or the error naming ``key``."""
+    ok, converted = schema.convert_scalar(value, tp)
+    if not ok:
+        raise ScenarioError(f"{value!r} has the wrong type ({type(value).__name__}); "
+                            f"expected {schema.expectation(f, tp)}", source=source, key=key)
+    problem = schema.range_problem(f, tp, converted)
+    if problem:
+        raise ScenarioError(problem, source=source, key=key)
+    return converted
+
+
+def _require_no_problems(obj, path, source):
+    """Raise the first cross-field problem of a built section (or scenario), if any."""
     for key, message in getattr(obj, "problems", lambda: ())():
         raise ScenarioError(message, source=source, key=_key(path, key))
-    return obj
 
 
 def _key(path, name):
