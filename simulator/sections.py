@@ -49,17 +49,17 @@ class PhaseNoise:
         "frequency", unit="Hz", check="nonnegative", default=0.0, high=MAX_AUXILIARY_HZ)
     floor_high_hz: float | None = param(
         "upper edge of the phase-noise floor; needed when floor_rad2_per_hz > 0",
-        unit="Hz", check="positive", default=None, high=MAX_AUXILIARY_HZ)
+        unit="Hz", check="positive", default=None, low=1e-3, high=MAX_AUXILIARY_HZ)
     peak_rad2_per_hz: float = param(
         "one-sided phase-noise density at the centre of a resonant peak (e.g. a "
         "laser relaxation oscillation); 0: none", unit="rad²/Hz", check="nonnegative",
         default=0.0, high=1.0)
     peak_frequency_hz: float | None = param(
         "centre of the phase-noise peak", unit="Hz", check="positive", default=None,
-        high=MAX_AUXILIARY_HZ)
+        low=1e-3, high=MAX_AUXILIARY_HZ)
     peak_width_hz: float | None = param(
         "full width at half maximum of the phase-noise peak", unit="Hz",
-        check="positive", default=None, high=MAX_AUXILIARY_HZ)
+        check="positive", default=None, low=1e-3, high=MAX_AUXILIARY_HZ)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
