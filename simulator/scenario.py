@@ -12,13 +12,13 @@ from a parameter path such as ``"mechanics[0].bath_temperature_k"``.
 
 import dataclasses
 import difflib
-import re
 import tomllib
 from collections.abc import Mapping
 from pathlib import Path
 
 from simulator import schema
 from simulator.errors import ScenarioError
+from simulator.paths import assign, join, leaf_paths, leaf_type, objects_along, split_path
 from simulator.schema import optional_section, required_section, section
 from simulator.sections import (  # noqa: F401 - re-exported for users of the loader
     CalibrationTone,
@@ -105,7 +105,7 @@ class Scenario:
         if path.split(".")[0] == "sweep" or dataclasses.is_dataclass(value) or isinstance(
                 value, tuple):
             yield key, f"{path!r} does not name a single scenario parameter"
-        elif _leaf_type(type(self), path, self.source) not in (int, float):
+        elif leaf_type(type(self), path, self.source) not in (int, float):
             role = "sweepable" if path == swept else "usable as the unit of a range"
             yield key, (f"{path!r} is not a numeric parameter, so it is not {role}; "
                         "expected a number such as 'drive.detuning_hz'")
@@ -120,7 +120,7 @@ class Scenario:
             prefixes = ([f"{f.name}[{i}]" for i in range(len(getattr(self, f.name)))]
                         if kind == "sections" else [f.name])
             for prefix in prefixes:
-                paths += _leaf_paths(cls, prefix)
+                paths += leaf_paths(cls, prefix)
         return paths
 
     def to_dict(self):
@@ -136,7 +136,7 @@ class Scenario:
     def get(self, path):
         """Value at a parameter path such as ``"mechanics[0].frequency_hz"``."""
         node = self
-        for name, index in _split_path(path, self.source):
+        for name, index in split_path(path, self.source):
             try:
                 node = getattr(node, name)
                 if index is not None:
@@ -152,8 +152,8 @@ class Scenario:
         Setting one of two exclusive keys (for example ``bath_temperature_k``)
         clears the other one.
         """
-        parts = _split_path(path, self.source)
-        chain = _objects_along(self, parts)
+        parts = split_path(path, self.source)
+        chain = objects_along(self, parts)
         if chain is not None:
             # a plain key: check it, rebuild the objects above it and run their
             # cross-field checks; the rest is valid already (same checks as a reload)
@@ -165,7 +165,7 @@ class Scenario:
                 changes.update({k: None for k in group if k != leaf and leaf in group})
             new = dataclasses.replace(owner, **changes)
             for depth in range(len(parts) - 1, -1, -1):
-                _require_no_problems(new, ".".join(_join(parts[:depth])), self.source)
+                _require_no_problems(new, ".".join(join(parts[:depth])), self.source)
                 if depth:
                     name, index = parts[depth - 1]
                     parent = chain[depth - 1]
@@ -175,103 +175,8 @@ class Scenario:
                     new = dataclasses.replace(parent, **{name: new})
             return new
         data = self.to_dict()
-        _assign(data, self, parts, value, path, self.source)
+        assign(data, self, parts, value, path, self.source)
         return scenario_from_dict(data, source=self.source)
-
-
-def _objects_along(scenario, parts):
-    """The objects from the scenario down to the owner of a plain key, or ``None``.
-
-    ``None`` when the path leaves the sections (a missing optional section, a
-    bad index, a structured value such as the sweep's parameters): the full
-    reload then reports it.
-    """
-    chain = [scenario]
-    for depth, (name, index) in enumerate(parts):
-        node = chain[-1]
-        fields = {f.name: f for f in schema.public_fields(type(node))}
-        if name not in fields:
-            return None
-        kind, _, _ = schema.field_kind(type(node), name)
-        if depth == len(parts) - 1:
-            plain = kind == "scalar" and index is None and not fields[name].metadata.get("parser")
-            return chain if plain else None
-        child = getattr(node, name)
-        if kind == "sections" and index is not None and index < len(child):
-            child = child[index]
-        elif kind != "section" or index is not None or child is None:
-            return None
-        chain.append(child)
-    return None
-
-
-def _assign(data, owner, parts, value, path, source):
-    """Set ``value`` at ``parts`` in plain ``data`` (of the object ``owner``), in place.
-
-    Setting one key of an exclusive pair removes the other.
-    """
-    *parents, (leaf, leaf_index) = parts
-    node = data
-    for name, index in parents:
-        if name not in node:
-            node[name] = {}
-        try:
-            node = node[name] if index is None else node[name][index]
-        except (KeyError, IndexError, TypeError):
-            raise ScenarioError(f"no parameter at path {path!r}", source=source,
-                                key=path) from None
-    if leaf_index is not None or not isinstance(node, dict):
-        raise ScenarioError(f"path {path!r} does not name a single parameter",
-                            source=source, key=path)
-    node[leaf] = value
-    for name, index in parents:
-        owner = getattr(owner, name, None)
-        owner = owner[index] if index is not None and owner is not None else owner
-    for group in getattr(type(owner), "EXCLUSIVE", ()):
-        if leaf in group:
-            for other in group:
-                if other != leaf:
-                    node.pop(other, None)
-
-
-def _join(parts):
-    return [name if index is None else f"{name}[{index}]" for name, index in parts]
-
-
-_PATH_PART = re.compile(r"^([A-Za-z_][A-Za-z0-9_]*)(?:\[(\d+)\])?$")
-
-
-def _split_path(path, source):
-    parts = []
-    for token in str(path).split("."):
-        match = _PATH_PART.match(token)
-        if not match:
-            raise ScenarioError(
-                f"malformed parameter path {path!r}; expected names joined by dots, "
-                "with [index] after an array of tables, e.g. 'mechanics[0].frequency_hz'",
-                source=source, key=str(path))
-        index = match.group(2)
-        parts.append((match.group(1), None if index is None else int(index)))
-    return parts
-
-
-def _leaf_type(cls, path, source):
-    """Scalar type (``float``, ``int``, ``str``, ``bool``) of the key at ``path``."""
-    for name, _ in _split_path(path, source):
-        _, cls, _ = schema.field_kind(cls, name)
-    return cls
-
-
-def _leaf_paths(cls, prefix):
-    """Paths of the scalar keys of section ``cls`` at ``prefix``, nested tables included."""
-    paths = []
-    for sub in schema.public_fields(cls):
-        kind, inner, _ = schema.field_kind(cls, sub.name)
-        if kind == "section":
-            paths += _leaf_paths(inner, f"{prefix}.{sub.name}")
-        else:
-            paths.append(f"{prefix}.{sub.name}")
-    return paths
 
 
 def _as_data(obj):
