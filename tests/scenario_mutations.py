@@ -87,10 +87,15 @@ def _nested(depth):
 
 
 def _data_mutation(rng, data):
-    """One structural or value mutation of parsed scenario data, in place."""
+    """One structural or value mutation of parsed scenario data, in place.
+
+    Rescaling a number by up to eight decades either way is the commonest
+    mutation: it mostly stays within the limits of the key, so it reaches
+    the engine with an unusual device rather than stopping at the loader.
+    """
     leaves = _leaves(data)
-    kind = rng.choice(("delete", "type", "number", "integer", "text", "sweep", "sweep",
-                       "number", "number", "extra"))
+    kind = rng.choice(("delete", "type", "number", "integer", "text", "sweep", "number",
+                       "extra", "rescale", "rescale", "rescale", "rescale"))
     if kind == "delete" and leaves:
         _delete(data, rng.choice(leaves))
     elif kind == "type" and leaves:
@@ -104,6 +109,12 @@ def _data_mutation(rng, data):
             if rng.random() < 0.3:  # scale the valid value by a large factor instead
                 value = _get(data, path) * rng.choice((1e10, 1e-10, 1e30, -1.0))
             _set(data, path, value)
+    elif kind == "rescale":  # a plausible-looking value, often still within the limits
+        paths = _numeric_paths(data)
+        if paths:
+            path = rng.choice(paths)
+            value = _get(data, path) * 10 ** rng.uniform(-8, 8)
+            _set(data, path, int(value) if isinstance(_get(data, path), int) else value)
     elif kind == "text":
         texts = [p for p in leaves if isinstance(_get(data, p), str)]
         if texts:
@@ -152,7 +163,10 @@ def mutated_case(rng, texts):
     data = copy.deepcopy(tomllib.loads(text))
     steps = rng.choice((1, 1, 1, 2, 3))
     for _ in range(steps):
-        _data_mutation(rng, data)
+        try:
+            _data_mutation(rng, data)
+        except (TypeError, AttributeError, KeyError, IndexError):
+            pass  # an earlier edit broke the structure this one expected: keep that one
     try:
         return f"{name}: {steps} edit(s)", tomli_w.dumps(data).encode("utf-8")
     except (TypeError, ValueError):  # e.g. a float TOML cannot write: keep the original

@@ -28,7 +28,7 @@ SEED = int(os.environ.get("NOISECHAIN_FUZZ_SEED", time.time_ns() % 2**32))
 IN_PROCESS_CASES = 300
 SPECTRUM_CASES = 40
 SUBPROCESS_CASES = 24
-SECONDS_PER_CASE = 20  # generous: a case that takes longer is a hang, not a slow machine
+SECONDS_PER_CASE = 60  # a hang, not a slow machine: a 10⁶-point sweep is checked in ~20 s
 
 # What a refusal must name: a key path, or the file's own defect.
 KEY = re.compile(r"(scenario|drive|cavity|mechanics|detection|electronics|digitizer|record|"

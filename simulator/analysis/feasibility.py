@@ -290,7 +290,8 @@ def asymmetry_time(system, mode=0, significance=ASYMMETRY_SIGNIFICANCE, steady=N
     state = steady.modes[mode]
     omega, width = state.effective_frequency_hz, state.effective_linewidth_hz
     theta = _lineshape_of_record(system, cal, omega, width, steady)
-    per_quantum, n = theta[4], theta[3] / theta[4]
+    with np.errstate(all="ignore"):  # no signal at all: caught below as no bound
+        per_quantum, n = theta[4], theta[3] / theta[4]
 
     def model(f, t):
         floor, centre, gamma, c_as, d = t
@@ -302,8 +303,8 @@ def asymmetry_time(system, mode=0, significance=ASYMMETRY_SIGNIFICANCE, steady=N
     half = min(200.0 * width, omega)  # the two windows must not overlap
     side = np.arange(-half, half, df)
     f = np.concatenate([-omega + side, omega + side])
-    grad = np.array([0, 0, 0, 1 / per_quantum, -n / per_quantum])  # n = c_AS/d
     with np.errstate(all="ignore"):  # a record without information gives no bound
+        grad = np.array([0, 0, 0, 1 / per_quantum, -n / per_quantum])  # n = c_AS/d
         # (∂S/S)² per 1/T-wide bin, T·df bins per grid cell: per second, Σ (∂S/S)² df
         info = fisher_information(model, theta, f, 1) * df
         try:

@@ -13,13 +13,20 @@ from a parameter path such as ``"mechanics[0].bath_temperature_k"``.
 import dataclasses
 import difflib
 import math
-import re
 import tomllib
 from collections.abc import Mapping
 from pathlib import Path
 
 from simulator.errors import ScenarioError
 from simulator.scenario import schema
+from simulator.scenario.paths import (
+    assign,
+    join,
+    leaf_paths,
+    leaf_type,
+    objects_along,
+    split_path,
+)
 from simulator.scenario.schema import optional_section, required_section, section
 from simulator.scenario.sections import (  # noqa: F401 - re-exported for users of the loader
     CalibrationTone,
@@ -104,7 +111,7 @@ class Scenario:
         if path.split(".")[0] == "sweep" or dataclasses.is_dataclass(value) or isinstance(
                 value, tuple):
             yield key, f"{path!r} does not name a single scenario parameter"
-        elif _leaf_type(type(self), path, self.source) not in (int, float):
+        elif leaf_type(type(self), path, self.source) not in (int, float):
             role = "sweepable" if path == swept else "usable as the unit of a range"
             yield key, (f"{path!r} is not a numeric parameter, so it is not {role}; "
                         "expected a number such as 'drive.detuning_hz'")
@@ -119,7 +126,7 @@ class Scenario:
             prefixes = ([f"{f.name}[{i}]" for i in range(len(getattr(self, f.name)))]
                         if kind == "sections" else [f.name])
             for prefix in prefixes:
-                paths += _leaf_paths(cls, prefix)
+                paths += leaf_paths(cls, prefix)
         return paths
 
     def to_dict(self):
@@ -135,7 +142,7 @@ class Scenario:
     def get(self, path):
         """Value at a parameter path such as ``"mechanics[0].frequency_hz"``."""
         node = self
-        for name, index in _split_path(path, self.source):
+        for name, index in split_path(path, self.source):
             try:
                 node = getattr(node, name)
                 if index is not None:
@@ -151,98 +158,31 @@ class Scenario:
         Setting one of two exclusive keys (for example ``bath_temperature_k``)
         clears the other one.
         """
-        parts = _split_path(path, self.source)
-        (head, index), rest = parts[0], parts[1:]
-        fields = {f.name for f in schema.public_fields(type(self))}
-        kind = schema.field_kind(type(self), head)[0] if head in fields else None
-        items = getattr(self, head) if head in fields else None
-        if rest and ((kind == "section" and index is None and items is not None) or (
-                kind == "sections" and index is not None and index < len(items))):
-            # only the section holding the key is rebuilt, then the checks across sections:
-            # the same checks as a full reload, at a cost that does not grow with the file
-            prefix = _join(parts[:1])[0]
-            section = items if index is None else items[index]
-            data = _as_data(section)
-            _assign(data, section, rest, value, path, self.source)
-            built = _build(type(section), data, prefix, self.source)
-            if index is not None:
-                built = items[:index] + (built,) + items[index + 1:]
-            new = dataclasses.replace(self, **{head: built})
-            for key, message in new.problems():
-                raise ScenarioError(message, source=self.source, key=key)
+        parts = split_path(path, self.source)
+        chain = objects_along(self, parts)
+        if chain is not None:
+            # a plain key: check it, rebuild the objects above it and run their
+            # cross-field checks; the rest is valid already (same checks as a reload)
+            leaf, owner = parts[-1][0], chain[-1]
+            f = next(f for f in schema.public_fields(type(owner)) if f.name == leaf)
+            _, tp, _ = schema.field_kind(type(owner), leaf)
+            changes = {leaf: _scalar(f, tp, value, path, self.source)}
+            for group in getattr(type(owner), "EXCLUSIVE", ()):
+                changes.update({k: None for k in group if k != leaf and leaf in group})
+            new = dataclasses.replace(owner, **changes)
+            for depth in range(len(parts) - 1, -1, -1):
+                _require_no_problems(new, ".".join(join(parts[:depth])), self.source)
+                if depth:
+                    name, index = parts[depth - 1]
+                    parent = chain[depth - 1]
+                    if index is not None:
+                        items = getattr(parent, name)
+                        new = items[:index] + (new,) + items[index + 1:]
+                    new = dataclasses.replace(parent, **{name: new})
             return new
         data = self.to_dict()
-        _assign(data, self, parts, value, path, self.source)
+        assign(data, self, parts, value, path, self.source)
         return scenario_from_dict(data, source=self.source)
-
-
-def _assign(data, owner, parts, value, path, source):
-    """Set ``value`` at ``parts`` in plain ``data`` (of the object ``owner``), in place.
-
-    Setting one key of an exclusive pair removes the other.
-    """
-    *parents, (leaf, leaf_index) = parts
-    node = data
-    for name, index in parents:
-        if name not in node:
-            node[name] = {}
-        try:
-            node = node[name] if index is None else node[name][index]
-        except (KeyError, IndexError, TypeError):
-            raise ScenarioError(f"no parameter at path {path!r}", source=source,
-                                key=path) from None
-    if leaf_index is not None or not isinstance(node, dict):
-        raise ScenarioError(f"path {path!r} does not name a single parameter",
-                            source=source, key=path)
-    node[leaf] = value
-    for name, index in parents:
-        owner = getattr(owner, name, None)
-        owner = owner[index] if index is not None and owner is not None else owner
-    for group in getattr(type(owner), "EXCLUSIVE", ()):
-        if leaf in group:
-            for other in group:
-                if other != leaf:
-                    node.pop(other, None)
-
-
-def _join(parts):
-    return [name if index is None else f"{name}[{index}]" for name, index in parts]
-
-
-_PATH_PART = re.compile(r"^([A-Za-z_][A-Za-z0-9_]*)(?:\[(\d+)\])?$")
-
-
-def _split_path(path, source):
-    parts = []
-    for token in str(path).split("."):
-        match = _PATH_PART.match(token)
-        if not match:
-            raise ScenarioError(
-                f"malformed parameter path {path!r}; expected names joined by dots, "
-                "with [index] after an array of tables, e.g. 'mechanics[0].frequency_hz'",
-                source=source, key=str(path))
-        index = match.group(2)
-        parts.append((match.group(1), None if index is None else int(index)))
-    return parts
-
-
-def _leaf_type(cls, path, source):
-    """Scalar type (``float``, ``int``, ``str``, ``bool``) of the key at ``path``."""
-    for name, _ in _split_path(path, source):
-        _, cls, _ = schema.field_kind(cls, name)
-    return cls
-
-
-def _leaf_paths(cls, prefix):
-    """Paths of the scalar keys of section ``cls`` at ``prefix``, nested tables included."""
-    paths = []
-    for sub in schema.public_fields(cls):
-        kind, inner, _ = schema.field_kind(cls, sub.name)
-        if kind == "section":
-            paths += _leaf_paths(inner, f"{prefix}.{sub.name}")
-        else:
-            paths.append(f"{prefix}.{sub.name}")
-    return paths
 
 
 def _as_data(obj):
@@ -352,15 +292,7 @@ def _build(cls, data, path, source):
             if f.metadata.get("parser"):
                 values[name] = f.metadata["parser"](value, key, source)
                 continue
-            ok, converted = schema.convert_scalar(value, tp)
-            if not ok:
-                raise ScenarioError(
-                    f"{value!r} has the wrong type ({type(value).__name__}); expected "
-                    f"{schema.expectation(f, tp)}", source=source, key=key)
-            problem = schema.range_problem(f, tp, converted)
-            if problem:
-                raise ScenarioError(problem, source=source, key=key)
-            values[name] = converted
+            values[name] = _scalar(f, tp, value, key, source)
     for group in getattr(cls, "EXCLUSIVE", ()):
         given = [k for k in group if k in values and values[k] is not None]
         if len(given) != 1:
@@ -369,9 +301,26 @@ def _build(cls, data, path, source):
             raise ScenarioError(f"give exactly one of {' or '.join(group)} in {label}; "
                                 f"found {found}", source=source, key=_key(path, group[0]))
     obj = cls(**values)
+    _require_no_problems(obj, path, source)
+    return obj
+
+
+def _scalar(f, tp, value, key, source):
+    """``value`` converted to the type of field ``f``, or the error naming ``key``."""
+    ok, converted = schema.convert_scalar(value, tp)
+    if not ok:
+        raise ScenarioError(f"{value!r} has the wrong type ({type(value).__name__}); "
+                            f"expected {schema.expectation(f, tp)}", source=source, key=key)
+    problem = schema.range_problem(f, tp, converted)
+    if problem:
+        raise ScenarioError(problem, source=source, key=key)
+    return converted
+
+
+def _require_no_problems(obj, path, source):
+    """Raise the first cross-field problem of a built section (or scenario), if any."""
     for key, message in getattr(obj, "problems", lambda: ())():
         raise ScenarioError(message, source=source, key=_key(path, key))
-    return obj
 
 
 def _key(path, name):

@@ -112,9 +112,10 @@ def field_kind(cls, name):
     return "scalar", tp, optional
 
 
+@functools.cache
 def public_fields(cls):
-    """The dataclass fields of ``cls`` that belong in a scenario file."""
-    return [f for f in dataclasses.fields(cls) if not f.metadata.get("internal")]
+    """The dataclass fields of ``cls`` that belong in a scenario file (a tuple)."""
+    return tuple(f for f in dataclasses.fields(cls) if not f.metadata.get("internal"))
 
 
 def expectation(f, tp):

@@ -15,6 +15,8 @@ _frozen = dataclasses.dataclass(frozen=True, kw_only=True)
 
 # Upper limit of the frequency of a noise shape, tone, filter or lock (1 THz).
 MAX_AUXILIARY_HZ = 1e12
+# Smallest non-zero drive power: about one optical photon per 6000 years.
+MIN_DRIVE_POWER_W = 1e-30
 
 
 @_frozen
@@ -49,17 +51,17 @@ class PhaseNoise:
         "frequency", unit="Hz", check="nonnegative", default=0.0, high=MAX_AUXILIARY_HZ)
     floor_high_hz: float | None = param(
         "upper edge of the phase-noise floor; needed when floor_rad2_per_hz > 0",
-        unit="Hz", check="positive", default=None, high=MAX_AUXILIARY_HZ)
+        unit="Hz", check="positive", default=None, low=1e-3, high=MAX_AUXILIARY_HZ)
     peak_rad2_per_hz: float = param(
         "one-sided phase-noise density at the centre of a resonant peak (e.g. a "
         "laser relaxation oscillation); 0: none", unit="rad²/Hz", check="nonnegative",
         default=0.0, high=1.0)
     peak_frequency_hz: float | None = param(
         "centre of the phase-noise peak", unit="Hz", check="positive", default=None,
-        high=MAX_AUXILIARY_HZ)
+        low=1e-3, high=MAX_AUXILIARY_HZ)
     peak_width_hz: float | None = param(
         "full width at half maximum of the phase-noise peak", unit="Hz",
-        check="positive", default=None, high=MAX_AUXILIARY_HZ)
+        check="positive", default=None, low=1e-3, high=MAX_AUXILIARY_HZ)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
@@ -120,8 +122,9 @@ class Drive:
     frequency_hz: float | None = param(
         "carrier frequency of the drive", unit="Hz", check="positive", default=None,
         low=3e7, high=3e15, why="radio waves to ultraviolet, the span of wavelength_m")
-    power_w: float = param("drive power arriving at the cavity's external port",
-                           unit="W", check="nonnegative", high=1e3,
+    power_w: float = param("drive power arriving at the cavity's external port; 0 (no "
+                           f"drive) or at least {MIN_DRIVE_POWER_W:g} W", unit="W",
+                           check="nonnegative", high=1e3,
                            why="1 kW, above any continuous drive a device survives")
     detuning_hz: float = param("Δ/2π = drive minus cavity frequency; red detuning is "
                                "negative; |Δ| below the drive frequency", unit="Hz",
@@ -144,6 +147,10 @@ class Drive:
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if 0 < self.power_w < MIN_DRIVE_POWER_W:
+            yield ("power_w", f"{self.power_w!r} W is a rounding error, not a drive (the "
+                   "sideband areas it gives underflow); expected 0 (no drive) or at least "
+                   f"{MIN_DRIVE_POWER_W:g} W")
         carrier = self.carrier_frequency_hz
         if not abs(self.detuning_hz) < carrier:
             yield ("detuning_hz", f"{self.detuning_hz!r} Hz puts the cavity at "
