@@ -9,11 +9,11 @@ import numpy as np
 import pytest
 import scipy.linalg
 from conftest import make_scenario, mode, scenario_with_coupling
-from hypothesis import HealthCheck, assume, given, settings
+from hypothesis import HealthCheck, assume, given, reject, settings
 from hypothesis import strategies as st
 from scipy import constants
 
-from simulator.errors import InputError, OperatingPointError
+from simulator.errors import InputError, OperatingPointError, ScenarioError
 from simulator.linear import budget, spectra
 from simulator.linear.sidebands import cavity_filter, sideband_summary
 from simulator.linear.steady_state import effective_mechanics
@@ -250,11 +250,14 @@ def _random_scenarios(draw):
                           bath_occupation=draw(st.one_of(st.just(0.0),
                                                          st.floats(1e-3, 1e3))),
                           coupling_hz=draw(st.floats(1.0, 1e3))))
-    return scenario_with_coupling(
-        g_hz=draw(st.floats(1e2, 0.5 * kappa)), linewidth_hz=kappa,
-        external_linewidth_hz=kappa * draw(st.floats(0.05, 1.0)),
-        detuning_hz=draw(st.floats(-3.0, 3.0)) * modes[0]["frequency_hz"],
-        cavity_bath_occupation=draw(st.floats(0.0, 2.0)), modes=modes)
+    try:
+        return scenario_with_coupling(
+            g_hz=draw(st.floats(1e2, 0.5 * kappa)), linewidth_hz=kappa,
+            external_linewidth_hz=kappa * draw(st.floats(0.05, 1.0)),
+            detuning_hz=draw(st.floats(-3.0, 3.0)) * modes[0]["frequency_hz"],
+            cavity_bath_occupation=draw(st.floats(0.0, 2.0)), modes=modes)
+    except ScenarioError:  # a drive beyond the loader's physical limits (over 1 kW)
+        reject()
 
 
 @settings(max_examples=20, deadline=None, suppress_health_check=[HealthCheck.too_slow])

@@ -163,10 +163,11 @@ class RecordFileWriter:
 
 
 def _counts_of(path):
-    return load_record(path).counts
+    """The counts of a record file (the samples alone: nothing else is read)."""
+    return load_record(path, samples_only=True)
 
 
-def load_record(path, *, start=0, stop=None):
+def load_record(path, *, start=0, stop=None, samples_only=False):
     """Read a record file back, with its ground truth and scenario.
 
     Parameters
@@ -175,10 +176,14 @@ def load_record(path, *, start=0, stop=None):
     start, stop : int, optional
         Read only samples [start, stop) (and the same rows of the stored
         mechanical quadratures); by default the whole record.
+    samples_only : bool
+        Return only the counts (an ndarray), after the same checks of the
+        file's layout; the mechanical quadratures and the scenario are not read.
 
     Returns
     -------
     simulator.records.generate.Record
+        Or the counts alone with ``samples_only``.
 
     Raises
     ------
@@ -205,6 +210,8 @@ def load_record(path, *, start=0, stop=None):
                              "such a file)")
         a, s, t = _checked_layout(f, path)
         counts = s[start:stop]
+        if samples_only:
+            return counts
         mech = t["mechanical_quadratures"][start:stop] if "mechanical_quadratures" in t else None
         if mech is not None and not np.isfinite(mech).all():
             raise InputError(f"record file {str(path)!r}: truth/mechanical_quadratures holds "

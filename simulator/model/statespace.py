@@ -96,19 +96,33 @@ class StateSpace:
         Notes
         -----
         Solved by the Bartels–Stewart method (scipy.linalg.solve_continuous_lyapunov)
-        twice: once as given, then in states rescaled by powers of two close to
-        the standard deviations of that first solution (an exact similarity
-        transform). States of very different size — a filter output of 10³
-        beside a laser-noise phase of 10⁻⁹ rad — otherwise lose the small
-        entries' relative precision (seen: 6·10⁻⁶ of the standard deviations),
-        because the method's error is relative to the largest entries.
+        as given and again in states rescaled by powers of two close to the
+        standard deviations of the first solution (an exact similarity
+        transform); the solution with the smaller residual relative to the
+        standard deviations, max |(A V + V Aᵀ + B N Bᵀ)_ij| / (σ_i σ_j ‖A‖), is
+        kept. States of very different size — a filter output of 10³ beside a
+        laser-noise phase of 10⁻⁹ rad — otherwise lose the small entries'
+        relative precision (seen: 6·10⁻⁶ of the standard deviations), because
+        the method's error is relative to the largest entries; where the scales
+        are alike the plain solve is usually the better one.
         """
-        first = scipy.linalg.solve_continuous_lyapunov(self.A, -self.diffusion)
+        diffusion = self.diffusion
+        first = scipy.linalg.solve_continuous_lyapunov(self.A, -diffusion)
+        first = 0.5 * (first + first.T)
         s = power_of_two_scale(first)
         b = self.B / s[:, None]
-        v = scipy.linalg.solve_continuous_lyapunov(self.A * np.outer(1.0 / s, s),
-                                                   -(b @ self.N @ b.T)) * np.outer(s, s)
-        return 0.5 * (v + v.T)
+        scaled = scipy.linalg.solve_continuous_lyapunov(self.A * np.outer(1.0 / s, s),
+                                                        -(b @ self.N @ b.T)) * np.outer(s, s)
+        scaled = 0.5 * (scaled + scaled.T)
+        sd = np.sqrt(np.clip(np.diag(first), 0.0, None))
+        sd = np.where(sd > 0, sd, 1.0)
+        norm = max(float(np.abs(self.A).max()), np.finfo(float).tiny)
+
+        def residual(v):
+            r = self.A @ v + v @ self.A.T + diffusion
+            return float(np.abs(r / np.outer(sd, sd)).max()) / norm
+
+        return scaled if residual(scaled) < residual(first) else first
 
     def transfer(self, omega, *, uncoupled=False):
         """Transfer matrix H(ω) = C (−iω − A)⁻¹ B + D from inputs to outputs.

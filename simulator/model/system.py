@@ -31,7 +31,7 @@ _CHAIN_ONLY = ("record.kind", "electronics.", "digitizer.")
 
 
 class System:
-    """A scenario built once: operating point, linear model, stability, chain, steady state.
+    """A scenario built once: operating point, linear model, stability and detection chain.
 
     Parameters
     ----------
