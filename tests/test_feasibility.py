@@ -144,3 +144,29 @@ def test_occupation_gradient_equals_differences_of_steady_states():
                       ) / (2 * h)
             assert response.occupation_derivative(path, mode) == pytest.approx(direct,
                                                                                rel=1e-5)
+
+
+def test_if_record_information_is_that_of_the_one_real_photocurrent():
+    """An "if" record is one real photocurrent r = e^{iθt}u + c.c., not its envelope's two
+    channels: its information is ½∫(∂S_r/S_r)² df over both signs of f with S_r from
+    the record's own density (the image band's noise included), here by central
+    differences of whole re-computed record spectra on a uniform grid (Whittle, Ark.
+    Mat. 2, 423 (1953); second method). With the carrier far above the lines it equals
+    the iq record's information (the same two quadratures, each at half efficiency)."""
+    from simulator.model.system import System
+    from simulator.scenario.loader import load_scenario
+
+    demo = load_scenario(REPO / "simulator" / "data" / "demo.toml")
+    iq = demo.replace("detection.intermediate_frequency_hz", 8e6)
+    real = iq.replace("record.kind", "if")
+    path = "mechanics[0].bath_temperature_k"
+    fast = fisher_matrix(real, [path])[0, 0]
+    f = np.linspace(1e3, 40e6, 200001)
+    value = real.get(path)
+    h = 1e-4 * value
+    s = System(real).chain.record_spectrum(f)
+    ds = (System(real.replace(path, value + h)).chain.record_spectrum(f)
+          - System(real.replace(path, value - h)).chain.record_spectrum(f)) / (2 * h)
+    direct = np.trapezoid((ds / s) ** 2, f)
+    assert fast == pytest.approx(direct, rel=2e-3)
+    assert fast == pytest.approx(fisher_matrix(iq, [path])[0, 0], rel=0.01)

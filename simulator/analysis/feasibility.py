@@ -52,11 +52,30 @@ def _system(item):
 
 
 def _grid(system):
-    """Two-sided angular-frequency grid resolving every resonance of the record's model."""
-    from simulator.linear.spectra import adaptive_grid
-    from simulator.model.units import angular
+    """Angular-frequency grid resolving every resonance of the record's model.
 
-    return angular(adaptive_grid(system.chain.model, points_per_decade=64))
+    Two-sided in the model's outputs; for a real record at an intermediate
+    frequency f_IF ("if"), the record's own positive frequencies: every
+    resonance g of the envelope appears at f_IF − g and, from the image band,
+    at g − f_IF.
+    """
+    from simulator.linear.spectra import adaptive_grid
+    from simulator.model.units import angular, ordinary
+
+    g = adaptive_grid(system.chain.model, points_per_decade=64)
+    if system.chain.receiver != "if":
+        return angular(g)
+    f_if = float(ordinary(system.chain.carrier_rad_s))
+    f = np.unique(np.concatenate([f_if - g, g - f_if]))
+    return angular(f[f > 0])
+
+
+def _fisher(system, paths, omega):
+    """:func:`simulator.analysis.information.fisher_blocks` for the system's own record."""
+    chain = system.chain
+    carrier = chain.carrier_rad_s if chain.receiver == "if" else None
+    return fisher_blocks(_record_model_of(system), system.scenario, paths, omega,
+                         carrier_rad_s=carrier)
 
 
 def _record_model_of(system):
@@ -84,8 +103,9 @@ def fisher_matrix(system, paths, *, frequency_hz=None):
         Scenario parameter paths, e.g. ``["mechanics[0].bath_occupation",
         "mechanics[0].coupling_hz", "detection.efficiency"]``.
     frequency_hz : ndarray, optional
-        Two-sided integration grid (Hz); default the adaptive grid of the
-        record's model.
+        Integration grid (Hz): two-sided for iq and homodyne records, the
+        record's positive frequencies for an "if" record; default the adaptive
+        grid of the record's model.
 
     Returns
     -------
@@ -100,7 +120,9 @@ def fisher_matrix(system, paths, *, frequency_hz=None):
 
         F_ij / T = ½ ∫ df tr[S⁻¹ ∂_i S S⁻¹ ∂_j S]     (f from −∞ to ∞),
 
-    (Whittle 1953). This includes everything the chain adds (amplifier
+    (Whittle 1953); for an "if" record, the one real photocurrent,
+    ½ ∫ df (∂_i S_r ∂_j S_r)/S_r² with the image band's noise in S_r. This
+    includes everything the chain adds (amplifier
     noise, electronic noise, filters, single-ended detection) and the
     correlation of the two sidebands of a heterodyne record, which a
     scalar formula over the complex I + iQ spectrum would miss.
@@ -109,7 +131,7 @@ def fisher_matrix(system, paths, *, frequency_hz=None):
 
     system = _system(system)
     omega = _grid(system) if frequency_hz is None else angular(frequency_hz)
-    return fisher_blocks(_record_model_of(system), system.scenario, [tuple(paths)], omega)[0]
+    return _fisher(system, [tuple(paths)], omega)[0]
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -176,7 +198,7 @@ def occupation_bounds(system, modes=None, paths=None):
     paths = [default_paths(scenario, j) for j in modes] if paths is None else paths
     if not paths:
         return []
-    fishers = fisher_blocks(_record_model_of(system), scenario, paths, _grid(system))
+    fishers = _fisher(system, paths, _grid(system))
     response = _CovarianceResponse(system)
     bounds = []
     for mode, group, fisher in zip(modes, paths, fishers, strict=True):

@@ -59,7 +59,7 @@ def derivative(evaluate, scenario, path):
     return (evaluate(up) - evaluate(down)) / span
 
 
-def fisher_blocks(model_of, scenario, groups, omega):
+def fisher_blocks(model_of, scenario, groups, omega, *, carrier_rad_s=None):
     """Fisher information per unit time for each group of parameter paths.
 
     Parameters
@@ -71,7 +71,16 @@ def fisher_blocks(model_of, scenario, groups, omega):
         Parameter paths estimated jointly; a path shared by several groups is
         differentiated once.
     omega : ndarray
-        Two-sided angular-frequency grid (rad/s).
+        Two-sided angular-frequency grid (rad/s) of the model's outputs; with
+        ``carrier_rad_s``, the record's positive angular frequencies.
+    carrier_rad_s : float, optional
+        For a real record at an intermediate frequency θ (the "if" receiver):
+        the model's two outputs are the envelope u of r = e^{iθt}u + e^{−iθt}u*,
+        whose density is S_r(ω) = c S_u(θ − ω) c† + c S_u(θ + ω) c†,
+        c = (1, i) (:meth:`simulator.model.chain.DetectionChain.record_spectrum`).
+        The information is then that of the one real record,
+        ½∫(∂S_r/S_r)² df over both signs of f = ∫ over f > 0: the envelope's
+        two channels are not both observed, and the image band's noise counts.
 
     Returns
     -------
@@ -93,16 +102,36 @@ def fisher_blocks(model_of, scenario, groups, omega):
     out = [np.zeros((len(g), len(g))) for g in groups]
     for start in range(0, omega.size, _CHUNK):
         w = omega[start:start + _CHUNK]
+        weight = weights[start:start + _CHUNK]
+        if carrier_rad_s is not None:
+            x = _real_record_changes(base, res, entries, changes, carrier_rad_s, w)
+            for matrix, group in zip(out, groups, strict=True):
+                xs = x[[where[p] for p in group]]
+                # ∫_{f>0} (∂S_r/S_r)_i (∂S_r/S_r)_j df = ½ over both signs of f
+                matrix += np.einsum("iw,jw,w->ij", xs, xs, weight)
+            continue
         pieces = _Pieces(base, res, w) if entries else None
         s = pieces.s if pieces else base.output_spectrum(w)
         x = np.linalg.inv(s) @ _spectral_changes(pieces, entries, changes, w,
                                                  len(base.outputs))
-        weight = weights[start:start + _CHUNK]
         for matrix, group in zip(out, groups, strict=True):
             xs = x[[where[p] for p in group]]
             # ½ Σ_w weight · tr(X_i X_j), X = S⁻¹ ∂S
             matrix += 0.5 * np.einsum("iwab,jwba,w->ij", xs, xs, weight, optimize=True).real
     return out
+
+
+def _real_record_changes(base, res, entries, changes, carrier, w):
+    """∂S_r/S_r of the real "if" record at angular frequencies ``w``, (parameters, w)."""
+    c = np.array([1.0, 1.0j])
+    s_r, ds_r = 0.0, 0.0
+    for band in (carrier - w, carrier + w):
+        pieces = _Pieces(base, res, band) if entries else None
+        s = pieces.s if pieces else base.output_spectrum(band)
+        ds = _spectral_changes(pieces, entries, changes, band, len(base.outputs))
+        s_r = s_r + np.einsum("i,wij,j->w", c, s, c.conj()).real
+        ds_r = ds_r + np.einsum("i,kwij,j->kw", c, ds, c.conj()).real
+    return ds_r / s_r
 
 
 class _Pieces:
