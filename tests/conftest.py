@@ -140,11 +140,21 @@ def mode(name="m0", *, frequency_hz=20e6, linewidth_hz=10.0, coupling_hz=100.0,
                        "bath_temperature_k": bath_temperature_k})
 
 
+SWEEP_BASE = (REPO / "tests" / "data" / "sweep_base.toml").read_text()
+CLI_ENV = dict(os.environ, PYTHONPATH=str(REPO))  # a subprocess imports this checkout
+
+
+def detuning_sweep(points):
+    """:data:`SWEEP_BASE` with a detuning sweep of ``points`` values, as TOML text."""
+    axis = (f'{{ start = -1.9, stop = -0.1, num = {points}, '
+            'unit = "mechanics[0].frequency_hz" }')
+    return SWEEP_BASE + f'\n[sweep]\n[sweep.parameters]\n"drive.detuning_hz" = {axis}\n'
+
+
 def run_cli(*args, cwd=None):
     """Run ``python -m simulator ARGS`` in a fresh interpreter; CompletedProcess."""
-    env = dict(os.environ, PYTHONPATH=str(REPO))
     return subprocess.run([sys.executable, "-m", "simulator", *map(str, args)],
-                          capture_output=True, text=True, cwd=cwd or REPO, env=env,
+                          capture_output=True, text=True, cwd=cwd or REPO, env=CLI_ENV,
                           timeout=120)
 
 

@@ -83,18 +83,23 @@ def write_cases(folder, count, seed):
     return paths
 
 
+def run_case(argv, what, path):
+    """Run one command line in process and check its outcome; ``what`` names the case."""
+    try:
+        status, out, err = run_in_process(argv)
+    except Hang:
+        pytest.fail(f"{what}: no answer within {SECONDS_PER_CASE} s")
+    except BaseException as exc:  # noqa: BLE001 - report which case escaped
+        raise AssertionError(f"{what}: {type(exc).__name__} escaped the command "
+                             f"line:\n{path.read_bytes()[:2000]!r}") from exc
+    check_outcome(status, out, err, what)
+
+
 def test_check_and_inspect_survive_mutated_scenarios(tmp_path):
     for description, path in write_cases(tmp_path, IN_PROCESS_CASES, SEED):
         for argv in (["check", str(path)], ["inspect", "--json", str(path)]):
             what = f"seed {SEED}, {' '.join(argv[:-1])} {path.name} ({description})"
-            try:
-                status, out, err = run_in_process(argv)
-            except Hang:
-                pytest.fail(f"{what}: no answer within {SECONDS_PER_CASE} s")
-            except BaseException as exc:  # noqa: BLE001 - report which case escaped
-                raise AssertionError(f"{what}: {type(exc).__name__} escaped the command "
-                                     f"line:\n{path.read_bytes()[:2000]!r}") from exc
-            check_outcome(status, out, err, what)
+            run_case(argv, what, path)
 
 
 def test_spectrum_and_record_survive_mutated_scenarios(tmp_path):
@@ -104,15 +109,7 @@ def test_spectrum_and_record_survive_mutated_scenarios(tmp_path):
         if i % 8 == 0:  # a record is costlier: a few short ones
             argv = ["record", "--duration", "1e-4", "--quiet", "--out",
                     str(tmp_path / f"r{i}.h5"), str(path)]
-        what = f"seed {seed}, {argv[0]} {path.name} ({description})"
-        try:
-            status, out, err = run_in_process(argv)
-        except Hang:
-            pytest.fail(f"{what}: no answer within {SECONDS_PER_CASE} s")
-        except BaseException as exc:  # noqa: BLE001 - report which case escaped
-            raise AssertionError(f"{what}: {type(exc).__name__} escaped the command "
-                                 "line") from exc
-        check_outcome(status, out, err, what)
+        run_case(argv, f"seed {seed}, {argv[0]} {path.name} ({description})", path)
 
 
 def test_installed_command_survives_mutated_scenarios(tmp_path):

@@ -22,20 +22,14 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from conftest import DEMO, REPO
+from conftest import CLI_ENV, DEMO, REPO, SWEEP_BASE, detuning_sweep
 
 from simulator.cli import parser as cli
 from simulator.io.files import AtomicFile, FolderLock, OutputError, atomic_write_text
 from simulator.scenario.loader import parse_scenario
 from simulator.workflows.sweep import run_sweep
 
-BASE = (Path(__file__).parent / "data" / "sweep_base.toml").read_text()
-SWEEP = BASE + """
-[sweep]
-[sweep.parameters]
-"drive.detuning_hz" = { start = -1.9, stop = -0.1, num = 40, unit = "mechanics[0].frequency_hz" }
-"""
-ENV = dict(os.environ, PYTHONPATH=str(REPO))
+SWEEP = detuning_sweep(40)
 
 
 def noisechain(*args, limit_bytes=None):
@@ -44,7 +38,7 @@ def noisechain(*args, limit_bytes=None):
     def cap():
         resource.setrlimit(resource.RLIMIT_FSIZE, (limit_bytes, limit_bytes))
 
-    return subprocess.run([sys.executable, "-m", "simulator", *args], cwd=REPO, env=ENV,
+    return subprocess.run([sys.executable, "-m", "simulator", *args], cwd=REPO, env=CLI_ENV,
                           capture_output=True, text=True, timeout=120,
                           preexec_fn=cap if limit_bytes else None)
 
@@ -53,7 +47,7 @@ def test_new_files_get_the_permissions_of_the_umask(tmp_path):
     code = ("import os, sys\nos.umask(0o027)\nfrom simulator.io.files import atomic_write_text\n"
             "atomic_write_text(sys.argv[1], 'x')\n")
     subprocess.run([sys.executable, "-c", code, str(tmp_path / "a.txt")], check=True,
-                   cwd=REPO, env=ENV)
+                   cwd=REPO, env=CLI_ENV)
     assert (tmp_path / "a.txt").stat().st_mode & 0o777 == 0o640
 
 
@@ -118,7 +112,7 @@ def test_files_beyond_the_file_size_limit_are_a_clean_error(tmp_path, args, name
 @pytest.mark.parametrize("workers", ["1", "2"])
 def test_sweep_with_records_beyond_the_file_size_limit_stops_cleanly(tmp_path, workers):
     scenario = tmp_path / "s.toml"
-    scenario.write_text(BASE + """
+    scenario.write_text(SWEEP_BASE + """
 [record]
 duration_s = 0.01
 [sweep]
@@ -168,7 +162,7 @@ def test_two_sweeps_into_one_folder_never_give_a_zeroed_dataset(tmp_path):
     out = tmp_path / "shared"
     runs = [subprocess.Popen([sys.executable, "-m", "simulator", "sweep", str(scenario),
                               "--out", str(out), "--workers", "1", "--quiet"], cwd=REPO,
-                             env=ENV, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
+                             env=CLI_ENV, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
                              text=True) for _ in range(2)]
     results = [(p.wait(timeout=120), p.stderr.read()) for p in runs]
     assert any(status == 0 for status, _ in results), results
@@ -209,7 +203,7 @@ def test_run_into_its_own_folder_again_replaces_what_it_wrote(tmp_path):
     """`make demo` twice: the run owns its folder, so the second replaces its
     files (the same numbers) and is not refused."""
     scenario = tmp_path / "s.toml"
-    scenario.write_text(BASE)
+    scenario.write_text(SWEEP_BASE)
     out = tmp_path / "out"
     assert cli.main(["run", str(scenario), "--out", str(out), "--quiet"]) == 0
     inspected = (out / "inspect.json").read_text()

@@ -12,22 +12,16 @@ import time
 from pathlib import Path
 
 import pytest
-from conftest import DEMO, REPO
+from conftest import CLI_ENV, DEMO, REPO, detuning_sweep
 
 from simulator.io.files import HOST
 
-BASE = (Path(__file__).parent / "data" / "sweep_base.toml").read_text()
-LONG_SWEEP = BASE + """
-[sweep]
-[sweep.parameters]
-"drive.detuning_hz" = { start = -1.9, stop = -0.1, num = 400, unit = "mechanics[0].frequency_hz" }
-"""
-ENV = dict(os.environ, PYTHONPATH=str(REPO))
+LONG_SWEEP = detuning_sweep(400)
 
 
 def start(*args, **kwargs):
     """``noisechain ARGS`` in a subprocess of this worktree's package."""
-    return subprocess.Popen([sys.executable, "-m", "simulator", *args], cwd=REPO, env=ENV,
+    return subprocess.Popen([sys.executable, "-m", "simulator", *args], cwd=REPO, env=CLI_ENV,
                             stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, **kwargs)
 
 
@@ -89,7 +83,7 @@ def test_killed_record_leaves_a_part_file_that_the_next_run_removes(tmp_path):
     live.write_bytes(b"")
     done = subprocess.run([sys.executable, "-m", "simulator", "record", str(DEMO), "--out",
                            str(tmp_path / "b.h5"), "--duration", "0.001", "--quiet"],
-                          cwd=REPO, env=ENV, capture_output=True, text=True)
+                          cwd=REPO, env=CLI_ENV, capture_output=True, text=True)
     assert done.returncode == 0, done.stderr
     assert parts(tmp_path) == [live.name]
     assert sorted(p.name for p in tmp_path.glob("*.h5")) == ["b.h5"]
@@ -132,7 +126,7 @@ def test_output_read_by_a_pipe_that_closes_early_is_not_an_error():
     """``noisechain inspect ... | head -1``: the reader has gone before the
     output is written; the command exits 0 without a message."""
     proc = subprocess.Popen([sys.executable, "-m", "simulator", "inspect", str(DEMO)],
-                            cwd=REPO, env=ENV, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+                            cwd=REPO, env=CLI_ENV, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
     proc.stdout.close()  # no reader left: the first write fails with EPIPE
     assert proc.wait(timeout=60) == 0
     assert proc.stderr.read().decode() == ""

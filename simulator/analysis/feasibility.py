@@ -176,7 +176,7 @@ def occupation_bound(system, mode=0, paths=None):
     return occupation_bounds(system, [mode], [paths])[0]
 
 
-def occupation_bounds(system, modes=None, paths=None):
+def occupation_bounds(system, modes=None, paths=None, steady=None):
     """:func:`occupation_bound` of several modes, sharing one pass over the spectrum.
 
     Parameters
@@ -187,6 +187,8 @@ def occupation_bounds(system, modes=None, paths=None):
         Default: every mode.
     paths : sequence of sequences of str, optional
         Per mode; default :func:`default_paths`.
+    steady : SteadyState, optional
+        The system's steady state, when the caller has it already.
 
     Returns
     -------
@@ -199,7 +201,7 @@ def occupation_bounds(system, modes=None, paths=None):
     if not paths:
         return []
     fishers = _fisher(system, paths, _grid(system))
-    response = _CovarianceResponse(system)
+    response = _CovarianceResponse(system, None if steady is None else steady.covariance)
     bounds = []
     for mode, group, fisher in zip(modes, paths, fishers, strict=True):
         grad = np.array([response.occupation_derivative(path, mode) for path in group])
@@ -225,19 +227,20 @@ class _CovarianceResponse:
     for every parameter (Bartels and Stewart, Commun. ACM 15, 820 (1972)).
     """
 
-    def __init__(self, system):
+    def __init__(self, system, covariance=None):
         import scipy.linalg
 
         self.model = system.model
         self.scenario = system.scenario
-        self.v = self.model.covariance()
+        self.v = self.model.covariance() if covariance is None else covariance
         self.schur, self.basis = scipy.linalg.schur(self.model.A)
         self._dv = {}
 
     def occupation(self, mode):
         """Exact occupation n = (⟨q²⟩ + ⟨p²⟩ − 1)/2 of one mode."""
-        s = mode_states(mode).start
-        return float((self.v[s, s] + self.v[s + 1, s + 1] - 1.0) / 2.0)
+        from simulator.linear.steady_state import occupation
+
+        return occupation(self.v, mode_states(mode))
 
     def occupation_derivative(self, path, mode):
         """∂n/∂(parameter at path) of one mode."""

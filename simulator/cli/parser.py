@@ -218,4 +218,8 @@ def entry_point():
     except KeyboardInterrupt:
         print("noisechain: interrupted", file=sys.stderr)
         status = interrupt.exit_status()
+    if interrupt.requested():
+        # a stop that a library turned into another error (one raised while numba
+        # loaded its cache, say) still ends the run as stopped: 128 + the signal
+        status = interrupt.exit_status()
     sys.exit(status)

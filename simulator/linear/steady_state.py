@@ -76,20 +76,19 @@ def steady_state(system):
     system = as_system(system).require_stable()
     scenario, point, model = system.scenario, system.point, system.model
     v = model.covariance()
-    cavity_occupation = (v[0, 0] + v[1, 1] - 1.0) / 2.0
+    cavity_occupation = occupation(v, slice(0, 2))
     frequencies, linewidths = effective_mechanics(model, len(point.modes))
     kappa, delta = angular([point.cavity_linewidth_hz, point.detuning_effective_hz])
     kappa_in_fraction = 1 - point.external_linewidth_hz / point.cavity_linewidth_hz
     n_cavity_bath = kappa_in_fraction * point.cavity_bath_occupation
     modes = []
     for j, mode in enumerate(point.modes):
-        s = mode_states(j).start
         rates = dict(g=float(angular(mode.coupling_rate_hz)), kappa=kappa, detuning=delta,
                      frequency=float(angular(mode.frequency_hz)))
         a_minus, a_plus = weak_coupling.scattering_rates(**rates)
         modes.append(ModeState(
             name=mode.name,
-            occupation=float((v[s, s] + v[s + 1, s + 1] - 1.0) / 2.0),
+            occupation=occupation(v, mode_states(j)),
             effective_frequency_hz=frequencies[j], effective_linewidth_hz=linewidths[j],
             anti_stokes_rate_hz=float(ordinary(a_minus)),
             stokes_rate_hz=float(ordinary(a_plus)),
@@ -112,6 +111,15 @@ def _laser_occupation(scenario, point, mode):
         return 0.0
     share = point.external_linewidth_hz / point.cavity_linewidth_hz
     return share * float(laser_noise.input_occupation(scenario, point, mode.frequency_hz))
+
+
+def occupation(covariance, states):
+    """n = (⟨X²⟩ + ⟨Y²⟩ − 1)/2 of the quadrature pair at ``states`` (a slice of two).
+
+    Symmetrised covariance with vacuum variance ½ (docs/physics.md §1).
+    """
+    x, y = range(states.start, states.stop)
+    return float((covariance[x, x] + covariance[y, y] - 1.0) / 2.0)
 
 
 def effective_mechanics(model, n_modes):

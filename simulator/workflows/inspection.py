@@ -220,7 +220,7 @@ def _feasibility(system, steady):
     informative = [j for j, mode in enumerate(scenario.mechanics)
                    if mode.coupling_hz != 0 and scenario.drive.power_w != 0]
     out = []
-    for j, bound in zip(informative, fz.occupation_bounds(system, informative),
+    for j, bound in zip(informative, fz.occupation_bounds(system, informative, steady=steady),
                         strict=True):
         entry = {"mode": bound.mode, "occupation_error_1s": bound.error_one_second,
                  "parameters": list(bound.paths), "significance": fz.ASYMMETRY_SIGNIFICANCE,

@@ -32,6 +32,11 @@ def check():
         raise KeyboardInterrupt("stopped on request")
 
 
+def requested():
+    """True once a stop was requested (whatever became of its KeyboardInterrupt)."""
+    return _requested.is_set()
+
+
 def exit_status():
     """Exit status after a stop: 128 + the signal number."""
     return 128 + int(_signal[0])
