@@ -222,6 +222,13 @@ class Detection:
 
     scheme: str = param("detection scheme", choices=("heterodyne", "homodyne"),
                         default="heterodyne")
+    receiver: str = param(
+        "what turns the output field into the record: \"optical\", a local "
+        "oscillator beaten with it on a photodetector (photocurrent, transimpedance); "
+        "\"microwave\", an amplifier chain and an IQ mixer whose outputs are digitised "
+        "(needs electronics.amplifier_gain_db and the amplifier's added noise; no "
+        "optical local oscillator, photocurrent or transimpedance)",
+        choices=("optical", "microwave"), default="optical")
     efficiency: float = param(
         "total efficiency from the cavity port to the photocurrent (transmission "
         "losses times detector quantum efficiency)", check="fraction", default=1.0,
@@ -283,9 +290,28 @@ class Electronics:
         "microwave case: 10–20 for a cryogenic transistor amplifier), in quanta "
         "referred to its input; 0: no amplifier", check="nonnegative", default=0.0,
         high=1e6)
+    amplifier_noise_temperature_k: float | None = param(
+        "the amplifier's noise temperature T_N, instead of amplifier_added_quanta: "
+        "n_add = k_B T_N/(h f) at the drive frequency f; left out: use "
+        "amplifier_added_quanta", unit="K", check="positive", default=None, high=1e5,
+        why="hotter than any amplifier worth using")
+    amplifier_gain_db: float | None = param(
+        "power gain from the amplifier's input to the digitiser (the whole chain: "
+        "amplifiers, cables, mixer), receiver = \"microwave\" only", unit="dB",
+        check="real", default=None, low=-50.0, high=200.0,
+        why="from a lossy line to any stack of amplifiers")
+    impedance_ohm: float = param(
+        "characteristic impedance of the line and the digitiser's input, receiver "
+        "= \"microwave\" only", unit="Ω", check="positive", default=50.0, low=1e-3,
+        high=1e6)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if self.amplifier_noise_temperature_k is not None and self.amplifier_added_quanta:
+            yield ("amplifier_noise_temperature_k",
+                   f"{self.amplifier_noise_temperature_k!r} K given beside "
+                   f"amplifier_added_quanta = {self.amplifier_added_quanta!r}; expected "
+                   "one of the two (the noise temperature is the added noise in kelvin)")
         if 0.0 < self.amplifier_added_quanta < 0.5:
             yield ("amplifier_added_quanta",
                    f"{self.amplifier_added_quanta!r} is below the quantum limit of a "
