@@ -226,7 +226,11 @@ def reference_markdown(root):
         "",
         "A scenario is a TOML file with the sections below. Keys carry their unit",
         "as a suffix (`_hz`, `_w`, `_m`, `_kg`, `_k`); every frequency or rate is an",
-        "ordinary frequency in Hz, the value of ω/2π. Numbers must be finite;",
+        "ordinary frequency in Hz, the value of ω/2π. Every power key `<name>_w`",
+        "may be given as `<name>_dbm` instead (exactly one of the two; P[W] =",
+        "1 mW · 10^(P[dBm]/10)), and its dBm path works in sweeps too. A key written",
+        "in a scaled unit (`bath_temperature_mk`, `frequency_mhz`, `power_mw`) is",
+        "refused with the SI key and the converted value. Numbers must be finite;",
         "integers are accepted where a number is expected. Many keys also have",
         "physical limits, listed beside them: the span of real devices, which also",
         "keeps every number the engine derives finite; a value outside them is",
@@ -282,8 +286,10 @@ def _key_table(cls, path):
             default = "not set"
         else:
             default = f"`{_toml_literal(sub.default)}`"
-        cells = (f"`{sub.name}`", _sentence(sub.metadata["doc"]),
-                 expectation(sub, tp), default)
+        meaning = _sentence(sub.metadata["doc"])
+        if sub.metadata.get("unit") == "W":
+            meaning += f" Or `{sub.name.removesuffix('_w')}_dbm` in dBm."
+        cells = (f"`{sub.name}`", meaning, expectation(sub, tp), default)
         lines.append("| " + " | ".join(c.replace("|", "\\|") for c in cells) + " |")
     lines.append("")
     for sub, tp in nested:
