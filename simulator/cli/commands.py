@@ -42,10 +42,9 @@ def cmd_check(args):
 
 
 def _print_warnings(args, messages):
-    """Warnings on stderr, one line each, unless ``--quiet``."""
-    if not getattr(args, "quiet", False):
-        for message in messages:
-            print(f"noisechain {args.verb}: warning: {message}", file=sys.stderr)
+    """Warnings on stderr, one line each (also with ``--quiet``, which only hides progress)."""
+    for message in messages:
+        print(f"noisechain {args.verb}: warning: {message}", file=sys.stderr)
 
 
 def cmd_inspect(args):

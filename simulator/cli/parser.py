@@ -51,9 +51,9 @@ def _execution_options(p, *, dask=True):
 
 
 def _quiet_option(p):
-    """--quiet, the same on every verb: nothing on stderr but errors."""
-    p.add_argument("--quiet", action="store_true", help="no progress bars and no "
-                   "warnings on stderr (errors are still printed, and results on stdout)")
+    """--quiet, the same on every verb: no progress bars; warnings and errors stay."""
+    p.add_argument("--quiet", action="store_true", help="no progress bars (warnings, "
+                   "errors and results are still printed)")
 
 
 def _force_option(p):
