@@ -155,3 +155,16 @@ def test_a_key_in_a_scaled_unit_names_the_si_key_and_the_converted_value(section
         scenario_from_dict(data, source="<test>")
     assert advice in str(info.value), str(info.value)
     assert info.value.key.endswith(key)
+
+
+def test_a_sweep_point_over_a_dbm_path_is_the_point_in_watts():
+    from simulator.workflows.sweep import _axis_attrs, evaluate_point
+
+    s = make_scenario(sweep={"parameters": {"drive.power_dbm": [-40.0, -30.0]}})
+    text = s.to_toml()
+    in_dbm = evaluate_point(text, (("drive.power_dbm", -30.0),))
+    in_w = evaluate_point(text, (("drive.power_w", 1e-6),))
+    assert not in_dbm.get("error") and not in_w.get("error")
+    assert in_dbm["photon_number"] == pytest.approx(in_w["photon_number"], rel=1e-12)
+    (axis,) = sweep_axes(s)
+    assert _axis_attrs(axis)["units"] == "dBm"
