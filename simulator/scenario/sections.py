@@ -231,7 +231,8 @@ class Detection:
         choices=("optical", "microwave"), default="optical")
     efficiency: float = param(
         "total efficiency from the cavity port to the photocurrent (transmission "
-        "losses times detector quantum efficiency)", check="fraction", default=1.0,
+        "losses times detector quantum efficiency), or to the first amplifier's input "
+        "for a microwave receiver", check="fraction", default=1.0,
         low=1e-6, why="−60 dB; below it the record holds no signal")
     local_oscillator_power_w: float = param(
         "local-oscillator power at the detector; sets the photocurrent scale and so "
