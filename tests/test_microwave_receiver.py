@@ -155,3 +155,15 @@ def test_microwave_keys_are_refused_for_an_optical_receiver(key):
     with pytest.raises(ScenarioError, match='only with detection.receiver = "microwave"') as info:
         make_scenario(electronics={key: 40.0})
     assert info.value.key == f"electronics.{key}"
+
+
+def test_setting_the_noise_temperature_by_path_replaces_the_added_quanta():
+    # the two keys stand for one quantity: a sweep over either must work
+    drum = load_scenario(REPO / "scenarios" / "drum_microwave_mK.toml")
+    hot = drum.replace("electronics.amplifier_noise_temperature_k", 3.5)
+    assert hot.electronics.amplifier_added_quanta == 0.0
+    assert System(hot).chain.added_quanta == pytest.approx(
+        constants.k * 3.5 / (constants.h * drum.drive.carrier_frequency_hz), rel=1e-14)
+    back = hot.replace("electronics.amplifier_added_quanta", 12.0)
+    assert back == drum
+    assert scenario_from_dict(hot.to_dict()) == hot  # the same through a full reload

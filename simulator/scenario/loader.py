@@ -166,8 +166,9 @@ class Scenario:
     def replace(self, path, value):
         """New scenario with the parameter at ``path`` set to ``value``, re-validated.
 
-        Setting one of two exclusive keys (for example ``bath_temperature_k``)
-        clears the other one. A power may be set in dBm (``"drive.power_dbm"``).
+        Setting one of two exclusive or alternative keys (for example
+        ``bath_temperature_k``) clears the other one. A power may be set in
+        dBm (``"drive.power_dbm"``).
         """
         canonical, alias = self._canonical(path)
         if alias:
@@ -186,8 +187,9 @@ class Scenario:
             f = next(f for f in schema.public_fields(type(owner)) if f.name == leaf)
             _, tp, _ = schema.field_kind(type(owner), leaf)
             changes = {leaf: _scalar(f, tp, value, path, self.source)}
-            for group in getattr(type(owner), "EXCLUSIVE", ()):
-                changes.update({k: None for k in group if k != leaf and leaf in group})
+            for group in schema.alternative_groups(type(owner)):
+                changes.update({k: type(owner).__dataclass_fields__[k].default
+                                for k in group if k != leaf and leaf in group})
             new = dataclasses.replace(owner, **changes)
             for depth in range(len(parts) - 1, -1, -1):
                 _require_no_problems(new, ".".join(join(parts[:depth])), self.source)

@@ -86,6 +86,16 @@ def required_section(doc):
     return dataclasses.field(metadata={"doc": doc})
 
 
+def alternative_groups(cls):
+    """Groups of keys of section ``cls`` that stand for one quantity.
+
+    ``EXCLUSIVE`` (exactly one must be given) and ``ALTERNATIVES`` (at most one
+    may be given, the section's ``problems()`` says so); setting one key of a
+    group by path clears the others to their defaults.
+    """
+    return getattr(cls, "EXCLUSIVE", ()) + getattr(cls, "ALTERNATIVES", ())
+
+
 def is_section(tp):
     """True for a dataclass type used as a scenario section."""
     return isinstance(tp, type) and dataclasses.is_dataclass(tp)

@@ -4,7 +4,8 @@ Every field is declared with :func:`simulator.scenario.schema.param` (meaning, u
 admissible range, default), which the loader in :mod:`simulator.scenario.loader`
 walks generically and the scenario reference in ``docs/`` is generated from.
 A section may define ``EXCLUSIVE`` (groups of keys of which exactly one must
-be given) and ``problems()`` (checks across its keys).
+be given), ``ALTERNATIVES`` (groups of which at most one may be given) and
+``problems()`` (checks across its keys).
 """
 
 import dataclasses
@@ -276,6 +277,8 @@ class Detection:
 @_frozen
 class Electronics:
     """``[electronics]``: amplifier and photocurrent electronics before the digitiser."""
+
+    ALTERNATIVES = (("amplifier_added_quanta", "amplifier_noise_temperature_k"),)
 
     transimpedance_ohm: float = param(
         "transimpedance gain from photocurrent to voltage", unit="V/A",
