@@ -87,7 +87,8 @@ class DetectionChain:
     impedance_ohm : float
         Impedance Z of the microwave line and digitiser (NaN for optical).
     quantum_j : float
-        h f, the energy of one quantum at the drive frequency (J).
+        h f, the energy of one quantum at the drive frequency (J); NaN for
+        optical, whose scale is the local oscillator's.
     scale_key : str
         The scenario key that sets the volts per record unit (named when the
         record clips).

@@ -185,9 +185,10 @@ def master_equation_advice(point, occupations):
     """Advice for a nonlinear regime: the master equation, or why it cannot help.
 
     A thermal state of n quanta needs about ln(1/ε)/ln((n+1)/n) ≈ n ln(1/ε)
-    Fock levels to keep a tail ε out of the truncation; beyond the size the
-    engine handles (simulator.master.hilbert) the master equation is not
-    applicable either.
+    Fock levels to keep a tail ε out of the truncation (ε a quarter of the
+    engine's tolerance, as in simulator.master.hilbert.expected_cutoffs);
+    beyond the size the engine handles the master equation is not applicable
+    either.
     """
     from simulator.master.hilbert import DEFAULT_TOLERANCE, MAX_DIMENSION
 
