@@ -35,7 +35,16 @@ def cmd_check(args):
     modes = ", ".join(m.name for m in scenario.mechanics)
     print(f"{args.scenario}: valid scenario {scenario.scenario.name!r} "
           f"({len(scenario.mechanics)} mechanical mode(s): {modes})")
+    from simulator.scenario.plausibility import plausibility_warnings
+
+    _print_warnings(args, plausibility_warnings(scenario))
     return EXIT_OK
+
+
+def _print_warnings(args, messages):
+    """Warnings on stderr, one line each (also with ``--quiet``, which only hides progress)."""
+    for message in messages:
+        print(f"noisechain {args.verb}: warning: {message}", file=sys.stderr)
 
 
 def cmd_inspect(args):
@@ -101,6 +110,12 @@ def _require_output_file(path, allowed, option, force):
 
 def _require_writable_folder(folder, option, path):
     folder = Path(folder) if str(folder) else Path(".")
+    for above in (folder, *folder.parents):  # the nearest part of the path that exists
+        if above.exists():
+            if not above.is_dir():
+                raise InputError(f"{option} {str(path)!r}: {str(above)!r} is a file, not a "
+                                 "folder; expected a path inside an existing, writable folder")
+            break
     if not folder.is_dir() or not os.access(folder, os.W_OK | os.X_OK):
         raise InputError(f"{option} {str(path)!r}: folder {str(folder)!r} does not exist or "
                          "is not writable; expected an existing, writable folder")
@@ -206,8 +221,7 @@ def cmd_record(args):
             record = simulate_record(scenario, seed=args.seed, duration_s=args.duration,
                                      out=args.out, form=args.form, progress=not args.quiet,
                                      overwrite=args.force)
-    for warning in caught:
-        print(f"noisechain record: warning: {warning.message}", file=sys.stderr)
+    _print_warnings(args, [w.message for w in caught])
     truth = record.truth
     summary = {"out": str(Path(args.out).resolve()), "samples": record.n_samples,
                "sample_rate_hz": record.sample_rate_hz, "kind": record.kind,

@@ -46,8 +46,14 @@ def _execution_options(p, *, dask=True):
     if dask:
         p.add_argument("--dask", default=None, metavar="ADDR", help="run on Dask: 'local' "
                        "for a LocalCluster or a scheduler address tcp://host:port")
-    p.add_argument("--quiet", action="store_true", help="no progress bars")
+    _quiet_option(p)
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
+
+
+def _quiet_option(p):
+    """--quiet, the same on every verb: no progress bars; warnings and errors stay."""
+    p.add_argument("--quiet", action="store_true", help="no progress bars (warnings, "
+                   "errors and results are still printed)")
 
 
 def _force_option(p):
@@ -72,6 +78,7 @@ def build_parser():
 
     p = verbs.add_parser("check", help="validate a scenario file and nothing else")
     p.add_argument("scenario", help="scenario TOML file")
+    _quiet_option(p)
     p.set_defaults(func=cmd_check)
 
     p = verbs.add_parser("inspect", help="operating point, stability and exact steady "
@@ -85,6 +92,7 @@ def build_parser():
     p.add_argument("--no-feasibility", action="store_true", help="leave out the "
                    "measurement-time bounds (Fisher information), the slowest part for "
                    "scenarios with many modes")
+    _quiet_option(p)
     p.set_defaults(func=cmd_inspect)
 
     p = verbs.add_parser("sweep", help="evaluate the scenario over its [sweep] grid; "
@@ -110,6 +118,7 @@ def build_parser():
     p.add_argument("--master-model", choices=("full", "linearised"), default="full",
                    help="master-equation model for --engine master (default: %(default)s)")
     p.add_argument("--json", action="store_true", help="print one JSON object")
+    _quiet_option(p)
     p.set_defaults(func=cmd_spectrum)
 
     p = verbs.add_parser("record", help="synthetic digitised record with its ground "
@@ -130,7 +139,7 @@ def build_parser():
                    "trajectory (QuTiP; ideal iq heterodyne receiver, small systems, slow)")
     p.add_argument("--master-model", choices=("full", "linearised"), default="full",
                    help="master-equation model for --engine master (default: %(default)s)")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    _quiet_option(p)
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
     p.set_defaults(func=cmd_record)
 

@@ -28,6 +28,9 @@ Receivers (quadratures X, Y with vacuum variance ½; z = (X + iY)/√2):
 In every case the record's two-sided vacuum density is 1 per Hz (the unit
 ``shot_noise_per_count`` refers to) when the electronics add nothing.
 
+Scales (volts at the digitiser per record unit, optical or microwave) are in
+:mod:`simulator.model.scales`.
+
 References
 ----------
 Caves, Phys. Rev. D 26, 1817 (1982) (added noise of phase-preserving
@@ -38,11 +41,12 @@ Yuen and Chan, Opt. Lett. 8, 177 (1983) (balanced homodyne detection).
 import dataclasses
 
 import numpy as np
-from scipy import constants
 
 from simulator.model.laser_noise import device_eigenvalues
+from simulator.model.scales import microwave_scales, optical_scales
 from simulator.model.statespace import StateSpace
 from simulator.model.units import angular, ordinary
+from simulator.scenario.receiver import amplifier_added_quanta
 
 OVERSAMPLING = 2.5  # automatic sample rate: this many times the highest relevant frequency
 
@@ -69,9 +73,25 @@ class DetectionChain:
     electronic_noise : float
         Two-sided density of the current noise in record units, per real channel.
     amperes_per_unit : float
-        Photocurrent (A) per record unit (per channel for iq).
+        Photocurrent (A) per record unit (per channel for iq); NaN for a
+        microwave receiver, which has no photocurrent.
     volts_per_unit : float
         Voltage at the digitiser (V) per record unit.
+    lo_photocurrent_a : float
+        Mean photocurrent of the optical local oscillator (A); NaN for a
+        microwave receiver.
+    front_end : str
+        ``"optical"`` or ``"microwave"`` (``detection.receiver``).
+    power_gain : float
+        Power gain G of the microwave amplifier chain (NaN for optical).
+    impedance_ohm : float
+        Impedance Z of the microwave line and digitiser (NaN for optical).
+    quantum_j : float
+        h f, the energy of one quantum at the drive frequency (J); NaN for
+        optical, whose scale is the local oscillator's.
+    scale_key : str
+        The scenario key that sets the volts per record unit (named when the
+        record clips).
     """
 
     model: StateSpace
@@ -83,6 +103,11 @@ class DetectionChain:
     amperes_per_unit: float
     volts_per_unit: float
     lo_photocurrent_a: float
+    front_end: str = "optical"
+    power_gain: float = float("nan")
+    impedance_ohm: float = float("nan")
+    quantum_j: float = float("nan")
+    scale_key: str = "electronics.transimpedance_ohm"
 
     @property
     def record_kind(self):
@@ -177,13 +202,27 @@ class DetectionChain:
         return np.sqrt(var) * self.volts_per_unit
 
     def calibration(self):
-        """Conversion factors with their units in the key names."""
-        return {"detection_efficiency": self.efficiency,
-                "added_noise_quanta": self.added_quanta,
-                "electronic_noise_shot_noise_units": self.electronic_noise,
-                "amperes_per_shot_noise_unit": self.amperes_per_unit,
-                "volts_per_shot_noise_unit": self.volts_per_unit,
-                "local_oscillator_photocurrent_a": self.lo_photocurrent_a}
+        """Conversion factors with their units in the key names.
+
+        Optical: the photocurrent scale and the local oscillator's mean
+        photocurrent. Microwave: volts at the digitiser per record unit, the
+        power at the digitiser per hertz of bandwidth per quantum referred to
+        the amplifier's input (G h f), the gain and the impedance; no
+        photocurrent. ``added_noise_quanta`` is referred to the amplifier's
+        input (the detector's, for optical).
+        """
+        common = {"detection_efficiency": self.efficiency,
+                  "added_noise_quanta": self.added_quanta,
+                  "volts_per_shot_noise_unit": self.volts_per_unit}
+        if self.front_end == "microwave":
+            return common | {
+                "digitiser_watts_per_hz_per_quantum": self.power_gain * self.quantum_j,
+                "amplifier_power_gain": self.power_gain,
+                "amplifier_gain_db": float(10.0 * np.log10(self.power_gain)),
+                "impedance_ohm": self.impedance_ohm}
+        return common | {"electronic_noise_shot_noise_units": self.electronic_noise,
+                         "amperes_per_shot_noise_unit": self.amperes_per_unit,
+                         "local_oscillator_photocurrent_a": self.lo_photocurrent_a}
 
 
 def _project(s, c):
@@ -232,14 +271,13 @@ def detection_chain(scenario, point, model):
     receiver = receiver_of(scenario)
     share = 1.0 if det.balanced else 0.5
     eta = det.efficiency * share
-    added = el.amplifier_added_quanta
+    added = amplifier_added_quanta(scenario)
     if receiver == "iq" and added == 0.0:
         added = 0.5
     side = 1.0 if det.local_oscillator_side == "above" else -1.0
-    f_lo = scenario.drive.carrier_frequency_hz + side * det.intermediate_frequency_hz
-    flux = det.efficiency * det.local_oscillator_power_w / (constants.h * f_lo)
-    amps = constants.e * np.sqrt(share * flux)
-    electronic = el.current_noise_a_per_sqrt_hz ** 2 / 2.0 / amps ** 2
+    scales = (microwave_scales(scenario, receiver) if det.receiver == "microwave"
+              else optical_scales(scenario, share, side))
+    electronic = scales.pop("electronic")
 
     builder = _Builder(model)
     x_d = builder.detected(np.sqrt(eta))
@@ -265,9 +303,7 @@ def detection_chain(scenario, point, model):
     chain_model = builder.finish(channels, names, el.bandwidth_hz, theta)
     return DetectionChain(model=chain_model, receiver=receiver, carrier_rad_s=theta,
                           efficiency=eta, added_quanta=added, electronic_noise=electronic,
-                          amperes_per_unit=float(amps),
-                          volts_per_unit=float(amps * el.transimpedance_ohm),
-                          lo_photocurrent_a=float(constants.e * flux))
+                          **scales)
 
 
 class _Builder:

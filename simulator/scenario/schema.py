@@ -86,6 +86,16 @@ def required_section(doc):
     return dataclasses.field(metadata={"doc": doc})
 
 
+def alternative_groups(cls):
+    """Groups of keys of section ``cls`` that stand for one quantity.
+
+    ``EXCLUSIVE`` (exactly one must be given) and ``ALTERNATIVES`` (at most one
+    may be given, the section's ``problems()`` says so); setting one key of a
+    group by path clears the others to their defaults.
+    """
+    return getattr(cls, "EXCLUSIVE", ()) + getattr(cls, "ALTERNATIVES", ())
+
+
 def is_section(tp):
     """True for a dataclass type used as a scenario section."""
     return isinstance(tp, type) and dataclasses.is_dataclass(tp)
@@ -226,7 +236,11 @@ def reference_markdown(root):
         "",
         "A scenario is a TOML file with the sections below. Keys carry their unit",
         "as a suffix (`_hz`, `_w`, `_m`, `_kg`, `_k`); every frequency or rate is an",
-        "ordinary frequency in Hz, the value of ω/2π. Numbers must be finite;",
+        "ordinary frequency in Hz, the value of ω/2π. Every power key `<name>_w`",
+        "may be given as `<name>_dbm` instead (exactly one of the two; P[W] =",
+        "1 mW · 10^(P[dBm]/10)), and its dBm path works in sweeps too. A key written",
+        "in a scaled unit (`bath_temperature_mk`, `frequency_mhz`, `power_mw`) is",
+        "refused with the SI key and the converted value. Numbers must be finite;",
         "integers are accepted where a number is expected. Many keys also have",
         "physical limits, listed beside them: the span of real devices, which also",
         "keeps every number the engine derives finite; a value outside them is",
@@ -282,8 +296,10 @@ def _key_table(cls, path):
             default = "not set"
         else:
             default = f"`{_toml_literal(sub.default)}`"
-        cells = (f"`{sub.name}`", _sentence(sub.metadata["doc"]),
-                 expectation(sub, tp), default)
+        meaning = _sentence(sub.metadata["doc"])
+        if sub.metadata.get("unit") == "W":
+            meaning += f" Or `{sub.name.removesuffix('_w')}_dbm` in dBm."
+        cells = (f"`{sub.name}`", meaning, expectation(sub, tp), default)
         lines.append("| " + " | ".join(c.replace("|", "\\|") for c in cells) + " |")
     lines.append("")
     for sub, tp in nested:
