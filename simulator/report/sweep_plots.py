@@ -100,11 +100,12 @@ def _line_panels(dataset, dim):
         values = np.where(stable[:, None], dataset[key].values, np.nan)
         for m, name in enumerate(names):
             colour = source_colour(name + THERMAL_SUFFIX, names)
-            ax.plot(x, values[:, m], "-", lw=2, color=colour,
+            ax.plot(x, values[:, m], "-", lw=3, alpha=0.6, color=colour,
                     label=f"{name}: exact (Lyapunov)" if key == "occupation" else name)
-            if key == "occupation":
+            if key == "occupation":  # drawn over the exact curve, which it mostly follows
                 ax.plot(x, dataset["weak_coupling_occupation"].values[:, m], "--", lw=1,
-                        color=colour, label=f"{name}: weak-coupling formula")
+                        color="black" if len(names) == 1 else colour,
+                        label=f"{name}: weak-coupling formula")
         log_y = _spans_decades(values)
         ax.set_yscale("log" if log_y else "linear")
         ax.set_ylim(*data_limits(values, log=log_y))
@@ -119,8 +120,10 @@ def _line_panels(dataset, dim):
     axes[-1, 0].set_xlim(*limits)
     handles, labels = axes[0, 0].get_legend_handles_labels()
     fig.legend(handles, labels, loc="outside right upper", fontsize=8, frameon=False)
-    fig.suptitle(f"{dataset.attrs.get('scenario_name', '')}: occupation along the sweep"
-                 + (f"\n{beyond}" if beyond else ""), fontsize=11)
+    fig.suptitle(f"{dataset.attrs.get('scenario_name', '')}: occupation along the sweep",
+                 x=0.02, ha="left", fontsize=11)
+    if beyond:
+        axes[0, 0].set_title(beyond, fontsize=9)
     return fig
 
 
