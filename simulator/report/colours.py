@@ -27,7 +27,7 @@ _NAMED = (
     ("intensity noise", "#d4a017"),           # gold
     ("relaxation-oscillation", "#ff7f0e"),    # orange
     ("phase-noise", "#e377c2"),               # pink
-    ("frequency noise", "#e377c2"),           # pink: the same physical source
+    ("frequency noise", "#ad1457"),           # raspberry
     ("calibration tone", "#bcbd22"),          # olive
 )
 # thermal baths of mechanical modes 0, 1, 2 ... (then repeating)

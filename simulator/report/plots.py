@@ -12,7 +12,7 @@ motion.
 
 import numpy as np
 
-from simulator.report.colours import FLOOR_COLOUR, TOTAL_COLOUR, term_style
+from simulator.report.colours import FLOOR_COLOUR, TOTAL_COLOUR, source_colour, term_style
 
 _PREFIXES = ((1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz"), (1.0, "Hz"))
 ZOOM_LINEWIDTHS = 6.0
@@ -112,7 +112,7 @@ def _overview(ax, spectrum, colours, summary):
                         **colours[name])
     for line in getattr(spectrum, "lines", ()):
         # a line is a power (density units × Hz), not a density: marked, not drawn
-        ax.axvline(line.frequency_hz / scale, color="magenta", lw=1.0, ls="-.",
+        ax.axvline(line.frequency_hz / scale, color=source_colour(line.name), lw=1.0, ls="-.",
                    label=f"{line.name}: power {line.power:.3g} (units × Hz)")
     positive = excess[excess > 1e-12]
     if positive.size:

@@ -6,10 +6,11 @@ exponential variable, χ² with 2 degrees of freedom, for a Gaussian record;
 exact for a flat spectrum, close for one that changes little across a bin):
 Bendat & Piersol, *Random Data*, 4th ed. (Wiley, 2010), Sec. 8.5.4 (section
 recalled from memory); Percival & Walden, *Spectral Analysis for Physical
-Applications* (Cambridge, 1993), Sec. 6.10. The figure draws the model's
+Applications* (Cambridge, 1993), Sec. 6.10 (from memory). The figure draws the model's
 expected periodogram — the exact density of the samples
 (:meth:`simulator.model.chain.DetectionChain.sampled_spectrum`) smoothed by the
-segment's Fejér kernel — with that band around it, and the record's
+segment's Fejér kernel (:class:`simulator.analysis.psd.WindowedExpectation`)
+— with that band around it, and the record's
 periodogram over both: about 1 bin in 20 falls outside a 95 % band when the
 record agrees with the model.
 
@@ -24,8 +25,6 @@ from simulator.report.colours import TOTAL_COLOUR
 from simulator.report.plots import ZOOM_LINEWIDTHS, save_figure, subplots, unit_of_span
 
 CONFIDENCE = 0.95  # two-sided band of the periodogram (common practice)
-KERNEL_HALF_WIDTH_BINS = 32  # Fejér kernel kept to ±32 bins (leakage beyond ≈ 0.6 %)
-KERNEL_OVERSAMPLING = 6  # model evaluated at 6 points per bin under the kernel
 MIN_ZOOM_BINS = 12  # a zoom shows at least ±12 bins
 MIN_AVERAGES = 16  # segments averaged at the least
 MAX_ZOOM_MODES = 2  # sidebands of the first two modes get a zoom each
@@ -51,27 +50,6 @@ def chi2_band(averages, confidence=CONFIDENCE):
     return chi2.ppf(tail, dof) / dof, chi2.ppf(1 - tail, dof) / dof
 
 
-def expected_periodogram(density, frequency_hz, sample_rate_hz, segment_samples):
-    """Expected unwindowed periodogram at the bins ``frequency_hz`` (equally spaced).
-
-    E[P(f)] = ∫ S(ν) F(f − ν) dν with the Fejér kernel
-    F(ν) = (N/fs)·[sinc(νN/fs)/sinc(ν/fs)]², which integrates to 1 over one
-    period fs; here kept to ±KERNEL_HALF_WIDTH_BINS bins and normalised, so
-    a flat density stays exactly flat. ``density`` is a callable giving the
-    sampled density (periodic in fs) at any frequencies.
-    """
-    f = np.asarray(frequency_hz, dtype=float)
-    n, fs = int(segment_samples), float(sample_rate_hz)
-    step = fs / n / KERNEL_OVERSAMPLING
-    m = KERNEL_HALF_WIDTH_BINS * KERNEL_OVERSAMPLING
-    offsets = np.arange(-m, m + 1) * step
-    kernel = (np.sinc(offsets * n / fs) / np.sinc(offsets / fs)) ** 2
-    kernel /= kernel.sum()
-    fine = f[0] + np.arange(-m, (f.size - 1) * KERNEL_OVERSAMPLING + m + 1) * step
-    smoothed = np.convolve(density(fine), kernel[::-1], mode="valid")
-    return smoothed[::KERNEL_OVERSAMPLING][: f.size]
-
-
 def sideband_lines(system, record):
     """(label, centre on the record's axis, linewidth) of each motional sideband shown."""
     truth = record.truth
@@ -93,28 +71,38 @@ def sideband_lines(system, record):
 def record_against_model(system, record):
     """The record's averaged periodogram and what the model expects of it.
 
-    Returns ``(psd, model, band)``: the
+    Returns ``(psd, model, expected, band)``: the
     :class:`~simulator.analysis.psd.PSDEstimate` (unwindowed segments of
-    :func:`segment_length`), a callable giving the model's density of the
-    samples in the periodogram's convention (one-sided doubled) and the
-    factors (low, high) of its :data:`CONFIDENCE` band.
+    :func:`segment_length`); the model's density of the samples in the
+    periodogram's convention (one-sided: doubled) as a callable of
+    frequency; the callable giving the expected periodogram on chosen bins
+    (that density through the segment's Fejér kernel,
+    :class:`~simulator.analysis.psd.WindowedExpectation`); and the factors
+    (low, high) of its :data:`CONFIDENCE` band.
     """
-    from simulator.analysis.psd import averaged_periodogram
+    from simulator.analysis.psd import WindowedExpectation, averaged_periodogram
 
-    fs = record.sample_rate_hz
-    psd = averaged_periodogram(record.shot_noise_units(), fs,
-                               segment_samples=segment_length(record), window="boxcar")
+    fs, segment = record.sample_rate_hz, segment_length(record)
+    psd = averaged_periodogram(record.shot_noise_units(), fs, segment_samples=segment,
+                               window="boxcar")
     factor = 2.0 if psd.sided == "one-sided" else 1.0
+    kernel = WindowedExpectation(fs, segment, "boxcar")
+
+    def density(freq):  # two-sided, as the chain gives it
+        return system.chain.sampled_spectrum(freq, fs, aliases=40)
 
     def model(freq):
-        return factor * system.chain.sampled_spectrum(freq, fs, aliases=40)
+        return factor * density(freq)
 
-    return psd, model, chi2_band(psd.averages)
+    def expected(freq):
+        return factor * kernel.at(density, freq)
+
+    return psd, model, expected, chi2_band(psd.averages)
 
 
 def plot_record_sidebands(system, record, path, *, title=None):
     """Save the figure of ``record`` against the model of ``system`` to ``path``."""
-    psd, model, band = record_against_model(system, record)
+    psd, model, expected, band = record_against_model(system, record)
     sampling = (record.sample_rate_hz, segment_length(record))
     lines = [line for line in sideband_lines(system, record)
              if psd.frequency_hz[0] < line[1] < psd.frequency_hz[-1]]
@@ -127,7 +115,7 @@ def plot_record_sidebands(system, record, path, *, title=None):
         ax.remove()
     _whole_band(top, psd, model, record)
     for ax, line in zip(axes[1:].ravel(), lines, strict=False):
-        _sideband(ax, psd, model, line, sampling, band)
+        _sideband(ax, psd, expected, line, sampling, band)
     for ax in axes[1:].ravel()[len(lines):]:
         ax.remove()
     handles, labels = (axes[1, 0] if lines else top).get_legend_handles_labels()
@@ -159,12 +147,12 @@ def _whole_band(ax, psd, model, record):
     ax.grid(alpha=0.3)
 
 
-def _sideband(ax, psd, model, line, sampling, band):
+def _sideband(ax, psd, expectation, line, sampling, band):
     label, centre, width = line
     half = max(ZOOM_LINEWIDTHS * width, MIN_ZOOM_BINS * psd.resolution_hz)
     inside = np.abs(psd.frequency_hz - centre) <= half
     f = psd.frequency_hz[inside]
-    expected = expected_periodogram(model, f, *sampling)
+    expected = expectation(f)
     scale, unit = unit_of_span(2 * half)
     x = (f - centre) / scale
     low, high = band
@@ -177,9 +165,18 @@ def _sideband(ax, psd, model, line, sampling, band):
     height = (expected.max() - floor) / floor
     outside = np.mean((psd.density[inside] < expected * low)
                       | (psd.density[inside] > expected * high))
-    resolved = "" if height > high - 1 else " — not resolved by this record"
-    ax.set_title(f"{label}\npeak/floor − 1 = {height:.3g}, band ±{(high - low) / 2:.1%}"
-                 f"{resolved}; {outside:.0%} of bins outside the band", fontsize=9)
+    half_band = (high - low) / 2
+    if height > half_band:
+        verdict = "resolved"
+    else:  # the band narrows as 1/√K: K = (z/height)² segments, z of the confidence
+        from scipy.stats import norm
+
+        z = norm.ppf(0.5 + CONFIDENCE / 2)
+        needed = (z / max(height, 1e-300)) ** 2 * sampling[1] / sampling[0]
+        verdict = f"not resolved bin by bin: needs ≈ {needed:.2g} s of record"
+    ax.set_title(f"{label}\npeak/floor − 1 = {height:.3g}, band ±{half_band:.0%}: {verdict}"
+                 f"\n{outside:.0%} of bins outside the band (expected {1 - CONFIDENCE:.0%})",
+                 fontsize=8.5)
     ax.set_xlabel(f"offset from {centre / 1e6:.6g} MHz ({unit})")
     ax.set_ylabel("noise power density\n(shot-noise units, linear)")
     ax.ticklabel_format(axis="y", useOffset=False)
