@@ -33,7 +33,7 @@ _NAMED = (
 # thermal baths of mechanical modes 0, 1, 2 ... (then repeating)
 _THERMAL = ("#2ca02c", "#9467bd", "#17becf", "#006d5b", "#6b4c9a")
 # sources nobody named yet
-_RESERVE = ("#8e6c8a", "#5b7e96", "#a0522d", "#4f7942", "#b8860b", "#708090")
+_RESERVE = ("#8e6c8a", "#5b7e96", "#a0522d", "#4f7942", "#b8860b", "#6a7b8c")
 
 THERMAL_SUFFIX = " thermal bath"
 _TERM_STYLES = (("imprecision × back-action", "--"), ("imprecision", ":"),
