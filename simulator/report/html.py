@@ -24,7 +24,7 @@ h2 { font-size: 1.2em; margin-top: 2em; border-bottom: 1px solid #bbb; }
 table { border-collapse: collapse; }
 th, td { border: 1px solid #ccc; padding: 0.25em 0.6em; text-align: right;
          overflow-wrap: anywhere; }
-th { max-width: 12em; } td { max-width: 40em; } td.text { text-align: left; }
+th { max-width: 12em; } td { max-width: 40em; } td.text, th.text { text-align: left; }
 th { background: #f0f0f0; } td:first-child, th:first-child { text-align: left; }
 pre { background: #f7f7f7; padding: 0.8em; overflow-x: auto; font-size: 0.85em; }
 .warn { background: #fff4e0; border-left: 4px solid #d08000; padding: 0.4em 0.8em; }
@@ -50,16 +50,22 @@ def png_tag(path, alt):
 def table(rows, header=None):
     """An HTML table from rows of cells; floats printed with 6 significant digits."""
 
+    def words(value):
+        return isinstance(value, str) and value != "—"
+
     def cell(value, tag):
         if isinstance(value, float):
             return f"<{tag}>{value:.6g}</{tag}>"
-        if isinstance(value, str) and tag == "td" and value != "—":  # words: from the left
+        if words(value) and tag == "td":  # words read from the left
             return f'<td class="text">{escape(value)}</td>'
         return f"<{tag}>{escape(value)}</{tag}>"
 
     parts = ['<div class="table"><table>']
-    if header:
-        parts.append("<tr>" + "".join(cell(h, "th") for h in header) + "</tr>")
+    if header:  # the heading of a column of words sits on the left too
+        text = [bool(rows) and all(words(r[i]) for r in rows) for i in range(len(header))]
+        parts.append("<tr>" + "".join(
+            f'<th class="text">{escape(h)}</th>' if t else cell(h, "th")
+            for h, t in zip(header, text, strict=True)) + "</tr>")
     parts += ["<tr>" + "".join(cell(c, "td") for c in row) + "</tr>" for row in rows]
     parts.append("</table></div>")
     return "\n".join(parts)

@@ -42,7 +42,7 @@ def at_a_glance(data, sidebands=(), best=()):
         "error on n after 1 s (Cramér–Rao)",
         f"time to resolve the asymmetry at {significance:g}σ (s)"]))
     if best:
-        parts.append("<p>Best operating points found:</p>" + html.table(
+        parts.append("<p>Best stable operating points found:</p>" + html.table(
             [list(row) for row in best], header=["criterion", "where", "value"]))
     notes = _notes(data)
     parts.append(html.warnings_block(notes))

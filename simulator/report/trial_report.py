@@ -26,7 +26,8 @@ def _figure(dataset, q, truth, path):
     ax.set_xlabel(q)
     ax.set_ylabel("trials")
     ax.yaxis.get_major_locator().set_params(integer=True)
-    ax.legend(fontsize=8, loc="best")
+    ax.legend(fontsize=8, loc="upper center", bbox_to_anchor=(0.5, -0.2), ncols=3,
+                  frameon=False)
     if truth is not None:
         pulls = (est[ok] - truth) / unc[ok]
         ax = axes[0, 1]
@@ -38,7 +39,8 @@ def _figure(dataset, q, truth, path):
                 label="unit normal (honest errors)")
         ax.set_xlabel("(estimate − truth) / stated uncertainty")
         ax.set_ylabel("density")
-        ax.legend(fontsize=8, loc="best")
+        ax.legend(fontsize=8, loc="upper center", bbox_to_anchor=(0.5, -0.2), ncols=3,
+                  frameon=False)
     fig.suptitle(f"{q}: {ok.sum()} trials")
     save_figure(fig, path, overwrite=True)  # the trial's own folder
 
