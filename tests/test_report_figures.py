@@ -4,11 +4,12 @@ import numpy as np
 import pytest
 import xarray as xr
 
-from simulator.report import colours, labels
+from simulator.report import colours
 from simulator.report.plots import data_limits
 from simulator.report.record_plots import chi2_band
 from simulator.report.summary import best_sweep_points, coord_label
 from simulator.report.sweep_plots import cell_edges, plot_occupation, plot_stability
+from simulator.scenario import labels
 
 
 def test_scenario_paths_read_as_quantities_with_units():

@@ -13,7 +13,7 @@ it.
 import numpy as np
 
 from simulator.report import html
-from simulator.report.labels import axis_label
+from simulator.scenario.labels import axis_label
 
 
 def at_a_glance(data, sidebands=(), best=()):
@@ -26,7 +26,7 @@ def at_a_glance(data, sidebands=(), best=()):
     sidebands : sequence of simulator.linear.sidebands.SidebandSummary
     best : sequence of (what, where, value)
         Best operating points found by a sweep or planner; "where" names the
-        parameters in words (see :mod:`simulator.report.labels`).
+        parameters in words (see :mod:`simulator.scenario.labels`).
     """
     parts = [f"<p><strong>{html.escape(_verdict(data))}</strong></p>"]
     ratio = {s.mode: s.occupation_from_ratio for s in sidebands}

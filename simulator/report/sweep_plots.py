@@ -7,7 +7,7 @@ it named in the title); with two or more, maps over the first two dimensions
 (further dimensions at their first value, said in the title), cells bounded
 at the mid-points between swept values — geometric mid-points on a
 logarithmic axis, so every cell covers only values around the one simulated.
-Axes are named in words with units (:mod:`simulator.report.labels`); a
+Axes are named in words with units (:mod:`simulator.scenario.labels`); a
 vertical axis is logarithmic only where the values span decades; each mode
 keeps the colour of its thermal bath in the spectrum figures
 (:mod:`simulator.report.colours`); legends sit outside the data.
