@@ -30,6 +30,7 @@ MIN_AVERAGES = 16  # segments averaged at the least
 MAX_ZOOM_MODES = 2  # sidebands of the first two modes get a zoom each
 RECORD_COLOUR = "#3b75af"  # measured (synthetic) data, apart from every noise source
 LINEAR_SPAN = 30.0  # a model spanning less than this factor is drawn on a linear axis
+FIGURE_WIDTH = 12.4  # inches: two zooms side by side, or one wide
 
 
 def segment_length(record):
@@ -108,7 +109,7 @@ def plot_record_sidebands(system, record, path, *, title=None):
              if psd.frequency_hz[0] < line[1] < psd.frequency_hz[-1]]
     columns = 2 if len(lines) > 1 else 1
     rows = 1 + -(-len(lines) // columns)
-    fig, axes = subplots(rows, columns, figsize=(6.2 * columns, 3.3 * rows + 0.6),
+    fig, axes = subplots(rows, columns, figsize=(FIGURE_WIDTH, 3.3 * rows + 0.8),
                          layout="constrained", squeeze=False)
     top = fig.add_subplot(axes[0, 0].get_gridspec()[0, :])
     for ax in axes[0]:
@@ -122,9 +123,10 @@ def plot_record_sidebands(system, record, path, *, title=None):
     fig.legend(handles, labels, loc="outside lower center", ncols=3, fontsize=8,
                frameon=False)
     floor = "1" if psd.sided == "two-sided" else "2, one-sided"
+    scale, unit = unit_of_span(psd.resolution_hz)
     fig.suptitle(title or f"{system.scenario.scenario.name}: synthetic record against the "
-                 f"model ({psd.averages} averages, bins {psd.resolution_hz:.3g} Hz; shot-noise "
-                 f"units, vacuum = {floor})", x=0.02, ha="left", fontsize=10)
+                 f"model\n{psd.averages} averages, bins of {psd.resolution_hz / scale:.3g} {unit}; "
+                 f"shot-noise units, vacuum = {floor}", x=0.02, ha="left", fontsize=10)
     save_figure(fig, path, overwrite=True)  # the run's own folder
     return path
 
