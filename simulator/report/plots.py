@@ -86,14 +86,14 @@ def _zooms(summary, mode, two_sided):
     sides = [("Stokes", s.stokes, f"area n + 1 = {s.stokes.area_quanta:.4g}")] if two_sided \
         else []
     sides.append(("anti-Stokes", s.anti_stokes,
-                  f"area n = {s.anti_stokes.area_quanta:.4g}\nn from ratio = "
-                  f"{s.occupation_from_ratio:.4g}\nsteady state n = "
+                  f"area n = {s.anti_stokes.area_quanta:.4g}, n from ratio = "
+                  f"{s.occupation_from_ratio:.4g}, steady state n = "
                   f"{s.steady_state_occupation:.4g}"))
     out = []
     for name, side, text in sides:
         centre = side.frequency_hz if two_sided else abs(side.frequency_hz)
         if not two_sided:
-            name, text = "mechanical peak", f"heterodyne sideband summary:\n{text}"
+            name, text = "mechanical peak", f"from the heterodyne sideband summary: {text}"
         out.append((f"{s.mode} {name}\n{text}", centre, side.linewidth_hz))
     return out
 
@@ -155,7 +155,7 @@ def _zoom(ax, spectrum, colours, label, centre, width):
     ax.axhline(0.0, color="0.6", lw=0.8, zorder=0)
     ax.set_xlabel(f"offset from {centre / 1e6:.6g} MHz ({unit})")
     ax.set_ylabel(f"S − 1, linear scale\n({spectrum.units})")
-    ax.set_title(label.replace("\n", " · ", 1).replace("\n", ", "), fontsize=9)
+    ax.set_title(label, fontsize=9)
 
 
 def _displacement_zoom(ax, x_spec, label, centre, width):
