@@ -16,6 +16,7 @@ from simulator.report.colours import FLOOR_COLOUR, TOTAL_COLOUR, source_colour, 
 
 _PREFIXES = ((1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz"), (1.0, "Hz"))
 ZOOM_LINEWIDTHS = 6.0
+DECADES_FOR_LOG = 1.5  # values spanning more decades get a log axis (common practice)
 # standard quantum limit and zero-point motion: apart from every noise source's colour
 REFERENCE_COLOURS = ("#d35400", "#16a085", "#7f8c8d")
 
@@ -161,19 +162,29 @@ def _zoom(ax, spectrum, colours, label, centre, width):
 def _displacement_zoom(ax, x_spec, label, centre, width):
     inside, x, unit, _, _ = _window(x_spec, centre, width)
     curves = [x_spec.total[inside]]
-    ax.semilogy(x, curves[0], color=TOTAL_COLOUR, lw=2.0, label="measured, referred")
+    ax.plot(x, curves[0], color=TOTAL_COLOUR, lw=2.0, label="measured, referred")
     floor = next(iter(x_spec.contributions.values()), None)
     if floor is not None:
         curves.append(floor[inside])
-        ax.semilogy(x, curves[-1], ls="--", color=FLOOR_COLOUR, label="shot-noise imprecision")
+        ax.plot(x, curves[-1], ls="--", color=FLOOR_COLOUR, label="shot-noise imprecision")
     for (name, curve), style, colour in zip(x_spec.reference.items(), ("-.", ":", "-"),
                                             REFERENCE_COLOURS, strict=False):
         curves.append(curve[inside])
-        ax.semilogy(x, curves[-1], ls=style, lw=1.6, color=colour, label=name)
+        ax.plot(x, curves[-1], ls=style, lw=1.6, color=colour, label=name)
     ax.set_xlabel(f"offset from {centre / 1e6:.6g} MHz ({unit})")
     ax.set_ylabel(f"{x_spec.sided} density\n({x_spec.units.replace('^2', '²')})")
     ax.set_title(f"{label.splitlines()[0]}: referred to displacement", fontsize=9)
-    ax.set_ylim(*data_limits(np.concatenate(curves), log=True))
+    values = np.concatenate(curves)
+    log = spans_decades(values)
+    ax.set_yscale("log" if log else "linear")
+    ax.set_ylim(*data_limits(values, log=log))
+
+
+def spans_decades(values):
+    """Whether the positive finite ``values`` span more than DECADES_FOR_LOG decades."""
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v) & (v > 0)]
+    return v.size > 1 and np.log10(v.max() / v.min()) > DECADES_FOR_LOG
 
 
 def data_limits(values, *, log, margin=0.05):

@@ -16,10 +16,9 @@ keeps the colour of its thermal bath in the spectrum figures
 import numpy as np
 
 from simulator.report.colours import THERMAL_SUFFIX, source_colour
-from simulator.report.plots import data_limits, save_figure, subplots
+from simulator.report.plots import data_limits, save_figure, spans_decades, subplots
 from simulator.report.summary import coord_label
 
-DECADES_FOR_LOG = 1.5  # values spanning more than 1.5 decades get a log axis
 _CLASSES = (("stable", "#4c9f70"), ("bistable (stable branch)", "#e0b040"),
             ("unstable", "#c0392b"))
 
@@ -53,12 +52,6 @@ def cell_edges(values, log=False):
     mid = (t[1:] + t[:-1]) / 2
     edges = np.concatenate([[t[0] - (mid[0] - t[0])], mid, [t[-1] + (t[-1] - mid[-1])]])
     return np.exp(edges) if log else edges
-
-
-def _spans_decades(values):
-    v = np.asarray(values, dtype=float)
-    v = v[np.isfinite(v) & (v > 0)]
-    return v.size > 1 and np.log10(v.max() / v.min()) > DECADES_FOR_LOG
 
 
 def _reduce(dataset, keep):
@@ -106,7 +99,7 @@ def _line_panels(dataset, dim):
                 ax.plot(x, dataset["weak_coupling_occupation"].values[:, m], "--", lw=1,
                         color="black" if len(names) == 1 else colour,
                         label=f"{name}: weak-coupling formula")
-        log_y = _spans_decades(values)
+        log_y = spans_decades(values)
         ax.set_yscale("log" if log_y else "linear")
         ax.set_ylim(*data_limits(values, log=log_y))
         if key == "sideband_ratio":
@@ -138,7 +131,7 @@ def _map_panels(dataset, dims):
     for ax, (key, label) in zip(axes[0], panels, strict=True):
         values = np.where(sub["stable"].values == 1, sub[key].values[..., 0], np.nan)
         norm = None
-        if _spans_decades(values):
+        if spans_decades(values):
             from matplotlib.colors import LogNorm
 
             finite = values[np.isfinite(values) & (values > 0)]
