@@ -126,3 +126,15 @@ def test_record_periodogram_falls_in_its_band_as_often_as_stated():
     outside = (psd.density[inside] < low * expected) | (psd.density[inside] > high * expected)
     assert 0.05 - 0.021 < outside.mean() < 0.05 + 0.021
     assert expected.max() > 2.0  # the line is in the window
+
+
+def test_line_plots_span_the_stable_range_and_name_what_they_leave_out():
+    from simulator.report.sweep_plots import _stable_window
+
+    x = np.linspace(-2.0, 2.0, 9)
+    stable = x < 0.2  # the demo's pattern: unstable on the blue side
+    (low, high), note = _stable_window(x, stable, False, "drive detuning Δ / Ωm")
+    assert (low, high) == pytest.approx((-2.25, 0.25))
+    assert note == "unstable for drive detuning Δ / Ωm above 0 (not shown)"
+    (low, high), note = _stable_window(x, np.ones(9, bool), False, "Δ")
+    assert (low, high, note) == pytest.approx((-2.25, 2.25, ""))

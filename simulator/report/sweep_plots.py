@@ -96,7 +96,8 @@ def _line_panels(dataset, dim):
             ax.plot(x, values[:, m], "-", lw=3, alpha=0.6, color=colour,
                     label=f"{name}: exact (Lyapunov)" if key == "occupation" else name)
             if key == "occupation":  # drawn over the exact curve, which it mostly follows
-                ax.plot(x, dataset["weak_coupling_occupation"].values[:, m], "--", lw=1,
+                weak = np.where(stable, dataset["weak_coupling_occupation"].values[:, m], np.nan)
+                ax.plot(x, weak, "--", lw=1,
                         color="black" if len(names) == 1 else colour,
                         label=f"{name}: weak-coupling formula")
         log_y = spans_decades(values)
