@@ -14,17 +14,11 @@ import warnings
 
 import numpy as np
 import pytest
-
 from periodic_linear import (
     optomechanical_diffusion,
     optomechanical_drift,
     periodic_covariance,
 )
-from simulator.errors import ScenarioError
-from simulator.model import tone_validity
-from simulator.model.system import System
-from simulator.model.units import angular
-from simulator.scenario.loader import parse_scenario
 from tone_scenarios import (
     KAPPA_HZ,
     OMEGA_HZ,
@@ -35,6 +29,12 @@ from tone_scenarios import (
     second_mode,
     tone_table,
 )
+
+from simulator.errors import ScenarioError
+from simulator.model import tone_validity
+from simulator.model.system import System
+from simulator.model.units import angular
+from simulator.scenario.loader import parse_scenario
 
 
 def exact_periodic(system, *, average=True):
