@@ -35,6 +35,9 @@ from simulator.model.units import angular
 # near w.
 REFUSE_WIDTHS = 3.0
 WARN_WIDTHS = 30.0
+# Largest frequency excursion of a cavity mode, as a fraction of its linewidth and of
+# the tones' spacing, that the beat-driven mechanical motion may cause without a warning.
+BEAT_EXCURSION = 0.1
 
 
 class ToneSpacingWarning(UserWarning):
@@ -101,6 +104,33 @@ def spacing_margins(point):
     return out
 
 
+def beat_excursion(point, k, m):
+    """Frequency excursion (rad/s) of tone k's cavity mode from the beat of tones k and m.
+
+    The intracavity intensity of two tones on one mode holds 2√(n_k n_m) cos ω_km t;
+    it drives each mechanical mode j with the force term ṗ = 2√2 g0_j √(n_k n_m)
+    cos ω_km t, which the symmetric damping answers with
+    |q_j| = 2√2 g0_j √(n_k n_m) Ωj / |(wj/2 − iω_km)² + Ωj²| (wj the effective
+    width), and that motion moves the mode by √2 g0_j |q_j|. The static
+    operating point leaves this coherent motion out; it is negligible when the
+    excursion is small against κ and against ω_km (a weak phase modulation of
+    the mean fields).
+    """
+    a, b = point.tones[k], point.tones[m]
+    spacing = angular(abs(a.detuning_effective_hz - b.detuning_effective_hz))
+    total = 0.0
+    width = mechanical_width(point)
+    for j, mode in enumerate(point.modes):
+        if a.photon_number == 0 or b.photon_number == 0:
+            continue
+        g0 = angular(a.coupling_rates_hz[j]) / np.sqrt(a.photon_number)
+        om = angular(mode.frequency_hz)
+        amp = (2 * np.sqrt(2) * g0 * np.sqrt(a.photon_number * b.photon_number) * om
+               / abs((max(width, angular(mode.linewidth_hz)) / 2 - 1j * spacing) ** 2 + om**2))
+        total += np.sqrt(2) * g0 * amp
+    return float(total)
+
+
 def check_tone_spacings(scenario, point):
     """Refuse (ScenarioError) or warn (:class:`ToneSpacingWarning`) on tones too close to
     a combination frequency; see the module text for the condition."""
@@ -119,3 +149,13 @@ def check_tone_spacings(scenario, point):
         if ratio < WARN_WIDTHS:
             warnings.warn(text + f"; the per-tone model holds to a few per cent only beyond "
                           f"{WARN_WIDTHS:g} widths", ToneSpacingWarning, stacklevel=3)
+        kappa = angular(point.cavity_modes[point.tones[k].cavity_mode].linewidth_hz)
+        excursion = beat_excursion(point, k, m)
+        limit = BEAT_EXCURSION * min(kappa, angular(spacing))
+        if excursion > limit:
+            warnings.warn(
+                f"the intensity beat of tones {a!r} and {b!r} ({spacing:.6g} Hz) moves the "
+                f"mechanics enough to sweep their cavity mode by {excursion / (2 * np.pi):.3g} "
+                f"Hz, more than {BEAT_EXCURSION:g} of its linewidth or of the spacing "
+                f"({limit / (2 * np.pi):.3g} Hz); the static operating point leaves this "
+                "coherent motion out", ToneSpacingWarning, stacklevel=3)
