@@ -199,3 +199,15 @@ def test_unsupported_stages_refuse_with_a_message():
 
 def probe_system_text():
     return parse_scenario(scenario_text(extra=tone_table("probe", 1e3, OMEGA_HZ + 3e5)))
+
+
+@pytest.mark.parametrize("verb", [["inspect"], ["spectrum"], ["record", "--out", "r.h5"]])
+def test_command_line_refuses_several_tones_with_status_2(verb, tmp_path, capsys, monkeypatch):
+    from simulator.cli.parser import main
+
+    monkeypatch.chdir(tmp_path)
+    path = tmp_path / "two.toml"
+    path.write_text(probe_system_text().to_toml(), encoding="utf-8")
+    assert main([verb[0], str(path), *verb[1:]]) == 2
+    err = capsys.readouterr().err
+    assert "does not yet support several drive tones" in err and "Traceback" not in err
