@@ -22,19 +22,20 @@ def power_w(photons, detuning_hz, kappa_hz=KAPPA_HZ, frequency_hz=CARRIER_HZ):
 
 
 def scenario_text(*, drive_photons=1.6e5, drive_detuning_hz=-OMEGA_HZ, extra="",
-                  reference="effective", linewidth_hz=50.0, bath_occupation=100.0):
+                  reference="effective", linewidth_hz=50.0, bath_occupation=100.0,
+                  kappa_hz=KAPPA_HZ):
     """TOML of the device with its drive; ``extra`` appends further tables."""
     return f"""
 [scenario]
 name = "two-tone test device"
 [drive]
 frequency_hz = {CARRIER_HZ!r}
-power_w = {power_w(drive_photons, drive_detuning_hz)!r}
+power_w = {power_w(drive_photons, drive_detuning_hz, kappa_hz)!r}
 detuning_hz = {drive_detuning_hz!r}
 detuning_reference = "{reference}"
 [cavity]
-linewidth_hz = {KAPPA_HZ!r}
-external_linewidth_hz = {KAPPA_HZ / 2!r}
+linewidth_hz = {kappa_hz!r}
+external_linewidth_hz = {kappa_hz / 2!r}
 [[mechanics]]
 name = "drum"
 frequency_hz = {OMEGA_HZ!r}
@@ -45,13 +46,15 @@ bath_occupation = {bath_occupation!r}
 """ + extra
 
 
-def tone_table(name, photons, detuning_hz, cavity_mode="cavity"):
-    """A [[tones]] table holding ``photons`` at ``detuning_hz`` in a 200 kHz mode."""
+def tone_table(name, photons, detuning_hz, cavity_mode="cavity", *, kappa_hz=KAPPA_HZ,
+               frequency_hz=CARRIER_HZ):
+    """A [[tones]] table holding ``photons`` at ``detuning_hz`` (photon energy at
+    ``frequency_hz``) in a mode of linewidth ``kappa_hz``."""
     return f"""
 [[tones]]
 name = "{name}"
 cavity_mode = "{cavity_mode}"
-power_w = {power_w(photons, detuning_hz)!r}
+power_w = {power_w(photons, detuning_hz, kappa_hz, frequency_hz)!r}
 detuning_hz = {detuning_hz!r}
 """
 
