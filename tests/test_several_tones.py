@@ -211,3 +211,65 @@ def test_command_line_refuses_several_tones_with_status_2(verb, tmp_path, capsys
     assert main([verb[0], str(path), *verb[1:]]) == 2
     err = capsys.readouterr().err
     assert "does not yet support several drive tones" in err and "Traceback" not in err
+
+
+def test_random_tone_sets_build_or_refuse_cleanly():
+    """Random tones on two modes, bare detunings (so the shift search runs), strong and weak:
+    each builds a System whose steady state exists, or is refused with a ScenarioError or
+    an OperatingPointError (unstable); nothing else escapes (common practice: fuzzing)."""
+    import warnings
+
+    from simulator.errors import OperatingPointError
+    from simulator.model.tone_validity import ToneSpacingWarning
+
+    rng = np.random.default_rng(20261202)
+    outcomes = {"built": 0, "refused": 0, "unstable": 0}
+    for _ in range(40):
+        extra = second_mode(g0_hz=float(rng.uniform(0, 500)))
+        for k in range(int(rng.integers(1, 4))):
+            extra += tone_table(f"t{k}", float(10 ** rng.uniform(0, 6)),
+                                float(rng.uniform(-3, 3) * OMEGA_HZ),
+                                cavity_mode=str(rng.choice(["cavity", "idler"])))
+        text = scenario_text(reference="bare", drive_photons=float(10 ** rng.uniform(0, 6)),
+                             drive_detuning_hz=float(rng.uniform(-2, 1) * OMEGA_HZ), extra=extra)
+        text = text.replace("coupling_hz = 50.0", f"coupling_hz = {rng.uniform(1, 2000)!r}")
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", ToneSpacingWarning)
+                system = System(parse_scenario(text))
+                state = steady_state(system)
+            assert np.all(np.isfinite(state.covariance))
+            outcomes["built"] += 1
+        except ScenarioError:
+            outcomes["refused"] += 1
+        except OperatingPointError:
+            outcomes["unstable"] += 1
+    assert outcomes["built"] >= 10, outcomes
+
+
+def test_newton_search_with_two_independent_shifts_matches_each_modes_cubic():
+    """Two cavity modes, each coupled to its own mechanical mode (S diagonal, rank two: the
+    Newton search runs). Each mode then has the one-tone cubic of its own tone, solved by
+    simulator.model.operating_point.photon_number_branches."""
+    from simulator.model.operating_point import photon_number_branches
+
+    plate = ('[[mechanics]]\nname = "plate"\nfrequency_hz = 3e6\nlinewidth_hz = 20.0\n'
+             'effective_mass_kg = 1e-12\ncoupling_hz = 0.0\nbath_occupation = 10.0\n')
+    text = (scenario_text(reference="bare", drive_detuning_hz=-4e5, drive_photons=3e4)
+            .replace("coupling_hz = 50.0", "coupling_hz = 2000.0") + plate
+            + second_mode(g0_hz=0.0) + '[[couplings]]\ncavity_mode = "idler"\n'
+            'mechanics = "plate"\ncoupling_hz = 1500.0\n'
+            + tone_table("pump", 5e4, -3e5, cavity_mode="idler"))
+    scenario = parse_scenario(text.replace(
+        '[[couplings]]\ncavity_mode = "idler"\nmechanics = "drum"\ncoupling_hz = 0.0\n', ""))
+    s = shift_matrix(scenario)
+    assert s[0, 1] == s[1, 0] == 0 and s[0, 0] > 0 and s[1, 1] > 0
+    point = operating_point(scenario)
+    for tone in point.tones:
+        c = tone.cavity_mode
+        cav = point.cavity_modes[c]
+        k, ke, d0 = angular([cav.linewidth_hz, cav.external_linewidth_hz, tone.detuning_bare_hz])
+        branches = photon_number_branches(kappa=k, kappa_ex=ke, flux=tone.input_photon_flux,
+                                          detuning_bare=d0, shift=s[c, c])
+        assert tone.photon_number == pytest.approx(branches[0], rel=1e-8)
+        assert abs(cav.static_shift_hz) > 0.05 * KAPPA_HZ  # the shift matters
