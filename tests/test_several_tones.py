@@ -45,6 +45,8 @@ def test_tone_sections_load_and_round_trip():
     (tone_table("probe", 1e3, 7e6, cavity_mode="nowhere"), "tones[0].cavity_mode",
      "names no cavity mode"),
     (tone_table("drive", 1e3, 7e6), "tones[0].name", "already used"),
+    (second_mode(frequency_hz=1e8) + tone_table("far", 1e3, -2e8, cavity_mode="idler"),
+     "tones[0].detuning_hz", "below the mode's frequency"),
     (second_mode(name="cavity"), "cavity_modes[0].name", "already used"),
     (second_mode() + '[[couplings]]\ncavity_mode = "cavity"\nmechanics = "drum"\n'
      'coupling_hz = 1.0\n', "couplings[1].cavity_mode", "mechanics.coupling_hz"),
@@ -109,9 +111,10 @@ def test_a_silent_tone_on_another_mode_changes_nothing():
 
 # -- operating point --------------------------------------------------------------------
 
-def test_operating_point_solves_the_shared_static_shift():
+@pytest.mark.parametrize("reference", ["bare", "effective"])
+def test_operating_point_solves_the_shared_static_shift(reference):
     """Every tone's photons shift its own mode and, through the drum, the other one."""
-    text = scenario_text(reference="bare", extra=second_mode(g0_hz=80.0)
+    text = scenario_text(reference=reference, extra=second_mode(g0_hz=80.0)
                          + tone_table("probe", 4e4, 1.5e5)
                          + tone_table("pump", 2e5, -2e5, cavity_mode="idler"))
     scenario = parse_scenario(text.replace("coupling_hz = 50.0", "coupling_hz = 3000.0"))

@@ -128,6 +128,9 @@ def tone_problems(scenario):
             yield (f"cavity_modes[{i}].linewidth_hz", f"{mode.linewidth_hz!r} Hz is wider "
                    f"than the mode's frequency {mode.frequency_hz!r} Hz; expected a "
                    "resonance (linewidth below its frequency)")
+    drive = scenario.drive
+    frequency = {PRIMARY_CAVITY: drive.carrier_frequency_hz - drive.detuning_hz}
+    frequency.update({m.name: m.frequency_hz for m in scenario.cavity_modes})
     tones = [PRIMARY_TONE]
     for i, tone in enumerate(scenario.tones):
         if tone.name in tones:
@@ -137,6 +140,11 @@ def tone_problems(scenario):
         if tone.cavity_mode not in modes:
             yield (f"tones[{i}].cavity_mode", f"{tone.cavity_mode!r} names no cavity mode; "
                    f"expected one of {', '.join(map(repr, modes))}")
+        elif not abs(tone.detuning_hz) < frequency[tone.cavity_mode]:
+            yield (f"tones[{i}].detuning_hz", f"{tone.detuning_hz!r} Hz puts the tone at "
+                   f"{frequency[tone.cavity_mode] + tone.detuning_hz:.6g} Hz for a mode at "
+                   f"{frequency[tone.cavity_mode]:.6g} Hz; expected |detuning_hz| below the "
+                   "mode's frequency (the rotating-frame model assumes |Δ| ≪ its frequency)")
     mechanics, seen = [m.name for m in scenario.mechanics], set()
     for i, pair in enumerate(scenario.couplings):
         key = f"couplings[{i}]"
