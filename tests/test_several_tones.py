@@ -276,3 +276,30 @@ def test_newton_search_with_two_independent_shifts_matches_each_modes_cubic():
                                           detuning_bare=d0, shift=s[c, c])
         assert tone.photon_number == pytest.approx(branches[0], rel=1e-8)
         assert abs(cav.static_shift_hz) > 0.05 * KAPPA_HZ  # the shift matters
+
+
+def test_the_example_in_the_physics_page_loads_and_builds():
+    """The TOML example of docs/physics.md §13, added to a one-tone device, is valid and
+    its model has one field per tone."""
+    from pathlib import Path
+
+    text = Path("docs/physics.md").read_text(encoding="utf-8")
+    section = text[text.index("## 13. Several tones"):]
+    start = section.index("```toml") + len("```toml")
+    example = section[start:section.index("```", start)]
+    system = System(parse_scenario(scenario_text(drive_photons=1e4) + example))
+    assert [t.name for t in system.point.tones] == ["drive", "probe", "pump"]
+    assert system.model.states[-4:] == ("probe.X", "probe.Y", "pump.X", "pump.Y")
+    assert steady_state(system).modes[0].occupation > 0
+
+
+def test_a_strong_blue_tone_beside_a_red_drive_is_named_as_the_instability():
+    """Anti-damping from a blue probe larger than the red drive's damping plus Γm."""
+    text = scenario_text(drive_photons=1e3, extra=tone_table("probe", 1e5, OMEGA_HZ + 3e5))
+    system = System(parse_scenario(text))
+    assert not system.stable and "parametric instability on blue detuning" in \
+        system.stability.cause
+    from simulator.errors import OperatingPointError
+
+    with pytest.raises(OperatingPointError):
+        steady_state(system)
