@@ -139,15 +139,13 @@ def solve_tones(scenario):
     if scenario.drive.detuning_reference == "effective":
         n = drive_rate / (kappa[on] ** 2 / 4 + given**2)
         shift = s @ per_mode(n)
-        solutions = [(given - shift[on], shift)]
+        solutions = [(given - shift[on], shift, n)]
     else:
-        solutions = [(given, sh) for sh in _shift_solutions(s, photons, per_mode, on,
-                                                             given, kappa)]
+        solutions = [(given, sh, photons(sh)) for sh in _shift_solutions(
+            s, photons, per_mode, on, given, kappa)]
     out = []
     g0 = coupling_matrix_hz(scenario)
-    for bare, shift in solutions:
-        n = photons(shift) if scenario.drive.detuning_reference == "bare" else (
-            drive_rate / (kappa[on] ** 2 / 4 + given**2))
+    for bare, shift, n in solutions:
         tones = tuple(TonePoint(
             name=row[0], cavity_mode=int(on[k]), frequency_hz=row[2],
             input_photon_flux=float(flux[k]), photon_number=float(n[k]),
