@@ -303,3 +303,24 @@ def test_a_strong_blue_tone_beside_a_red_drive_is_named_as_the_instability():
 
     with pytest.raises(OperatingPointError):
         steady_state(system)
+
+
+@pytest.mark.parametrize("path", ["scenarios/membrane_phase_noise.toml",
+                                  "scenarios/drum_microwave_mK.toml"])
+def test_drive_noise_with_a_silent_tone_gives_the_one_tone_state(path):
+    """The drive's classical noise (laser states appended after the tone fields) reaches the
+    drive's field only; a silent tone on another mode leaves the state of the cavity and
+    the mechanics as it was."""
+    from pathlib import Path
+
+    base = load_scenario(path)
+    mode = base.mechanics[0].name
+    extra = (second_mode(frequency_hz=1e9).replace('"drum"', f'"{mode}"')
+             + tone_table("idle", 0.0, 0.0, cavity_mode="idler"))
+    system = System(parse_scenario(Path(path).read_text(encoding="utf-8") + extra))
+    one = System(base)
+    keep = [system.model.index(name) for name in one.model.states]
+    assert system.model.covariance()[np.ix_(keep, keep)] == pytest.approx(
+        one.model.covariance(), rel=1e-9, abs=1e-12)
+    assert [m.occupation for m in steady_state(system).modes] == pytest.approx(
+        [m.occupation for m in steady_state(one).modes], rel=1e-9)

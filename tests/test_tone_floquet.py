@@ -139,6 +139,7 @@ def test_spacing_check_warns_between_the_limits():
         System(probe_scenario(2 * tone_validity.WARN_WIDTHS * width))
 
 
+@pytest.mark.filterwarnings("ignore:.*mechanical widths:UserWarning")
 def test_beat_of_two_strong_tones_is_warned_and_its_excursion_is_right():
     """Two strong tones Ωm/2 apart drive the drum through their intensity beat hard enough
     to sweep the mode by more than a tenth of κ: a warning. The excursion formula is checked
