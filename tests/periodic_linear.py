@@ -48,6 +48,9 @@ def periodic_covariance(drift, diffusion, period, n_states, samples=64, average=
     y0 = np.concatenate([np.eye(n).ravel(), np.zeros(n * n)])
     end = solve_ivp(rhs, (0.0, period), y0, method="DOP853", rtol=RTOL, atol=ATOL).y[:, -1]
     phi, q = end[:n * n].reshape(n, n), end[n * n:].reshape(n, n)
+    growth = np.max(np.abs(np.linalg.eigvals(phi)))
+    if growth >= 1.0:  # an unstable periodic system has no periodic steady state
+        raise ValueError(f"Floquet multiplier of modulus {growth:.6g} ≥ 1: unstable")
     v0 = solve_discrete_lyapunov(phi, 0.5 * (q + q.T))
     times = np.linspace(0.0, period, samples + 1)
     y1 = np.concatenate([np.eye(n).ravel(), v0.ravel()])
