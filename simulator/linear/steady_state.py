@@ -52,7 +52,7 @@ class SteadyState:
 
     states: tuple
     covariance: np.ndarray  # symmetrised, vacuum = ½·identity
-    cavity_occupation: float
+    cavity_occupation: float  # of the drive's field (with several tones, each has its own)
     modes: tuple  # ModeState per mechanical mode
 
 

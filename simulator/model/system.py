@@ -10,6 +10,10 @@ Steady state, spectra, sideband summary, noise budget, records, feasibility
 and the master-equation comparison all take this object; none of them
 rebuilds the operating point or the model it was handed.
 
+A scenario with several drive tones (``[[tones]]``) builds a System (operating
+point, model, stability) that the steady state takes; every other stage still
+refuses it through :func:`as_system` and :meth:`System.require_one_tone`.
+
 A System is immutable, like the scenario it holds. New ones are derived by
 path (:meth:`System.replace`); a change that cannot alter the physics (the
 record's duration or chunking, its seed) keeps the operating point and model.
