@@ -112,6 +112,7 @@ def test_same_mode_tones_fail_near_twice_the_mechanical_frequency():
     assert error > 0.03
     with pytest.raises(ScenarioError, match="mechanical widths.*from Ωm of drum \\+ Ωm of drum"):
         System(probe_scenario(0.0))
+    System(probe_scenario(0.0, probe_photons=0.0))  # a silent tone drops nothing
     # the refused configuration, computed by the reference alone: strongly squeezed
     tone_validity_refuse = tone_validity.REFUSE_WIDTHS
     try:

@@ -95,8 +95,9 @@ def spacing_margins(point):
     tones = point.tones
     for k in range(len(tones)):
         for m in range(k + 1, len(tones)):
-            if tones[k].cavity_mode != tones[m].cavity_mode:
-                continue
+            if (tones[k].cavity_mode != tones[m].cavity_mode
+                    or tones[k].photon_number == 0 or tones[m].photon_number == 0):
+                continue  # the dropped terms scale as √(n_k n_m)
             spacing = angular(abs(tones[k].detuning_effective_hz - tones[m].detuning_effective_hz))
             nu, words = min(combos, key=lambda c: abs(spacing - c[0]))
             ratio = abs(spacing - nu) / width if width > 0 else np.inf
