@@ -28,7 +28,12 @@ from simulator.scenario.paths import (
     split_path,
 )
 from simulator.scenario.receiver import receiver_problems
-from simulator.scenario.schema import optional_section, required_section, section
+from simulator.scenario.schema import (
+    optional_section,
+    optional_sections,
+    required_section,
+    section,
+)
 from simulator.scenario.sections import (  # noqa: F401 - re-exported for users of the loader
     CalibrationTone,
     Cavity,
@@ -43,6 +48,7 @@ from simulator.scenario.sections import (  # noqa: F401 - re-exported for users 
     ScenarioInfo,
 )
 from simulator.scenario.sweep_section import Sweep
+from simulator.scenario.tone_sections import CavityMode, Coupling, Tone, tone_problems
 
 _frozen = dataclasses.dataclass(frozen=True, kw_only=True)
 
@@ -56,6 +62,14 @@ class Scenario:
     cavity: Cavity = required_section("the optical or microwave mode")
     mechanics: tuple[Mechanics, ...] = required_section(
         "one table per mechanical mode")
+    cavity_modes: tuple[CavityMode, ...] = optional_sections(
+        "further cavity modes beside [cavity], one table each (see "
+        "simulator.scenario.tone_sections)")
+    tones: tuple[Tone, ...] = optional_sections(
+        "further drive tones beside [drive], one table each, on any cavity mode")
+    couplings: tuple[Coupling, ...] = optional_sections(
+        "single-photon couplings of the [[cavity_modes]] to the mechanical modes, one "
+        "table per coupled pair")
     detection: Detection = section(Detection, "how the output field is measured")
     electronics: Electronics = section(
         Electronics, "amplifier and photocurrent electronics before the digitiser")
@@ -74,6 +88,7 @@ class Scenario:
                 yield (f"mechanics[{i}].name",
                        f"{mode.name!r} is used by an earlier mode; expected unique names")
             seen.add(mode.name)
+        yield from tone_problems(self)
         yield from self._chain_problems()
         yield from self._local_oscillator_problems()
         yield from receiver_problems(self)
@@ -213,8 +228,8 @@ def _as_data(obj):
         nested = not isinstance(obj, Scenario)
         for f in schema.public_fields(type(obj)):
             value = getattr(obj, f.name)
-            if value is None or (nested and dataclasses.is_dataclass(value)
-                                 and value == type(value)()):
+            if value is None or value == () or (nested and dataclasses.is_dataclass(value)
+                                                and value == type(value)()):
                 continue
             out[f.name] = _as_data(value)
         return out

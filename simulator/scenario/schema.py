@@ -81,6 +81,12 @@ def optional_section(doc):
     return dataclasses.field(default=None, metadata={"doc": doc})
 
 
+def optional_sections(doc):
+    """Field of :class:`~simulator.scenario.loader.Scenario` for an array of tables that may be
+    absent (then empty)."""
+    return dataclasses.field(default=(), metadata={"doc": doc})
+
+
 def required_section(doc):
     """Field of :class:`~simulator.scenario.loader.Scenario` for a section that must be given."""
     return dataclasses.field(metadata={"doc": doc})
@@ -261,8 +267,8 @@ def reference_markdown(root):
         lines += [f"## `{_table_header(root, f)}` ({status})", "",
                   _sentence(f.metadata.get("doc", ""))]
         if kind == "sections":
-            lines.append(f"Repeat the `[[{f.name}]]` table once per item; at least "
-                         "one is required.")
+            lines.append(f"Repeat the `[[{f.name}]]` table once per item"
+                         + ("; at least one is required." if required else "."))
         if f.default_factory is not dataclasses.MISSING:
             lines.append("Every key takes its default when the section is left out.")
         elif not required:
