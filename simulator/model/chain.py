@@ -365,6 +365,12 @@ def automatic_sample_rate(chain, intermediate_frequency_hz=0.0):
     return _round_up(OVERSAMPLING * top)
 
 
+def record_sample_rate(scenario, chain):
+    """The record's sample rate (Hz): the digitiser's, else :func:`automatic_sample_rate`."""
+    return float(scenario.digitizer.sample_rate_hz
+                 or automatic_sample_rate(chain, scenario.detection.intermediate_frequency_hz))
+
+
 def _round_up(x):
     decade = 10.0 ** np.floor(np.log10(x))
     for step in (1.0, 2.0, 2.5, 5.0, 10.0):
