@@ -95,9 +95,14 @@ def build_parser():
     _execution_options(p)
     p.set_defaults(func=cmd_sweep)
 
-    p = verbs.add_parser("spectrum", help="analytic output spectrum with its noise "
-                         "budget and sideband summary")
+    p = verbs.add_parser("spectrum", help="analytic spectrum of the record at the "
+                         "digitiser (or at the cavity port) with its noise budget and "
+                         "sideband summary")
     p.add_argument("scenario", help="scenario TOML file")
+    p.add_argument("--at", choices=("record", "cavity"), default="record",
+                   help="record: what the digitiser sees, detection chain and sampling "
+                   "included (default); cavity: the field at the cavity port, before the "
+                   "detection chain")
     p.add_argument("--out", default=None, help="write the spectrum: .nc (NetCDF) or .csv")
     p.add_argument("--plot", default=None, help="write a figure: .png, .pdf or .svg")
     _force_option(p)

@@ -248,3 +248,38 @@ def _checked(frequency_hz, real):
         raise InputError(f"the record is real: its spectrum is one-sided, but the grid has "
                          f"negative frequencies (min {f.min()!r} Hz); expected f >= 0")
     return f
+
+
+def record_sidebands(system, summaries, *, sample_rate_hz=None, aliases=ALIASES):
+    """The sideband summary with each line's place, area and contrast at the digitiser.
+
+    The area of a line at the record is η Im c (η = η_d·b of the receiver, c
+    the pole residue of :mod:`simulator.linear.sidebands`) times the chain's
+    gain at its record frequency, |L(f)|² sinc²(f/fs) (a line much narrower
+    than the filter and the band); its peak is area·2/(π·FWHM), compared
+    with the rest of the record's density there (the sampled total minus the
+    peak). The homodyne record mixes both sidebands into one line at |ν|:
+    NaN there.
+    """
+    system = as_system(system)
+    scenario, chain = system.scenario, system.chain
+    fs = record_sample_rate(scenario, chain) if sample_rate_hz is None else sample_rate_hz
+    corner = scenario.electronics.bandwidth_hz
+    out = []
+    for s in summaries:
+        sides = {}
+        for key in ("stokes", "anti_stokes"):
+            side = getattr(s, key)
+            f = float(record_frequency(scenario, chain, side.frequency_hz))
+            if chain.receiver == "homodyne" or not np.isfinite(f):
+                sides[key] = side
+                continue
+            gain = np.sinc(f / fs) ** 2 / (1.0 + (f / corner) ** 2 if corner else 1.0)
+            area = (chain.efficiency * side.area_above_floor / scenario.detection.efficiency
+                    * gain)
+            peak = area * 2.0 / (np.pi * side.linewidth_hz)
+            total = float(chain.sampled_spectrum(np.array([f]), fs, aliases=aliases)[0])
+            sides[key] = dataclasses.replace(side, record_frequency_hz=f, record_area=area,
+                                             record_peak_to_background=peak / (total - peak))
+        out.append(dataclasses.replace(s, **sides))
+    return tuple(out)

@@ -84,6 +84,12 @@ class Sideband:
     area_quanta: float
     dispersive_quanta: float
     area_above_floor: float
+    # at the digitiser (simulator.linear.record_budget.record_sidebands): where the line
+    # falls on the record's axis, its area there (shot-noise units × Hz, through the
+    # efficiency, filter and sinc²) and its Lorentzian peak over the rest of the record
+    record_frequency_hz: float = float("nan")
+    record_area: float = float("nan")
+    record_peak_to_background: float = float("nan")
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -98,10 +104,14 @@ class SidebandSummary:
     occupation_from_area: float  # anti-Stokes area in quanta (needs g, κ_ex)
     steady_state_occupation: float  # exact Lyapunov value
     warning: str = ""  # why the weights are not to be read as n and n + 1, if so
+    gap: object = None  # simulator.linear.occupation_gap.OccupationGap: why n_R differs from n
 
     def to_dict(self):
         """Plain data for JSON (Hz, quanta, shot-noise units × Hz)."""
-        return dataclasses.asdict(self)
+        out = dataclasses.asdict(self)
+        out["gap"] = None if self.gap is None else self.gap.to_dict() | {
+            "explanation": self.gap.text()}
+        return out
 
 
 def cavity_response(frequency_hz, linewidth_hz, detuning_hz):
