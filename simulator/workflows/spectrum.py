@@ -26,6 +26,7 @@ class SpectrumResult:
     at: str  # "record" (at the digitiser) or "cavity" (at the cavity port)
     engine: str
     summary: tuple  # SidebandSummary per mode, with record view and gap (linear engine)
+    name: str = ""  # the scenario's name
 
 
 def compute_spectrum(system, *, at="record", engine="linear", master_model="full",
@@ -55,7 +56,8 @@ def compute_spectrum(system, *, at="record", engine="linear", master_model="full
         from simulator.master.spectra import master_heterodyne_spectrum
 
         spectrum = master_heterodyne_spectrum(system, kind=master_model)
-        return SpectrumResult(spectrum=spectrum, at=at, engine=engine, summary=())
+        return SpectrumResult(spectrum=spectrum, at=at, engine=engine, summary=(),
+                              name=system.scenario.scenario.name)
     from simulator.linear.occupation_gap import occupation_gaps
     from simulator.linear.record_budget import digitiser_spectrum, record_sidebands
     from simulator.linear.sidebands import sideband_summary
@@ -72,7 +74,8 @@ def compute_spectrum(system, *, at="record", engine="linear", master_model="full
     gaps = occupation_gaps(system, summary)
     summary = tuple(dataclasses.replace(s, gap=g) for s, g in zip(summary, gaps, strict=True))
     summary = record_sidebands(system, summary)
-    return SpectrumResult(spectrum=spectrum, at=at, engine=engine, summary=summary)
+    return SpectrumResult(spectrum=spectrum, at=at, engine=engine, summary=summary,
+                          name=system.scenario.scenario.name)
 
 
 def reference_frequency(result):
@@ -94,7 +97,7 @@ def report_data(result, files):
     spectrum = result.spectrum
     k = reference_frequency(result)
     volts = spectrum.calibration.get("v2_per_hz_per_shot_noise_unit")
-    out = {"scenario": spectrum.provenance.get("scenario"), "engine": result.engine,
+    out = {"scenario": result.name, "engine": result.engine,
            "at": result.at, "quantity": spectrum.quantity, "axis": spectrum.axis,
            "sided": spectrum.sided, "units": spectrum.units,
            "points": int(spectrum.frequency_hz.size),
