@@ -110,6 +110,24 @@ def test_device_lines_are_the_cavity_budget_of_an_ideal_receiver():
                                atol=1e-15)
 
 
+def test_calibration_tone_reaches_the_record_through_the_chain():
+    """A tone line of the cavity-port spectrum at η is at the record η_d·b/η_d × sinc² × |L|²
+    (a line of no width: the density's gain at its frequency)."""
+    data = make().to_dict()
+    data["drive"]["calibration_tone"] = {"depth_rad": 0.01, "frequency_hz": 0.25e6}
+    data["electronics"] = {"bandwidth_hz": 0.5e6}
+    data["detection"]["balanced"] = False
+    system = System(scenario_from_dict(data, source="<test>"))
+    record = digitiser_spectrum(system, grid("iq")).lines
+    cavity = heterodyne_spectrum(system, grid("iq")).lines
+    assert len(record) == len(cavity) == 2
+    for at_record, at_cavity in zip(record, cavity, strict=True):
+        f = at_cavity.frequency_hz
+        gain = 0.5 * np.sinc(f / FS) ** 2 / (1 + (f / 0.5e6) ** 2)
+        assert at_record.frequency_hz == f
+        assert at_record.power == pytest.approx(gain * at_cavity.power, rel=1e-12)
+
+
 @pytest.mark.parametrize("kind, per_quantum, vacuum", [("iq", 1.0, 0.5), ("if", 2.0, 0.0),
                                                        ("homodyne", 2.0, 0.0)])
 def test_amplifier_line_scales_with_the_added_quanta(kind, per_quantum, vacuum):

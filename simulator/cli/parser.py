@@ -111,7 +111,8 @@ def build_parser():
                    "detection.quadrature_angle_rad)")
     p.add_argument("--engine", choices=("linear", "master"), default="linear",
                    help="linear state-space model (default) or the master equation "
-                   "(QuTiP; heterodyne only, small occupations)")
+                   "(QuTiP; heterodyne only, small occupations; at the cavity port only, "
+                   "so with --at cavity)")
     p.add_argument("--master-model", choices=("full", "linearised"), default="full",
                    help="master-equation model for --engine master (default: %(default)s)")
     p.add_argument("--json", action="store_true", help="print one JSON object")

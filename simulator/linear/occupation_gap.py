@@ -107,7 +107,8 @@ def occupation_gaps(system, summaries=None):
         One per mode, in scenario order.
     """
     system = as_system(system).require_stable()
-    summaries = sideband_summary(system) if summaries is None else summaries
+    summaries = (sideband_summary(system, at_digitiser=False) if summaries is None
+                 else summaries)
     base = _plain(system.scenario)
     return tuple(_gap(system, base, j, s) for j, s in enumerate(summaries))
 
@@ -142,7 +143,7 @@ def _gap(system, base, j, summary):
 
 
 def _gap_of(scenario, j):
-    s = sideband_summary(scenario)[j]
+    s = sideband_summary(scenario, at_digitiser=False)[j]
     return s.occupation_from_ratio - s.steady_state_occupation
 
 

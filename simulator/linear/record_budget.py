@@ -41,14 +41,14 @@ import numpy as np
 
 from simulator.errors import InputError
 from simulator.linear.budget import CHUNK, FLOOR, Paths, budget_pieces, source_groups
-from simulator.linear.spectra import adaptive_grid, provenance
+from simulator.linear.spectra import adaptive_grid, provenance, tone_lines
 from simulator.linear.spectrum import Spectrum
 from simulator.model.chain import detection_chain, record_sample_rate
 from simulator.model.laser_noise import vacuum_intensity
 from simulator.model.system import as_system
 from simulator.model.units import angular
 
-RECORD_UNITS = "shot-noise units at the digitiser (vacuum of an ideal receiver = 1)"
+RECORD_UNITS = "record shot-noise units (ideal receiver's vacuum = 1)"
 VOLT_UNITS = "V^2/Hz at the digitiser"
 # Aliases summed on each side by default: the non-white part of the density
 # falls at least as 1/f^3 after the sinc^2, so the truncated tail is below
@@ -101,6 +101,11 @@ def digitiser_spectrum(system, frequency_hz=None, *, sample_rate_hz=None, aliase
     parts[SINC] = (sinc2 - 1.0) * continuous
     parts[ALIASING] = total - sinc2 * continuous
     volts2 = chain.volts_per_unit ** 2 * (2.0 if real else 1.0)
+    lines = tuple(dataclasses.replace(
+        line, name=f"{line.name}, at the digitiser",
+        frequency_hz=float(record_frequency(scenario, chain, line.frequency_hz)),
+        power=float(line.power * chain_gain(scenario, record_frequency(
+            scenario, chain, line.frequency_hz), fs))) for line in _cavity_lines(system))
     det = scenario.detection
     prov = provenance(scenario, det.scheme, chain.efficiency,
                       det.quadrature_angle_rad if det.scheme == "homodyne" else None)
@@ -112,7 +117,32 @@ def digitiser_spectrum(system, frequency_hz=None, *, sample_rate_hz=None, aliase
                     calibration={**chain.calibration(), "sample_rate_hz": fs,
                                  "aliases_summed": int(aliases),
                                  "v2_per_hz_per_shot_noise_unit": volts2},
-                    provenance=prov)
+                    lines=lines, provenance=prov)
+
+
+def chain_gain(scenario, frequency_hz, sample_rate_hz):
+    """|L(f)|² sinc²(f/fs): what the low-pass and the sample averaging leave of a narrow line."""
+    f = np.asarray(frequency_hz, dtype=float)
+    corner = scenario.electronics.bandwidth_hz
+    filt = 1.0 / (1.0 + (f / corner) ** 2) if corner else 1.0
+    return np.sinc(f / sample_rate_hz) ** 2 * filt
+
+
+def _cavity_lines(system):
+    """The calibration tone's lines at the cavity port, with the receiver's efficiency.
+
+    A line of power P at ν (heterodyne, two-sided) is P at its record frequency
+    in the record's shot-noise units, one-sided ones included (their density
+    and their vacuum level both double).
+    """
+    scenario, chain = system.scenario, system.chain
+    if chain.receiver == "homodyne":
+        theta = scenario.detection.quadrature_angle_rad
+        return tone_lines(system.model, scenario, np.array([np.cos(theta), np.sin(theta)],
+                                                           dtype=complex),
+                          chain.efficiency, one_sided=True)
+    return tone_lines(system.model, scenario, np.array([1.0, 1.0j]) / np.sqrt(2.0),
+                      chain.efficiency)
 
 
 def record_axis(scenario, chain):
@@ -264,7 +294,6 @@ def record_sidebands(system, summaries, *, sample_rate_hz=None, aliases=ALIASES)
     system = as_system(system)
     scenario, chain = system.scenario, system.chain
     fs = record_sample_rate(scenario, chain) if sample_rate_hz is None else sample_rate_hz
-    corner = scenario.electronics.bandwidth_hz
     out = []
     for s in summaries:
         sides = {}
@@ -274,9 +303,8 @@ def record_sidebands(system, summaries, *, sample_rate_hz=None, aliases=ALIASES)
             if chain.receiver == "homodyne" or not np.isfinite(f):
                 sides[key] = side
                 continue
-            gain = np.sinc(f / fs) ** 2 / (1.0 + (f / corner) ** 2 if corner else 1.0)
             area = (chain.efficiency * side.area_above_floor / scenario.detection.efficiency
-                    * gain)
+                    * float(chain_gain(scenario, f, fs)))
             peak = area * 2.0 / (np.pi * side.linewidth_hz)
             total = float(chain.sampled_spectrum(np.array([f]), fs, aliases=aliases)[0])
             sides[key] = dataclasses.replace(side, record_frequency_hz=f, record_area=area,

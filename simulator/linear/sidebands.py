@@ -45,6 +45,7 @@ import dataclasses
 import numpy as np
 import scipy.linalg
 
+from simulator.linear.record_budget import record_sidebands
 from simulator.linear.steady_state import mode_eigenvalues, steady_state
 from simulator.model.optomechanics import device_size, mode_states
 from simulator.model.system import as_system
@@ -144,13 +145,16 @@ def cavity_filter(point, mode_index, frequency_hz):
         frequency_hz, point.cavity_linewidth_hz, point.detuning_effective_hz)
 
 
-def sideband_summary(system):
+def sideband_summary(system, *, at_digitiser=True):
     """Sideband summary of every mechanical mode of ``system``.
 
     Parameters
     ----------
     system : simulator.model.system.System
         Or a scenario, built into one.
+    at_digitiser : bool
+        Also give each line's record frequency, area and contrast at the
+        digitiser (:func:`simulator.linear.record_budget.record_sidebands`).
 
     Returns
     -------
@@ -207,6 +211,8 @@ def sideband_summary(system):
             occupation_from_ratio=float(implied),
             occupation_from_area=float(sides[+1].area_quanta),
             steady_state_occupation=steady.modes[j].occupation, warning=warning))
+    if at_digitiser:
+        return record_sidebands(system, tuple(summaries))
     return tuple(summaries)
 
 

@@ -10,6 +10,7 @@ occupation from the sideband ratio differs from the exact one
 
 import dataclasses
 import math
+import textwrap
 
 import numpy as np
 
@@ -59,7 +60,7 @@ def compute_spectrum(system, *, at="record", engine="linear", master_model="full
         return SpectrumResult(spectrum=spectrum, at=at, engine=engine, summary=(),
                               name=system.scenario.scenario.name)
     from simulator.linear.occupation_gap import occupation_gaps
-    from simulator.linear.record_budget import digitiser_spectrum, record_sidebands
+    from simulator.linear.record_budget import digitiser_spectrum
     from simulator.linear.sidebands import sideband_summary
     from simulator.linear.spectra import measured_spectrum
 
@@ -73,7 +74,6 @@ def compute_spectrum(system, *, at="record", engine="linear", master_model="full
     summary = sideband_summary(system)
     gaps = occupation_gaps(system, summary)
     summary = tuple(dataclasses.replace(s, gap=g) for s, g in zip(summary, gaps, strict=True))
-    summary = record_sidebands(system, summary)
     return SpectrumResult(spectrum=spectrum, at=at, engine=engine, summary=summary,
                           name=system.scenario.scenario.name)
 
@@ -157,9 +157,16 @@ def report_text(result, files):
     return "\n".join(lines)
 
 
+TITLE_WIDTH = 110  # characters per line of the figure title (it shares the row with the legend)
+
+
 def figure_title(result, name):
     """Title of the spectrum figure: what and where, and mode 0's occupation gap."""
     title = f"{name}: {result.spectrum.quantity}"
     if result.summary and result.summary[0].gap is not None:
-        title += f"\nmode {result.summary[0].mode}: {result.summary[0].gap.text()}"
+        gap = result.summary[0].gap
+        terms = ", ".join(f"{cause} {value:+.3g}" for cause, value in gap.terms.items())
+        title += "\n" + "\n".join(textwrap.wrap(
+            f"mode {gap.mode}: n from the ratio − steady state = {gap.difference:+.4g} "
+            f"({terms}; remainder {gap.remainder:+.2g})", TITLE_WIDTH))
     return title
