@@ -18,8 +18,11 @@ three steps that telescope, so they sum to the total to round-off:
 2. the low-pass filter: the filtered continuous record minus the unfiltered
    one, −(1 − |L(f)|²)·S(f);
 3. the sampling: integrate-and-dump samples average over each interval,
-   (sinc²(f/fs) − 1)·S_L(f), and fold in the noise of f + k·fs, k ≠ 0
-   (aliasing, the rest of Σ_k S_L(f + k fs) sinc²((f + k fs)/fs)).
+   (sinc²(f/fs) − 1)·(S_L(f) − S_w), and fold in the noise of f + k·fs, k ≠ 0
+   (aliasing, the rest of Σ_k S_L(f + k fs) sinc²((f + k fs)/fs)). White
+   noise S_w (the density's limit at high frequency; zero behind a low-pass)
+   passes the sampling unchanged, Σ_k sinc²(x + k) = 1, so it is left out of
+   both lines.
 
 Units. The record's shot-noise unit: the two-sided vacuum density of an ideal
 receiver is 1 (iq); for real records (if, homodyne) the spectrum is one-sided
@@ -48,7 +51,7 @@ from simulator.model.laser_noise import vacuum_intensity
 from simulator.model.system import as_system
 from simulator.model.units import angular
 
-RECORD_UNITS = "record shot-noise units (ideal receiver's vacuum = 1)"
+RECORD_UNITS = "record shot-noise units (vacuum = 1)"
 VOLT_UNITS = "V^2/Hz at the digitiser"
 # Aliases summed on each side by default: the non-white part of the density
 # falls at least as 1/f^3 after the sinc^2, so the truncated tail is below
@@ -97,9 +100,12 @@ def digitiser_spectrum(system, frequency_hz=None, *, sample_rate_hz=None, aliase
     # resolvent's round-off), so that the sampling lines close the sum exactly
     continuous = sum(parts.values())
     total = chain.sampled_spectrum(f, fs, aliases=aliases)
+    # white noise (the density's limit at high frequency) passes the sampling unchanged
+    # (Σ_k sinc²(x + k) = 1): the two sampling lines show what it does to the rest
+    coloured = continuous - chain.white_density()
     sinc2 = np.sinc(f / fs) ** 2
-    parts[SINC] = (sinc2 - 1.0) * continuous
-    parts[ALIASING] = total - sinc2 * continuous
+    parts[SINC] = (sinc2 - 1.0) * coloured
+    parts[ALIASING] = total - continuous - parts[SINC]
     volts2 = chain.volts_per_unit ** 2 * (2.0 if real else 1.0)
     lines = tuple(dataclasses.replace(
         line, name=f"{line.name}, at the digitiser",

@@ -146,6 +146,10 @@ class DetectionChain:
             total += ((self.record_spectrum(g) - white) * np.sinc(g / fs) ** 2).sum(axis=-1)
         return total
 
+    def white_density(self):
+        """The record's two-sided density at high frequency (white noise; 0 behind a low-pass)."""
+        return self._white_density()
+
     def _white_density(self):
         d = self.model.D @ self.model.N @ self.model.D.T
         if self.receiver == "homodyne":

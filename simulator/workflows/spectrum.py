@@ -157,7 +157,7 @@ def report_text(result, files):
     return "\n".join(lines)
 
 
-TITLE_WIDTH = 110  # characters per line of the figure title (it shares the row with the legend)
+TITLE_WIDTH = 90  # characters per line of the figure title (it shares the row with the legend)
 
 
 def figure_title(result, name):
