@@ -37,6 +37,7 @@ import dataclasses
 
 import numpy as np
 
+from simulator.errors import OperatingPointError, ScenarioError
 from simulator.linear.laser_effects import without_laser_noise
 from simulator.linear.sidebands import sideband_summary
 from simulator.model import laser_noise
@@ -143,7 +144,11 @@ def _gap(system, base, j, summary):
 
 
 def _gap_of(scenario, j):
-    s = sideband_summary(scenario, at_digitiser=False)[j]
+    """n_R − n of mode j; NaN if the scenario without a cause has no steady state."""
+    try:
+        s = sideband_summary(scenario, at_digitiser=False)[j]
+    except (OperatingPointError, ScenarioError):
+        return float("nan")
     return s.occupation_from_ratio - s.steady_state_occupation
 
 
