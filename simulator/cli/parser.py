@@ -103,9 +103,14 @@ def build_parser():
     _execution_options(p)
     p.set_defaults(func=cmd_sweep)
 
-    p = verbs.add_parser("spectrum", help="analytic output spectrum with its noise "
-                         "budget and sideband summary")
+    p = verbs.add_parser("spectrum", help="analytic spectrum of the record at the "
+                         "digitiser (or at the cavity port) with its noise budget and "
+                         "sideband summary")
     p.add_argument("scenario", help="scenario TOML file")
+    p.add_argument("--at", choices=("record", "cavity"), default="record",
+                   help="record: what the digitiser sees, detection chain and sampling "
+                   "included (default); cavity: the field at the cavity port, before the "
+                   "detection chain")
     p.add_argument("--out", default=None, help="write the spectrum: .nc (NetCDF) or .csv")
     p.add_argument("--plot", default=None, help="write a figure: .png, .pdf or .svg")
     _force_option(p)
@@ -114,7 +119,8 @@ def build_parser():
                    "detection.quadrature_angle_rad)")
     p.add_argument("--engine", choices=("linear", "master"), default="linear",
                    help="linear state-space model (default) or the master equation "
-                   "(QuTiP; heterodyne only, small occupations)")
+                   "(QuTiP; heterodyne only, small occupations; at the cavity port only, "
+                   "so with --at cavity)")
     p.add_argument("--master-model", choices=("full", "linearised"), default="full",
                    help="master-equation model for --engine master (default: %(default)s)")
     p.add_argument("--json", action="store_true", help="print one JSON object")

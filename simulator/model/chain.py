@@ -171,6 +171,10 @@ class DetectionChain:
             total += ((self.record_spectrum(g) - white) * np.sinc(g / fs) ** 2).sum(axis=-1)
         return total
 
+    def white_density(self):
+        """The record's two-sided density at high frequency (white noise; 0 behind a low-pass)."""
+        return self._white_density()
+
     def _white_density(self):
         d = self.model.D @ self.model.N @ self.model.D.T
         if self.receiver == "homodyne":
@@ -399,6 +403,12 @@ def automatic_sample_rate(chain, intermediate_frequency_hz=0.0):
     if chain.receiver == "if":
         top += float(intermediate_frequency_hz)
     return _round_up(OVERSAMPLING * top)
+
+
+def record_sample_rate(scenario, chain):
+    """The record's sample rate (Hz): the digitiser's, else :func:`automatic_sample_rate`."""
+    return float(scenario.digitizer.sample_rate_hz
+                 or automatic_sample_rate(chain, scenario.detection.intermediate_frequency_hz))
 
 
 def _round_up(x):

@@ -144,6 +144,8 @@ class Inspection:
                     if f"{key}_not_applicable" in mode:
                         text = f"not applicable ({mode[key + '_not_applicable']})"
                     lines.append(f"  {label:<28}{text}")
+            if "apparent_occupation_gap" in mode:
+                lines.append(f"    {mode['apparent_occupation_gap']['explanation']}")
         for f in d["feasibility"]:
             lines += ["", f"feasibility, mode {f['mode']} (Cramér–Rao, Whittle)"]
             lines.append(f"  occupation error after 1 s       "
@@ -247,7 +249,7 @@ def inspect_scenario(system, *, feasibility=True):
     regime = regime_verdict(point, occupations,
                             master_advice=master_equation_advice(point, occupations))
     laser = (() if steady is None or laser_noise.is_quiet(scenario)
-             else occupation_report(system, steady))
+             else _explained(system, occupation_report(system, steady)))
     warnings += [f"mode {ms.name}: the apparent (sideband ratio) occupation is not to be "
                  f"trusted: {entry['apparent_occupation_warning']}"
                  for ms, entry in zip(steady.modes if steady else (), laser, strict=False)
@@ -255,6 +257,17 @@ def inspect_scenario(system, *, feasibility=True):
     return Inspection(system=system, steady=steady,
                       warnings=tuple(warnings), feasibility=feasibility, regime=regime,
                       laser=laser)
+
+
+def _explained(system, laser):
+    """The laser report, each apparent occupation with the causes of its gap to the exact one."""
+    if not any("apparent_occupation_from_asymmetry" in entry for entry in laser):
+        return laser
+    from simulator.linear.occupation_gap import occupation_gaps
+
+    return tuple(entry | {"apparent_occupation_gap": gap.to_dict() | {
+        "explanation": gap.text()}} for entry, gap in zip(laser, occupation_gaps(system),
+                                                           strict=True))
 
 
 def _feasibility(system, steady):

@@ -136,21 +136,17 @@ def _derived_table(data):
 
 
 def _spectrum_part(system, out, wrote, figures):
-    from simulator.linear.referral import to_displacement
-    from simulator.linear.sidebands import sideband_summary
-    from simulator.linear.spectra import measured_spectrum
     from simulator.report.plots import plot_spectrum
+    from simulator.workflows.spectrum import compute_spectrum, figure_title
 
-    spectrum = measured_spectrum(system)
-    summary = sideband_summary(system)
+    result = compute_spectrum(system)  # at the digitiser, with the explained summary
+    spectrum, summary = result.spectrum, result.summary
     spectrum.save(wrote(out / "spectrum.nc"), overwrite=True)
     png = wrote(out / "spectrum.png")
-    plot_spectrum(spectrum, png, displacement=to_displacement(spectrum, system),
-                  summary=summary,
-                  title=f"{system.scenario.scenario.name}: {spectrum.quantity}",
-                  overwrite=True)
-    figures.append((png, "Detected spectrum and its noise budget: the whole band (log scale), "
-                         "each sideband zoomed (linear) and referred to displacement."))
+    plot_spectrum(spectrum, png, summary=summary,
+                  title=figure_title(result, system.scenario.scenario.name), overwrite=True)
+    figures.append((png, "Spectrum of the record at the digitiser and its noise budget: the "
+                         "whole band and each sideband zoomed."))
     rows = [[s.mode, s.anti_stokes.frequency_hz, s.anti_stokes.area_quanta,
              s.stokes.frequency_hz, s.stokes.area_quanta, s.ratio, s.occupation_from_ratio,
              s.steady_state_occupation] for s in summary]
@@ -159,6 +155,8 @@ def _spectrum_part(system, out, wrote, figures):
             + html.table(rows, header=["mode", "anti-Stokes (Hz)", "area (quanta)",
                                        "Stokes (Hz)", "area (quanta)", "ratio",
                                        "n from ratio", "n exact"])
+            + "".join(f"<p>Mode {html.escape(s.mode)}: {html.escape(s.gap.text())}.</p>"
+                      for s in summary if s.gap is not None)
             + "".join(f"<p>Warning, mode {html.escape(s.mode)}: {html.escape(s.warning)}.</p>"
                       for s in summary if s.warning)), summary
 
