@@ -49,7 +49,7 @@ import numpy as np
 POLE_MAX_CONDITION = 1e5  # eigenvector condition above which the residues lose 1e-10
 POLE_RECONSTRUCTION_RTOL = 1e-12  # largest accepted error of V Λ V⁻¹ against A, relative
 FALLBACK_ALIASES = 400  # aliases summed either side by the resolvent fallback
-COMPILED_FROM_POINTS = 1 << 16  # above this many points the numba kernel pays its import
+COMPILED_FROM_POINTS = 1 << 17  # above this many points the numba kernel pays its import
 _CHUNK = 1024  # points per numpy pass: keeps the (points × poles) factors in cache
 
 
@@ -184,6 +184,19 @@ def pole_form(model, groups=None):
         r = sigma @ left.conj().T + qn @ d_g.T  # (n, p)
         residues.append(left.T[:, :, None] * r[:, None, :])  # R_k = L_k ⊗ r_k
     return PoleForm(poles=lam, residues=np.array(residues), white=white)
+
+
+def channel_form(model, *, carrier_rad_s=None, sample_rate_hz=None, groups=None):
+    """:func:`pole_form` of a record's channels: as given, or one real photocurrent.
+
+    With ``carrier_rad_s`` θ the model's two outputs are the envelope u of
+    r = e^{iθt}u + c.c. and the form is that of r (:meth:`PoleForm.real_carrier`);
+    with ``sample_rate_hz``, that of the integrate-and-dump samples.
+    """
+    form = pole_form(model, groups)
+    if carrier_rad_s is not None:
+        form = form.project(np.array([1.0, 1.0j])).real_carrier(carrier_rad_s)
+    return form if sample_rate_hz is None else form.sampled(sample_rate_hz)
 
 
 def verified_eigenbasis(a):
@@ -327,15 +340,6 @@ def evaluate(a, poles, coef):
     n = poles.size
     out = np.empty((a.size, coef.shape[1]))
     for start in range(0, a.size, _CHUNK):
-        part = a[start:start + _CHUNK]
-        dr = part.real[:, None] - poles.real
-        di = part.imag[:, None] - poles.imag
-        d = dr * dr
-        d += di * di
-        np.reciprocal(d, out=d)
-        f = np.empty((part.size, 2 * n))
-        np.multiply(dr, d, out=f[:, :n])
-        np.multiply(di, d, out=f[:, n:])
-        f[:, n:] *= -1.0
-        np.dot(f, coef, out=out[start:start + _CHUNK])
+        f = 1.0 / (a[start:start + _CHUNK, None] - poles)
+        out[start:start + _CHUNK] = f.real @ coef[:n] + f.imag @ coef[n:]
     return out
