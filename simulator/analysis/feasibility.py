@@ -108,16 +108,33 @@ class _Stepped:
         return self._steps[path]
 
     def system_of(self, scenario):
-        """The System of the base or of a stepped scenario (the scenarios are kept alive)."""
-        from simulator.model.system import System
+        """The base System, or the model and chain of a stepped scenario (kept alive).
+
+        A stepped scenario gets its operating point, model and chain only: its
+        stability verdict is not needed for a derivative.
+        """
+        from simulator.model.chain import detection_chain
+        from simulator.model.operating_point import operating_point
+        from simulator.model.optomechanics import linear_model
 
         key = id(scenario)
         if key not in self._systems:
-            self._systems[key] = System(scenario)
+            point = operating_point(scenario)
+            model = linear_model(scenario, point)
+            self._systems[key] = _Built(model=model,
+                                        chain=detection_chain(scenario, point, model))
         return self._systems[key]
 
     def record_model(self, scenario):
         return self.system_of(scenario).chain.model
+
+
+@dataclasses.dataclass(frozen=True)
+class _Built:
+    """The linear model and detection chain of a stepped scenario."""
+
+    model: object
+    chain: object
 
 
 def _fisher(system, paths, omega, sample_rate_hz, stepped=None, report=None):
@@ -174,7 +191,10 @@ def fisher_matrix(system, paths, *, frequency_hz=None, sample_rate_hz=None):
 
     system = _system(system)
     fs = _sample_rate(system, sample_rate_hz)
-    omega = _grid(system, fs) if frequency_hz is None else angular(frequency_hz)
+    if frequency_hz is not None:
+        omega = angular(frequency_hz)
+    else:  # None: the grid of the sampled record's own form
+        omega = None if math.isfinite(fs) else _grid(system, fs)
     return _fisher(system, [tuple(paths)], omega, fs)[0]
 
 
@@ -251,7 +271,8 @@ def occupation_bounds(system, modes=None, paths=None, steady=None, *, sample_rat
         return []
     fs = _sample_rate(system, sample_rate_hz)
     stepped, report = _Stepped(system), {}
-    fishers = _fisher(system, paths, _grid(system, fs), fs, stepped, report)
+    omega = None if math.isfinite(fs) else _grid(system, fs)  # None: the base form's grid
+    fishers = _fisher(system, paths, omega, fs, stepped, report)
     response = _CovarianceResponse(system, None if steady is None else steady.covariance,
                                    stepped=stepped)
     bounds = []

@@ -22,9 +22,9 @@ import numpy as np
 
 from simulator.errors import InputError, ScenarioError
 
-POINTS_PER_DECADE = 48  # log-spaced offsets around each line (trapezoid error ~2e-4)
+POINTS_PER_DECADE = 32  # log-spaced offsets around each line (trapezoid error < 1e-3)
 CLOSEST = 1e-2  # smallest offset from a line centre, in its half-widths
-COARSE_POINTS = 401  # uniform points across the band
+COARSE_POINTS = 201  # uniform points across the band
 
 
 def steps(scenario, path):
@@ -71,9 +71,11 @@ def fisher_blocks(model_of, scenario, groups, omega, *, carrier_rad_s=None,
     groups : sequence of sequences of str
         Parameter paths estimated jointly; a path shared by several groups is
         differentiated once.
-    omega : ndarray
+    omega : ndarray or None
         Angular frequencies (rad/s) of the record; only |ω| is used (the
         integrand is even) and, with ``sample_rate_hz``, only |ω| ≤ π fs.
+        None: :func:`record_grid` of the record's form up to π fs (sampled
+        records only).
     carrier_rad_s : float, optional
         For a real record at an intermediate frequency θ (the "if" receiver):
         the model's two outputs are the envelope u of r = e^{iθt}u + c.c., and
@@ -101,8 +103,12 @@ def fisher_blocks(model_of, scenario, groups, omega, *, carrier_rad_s=None,
 
     steps_of = steps_of or (lambda path: steps(scenario, path))
     paths = list(dict.fromkeys(p for group in groups for p in group))
-    w = _one_sided(omega, sample_rate_hz)
     base = form_of(model_of(scenario))
+    if omega is None:
+        if sample_rate_hz is None:
+            raise InputError("a frequency grid is needed for the continuous record")
+        omega = record_grid(base, np.pi * float(sample_rate_hz))
+    w = _one_sided(omega, sample_rate_hz)
     forms = [base]
     s = base.spectrum(w)[0]
     changes = []

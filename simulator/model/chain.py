@@ -36,6 +36,7 @@ Yuen and Chan, Opt. Lett. 8, 177 (1983) (balanced homodyne detection).
 """
 
 import dataclasses
+import functools
 
 import numpy as np
 from scipy import constants
@@ -404,6 +405,7 @@ def automatic_sample_rate(chain, intermediate_frequency_hz=0.0):
     return _round_up(max(OVERSAMPLING * top, line / _line_fraction()))
 
 
+@functools.cache
 def _line_fraction():
     """x₀ = f/fs at which sinc²(x₀) = ``LINE_SINC2`` (sinc(x) = sin πx/(πx))."""
     from scipy.optimize import brentq

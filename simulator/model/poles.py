@@ -43,6 +43,7 @@ Discrete-Time Signal Processing (3rd ed., 2010), Sec. 4.2 (aliasing).
 """
 
 import dataclasses
+import functools
 
 import numpy as np
 
@@ -86,11 +87,18 @@ class PoleForm:
         else:
             a = np.exp(-1j * omega * self.period)
         g, n, p, _ = self.residues.shape
-        if n == 0:
-            return np.broadcast_to(self.white[:, None], (g, omega.size, p, p)).astype(complex)
-        coef = _hermitian_coefficients(self.residues)  # (2n, g · p²)
-        flat = evaluate(a, self.poles, coef)  # (W, g · p²)
-        return _unpack(flat.reshape(omega.size, g, p * p), p).swapaxes(0, 1) + self.white[:, None]
+        packed = evaluate(a, self.poles, self._coefficients) if n else np.zeros(
+            (omega.size, g * p * p))
+        packed += self._white_packed
+        return _unpack(packed.reshape(omega.size, g, p * p), p)
+
+    @functools.cached_property
+    def _coefficients(self):
+        return _hermitian_coefficients(self.residues)  # (2n, g · p²)
+
+    @functools.cached_property
+    def _white_packed(self):
+        return _pack(self.white).reshape(-1)
 
     def sampled(self, sample_rate_hz):
         """The form of the integrate-and-dump samples at ``sample_rate_hz`` (see module)."""
@@ -207,7 +215,7 @@ def verified_eigenbasis(a):
     point), so states of very different scale (a laser phase in radians
     beside a cavity quadrature) do not make the eigenvectors look
     ill-conditioned. ``problem`` is "" when the balanced eigenvectors have a
-    condition number below ``POLE_MAX_CONDITION`` and rebuild the balanced
+    1-norm condition number below ``POLE_MAX_CONDITION`` and rebuild the balanced
     matrix to ``POLE_RECONSTRUCTION_RTOL`` of its largest entry; otherwise a
     sentence for the caller to report.
     """
@@ -220,11 +228,15 @@ def verified_eigenbasis(a):
     lam, vec = np.linalg.eig(balanced)
     if not np.all(np.isfinite(lam)):
         return lam, vec, None, "eigenvalues not finite"
-    cond = float(np.linalg.cond(vec))
+    try:
+        inv = np.linalg.inv(vec)
+    except np.linalg.LinAlgError:
+        return lam, vec, None, "singular eigenvector matrix: at an exceptional point"
+    # 1-norm condition number ‖V‖₁‖V⁻¹‖₁ (within a factor n of the 2-norm one, and no SVD)
+    cond = float(np.abs(vec).sum(axis=0).max() * np.abs(inv).sum(axis=0).max())
     if not cond < POLE_MAX_CONDITION:
         return lam, vec, None, (f"eigenvector condition number {cond:.2g}: "
                                 "close to an exceptional point")
-    inv = np.linalg.inv(vec)
     size = max(float(np.abs(balanced).max()), np.finfo(float).tiny)
     error = float(np.abs((vec * lam) @ inv - balanced).max()) / size
     if not error <= POLE_RECONSTRUCTION_RTOL:
@@ -301,22 +313,31 @@ def _hermitian_coefficients(residues):
 
 def _pack(h):
     """Hermitian (..., p, p) → (..., p²) reals: diagonal, Re and Im of the upper triangle."""
-    p = h.shape[-1]
-    iu = np.triu_indices(p, 1)
+    iu = _upper(h.shape[-1])
     return np.concatenate([np.diagonal(h, axis1=-2, axis2=-1).real,
                            h[..., iu[0], iu[1]].real, h[..., iu[0], iu[1]].imag], axis=-1)
 
 
+@functools.cache
+def _upper(p):
+    """Indices of the strict upper triangle of a p × p matrix."""
+    return np.triu_indices(p, 1)
+
+
 def _unpack(packed, p):
-    """Inverse of :func:`_pack`: (..., p²) reals → Hermitian (..., p, p)."""
-    out = np.zeros(packed.shape[:-1] + (p, p), dtype=complex)
-    idx = np.arange(p)
-    out[..., idx, idx] = packed[..., :p]
-    iu = np.triu_indices(p, 1)
+    """Inverse of :func:`_pack` for (W, g, p²) reals → Hermitian (g, W, p, p)."""
+    w, g = packed.shape[:2]
+    out = np.empty((g, w, p, p), dtype=complex)
+    columns = packed.transpose(1, 2, 0)  # (g, p², W): one row per packed entry
+    for i in range(p):
+        out[:, :, i, i] = columns[:, i]
+    iu = _upper(p)
     k = iu[0].size
-    upper = packed[..., p:p + k] + 1j * packed[..., p + k:p + 2 * k]
-    out[..., iu[0], iu[1]] = upper
-    out[..., iu[1], iu[0]] = upper.conj()
+    for u, (i, j) in enumerate(zip(*iu, strict=True)):
+        out[:, :, i, j].real = columns[:, p + u]
+        out[:, :, i, j].imag = columns[:, p + k + u]
+        out[:, :, j, i].real = columns[:, p + u]
+        out[:, :, j, i].imag = -columns[:, p + k + u]
     return out
 
 
