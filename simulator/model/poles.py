@@ -87,6 +87,17 @@ class PoleForm:
         else:
             a = np.exp(-1j * omega * self.period)
         g, n, p, _ = self.residues.shape
+        if n and omega.size >= COMPILED_FROM_POINTS:
+            from simulator.model.pole_kernel import pole_sum_hermitian
+
+            out = np.empty((g, omega.size, p, p), dtype=complex)
+            upper = _upper(p)
+            pole_sum_hermitian(np.ascontiguousarray(a.real), np.ascontiguousarray(a.imag),
+                               np.ascontiguousarray(self.poles.real),
+                               np.ascontiguousarray(self.poles.imag), self._coefficients,
+                               self._white_packed, upper[0], upper[1], out.view(float).reshape(
+                                   out.shape + (2,)))
+            return out
         packed = evaluate(a, self.poles, self._coefficients) if n else np.zeros(
             (omega.size, g * p * p))
         packed += self._white_packed
@@ -94,7 +105,7 @@ class PoleForm:
 
     @functools.cached_property
     def _coefficients(self):
-        return _hermitian_coefficients(self.residues)  # (2n, g · p²)
+        return np.ascontiguousarray(_hermitian_coefficients(self.residues))  # (2n, g · p²)
 
     @functools.cached_property
     def _white_packed(self):
