@@ -36,7 +36,7 @@ import math
 
 import numpy as np
 
-from simulator.analysis.information import fisher_blocks, steps
+from simulator.analysis.information import SteppedModels, fisher_blocks
 from simulator.errors import InputError
 from simulator.model.optomechanics import mode_states
 
@@ -88,59 +88,10 @@ def _grid(system, sample_rate_hz):
     return record_grid(form, float(np.max(np.abs(centres)) + 20.0 * np.max(widths)))
 
 
-class _Stepped:
-    """Systems of the scenario a small step either side of each parameter, built once.
-
-    The Fisher information (spectra of the stepped records) and the occupation
-    gradient (stepped drift and diffusion) share them: each stepped System is
-    built once per bound, whatever asks for it.
-    """
-
-    def __init__(self, system):
-        self.system = system
-        self._steps = {}
-        self._systems = {id(system.scenario): system}
-
-    def steps(self, path):
-        """:func:`simulator.analysis.information.steps` of the system's scenario, kept."""
-        if path not in self._steps:
-            self._steps[path] = steps(self.system.scenario, path)
-        return self._steps[path]
-
-    def system_of(self, scenario):
-        """The base System, or the model and chain of a stepped scenario (kept alive).
-
-        A stepped scenario gets its operating point, model and chain only: its
-        stability verdict is not needed for a derivative.
-        """
-        from simulator.model.chain import detection_chain
-        from simulator.model.operating_point import operating_point
-        from simulator.model.optomechanics import linear_model
-
-        key = id(scenario)
-        if key not in self._systems:
-            point = operating_point(scenario)
-            model = linear_model(scenario, point)
-            self._systems[key] = _Built(model=model,
-                                        chain=detection_chain(scenario, point, model))
-        return self._systems[key]
-
-    def record_model(self, scenario):
-        return self.system_of(scenario).chain.model
-
-
-@dataclasses.dataclass(frozen=True)
-class _Built:
-    """The linear model and detection chain of a stepped scenario."""
-
-    model: object
-    chain: object
-
-
 def _fisher(system, paths, omega, sample_rate_hz, stepped=None, report=None):
     """:func:`simulator.analysis.information.fisher_blocks` for the system's own record."""
     chain = system.chain
-    stepped = stepped or _Stepped(system)
+    stepped = stepped or SteppedModels(system)
     carrier = chain.carrier_rad_s if chain.receiver == "if" else None
     return fisher_blocks(stepped.record_model, system.scenario, paths, omega,
                          carrier_rad_s=carrier, sample_rate_hz=_finite(sample_rate_hz),
@@ -270,7 +221,7 @@ def occupation_bounds(system, modes=None, paths=None, steady=None, *, sample_rat
     if not paths:
         return []
     fs = _sample_rate(system, sample_rate_hz)
-    stepped, report = _Stepped(system), {}
+    stepped, report = SteppedModels(system), {}
     omega = None if math.isfinite(fs) else _grid(system, fs)  # None: the base form's grid
     fishers = _fisher(system, paths, omega, fs, stepped, report)
     response = _CovarianceResponse(system, None if steady is None else steady.covariance,
@@ -303,7 +254,7 @@ class _CovarianceResponse:
     def __init__(self, system, covariance=None, stepped=None):
         import scipy.linalg
 
-        self.stepped = stepped or _Stepped(system)
+        self.stepped = stepped or SteppedModels(system)
         self.model = system.model
         self.scenario = system.scenario
         self.v = self.model.covariance() if covariance is None else covariance

@@ -18,6 +18,8 @@ every dependence is included. The integral is the trapezoidal rule on a grid
 that resolves every line of the sampled spectrum (:func:`record_grid`).
 """
 
+import dataclasses
+
 import numpy as np
 
 from simulator.errors import InputError, ScenarioError
@@ -57,6 +59,57 @@ def derivative(evaluate, scenario, path):
     """d evaluate(scenario)/d(parameter at path) by the difference of :func:`steps`."""
     up, down, span = steps(scenario, path)
     return (evaluate(up) - evaluate(down)) / span
+
+
+class SteppedModels:
+    """Models of a System's scenario a small step either side of each parameter, built once.
+
+    The Fisher information (spectra of the stepped records) and the occupation
+    gradient (stepped drift and diffusion) of
+    :mod:`simulator.analysis.feasibility` share them: each stepped model is
+    built once per bound, whatever asks for it.
+    """
+
+    def __init__(self, system):
+        self.system = system
+        self._steps = {}
+        self._systems = {id(system.scenario): system}
+
+    def steps(self, path):
+        """:func:`steps` of the system's scenario, kept."""
+        if path not in self._steps:
+            self._steps[path] = steps(self.system.scenario, path)
+        return self._steps[path]
+
+    def system_of(self, scenario):
+        """The base System, or the model and chain of a stepped scenario (kept alive).
+
+        A stepped scenario gets its operating point, model and chain only: its
+        stability verdict is not needed for a derivative.
+        """
+        from simulator.model.chain import detection_chain
+        from simulator.model.operating_point import operating_point
+        from simulator.model.optomechanics import linear_model
+
+        key = id(scenario)
+        if key not in self._systems:
+            point = operating_point(scenario)
+            model = linear_model(scenario, point)
+            self._systems[key] = _Built(model=model,
+                                        chain=detection_chain(scenario, point, model))
+        return self._systems[key]
+
+    def record_model(self, scenario):
+        """The record's model (the detection chain's) of the base or a stepped scenario."""
+        return self.system_of(scenario).chain.model
+
+
+@dataclasses.dataclass(frozen=True)
+class _Built:
+    """The linear model and detection chain of a stepped scenario."""
+
+    model: object
+    chain: object
 
 
 def fisher_blocks(model_of, scenario, groups, omega, *, carrier_rad_s=None,
