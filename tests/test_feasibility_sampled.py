@@ -125,3 +125,22 @@ def test_bound_reports_its_rate_and_method(demo):
     assert bound.method == "pole-residue"
     with pytest.raises(Exception, match="sample_rate_hz"):
         occupation_bound(demo, sample_rate_hz=-1.0)
+
+
+def test_bound_at_an_exceptional_point_uses_the_resolvent_and_says_so():
+    """At g = (κ − Γm)/4 (no eigenvector basis) the bound comes from the resolvent with
+    the aliases summed, names that in its method, and agrees with the pole-residue
+    bound a relative 10⁻³ away in g (the bound is smooth through the point)."""
+    from test_record_recursions import MODE_SETS, chain_scenario
+
+    kappa, gamma = 200e3, 30.0
+    values = {}
+    for delta in (0.0, 1e-3):
+        scenario = chain_scenario(receiver="iq", bandwidth_hz=0.6e6, current_noise=3e-12,
+                                  amplifier=0.0, laser="none", modes=MODE_SETS["one"],
+                                  g_hz=(kappa - gamma) / 4 * (1 + delta))
+        values[delta] = occupation_bound(scenario)
+    assert "resolvent" in values[0.0].method and "condition" in values[0.0].method
+    assert values[1e-3].method == "pole-residue"
+    assert values[0.0].error_one_second == pytest.approx(values[1e-3].error_one_second,
+                                                         rel=3e-3)

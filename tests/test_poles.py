@@ -175,3 +175,26 @@ def test_approaching_the_exceptional_point_stays_exact_or_falls_back():
         assert relative_error(form.spectrum(omega)[0], model.output_spectrum(omega)) < RTOL
         fell_back.append(not form.exact)
     assert fell_back[:3] == [False] * 3 and fell_back[-2:] == [True] * 2
+
+
+def test_fallback_if_record_equals_the_record_density():
+    """The resolvent fallback carries the projection and the carrier of an if record:
+    at an exceptional point its continuous density equals the chain's record_spectrum
+    and its sampled one the alias sum; its lines still lay a grid in the band."""
+    kappa, gamma = 200e3, 30.0
+    scenario = record_chain_scenario(receiver="if", bandwidth_hz=None, current_noise=0.0,
+                                     amplifier=0.0, laser="none", modes=MODE_SETS["one"],
+                                     g_hz=(kappa - gamma) / 4)
+    chain = System(scenario).chain
+    assert chain.receiver == "if"
+    continuous = chain.channel_form()
+    assert not continuous.exact
+    f = np.linspace(1e4, 4e6, 301)
+    np.testing.assert_allclose(continuous.spectrum(-2 * np.pi * f)[0, :, 0, 0].real,
+                               chain.record_spectrum(f), rtol=1e-12)
+    fs = automatic_sample_rate(chain, scenario.detection.intermediate_frequency_hz)
+    g = f[f < fs / 2][::10]
+    np.testing.assert_allclose(chain.sampled_channel_matrix(g, fs)[:, 0, 0].real,
+                               chain.sampled_spectrum(g, fs), rtol=1e-9)
+    centres, widths = chain.channel_form(fs).lines()
+    assert np.all(np.abs(centres) <= np.pi * fs * (1 + 1e-12)) and np.all(widths > 0)

@@ -27,6 +27,9 @@ from simulator.errors import InputError, ScenarioError
 POINTS_PER_DECADE = 32  # log-spaced offsets around each line (trapezoid error < 1e-3)
 CLOSEST = 1e-2  # smallest offset from a line centre, in its half-widths
 COARSE_POINTS = 201  # uniform points across the band
+# aliases either side when the resolvent stands in for the poles (near an exceptional
+# point): truncation ~aliases⁻³ ≈ 1e-5 of S, smooth in θ, far below what a bound needs
+FALLBACK_ALIASES = 40
 
 
 def steps(scenario, path):
@@ -152,7 +155,8 @@ def fisher_blocks(model_of, scenario, groups, omega, *, carrier_rad_s=None,
     from simulator.model.poles import channel_form
 
     def form_of(model):
-        return channel_form(model, carrier_rad_s=carrier_rad_s, sample_rate_hz=sample_rate_hz)
+        return channel_form(model, carrier_rad_s=carrier_rad_s, sample_rate_hz=sample_rate_hz,
+                            aliases=FALLBACK_ALIASES)
 
     steps_of = steps_of or (lambda path: steps(scenario, path))
     paths = list(dict.fromkeys(p for group in groups for p in group))

@@ -31,7 +31,8 @@ evaluates all of them; per budget term (a group of inputs) only the residues
 change. The eigenvectors are verified before use: where their condition
 number exceeds ``POLE_MAX_CONDITION`` or V Λ V⁻¹ misses A by more than
 ``POLE_RECONSTRUCTION_RTOL`` (repeated poles close to an exceptional point),
-the form falls back to the resolvent (batched solves, aliases summed to
+the form falls back to the resolvent (batched solves; sampled through the
+discrete-time resolvent, or for a carried if record by the alias sum to
 ``FALLBACK_ALIASES``) and says so in ``method``.
 
 References
@@ -71,6 +72,7 @@ class PoleForm:
     period: float | None = None  # T of integrate-and-dump samples; None: continuous
     method: str = "pole-residue"
     fallback: object = None  # f(omega) → (g, W, p, p) when the eigenvectors failed
+    source: tuple | None = None  # (model, groups) of a fallback not yet projected or carried
 
     @property
     def exact(self):
@@ -111,14 +113,21 @@ class PoleForm:
     def _white_packed(self):
         return _pack(self.white).reshape(-1)
 
-    def sampled(self, sample_rate_hz):
-        """The form of the integrate-and-dump samples at ``sample_rate_hz`` (see module)."""
+    def sampled(self, sample_rate_hz, aliases=FALLBACK_ALIASES):
+        """The form of the integrate-and-dump samples at ``sample_rate_hz`` (see module).
+
+        ``aliases``: how many the resolvent fallback sums either side (its
+        truncation error falls as aliases⁻³; the pole form sums all exactly).
+        """
         if self.period is not None:
             raise ValueError("this form is already sampled")
         t = 1.0 / float(sample_rate_hz)
-        if self.fallback is not None:
-            return dataclasses.replace(self, period=t, fallback=_aliased(
-                self.fallback, self.white, t))
+        if self.fallback is not None:  # the poles kept only to lay grids (:meth:`lines`)
+            exact = self.source is not None  # the model's own outputs: sampled exactly
+            spectrum = (_sampled_resolvent(*self.source, t) if exact
+                        else _aliased(self.fallback, self.white, t, aliases))
+            return dataclasses.replace(self, poles=np.exp(self.poles * t), period=t,
+                                       fallback=spectrum, source=None)
         x = self.poles * t
         w = np.exp(x)
         small = np.abs(x) < _SERIES_BELOW
@@ -136,12 +145,12 @@ class PoleForm:
         """The form of the scalar c·y (``c`` a vector over the outputs): c S c†."""
         c = np.asarray(c, dtype=complex)
         scalar = lambda m: np.einsum("i,...ij,j->...", c, m, c.conj())[..., None, None]  # noqa: E731
-        if self.fallback is not None:
-            base = self.fallback
-            return dataclasses.replace(self, white=scalar(self.white),
-                                       fallback=lambda w: scalar(base(w)))
-        return dataclasses.replace(self, residues=scalar(self.residues),
-                                   white=scalar(self.white))
+        projected = dataclasses.replace(self, residues=scalar(self.residues),
+                                        white=scalar(self.white), source=None)
+        if self.fallback is None:
+            return projected
+        base = self.fallback
+        return dataclasses.replace(projected, fallback=lambda w: scalar(base(w)))
 
     def real_carrier(self, theta_rad_s):
         """Scalar form of r = e^{iθt}u + c.c. for this (scalar) envelope u, time-averaged.
@@ -152,14 +161,15 @@ class PoleForm:
         if self.residues.shape[-1] != 1 or self.period is not None:
             raise ValueError("real_carrier needs a continuous scalar form (project first)")
         t = float(theta_rad_s)
-        if self.fallback is not None:
-            base = self.fallback
-            return dataclasses.replace(self, white=2 * self.white.real + 0j,
-                                       fallback=lambda w: (base(t + w) + base(t - w)).real + 0j)
-        return dataclasses.replace(
+        carried = dataclasses.replace(
             self, poles=np.concatenate([self.poles + 1j * t, self.poles.conj() - 1j * t]),
             residues=np.concatenate([self.residues, self.residues.conj()], axis=1),
-            white=2 * self.white.real + 0j)
+            white=2 * self.white.real + 0j, source=None)
+        if self.fallback is None:
+            return carried
+        base = self.fallback
+        return dataclasses.replace(carried,
+                                   fallback=lambda w: (base(t + w) + base(t - w)).real + 0j)
 
     def lines(self):
         """Centres and half-widths (rad/s) of the spectrum's lines, on its own axis.
@@ -192,7 +202,7 @@ def pole_form(model, groups=None):
         return PoleForm(poles=lam, residues=np.zeros((len(groups), 0, len(model.outputs),
                                                       len(model.outputs)), complex),
                         white=white, method=f"resolvent ({problem})",
-                        fallback=_resolvent(model, groups))
+                        fallback=_resolvent(model, groups), source=(model, groups))
     left = model.C @ vec  # (p, n)
     gap = -(lam[:, None] + lam.conj()[None, :])  # −λ_k − λ_l*, Re > 0 when stable
     residues = []
@@ -205,17 +215,19 @@ def pole_form(model, groups=None):
     return PoleForm(poles=lam, residues=np.array(residues), white=white)
 
 
-def channel_form(model, *, carrier_rad_s=None, sample_rate_hz=None, groups=None):
+def channel_form(model, *, carrier_rad_s=None, sample_rate_hz=None, groups=None,
+                 aliases=FALLBACK_ALIASES):
     """:func:`pole_form` of a record's channels: as given, or one real photocurrent.
 
     With ``carrier_rad_s`` θ the model's two outputs are the envelope u of
     r = e^{iθt}u + c.c. and the form is that of r (:meth:`PoleForm.real_carrier`);
-    with ``sample_rate_hz``, that of the integrate-and-dump samples.
+    with ``sample_rate_hz``, that of the integrate-and-dump samples (``aliases``
+    for the resolvent fallback only).
     """
     form = pole_form(model, groups)
     if carrier_rad_s is not None:
         form = form.project(np.array([1.0, 1.0j])).real_carrier(carrier_rad_s)
-    return form if sample_rate_hz is None else form.sampled(sample_rate_hz)
+    return form if sample_rate_hz is None else form.sampled(sample_rate_hz, aliases)
 
 
 def verified_eigenbasis(a):
@@ -285,15 +297,51 @@ def _resolvent(model, groups):
     return lambda omega: np.array([m.output_spectrum(omega) for m in parts])
 
 
-def _aliased(continuous, white, period):
+def _sampled_resolvent(model, groups, period):
+    """Integrate-and-dump density of the outputs by the discrete-time resolvent, per group.
+
+    With Φ = e^{AT}, Ψ = ∫₀ᵀ e^{As} ds, Ξ = ∫₀ᵀ (T − s) e^{As} ds (one block
+    exponential, Van Loan, IEEE Trans. Autom. Control 23, 395 (1978)) and
+    M = Σ Cᵀ + B N Dᵀ, the lag-j covariance of the samples is C Φ^{j−1} Ψ² M/T²
+    for j ≥ 1, so S_T(ω) = D N Dᵀ + [C Ξ M + C (e^{−iωT} − Φ)⁻¹ Ψ² M + h.c.]/T:
+    every alias, with a linear solve per frequency and no eigenvectors.
+    """
+    import scipy.linalg
+
+    n = model.A.shape[0]
+    block = np.zeros((3 * n, 3 * n))
+    block[:n, :n], block[:n, n:2 * n], block[n:2 * n, 2 * n:] = model.A, np.eye(n), np.eye(n)
+    e = scipy.linalg.expm(block * period)
+    phi, psi, xi = e[:n, :n], e[:n, n:2 * n], e[:n, 2 * n:]
+    parts = []
+    for g in groups:
+        b, n_g, d = _sub(model.B, g), _block(model.N, g), _sub(model.D, g)
+        sigma = scipy.linalg.solve_continuous_lyapunov(model.A, -(b @ n_g @ b.T))
+        m = sigma @ model.C.T + b @ n_g @ d.T
+        k0 = model.C @ xi @ m / period
+        parts.append((d @ n_g @ d.T + k0 + k0.T, psi @ psi @ m / period))
+
+    def spectrum(omega):
+        u = np.exp(-1j * omega * period)[:, None, None]
+        out = []
+        for constant, right in parts:
+            x = model.C @ np.linalg.solve(u * np.eye(n) - phi, np.broadcast_to(
+                right, (omega.size,) + right.shape))
+            out.append(constant + x + np.conj(np.swapaxes(x, -1, -2)))
+        return np.array(out)
+
+    return spectrum
+
+
+def _aliased(continuous, white, period, aliases):
     """Integrate-and-dump density by the alias sum Σ_m [S(ω + mω_s) − S_∞] sinc² + S_∞.
 
     The white part's aliases sum to itself exactly (Σ_m sinc²(x + m) = 1);
     the rest falls at least as 1/ω³ after the sinc² and is summed over
-    |m| ≤ ``FALLBACK_ALIASES``, symmetrically.
+    |m| ≤ ``aliases``, symmetrically.
     """
     ws = 2 * np.pi / period
-    m = np.arange(-FALLBACK_ALIASES, FALLBACK_ALIASES + 1)
+    m = np.arange(-int(aliases), int(aliases) + 1)
 
     def spectrum(omega):
         total = np.broadcast_to(white[:, None], (white.shape[0], omega.size)
