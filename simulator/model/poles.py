@@ -48,6 +48,14 @@ import functools
 
 import numpy as np
 
+from simulator.model.pole_fallback import (
+    aliased_spectra,
+    block_of,
+    columns_of,
+    resolvent_spectra,
+    sampled_resolvent_spectra,
+)
+
 POLE_MAX_CONDITION = 1e5  # eigenvector condition above which the residues lose 1e-10
 POLE_RECONSTRUCTION_RTOL = 1e-12  # largest accepted error of V Λ V⁻¹ against A, relative
 FALLBACK_ALIASES = 400  # aliases summed either side by the resolvent fallback
@@ -124,8 +132,8 @@ class PoleForm:
         t = 1.0 / float(sample_rate_hz)
         if self.fallback is not None:  # the poles kept only to lay grids (:meth:`lines`)
             exact = self.source is not None  # the model's own outputs: sampled exactly
-            spectrum = (_sampled_resolvent(*self.source, t) if exact
-                        else _aliased(self.fallback, self.white, t, aliases))
+            spectrum = (sampled_resolvent_spectra(*self.source, t) if exact
+                        else aliased_spectra(self.fallback, self.white, t, aliases))
             return dataclasses.replace(self, poles=np.exp(self.poles * t), period=t,
                                        fallback=spectrum, source=None)
         x = self.poles * t
@@ -195,19 +203,19 @@ def pole_form(model, groups=None):
         taken as uncorrelated); default one group of every input.
     """
     groups = [tuple(range(len(model.inputs)))] if groups is None else [tuple(g) for g in groups]
-    white = np.array([_sub(model.D, g) @ _block(model.N, g) @ _sub(model.D, g).T
+    white = np.array([columns_of(model.D, g) @ block_of(model.N, g) @ columns_of(model.D, g).T
                       for g in groups]).astype(complex)
     lam, vec, inv, problem = verified_eigenbasis(model.A)
     if problem:
         return PoleForm(poles=lam, residues=np.zeros((len(groups), 0, len(model.outputs),
                                                       len(model.outputs)), complex),
                         white=white, method=f"resolvent ({problem})",
-                        fallback=_resolvent(model, groups), source=(model, groups))
+                        fallback=resolvent_spectra(model, groups), source=(model, groups))
     left = model.C @ vec  # (p, n)
     gap = -(lam[:, None] + lam.conj()[None, :])  # −λ_k − λ_l*, Re > 0 when stable
     residues = []
     for g in groups:
-        q, n_g, d_g = inv @ _sub(model.B, g), _block(model.N, g), _sub(model.D, g)
+        q, n_g, d_g = inv @ columns_of(model.B, g), block_of(model.N, g), columns_of(model.D, g)
         qn = q @ n_g
         sigma = (qn @ q.conj().T) / gap  # modal stationary covariance
         r = sigma @ left.conj().T + qn @ d_g.T  # (n, p)
@@ -275,86 +283,6 @@ def _expm1(z):
     """e^z − 1 for complex z without cancellation at small |z|."""
     a, b = z.real, z.imag
     return (np.expm1(a) * np.cos(b) - 2 * np.sin(b / 2) ** 2) + 1j * np.exp(a) * np.sin(b)
-
-
-def _sub(matrix, columns):
-    return matrix[:, list(columns)]
-
-
-def _block(matrix, indices):
-    idx = list(indices)
-    return matrix[np.ix_(idx, idx)]
-
-
-def _resolvent(model, groups):
-    """Spectra per group by the resolvent (batched solves): the fallback."""
-    from simulator.model.statespace import StateSpace
-
-    parts = [StateSpace(A=model.A, B=_sub(model.B, g), N=_block(model.N, g),
-                        C=model.C, D=_sub(model.D, g), states=model.states,
-                        inputs=tuple(model.inputs[i] for i in g), outputs=model.outputs)
-             for g in groups]
-    return lambda omega: np.array([m.output_spectrum(omega) for m in parts])
-
-
-def _sampled_resolvent(model, groups, period):
-    """Integrate-and-dump density of the outputs by the discrete-time resolvent, per group.
-
-    With Φ = e^{AT}, Ψ = ∫₀ᵀ e^{As} ds, Ξ = ∫₀ᵀ (T − s) e^{As} ds (one block
-    exponential, Van Loan, IEEE Trans. Autom. Control 23, 395 (1978)) and
-    M = Σ Cᵀ + B N Dᵀ, the lag-j covariance of the samples is C Φ^{j−1} Ψ² M/T²
-    for j ≥ 1, so S_T(ω) = D N Dᵀ + [C Ξ M + C (e^{−iωT} − Φ)⁻¹ Ψ² M + h.c.]/T:
-    every alias, with a linear solve per frequency and no eigenvectors.
-    """
-    import scipy.linalg
-
-    n = model.A.shape[0]
-    block = np.zeros((3 * n, 3 * n))
-    block[:n, :n], block[:n, n:2 * n], block[n:2 * n, 2 * n:] = model.A, np.eye(n), np.eye(n)
-    e = scipy.linalg.expm(block * period)
-    phi, psi, xi = e[:n, :n], e[:n, n:2 * n], e[:n, 2 * n:]
-    parts = []
-    for g in groups:
-        b, n_g, d = _sub(model.B, g), _block(model.N, g), _sub(model.D, g)
-        sigma = scipy.linalg.solve_continuous_lyapunov(model.A, -(b @ n_g @ b.T))
-        m = sigma @ model.C.T + b @ n_g @ d.T
-        k0 = model.C @ xi @ m / period
-        parts.append((d @ n_g @ d.T + k0 + k0.T, psi @ psi @ m / period))
-
-    def spectrum(omega):
-        u = np.exp(-1j * omega * period)[:, None, None]
-        out = []
-        for constant, right in parts:
-            x = model.C @ np.linalg.solve(u * np.eye(n) - phi, np.broadcast_to(
-                right, (omega.size,) + right.shape))
-            out.append(constant + x + np.conj(np.swapaxes(x, -1, -2)))
-        return np.array(out)
-
-    return spectrum
-
-
-def _aliased(continuous, white, period, aliases):
-    """Integrate-and-dump density by the alias sum Σ_m [S(ω + mω_s) − S_∞] sinc² + S_∞.
-
-    The white part's aliases sum to itself exactly (Σ_m sinc²(x + m) = 1);
-    the rest falls at least as 1/ω³ after the sinc² and is summed over
-    |m| ≤ ``aliases``, symmetrically.
-    """
-    ws = 2 * np.pi / period
-    m = np.arange(-int(aliases), int(aliases) + 1)
-
-    def spectrum(omega):
-        total = np.broadcast_to(white[:, None], (white.shape[0], omega.size)
-                                + white.shape[1:]).astype(complex)
-        for chunk in np.array_split(m, max(1, m.size // 64)):
-            shifted = (omega[:, None] + chunk * ws).reshape(-1)
-            s = continuous(shifted) - white[:, None]
-            s = s.reshape((s.shape[0], omega.size, chunk.size) + s.shape[2:])
-            sinc2 = np.sinc(shifted / ws).reshape(omega.size, chunk.size) ** 2
-            total = total + np.einsum("gwm...,wm->gw...", s, sinc2)
-        return total
-
-    return spectrum
 
 
 def _hermitian_coefficients(residues):
