@@ -144,3 +144,24 @@ def test_bound_at_an_exceptional_point_uses_the_resolvent_and_says_so():
     assert values[1e-3].method == "pole-residue"
     assert values[0.0].error_one_second == pytest.approx(values[1e-3].error_one_second,
                                                          rel=3e-3)
+
+
+def test_if_record_information_of_the_samples_equals_the_alias_sum_route(demo):
+    """The one real photocurrent at f_IF = 8 MHz, sampled: the information from the
+    carried and sampled pole form equals ∫_0^{fs/2} (∂S/S)² df with S the chain's own
+    sampled density (DetectionChain.sampled_spectrum: aliases of the time-averaged
+    photocurrent density × sinc², a second route) differenced whole, on the same grid."""
+    from simulator.analysis.feasibility import _grid, _sample_rate
+
+    scenario = demo.replace("detection.intermediate_frequency_hz", 8e6)
+    scenario = scenario.replace("record.kind", "if")
+    system = System(scenario)
+    fs = _sample_rate(system)
+    f = _grid(system, fs)[::5] / (2 * np.pi)
+    f = f[(f > 0) & (f < fs / 2)]
+    path = default_paths(scenario)[0]
+    up, down, span = steps(scenario, path)
+    density = lambda s: System(s).chain.sampled_spectrum(f, fs, aliases=100)  # noqa: E731
+    ratio = (density(up) - density(down)) / span / density(scenario)
+    direct = np.trapezoid(ratio**2, f)
+    assert fisher_matrix(system, [path], frequency_hz=f)[0, 0] == pytest.approx(direct, rel=1e-4)
