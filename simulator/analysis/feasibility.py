@@ -9,13 +9,16 @@ over the record's frequency axis (two-sided for IQ heterodyne, f ≥ 0 for a
 real record): every 1/T-wide bin of the periodogram is exponentially
 distributed about S. So the information grows linearly in T and everything
 below is quoted per unit time (1/s); the Cramér–Rao bound on θ_i after T is
-√((F₁⁻¹)_ii / T).
+√((F₁⁻¹)_ii / T). S is that of the samples actually recorded: the
+integrate-and-dump digitiser's spectral matrix of the record's real channels
+on |f| < fs/2 (aliased × sinc², :mod:`simulator.analysis.information`).
 
 Two uses:
 - :func:`fisher_matrix`: information about any scenario parameters (by path:
-  bath occupation or temperature, coupling, efficiency, ...) from the EXACT
-  analytic spectrum, derivatives by central differences of re-solved models;
-  :func:`occupation_bound` turns it into the bound on the mode occupation.
+  bath occupation or temperature, coupling, efficiency, ...) from the exact
+  analytic spectrum of the samples, derivatives by central differences of
+  re-solved models; :func:`occupation_bound` turns it into the bound on the
+  mode occupation.
 - :func:`asymmetry_time`: time to separate the quantum sideband asymmetry
   from zero at a chosen significance. In the reference lineshape model of
   :mod:`simulator.analysis.thermometry` the cavity-corrected areas are
