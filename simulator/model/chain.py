@@ -39,6 +39,7 @@ Yuen and Chan, Opt. Lett. 8, 177 (1983) (balanced homodyne detection).
 """
 
 import dataclasses
+import functools
 
 import numpy as np
 
@@ -48,7 +49,11 @@ from simulator.model.statespace import StateSpace
 from simulator.model.units import angular, ordinary
 from simulator.scenario.receiver import amplifier_added_quanta
 
-OVERSAMPLING = 2.5  # automatic sample rate: this many times the highest relevant frequency
+OVERSAMPLING = 2.5  # automatic sample rate: at least this many times the highest relevant frequency
+# ... and high enough that the integrate-and-dump sinc²(f/fs) keeps this share of the
+# highest line: our choice, so that the digitiser costs a planned record no more than
+# 5 % of its signal (2.5× alone kept 74 % of a line at 0.3 fs)
+LINE_SINC2 = 0.95
 
 
 @dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
@@ -174,6 +179,33 @@ class DetectionChain:
     def white_density(self):
         """The record's two-sided density at high frequency (white noise; 0 behind a low-pass)."""
         return self._white_density()
+
+    def channel_form(self, sample_rate_hz=None, groups=None):
+        """:class:`~simulator.model.poles.PoleForm` of the record's real channels.
+
+        iq: the 2×2 matrix of I and Q; homodyne: the one channel; if: the one
+        real photocurrent r = e^{iθt}u + c.c. (time-averaged, image band
+        included). With ``sample_rate_hz``, the integrate-and-dump samples
+        (aliased × sinc², exact). Evaluate on the model's axis ω; the record's
+        FFT axis is f = −ω/2π (:meth:`record_spectrum`). ``groups`` (input
+        indices per budget term) splits it by source.
+        """
+        from simulator.model.poles import channel_form
+
+        return channel_form(self.model, groups=groups, sample_rate_hz=sample_rate_hz,
+                            carrier_rad_s=self.carrier_rad_s if self.receiver == "if" else None)
+
+    def sampled_channel_matrix(self, frequency_hz, sample_rate_hz):
+        """Spectral matrix of the stored samples' real channels on the record's FFT axis.
+
+        Shape ``(len(f), p, p)``, p = 2 (I, Q) for iq and 1 otherwise; |f| <
+        fs/2. Amplifier added noise, electronics and filter included; for iq
+        the off-diagonal is the I–Q cross density (the pseudo-spectrum of
+        I + iQ), for if the density of the one real photocurrent. See
+        :meth:`channel_form`; c S c† with c = (1, i) is :meth:`sampled_spectrum`.
+        """
+        f = np.asarray(frequency_hz, dtype=float).reshape(-1)
+        return self.channel_form(sample_rate_hz).spectrum(-angular(f))[0]
 
     def _white_density(self):
         d = self.model.D @ self.model.N @ self.model.D.T
@@ -390,30 +422,49 @@ def _add(a, b):
 
 
 def automatic_sample_rate(chain, intermediate_frequency_hz=0.0):
-    """Sample rate (Hz) that takes in every resonance of the cavity and mechanics.
+    """Sample rate (Hz) that takes in every resonance and keeps 95 % of every line.
 
     Each eigenvalue λ of the cavity–mechanics drift is a line at |Im λ| with
-    half-width |Re λ|; the highest relevant frequency is the largest
-    |Im λ| + 3|Re λ|, plus the intermediate frequency for a real if record.
-    The rate is 2.5 times that (complex baseband: the band ±fs/2; real: 0 to
-    fs/2), rounded up to 1, 2, 2.5 or 5 times a power of ten.
+    half-width |Re λ| (plus the intermediate frequency for a real if record).
+    The rate is the larger of
+
+    - 2.5 times the highest relevant frequency, the largest |Im λ| + 3|Re λ|
+      (the band ±fs/2, or 0 to fs/2 for a real record, holds every line with
+      its wings), and
+    - the rate at which the integrate-and-dump response sinc²(f/fs) is
+      ``LINE_SINC2`` = 0.95 at the highest line centre, fs = f/x₀ with
+      sinc²(x₀) = 0.95, x₀ ≈ 0.124 (about 8 samples per period of the
+      fastest line),
+
+    rounded up to 1, 1.25, 1.5, 2, 2.5, 3, 4, 5, 6 or 8 times a power of ten.
     """
     lam = device_eigenvalues(chain.model, also=("filter",))
-    top = float(ordinary(np.max(np.abs(lam.imag) + 3.0 * np.abs(lam.real))))
-    if chain.receiver == "if":
-        top += float(intermediate_frequency_hz)
-    return _round_up(OVERSAMPLING * top)
+    shift = float(intermediate_frequency_hz) if chain.receiver == "if" else 0.0
+    top = float(ordinary(np.max(np.abs(lam.imag) + 3.0 * np.abs(lam.real)))) + shift
+    line = float(ordinary(np.max(np.abs(lam.imag)))) + shift
+    return _round_up(max(OVERSAMPLING * top, line / _line_fraction()))
+
+
+@functools.cache
+def _line_fraction():
+    """x₀ = f/fs at which sinc²(x₀) = ``LINE_SINC2`` (sinc(x) = sin πx/(πx))."""
+    from scipy.optimize import brentq
+
+    return float(brentq(lambda x: np.sinc(x) ** 2 - LINE_SINC2, 1e-9, 0.5, xtol=1e-14))
 
 
 def record_sample_rate(scenario, chain):
-    """The record's sample rate (Hz): the digitiser's, else :func:`automatic_sample_rate`."""
+    """The record's sample rate (Hz): ``digitizer.sample_rate_hz`` or the automatic one."""
     return float(scenario.digitizer.sample_rate_hz
                  or automatic_sample_rate(chain, scenario.detection.intermediate_frequency_hz))
 
 
+_RATE_STEPS = (1.0, 1.25, 1.5, 2.0, 2.5, 3.0, 4.0, 5.0, 6.0, 8.0, 10.0)  # at most 25 % over
+
+
 def _round_up(x):
     decade = 10.0 ** np.floor(np.log10(x))
-    for step in (1.0, 2.0, 2.5, 5.0, 10.0):
+    for step in _RATE_STEPS:
         if step * decade >= x * (1 - 1e-12):
             return float(step * decade)
     return float(10 * decade)
