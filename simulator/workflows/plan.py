@@ -319,3 +319,16 @@ def _map(found, coords, evaluate_many):
             point[j] = v
         points.append(tuple(point))
     return tuple(coords[j] for j in spanning), tuple(evaluate_many(points))
+
+
+def plan_part(scenario, out, wrote, figures):
+    """The run's plan: ``plan.json``, the map ``plan.png`` and the report section (HTML)."""
+    from simulator.io import jsontext
+    from simulator.io.files import atomic_write_text
+    from simulator.report.plan_plots import plan_html, plot_plan
+
+    data = jsontext.plain(plan_scenario(scenario).to_dict())
+    atomic_write_text(wrote(out / "plan.json"), jsontext.dumps(data, indent=2))
+    if data["map"]["axes"]:
+        figures.append(wrote(plot_plan(data, out / "plan.png", overwrite=True)))
+    return plan_html(data)

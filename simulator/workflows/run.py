@@ -89,7 +89,11 @@ def _run(scenario, out, workers, dask, progress):
 
     if scenario.sweep is not None:
         sections.append(("Sweep", _sweep_part(scenario, out, wrote, figures, workers, dask,
-                                              progress)))
+                                              progress) + _sweep_optima_part(out, data)))
+    if scenario.plan is not None:
+        from simulator.workflows.plan import plan_part
+
+        sections.append(("Best operating point", plan_part(scenario, out, wrote, figures)))
 
     sections.append(("Figures", "\n".join(html.png_tag(p, p.name) for p in figures)
                      or "<p>No figures.</p>"))
@@ -234,3 +238,22 @@ def _sweep_part(scenario, out, wrote, figures, workers, dask, progress):
     dims = ", ".join(f"{d} ({n})" for d, n in dataset["stable"].sizes.items())
     return (f"<p>{dataset['stable'].size} points over {html.escape(dims)}; "
             f"{unstable} unstable, {failed} failed. Dataset: sweep/sweep.nc.</p>")
+
+
+def _sweep_optima_part(out, data):
+    """The sweep's best points beside the scenario's own (its inspection's numbers)."""
+    import xarray as xr
+
+    from simulator.workflows.sweep_optimum import caveats, compare_own
+
+    with xr.open_dataset(out / "sweep" / "sweep.nc") as dataset:
+        optima = jsontext.loads(dataset.attrs.get("optima", "[]"))
+    rows = [[words, mode, "—" if mine is None else mine, best,
+             "—" if ratio is None else ratio, "; ".join(caveats(e)) or "—"]
+            for (words, mode, mine, best, ratio), e in zip(
+                compare_own(optima, data["modes"], data.get("feasibility", [])), optima,
+                strict=True)]
+    if not rows:
+        return ""
+    return html.table(rows, header=["figure of merit", "mode", "scenario's own point",
+                                    "best on the sweep", "own / best", "where the best is"])

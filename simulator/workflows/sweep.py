@@ -314,6 +314,9 @@ def run_sweep(scenario, out, *, workers=None, dask=None, progress=True):
                                   workers=workers, dask=dask, progress=progress, desc="sweep",
                                   unit="pt")
         dataset = assemble(scenario, axes, points, results)
+        from simulator.workflows.sweep_optimum import optima_json
+
+        dataset.attrs["optima"] = optima_json(dataset)  # best point per figure of merit
         write_dataset(dataset, out / "sweep.nc")
     return dataset
 
