@@ -273,3 +273,21 @@ def test_plan_verb_in_a_fresh_interpreter(tmp_path):
 def test_scenario_reference_loads_plan_of_bundled_drum():
     scenario = load_scenario(SCENARIOS / "drum_microwave_mK.toml")
     assert scenario.plan is None  # the bundled scenarios carry no plan: nothing changes
+
+
+@pytest.mark.parametrize("d", [-2.0, -4.0, -9.0])
+def test_bistable_window_against_the_branches(d):
+    from conftest import scenario_for_cubic
+
+    from simulator.model.operating_point import bistable_drive_window, operating_point
+
+    low, high = bistable_drive_window(d)
+    for p, branches in ((0.95 * low, 1), (np.sqrt(low * high), 3), (1.05 * high, 1)):
+        assert len(operating_point(scenario_for_cubic(d=d, p=p)).branches) == branches
+    assert np.isnan(bistable_drive_window(-1.7)[0])  # above −√3: never bistable
+    # 5 % below the window: inside a 10 % margin, outside a 1 % one
+    from simulator.workflows.plan import _near_bistable
+
+    near = scenario_for_cubic(d=d, p=0.95 * low)
+    point = operating_point(near)
+    assert _near_bistable(near, point, 0.1) and not _near_bistable(near, point, 0.01)

@@ -34,6 +34,9 @@ ACTIVE_TOLERANCE = 1e-3
 PENALTY = 50.0  # added to log(objective) at an infeasible point (e^50: never the best)
 REFINE_EVALUATIONS = 60  # objective evaluations of the local refinement at most
 REFINE_XATOL = 1e-3  # simplex size, in unit coordinates, at which the refinement stops
+# The refinement starts from this many of the best feasible grid points, no two of them
+# neighbours: an optimum that hugs a ragged constraint boundary has several local minima.
+REFINE_STARTS = 3
 
 
 @dataclasses.dataclass(frozen=True)
@@ -164,9 +167,11 @@ def search(evaluate, coordinates, *, evaluate_many=None, refine=True):
     refined = False
     continuous = [j for j, c in enumerate(coordinates) if not c.discrete and len(c.grid) > 1]
     if refine and continuous:
-        point, outcome = _refine(memo, coordinates, continuous, best, index)
-        if outcome.feasible and outcome.objective < best_outcome.objective:
-            best, best_outcome, refined = point, outcome, True
+        for start in _starts(feasible, outcomes, indices):
+            point, outcome = _refine(memo, coordinates, continuous, values[start],
+                                     indices[start])
+            if outcome.feasible and outcome.objective < best_outcome.objective:
+                best, best_outcome, refined = point, outcome, True
     flatness = _flatness(memo, coordinates, continuous, best, best_outcome)
     nearby = [o for v, o in seen.items() if _within_a_cell(coordinates, v, best)]
     active = active_constraints(best_outcome, nearby + [p.outcome for p in flatness])
@@ -175,6 +180,18 @@ def search(evaluate, coordinates, *, evaluate_many=None, refine=True):
                       < 1 - REFINE_XATOL)
     return Search(coordinates, values, outcomes, best, best_outcome, index, refined,
                   len(seen), flatness=flatness, active=active, at_bounds=at_bounds)
+
+
+def _starts(feasible, outcomes, indices):
+    """The best feasible grid points, best first, no two of them grid neighbours."""
+    chosen = []
+    for k in sorted(feasible, key=lambda j: outcomes[j].objective):
+        if all(max(abs(a - b) for a, b in zip(indices[k], indices[c], strict=True)) > 1
+               for c in chosen):
+            chosen.append(k)
+        if len(chosen) == REFINE_STARTS:
+            break
+    return chosen
 
 
 def _cell(coordinate):
@@ -219,8 +236,37 @@ def _refine(memo, coordinates, continuous, start, index):
     result = minimize(cost, u0, method="Nelder-Mead", bounds=bounds,
                       options={"initial_simplex": np.array(simplex), "xatol": REFINE_XATOL,
                                "fatol": 1e-6, "maxfev": REFINE_EVALUATIONS})
-    point = point_of(result.x)
+    u = _pattern_polish(cost, result.x, bounds, cells.min() / 4)
+    point = point_of(u)
     return point, memo(point)
+
+
+def _pattern_polish(cost, u, bounds, step):
+    """Pattern search from ``u``: a move along any of the 3ⁿ − 1 compass and diagonal
+    directions that lowers the cost is taken, else the step halves, down to REFINE_XATOL.
+
+    A simplex stalls in the corner where two constraint boundaries meet at an acute
+    angle (the cusp of a bistable region beside an unstable one); the diagonal
+    moves of this search reach into it (Kolda, Lewis and Torczon, SIAM Rev. 45, 385
+    (2003), generating set search).
+    """
+    low, high = np.array([b[0] for b in bounds]), np.array([b[1] for b in bounds])
+    dims = len(u)
+    directions = [np.array(d, float) for d in itertools.product((-1, 0, 1), repeat=dims)
+                  if any(d)] if dims <= 3 else list(np.vstack([np.eye(dims), -np.eye(dims)]))
+    u, here = np.asarray(u, float), cost(u)
+    budget = REFINE_EVALUATIONS
+    while step >= REFINE_XATOL and budget > 0:
+        for d in directions:
+            trial = np.clip(u + step * d, low, high)
+            budget -= 1
+            value = cost(trial)
+            if value < here:
+                u, here = trial, value
+                break
+        else:
+            step /= 2
+    return u
 
 
 def penalised(outcome):

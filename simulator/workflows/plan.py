@@ -181,32 +181,34 @@ def _heated(scenario, plan):
     return scenario
 
 
+# samples of the detuning across the margin (the bistable window is smooth in d)
+BISTABILITY_SAMPLES = 129
+
+
 def _near_bistable(scenario, point, margin):
     """True when the photon number is multivalued here or within ``margin`` of here.
 
-    The neighbours are the eight combinations of the drive power × (1, 1 ± margin)
-    and the detuning ± margin·max(|Δ|, κ/2) (κ/2 sets the scale on resonance).
+    Within the margin: drive power × (1 ± margin) and detuning ± margin·max(|Δ|, κ/2)
+    (κ/2 sets the scale on resonance). The bistable region in the plane of the
+    cubic's detuning d and drive strength P is known in closed form
+    (:func:`simulator.model.operating_point.bistable_drive_window`), so the
+    whole rectangle is checked, not a few of its points.
     """
-    from simulator.model.operating_point import operating_point
+    import numpy as np
+
+    from simulator.model.operating_point import bistable_drive_window, drive_strength
 
     if point.bistable:
         return True
-    if margin == 0 or scenario.drive.power_w == 0:
-        return False
-    power, detuning = scenario.drive.power_w, scenario.drive.detuning_hz
-    step = margin * max(abs(detuning), scenario.cavity.linewidth_hz / 2)
-    for factor in (1 - margin, 1.0, 1 + margin):
-        for shift in (-step, 0.0, step):
-            if factor == 1.0 and shift == 0.0:
-                continue
-            try:
-                near = scenario.replace("drive.power_w", power * factor).replace(
-                    "drive.detuning_hz", detuning + shift)
-            except ScenarioError:
-                continue  # beyond the limits of a valid scenario: nothing to operate there
-            if len(operating_point(near).branches) > 1:
-                return True
-    return False
+    if scenario.drive.detuning_reference != "bare" or scenario.drive.power_w == 0:
+        return False  # a detuning from the effective resonance has one solution
+    d, p = drive_strength(scenario)
+    step = margin * max(abs(d), 1.0)
+    detunings = np.linspace(d - step, d + step, BISTABILITY_SAMPLES)
+    low, high = bistable_drive_window(np.append(detunings, -np.sqrt(3.0) - 1e-12
+                                                if abs(d + np.sqrt(3.0)) <= step else d))
+    with np.errstate(invalid="ignore"):
+        return bool(np.any((low <= p * (1 + margin)) & (high >= p * (1 - margin))))
 
 
 def _grid_task(common, payload):
