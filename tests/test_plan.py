@@ -175,7 +175,7 @@ def test_heating_raises_the_bath_temperature_with_the_photon_number():
     scenario = _with_plan(MEMBRANE, """
 [plan]
 objective = "occupation"
-heating_k_per_photon = 1e-6
+heating_per_photon_k = 1e-6
 [plan.parameters]
 "drive.power_w" = [1e-6, 1e-5]
 """)
@@ -192,12 +192,12 @@ heating_k_per_photon = 1e-6
 def dataclass_replace(plan):
     import dataclasses
 
-    return dataclasses.replace(plan, heating_k_per_photon=0.0)
+    return dataclasses.replace(plan, heating_per_photon_k=0.0)
 
 
 def test_circulating_power_heating_needs_the_free_spectral_range():
     with pytest.raises(ScenarioError, match="free_spectral_range_hz"):
-        _with_plan(MEMBRANE, '[plan]\nheating_k_per_watt = 1.0\n[plan.parameters]\n'
+        _with_plan(MEMBRANE, '[plan]\nheating_k_per_w = 1.0\n[plan.parameters]\n'
                    '"drive.power_w" = [1e-6]\n')
 
 

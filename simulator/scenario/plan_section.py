@@ -63,19 +63,19 @@ class Plan:
     regime: str = param(
         "worst regime verdict of the linear engine accepted (simulator.master.regime)",
         choices=REGIME_LEVELS, default="marginal")
-    heating_k_per_photon: float = param(
+    heating_per_photon_k: float = param(
         "absorption heating: every mode's bath temperature rises by this per intracavity "
         "photon; 0: none", unit="K", check="nonnegative", default=0.0, high=1e6)
-    heating_k_per_watt: float = param(
+    heating_k_per_w: float = param(
         "absorption heating: every mode's bath temperature rises by this per watt of "
         "circulating power n̄·ħω·FSR (needs free_spectral_range_hz); 0: none", unit="K/W",
         check="nonnegative", default=0.0, high=1e12)
     free_spectral_range_hz: float | None = param(
         "free spectral range c/2L of the cavity, for the circulating power of "
-        "heating_k_per_watt", unit="Hz", check="positive", default=None, high=1e15)
+        "heating_k_per_w", unit="Hz", check="positive", default=None, high=1e15)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
-        if self.heating_k_per_watt > 0 and self.free_spectral_range_hz is None:
-            yield ("free_spectral_range_hz", "missing while heating_k_per_watt > 0; expected "
+        if self.heating_k_per_w > 0 and self.free_spectral_range_hz is None:
+            yield ("free_spectral_range_hz", "missing while heating_k_per_w > 0; expected "
                    "the free spectral range in Hz (circulating power = n̄·ħω·FSR)")

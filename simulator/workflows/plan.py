@@ -33,19 +33,7 @@ import time
 
 from simulator.analysis.planner import Coordinate, Outcome, search
 from simulator.errors import InputError, ScenarioError
-
-UNITS = {"asymmetry_time": "s", "occupation_error": "", "occupation": ""}
-
-
-def describe_objective(plan, mode_name):
-    """The objective in words, e.g. "time to resolve the asymmetry of drum at 5σ"."""
-    if plan.objective == "asymmetry_time":
-        return (f"time to resolve the sideband asymmetry of mode {mode_name} at "
-                f"{plan.significance:g} standard deviations")
-    if plan.objective == "occupation_error":
-        return (f"Cramér–Rao error of the occupation of mode {mode_name} after "
-                f"{plan.duration_s:g} s")
-    return f"steady-state occupation of mode {mode_name}"
+from simulator.workflows.plan_text import plan_dict, plan_text
 
 
 def base_of(scenario):
@@ -66,7 +54,7 @@ def check_plan(scenario):
                             "detection of both sidebands; expected scheme = \"heterodyne\" "
                             "or another objective", source=scenario.source,
                             key="plan.objective")
-    if plan.heating_k_per_photon > 0 or plan.heating_k_per_watt > 0:
+    if plan.heating_per_photon_k > 0 or plan.heating_k_per_w > 0:
         for i, mode in enumerate(scenario.mechanics):
             if mode.bath_temperature_k is None:
                 raise ScenarioError("the heating model raises a bath temperature; expected "
@@ -165,7 +153,7 @@ def _objective(system, plan):
 
 def _heated(scenario, plan):
     """The scenario with every bath temperature raised by the heating model."""
-    if plan.heating_k_per_photon == 0 and plan.heating_k_per_watt == 0:
+    if plan.heating_per_photon_k == 0 and plan.heating_k_per_w == 0:
         return scenario
     from simulator.model.operating_point import operating_point
     from simulator.model.units import photon_energy_j
@@ -173,7 +161,7 @@ def _heated(scenario, plan):
     point = operating_point(scenario)
     circulating_w = (point.photon_number * photon_energy_j(point.drive_frequency_hz)
                      * (plan.free_spectral_range_hz or 0.0))
-    rise = plan.heating_k_per_photon * point.photon_number + (plan.heating_k_per_watt
+    rise = plan.heating_per_photon_k * point.photon_number + (plan.heating_k_per_w
                                                               * circulating_w)
     for i, mode in enumerate(scenario.mechanics):
         scenario = scenario.replace(f"mechanics[{i}].bath_temperature_k",
@@ -238,14 +226,10 @@ class PlanResult:
 
     def to_dict(self):
         """Plain data for JSON (see :mod:`simulator.workflows.plan_text`)."""
-        from simulator.workflows.plan_text import plan_dict
-
         return plan_dict(self)
 
     def to_text(self):
         """Human-readable summary for the terminal."""
-        from simulator.workflows.plan_text import plan_text
-
         return plan_text(self.to_dict())
 
 

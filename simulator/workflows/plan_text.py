@@ -2,7 +2,18 @@
 
 import math
 
-from simulator.workflows.plan import UNITS, describe_objective
+UNITS = {"asymmetry_time": "s", "occupation_error": "", "occupation": ""}
+
+
+def describe_objective(plan, mode_name):
+    """The objective in words, e.g. "time to resolve the asymmetry of drum at 5σ"."""
+    if plan.objective == "asymmetry_time":
+        return (f"time to resolve the sideband asymmetry of mode {mode_name} at "
+                f"{plan.significance:g} standard deviations")
+    if plan.objective == "occupation_error":
+        return (f"Cramér–Rao error of the occupation of mode {mode_name} after "
+                f"{plan.duration_s:g} s")
+    return f"steady-state occupation of mode {mode_name}"
 
 
 def _point(coords, values):
