@@ -291,3 +291,24 @@ def test_bistable_window_against_the_branches(d):
     near = scenario_for_cubic(d=d, p=0.95 * low)
     point = operating_point(near)
     assert _near_bistable(near, point, 0.1) and not _near_bistable(near, point, 0.01)
+
+
+def test_worker_processes_give_the_same_plan():
+    scenario = _with_plan(DRUM, DRUM_POWER_PLAN.format(max_power=3e-11))
+    one = plan_scenario(scenario, refine=False)
+    two = plan_scenario(scenario, refine=False, workers=2)
+    assert [o.objective for o in two.found.grid_outcomes] == [
+        o.objective for o in one.found.grid_outcomes]
+    assert two.found.active == one.found.active
+
+
+def test_run_report_has_the_best_operating_point(tmp_path):
+    from simulator.workflows.run import run_scenario
+
+    scenario = _with_plan(DRUM, DRUM_POWER_PLAN.format(max_power=3e-11))
+    result = run_scenario(scenario, tmp_path / "run", progress=False, workers=1)
+    data = json.loads((tmp_path / "run" / "plan.json").read_text())
+    assert data["active_constraints"] == ["max_power_w"]
+    assert (tmp_path / "run" / "plan.png").stat().st_size > 0
+    page = result.report.read_text()
+    assert "Best operating point" in page and "scenario&#x27;s own point" in page

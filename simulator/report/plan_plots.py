@@ -27,10 +27,36 @@ def _where(point, axes):
     return [numbers.get(a["path"]) for a in axes]
 
 
-def _masks(data, shape):
-    names = list(dict.fromkeys(n for v in data["map"]["violated"] for n in v))
-    return {n: np.array([n in v for v in data["map"]["violated"]]).reshape(shape)
-            for n in names}
+def _fields(data, shape):
+    """Per constraint that some map point violates, a field that changes sign on its boundary.
+
+    A graded violation keeps its value (the boundary falls where it crosses zero,
+    linearly between grid points); a satisfied pass/fail constraint (0) becomes −1,
+    so its boundary falls half-way between a passing and a failing point.
+    """
+    fields = {}
+    for name, values in data["map"].get("violations", {}).items():
+        v = np.array([1.0 if x is None or not np.isfinite(x) else x for x in values])
+        if (v > 0).any():
+            fields[name] = np.where(v == 0, -1.0, v).reshape(shape)
+    return fields
+
+
+def _crossings(x, field):
+    """Excluded intervals along ``x`` (field > 0), with ends where it crosses zero."""
+    spans, start = [], x[0] if field[0] > 0 else None
+    for i in range(len(x) - 1):
+        a, b = field[i], field[i + 1]
+        if (a > 0) != (b > 0):
+            cross = x[i] + (x[i + 1] - x[i]) * a / (a - b)
+            if b > 0:
+                start = cross
+            else:
+                spans.append((start, cross))
+                start = None
+    if start is not None:
+        spans.append((start, x[-1]))
+    return spans
 
 
 def plot_plan(data, path, *, overwrite=False):
@@ -40,7 +66,7 @@ def plot_plan(data, path, *, overwrite=False):
         return None
     shape = tuple(len(a["numbers"]) for a in axes)
     objective = np.array(data["map"]["objective"], dtype=float).reshape(shape)
-    masks = _masks(data, shape)
+    fields = _fields(data, shape)
     best = _where(data.get("optimum"), axes)
     own = _where(data.get("own_point"), axes)
     units = f" ({data['units']})" if data["units"] else ""
@@ -48,14 +74,10 @@ def plot_plan(data, path, *, overwrite=False):
         fig, ax = subplots(figsize=(8, 4.5))
         x = np.asarray(axes[0]["numbers"])
         ax.plot(x, objective, "k-", lw=1.5, label="objective")
-        step = np.median(np.diff(x)) if x.size > 1 else 1.0
-        for k, (name, mask) in enumerate(masks.items()):
-            first = True
-            for xi, bad in zip(x, mask, strict=True):
-                if bad:
-                    ax.axvspan(xi - step / 2, xi + step / 2, color=f"C{k}", alpha=0.15, lw=0,
-                               label=f"excluded: {name}" if first else None)
-                    first = False
+        for k, (name, field) in enumerate(fields.items()):
+            for i, (a, b) in enumerate(_crossings(x, field)):
+                ax.axvspan(a, b, color=f"C{k}", alpha=0.15, lw=0,
+                           label=f"excluded: {name}" if i == 0 else None)
         if best is not None:
             ax.plot(best[0], data["optimum"]["objective"], "*", color="C3", ms=14,
                     label="optimum")
@@ -79,9 +101,9 @@ def plot_plan(data, path, *, overwrite=False):
         mesh = ax.pcolormesh(x, y, np.where(np.isfinite(objective), objective, np.nan).T,
                              shading="nearest", norm=norm, cmap="viridis")
         fig.colorbar(mesh, ax=ax, label=f"objective{units}")
-        for k, (name, mask) in enumerate(masks.items()):
-            if mask.any() and not mask.all():
-                ax.contour(x, y, mask.T.astype(float), levels=[0.5], colors=["w"],
+        for k, (name, field) in enumerate(fields.items()):
+            if (field <= 0).any():
+                ax.contour(x, y, field.T, levels=[0.0], colors=["w"],
                            linestyles=_STYLES[k % len(_STYLES)], linewidths=1.5)
                 ax.plot([], [], color="0.3", ls=_STYLES[k % len(_STYLES)],
                         label=f"boundary: {name}")

@@ -32,7 +32,7 @@ import math
 import time
 
 from simulator.analysis.planner import Coordinate, Outcome, search
-from simulator.errors import InputError, ScenarioError
+from simulator.errors import InputError, OperatingPointError, ScenarioError
 from simulator.workflows.plan_text import plan_dict, plan_text
 
 
@@ -122,7 +122,12 @@ def evaluate_plan_point(scenario, plan, assignments):
     objective = inf
     violations["regime"] = 0.0
     if verdict.stable:
-        objective, occupations = _objective(system, plan)
+        try:
+            objective, occupations = _objective(system, plan)
+        except (ArithmeticError, ValueError, OperatingPointError) as exc:
+            # a numerical failure at this point (recorded with it), not of the search
+            quantities["error"] = f"{type(exc).__name__}: {exc}"
+            return Outcome(inf, dict(violations, signal=1.0), quantities)
         from simulator.master.regime import LEVELS, regime_verdict
 
         level = regime_verdict(point, occupations).level

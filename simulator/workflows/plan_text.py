@@ -69,6 +69,9 @@ def plan_dict(result):
                   "unit": c.unit} for c in result.map_axes],
         "objective": [o.objective for o in result.map_outcomes],
         "violated": [list(o.violated) for o in result.map_outcomes],
+        "violations": {name: [o.violations.get(name, 0.0) for o in result.map_outcomes]
+                       for name in dict.fromkeys(n for o in result.map_outcomes
+                                                 for n in o.violations)},
     }
     return data
 
