@@ -32,6 +32,11 @@ def cmd_check(args):
         from simulator.workflows.sweep import sweep_axes, sweep_points
 
         sweep_points(scenario, sweep_axes(scenario))  # every swept value, and the size
+    if scenario.plan is not None:
+        from simulator.workflows.plan import check_plan, coordinates_of
+
+        check_plan(scenario)
+        coordinates_of(scenario)  # every bound value
     modes = ", ".join(m.name for m in scenario.mechanics)
     print(f"{args.scenario}: valid scenario {scenario.scenario.name!r} "
           f"({len(scenario.mechanics)} mechanical mode(s): {modes})")

@@ -146,7 +146,7 @@ def plan_html(data):
             + f". Active constraints: {html.escape(active)}"
             + (f"; on a bound of {html.escape(', '.join(data['at_bounds']))}"
                if data["at_bounds"] else "") + ".</p>")
-    flat = [[p["path"], p["value"], p["ratio"], "yes" if p["feasible"] else
+    flat = [[f"{p['path']} {p['change']:+.0%}", p["value"], p["ratio"], "yes" if p["feasible"] else
              "no: " + ", ".join(p["violated"])] for p in data["flatness"]]
     return (text + html.table(rows, header=["parameter", "scenario's own point", "best",
                                             "in units of"])

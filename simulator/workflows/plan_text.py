@@ -58,6 +58,7 @@ def plan_dict(result):
         data["active_constraints"] = list(found.active)
         data["at_bounds"] = list(found.at_bounds)
         data["flatness"] = [{"path": p.path, "value": p.value, "ratio": p.ratio,
+                             "change": _change(p, found),
                              "feasible": p.outcome.feasible,
                              "violated": list(p.outcome.violated),
                              "inside_bounds": p.inside_bounds} for p in found.flatness]
@@ -74,6 +75,13 @@ def plan_dict(result):
                                                  for n in o.violations)},
     }
     return data
+
+
+def _change(probe, found):
+    """Relative change of the probed parameter from the optimum (±0.1, or of its range)."""
+    j = [c.path for c in found.coordinates].index(probe.path)
+    best, coord = found.best[j], found.coordinates[j]
+    return (probe.value - best) / (abs(best) if best else (coord.high - coord.low))
 
 
 def _where(parameters):
@@ -110,8 +118,8 @@ def plan_text(d):
                          "do better")
         for p in d["flatness"]:
             note = "" if p["feasible"] else f" (infeasible: {', '.join(p['violated'])})"
-            lines.append(f"  flatness: {p['path']} = {p['value']:.4g}: objective × "
-                         f"{p['ratio']:.3g}{note}")
+            lines.append(f"  flatness: {p['path']} {p['change']:+.0%} ({p['value']:.4g}): "
+                         f"objective × {p['ratio']:.3g}{note}")
     own = d["own_point"]
     ratio = own.get("ratio_to_optimum")
     compare = f" ({ratio:.3g} × the best)" if ratio is not None else ""
