@@ -312,3 +312,48 @@ def test_run_report_has_the_best_operating_point(tmp_path):
     assert (tmp_path / "run" / "plan.png").stat().st_size > 0
     page = result.report.read_text()
     assert "Best operating point" in page and "scenario&#x27;s own point" in page
+
+
+def _plan_of(text, **keys):
+    import dataclasses
+
+    scenario = _with_plan(text, '[plan]\n[plan.parameters]\n"drive.power_w" = [1e-6]\n')
+    return base_of(scenario), dataclasses.replace(scenario.plan, **keys)
+
+
+def test_circulating_power_heating():
+    # P_circ = n̄ ħω FSR (common practice for a Fabry–Pérot cavity, FSR = c/2L)
+    from scipy.constants import c, h
+
+    base, plan = _plan_of(MEMBRANE, objective="occupation", heating_k_per_w=2.0,
+                          free_spectral_range_hz=15e9)
+    out = evaluate_plan_point(base, plan, [("drive.power_w", 1e-6)])
+    photons = out.quantities["photon_number"]
+    circulating = photons * h * c / 1064e-9 * 15e9
+    assert out.quantities["bath_temperature_k"] == pytest.approx(4.2 + 2.0 * circulating)
+
+
+def test_stability_margin_and_regime_constraints():
+    base, plan = _plan_of(MEMBRANE, objective="occupation", max_growth_rate_hz=-1.0)
+    out = evaluate_plan_point(base, plan, [("drive.power_w", 1e-9)])
+    growth = out.quantities["growth_rate_hz"]  # −Γ_eff/2 of a barely cooled mode
+    assert -1.0 < growth < 0
+    assert out.violations["stability"] > 0 and "stability" in out.violated
+    strong = evaluate_plan_point(base, plan, [("drive.power_w", 1e-5)])
+    assert strong.quantities["growth_rate_hz"] < -1.0 and strong.violations["stability"] < 0
+    # thermal jitter g0√(2n + 1) of a hot membrane is a few per cent of κ/2: "marginal"
+    assert out.quantities["regime"] == "marginal" and out.violations["regime"] == 0
+    import dataclasses
+
+    strict = evaluate_plan_point(base, dataclasses.replace(plan, regime="linear"),
+                                 [("drive.power_w", 1e-9)])
+    assert "regime" in strict.violated
+
+
+def test_occupation_error_objective_is_the_cramer_rao_bound():
+    from simulator.analysis.feasibility import occupation_bound
+
+    base, plan = _plan_of(MEMBRANE, objective="occupation_error", duration_s=4.0)
+    out = evaluate_plan_point(base, plan, [("drive.power_w", 1e-6)])
+    bound = occupation_bound(System(base.replace("drive.power_w", 1e-6)), 0)
+    assert out.objective == pytest.approx(bound.error_one_second / 2.0)
