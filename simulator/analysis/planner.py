@@ -6,12 +6,13 @@ and the free parameters as :class:`Coordinate` objects. The search
 
 1. evaluates every point of the coarse grid (the product of the coordinates'
    grids), in one batch so the caller may spread it over processes;
-2. takes the best feasible grid point and refines it with the bounded
-   Nelder–Mead simplex (Gao and Han, Comput. Optim. Appl. 51, 259 (2012),
-   as in ``scipy.optimize.minimize``) in the unit coordinates u ∈ [0, 1] of
-   the continuous parameters (linear or logarithmic in the value), within the
-   neighbouring grid cells, on log(objective) with a penalty that grows with
-   the violation, so an infeasible point never wins;
+2. refines the best feasible grid points (up to REFINE_STARTS, no two of
+   them neighbours) with the bounded Nelder–Mead simplex (Gao and Han,
+   Comput. Optim. Appl. 51, 259 (2012), as in ``scipy.optimize.minimize``)
+   in the unit coordinates u ∈ [0, 1] of the continuous parameters (linear
+   or logarithmic in the value), within the neighbouring grid cells, on
+   log(objective) with a penalty that grows with the violation, so an
+   infeasible point never wins; a pattern search then polishes the point;
 3. measures how flat the optimum is (the objective at ±10 % of each
    continuous parameter) and which constraints are active: a constraint is
    active when a point evaluated next to the optimum has a better objective
@@ -168,8 +169,7 @@ def search(evaluate, coordinates, *, evaluate_many=None, refine=True):
     continuous = [j for j, c in enumerate(coordinates) if not c.discrete and len(c.grid) > 1]
     if refine and continuous:
         for start in _starts(feasible, outcomes, indices):
-            point, outcome = _refine(memo, coordinates, continuous, values[start],
-                                     indices[start])
+            point, outcome = _refine(memo, coordinates, continuous, values[start])
             if outcome.feasible and outcome.objective < best_outcome.objective:
                 best, best_outcome, refined = point, outcome, True
     flatness = _flatness(memo, coordinates, continuous, best, best_outcome)
@@ -210,7 +210,7 @@ def _within_a_cell(coordinates, point, best):
     return True
 
 
-def _refine(memo, coordinates, continuous, start, index):
+def _refine(memo, coordinates, continuous, start):
     """Bounded Nelder–Mead on log(objective) + penalty within the neighbouring cells."""
     from scipy.optimize import minimize
 

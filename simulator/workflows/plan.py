@@ -28,6 +28,7 @@ the optics, is what limits the drive power (common practice).
 """
 
 import dataclasses
+import functools
 import math
 import time
 
@@ -204,13 +205,18 @@ def _near_bistable(scenario, point, margin):
         return bool(np.any((low <= p * (1 + margin)) & (high >= p * (1 - margin))))
 
 
-def _grid_task(common, payload):
-    """One coarse-grid point in a worker process: the Outcome as plain data."""
+@functools.lru_cache(maxsize=4)
+def _plan_from_text(text):
     from simulator.scenario.loader import parse_scenario
 
-    scenario = parse_scenario(common, source="<plan>")
-    outcome = evaluate_plan_point(base_of(scenario), scenario.plan, payload)
-    return dataclasses.asdict(outcome)
+    scenario = parse_scenario(text, source="<plan>")
+    return base_of(scenario), scenario.plan
+
+
+def _grid_task(common, payload):
+    """One coarse-grid point in a worker process: the Outcome as plain data."""
+    base, plan = _plan_from_text(common)
+    return dataclasses.asdict(evaluate_plan_point(base, plan, payload))
 
 
 @dataclasses.dataclass(frozen=True)
