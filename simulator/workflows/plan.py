@@ -322,9 +322,13 @@ def plan_part(scenario, out, wrote, figures):
     """The run's plan: ``plan.json``, the map ``plan.png`` and the report section (HTML)."""
     from simulator.io import jsontext
     from simulator.io.files import atomic_write_text
+    from simulator.report import html
     from simulator.report.plan_plots import plan_html, plot_plan
 
-    data = jsontext.plain(plan_scenario(scenario).to_dict())
+    try:
+        data = jsontext.plain(plan_scenario(scenario).to_dict())
+    except ScenarioError as exc:  # the rest of the run stands; the report says why
+        return html.warnings_block([f"the [plan] cannot be evaluated: {exc}"])
     atomic_write_text(wrote(out / "plan.json"), jsontext.dumps(data, indent=2))
     if data["map"]["axes"]:
         figures.append(wrote(plot_plan(data, out / "plan.png", overwrite=True)))
