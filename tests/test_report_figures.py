@@ -10,6 +10,7 @@ from simulator.report.record_plots import chi2_band
 from simulator.report.summary import best_sweep_points, coord_label
 from simulator.report.sweep_plots import cell_edges, plot_occupation, plot_stability
 from simulator.scenario import labels
+from simulator.workflows.sweep_optimum import sweep_optima
 
 
 def test_scenario_paths_read_as_quantities_with_units():
@@ -91,7 +92,7 @@ def _sweep_dataset(log_power=True):
 def test_sweep_figures_and_best_point_name_parameters_in_words(tmp_path):
     ds = _sweep_dataset()
     assert coord_label(ds["detuning"]) == "drive detuning Δ / Ωm"
-    best = best_sweep_points(ds)
+    best = best_sweep_points(ds, sweep_optima(ds))
     # lowest occupation among stable points: the middle detuning at the highest power
     assert best[0][1] == ("drive detuning Δ / Ωm = -1; drive detuning Δ/2π (Hz) = -1e+06; "
                           "drive power P (W) = 1e-05")

@@ -32,6 +32,11 @@ def cmd_check(args):
         from simulator.workflows.sweep import sweep_axes, sweep_points
 
         sweep_points(scenario, sweep_axes(scenario))  # every swept value, and the size
+    if scenario.plan is not None:
+        from simulator.workflows.plan import check_plan, coordinates_of
+
+        check_plan(scenario)
+        coordinates_of(scenario)  # every bound value
     modes = ", ".join(m.name for m in scenario.mechanics)
     print(f"{args.scenario}: valid scenario {scenario.scenario.name!r} "
           f"({len(scenario.mechanics)} mechanical mode(s): {modes})")
@@ -88,12 +93,39 @@ def cmd_sweep(args):
     summary = {"out": str(Path(args.out).resolve()), "dataset": "sweep.nc",
                "points": int(dataset["stable"].size), "unstable_points": unstable,
                "failed_points": failed, "dimensions": dict(dataset["stable"].sizes)}
+    from simulator.workflows.sweep_optimum import optima_lines, sweep_optima
+
+    summary["optima"] = sweep_optima(dataset)
     if args.json:
         print_json(summary)
     else:
         print(f"sweep of {summary['points']} points written to {summary['out']}/sweep.nc "
               f"({unstable} unstable, {failed} failed)")
+        print("\n".join(optima_lines(summary["optima"])))
     return EXIT_OK
+
+
+def cmd_plan(args):
+    """``noisechain plan``: the best operating point; exit 3 when none is feasible."""
+    _require_output_file(args.plot, (".png", ".pdf", ".svg"), "--plot", args.force)
+    _require_workers(args)
+    from simulator.scenario.loader import load_scenario
+    from simulator.workflows.plan import plan_scenario
+
+    result = plan_scenario(load_scenario(args.scenario), workers=args.workers,
+                           dask=args.dask, refine=not args.no_refine)
+    data = result.to_dict()
+    if args.plot:
+        from simulator.report.plan_plots import plot_plan
+
+        data["plot"] = str(plot_plan(data, args.plot, overwrite=args.force))
+    if args.json:
+        print_json(data)
+    else:
+        print(result.to_text())
+        if args.plot:
+            print(f"  map written to {args.plot}")
+    return EXIT_OK if result.feasible else EXIT_UNSTABLE
 
 
 def _require_output_file(path, allowed, option, force):

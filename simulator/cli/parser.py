@@ -29,6 +29,7 @@ from simulator.cli.commands import (
     cmd_check,
     cmd_demo,
     cmd_inspect,
+    cmd_plan,
     cmd_record,
     cmd_run,
     cmd_spectrum,
@@ -102,6 +103,20 @@ def build_parser():
                    "folder to resume)")
     _execution_options(p)
     p.set_defaults(func=cmd_sweep)
+
+    p = verbs.add_parser("plan", help="the best operating point under the scenario's "
+                         "[plan]: objective, active constraints, flatness, a map")
+    p.add_argument("scenario", help="scenario TOML file with a [plan] section")
+    p.add_argument("--plot", default=None, help="write the map around the optimum: .png, "
+                   ".pdf or .svg")
+    _force_option(p)
+    p.add_argument("--no-refine", action="store_true", help="stop after the coarse grid")
+    p.add_argument("--workers", type=int, default=1, help="local worker processes for the "
+                   "coarse grid (default: %(default)s, this process)")
+    p.add_argument("--dask", default=None, metavar="ADDR", help="evaluate the coarse grid "
+                   "on Dask: 'local' or a scheduler address tcp://host:port")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+    p.set_defaults(func=cmd_plan)
 
     p = verbs.add_parser("spectrum", help="analytic spectrum of the record at the "
                          "digitiser (or at the cavity port) with its noise budget and "

@@ -114,6 +114,36 @@ def photon_number_branches(*, kappa, kappa_ex, flux, detuning_bare, shift):
     return tuple(x * half / shift for x in polished)
 
 
+def bistable_drive_window(d):
+    """Drive strengths P with three solutions of x³ + 2d·x² + (1 + d²)·x = P (see above).
+
+    For d < −√3 the cubic has a local maximum at x = (−2d − √(d² − 3))/3 and a
+    local minimum at x = (−2d + √(d² − 3))/3 (both positive); a drive strength
+    between its values there has three positive solutions (Aspelmeyer,
+    Kippenberg, Marquardt, Rev. Mod. Phys. 86, 1391 (2014), Sec. V.A). Returns
+    the arrays ``(low, high)``, NaN where d ≥ −√3 (never bistable).
+    """
+    d = np.asarray(d, dtype=float)
+    bistable = d < -np.sqrt(3.0)
+    root = np.sqrt(np.where(bistable, d * d - 3.0, 0.0))
+
+    def cubic(x):
+        return ((x + 2 * d) * x + 1 + d * d) * x
+
+    low, high = cubic((-2 * d + root) / 3), cubic((-2 * d - root) / 3)
+    return np.where(bistable, low, np.nan), np.where(bistable, high, np.nan)
+
+
+def drive_strength(scenario):
+    """(d, P) of a scenario's cubic: bare detuning and drive in units of the half linewidth."""
+    drive, cavity = scenario.drive, scenario.cavity
+    half = float(angular(cavity.linewidth_hz)) / 2.0
+    flux = drive.power_w / photon_energy_j(drive.carrier_frequency_hz)
+    shift = shift_per_photon(scenario.mechanics)
+    return (float(angular(drive.detuning_hz)) / half,
+            shift * float(angular(cavity.external_linewidth_hz)) * flux / half**3)
+
+
 def operating_point(scenario):
     """Solve the classical operating point of ``scenario``.
 

@@ -94,25 +94,19 @@ def coord_label(coord, mode_names=()):
     return axis_label(path, unit_path, mode_names)
 
 
-def best_sweep_points(dataset):
-    """(criterion, where, value) rows of the best stable points of a sweep, mode 0.
+def best_sweep_points(dataset, optima):
+    """(criterion, where, value) rows of a sweep's best stable points, in words.
 
-    The lowest occupation and, when the sweep carries it, the shortest time to
-    resolve the sideband asymmetry.
+    ``optima`` are the entries of
+    :func:`simulator.workflows.sweep_optimum.sweep_optima` (the one search for
+    a sweep's best points); each may carry ``notes`` (caveats in words), shown
+    beside its value.
     """
-    stable = dataset["stable"].values == 1
-    if not stable.any():
-        return []
-    mode = str(dataset["mode"].values[0])
     rows = []
-    for key, what, unit in (("occupation", f"lowest occupation of {mode}", ""),
-                            ("asymmetry_time_s", f"shortest time to resolve the asymmetry "
-                                                 f"of {mode}", " s")):
-        if key not in dataset:
-            continue
-        values = np.where(stable, dataset[key].values[..., 0], np.nan)
-        if not np.isfinite(values).any():
-            continue
-        index = int(np.nanargmin(values))
-        rows.append([what, _where(dataset, index), f"{values.flat[index]:.4g}{unit}"])
+    for e in optima:
+        flat = int(np.ravel_multi_index(tuple(e["index"]), dataset["stable"].shape))
+        unit = f" {e['units']}" if e.get("units") else ""
+        notes = "; ".join(e.get("notes") or ())
+        rows.append([f"{e['description']} of {e['mode']}", _where(dataset, flat),
+                     f"{e['value']:.4g}{unit}" + (f" ({notes})" if notes else "")])
     return rows

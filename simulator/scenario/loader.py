@@ -27,6 +27,7 @@ from simulator.scenario.paths import (
     objects_along,
     split_path,
 )
+from simulator.scenario.plan_section import Plan
 from simulator.scenario.receiver import receiver_problems
 from simulator.scenario.schema import (
     optional_section,
@@ -77,6 +78,9 @@ class Scenario:
     record: RecordOptions = section(RecordOptions, "the synthetic time-domain record")
     sweep: Sweep | None = optional_section(
         "parameters to vary, for `noisechain sweep` (see simulator.scenario.sweep_section)")
+    plan: Plan | None = optional_section(
+        "free parameters, objective and constraints of the best operating point, for "
+        "`noisechain plan` (see simulator.scenario.plan_section)")
     source: str = dataclasses.field(default="<memory>", compare=False,
                                     metadata={"internal": True})
 
@@ -92,10 +96,14 @@ class Scenario:
         yield from self._chain_problems()
         yield from self._local_oscillator_problems()
         yield from receiver_problems(self)
-        if self.sweep is not None:
-            for path, spec in self.sweep.parameters.items():
+        for name in ("sweep", "plan"):
+            varied = getattr(self, name)
+            for path, spec in varied.parameters.items() if varied is not None else ():
                 for p in (path, *([spec["unit"]] if "unit" in spec else [])):
-                    yield from self._sweep_path_problems(p, path)
+                    yield from self._sweep_path_problems(p, path, name)
+        if self.plan is not None and self.plan.mode >= len(self.mechanics):
+            yield ("plan.mode", f"{self.plan.mode!r} names no mode; expected an index "
+                   f"below {len(self.mechanics)}, the number of [[mechanics]] tables")
 
     def _chain_problems(self):
         detection, kind = self.detection, self.record.kind
@@ -115,8 +123,8 @@ class Scenario:
     def _local_oscillator_problems(self):
         yield from local_oscillator_problems(self)
 
-    def _sweep_path_problems(self, path, swept):
-        key = f'sweep.parameters."{swept}"'
+    def _sweep_path_problems(self, path, swept, section="sweep"):
+        key = f'{section}.parameters."{swept}"'
         try:
             value = self.get(path)
         except ScenarioError as exc:
@@ -125,7 +133,7 @@ class Scenario:
                 "; expected a path such as 'drive.detuning_hz'")
             yield key, exc.detail + hint
             return
-        if path.split(".")[0] == "sweep" or dataclasses.is_dataclass(value) or isinstance(
+        if path.split(".")[0] in ("sweep", "plan") or dataclasses.is_dataclass(value) or isinstance(
                 value, tuple):
             yield key, f"{path!r} does not name a single scenario parameter"
         elif leaf_type(type(self), self._canonical(path)[0], self.source) not in (int, float):
@@ -138,7 +146,7 @@ class Scenario:
         paths = []
         for f in schema.public_fields(type(self)):
             kind, cls, _ = schema.field_kind(type(self), f.name)
-            if f.name == "sweep" or kind == "scalar":
+            if f.name in ("sweep", "plan") or kind == "scalar":
                 continue
             prefixes = ([f"{f.name}[{i}]" for i in range(len(getattr(self, f.name)))]
                         if kind == "sections" else [f.name])

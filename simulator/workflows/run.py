@@ -90,8 +90,13 @@ def _run(scenario, out, workers, dask, progress, best):
 
     if scenario.sweep is not None:
         part, sweep_best = _sweep_part(scenario, out, wrote, figures, workers, dask, progress)
-        details.append(("Sweep", part))
+        details.append(("Sweep", part + _sweep_optima_part(out, data)))
         best += sweep_best
+    if scenario.plan is not None:
+        from simulator.workflows.plan import plan_part
+
+        details.insert(0, ("Best operating point (plan)",
+                           plan_part(scenario, out, wrote, figures)))
 
     report_path = out / "report.html"
     listing = [[str(p.relative_to(out))] for p in files + [report_path]]
@@ -195,6 +200,7 @@ def _sweep_part(scenario, out, wrote, figures, workers, dask, progress):
     from simulator.report.summary import best_sweep_points
     from simulator.report.sweep_plots import SWEEP_FIGURES
     from simulator.workflows.sweep import run_sweep
+    from simulator.workflows.sweep_optimum import caveats, sweep_optima
 
     folder = out / "sweep"
     dataset = run_sweep(scenario, folder, workers=workers, dask=dask, progress=progress)
@@ -206,4 +212,23 @@ def _sweep_part(scenario, out, wrote, figures, workers, dask, progress):
     dims = ", ".join(f"{d} ({n})" for d, n in dataset["stable"].sizes.items())
     return (f"<p>{dataset['stable'].size} points over {html.escape(dims)}; "
             f"{unstable} unstable, {failed} failed. Dataset: sweep/sweep.nc.</p>",
-            best_sweep_points(dataset))
+            best_sweep_points(dataset, [dict(e, notes=caveats(e)) for e in sweep_optima(dataset)]))
+
+
+def _sweep_optima_part(out, data):
+    """The sweep's best points beside the scenario's own (its inspection's numbers)."""
+    import xarray as xr
+
+    from simulator.workflows.sweep_optimum import caveats, compare_own
+
+    with xr.open_dataset(out / "sweep" / "sweep.nc") as dataset:
+        optima = jsontext.loads(dataset.attrs.get("optima", "[]"))
+    rows = [[words, mode, "—" if mine is None else mine, best,
+             "—" if ratio is None else ratio, "; ".join(caveats(e)) or "—"]
+            for (words, mode, mine, best, ratio), e in zip(
+                compare_own(optima, data["modes"], data.get("feasibility", [])), optima,
+                strict=True)]
+    if not rows:
+        return ""
+    return html.table(rows, header=["figure of merit", "mode", "scenario's own point",
+                                    "best on the sweep", "own / best", "where the best is"])

@@ -105,9 +105,17 @@ def sweep_axes(scenario):
         raise ScenarioError("the scenario has no [sweep] section; expected [sweep] with "
                             "[sweep.parameters] to run a sweep", source=scenario.source,
                             key="sweep")
-    base = dataclasses.replace(scenario, sweep=None)
+    return parameter_axes(scenario, scenario.sweep.parameters, "sweep")
+
+
+def parameter_axes(scenario, parameters, section):
+    """:class:`Axis` per entry of a ``[sweep.parameters]``-style table, values checked.
+
+    ``section`` (``"sweep"`` or ``"plan"``) names the table in error messages.
+    """
+    base = dataclasses.replace(scenario, sweep=None, plan=None)
     axes = []
-    for path, spec in scenario.sweep.parameters.items():
+    for path, spec in parameters.items():
         numbers = axis_numbers(spec)
         unit = spec.get("unit", "") if not isinstance(spec, tuple) else ""
         scale = float(base.get(unit)) if unit else 1.0
@@ -116,9 +124,10 @@ def sweep_axes(scenario):
             try:
                 base.replace(path, v)
             except ScenarioError as exc:
-                raise ScenarioError(f"swept value {v!r} is invalid: {exc.detail}",
+                raise ScenarioError(f"{'swept' if section == 'sweep' else 'bound'} value "
+                                    f"{v!r} is invalid: {exc.detail}",
                                     source=scenario.source,
-                                    key=f'sweep.parameters."{path}"') from None
+                                    key=f'{section}.parameters."{path}"') from None
         log = not isinstance(spec, tuple) and bool(spec.get("log", False))
         axes.append(Axis(path=path, numbers=tuple(numbers), values=tuple(values), unit=unit,
                          log=log))
@@ -305,6 +314,9 @@ def run_sweep(scenario, out, *, workers=None, dask=None, progress=True):
                                   workers=workers, dask=dask, progress=progress, desc="sweep",
                                   unit="pt")
         dataset = assemble(scenario, axes, points, results)
+        from simulator.workflows.sweep_optimum import optima_json
+
+        dataset.attrs["optima"] = optima_json(dataset)  # best point per figure of merit
         write_dataset(dataset, out / "sweep.nc")
     return dataset
 

@@ -231,3 +231,14 @@ def _execute_dask(func, common, todo, address):
         client.close()
         if cluster is not None:
             cluster.close()
+
+
+def run_in_memory(func, common, payloads, *, workers=None, dask=None):
+    """``[func(common, p) for p in payloads]`` on the chosen executor, in order.
+
+    Nothing is stored: for short batches (a planner's coarse grid) that are
+    cheaper to redo than to resume.
+    """
+    keyed = [(str(i), p) for i, p in enumerate(payloads)]
+    done = dict(_execute(func, common, keyed, workers, dask))
+    return [done[key] for key, _ in keyed]
