@@ -20,6 +20,7 @@ from simulator.analysis.planner import Coordinate, Outcome, grid_flags, search
 from simulator.cli.parser import main
 from simulator.errors import ScenarioError
 from simulator.linear.steady_state import steady_state
+from simulator.model.chain import record_sample_rate
 from simulator.model.system import System
 from simulator.scenario.loader import load_scenario, parse_scenario
 from simulator.workflows.plan import base_of, evaluate_plan_point, plan_scenario
@@ -88,14 +89,21 @@ objective = "asymmetry_time"
     _check_against_fine_grid(scenario, fine)
 
 
-def _weak_signal_time(system, significance=5.0):
-    """T = z² π γ [1/a₋² + 1/a₊² + 1/((a₋ n)² + (a₊ (n+1))²)], floor 1 (docs/analysis.md)."""
+def _weak_signal_time(system, significance=5.0, sampled=True):
+    """T = z² π γ [1/a₋² + 1/a₊² + 1/((a₋ n)² + (a₊ (n+1))²)], floor 1 (docs/analysis.md).
+
+    ``sampled``: for the record's integrate-and-dump samples, whose lines at ±Ωm
+    from the drive keep sinc²(Ωm/fs) of their height over the white floor.
+    """
     s, p = system.scenario, system.point
     k, kex, eta = s.cavity.linewidth_hz, s.cavity.external_linewidth_hz, s.detection.efficiency
     g, om, det = p.modes[0].coupling_rate_hz, p.modes[0].frequency_hz, p.detuning_effective_hz
     # anti-Stokes (A₋) and Stokes (A₊) scattering rates, Marquardt et al. (2007) Eq. (3)
     rate = {sign: g**2 * k / (k**2 / 4 + (det + sign * om) ** 2) for sign in (1, -1)}
     a_minus, a_plus = (eta * kex / k * 2 * np.pi * rate[s] for s in (1, -1))
+    if sampled:
+        kept = np.sinc(om / record_sample_rate(s, system.chain)) ** 2
+        a_minus, a_plus = a_minus * kept, a_plus * kept
     mode = steady_state(system).modes[0]
     n, width = mode.occupation, mode.effective_linewidth_hz
     cross = (a_minus * n) ** 2 + (a_plus * (n + 1)) ** 2
@@ -103,8 +111,11 @@ def _weak_signal_time(system, significance=5.0):
 
 
 # shot-noise-limited receiver (no amplifier) and a weak signal (low efficiency and power)
+# (an ideal heterodyne receiver: the optical description, which allows no added noise)
 WEAK_DRUM = DRUM.replace("amplifier_added_quanta = 12.0", "amplifier_added_quanta = 0.0").replace(
-    "efficiency = 0.6 ", "efficiency = 0.01").replace("power_w = 2e-10 ", "power_w = 1e-16")
+    "efficiency = 0.6 ", "efficiency = 0.01").replace("power_w = 2e-10 ", "power_w = 1e-16"
+    ).replace('receiver = "microwave"', 'receiver = "optical"').replace(
+    "amplifier_gain_db = 70.0", "").replace("impedance_ohm = 50.0", "")
 
 
 def test_closed_form_optimum_of_the_asymmetry_time():
@@ -140,6 +151,8 @@ def test_closed_form_matches_the_fisher_bound_in_the_weak_signal_limit():
 
         assert asymmetry_time(system).duration_s == pytest.approx(
             _weak_signal_time(system), rel=0.01)
+        assert asymmetry_time(system, sample_rate_hz=math.inf).duration_s == pytest.approx(
+            _weak_signal_time(system, sampled=False), rel=0.01)
 
 
 DRUM_POWER_PLAN = """

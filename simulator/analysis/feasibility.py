@@ -399,7 +399,7 @@ def _lineshape_of_record(system, cal, omega, width, steady, sample_rate_hz=None)
     # aliased × sinc² (the lines lose sinc²(Ω/fs), the floor gains the aliased noise)
     away = np.array([omega + 30 * width, -omega - 30 * width])
     peak = np.array([omega])
-    form = iq.chain.channel_form(fs).project(np.array([1.0, 1.0j]))
+    form = iq.chain.channel_form(_finite(fs)).project(np.array([1.0, 1.0j]))
     sampled = form.spectrum(-2 * np.pi * np.concatenate([peak, away]))[0, :, 0, 0].real
     floor = float(np.mean(sampled[1:]))
     ideal = heterodyne_spectrum(system, np.concatenate([peak, away]),

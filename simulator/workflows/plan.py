@@ -331,5 +331,7 @@ def plan_part(scenario, out, wrote, figures):
         return html.warnings_block([f"the [plan] cannot be evaluated: {exc}"])
     atomic_write_text(wrote(out / "plan.json"), jsontext.dumps(data, indent=2))
     if data["map"]["axes"]:
-        figures.append(wrote(plot_plan(data, out / "plan.png", overwrite=True)))
+        figures.append((wrote(plot_plan(data, out / "plan.png", overwrite=True)),
+                        "The planner's objective around its optimum, with the boundaries "
+                        "of the constraints."))
     return plan_html(data)
