@@ -32,7 +32,7 @@ import dataclasses
 
 import numpy as np
 
-from simulator.analysis.fitting import fit_whittle
+from simulator.analysis.fitting import fisher_information, fit_whittle
 from simulator.analysis.psd import WindowedExpectation
 from simulator.errors import InputError
 from simulator.linear.sidebands import cavity_response
@@ -141,14 +141,17 @@ def sideband_model(cal, sample_rate_hz=None, fano_band_hz=None, smear=None):
     def jacobian(f, theta):
         """(S, ∂S/∂θ) of the Lorentzian model, analytically: four smeared densities."""
         centre, width, c_s, c_as = theta[1:5]
-        columns = [
-            lambda x: response(x) * _lorentzian(x + centre, width),
-            lambda x: response(x) * _lorentzian(x - centre, width),
-            lambda x: response(x) * (c_s * _lorentzian_dx(x + centre, width)
-                                     - c_as * _lorentzian_dx(x - centre, width)),
-            lambda x: response(x) * (c_s * _lorentzian_dwidth(x + centre, width)
-                                     + c_as * _lorentzian_dwidth(x - centre, width))]
-        col_s, col_as, d_centre, d_width = (smeared(c, f) for c in columns)
+
+        def columns(x):  # one pass of the smearing for all four
+            r = response(x)
+            return np.stack([r * _lorentzian(x + centre, width),
+                             r * _lorentzian(x - centre, width),
+                             r * (c_s * _lorentzian_dx(x + centre, width)
+                                  - c_as * _lorentzian_dx(x - centre, width)),
+                             r * (c_s * _lorentzian_dwidth(x + centre, width)
+                                  + c_as * _lorentzian_dwidth(x - centre, width))], axis=-1)
+
+        col_s, col_as, d_centre, d_width = smeared(columns, f).T
         jac = np.stack([np.ones_like(f), d_centre, d_width, col_s, col_as])
         return theta[0] + c_s * col_s + c_as * col_as, jac
 
@@ -175,6 +178,7 @@ def _lorentzian_dwidth(x, width):
 
 LINE_MARGIN_LINEWIDTHS = 5.0  # fitted lines stay this far inside the band (our choice)
 MIN_DENOMINATOR_ERRORS = 4.0  # c_S − c_AS at least this many standard errors (our choice)
+MIN_LINE_ERRORS = 3.0  # an area expected below this many standard errors is tied (ours)
 MIN_START_QUANTA = 1e-3  # smallest starting area, in quanta: positive, inside the bounds
 
 PARAMETERS = ("floor", "frequency_hz", "linewidth_hz", "stokes_area", "anti_stokes_area")
@@ -268,6 +272,7 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
     margin = min(LINE_MARGIN_LINEWIDTHS * abs(width0), half_band / 2)
     lower = [0, omega - (half_band - margin), 0, 0, 0]
     upper = [np.inf, omega + (half_band - margin), half_band, np.inf, np.inf]
+    tied = None
     if fano:  # Lorentzian weights may be negative here: noise can push them below 0
         lower[3:5] = [-np.inf, -np.inf]
         fit = _fano_fit(omega, abs(width0), cal, f, p, psd.averages, half_band, sample_rate_hz,
@@ -275,8 +280,9 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
     else:
         model = sideband_model(cal, sample_rate_hz, smear=smear)
         initial = _initial(model, cal, omega, abs(width0), f, p)
-        fit = fit_whittle(model, f, p, psd.averages, initial, names=PARAMETERS, lower=lower,
-                          upper=upper, jacobian=model.jacobian)
+        tied = _unresolved_side(model, initial, f, psd.averages)
+        fit = _fit_lorentzian(model, f, p, psd.averages, initial, lower, upper, tied,
+                              per_quantum)
     _, _, width, c_s, c_as = fit.values[:5]
     cov = fit.covariance
     errors = fit.errors.copy()
@@ -284,7 +290,8 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
     # an area pinned at its bound (0) is not an estimate: the record does not
     # resolve that sideband, so everything built on it is reported as missing
     # (the Fano fit has no such bound)
-    pinned_s, pinned_as = (False, False) if fano else (c_s <= 0, c_as <= 0)
+    pinned_s, pinned_as = (False, False) if fano else (c_s <= 0 or tied == 3,
+                                                       c_as <= 0 or tied == 4)
     # n = c_AS/(c_S − c_AS): linear propagation holds only for a denominator
     # well away from zero; one within a few standard errors of it (a sideband
     # the cavity filters into the noise) gives a ratio with heavy tails and no
@@ -345,6 +352,58 @@ def _initial(model, cal, centre, width, f, p):
         c_s = c_s if c_s > per_quantum else (nominal + 1) * per_quantum
         c_as = max(c_s - per_quantum, MIN_START_QUANTA * per_quantum)
     return [floor if floor > 0 else float(np.median(p)), centre, width, c_s, c_as]
+
+
+def _unresolved_side(model, theta, f, averages):
+    """Index of an area the record cannot resolve (3 Stokes, 4 anti-Stokes), or None.
+
+    Decided before the fit from the expected information at the start
+    (Cramér–Rao bound), not from the fitted value: an area expected below
+    MIN_LINE_ERRORS standard errors (a sideband the cavity filters into the
+    floor, as the Stokes line of a resolved-sideband microwave circuit) is a
+    flat direction of the likelihood. Left free, it soaks up noise bumps on
+    its side (areas of thousands of quanta behind a filter of 1e-4) and,
+    through the shared centre and width, drags those too.
+    """
+    info = fisher_information(model, theta, f, averages, jacobian=model.jacobian)
+    try:
+        errors = np.sqrt(np.diag(np.linalg.inv(info)))
+    except np.linalg.LinAlgError:
+        return None
+    weak = min((3, 4), key=lambda i: theta[i] / errors[i])
+    return weak if theta[weak] < MIN_LINE_ERRORS * errors[weak] else None
+
+
+def _fit_lorentzian(model, f, p, averages, initial, lower, upper, tied, per_quantum):
+    """Whittle fit of the five parameters; an unresolved area ``tied`` to the other.
+
+    A tied area follows the weak-coupling relation c_S = c_AS + one quantum's
+    area; the fit then has four free parameters and the covariance is mapped
+    back through that relation (the tied area is not an estimate).
+    """
+    if tied is None:
+        return fit_whittle(model, f, p, averages, initial, names=PARAMETERS, lower=lower,
+                           upper=upper, jacobian=model.jacobian)
+    free = [i for i in range(len(PARAMETERS)) if i != tied]
+    other = 7 - tied  # 3 <-> 4
+    offset = per_quantum if tied == 3 else -per_quantum
+    expand = np.eye(len(PARAMETERS))[:, free]  # θ = A θ_free + shift
+    expand[tied, free.index(other)] = 1.0
+    shift = np.zeros(len(PARAMETERS))
+    shift[tied] = offset
+
+    def reduced(x, theta):
+        return model(x, expand @ theta + shift)
+
+    def reduced_jacobian(x, theta):
+        s, jac = model.jacobian(x, expand @ theta + shift)
+        return s, expand.T @ jac
+
+    fit = fit_whittle(reduced, f, p, averages, [initial[i] for i in free],
+                      names=[PARAMETERS[i] for i in free], lower=[lower[i] for i in free],
+                      upper=[upper[i] for i in free], jacobian=reduced_jacobian)
+    return dataclasses.replace(fit, names=PARAMETERS, values=expand @ fit.values + shift,
+                               covariance=expand @ fit.covariance @ expand.T)
 
 
 def _fano_fit(centre, width, cal, f, p, averages, half_band, sample_rate_hz, lower, upper,
