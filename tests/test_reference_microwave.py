@@ -49,8 +49,8 @@ def test_frequency_scatter_is_its_cramer_rao_bound(scenario, run):
     """The spread of the fitted effective frequency over the trials, divided by
     the Cramér–Rao bound at the true parameters (expected Whittle information of
     the model with the Stokes area tied, as the fit has it), lies in the exact χ²
-    range of a sample s.d. (Cowan, Statistical Data Analysis (1998), Sec. 9.7);
-    so does its ratio to the root-mean-square reported error."""
+    range of a sample s.d. (Cowan, Statistical Data Analysis (1998), Ch. 9,
+    cited from memory); so does its ratio to the root-mean-square reported error."""
     assert not run.errors
     est = run.dataset["estimate"].sel(quantity="effective_frequency_hz").values
     unc = run.dataset["uncertainty"].sel(quantity="effective_frequency_hz").values

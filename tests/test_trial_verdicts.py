@@ -51,7 +51,8 @@ def test_bias_is_flagged_exactly_beyond_the_student_t_threshold(n, compared):
 
 @pytest.mark.parametrize("n", [12, 40, 300])
 def test_pull_width_is_flagged_exactly_outside_its_chi_square_interval(n):
-    """(n − 1) w² is χ²(n − 1) for unit-width Gaussian pulls (Cowan 1998, Sec. 9.7): the
+    """(n − 1) w² is χ²(n − 1) for unit-width Gaussian pulls (Cowan, Statistical Data
+    Analysis (1998), Ch. 9, cited from memory): the
     interval [w √(ν/χ²_{1−α/2}), w √(ν/χ²_{α/2})] just excludes 1 at
     w = √(χ²_{1−α/2}/ν) (too wide) and √(χ²_{α/2}/ν) (too narrow)."""
     level, dof = level_for(4), n - 1

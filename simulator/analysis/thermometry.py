@@ -295,8 +295,8 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
     # n = c_AS/(c_S − c_AS): linear propagation holds only for a denominator
     # well away from zero; one within a few standard errors of it (a sideband
     # the cavity filters into the noise) gives a ratio with heavy tails and no
-    # finite variance, so no asymmetry estimate (Marsaglia, J. Stat. Softw. 16,
-    # issue 4 (2006), ratios of normal variables; cited from memory)
+    # finite variance, so no asymmetry estimate (Marsaglia, J. Stat. Softw.
+    # 16(4) (2006), ratios of normal variables; cited from memory)
     diff = np.zeros(len(fit.values))
     diff[3:5] = 1.0, -1.0
     resolved = (c_s - c_as) > MIN_DENOMINATOR_ERRORS * np.sqrt(max(diff @ cov @ diff, 0))

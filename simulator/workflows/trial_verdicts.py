@@ -14,8 +14,8 @@ fractions of |z| ≤ 1 and ≤ 2 equal to the Gaussian contents 68.27 % and
   sample standard deviation w of N Gaussian pulls of width σ, so the exact
   interval [w √((N−1)/χ²_{1−α/2}), w √((N−1)/χ²_{α/2})] holds σ with
   probability 1 − α; the width is off when that interval excludes 1
-  (Cowan, Statistical Data Analysis (Oxford, 1998), Sec. 9.7, the interval
-  for a Gaussian's variance).
+  (the interval for a Gaussian's variance: Cowan, Statistical Data
+  Analysis (Oxford, 1998), Ch. 9, cited from memory).
 - coverage: of N pulls, k fall inside ±1 (±2); the Clopper–Pearson interval
   (Clopper & Pearson, Biometrika 26, 404 (1934)), from the beta quantiles
   B(α/2; k, N − k + 1) and B(1 − α/2; k + 1, N − k), holds the true fraction
@@ -24,8 +24,8 @@ fractions of |z| ≤ 1 and ≤ 2 equal to the Gaussian contents 68.27 % and
 
 Several quantities are reported together, so each kind of check is run at
 family-wise level FAMILY_LEVEL across the m quantities that have a truth:
-α = FAMILY_LEVEL/m for each (Bonferroni correction; Cowan 1998, Sec. 10.4
-for multiple tests). With four kinds of checks an estimator without fault
+α = FAMILY_LEVEL/m for each (Bonferroni correction, common practice).
+With four kinds of checks an estimator without fault
 is flagged somewhere with probability at most 4 × FAMILY_LEVEL.
 """
 
