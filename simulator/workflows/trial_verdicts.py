@@ -109,9 +109,9 @@ def checks(estimates, uncertainties, truth, level):
             words.append(f"{k}σ coverage {'LOW' if coverage[k][1] < content else 'HIGH'}: "
                          f"{inside}/{n}, interval [{coverage[k][0]:.3f}, {coverage[k][1]:.3f}] "
                          f"excludes {content:.3f}")
-    tests = (f"|bias/s.e.| {abs(t):.2f} vs {threshold:.2f}; pull width {width:.3g} in "
-             f"[{widths[0]:.3g}, {widths[1]:.3g}]; two-sided level {level:.2g} "
-             f"(Student t, χ², Clopper–Pearson; Bonferroni over quantities)")
+    tests = (f"|bias/s.e.| {abs(t):.2f} vs {threshold:.2f} (Student t); pull width "
+             f"{width:.3g} in [{widths[0]:.3g}, {widths[1]:.3g}] (χ²); each test at "
+             f"two-sided level {level:.2g}, Bonferroni")
     if not words:
         verdict = f"consistent: no significant bias, honest uncertainties ({tests})"
     else:
