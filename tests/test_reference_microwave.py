@@ -25,6 +25,7 @@ MICROWAVE = Path(__file__).parent / "data" / "drum_microwave_trial.toml"
 REFERENCE = "simulator.analysis.reference:sideband_thermometry"
 TRIALS = 16  # ~15 s on two workers; tests/benchmarks/bench_reference_microwave.py runs more
 LEVEL = 0.01  # two-sided level of the interval checks below
+DRAWS = 30  # periodograms drawn per case in the Gamma-draw test
 
 
 @pytest.fixture(scope="module")
@@ -138,3 +139,60 @@ def _frequency_bound(scenario):
     tied[3] += jac[3]  # c_S = c_AS + one quantum's area: ∂/∂c_AS picks up ∂/∂c_S
     info = psd.averages * (tied / s) @ (tied / s).T
     return float(np.sqrt(np.linalg.inv(info)[1, 1]))
+
+
+@pytest.mark.parametrize("weak", [False, True])
+def test_periodogram_draws_give_unit_pulls_with_the_lineshape_free_or_held(scenario, weak):
+    """Averaged periodograms drawn directly from their Gamma(K) statistics around
+    the model at the truth (no records; Nørrelykke & Flyvbjerg, Rev. Sci. Instrum.
+    81, 075103 (2010)). On the test drum the fit is free and the frequency and
+    anti-Stokes pulls have unit width; on a weakly driven, low-loss variant (line
+    at about one standard error per 0.2 s) centre and width are held at the
+    nominal values, and the anti-Stokes area alone comes back unbiased with
+    unit pulls, where a free fit scatters its frequency by kHz."""
+    from simulator.analysis.psd import PSDEstimate
+    from simulator.analysis.thermometry import measure_occupation
+    from simulator.linear.steady_state import steady_state
+    from simulator.records.generate import plan_record
+    from simulator.workflows.trial import truth_table
+
+    if weak:
+        scenario = scenario.replace("mechanics[0].linewidth_hz", 30.0).replace(
+            "drive.power_w", 1.2e-11)
+    truth = truth_table(scenario)
+    cal = Calibration.from_scenario(scenario)
+    fs = plan_record(scenario).sample_rate_hz
+    width = truth["effective_linewidth_hz"]
+    segment = int(2 ** np.ceil(np.log2(fs / (width / BINS_PER_LINEWIDTH))))
+    averages = int(scenario.record.duration_s * fs) // segment
+    smear = WindowedExpectation(fs, segment, "boxcar")
+    f = smear.frequency_hz
+    band = np.abs(np.abs(f) - cal.mechanical_frequency_hz) < 60 * width
+    n = steady_state(scenario).modes[0].occupation
+    per_quantum = cal.area_per_quantum()
+    floor = 20.6  # about the amplifier's floor (shot-noise units); the draws use it as truth
+    theta = np.array([floor, truth["effective_frequency_hz"], width, (n + 1) * per_quantum,
+                      n * per_quantum])
+    expected = np.full(f.size, floor)
+    expected[band] = sideband_model(cal, fs, smear=smear)(f[band], theta)
+    rng = np.random.default_rng(11)
+    pulls = {"frequency_hz": [], "anti_stokes_area": []}
+    for _ in range(DRAWS):
+        draw = expected * rng.gamma(averages, 1.0 / averages, f.size)
+        psd = PSDEstimate(frequency_hz=f, density=draw, averages=averages,
+                          sided="two-sided", resolution_hz=fs / segment,
+                          noise_bandwidth_hz=fs / segment, window="boxcar")
+        fit = measure_occupation(psd, cal, sample_rate_hz=fs, smear=smear).fit.as_dict()
+        for key, true in (("frequency_hz", theta[1]), ("anti_stokes_area", theta[4])):
+            value, error = fit[key]
+            pulls[key].append((value - true) / error)
+    low, high = width_bounds(DRAWS)
+    limit = scipy.stats.t.ppf(1 - LEVEL / 2, DRAWS - 1) / np.sqrt(DRAWS)  # mean of pulls
+    area = np.array(pulls["anti_stokes_area"])
+    assert low < area.std(ddof=1) < high and abs(area.mean()) < limit * area.std(ddof=1), area
+    frequency = np.array(pulls["frequency_hz"])
+    if weak:  # held: not an estimate
+        assert np.all(np.isnan(frequency))
+    else:
+        assert low < frequency.std(ddof=1) < high
+        assert abs(frequency.mean()) < limit * frequency.std(ddof=1)

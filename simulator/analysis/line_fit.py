@@ -4,7 +4,8 @@ The helpers :func:`simulator.analysis.thermometry.measure_occupation` uses to
 fit the Lorentzian sideband model (θ = floor, centre, width, c_S, c_AS) so
 that it cannot stray: a start from the nominal centre and width with the
 linear parameters by least squares, and an area the record cannot resolve
-tied to the other by the weak-coupling relation instead of fitted
+tied to the other by the weak-coupling relation instead of fitted, and a
+lineshape the record cannot resolve held at its nominal centre and width
 (docs/analysis.md, "A fit that cannot stray").
 """
 
@@ -16,6 +17,10 @@ from simulator.analysis.fitting import fisher_information, fit_whittle
 from simulator.linear.sidebands import cavity_response
 
 MIN_LINE_ERRORS = 3.0  # an area expected below this many standard errors is tied (ours)
+# below this many expected standard errors on the stronger area, centre and width are
+# held (our choice: trials of a microwave drum gave frequency pulls 1.3 wide at about
+# 3.5 and unit width at about 7; tests/test_reference_microwave.py)
+MIN_SHAPE_ERRORS = 5.0
 MIN_START_QUANTA = 1e-3  # smallest starting area, in quanta: positive, inside the bounds
 
 
@@ -48,43 +53,72 @@ def initial(model, cal, centre, width, f, p):
     return [floor if floor > 0 else float(np.median(p)), centre, width, c_s, c_as]
 
 
-def unresolved_area(model, theta, f, averages):
-    """Index of an area the record cannot resolve (3 Stokes, 4 anti-Stokes), or None.
+@dataclasses.dataclass(frozen=True)
+class Plan:
+    """What the record can resolve, decided before the fit (see :func:`plan`)."""
 
-    Decided before the fit from the expected information at the start
-    (Cramér–Rao bound), not from the fitted value: an area expected below
-    MIN_LINE_ERRORS standard errors (a sideband the cavity filters into the
-    floor, as the Stokes line of a resolved-sideband microwave circuit) is a
-    flat direction of the likelihood. Left free, it soaks up noise bumps on
-    its side (areas of thousands of quanta behind a filter of 1e-4) and,
-    through the shared centre and width, drags those too.
+    tied: int | None  # index of an area tied to the other (3 Stokes, 4 anti-Stokes)
+    shape_fixed: bool  # centre and width held at the nominal values
+
+
+def nominal(cal, start, per_quantum):
+    """θ the calibration predicts: floor of ``start``, nominal centre and width, and
+    areas of the occupation n = (Γm n_th + A+)/γ (weak-coupling rate balance)."""
+    floor, centre, width = start[:3]
+    n = (cal.mechanical_linewidth_hz * cal.bath_occupation + cal.stokes_rate_hz()) / width
+    return np.array([floor, centre, width, (n + 1) * per_quantum, n * per_quantum])
+
+
+def plan(model, theta, f, averages):
+    """Which parameters the record resolves, from the expected information at ``theta``.
+
+    Decided from the Cramér–Rao errors of the areas at the nominal parameters
+    (:func:`nominal`), not from fitted values, so the choice does not select
+    on the noise of the record:
+
+    - an area expected below MIN_LINE_ERRORS standard errors (a sideband the
+      cavity filters into the floor, as the Stokes line of a
+      resolved-sideband microwave circuit) is a flat direction of the
+      likelihood. Left free, it soaks up noise bumps on its side (areas of
+      thousands of quanta behind a filter of 1e-4) and, through the shared
+      centre and width, drags those too: it is tied to the other;
+    - when even the stronger line is expected below MIN_SHAPE_ERRORS, centre
+      and width are not measurable either: a free fit locks onto noise
+      bumps anywhere in the band (its frequency scatters by kHz with errors
+      of a hundred Hz). They are held at the nominal values, the model is
+      then linear in what is left, and the areas are unbiased with honest
+      errors; centre, width and what needs them are not estimated.
     """
     info = fisher_information(model, theta, f, averages, jacobian=model.jacobian)
     try:
         errors = np.sqrt(np.diag(np.linalg.inv(info)))
     except np.linalg.LinAlgError:
-        return None
-    weak = min((3, 4), key=lambda i: theta[i] / errors[i])
-    return weak if theta[weak] < MIN_LINE_ERRORS * errors[weak] else None
+        return Plan(tied=None, shape_fixed=True)
+    significance = {i: theta[i] / errors[i] for i in (3, 4)}
+    weak = min(significance, key=significance.get)
+    return Plan(tied=weak if significance[weak] < MIN_LINE_ERRORS else None,
+                shape_fixed=max(significance.values()) < MIN_SHAPE_ERRORS)
 
 
-def fit_tied(model, f, p, averages, initial, lower, upper, tied, per_quantum, names):
-    """Whittle fit of the five parameters; an unresolved area ``tied`` to the other.
+def fit_planned(model, f, p, averages, initial, lower, upper, planned, per_quantum, names):
+    """Whittle fit of the parameters the plan leaves free; covariance of all five.
 
     A tied area follows the weak-coupling relation c_S = c_AS + one quantum's
-    area; the fit then has four free parameters and the covariance is mapped
-    back through that relation (the tied area is not an estimate).
+    area; fixed centre and width keep their starting values. θ = A θ_free +
+    shift, and the covariance is mapped back as A C Aᵀ (zero for what is not
+    estimated).
     """
-    if tied is None:
+    fixed = {1, 2} if planned.shape_fixed else set()
+    if planned.tied is None and not fixed:
         return fit_whittle(model, f, p, averages, initial, names=names, lower=lower,
                            upper=upper, jacobian=model.jacobian)
-    free = [i for i in range(len(names)) if i != tied]
-    other = 7 - tied  # 3 <-> 4
-    offset = per_quantum if tied == 3 else -per_quantum
-    expand = np.eye(len(names))[:, free]  # θ = A θ_free + shift
-    expand[tied, free.index(other)] = 1.0
+    free = [i for i in range(len(names)) if i != planned.tied and i not in fixed]
+    expand = np.eye(len(names))[:, free]
     shift = np.zeros(len(names))
-    shift[tied] = offset
+    shift[list(fixed)] = [initial[i] for i in sorted(fixed)]
+    if planned.tied is not None:
+        expand[planned.tied, free.index(7 - planned.tied)] = 1.0  # 3 <-> 4
+        shift[planned.tied] = per_quantum if planned.tied == 3 else -per_quantum
 
     def reduced(x, theta):
         return model(x, expand @ theta + shift)

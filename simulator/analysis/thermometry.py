@@ -271,7 +271,7 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
     margin = min(LINE_MARGIN_LINEWIDTHS * abs(width0), half_band / 2)
     lower = [0, omega - (half_band - margin), 0, 0, 0]
     upper = [np.inf, omega + (half_band - margin), half_band, np.inf, np.inf]
-    tied = None
+    planned = line_fit.Plan(tied=None, shape_fixed=False)
     if fano:  # Lorentzian weights may be negative here: noise can push them below 0
         lower[3:5] = [-np.inf, -np.inf]
         fit = _fano_fit(omega, abs(width0), cal, f, p, psd.averages, half_band, sample_rate_hz,
@@ -279,18 +279,23 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
     else:
         model = sideband_model(cal, sample_rate_hz, smear=smear)
         initial = line_fit.initial(model, cal, omega, abs(width0), f, p)
-        tied = line_fit.unresolved_area(model, initial, f, psd.averages)
-        fit = line_fit.fit_tied(model, f, p, psd.averages, initial, lower, upper, tied,
-                                per_quantum, PARAMETERS)
+        planned = line_fit.plan(model, line_fit.nominal(cal, initial, per_quantum), f,
+                                psd.averages)
+        fit = line_fit.fit_planned(model, f, p, psd.averages, initial, lower, upper, planned,
+                                   per_quantum, PARAMETERS)
     _, _, width, c_s, c_as = fit.values[:5]
     cov = fit.covariance
-    errors = fit.errors.copy()
     nan = float("nan")
+    if planned.shape_fixed:  # centre and width held, not estimated: no error to report
+        held = cov.copy()
+        held[[1, 2], [1, 2]] = nan
+        fit = dataclasses.replace(fit, covariance=held)
+    errors = fit.errors.copy()
     # an area pinned at its bound (0) is not an estimate: the record does not
     # resolve that sideband, so everything built on it is reported as missing
     # (the Fano fit has no such bound)
-    pinned_s, pinned_as = (False, False) if fano else (c_s <= 0 or tied == 3,
-                                                       c_as <= 0 or tied == 4)
+    pinned_s, pinned_as = (False, False) if fano else (c_s <= 0 or planned.tied == 3,
+                                                       c_as <= 0 or planned.tied == 4)
     # n = c_AS/(c_S − c_AS): linear propagation holds only for a denominator
     # well away from zero; one within a few standard errors of it (a sideband
     # the cavity filters into the noise) gives a ratio with heavy tails and no
