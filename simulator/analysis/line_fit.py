@@ -21,6 +21,7 @@ MIN_LINE_ERRORS = 3.0  # an area expected below this many standard errors is tie
 # held (our choice: trials of a microwave drum gave frequency pulls 1.3 wide at about
 # 3.5 and unit width at about 7; tests/test_reference_microwave.py)
 MIN_SHAPE_ERRORS = 5.0
+MIN_DENOMINATOR_ERRORS = 4.0  # c_S − c_AS expected this many standard errors (our choice)
 MIN_START_QUANTA = 1e-3  # smallest starting area, in quanta: positive, inside the bounds
 
 
@@ -59,6 +60,7 @@ class Plan:
 
     tied: int | None  # index of an area tied to the other (3 Stokes, 4 anti-Stokes)
     shape_fixed: bool  # centre and width held at the nominal values
+    asymmetry: bool = True  # c_S − c_AS expected far enough from zero for the ratio
 
 
 def nominal(cal, start, per_quantum):
@@ -87,17 +89,28 @@ def plan(model, theta, f, averages):
       bumps anywhere in the band (its frequency scatters by kHz with errors
       of a hundred Hz). They are held at the nominal values, the model is
       then linear in what is left, and the areas are unbiased with honest
-      errors; centre, width and what needs them are not estimated.
+      errors; centre, width and what needs them are not estimated;
+    - n = c_AS/(c_S − c_AS) is estimated only when the difference is expected
+      MIN_DENOMINATOR_ERRORS standard errors from zero: linear propagation of
+      a ratio whose denominator comes near zero fails (heavy tails, no finite
+      variance: Marsaglia, J. Stat. Softw. 16(4) (2006), ratios of normal
+      variables; cited from memory). Deciding it from the fitted difference
+      instead would keep only the records whose noise pushed the difference
+      up, and bias the kept ratios low.
     """
     info = fisher_information(model, theta, f, averages, jacobian=model.jacobian)
     try:
         errors = np.sqrt(np.diag(np.linalg.inv(info)))
     except np.linalg.LinAlgError:
-        return Plan(tied=None, shape_fixed=True)
+        return Plan(tied=None, shape_fixed=True, asymmetry=False)
     significance = {i: theta[i] / errors[i] for i in (3, 4)}
     weak = min(significance, key=significance.get)
-    return Plan(tied=weak if significance[weak] < MIN_LINE_ERRORS else None,
-                shape_fixed=max(significance.values()) < MIN_SHAPE_ERRORS)
+    tied = weak if significance[weak] < MIN_LINE_ERRORS else None
+    diff = np.zeros(theta.size)
+    diff[3:5] = 1.0, -1.0
+    spread = np.sqrt(max(diff @ np.linalg.inv(info) @ diff, 0.0))
+    return Plan(tied=tied, shape_fixed=max(significance.values()) < MIN_SHAPE_ERRORS,
+                asymmetry=tied is None and theta[3] - theta[4] > MIN_DENOMINATOR_ERRORS * spread)
 
 
 def fit_planned(model, f, p, averages, initial, lower, upper, planned, per_quantum, names):

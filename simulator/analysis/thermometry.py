@@ -178,7 +178,6 @@ def _lorentzian_dwidth(x, width):
 
 
 LINE_MARGIN_LINEWIDTHS = 5.0  # fitted lines stay this far inside the band (our choice)
-MIN_DENOMINATOR_ERRORS = 4.0  # c_S − c_AS at least this many standard errors (our choice)
 
 PARAMETERS = ("floor", "frequency_hz", "linewidth_hz", "stokes_area", "anti_stokes_area")
 FANO_PARAMETERS = ("stokes_dispersive", "anti_stokes_dispersive", "anti_stokes_floor",
@@ -296,15 +295,9 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
     # (the Fano fit has no such bound)
     pinned_s, pinned_as = (False, False) if fano else (c_s <= 0 or planned.tied == 3,
                                                        c_as <= 0 or planned.tied == 4)
-    # n = c_AS/(c_S − c_AS): linear propagation holds only for a denominator
-    # well away from zero; one within a few standard errors of it (a sideband
-    # the cavity filters into the noise) gives a ratio with heavy tails and no
-    # finite variance, so no asymmetry estimate (Marsaglia, J. Stat. Softw.
-    # 16(4) (2006), ratios of normal variables; cited from memory)
-    diff = np.zeros(len(fit.values))
-    diff[3:5] = 1.0, -1.0
-    resolved = (c_s - c_as) > MIN_DENOMINATOR_ERRORS * np.sqrt(max(diff @ cov @ diff, 0))
-    if pinned_s or pinned_as or not resolved:
+    # n = c_AS/(c_S − c_AS) needs a denominator expected well away from zero
+    # (line_fit.plan); a fitted difference at or below zero estimates nothing
+    if pinned_s or pinned_as or not planned.asymmetry or c_s <= c_as:
         n_asym = err_asym = nan
     else:
         r = c_as / c_s
