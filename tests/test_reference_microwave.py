@@ -66,7 +66,7 @@ def test_frequency_scatter_is_its_cramer_rao_bound(scenario, run):
 def test_verdicts_are_consistent_and_the_stokes_line_is_left_out(run):
     """The harness's own tests (Student t, χ², Clopper–Pearson at a family-wise
     1 %) pass for every quantity the estimator returns; the asymmetry and the
-    Stokes area, which need the line the cavity suppresses by (κ/2Ωm)² ≈ 6e-4,
+    Stokes area, which need the line the cavity suppresses by (κ/4Ωm)² ≈ 1.4e-4,
     are not returned at all (no trial fails for them)."""
     by_name = {q.name: q for q in run.quantities}
     assert set(by_name) == {"occupation:anti_stokes_area", "occupation:damping",
