@@ -56,7 +56,10 @@ def whittle_nll(model, theta, frequency, density, averages):
     return float(averages * np.sum(np.log(s) + density / s))
 
 
-def _jacobian(model, theta, frequency, scale):
+def _jacobian(model, theta, frequency, scale, jacobian=None):
+    """(S, ∂S/∂θ): the model's analytic derivatives if given, else central differences."""
+    if jacobian is not None:
+        return jacobian(frequency, theta)
     base = model(frequency, theta)
     jac = np.empty((theta.size, frequency.size))
     for i in range(theta.size):
@@ -72,16 +75,20 @@ def _scale(theta):
     return np.where(theta != 0, np.abs(theta), 1.0)
 
 
-def fisher_information(model, theta, frequency, averages, scale=None):
-    """Expected information I_ij = K Σ ∂_i S ∂_j S / S² of the Whittle likelihood."""
+def fisher_information(model, theta, frequency, averages, scale=None, jacobian=None):
+    """Expected information I_ij = K Σ ∂_i S ∂_j S / S² of the Whittle likelihood.
+
+    ``jacobian(frequency, θ) -> (S, ∂S/∂θ)``, optional: analytic derivatives
+    (else central differences with steps 1e-6 of each parameter's scale).
+    """
     theta = np.asarray(theta, dtype=float)
     scale = _scale(theta) if scale is None else scale
-    s, jac = _jacobian(model, theta, frequency, scale)
+    s, jac = _jacobian(model, theta, frequency, scale, jacobian)
     return averages * (jac / s) @ (jac / s).T
 
 
 def fit_whittle(model, frequency, density, averages, initial, *, names=None,
-                lower=None, upper=None):
+                lower=None, upper=None, jacobian=None):
     """Maximum-likelihood fit of ``model(frequency, θ)`` to an averaged periodogram.
 
     Parameters
@@ -97,6 +104,11 @@ def fit_whittle(model, frequency, density, averages, initial, *, names=None,
     names : sequence of str, optional
     lower, upper : array_like, optional
         Bounds on the parameters.
+    jacobian : callable, optional
+        ``jacobian(frequency, theta) -> (S, ∂S/∂θ)`` with ∂S/∂θ of shape
+        (parameters, frequencies): analytic derivatives for the gradient of
+        ℓ, K Σ ∂S (S − P)/S², the scoring steps and the information (else
+        finite differences, a model evaluation or two per parameter).
 
     Returns
     -------
@@ -120,12 +132,21 @@ def fit_whittle(model, frequency, density, averages, initial, *, names=None,
     def objective(u):
         return whittle_nll(model, u * scale, f, p, averages) / f.size
 
+    def objective_and_gradient(u):
+        s, jac = jacobian(f, u * scale)
+        if np.any(~np.isfinite(s)) or np.any(s <= 0):
+            return np.inf, np.zeros_like(u)
+        value = averages * np.sum(np.log(s) + p / s) / f.size
+        return value, averages * scale * (jac @ ((s - p) / s**2)) / f.size
+
     with np.errstate(invalid="ignore", over="ignore"):  # trial steps may leave the domain
-        res = scipy.optimize.minimize(objective, theta0 / scale, method="L-BFGS-B"
-                                      if bounds else "BFGS", bounds=bounds,
+        res = scipy.optimize.minimize(objective if jacobian is None else objective_and_gradient,
+                                      theta0 / scale, jac=jacobian is not None,
+                                      method="L-BFGS-B" if bounds else "BFGS", bounds=bounds,
                                       options={"maxiter": 2000})
-    theta, converged = _fisher_scoring(model, res.x * scale, f, p, averages, scale, bounds)
-    info = fisher_information(model, theta, f, averages, scale)
+    theta, converged = _fisher_scoring(model, res.x * scale, f, p, averages, scale, bounds,
+                                       jacobian=jacobian)
+    info = fisher_information(model, theta, f, averages, scale, jacobian)
     try:
         cov = np.linalg.inv(info)
     except np.linalg.LinAlgError:
@@ -136,7 +157,8 @@ def fit_whittle(model, frequency, density, averages, initial, *, names=None,
                      message=str(res.message))
 
 
-def _fisher_scoring(model, theta, f, p, averages, scale, bounds, iterations=50):
+def _fisher_scoring(model, theta, f, p, averages, scale, bounds, iterations=50, *,
+                    jacobian=None):
     """Polish an optimum by Fisher scoring θ ← θ + I⁻¹U with step halving.
 
     U = K Σ ∂S (P − S)/S² is the score. Converges quadratically near the
@@ -146,7 +168,7 @@ def _fisher_scoring(model, theta, f, p, averages, scale, bounds, iterations=50):
     hi = np.array([b[1] for b in bounds]) * scale if bounds else np.inf
     current = whittle_nll(model, theta, f, p, averages)
     for _ in range(iterations):
-        s, jac = _jacobian(model, theta, f, scale)
+        s, jac = _jacobian(model, theta, f, scale, jacobian)
         score = averages * jac @ ((p - s) / s**2)
         info = averages * (jac / s) @ (jac / s).T
         try:

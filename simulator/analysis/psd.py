@@ -180,6 +180,8 @@ class WindowedExpectation:
     def at(self, density, frequency_hz, margin_bins=64):
         """E[P] at the bins ``frequency_hz`` (a subset of :attr:`frequency_hz`).
 
+        ``density`` may return several densities as the columns of an
+        array of shape (fine frequencies, m); E[P] then has shape (bins, m).
         Sums S(f) K(f − f_k) over each run of adjacent bins widened by
         ``margin_bins`` on both sides: the density farther away reaches those
         bins only through the kernel's far tails (below 1/(π² margin²) of
@@ -189,10 +191,14 @@ class WindowedExpectation:
         key = (f.tobytes(), int(margin_bins))
         if key not in self._local:
             self._local[key] = self._runs(f, int(margin_bins))
-        out = np.empty(f.size)
+        out = None
         step = self.fs / self.m
         for where, fine, weights in self._local[key]:
-            out[where] = weights @ density(fine) * step
+            # a density of shape (fine, m) gives m columns in one pass over the weights
+            value = weights @ density(fine) * step
+            if out is None:
+                out = np.empty((f.size,) + value.shape[1:])
+            out[where] = value
         return out
 
     def _runs(self, f, margin):

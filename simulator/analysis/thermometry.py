@@ -32,6 +32,7 @@ import dataclasses
 
 import numpy as np
 
+from simulator.analysis import line_fit
 from simulator.analysis.fitting import fit_whittle
 from simulator.analysis.psd import WindowedExpectation
 from simulator.errors import InputError
@@ -104,21 +105,27 @@ def sideband_model(cal, sample_rate_hz=None, fano_band_hz=None, smear=None):
     the periodogram expects of them, convolved with its window's kernel, so
     a line a few bins wide is not read as broader than it is; the model is
     then evaluated on that periodogram's bins only (anything else is an
-    InputError).
+    InputError). The Lorentzian model (no ``fano_band_hz``) carries its
+    analytic derivatives as ``model.jacobian(f, θ) -> (S, ∂S/∂θ)``, for
+    ``fit_whittle(..., jacobian=model.jacobian)``: the smearing is linear, so
+    each derivative is the smeared derivative of the lines.
     """
+
+    def response(f):
+        filt = cavity_filter(f, cal.cavity_linewidth_hz, cal.detuning_hz)
+        return filt * np.sinc(f / sample_rate_hz) ** 2 if sample_rate_hz else filt
+
+    def smeared(density, f):
+        return density(f) if smear is None else smear.at(density, f)
 
     def lines(f, theta):
         centre, width, c_s, c_as = theta[1:5]
-        lor = lambda x: (width / (2 * np.pi)) / (x**2 + width**2 / 4)  # noqa: E731
-        filt = cavity_filter(f, cal.cavity_linewidth_hz, cal.detuning_hz)
-        if sample_rate_hz:
-            filt = filt * np.sinc(f / sample_rate_hz) ** 2
-        out = c_s * lor(f + centre) + c_as * lor(f - centre)
+        out = c_s * _lorentzian(f + centre, width) + c_as * _lorentzian(f - centre, width)
         if fano_band_hz:
             d_s, d_as = theta[5:7]
             disp = lambda x: (x / np.pi) / (x**2 + width**2 / 4)  # noqa: E731
             out = out + d_s * disp(f + centre) + d_as * disp(f - centre)
-        return filt * out
+        return response(f) * out
 
     def background(f, theta):
         if not fano_band_hz:
@@ -130,12 +137,47 @@ def sideband_model(cal, sample_rate_hz=None, fano_band_hz=None, smear=None):
                         floor + s_s * x_s + q_s * x_s**2)
 
     def model(f, theta):
-        if smear is None:
-            return background(f, theta) + lines(f, theta)
-        return background(f, theta) + smear.at(lambda x: lines(x, theta), f)
+        return background(f, theta) + smeared(lambda x: lines(x, theta), f)
 
+    def jacobian(f, theta):
+        """(S, ∂S/∂θ) of the Lorentzian model, analytically: four smeared densities."""
+        centre, width, c_s, c_as = theta[1:5]
+
+        def columns(x):  # one pass of the smearing for all four
+            r = response(x)
+            return np.stack([r * _lorentzian(x + centre, width),
+                             r * _lorentzian(x - centre, width),
+                             r * (c_s * _lorentzian_dx(x + centre, width)
+                                  - c_as * _lorentzian_dx(x - centre, width)),
+                             r * (c_s * _lorentzian_dwidth(x + centre, width)
+                                  + c_as * _lorentzian_dwidth(x - centre, width))], axis=-1)
+
+        col_s, col_as, d_centre, d_width = smeared(columns, f).T
+        jac = np.stack([np.ones_like(f), d_centre, d_width, col_s, col_as])
+        return theta[0] + c_s * col_s + c_as * col_as, jac
+
+    if not fano_band_hz:
+        model.jacobian = jacobian
     return model
 
+
+def _lorentzian(x, width):
+    """L(x) = (γ/2π)/(x² + γ²/4): unit area, full width γ."""
+    return (width / (2 * np.pi)) / (x**2 + width**2 / 4)
+
+
+def _lorentzian_dx(x, width):
+    """∂L/∂x = −(γ/π) x/(x² + γ²/4)²."""
+    return -(width / np.pi) * x / (x**2 + width**2 / 4) ** 2
+
+
+def _lorentzian_dwidth(x, width):
+    """∂L/∂γ = (1/2π)[1/D − γ²/(2D²)], D = x² + γ²/4."""
+    d = x**2 + width**2 / 4
+    return (1 / d - width**2 / (2 * d**2)) / (2 * np.pi)
+
+
+LINE_MARGIN_LINEWIDTHS = 5.0  # fitted lines stay this far inside the band (our choice)
 
 PARAMETERS = ("floor", "frequency_hz", "linewidth_hz", "stokes_area", "anti_stokes_area")
 FANO_PARAMETERS = ("stokes_dispersive", "anti_stokes_dispersive", "anti_stokes_floor",
@@ -221,35 +263,41 @@ def measure_occupation(psd, cal, *, band_linewidths=40.0, sample_rate_hz=None, f
         raise InputError(f"only {near.sum()} frequency bins near ±{omega:.6g} Hz; expected "
                          "a record resolving the sidebands (longer segments)")
     f, p = f[near], psd.density[near]
-    floor0 = float(np.median(p))
     per_quantum = cal.area_per_quantum()
-    filt = lambda x: cavity_filter(x, k, cal.detuning_hz)  # noqa: E731
-    # starting areas from the excess power on each side, cavity filter removed
-    df = psd.resolution_hz
-    excess_as = max(np.sum((p - floor0)[f > 0]) * df / filt(omega), 1e-3 * per_quantum)
-    excess_s = max(np.sum((p - floor0)[f < 0]) * df / filt(-omega), 1e-3 * per_quantum)
-    if filt(-omega) < filt(omega):  # the weaker side starts from the stronger one
-        excess_s = excess_as + per_quantum
-    else:
-        excess_as = max(excess_s - per_quantum, 1e-3 * per_quantum)
-    initial = [floor0, omega, abs(width0), excess_s, excess_as]
-    lower, upper = [0, 0.5 * omega, 0, 0, 0], [np.inf, 1.5 * omega] + [np.inf] * 3
+    # the centre may move, but never so far that a line leaves the fitted band:
+    # out there the likelihood no longer depends on centre and width (flat), so
+    # a fit that strays stops anywhere, with an information matrix near singular
+    margin = min(LINE_MARGIN_LINEWIDTHS * abs(width0), half_band / 2)
+    lower = [0, omega - (half_band - margin), 0, 0, 0]
+    upper = [np.inf, omega + (half_band - margin), half_band, np.inf, np.inf]
+    planned = line_fit.Plan(tied=None, shape_fixed=False)
     if fano:  # Lorentzian weights may be negative here: noise can push them below 0
         lower[3:5] = [-np.inf, -np.inf]
         fit = _fano_fit(omega, abs(width0), cal, f, p, psd.averages, half_band, sample_rate_hz,
                         lower, upper, smear)
     else:
-        fit = fit_whittle(sideband_model(cal, sample_rate_hz, smear=smear), f, p,
-                          psd.averages, initial, names=PARAMETERS, lower=lower, upper=upper)
+        model = sideband_model(cal, sample_rate_hz, smear=smear)
+        initial = line_fit.initial(model, cal, omega, abs(width0), f, p)
+        planned = line_fit.plan(model, line_fit.nominal(cal, initial, per_quantum), f,
+                                psd.averages)
+        fit = line_fit.fit_planned(model, f, p, psd.averages, initial, lower, upper, planned,
+                                   per_quantum, PARAMETERS)
     _, _, width, c_s, c_as = fit.values[:5]
     cov = fit.covariance
-    errors = fit.errors.copy()
     nan = float("nan")
+    if planned.shape_fixed:  # centre and width held, not estimated: no error to report
+        held = cov.copy()
+        held[[1, 2], [1, 2]] = nan
+        fit = dataclasses.replace(fit, covariance=held)
+    errors = fit.errors.copy()
     # an area pinned at its bound (0) is not an estimate: the record does not
     # resolve that sideband, so everything built on it is reported as missing
     # (the Fano fit has no such bound)
-    pinned_s, pinned_as = (False, False) if fano else (c_s <= 0, c_as <= 0)
-    if pinned_s or pinned_as or c_s == c_as:
+    pinned_s, pinned_as = (False, False) if fano else (c_s <= 0 or planned.tied == 3,
+                                                       c_as <= 0 or planned.tied == 4)
+    # n = c_AS/(c_S − c_AS) needs a denominator expected well away from zero
+    # (line_fit.plan); a fitted difference at or below zero estimates nothing
+    if pinned_s or pinned_as or not planned.asymmetry or c_s <= c_as:
         n_asym = err_asym = nan
     else:
         r = c_as / c_s

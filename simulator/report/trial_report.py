@@ -49,6 +49,11 @@ def _text(x):
     return "—" if x is None else x
 
 
+def _levels(result):
+    levels = sorted({q.level for q in result.quantities if q.level is not None})
+    return ", ".join(f"{v:.2g}" for v in levels) or "— (no quantity tested)"
+
+
 def write_trial_report(result, scenario, estimator, path):
     """Write the report page of a :class:`simulator.workflows.trial.TrialResult`.
 
@@ -78,8 +83,13 @@ def write_trial_report(result, scenario, estimator, path):
     sections = [
         ("Verdicts", verdicts),
         ("Statistics", "<p>Expected for an unbiased estimator with honest uncertainties: "
-                       "bias within a few standard errors of zero, pull width 1, coverage "
-                       "68.3 % (1σ) and 95.4 % (2σ).</p>" + statistics),
+                       "bias zero, pull width 1, coverage 68.3 % (1σ) and 95.4 % (2σ). "
+                       "The verdict tests each at a two-sided level of "
+                       f"{_levels(result)} per quantity, a family-wise level shared among "
+                       "the quantities with a truth (Bonferroni): the bias by Student's t "
+                       "with N − 1 degrees of freedom, the pull width by its exact χ² "
+                       "interval, the coverage by the Clopper–Pearson interval; each "
+                       "verdict names the statistic and its threshold.</p>" + statistics),
         ("Histograms and pulls", "\n".join(figures)),
         ("Failed trials", errors),
         ("Scenario", html.folded(f"scenario file ({scenario.source}), as run",

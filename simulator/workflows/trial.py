@@ -8,7 +8,10 @@ never the ground truth. ``noisechain trial`` generates N independent records
 seed), runs the estimator on each through the same resumable executors as
 sweeps (local processes or Dask), and reports per quantity: bias, spread,
 root-mean-square error, the pull (estimate − truth)/uncertainty, coverage of
-the one- and two-sigma intervals, and failures. The estimator runs in an
+the one- and two-sigma intervals, and failures, with a verdict from
+statistical tests of each (Student t for the bias, χ² for the pull width,
+Clopper–Pearson for the coverage, Bonferroni-corrected across the quantities:
+:mod:`simulator.workflows.trial_verdicts`). The estimator runs in an
 isolated child process per trial (:mod:`simulator.workflows.estimator`); only
 successful trials are stored, so a rerun tries the failed ones again.
 
@@ -29,10 +32,10 @@ import numpy as np
 from simulator.errors import InputError
 from simulator.workflows import tasks
 from simulator.workflows.estimator import DEFAULT_TIMEOUT_S, check_estimator, estimate
+from simulator.workflows.trial_verdicts import checks, level_for
 
 FORMAT = "noisechain-trial"
 FORMAT_VERSION = 1
-ONE_SIGMA, TWO_SIGMA = 0.682689492137, 0.954499736104  # Gaussian interval contents
 MIN_TRIALS_FOR_VERDICT = 10  # fewer: statistics are reported, no verdict
 
 
@@ -110,14 +113,26 @@ class QuantityReport:
     coverage_1sigma: float | None
     coverage_2sigma: float | None
     verdict: str
+    # the tests behind the verdict (simulator.workflows.trial_verdicts); None without one
+    level: float | None = None  # two-sided level of each test for this quantity
+    bias_t: float | None = None  # bias / standard error
+    bias_threshold: float | None = None  # Student-t critical value of |bias_t|
+    pull_width_interval: tuple | None = None  # χ² confidence interval of the pull width
+    coverage_1sigma_interval: tuple | None = None  # Clopper–Pearson intervals
+    coverage_2sigma_interval: tuple | None = None
 
     def to_dict(self):
         """Plain data for JSON."""
         return dataclasses.asdict(self)
 
 
-def summarise(name, estimates, uncertainties, truth, failures):
-    """Statistics of one quantity; ``estimates`` and ``uncertainties`` finite arrays."""
+def summarise(name, estimates, uncertainties, truth, failures, *, compared=1):
+    """Statistics of one quantity; ``estimates`` and ``uncertainties`` finite arrays.
+
+    ``compared`` is the number of quantities of the run that have a truth:
+    the verdict's tests are Bonferroni-corrected across them
+    (:mod:`simulator.workflows.trial_verdicts`).
+    """
     n = estimates.size
     mean = float(estimates.mean()) if n else math.nan
     spread = float(estimates.std(ddof=1)) if n > 1 else math.nan
@@ -128,31 +143,19 @@ def summarise(name, estimates, uncertainties, truth, failures):
                               coverage_2sigma=None, verdict="no truth to compare with"
                               if truth is None else f"too few trials for a verdict "
                               f"({n} < {MIN_TRIALS_FOR_VERDICT})")
-    bias = mean - truth
-    bias_error = spread / math.sqrt(n)
     pulls = (estimates - truth) / uncertainties
-    width = float(pulls.std(ddof=1))
-    verdict = []
-    if bias_error == 0:  # identical estimates: any bias is exact
-        if bias != 0:
-            verdict.append(f"BIASED: every trial returned {mean:.6g} against the truth "
-                           f"{truth:.6g}")
-    elif abs(bias) > 3 * bias_error:
-        verdict.append(f"BIASED: bias {bias:.4g} is {abs(bias) / bias_error:.1f} standard "
-                       "errors from zero")
-    tolerance = 3 / math.sqrt(2 * (n - 1))  # 3 standard errors of a standard deviation
-    if width > 1 + tolerance:
-        verdict.append(f"uncertainties UNDERSTATED: pull width {width:.3g}")
-    elif width < 1 - tolerance:
-        verdict.append(f"uncertainties OVERSTATED: pull width {width:.3g}")
+    tested = checks(estimates, uncertainties, truth, level_for(compared))
     return QuantityReport(
         name=name, truth=float(truth), trials=n, failures=failures, mean=mean, spread=spread,
-        bias=float(bias), bias_error=float(bias_error),
+        bias=float(mean - truth), bias_error=float(spread / math.sqrt(n)),
         rmse=float(np.sqrt(np.mean((estimates - truth) ** 2))),
-        pull_mean=float(pulls.mean()), pull_width=width,
+        pull_mean=float(pulls.mean()), pull_width=float(pulls.std(ddof=1)),
         coverage_1sigma=float(np.mean(np.abs(pulls) <= 1)),
         coverage_2sigma=float(np.mean(np.abs(pulls) <= 2)),
-        verdict="; ".join(verdict) or "consistent: no bias, honest uncertainties")
+        verdict=tested.verdict, level=tested.level, bias_t=tested.bias_t,
+        bias_threshold=tested.bias_threshold, pull_width_interval=tested.pull_width_interval,
+        coverage_1sigma_interval=tested.coverage_1sigma_interval,
+        coverage_2sigma_interval=tested.coverage_2sigma_interval)
 
 
 @dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
@@ -253,10 +256,11 @@ def _assemble(scenario, estimator, duration, seeds, ordered, table):
     truths = np.array([np.nan if truth_of(q, table) is None else truth_of(q, table)
                        for q in names])
     reports = []
+    compared = sum(truth_of(q, table) is not None for q in names)
     for j, name in enumerate(names):
         ok = np.isfinite(est[:, j]) & np.isfinite(unc[:, j]) & (unc[:, j] > 0)
         reports.append(summarise(name, est[ok, j], unc[ok, j], truth_of(name, table),
-                                 int(n - ok.sum())))
+                                 int(n - ok.sum()), compared=compared))
     dataset = xr.Dataset(
         {"estimate": (("trial", "quantity"), est),
          "uncertainty": (("trial", "quantity"), unc),
