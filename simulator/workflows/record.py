@@ -11,7 +11,8 @@ from simulator.records.generate import generate_record
 
 
 def simulate_record(system, *, seed=None, duration_s=None, out=None, form="auto",
-                    store_mechanics=None, chunk_samples=None, progress=False, overwrite=False):
+                    store_mechanics=None, chunk_samples=None, progress=False, overwrite=False,
+                    workers=None):
     """Generate a digitised record of ``system`` with its ground truth.
 
     Parameters
@@ -35,6 +36,10 @@ def simulate_record(system, *, seed=None, duration_s=None, out=None, form="auto"
         the result.
     progress : bool
         Show a progress bar (tqdm, on standard error).
+    workers : int, optional
+        Threads drawing normals, digitising and compressing beside the
+        recursion (default: every core this process may use). Does not
+        change the result.
     overwrite : bool
         Replace an existing file at ``out`` (by default it is an error).
 
@@ -78,7 +83,7 @@ def simulate_record(system, *, seed=None, duration_s=None, out=None, form="auto"
 
         return generate_record(system, seed=seed, duration_s=duration_s, form=form,
                                store_mechanics=store_mechanics, chunk_samples=chunk_samples,
-                               sink=sink, progress=advance)
+                               sink=sink, progress=advance, workers=workers)
 
 
 def master_records_to_files(system, seeds, out, *, overwrite=False, **options):
