@@ -42,6 +42,7 @@ class InlineExecutor:
     """An executor that runs each task at once on the calling thread (one worker)."""
 
     def submit(self, fn, *args):
+        """Run ``fn(*args)`` now; return a finished future holding its result or error."""
         future = cf.Future()
         try:
             future.set_result(fn(*args))
