@@ -49,10 +49,12 @@ def test_same_bits_for_any_worker_count_and_chunk(form, sections, tmp_path):
                                  chunk_samples=chunk)
         np.testing.assert_array_equal(memory.counts, reference)
         path = tmp_path / f"w{workers}-c{chunk}.h5"
+        compression = "deflate" if workers % 2 else "none"
         simulate_record(scenario, seed=29, form=form, workers=workers, chunk_samples=chunk,
-                        out=path)
+                        out=path, compression=compression)
         with h5py.File(path, "r") as f:  # HDF5's own filters decode our chunks
-            assert f["samples"].compression == "gzip" and f["samples"].shuffle
+            assert f["samples"].shuffle == (compression == "deflate")
+            assert f["samples"].compression == ("gzip" if compression == "deflate" else None)
             np.testing.assert_array_equal(f["samples"][:], reference)
 
 
@@ -65,7 +67,7 @@ def test_file_chunks_cut_across_generator_chunks(tmp_path):
     scenario = make(samples=n)
     path = tmp_path / "long-chunks.h5"
     simulate_record(scenario, seed=3, out=path, chunk_samples=recordfile.HDF5_CHUNK_ROWS + 5,
-                    workers=2)
+                    workers=2, compression="deflate")
     reference = simulate_record(scenario, seed=3, workers=1).counts
     with h5py.File(path, "r") as f:
         assert f["samples"].chunks[0] == recordfile.HDF5_CHUNK_ROWS
@@ -76,3 +78,24 @@ def test_file_chunks_cut_across_generator_chunks(tmp_path):
 def test_bad_worker_count_is_refused(bad):
     with pytest.raises(InputError, match="workers"):
         simulate_record(make(samples=1000), seed=1, workers=bad)
+
+
+def test_unknown_compression_is_refused(tmp_path):
+    with pytest.raises(InputError, match="compression = 'lzf'"):
+        simulate_record(make(samples=1000), seed=1, out=tmp_path / "r.h5", compression="lzf")
+    assert not list(tmp_path.iterdir())
+
+
+def test_cli_threads_and_compression(tmp_path):
+    """`noisechain record --threads 2 --compress` writes the bits of one thread."""
+    from conftest import run_cli
+
+    scenario = tmp_path / "s.toml"
+    scenario.write_text(make(samples=20_000).to_toml())
+    for name, options in (("a.h5", ("--threads", "2", "--compress")), ("b.h5", ("--threads", "1"))):
+        done = run_cli("record", str(scenario), "--out", str(tmp_path / name), *options,
+                       "--quiet", "--seed", "4")
+        assert done.returncode == 0, done.stderr
+    with h5py.File(tmp_path / "a.h5", "r") as a, h5py.File(tmp_path / "b.h5", "r") as b:
+        assert a["samples"].compression == "gzip" and b["samples"].compression is None
+        np.testing.assert_array_equal(a["samples"][:], b["samples"][:])

@@ -205,7 +205,8 @@ def cmd_record(args):
         else:
             record = simulate_record(scenario, seed=args.seed, duration_s=args.duration,
                                      out=args.out, form=args.form, progress=not args.quiet,
-                                     overwrite=args.force)
+                                     overwrite=args.force, workers=args.threads,
+                                     compression="deflate" if args.compress else "none")
     for warning in caught:
         print(f"noisechain record: warning: {warning.message}", file=sys.stderr)
     truth = record.truth

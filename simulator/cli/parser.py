@@ -130,6 +130,13 @@ def build_parser():
                    "trajectory (QuTiP; ideal iq heterodyne receiver, small systems, slow)")
     p.add_argument("--master-model", choices=("full", "linearised"), default="full",
                    help="master-equation model for --engine master (default: %(default)s)")
+    p.add_argument("--threads", type=int, default=None, metavar="N",
+                   help="threads drawing random numbers, digitising and compressing "
+                   "beside the recursion (default: every available core; the record is "
+                   "the same bits for any number)")
+    p.add_argument("--compress", action="store_true",
+                   help="deflate the samples (HDF5 shuffle + gzip: about 11 %% smaller, "
+                   "several times slower to write)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
     p.set_defaults(func=cmd_record)

@@ -43,6 +43,7 @@ FREQUENCY_CONVENTION = ("I + iQ: anti-Stokes sideband (light above the drive) at
                         "frequency of numpy.fft / scipy.signal.welch; if records: local "
                         "oscillator below the drive puts it above the intermediate frequency")
 DEFLATE_LEVEL = 1  # zlib level of the samples: fastest; higher levels gain < 1 % (docs/records.md)
+COMPRESSIONS = ("none", "deflate")  # of the samples; docs/records.md weighs size against speed
 _TRUTH_ARRAYS = ("occupation", "effective_frequency_hz", "effective_linewidth_hz",
                  "coupling_rate_hz", "zero_point_amplitude_m")
 
@@ -54,8 +55,14 @@ class RecordFileWriter:
     deletes the temporary file.
     """
 
-    def __init__(self, path, plan, chunk_rows=HDF5_CHUNK_ROWS, *, overwrite=False):
+    def __init__(self, path, plan, chunk_rows=HDF5_CHUNK_ROWS, *, overwrite=False,
+                 compression="none"):
         import h5py
+
+        if compression not in COMPRESSIONS:
+            raise InputError(f"compression = {compression!r}; expected one of "
+                             f"{', '.join(map(repr, COMPRESSIONS))}")
+        self.deflate = compression == "deflate"
 
         self.path, self.plan = Path(path), plan
         if self.path.is_dir():
@@ -79,8 +86,9 @@ class RecordFileWriter:
             shape = (n, 2) if plan.chain.record_kind == "iq" else (n,)
             self.samples = self.file.create_dataset(
                 "samples", shape=shape, dtype=np.int16 if plan.bits <= 16 else np.int32,
-                chunks=(rows,) + shape[1:], compression="gzip",
-                compression_opts=DEFLATE_LEVEL, shuffle=True)
+                chunks=(rows,) + shape[1:],
+                **(dict(compression="gzip", compression_opts=DEFLATE_LEVEL, shuffle=True)
+                   if self.deflate else {}))
             self.rows, self.partial = rows, {}
             self.truth = self.file.create_group("truth")
             if plan.watched.size:
@@ -134,7 +142,7 @@ class RecordFileWriter:
         for k in range(-(-first // rows), (end - 1) // rows + 1):
             lo, hi = k * rows, min((k + 1) * rows, n)
             if hi <= end:
-                out.append((k, encode_chunk(counts[lo - first:hi - first], rows)))
+                out.append((k, encode_chunk(counts[lo - first:hi - first], rows, self.deflate)))
         return out
 
     def write_encoded(self, first, counts, mech, encoded):
@@ -160,7 +168,7 @@ class RecordFileWriter:
             filled += hi - lo
             if filled == size:
                 self.partial.pop(k, None)
-                self._put(k, encode_chunk(buffer, rows))
+                self._put(k, encode_chunk(buffer, rows, self.deflate))
             else:
                 self.partial[k] = (buffer, filled)
         if mech is not None:
@@ -218,8 +226,8 @@ class RecordFileWriter:
                       reader=functools.partial(_counts_of, self.path), **header)
 
 
-def encode_chunk(counts, rows):
-    """One chunk of counts as HDF5's shuffle and deflate filters store it.
+def encode_chunk(counts, rows, deflate=True):
+    """One chunk of counts as HDF5 stores it: raw, or through its shuffle and deflate filters.
 
     The chunk is padded with zeros to ``rows`` rows (HDF5 stores edge chunks
     whole), its elements' bytes are regrouped by significance (the shuffle
@@ -230,6 +238,8 @@ def encode_chunk(counts, rows):
     """
     block = np.zeros((rows,) + counts.shape[1:], dtype=counts.dtype)
     block[:len(counts)] = counts
+    if not deflate:
+        return block.tobytes()
     width = block.dtype.itemsize
     shuffled = np.ascontiguousarray(block.reshape(-1).view(np.uint8).reshape(-1, width).T)
     return zlib.compress(shuffled.data, DEFLATE_LEVEL)
