@@ -90,12 +90,13 @@ def test_cli_threads_and_compression(tmp_path):
     """`noisechain record --threads 2 --compress` writes the bits of one thread."""
     from conftest import run_cli
 
-    scenario = tmp_path / "s.toml"
-    scenario.write_text(make(samples=20_000).to_toml())
-    for name, options in (("a.h5", ("--threads", "2", "--compress")), ("b.h5", ("--threads", "1"))):
-        done = run_cli("record", str(scenario), "--out", str(tmp_path / name), *options,
-                       "--quiet", "--seed", "4")
-        assert done.returncode == 0, done.stderr
-    with h5py.File(tmp_path / "a.h5", "r") as a, h5py.File(tmp_path / "b.h5", "r") as b:
-        assert a["samples"].compression == "gzip" and b["samples"].compression is None
-        np.testing.assert_array_equal(a["samples"][:], b["samples"][:])
+    scenario = make(samples=20_000)
+    path = tmp_path / "s.toml"
+    path.write_text(scenario.to_toml())
+    done = run_cli("record", str(path), "--out", str(tmp_path / "a.h5"), "--threads", "2",
+                   "--compress", "--quiet", "--seed", "4")
+    assert done.returncode == 0, done.stderr
+    with h5py.File(tmp_path / "a.h5", "r") as a:
+        assert a["samples"].compression == "gzip"
+        np.testing.assert_array_equal(a["samples"][:],
+                                      simulate_record(scenario, seed=4, workers=1).counts)

@@ -193,14 +193,7 @@ class RecordFileWriter:
         s["columns"] = np.array(["I", "Q"] if header["kind"] == "iq" else ["r"],
                                 dtype=h5py.string_dtype())
         truth = plan.truth
-        t = self.truth.attrs
-        t["mode_names"] = np.array(truth.mode_names, dtype=h5py.string_dtype())
-        for name in _TRUTH_ARRAYS:
-            t[name] = np.asarray(getattr(truth, name), dtype=float)
-        t["cavity_occupation"] = truth.cavity_occupation
-        cal = self.truth.create_group("calibration").attrs
-        for key, value in truth.calibration.items():
-            cal[key] = value
+        write_truth(self.truth, truth)
         if self.mech is not None:
             self.mech.attrs["columns"] = np.array(
                 [f"{m}.{q}" for m in truth.mode_names for q in "qp"], dtype=h5py.string_dtype())
@@ -224,6 +217,28 @@ class RecordFileWriter:
                       scenario=plan.scenario, truth=truth, created_utc=created,
                       mechanical_quadratures=None,
                       reader=functools.partial(_counts_of, self.path), **header)
+
+
+def write_truth(group, truth):
+    """The ground truth as attributes of ``group`` and its subgroup ``calibration``."""
+    import h5py
+
+    t = group.attrs
+    t["mode_names"] = np.array(truth.mode_names, dtype=h5py.string_dtype())
+    for name in _TRUTH_ARRAYS:
+        t[name] = np.asarray(getattr(truth, name), dtype=float)
+    t["cavity_occupation"] = truth.cavity_occupation
+    cal = group.create_group("calibration").attrs
+    for key, value in truth.calibration.items():
+        cal[key] = value
+
+
+def read_truth(group):
+    """The :class:`simulator.records.generate.Truth` that :func:`write_truth` stored."""
+    return Truth(mode_names=tuple(_text(x) for x in group.attrs["mode_names"]),
+                 **{k: tuple(float(x) for x in group.attrs[k]) for k in _TRUTH_ARRAYS},
+                 cavity_occupation=float(group.attrs["cavity_occupation"]),
+                 calibration={k: _plain(v) for k, v in group["calibration"].attrs.items()})
 
 
 def encode_chunk(counts, rows, deflate=True):
@@ -300,10 +315,7 @@ def load_record(path, *, start=0, stop=None, samples_only=False):
             raise InputError(f"record file {str(path)!r}: truth/mechanical_quadratures holds "
                              f"{int(np.size(mech) - np.isfinite(mech).sum())} non-finite "
                              "values (NaN or infinity); expected finite numbers")
-        truth = Truth(mode_names=tuple(_text(x) for x in t.attrs["mode_names"]),
-                      **{k: tuple(float(x) for x in t.attrs[k]) for k in _TRUTH_ARRAYS},
-                      cavity_occupation=float(t.attrs["cavity_occupation"]),
-                      calibration={k: _plain(v) for k, v in t["calibration"].attrs.items()})
+        truth = read_truth(t)
         scenario = parse_scenario(_text(a["scenario_toml"]), source=f"{path}:scenario_toml")
         return Record(
             counts=counts, path=path, kind=_text(a["kind"]), scheme=_text(a["scheme"]),
