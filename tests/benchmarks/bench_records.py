@@ -33,6 +33,9 @@ Prints, measured side by side in one run:
    filters through h5py (none, shuffle, gzip levels, lzf), the registered
    filters of hdf5plugin when it is importable, and this package's own
    deflate on 1 and all threads.
+7. A synthetic averaged spectrum (drawn from its exact law) of a 1 s and a
+   one-hour record, against the time the time-domain route (stream the
+   record, then average its periodograms) would take at the rate of 5.
 
 The machine may be shared: absolute rates vary from run to run, the ratios
 measured side by side in one run are what count.
@@ -289,6 +292,7 @@ def every_core(n):
                       f"   / target {rate / target:5.2f}"
                       f"   / (cores x bound) {rate / (cores * bound):5.2f}"
                       f"   speed-up {rate / rates[compression, 1]:4.2f}")
+    return rates["none", cores]
 
 
 COMPRESSION_CHUNK = 1 << 18
@@ -350,13 +354,32 @@ def compression_options(n):
               f"size {size / raw:.3f}")
 
 
+def synthetic_spectra(stream_rate):
+    from simulator.analysis.synthetic_spectrum import synthetic_averaged_spectrum
+
+    segment = 4096
+    synthetic_averaged_spectrum(scenario(1.0), segment_samples=segment, seed=1)  # imports
+    times = {}
+    for seconds in (1.0, 3600.0):
+        times[seconds] = best_of(lambda seconds=seconds: synthetic_averaged_spectrum(
+            scenario(1.0), segment_samples=segment, duration_s=seconds, seed=1))
+    hour = 3600.0 * 2e6
+    print(f"7. synthetic averaged spectrum, segments of {segment} samples at 2 MS/s")
+    print(f"   1 s record: {times[1.0] * 1e3:8.1f} ms   one hour: {times[3600.0] * 1e3:8.1f} ms"
+          f"   ratio {times[3600.0] / times[1.0]:.2f}")
+    if stream_rate:
+        route = hour / stream_rate
+        print(f"   the time-domain route for the hour at {stream_rate / 1e6:.1f} M samples/s: "
+              f"{route:8.0f} s   ratio {route / times[3600.0]:.3g}")
+
+
 def main():
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--samples", type=float, default=2e7,
                         help="length of the streamed record (target: 1e9)")
     parser.add_argument("--kernel-samples", type=float, default=2e6)
     parser.add_argument("--skip-qutip", action="store_true")
-    parser.add_argument("--only", default="1,2,3,4,5,6", help="sections to run, e.g. 5,6")
+    parser.add_argument("--only", default="1,2,3,4,5,6,7", help="sections to run, e.g. 5,6")
     args = parser.parse_args()
     only = {int(x) for x in args.only.split(",")}
     kernel = int(args.kernel_samples)
@@ -366,9 +389,12 @@ def main():
                 4: lambda: streamed_memory([int(args.samples) // 10, int(args.samples)]),
                 5: lambda: every_core(int(args.samples)),
                 6: lambda: compression_options(kernel)}
+    rate = None
     for number, run in sections.items():
         if number in only:
-            run()
+            rate = run() if number == 5 else (run(), rate)[1]
+    if 7 in only:
+        synthetic_spectra(rate)
 
 
 if __name__ == "__main__":
