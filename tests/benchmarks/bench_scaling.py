@@ -12,6 +12,11 @@ worker processes itself, as a cluster would run them):
    validation trials (record + reference thermometry per trial): wall time
    per task and the speed-up of 2 workers over 1 on the same executor.
 
+BLAS runs on one thread in every worker (local processes and Dask alike)
+and, for the rows with one worker, in this process too; the first line
+shows why: one reference-thermometry fit with the default BLAS threads
+against one thread, side by side.
+
 Starting the workers is included in every time (it is part of what a user
 waits for). The machine may be shared with other work: the ratios measured
 side by side in one run are what count, not the absolute times.
@@ -96,6 +101,26 @@ def measure(out, where, args, sweep, trial):
     return noop, swept, tried
 
 
+def blas_threads(trial):
+    """Seconds of one thermometry fit with the default BLAS threads and with one."""
+    import warnings
+
+    from threadpoolctl import threadpool_limits
+
+    from simulator.analysis.reference import sideband_thermometry
+    from simulator.workflows.estimator import public_view
+    from simulator.workflows.record import simulate_record
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        view = public_view(simulate_record(trial, seed=1, duration_s=TRIAL_SECONDS))
+    sideband_thermometry(view)
+    default = timed(lambda: sideband_thermometry(view))
+    with threadpool_limits(limits=1):
+        one = timed(lambda: sideband_thermometry(view))
+    return default, one
+
+
 def main():
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--points", type=int, default=200, help="sweep points")
@@ -109,6 +134,10 @@ def main():
                    progress=False)
         run_sweep(parse_scenario(SWEEP.replace("NUM", "2")), Path(out) / "s", workers=1,
                   progress=False)
+    default, one = blas_threads(trial)
+    from threadpoolctl import threadpool_limits
+
+    threadpool_limits(limits=1)  # as in the workers: one BLAS thread per task
     rows = {}
     for label, workers, context in executors():
         with context() as where, tempfile.TemporaryDirectory() as out:
@@ -117,6 +146,8 @@ def main():
         print(f"   done: {label}", file=sys.stderr)
     print(f"Scaling of the task runner: {args.noop} empty tasks, a {args.points}-point sweep, "
           f"{args.trials} trials of {TRIAL_SECONDS:g} s records")
+    print(f"   one thermometry fit: {default:.3f} s with the default BLAS threads, {one:.3f} s "
+          f"with one (ratio {default / one:.2f})")
     print(f"   {'executor, workers':28s} {'overhead ms/task':>17s} {'sweep ms/point':>15s} "
           f"{'speed-up':>9s} {'trial s/trial':>14s} {'speed-up':>9s}")
     for label, (workers, noop, swept, tried) in rows.items():
