@@ -17,8 +17,9 @@ and, for the rows with one worker, in this process too; the first line
 shows why: one reference-thermometry fit with the default BLAS threads
 against one thread, side by side.
 
-Starting the workers is included in every time (it is part of what a user
-waits for). The machine may be shared with other work: the ratios measured
+Starting the workers is included for local processes and the
+LocalCluster (part of what a user waits for); the scheduler at an address is
+started, with its workers, before the clock runs, as a cluster would be. The machine may be shared with other work: the ratios measured
 side by side in one run are what count, not the absolute times.
 
 Run: ``.venv/bin/python tests/benchmarks/bench_scaling.py [--points N]
