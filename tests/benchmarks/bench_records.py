@@ -229,7 +229,7 @@ from simulator.workflows.record import simulate_record
 n = int(float(sys.argv[1]))
 simulate_record(scenario(1e-3), out=sys.argv[2], seed=1)  # load the compiled kernels
 t = time.perf_counter()
-r = simulate_record(scenario(n / 2e6), out=sys.argv[2], seed=1)
+r = simulate_record(scenario(n / 2e6), out=sys.argv[2], seed=1, overwrite=True)
 dt = time.perf_counter() - t
 hwm = [line for line in Path("/proc/self/status").read_text().splitlines()
        if line.startswith("VmHWM")]  # peak RSS of this process image (not inherited)
@@ -251,7 +251,7 @@ def streamed_memory(lengths):
             print(f"   {int(samples):.3g} samples: peak RSS {float(rss_mb):7.1f} MB "
                   f"(target < 500 MB; ratio {float(rss_mb) / 500:.2f}), "
                   f"{int(samples) / float(seconds) / 1e6:.2f} M samples/s with "
-                  f"digitising, compression and writing, "
+                  f"digitising and writing (raw counts, every core), "
                   f"file {float(size_mb):.0f} MB")
             path.unlink()
 
