@@ -19,8 +19,9 @@ against one thread, side by side.
 
 Starting the workers is included for local processes and the
 LocalCluster (part of what a user waits for); the scheduler at an address is
-started, with its workers, before the clock runs, as a cluster would be. The machine may be shared with other work: the ratios measured
-side by side in one run are what count, not the absolute times.
+started, with its workers, before the clock runs, as a cluster would be.
+The machine may be shared with other work: the ratios measured side by side
+in one run are what count, not the absolute times.
 
 Run: ``.venv/bin/python tests/benchmarks/bench_scaling.py [--points N]
 [--trials N] [--noop N]``.
