@@ -344,7 +344,7 @@ def generate(plan, sink, *, chunk, progress=None, workers=1):
         normals = kernels.NormalBlocks(
             plan.seed, kernels.SAMPLE_STREAM, step.width, kernels.BLOCK_SAMPLES,
             executor=pool if workers > 1 else None, total=n_total,
-            ahead=2 * workers + -(-chunk // kernels.BLOCK_SAMPLES))
+            ahead=2 * workers + 2)  # enough to keep every thread drawing, memory bounded
         stage = pipeline.OrderedStage(pool, finish, deliver, depth=2 * workers)
         try:
             for first in range(0, n_total, chunk):
