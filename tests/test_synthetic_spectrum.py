@@ -38,6 +38,7 @@ from simulator.workflows.record import simulate_averaged_spectrum, simulate_reco
 N_SEG = 256
 SAMPLES = N_SEG * 2048  # K = 2048 segments
 IF = dict(detection={"intermediate_frequency_hz": 0.41e6}, record={"kind": "if"})
+HOMODYNE = dict(detection={"scheme": "homodyne", "quadrature_angle_rad": 1.2})
 Z_MAX = 5.0  # no bin of a few hundred beyond 5 standard errors (p ~ 1e-4 for all)
 HANN_NEIGHBOUR = 4.0 / 9.0  # |Σ w² e^{2πin/N}|² / (Σ w²)² for the Hann window
 
@@ -69,7 +70,7 @@ def iq():
     return plan_record(scenario, form="innovations"), simulate_record(scenario, seed=11)
 
 
-@pytest.mark.parametrize("sections", [{}, IF])
+@pytest.mark.parametrize("sections", [{}, IF, HOMODYNE])
 def test_expectation_agrees_with_the_full_state_autocovariance(sections):
     """Innovations-form autocovariance by doubling = full-state autocovariance, folded."""
     plan = plan_record(make(samples=SAMPLES, **sections), form="innovations")
@@ -138,8 +139,9 @@ def test_averaged_record_and_synthetic_spectrum_share_mean_and_spread(iq):
     assert np.abs(z).max() < 1.5 * Z_MAX
 
 
-def test_real_record_bins_are_scaled_chi_square():
-    scenario = make(samples=SAMPLES, **IF)
+@pytest.mark.parametrize("sections", [IF, HOMODYNE])
+def test_real_record_bins_are_scaled_chi_square(sections):
+    scenario = make(samples=SAMPLES, **sections)
     plan = plan_record(scenario, form="innovations")
     z = segments(simulate_record(scenario, seed=4), "hann")
     e, _ = law_fft_order(plan, "hann")
