@@ -196,3 +196,100 @@ def test_demo_numbers_are_finite():
     data = inspect_scenario(load_scenario(DEMO)).to_dict()
     for key in ("photon_number", "cavity_occupation", "growth_rate_hz"):
         assert math.isfinite(data[key])
+
+
+# -- messages a physicist reads at a glance ------------------------------------------
+
+def blue_stable():
+    """Blue of the cavity by Ωm, driven weakly: stable, but the light heats the mode."""
+    return scenario_with_coupling(g_hz=2e2, detuning_hz=5e6, modes=[
+        mode("drum", frequency_hz=5e6, linewidth_hz=20.0)])
+
+
+def test_backaction_limit_outside_its_domain_is_not_applicable_with_why(tmp_path, capsys):
+    # n_min = A+/(A− − A+) is the floor of sideband cooling and needs A− > A+
+    # (Marquardt, Chen, Clerk, Girvin, PRL 99, 093902 (2007)); on the blue side
+    # the formula gives a negative number, which must not be printed.
+    s = blue_stable()
+    report = inspect_scenario(s)
+    ms = report.steady.modes[0]
+    assert ms.stokes_rate_hz > ms.anti_stokes_rate_hz and ms.backaction_limit < 0
+    text = report.to_text()
+    assert "back-action limit n_min     not applicable (the Stokes rate" in text
+    assert f"{ms.backaction_limit:.6g}" not in text
+    assert main(["inspect", str(write(tmp_path, s)), "--json"]) == 0
+    entry = strict_json(capsys.readouterr().out)["modes"][0]
+    assert entry["backaction_limit"] is None
+    assert "heats this mode" in entry["backaction_limit_not_applicable"]
+    cooled_entry = inspect_scenario(cooled(0.01)).to_dict()["modes"][0]
+    assert cooled_entry["backaction_limit"] > 0
+    assert "backaction_limit_not_applicable" not in cooled_entry
+
+
+def test_no_master_equation_advice_for_occupations_beyond_its_fock_space():
+    # A thermal state of n quanta needs ≈ n ln(4/ε) Fock levels (geometric tail;
+    # simulator.master.hilbert.displaced_thermal_cutoff): 1e8 phonons need ~1e9.
+    hot = scenario_with_coupling(g_hz=1e3, detuning_hz=-20e6, modes=[
+        mode("drum", frequency_hz=20e6, linewidth_hz=10.0, coupling_hz=500.0,
+             bath_occupation=1e8)])
+    regime = inspect_scenario(hot, feasibility=False).regime
+    assert regime.level == "nonlinear"
+    assert "the master equation: not applicable (" in regime.reason
+    assert "inspect --master" not in regime.reason
+    few = scenario_with_coupling(g_hz=1e3, detuning_hz=-20e6, modes=[
+        mode("drum", frequency_hz=20e6, linewidth_hz=10.0, coupling_hz=2e5,
+             bath_occupation=1.0)])
+    verdict = inspect_scenario(few, feasibility=False).regime
+    assert verdict.level == "nonlinear" and "inspect --master" in verdict.reason
+
+
+@pytest.mark.parametrize(("sections", "words"), [
+    # a 6.3 MHz drum written in Hz beside a 6 GHz circuit
+    ({"mechanics": {"frequency_hz": 6.3, "linewidth_hz": 1e-4}},
+     "was a value in MHz written in Hz? (6.3 MHz is frequency_hz = 6.3e+06)"),
+    ({"mechanics": {"linewidth_hz": 5e6}}, "Q = frequency/linewidth = 4, below 10"),
+    ({"mechanics": {"bath_occupation": None, "bath_temperature_k": 2e-5}},
+     "was a value in mK written in K? (2e-05 mK is bath_temperature_k = 2e-08)"),
+    ({"drive": {"power_w": 67.0}}, "67 W (48.26 dBm) at the port of a 6e+09 Hz circuit"),
+    ({"electronics": {"amplifier_added_quanta": 12.0}},
+     'set detection.receiver = "microwave"'),
+])
+def test_implausible_values_are_warned_with_what_looks_wrong(sections, words, tmp_path, capsys):
+    from conftest import make_scenario
+
+    drive = {"wavelength_m": None, "frequency_hz": 6e9, "power_w": 1e-10, "detuning_hz": -20e6}
+    s = make_scenario(**{**sections, "drive": drive | sections.get("drive", {})})
+    assert any(words in w for w in inspect_scenario(s, feasibility=False).warnings), words
+    path = write(tmp_path, s)
+    assert main(["check", str(path)]) == 0
+    err = capsys.readouterr().err
+    assert "noisechain check: warning:" in err and words in err
+    assert main(["check", str(path), "--quiet"]) == 0  # --quiet hides progress, not warnings
+    assert words in capsys.readouterr().err
+
+
+def test_a_plausible_device_has_no_plausibility_warning():
+    from simulator.scenario.plausibility import plausibility_warnings
+
+    for path in sorted((REPO / "scenarios").glob("*.toml")):
+        assert plausibility_warnings(load_scenario(path)) == (), path.name
+
+
+def test_plot_into_a_path_under_a_file_says_the_file_is_not_a_folder(tmp_path, capsys):
+    blocker = tmp_path / "outfile"
+    blocker.write_text("not a folder", encoding="utf-8")
+    for target in (blocker / "s.png", blocker / "deeper" / "s.png"):
+        assert main(["spectrum", str(DEMO), "--plot", str(target)]) == 2
+        err = capsys.readouterr().err
+        assert f"{str(blocker)!r} is a file, not a folder" in err and "does not exist" not in err
+
+
+@pytest.mark.parametrize("verb", ["check", "inspect", "spectrum", "record", "sweep", "trial",
+                                  "run", "demo"])
+def test_every_verb_accepts_quiet(verb):
+    from simulator.cli.parser import build_parser
+
+    needs = {"record": ["--out", "r.h5"], "sweep": ["--out", "d"], "run": ["--out", "d"],
+             "trial": ["--out", "d", "--estimator", "m:f", "--trials", "1"]}
+    argv = [verb] + ([] if verb == "demo" else ["x.toml"]) + needs.get(verb, []) + ["--quiet"]
+    assert build_parser().parse_args(argv).quiet is True

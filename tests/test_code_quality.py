@@ -30,7 +30,7 @@ SUFFIX_UNITS = {
     "_a_per_sqrt_hz": ("A/√Hz",), "_rad2_per_hz": ("rad²/Hz",), "_per_hz": ("1/Hz",),
     "_hz": ("Hz",), "_w": ("W",), "_m": ("m",),
     "_kg": ("kg",), "_k": ("K",), "_s": ("s",), "_v": ("V",), "_rad": ("rad",),
-    "_ohm": ("Ω", "V/A"),
+    "_ohm": ("Ω", "V/A"), "_db": ("dB",),
 }
 
 

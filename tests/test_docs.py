@@ -36,13 +36,20 @@ REGENERATE = ".venv/bin/python -m simulator.scenario > docs/scenario-reference.m
 KEY_MENTION = re.compile(r"`([a-z_]+)(?:\[\w+\])?\.([a-z_]+)`")
 
 
-def schema_keys():
-    """Section name → set of its key names, read from the loader's schema."""
+def schema_keys(twins=False):
+    """Section name → set of its key names, read from the loader's schema.
+
+    ``twins``: also the ``<name>_dbm`` twin of every power key ``<name>_w``
+    (simulator/scenario/units.py), which the docs may name.
+    """
     keys = {}
     for f in schema.public_fields(Scenario):
         kind, cls, _ = schema.field_kind(Scenario, f.name)
         if kind != "scalar":
             keys[f.name] = {sub.name for sub in schema.public_fields(cls)}
+            keys[f.name] |= set() if not twins else {sub.name.removesuffix("_w") + "_dbm"
+                             for sub in schema.public_fields(cls)
+                             if sub.metadata.get("unit") == "W"}
     return keys
 
 
@@ -57,7 +64,7 @@ def key_problems(text):
     ``drvie``) is also reported; anything else (``simulator.model.optomechanics``,
     ``demo.toml``) is not a scenario key and is ignored.
     """
-    keys = schema_keys()
+    keys = schema_keys(twins=True)
     problems, checked = [], 0
     for section, key in KEY_MENTION.findall(text):
         if key in FILE_EXTENSIONS:  # a file name such as `record.py`, not a key

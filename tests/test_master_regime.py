@@ -141,7 +141,7 @@ def test_master_too_large_is_a_clear_input_error(tmp_path):
 def test_spectrum_engine_master(tmp_path):
     flux = 1e-3 * (2 * np.pi * 1e6) ** 2 / 4 / (2 * np.pi * 0.5e6)  # n̄ ≈ 1e-3 on resonance
     path = _small_scenario(tmp_path, power_w=flux * scipy.constants.h * 2.8e14)
-    out = run_cli("spectrum", path, "--engine", "master", "--json", "--out",
+    out = run_cli("spectrum", path, "--engine", "master", "--at", "cavity", "--json", "--out",
                   tmp_path / "s.csv")
     assert out.returncode == 0, out.stderr
     data = json.loads(out.stdout)

@@ -34,7 +34,7 @@ REQUIRED_CLASSES = {
     "unknown key", "unknown section", "missing key", "wrong type", "nan or inf",
     "not positive", "external linewidth > total", "exclusive keys", "malformed TOML",
     "duplicate mode names", "empty mechanics", "outside physical limits", "bad name",
-    "non-numeric sweep",
+    "non-numeric sweep", "scaled unit", "receiver keys",
 }
 
 

@@ -26,7 +26,8 @@ def test_spectrum_writes_netcdf_csv_and_a_png(tmp_path, capsys):
     import xarray as xr
 
     nc, csv, png = tmp_path / "s.nc", tmp_path / "s.csv", tmp_path / "s.png"
-    assert main(["spectrum", str(DEMO), "--out", str(nc), "--plot", str(png)]) == 0
+    assert main(["spectrum", str(DEMO), "--at", "cavity", "--out", str(nc), "--plot",
+                 str(png)]) == 0
     text = capsys.readouterr().out
     assert "anti-Stokes" in text and "steady state" in text
     api = heterodyne_spectrum(demo_scenario())
@@ -38,7 +39,7 @@ def test_spectrum_writes_netcdf_csv_and_a_png(tmp_path, capsys):
         assert ds.attrs["sided"] == "two-sided" and "anti-Stokes" in ds["frequency"].long_name
         assert "[[mechanics]]" in ds.attrs["provenance_scenario_toml"]
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size > 20_000
-    assert main(["spectrum", str(DEMO), "--out", str(csv)]) == 0
+    assert main(["spectrum", str(DEMO), "--at", "cavity", "--out", str(csv)]) == 0
     lines = csv.read_text(encoding="utf-8").splitlines()
     meta = [ln for ln in lines if ln.startswith("#")]
     assert any("sided: two-sided" in ln for ln in meta)
@@ -50,7 +51,7 @@ def test_spectrum_writes_netcdf_csv_and_a_png(tmp_path, capsys):
 
 
 def test_spectrum_json_reports_the_sideband_summary(capsys):
-    assert main(["spectrum", str(DEMO), "--json"]) == 0
+    assert main(["spectrum", str(DEMO), "--json", "--at", "cavity"]) == 0
     report = _strict(capsys.readouterr().out)
     expected = sideband_summary(demo_scenario())[0]
     side = report["sidebands"][0]
@@ -65,7 +66,7 @@ def test_homodyne_scenario_gives_a_one_sided_spectrum(tmp_path, capsys):
     path = tmp_path / "hom.toml"
     path.write_text(demo_scenario().replace("detection.scheme", "homodyne").to_toml(),
                     encoding="utf-8")
-    assert main(["spectrum", str(path), "--json", "--angle-deg", "45"]) == 0
+    assert main(["spectrum", str(path), "--json", "--at", "cavity", "--angle-deg", "45"]) == 0
     report = _strict(capsys.readouterr().out)
     assert report["sided"] == "one-sided" and report["frequency_range_hz"][0] == 0.0
     assert "45 deg" in report["quantity"]

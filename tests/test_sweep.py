@@ -244,3 +244,16 @@ spectra = true
     assert first.truth.occupation[0] == one["occupation"].values[0, 0]
     spectrum = xr.load_dataset(tmp_path / "one" / "spectra" / "00001.nc")
     assert spectrum.attrs["sided"] == "two-sided"
+
+
+def test_a_scenario_with_a_sweep_pickles_for_worker_processes():
+    """Sweeps and trials ship scenarios to other processes: a [sweep] section must pickle."""
+    import pickle
+
+    from simulator.scenario.loader import load_scenario
+
+    root = Path(__file__).resolve().parents[1]
+    scenario = load_scenario(root / "scenarios" / "trampoline_blue_unstable.toml")
+    again = pickle.loads(pickle.dumps(scenario))
+    assert dict(again.sweep.parameters) == dict(scenario.sweep.parameters)
+    assert again.sweep.parameters is not scenario.sweep.parameters

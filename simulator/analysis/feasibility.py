@@ -9,13 +9,16 @@ over the record's frequency axis (two-sided for IQ heterodyne, f ≥ 0 for a
 real record): every 1/T-wide bin of the periodogram is exponentially
 distributed about S. So the information grows linearly in T and everything
 below is quoted per unit time (1/s); the Cramér–Rao bound on θ_i after T is
-√((F₁⁻¹)_ii / T).
+√((F₁⁻¹)_ii / T). S is that of the samples actually recorded: the
+integrate-and-dump digitiser's spectral matrix of the record's real channels
+on |f| < fs/2 (aliased × sinc², :mod:`simulator.analysis.information`).
 
 Two uses:
 - :func:`fisher_matrix`: information about any scenario parameters (by path:
-  bath occupation or temperature, coupling, efficiency, ...) from the EXACT
-  analytic spectrum, derivatives by central differences of re-solved models;
-  :func:`occupation_bound` turns it into the bound on the mode occupation.
+  bath occupation or temperature, coupling, efficiency, ...) from the exact
+  analytic spectrum of the samples, derivatives by central differences of
+  re-solved models; :func:`occupation_bound` turns it into the bound on the
+  mode occupation.
 - :func:`asymmetry_time`: time to separate the quantum sideband asymmetry
   from zero at a chosen significance. In the reference lineshape model of
   :mod:`simulator.analysis.thermometry` the cavity-corrected areas are
@@ -36,7 +39,7 @@ import math
 
 import numpy as np
 
-from simulator.analysis.information import fisher_blocks, steps
+from simulator.analysis.information import SteppedModels, fisher_blocks
 from simulator.errors import InputError
 from simulator.model.optomechanics import mode_states
 
@@ -51,48 +54,54 @@ def _system(item):
     return as_system(item).require_stable()  # a clear error for an unstable point
 
 
-def _grid(system):
-    """Angular-frequency grid resolving every resonance of the record's model.
+def _sample_rate(system, sample_rate_hz=None):
+    """The record's sample rate: the caller's, ``digitizer.sample_rate_hz`` or the automatic one.
 
-    Two-sided in the model's outputs; for a real record at an intermediate
-    frequency f_IF ("if"), the record's own positive frequencies: every
-    resonance g of the envelope appears at f_IF − g and, from the image band,
-    at g − f_IF.
+    ``math.inf`` stands for the continuous record (no digitiser: no sinc², no
+    aliasing, no band limit), the limit the bound approaches as fs grows.
     """
-    from simulator.linear.spectra import adaptive_grid
-    from simulator.model.units import angular, ordinary
+    from simulator.model.chain import record_sample_rate
 
-    g = adaptive_grid(system.chain.model, points_per_decade=64)
-    if system.chain.receiver != "if":
-        return angular(g)
-    f_if = float(ordinary(system.chain.carrier_rad_s))
-    f = np.unique(np.concatenate([f_if - g, g - f_if]))
-    return angular(f[f > 0])
+    if sample_rate_hz is None:
+        return record_sample_rate(system.scenario, system.chain)
+    if not (isinstance(sample_rate_hz, (int, float)) and sample_rate_hz > 0
+            and not math.isnan(sample_rate_hz)):
+        raise InputError(f"sample_rate_hz = {sample_rate_hz!r}; expected a positive rate in Hz "
+                         "(or math.inf for the continuous record)")
+    return float(sample_rate_hz)
 
 
-def _fisher(system, paths, omega):
+def _finite(fs):
+    """The rate to sample at, or None for the continuous record (fs = ∞)."""
+    return None if math.isinf(fs) else fs
+
+
+def _grid(system, sample_rate_hz):
+    """Angular frequencies ω ≥ 0 resolving every line of the (sampled) record.
+
+    Up to π fs for samples; for the continuous record up to the farthest line
+    plus twenty of the broadest half-widths.
+    """
+    from simulator.analysis.information import record_grid
+
+    form = system.chain.channel_form(_finite(sample_rate_hz))
+    if math.isfinite(sample_rate_hz):
+        return record_grid(form, np.pi * sample_rate_hz)
+    centres, widths = form.lines()
+    return record_grid(form, float(np.max(np.abs(centres)) + 20.0 * np.max(widths)))
+
+
+def _fisher(system, paths, omega, sample_rate_hz, stepped=None, report=None):
     """:func:`simulator.analysis.information.fisher_blocks` for the system's own record."""
     chain = system.chain
+    stepped = stepped or SteppedModels(system)
     carrier = chain.carrier_rad_s if chain.receiver == "if" else None
-    return fisher_blocks(_record_model_of(system), system.scenario, paths, omega,
-                         carrier_rad_s=carrier)
+    return fisher_blocks(stepped.record_model, system.scenario, paths, omega,
+                         carrier_rad_s=carrier, sample_rate_hz=_finite(sample_rate_hz),
+                         steps_of=stepped.steps, report=report)
 
 
-def _record_model_of(system):
-    """``model_of(scenario)``: the record's model; the system's own for its own scenario.
-
-    The base is the system's (built once); the stepped scenarios of the
-    derivatives are other scenarios and get Systems of their own.
-    """
-    from simulator.model.system import System
-
-    def model_of(scenario):
-        return (system.chain if scenario is system.scenario else System(scenario).chain).model
-
-    return model_of
-
-
-def fisher_matrix(system, paths, *, frequency_hz=None):
+def fisher_matrix(system, paths, *, frequency_hz=None, sample_rate_hz=None):
     """Fisher information per unit time (1/s) about the parameters at ``paths``.
 
     Parameters
@@ -103,9 +112,13 @@ def fisher_matrix(system, paths, *, frequency_hz=None):
         Scenario parameter paths, e.g. ``["mechanics[0].bath_occupation",
         "mechanics[0].coupling_hz", "detection.efficiency"]``.
     frequency_hz : ndarray, optional
-        Integration grid (Hz): two-sided for iq and homodyne records, the
-        record's positive frequencies for an "if" record; default the adaptive
-        grid of the record's model.
+        Integration grid (Hz) on the record's axis; only |f| ≤ fs/2 is used
+        (the integrand is even in f). Default: a grid resolving every line of
+        the sampled record.
+    sample_rate_hz : float, optional
+        The digitiser's rate; default ``digitizer.sample_rate_hz`` or the
+        automatic rate of :func:`simulator.model.chain.automatic_sample_rate`;
+        ``math.inf`` for the continuous record (no digitiser).
 
     Returns
     -------
@@ -114,24 +127,29 @@ def fisher_matrix(system, paths, *, frequency_hz=None):
 
     Notes
     -----
-    The record is the p output channels of the detection chain (I and Q for
-    heterodyne, one channel for homodyne), a real stationary Gaussian vector
-    process with symmetrised spectral matrix S(f), so
+    The record is the p real channels of the detection chain (I and Q for
+    an iq record; the one photocurrent of homodyne and if records), sampled
+    by integrate-and-dump: a real stationary Gaussian vector sequence whose
+    spectral matrix S(f) on |f| < fs/2 is the continuous one aliased and
+    multiplied by sinc²(f/fs), so
 
-        F_ij / T = ½ ∫ df tr[S⁻¹ ∂_i S S⁻¹ ∂_j S]     (f from −∞ to ∞),
+        F_ij / T = ½ ∫_{−fs/2}^{fs/2} df tr[S⁻¹ ∂_i S S⁻¹ ∂_j S]
 
-    (Whittle 1953); for an "if" record, the one real photocurrent,
-    ½ ∫ df (∂_i S_r ∂_j S_r)/S_r² with the image band's noise in S_r. This
-    includes everything the chain adds (amplifier
-    noise, electronic noise, filters, single-ended detection) and the
+    (Whittle 1953). This includes everything the chain adds (amplifier
+    noise, electronic noise, filters, single-ended detection), what the
+    digitiser takes (sinc², aliased noise, the Nyquist band) and the
     correlation of the two sidebands of a heterodyne record, which a
     scalar formula over the complex I + iQ spectrum would miss.
     """
     from simulator.model.units import angular
 
     system = _system(system)
-    omega = _grid(system) if frequency_hz is None else angular(frequency_hz)
-    return _fisher(system, [tuple(paths)], omega)[0]
+    fs = _sample_rate(system, sample_rate_hz)
+    if frequency_hz is not None:
+        omega = angular(frequency_hz)
+    else:  # None: the grid of the sampled record's own form
+        omega = None if math.isfinite(fs) else _grid(system, fs)
+    return _fisher(system, [tuple(paths)], omega, fs)[0]
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -143,6 +161,8 @@ class OccupationBound:
     paths: tuple  # parameters estimated jointly (nuisance parameters included)
     error_one_second: float  # σ_n after T = 1 s
     fisher_per_second: np.ndarray
+    sample_rate_hz: float = math.nan  # of the samples the bound is for
+    method: str = "pole-residue"  # how the spectra were evaluated (or why the resolvent)
 
     def error_after(self, duration_s):
         """Bound on the standard deviation of n after ``duration_s`` seconds."""
@@ -163,20 +183,21 @@ def default_paths(scenario, mode=0):
             "detection.efficiency")
 
 
-def occupation_bound(system, mode=0, paths=None):
+def occupation_bound(system, mode=0, paths=None, *, sample_rate_hz=None):
     """Cramér–Rao bound on the exact occupation n of ``mode`` from the record.
 
     n is a function of the parameters at ``paths`` (the first is the bath);
     σ_n² T = ∇n · F₁⁻¹ · ∇n with ∇n by central differences of the Lyapunov
     steady state. All parameters are treated as unknown, so the bound includes
-    the cost of estimating the nuisance parameters.
+    the cost of estimating the nuisance parameters. The record is the
+    sampled one (:func:`fisher_matrix`), at ``sample_rate_hz`` if given.
     """
     system = _system(system)
     paths = tuple(paths) if paths is not None else default_paths(system.scenario, mode)
-    return occupation_bounds(system, [mode], [paths])[0]
+    return occupation_bounds(system, [mode], [paths], sample_rate_hz=sample_rate_hz)[0]
 
 
-def occupation_bounds(system, modes=None, paths=None, steady=None):
+def occupation_bounds(system, modes=None, paths=None, steady=None, *, sample_rate_hz=None):
     """:func:`occupation_bound` of several modes, sharing one pass over the spectrum.
 
     Parameters
@@ -189,6 +210,8 @@ def occupation_bounds(system, modes=None, paths=None, steady=None):
         Per mode; default :func:`default_paths`.
     steady : SteadyState, optional
         The system's steady state, when the caller has it already.
+    sample_rate_hz : float, optional
+        The digitiser's rate (default: the record's, :func:`fisher_matrix`).
 
     Returns
     -------
@@ -200,8 +223,12 @@ def occupation_bounds(system, modes=None, paths=None, steady=None):
     paths = [default_paths(scenario, j) for j in modes] if paths is None else paths
     if not paths:
         return []
-    fishers = _fisher(system, paths, _grid(system))
-    response = _CovarianceResponse(system, None if steady is None else steady.covariance)
+    fs = _sample_rate(system, sample_rate_hz)
+    stepped, report = SteppedModels(system), {}
+    omega = None if math.isfinite(fs) else _grid(system, fs)  # None: the base form's grid
+    fishers = _fisher(system, paths, omega, fs, stepped, report)
+    response = _CovarianceResponse(system, None if steady is None else steady.covariance,
+                                   stepped=stepped)
     bounds = []
     for mode, group, fisher in zip(modes, paths, fishers, strict=True):
         grad = np.array([response.occupation_derivative(path, mode) for path in group])
@@ -214,7 +241,7 @@ def occupation_bounds(system, modes=None, paths=None, steady=None):
         bounds.append(OccupationBound(
             mode=scenario.mechanics[mode].name, occupation=response.occupation(mode),
             paths=tuple(group), error_one_second=float(np.sqrt(variance)),
-            fisher_per_second=fisher))
+            fisher_per_second=fisher, sample_rate_hz=fs, method=report["method"]))
     return bounds
 
 
@@ -227,9 +254,10 @@ class _CovarianceResponse:
     for every parameter (Bartels and Stewart, Commun. ACM 15, 820 (1972)).
     """
 
-    def __init__(self, system, covariance=None):
+    def __init__(self, system, covariance=None, stepped=None):
         import scipy.linalg
 
+        self.stepped = stepped or SteppedModels(system)
         self.model = system.model
         self.scenario = system.scenario
         self.v = self.model.covariance() if covariance is None else covariance
@@ -252,10 +280,8 @@ class _CovarianceResponse:
     def _covariance_derivative(self, path):
         from scipy.linalg.lapack import dtrsyl
 
-        from simulator.model.system import System
-
-        up, down, span = steps(self.scenario, path)
-        mu, md = System(up).model, System(down).model
+        up, down, span = self.stepped.steps(path)
+        mu, md = self.stepped.system_of(up).model, self.stepped.system_of(down).model
         if mu.A.shape != self.model.A.shape or md.A.shape != self.model.A.shape:
             return (mu.covariance() - md.covariance()) / span  # the model changed shape
         da = (mu.A - md.A) / span
@@ -280,7 +306,8 @@ class AsymmetryTime:
     lineshape: dict  # parameter values the bound was evaluated at
 
 
-def asymmetry_time(system, mode=0, significance=ASYMMETRY_SIGNIFICANCE, steady=None):
+def asymmetry_time(system, mode=0, significance=ASYMMETRY_SIGNIFICANCE, steady=None, *,
+                   sample_rate_hz=None):
     """Integration time to tell the sideband asymmetry d = c_S − c_AS from zero.
 
     Parameters
@@ -293,6 +320,9 @@ def asymmetry_time(system, mode=0, significance=ASYMMETRY_SIGNIFICANCE, steady=N
         Required d/σ_d, e.g. 5 for a five-standard-deviation detection.
     steady : SteadyState, optional
         The scenario's steady state, when the caller has it already.
+    sample_rate_hz : float, optional
+        The digitiser's rate (default: the record's); the lineshape is that of
+        the samples.
 
     Returns
     -------
@@ -314,7 +344,7 @@ def asymmetry_time(system, mode=0, significance=ASYMMETRY_SIGNIFICANCE, steady=N
     steady = steady_state(system) if steady is None else steady
     state = steady.modes[mode]
     omega, width = state.effective_frequency_hz, state.effective_linewidth_hz
-    theta = _lineshape_of_record(system, cal, omega, width, steady)
+    theta = _lineshape_of_record(system, cal, omega, width, steady, sample_rate_hz)
     with np.errstate(all="ignore"):  # no signal at all: caught below as no bound
         per_quantum, n = theta[4], theta[3] / theta[4]
 
@@ -349,31 +379,33 @@ def asymmetry_time(system, mode=0, significance=ASYMMETRY_SIGNIFICANCE, steady=N
                             "asymmetry_area"), map(float, theta), strict=True)))
 
 
-def _lineshape_of_record(system, cal, omega, width, steady):
+def _lineshape_of_record(system, cal, omega, width, steady, sample_rate_hz=None):
     """Lineshape parameters (b, Ω, γ, c_AS, d) of the scenario's own record.
 
     Ω, γ and the occupation n are the exact ones; in weak coupling the
     cavity-corrected areas are c_AS = c·n and c_S = c·(n + 1) with c the area
     per quantum, so d = c. The floor b and the scale of c are read from the
-    exact spectrum of the iq record the scenario's chain delivers (amplifier
-    and electronic noise raise b; single-ended detection and filters lower
-    c), by comparing it with the ideal heterodyne spectrum at the anti-Stokes
-    peak.
+    exact spectrum of the iq samples the scenario's chain and digitiser
+    deliver (amplifier and electronic noise and aliasing raise b;
+    single-ended detection, filters and the digitiser's sinc² lower c), by
+    comparing it with the ideal heterodyne spectrum at the anti-Stokes peak.
     """
     from simulator.linear.spectra import heterodyne_spectrum
 
     scenario = system.scenario
-    chain = (system if scenario.record.kind in (None, "iq")
-             else system.replace("record.kind", "iq")).chain
-    # the record's axis is the optical offset (anti-Stokes at +f)
+    iq = system if scenario.record.kind in (None, "iq") else system.replace("record.kind", "iq")
+    fs = _sample_rate(iq, sample_rate_hz)
+    # the record's axis is the optical offset (anti-Stokes at +f); the samples' density:
+    # aliased × sinc² (the lines lose sinc²(Ω/fs), the floor gains the aliased noise)
     away = np.array([omega + 30 * width, -omega - 30 * width])
-    floor = float(np.mean(chain.record_spectrum(away)))
     peak = np.array([omega])
+    form = iq.chain.channel_form(fs).project(np.array([1.0, 1.0j]))
+    sampled = form.spectrum(-2 * np.pi * np.concatenate([peak, away]))[0, :, 0, 0].real
+    floor = float(np.mean(sampled[1:]))
     ideal = heterodyne_spectrum(system, np.concatenate([peak, away]),
                                 efficiency=cal.efficiency).total
     with np.errstate(divide="ignore", invalid="ignore"):  # no line at all: no finite bound
-        gain = float((chain.record_spectrum(peak)[0] - floor)
-                     / (ideal[0] - np.mean(ideal[1:])))
+        gain = float((sampled[0] - floor) / (ideal[0] - np.mean(ideal[1:])))
     freqs = np.array([m.effective_frequency_hz for m in steady.modes])
     n = steady.modes[int(np.argmin(np.abs(freqs - omega)))].occupation
     c = cal.area_per_quantum() * gain

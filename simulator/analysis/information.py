@@ -1,30 +1,35 @@
-"""Whittle Fisher information of a record's spectral matrix, for many parameters at once.
+"""Whittle Fisher information of the recorded samples, for many parameters at once.
 
-The record's symmetrised spectral matrix is S(ω) = H N H†, with
-H(ω) = C (−iω − A)⁻¹ B + D the transfer matrix of the detection chain's
-state-space model. A parameter θ changes the model matrices; to first order
+The record is p real channels (I and Q of an iq record; the one photocurrent
+of a homodyne or if record) sampled by integrate-and-dump at rate fs: a
+stationary Gaussian vector sequence whose spectral matrix S(f) on |f| < fs/2
+is the continuous one aliased and multiplied by sinc²(f/fs), everything the
+chain adds included. Its Fisher information per unit time is
 
-    ∂H = ∂C R B + C R ∂A R B + C R ∂B + ∂D,      R = (−iω − A)⁻¹,
-    ∂S = ∂H N H† + (∂H N H†)† + H ∂N H†,
+    F_ij = ½ ∫_{−fs/2}^{fs/2} df tr[S⁻¹ ∂_i S S⁻¹ ∂_j S] = ∫_0^{fs/2} df Re tr[...]
 
-so with the products C R, R B N H† and N H† formed once per frequency, the
-change of S for any θ costs only as much as the entries θ moves. The matrix
-changes ∂A, ∂B, ... come from central differences of the model rebuilt a
-small step either side of θ (the operating point re-solved), so every
-dependence is included. The Fisher information per unit time is then
-
-    F_ij = ½ ∫ df tr[S⁻¹ ∂_i S S⁻¹ ∂_j S]
-
-(Whittle, Ark. Mat. 2, 423 (1953)), integrated by the trapezoidal rule over
-the grid. A parameter that changes the model's shape (an efficiency moving
-off 1 adds the loss inputs) falls back to differences of whole spectra.
+(Whittle, Ark. Mat. 2, 423 (1953)); the integrand is even in f because the
+channels are real (S(−f) = S(f)*). S comes in closed form from the pole–
+residue form of the chain's model (:mod:`simulator.model.poles`): every
+alias is summed exactly, and one evaluation costs a few microseconds per
+hundred points. ∂S is the central difference of the forms of the model
+rebuilt a small step either side of θ (the operating point re-solved), so
+every dependence is included. The integral is the trapezoidal rule on a grid
+that resolves every line of the sampled spectrum (:func:`record_grid`).
 """
+
+import dataclasses
 
 import numpy as np
 
 from simulator.errors import InputError, ScenarioError
 
-_CHUNK = 2048  # frequencies per pass: bounds memory at chunk × states × outputs
+POINTS_PER_DECADE = 32  # log-spaced offsets around each line (trapezoid error < 1e-3)
+CLOSEST = 1e-2  # smallest offset from a line centre, in its half-widths
+COARSE_POINTS = 201  # uniform points across the band
+# aliases either side when the resolvent stands in for the poles (near an exceptional
+# point): truncation ~aliases⁻³ ≈ 1e-5 of S, smooth in θ, far below what a bound needs
+FALLBACK_ALIASES = 40
 
 
 def steps(scenario, path):
@@ -59,7 +64,59 @@ def derivative(evaluate, scenario, path):
     return (evaluate(up) - evaluate(down)) / span
 
 
-def fisher_blocks(model_of, scenario, groups, omega, *, carrier_rad_s=None):
+class SteppedModels:
+    """Models of a System's scenario a small step either side of each parameter, built once.
+
+    The Fisher information (spectra of the stepped records) and the occupation
+    gradient (stepped drift and diffusion) of
+    :mod:`simulator.analysis.feasibility` share them: each stepped model is
+    built once per bound, whatever asks for it.
+    """
+
+    def __init__(self, system):
+        self.system = system
+        self._steps = {}
+        self._systems = {id(system.scenario): system}
+
+    def steps(self, path):
+        """:func:`steps` of the system's scenario, kept."""
+        if path not in self._steps:
+            self._steps[path] = steps(self.system.scenario, path)
+        return self._steps[path]
+
+    def system_of(self, scenario):
+        """The base System, or the model and chain of a stepped scenario (kept alive).
+
+        A stepped scenario gets its operating point, model and chain only: its
+        stability verdict is not needed for a derivative.
+        """
+        from simulator.model.chain import detection_chain
+        from simulator.model.operating_point import operating_point
+        from simulator.model.optomechanics import linear_model
+
+        key = id(scenario)
+        if key not in self._systems:
+            point = operating_point(scenario)
+            model = linear_model(scenario, point)
+            self._systems[key] = _Built(model=model,
+                                        chain=detection_chain(scenario, point, model))
+        return self._systems[key]
+
+    def record_model(self, scenario):
+        """The record's model (the detection chain's) of the base or a stepped scenario."""
+        return self.system_of(scenario).chain.model
+
+
+@dataclasses.dataclass(frozen=True)
+class _Built:
+    """The linear model and detection chain of a stepped scenario."""
+
+    model: object
+    chain: object
+
+
+def fisher_blocks(model_of, scenario, groups, omega, *, carrier_rad_s=None,
+                  sample_rate_hz=None, steps_of=None, report=None):
     """Fisher information per unit time for each group of parameter paths.
 
     Parameters
@@ -70,159 +127,113 @@ def fisher_blocks(model_of, scenario, groups, omega, *, carrier_rad_s=None):
     groups : sequence of sequences of str
         Parameter paths estimated jointly; a path shared by several groups is
         differentiated once.
-    omega : ndarray
-        Two-sided angular-frequency grid (rad/s) of the model's outputs; with
-        ``carrier_rad_s``, the record's positive angular frequencies.
+    omega : ndarray or None
+        Angular frequencies (rad/s) of the record; only |ω| is used (the
+        integrand is even) and, with ``sample_rate_hz``, only |ω| ≤ π fs.
+        None: :func:`record_grid` of the record's form up to π fs (sampled
+        records only).
     carrier_rad_s : float, optional
         For a real record at an intermediate frequency θ (the "if" receiver):
-        the model's two outputs are the envelope u of r = e^{iθt}u + e^{−iθt}u*,
-        whose density is S_r(ω) = c S_u(θ − ω) c† + c S_u(θ + ω) c†,
-        c = (1, i) (:meth:`simulator.model.chain.DetectionChain.record_spectrum`).
-        The information is then that of the one real record,
-        ½∫(∂S_r/S_r)² df over both signs of f = ∫ over f > 0: the envelope's
-        two channels are not both observed, and the image band's noise counts.
+        the model's two outputs are the envelope u of r = e^{iθt}u + c.c., and
+        the information is that of the one real photocurrent, image band
+        included (:meth:`simulator.model.poles.PoleForm.real_carrier`).
+    sample_rate_hz : float, optional
+        The information of the integrate-and-dump samples at this rate;
+        default the continuous record (no sinc², no aliasing, no band limit).
+    steps_of : callable, optional
+        ``steps_of(path)`` → :func:`steps` of the scenario, for a caller that
+        shares the stepped scenarios (and their models) with other derivatives.
+    report : dict, optional
+        Receives ``"method"``: ``"pole-residue"``, or the reason the
+        resolvent was used instead (an ill-conditioned eigenvector basis).
 
     Returns
     -------
     list of ndarray
         One (k, k) matrix per group, in 1/(s · unit_i · unit_j).
     """
-    from simulator.model.statespace import Resolvent
+    from simulator.model.poles import channel_form
 
-    base = model_of(scenario)
+    def form_of(model):
+        return channel_form(model, carrier_rad_s=carrier_rad_s, sample_rate_hz=sample_rate_hz,
+                            aliases=FALLBACK_ALIASES)
+
+    steps_of = steps_of or (lambda path: steps(scenario, path))
     paths = list(dict.fromkeys(p for group in groups for p in group))
-    changes = [_model_change(model_of, base, scenario, p) for p in paths]
-    res = Resolvent(base.A)
-    entries = _Entries(changes) if res.well_conditioned else None
-    f = omega / (2 * np.pi)
-    weights = np.zeros_like(f)  # trapezoidal rule as a weighted sum, chunk by chunk
+    base = form_of(model_of(scenario))
+    if omega is None:
+        if sample_rate_hz is None:
+            raise InputError("a frequency grid is needed for the continuous record")
+        omega = record_grid(base, np.pi * float(sample_rate_hz))
+    w = _one_sided(omega, sample_rate_hz)
+    forms = [base]
+    s = base.spectrum(w)[0]
+    changes = []
+    for path in paths:
+        up_s, down_s, span = steps_of(path)
+        up, down = form_of(model_of(up_s)), form_of(model_of(down_s))
+        forms += [up, down]
+        changes.append((up.spectrum(w)[0] - down.spectrum(w)[0]) / span)
+    if report is not None:
+        report["method"] = next((f.method for f in forms if not f.exact), base.method)
+    x = _inverse(s)[None] @ np.array(changes).reshape((len(paths),) + s.shape)
+    weights = _trapezoid_weights(w / (2 * np.pi))
+    where = {p: k for k, p in enumerate(paths)}
+    # ∫_{f>0} Re tr(X_i X_j) df, X = S⁻¹ ∂S (½ of the integral over both signs of f),
+    # as one product over frequencies and matrix entries: tr(X_i X_j) = Σ_ab X_i,ab X_j,ba
+    flat = x.reshape(len(paths), -1)
+    flat_t = np.swapaxes(x, -1, -2).reshape(len(paths), -1)
+    per_entry = np.repeat(weights, s.shape[-1] ** 2)
+    full = ((flat * per_entry) @ flat_t.T).real
+    return [full[np.ix_(idx, idx)] for idx in ([where[p] for p in g] for g in groups)]
+
+
+def _inverse(s):
+    """Inverses of a stack of 1×1 or 2×2 (closed form) or larger (LAPACK) matrices."""
+    p = s.shape[-1]
+    if p == 1:
+        return 1.0 / s
+    if p == 2:
+        a, b, c, d = s[..., 0, 0], s[..., 0, 1], s[..., 1, 0], s[..., 1, 1]
+        det = a * d - b * c
+        return np.stack([np.stack([d, -b], -1), np.stack([-c, a], -1)], -2) / det[..., None, None]
+    return np.linalg.inv(s)
+
+
+def _one_sided(omega, sample_rate_hz):
+    """Sorted unique |ω|, within the band |ω| ≤ π fs when sampled."""
+    w = np.unique(np.abs(np.asarray(omega, dtype=float).reshape(-1)))
+    if sample_rate_hz is not None:
+        w = w[w <= np.pi * float(sample_rate_hz)]
+    if w.size < 2:
+        raise InputError(f"frequency grid of {w.size} point(s) within the record's band; "
+                         "expected at least two to integrate over")
+    return w
+
+
+def _trapezoid_weights(f):
+    weights = np.zeros_like(f)
     weights[1:] += np.diff(f) / 2
     weights[:-1] += np.diff(f) / 2
-    where = {p: k for k, p in enumerate(paths)}
-    out = [np.zeros((len(g), len(g))) for g in groups]
-    for start in range(0, omega.size, _CHUNK):
-        w = omega[start:start + _CHUNK]
-        weight = weights[start:start + _CHUNK]
-        if carrier_rad_s is not None:
-            x = _real_record_changes(base, res, entries, changes, carrier_rad_s, w)
-            for matrix, group in zip(out, groups, strict=True):
-                xs = x[[where[p] for p in group]]
-                # ∫_{f>0} (∂S_r/S_r)_i (∂S_r/S_r)_j df = ½ over both signs of f
-                matrix += np.einsum("iw,jw,w->ij", xs, xs, weight)
-            continue
-        pieces = _Pieces(base, res, w) if entries else None
-        s = pieces.s if pieces else base.output_spectrum(w)
-        x = np.linalg.inv(s) @ _spectral_changes(pieces, entries, changes, w,
-                                                 len(base.outputs))
-        for matrix, group in zip(out, groups, strict=True):
-            xs = x[[where[p] for p in group]]
-            # ½ Σ_w weight · tr(X_i X_j), X = S⁻¹ ∂S
-            matrix += 0.5 * np.einsum("iwab,jwba,w->ij", xs, xs, weight, optimize=True).real
-    return out
+    return weights
 
 
-def _real_record_changes(base, res, entries, changes, carrier, w):
-    """∂S_r/S_r of the real "if" record at angular frequencies ``w``, (parameters, w)."""
-    c = np.array([1.0, 1.0j])
-    s_r, ds_r = 0.0, 0.0
-    for band in (carrier - w, carrier + w):
-        pieces = _Pieces(base, res, band) if entries else None
-        s = pieces.s if pieces else base.output_spectrum(band)
-        ds = _spectral_changes(pieces, entries, changes, band, len(base.outputs))
-        s_r = s_r + np.einsum("i,wij,j->w", c, s, c.conj()).real
-        ds_r = ds_r + np.einsum("i,kwij,j->kw", c, ds, c.conj()).real
-    return ds_r / s_r
+def record_grid(form, top_rad_s, *, points_per_decade=POINTS_PER_DECADE, closest=CLOSEST,
+                coarse_points=COARSE_POINTS):
+    """Angular frequencies 0 ≤ ω ≤ ``top_rad_s`` resolving every line of ``form``.
 
-
-class _Pieces:
-    """S and the per-frequency products the first-order change of S is made of."""
-
-    def __init__(self, model, res, w):
-        f = res.factor(w)
-        left = (model.C @ res.vec) * f[:, None, :]  # C V diag(f)
-        right = res.inv @ model.B  # V⁻¹ B
-        self.h = left @ right + model.D
-        self.cr = left @ res.inv  # C R
-        self.y = _left_multiply(model.N, np.swapaxes(self.h.conj(), 1, 2))  # N H†
-        self.x = _left_multiply(res.vec, f[:, :, None] * _left_multiply(right, self.y))
-        self.s = self.h @ self.y  # x above: R B N H†
-
-
-def _left_multiply(matrix, batch):
-    """matrix @ batch[w] for every w, as one matrix product (batch: (w, rows, columns))."""
-    return np.swapaxes(np.tensordot(batch, matrix, axes=([1], [1])), 1, 2)
-
-
-def _model_change(model_of, base, scenario, path):
-    """``(differences, up, down, span)``: matrix differences when the shapes agree."""
-    up_s, down_s, span = steps(scenario, path)
-    up, down = model_of(up_s), model_of(down_s)
-    names = ("A", "B", "C", "D", "N")
-    if all(getattr(up, k).shape == getattr(base, k).shape == getattr(down, k).shape
-           for k in names):
-        return {k: (getattr(up, k) - getattr(down, k)) / span for k in names}, up, down, span
-    return None, up, down, span
-
-
-class _Entries:
-    """The model entries any parameter moves, and how much each parameter moves them.
-
-    ``a_b``: entries (state, state) of A and (state, input) of B, whose changes
-    enter ∂H N H† through C R[:, i] and (R B N H†)[j] or (N H†)[j];
-    ``n``: entries of N, which enter through H[:, i] H[:, j]*. The weights
-    are one row per parameter, so ∂S for every parameter is one matrix
-    product per frequency chunk.
+    Around each line (centre c, half-width γ from :meth:`PoleForm.lines`,
+    folded to |c| since the integrand is even) offsets γ·10^k from
+    ``closest``·γ out to the band on both sides, ``points_per_decade``
+    apart; a uniform grid of ``coarse_points`` over the band.
     """
-
-    def __init__(self, changes):
-        self.a_b, self.n = {}, {}
-        for diff, *_ in changes:
-            if diff is None:
-                continue
-            for key in ("A", "B"):
-                for r, c in zip(*np.nonzero(diff[key]), strict=True):
-                    self.a_b.setdefault((key, int(r), int(c)), len(self.a_b))
-            for r, c in zip(*np.nonzero(diff["N"]), strict=True):
-                self.n.setdefault((int(r), int(c)), len(self.n))
-        self.weights_a_b = np.array([[0.0 if d is None else d[k][r, c]
-                                      for (k, r, c) in self.a_b] for d, *_ in changes])
-        self.weights_n = np.array([[0.0 if d is None else d["N"][r, c] for (r, c) in self.n]
-                                   for d, *_ in changes])
-
-
-def _spectral_changes(pieces, entries, changes, w, outputs):
-    """∂S on the frequencies ``w`` for every parameter, shape (parameters, w, p, p)."""
-    out = np.empty((len(changes), w.size, outputs, outputs), dtype=complex)
-    if pieces is not None:
-        t = _combine(entries.weights_a_b, [
-            (pieces.cr[:, :, r], (pieces.x if k == "A" else pieces.y)[:, c, :])
-            for (k, r, c) in entries.a_b], out.shape[1:])
-        hn = _combine(entries.weights_n, [(pieces.h[:, :, r], pieces.h[:, :, c].conj())
-                                          for (r, c) in entries.n], out.shape[1:])
-        for k, (diff, *_) in enumerate(changes):
-            # only the detection parameters (efficiency, ...) move C and D
-            if diff is not None and diff["C"].any():
-                t[k] += diff["C"] @ pieces.x
-            if diff is not None and diff["D"].any():
-                t[k] += diff["D"] @ pieces.y
-        out[:] = t + np.swapaxes(t.conj(), -1, -2) + hn
-    for k, (diff, up, down, span) in enumerate(changes):
-        if pieces is None or diff is None:
-            out[k] = (up.output_spectrum(w) - down.output_spectrum(w)) / span
-    return out
-
-
-def _combine(weights, factors, shape):
-    """Σ_u weights[k, u] · left_u ⊗ right_u for every k: one product over the entries u.
-
-    ``factors`` holds per entry u a column ``left_u`` (w, p) and a row
-    ``right_u`` (w, p); the outer product per frequency is an elementary
-    change of the spectral matrix.
-    """
-    if not factors:
-        return np.zeros((len(weights),) + shape, dtype=complex)
-    left = np.stack([f[0] for f in factors])  # (u, w, p)
-    right = np.stack([f[1] for f in factors])  # (u, w, p)
-    outer = (left[..., :, None] * right[..., None, :]).reshape(len(factors), -1)
-    return (weights @ outer.real + 1j * (weights @ outer.imag)).reshape(
-        (len(weights),) + shape)
+    centres, widths = form.lines()
+    grids = [np.linspace(0.0, top_rad_s, int(coarse_points))]
+    for centre, gamma in zip(np.abs(centres), widths, strict=True):
+        gamma = max(float(gamma), top_rad_s * 1e-15)
+        decades = max(np.log10(top_rad_s / gamma) - np.log10(closest), 1.0)
+        offsets = gamma * np.logspace(np.log10(closest), np.log10(closest) + decades,
+                                      int(np.ceil(decades * points_per_decade)))
+        grids.append(centre + np.concatenate([-offsets[::-1], [0.0], offsets]))
+    w = np.unique(np.concatenate(grids))
+    return w[(w >= 0.0) & (w <= top_rad_s)]

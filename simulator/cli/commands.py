@@ -35,7 +35,16 @@ def cmd_check(args):
     modes = ", ".join(m.name for m in scenario.mechanics)
     print(f"{args.scenario}: valid scenario {scenario.scenario.name!r} "
           f"({len(scenario.mechanics)} mechanical mode(s): {modes})")
+    from simulator.scenario.plausibility import plausibility_warnings
+
+    _print_warnings(args, plausibility_warnings(scenario))
     return EXIT_OK
+
+
+def _print_warnings(args, messages):
+    """Warnings on stderr, one line each (also with ``--quiet``, which only hides progress)."""
+    for message in messages:
+        print(f"noisechain {args.verb}: warning: {message}", file=sys.stderr)
 
 
 def cmd_inspect(args):
@@ -101,6 +110,12 @@ def _require_output_file(path, allowed, option, force):
 
 def _require_writable_folder(folder, option, path):
     folder = Path(folder) if str(folder) else Path(".")
+    for above in (folder, *folder.parents):  # the nearest part of the path that exists
+        if above.exists():
+            if not above.is_dir():
+                raise InputError(f"{option} {str(path)!r}: {str(above)!r} is a file, not a "
+                                 "folder; expected a path inside an existing, writable folder")
+            break
     if not folder.is_dir() or not os.access(folder, os.W_OK | os.X_OK):
         raise InputError(f"{option} {str(path)!r}: folder {str(folder)!r} does not exist or "
                          "is not writable; expected an existing, writable folder")
@@ -123,68 +138,43 @@ def _require_workers(args):
 
 
 def cmd_spectrum(args):
-    """``noisechain spectrum``: analytic output spectrum of a scenario."""
+    """``noisechain spectrum``: the spectrum at the digitiser (default) or the cavity port."""
     _require_output_file(args.out, (".nc", ".csv"), "--out", args.force)
     _require_output_file(args.plot, (".png", ".pdf", ".svg"), "--plot", args.force)
-    from simulator.linear.sidebands import sideband_summary
-    from simulator.linear.spectra import measured_spectrum
     from simulator.model.system import System
     from simulator.scenario.loader import load_scenario
+    from simulator.workflows.spectrum import (
+        compute_spectrum,
+        figure_title,
+        report_data,
+        report_text,
+    )
 
     scenario = load_scenario(args.scenario)
     system = System(scenario)  # built once: spectrum, summary and referral share it
-    if args.engine == "master":
-        from simulator.master.spectra import master_heterodyne_spectrum
-
-        spectrum = master_heterodyne_spectrum(system, kind=args.master_model)
-    else:
-        angle = None if args.angle_deg is None else math.radians(args.angle_deg)
-        spectrum = measured_spectrum(system, quadrature_angle=angle)
-    # the sideband summary is the linear engine's; not shown beside a master spectrum
-    summary = sideband_summary(system) if args.engine == "linear" else []
+    angle = None if args.angle_deg is None else math.radians(args.angle_deg)
+    result = compute_spectrum(system, at=args.at, engine=args.engine,
+                              master_model=args.master_model, quadrature_angle=angle)
+    spectrum = result.spectrum
     files = {}
     if args.out:
         files["data"] = str(spectrum.save(args.out, overwrite=args.force))
     if args.plot:
-        from simulator.linear.referral import to_displacement
         from simulator.report.plots import plot_spectrum
 
-        plot_spectrum(spectrum, args.plot, displacement=to_displacement(spectrum, system),
-                      summary=summary, title=f"{scenario.scenario.name}: {spectrum.quantity}",
+        displacement = None
+        if result.at == "cavity" and args.engine == "linear":
+            from simulator.linear.referral import to_displacement
+
+            displacement = to_displacement(spectrum, system)
+        plot_spectrum(spectrum, args.plot, displacement=displacement, summary=result.summary,
+                      title=figure_title(result, scenario.scenario.name),
                       overwrite=args.force)
         files["plot"] = str(args.plot)
-    report = {"scenario": scenario.scenario.name, "engine": args.engine,
-              "quantity": spectrum.quantity,
-              "axis": spectrum.axis, "sided": spectrum.sided, "units": spectrum.units,
-              "points": int(spectrum.frequency_hz.size),
-              "frequency_range_hz": [float(spectrum.frequency_hz.min()),
-                                     float(spectrum.frequency_hz.max())],
-              "peak": float(spectrum.total.max()),
-              "contributions": list(spectrum.contributions),
-              "budget_residual": spectrum.budget_residual(),
-              "sidebands": [s.to_dict() for s in summary], "files": files}
     if args.json:
-        print_json(report)
-        return EXIT_OK
-    print(f"{report['scenario']}: {report['quantity']}, {report['sided']} density in "
-          f"{report['units']}, {report['points']} points over "
-          f"{report['frequency_range_hz'][0]:.6g} .. {report['frequency_range_hz'][1]:.6g} Hz")
-    print(f"  peak {report['peak']:.6g}; budget of {len(report['contributions'])} terms sums "
-          f"to the total within {report['budget_residual']:.1e}")
-    for s in summary:
-        print(f"  mode {s.mode}: anti-Stokes {s.anti_stokes.frequency_hz:.9g} Hz "
-              f"(width {s.anti_stokes.linewidth_hz:.4g} Hz, {s.anti_stokes.area_quanta:.5g} "
-              f"quanta), Stokes {s.stokes.frequency_hz:.9g} Hz ({s.stokes.area_quanta:.5g} "
-              f"quanta); ratio {s.ratio:.5g} -> n = {s.occupation_from_ratio:.5g} "
-              f"(steady state {s.steady_state_occupation:.5g})")
-        if s.warning:
-            print(f"    warning: {s.warning}")
-        fano = (s.anti_stokes.dispersive_quanta, s.stokes.dispersive_quanta)
-        if max(abs(fano[0]), abs(fano[1])) > 0.01 * abs(s.stokes.area_quanta):
-            print(f"    Fano-shaped: dispersive weights {fano[0]:.4g} (anti-Stokes), "
-                  f"{fano[1]:.4g} (Stokes) quanta: correlated noise interferes with the motion")
-    for kind, path in files.items():
-        print(f"  {kind} written to {path}")
+        print_json(report_data(result, files))
+    else:
+        print(report_text(result, files))
     return EXIT_OK
 
 
@@ -209,8 +199,7 @@ def cmd_record(args):
                                      out=args.out, form=args.form, progress=not args.quiet,
                                      overwrite=args.force, workers=args.threads,
                                      compression="deflate" if args.compress else "none")
-    for warning in caught:
-        print(f"noisechain record: warning: {warning.message}", file=sys.stderr)
+    _print_warnings(args, [w.message for w in caught])
     truth = record.truth
     summary = {"out": str(Path(args.out).resolve()), "samples": record.n_samples,
                "sample_rate_hz": record.sample_rate_hz, "kind": record.kind,

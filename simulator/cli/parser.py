@@ -46,8 +46,14 @@ def _execution_options(p, *, dask=True):
     if dask:
         p.add_argument("--dask", default=None, metavar="ADDR", help="run on Dask: 'local' "
                        "for a LocalCluster or a scheduler address tcp://host:port")
-    p.add_argument("--quiet", action="store_true", help="no progress bars")
+    _quiet_option(p)
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
+
+
+def _quiet_option(p):
+    """--quiet, the same on every verb: no progress bars; warnings and errors stay."""
+    p.add_argument("--quiet", action="store_true", help="no progress bars (warnings, "
+                   "errors and results are still printed)")
 
 
 def _force_option(p):
@@ -72,6 +78,7 @@ def build_parser():
 
     p = verbs.add_parser("check", help="validate a scenario file and nothing else")
     p.add_argument("scenario", help="scenario TOML file")
+    _quiet_option(p)
     p.set_defaults(func=cmd_check)
 
     p = verbs.add_parser("inspect", help="operating point, stability and exact steady "
@@ -85,6 +92,7 @@ def build_parser():
     p.add_argument("--no-feasibility", action="store_true", help="leave out the "
                    "measurement-time bounds (Fisher information), the slowest part for "
                    "scenarios with many modes")
+    _quiet_option(p)
     p.set_defaults(func=cmd_inspect)
 
     p = verbs.add_parser("sweep", help="evaluate the scenario over its [sweep] grid; "
@@ -95,9 +103,14 @@ def build_parser():
     _execution_options(p)
     p.set_defaults(func=cmd_sweep)
 
-    p = verbs.add_parser("spectrum", help="analytic output spectrum with its noise "
-                         "budget and sideband summary")
+    p = verbs.add_parser("spectrum", help="analytic spectrum of the record at the "
+                         "digitiser (or at the cavity port) with its noise budget and "
+                         "sideband summary")
     p.add_argument("scenario", help="scenario TOML file")
+    p.add_argument("--at", choices=("record", "cavity"), default="record",
+                   help="record: what the digitiser sees, detection chain and sampling "
+                   "included (default); cavity: the field at the cavity port, before the "
+                   "detection chain")
     p.add_argument("--out", default=None, help="write the spectrum: .nc (NetCDF) or .csv")
     p.add_argument("--plot", default=None, help="write a figure: .png, .pdf or .svg")
     _force_option(p)
@@ -106,10 +119,12 @@ def build_parser():
                    "detection.quadrature_angle_rad)")
     p.add_argument("--engine", choices=("linear", "master"), default="linear",
                    help="linear state-space model (default) or the master equation "
-                   "(QuTiP; heterodyne only, small occupations)")
+                   "(QuTiP; heterodyne only, small occupations; at the cavity port only, "
+                   "so with --at cavity)")
     p.add_argument("--master-model", choices=("full", "linearised"), default="full",
                    help="master-equation model for --engine master (default: %(default)s)")
     p.add_argument("--json", action="store_true", help="print one JSON object")
+    _quiet_option(p)
     p.set_defaults(func=cmd_spectrum)
 
     p = verbs.add_parser("record", help="synthetic digitised record with its ground "
@@ -143,7 +158,7 @@ def build_parser():
     p.add_argument("--compress", action="store_true",
                    help="deflate the samples (HDF5 shuffle + gzip: about 11 %% smaller, "
                    "several times slower to write)")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    _quiet_option(p)
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
     p.set_defaults(func=cmd_record)
 

@@ -36,18 +36,23 @@ def detected_budget(model, omega, u, factor, efficiency):
     return total, parts
 
 
-def budget_pieces(paths, w, groups):
+def budget_pieces(paths, w, groups, vacuum=None):
     """Projected transfer u·H at angular frequencies ``w`` and the budget pieces of u S u†.
 
     The pieces, in units of u S u†, are the deviation of the direct-path
     vacuum from ½ (zero by unitarity, under the key FLOOR) and per source its
     normal-ordered imprecision, motion and cross term; their sum is u S u† − ½,
     computed without subtracting ½ from a number near ½.
+
+    ``vacuum`` gives the vacuum part of each input's intensity (default: ½
+    per quantum input, 0 for classical laser noise); the detection chain
+    passes its own, in which electronics noise is classical.
     """
     model = paths.model
     h0, hm = paths(w)
     h = h0 + hm
-    vacuum = vacuum_intensity(model)  # ½ per quantum input, 0 for classical laser noise
+    if vacuum is None:  # ½ per quantum input, 0 for classical laser noise
+        vacuum = vacuum_intensity(model)
     pieces = {FLOOR: 0.5 * np.sum(np.abs(h0[:, vacuum > 0]) ** 2, axis=1) - 0.5}
     for name, idx, mechanical in groups:
         nk = model.N[np.ix_(idx, idx)]

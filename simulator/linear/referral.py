@@ -104,6 +104,10 @@ def backaction_force_gain(model, point, j, frequency_hz):
 
 def _scheme(spectrum, scenario):
     prov = spectrum.provenance
+    if prov.get("at") == "record":
+        raise InputError("this spectrum is the record at the digitiser (detection chain and "
+                         "sampling included); referral needs the spectrum at the cavity port "
+                         "(heterodyne_spectrum, homodyne_spectrum, or --at cavity)")
     scheme = prov.get("scheme", scenario.detection.scheme)
     eta = float(prov.get("detection_efficiency", scenario.detection.efficiency))
     theta = float(prov.get("quadrature_angle_rad", np.pi / 2))

@@ -45,6 +45,7 @@ import dataclasses
 import numpy as np
 import scipy.linalg
 
+from simulator.linear.record_budget import record_sidebands
 from simulator.linear.steady_state import mode_eigenvalues, steady_state
 from simulator.model.optomechanics import device_size, mode_states
 from simulator.model.system import as_system
@@ -84,6 +85,12 @@ class Sideband:
     area_quanta: float
     dispersive_quanta: float
     area_above_floor: float
+    # at the digitiser (simulator.linear.record_budget.record_sidebands): where the line
+    # falls on the record's axis, its area there (shot-noise units × Hz, through the
+    # efficiency, filter and sinc²) and its Lorentzian peak over the rest of the record
+    record_frequency_hz: float = float("nan")
+    record_area: float = float("nan")
+    record_peak_to_background: float = float("nan")
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -98,10 +105,14 @@ class SidebandSummary:
     occupation_from_area: float  # anti-Stokes area in quanta (needs g, κ_ex)
     steady_state_occupation: float  # exact Lyapunov value
     warning: str = ""  # why the weights are not to be read as n and n + 1, if so
+    gap: object = None  # simulator.linear.occupation_gap.OccupationGap: why n_R differs from n
 
     def to_dict(self):
         """Plain data for JSON (Hz, quanta, shot-noise units × Hz)."""
-        return dataclasses.asdict(self)
+        out = dataclasses.asdict(self)
+        out["gap"] = None if self.gap is None else self.gap.to_dict() | {
+            "explanation": self.gap.text()}
+        return out
 
 
 def cavity_response(frequency_hz, linewidth_hz, detuning_hz):
@@ -134,13 +145,16 @@ def cavity_filter(point, mode_index, frequency_hz):
         frequency_hz, point.cavity_linewidth_hz, point.detuning_effective_hz)
 
 
-def sideband_summary(system):
+def sideband_summary(system, *, at_digitiser=True):
     """Sideband summary of every mechanical mode of ``system``.
 
     Parameters
     ----------
     system : simulator.model.system.System
         Or a scenario, built into one.
+    at_digitiser : bool
+        Also give each line's record frequency, area and contrast at the
+        digitiser (:func:`simulator.linear.record_budget.record_sidebands`).
 
     Returns
     -------
@@ -197,6 +211,8 @@ def sideband_summary(system):
             occupation_from_ratio=float(implied),
             occupation_from_area=float(sides[+1].area_quanta),
             steady_state_occupation=steady.modes[j].occupation, warning=warning))
+    if at_digitiser:
+        return record_sidebands(system, tuple(summaries))
     return tuple(summaries)
 
 

@@ -64,6 +64,8 @@ from simulator.model.units import angular, ordinary
 HETERODYNE_AXIS = "optical offset from the drive (> 0: anti-Stokes, above the drive)"
 HOMODYNE_AXIS = "baseband frequency f >= 0"
 SHOT_NOISE_UNITS = "shot-noise units (vacuum = 1)"
+# every cavity-port spectrum says so: the default of `noisechain spectrum` is the record
+AT_CAVITY = "at the cavity port (before the detection chain)"
 
 
 def adaptive_grid(model, *, span_hz=None, one_sided=False, points_per_decade=48,
@@ -123,7 +125,8 @@ def adaptive_grid(model, *, span_hz=None, one_sided=False, points_per_decade=48,
     return ordinary(omega[keep])
 
 
-def _provenance(scenario, scheme, efficiency, angle=None):
+def provenance(scenario, scheme, efficiency, angle=None):
+    """Scenario, engine, scheme, efficiency and version of a linear spectrum."""
     from simulator import __version__
 
     out = {"scenario": scenario.scenario.name, "engine": "linear", "scheme": scheme,
@@ -191,10 +194,10 @@ def heterodyne_spectrum(system, frequency_hz=None, *, efficiency=None):
     u = np.array([1.0, 1.0j]) / np.sqrt(2.0)
     total, parts = detected_budget(model, angular(f), u, 1.0, eta)
     return Spectrum(frequency_hz=f, axis=HETERODYNE_AXIS, sided="two-sided",
-                    units=SHOT_NOISE_UNITS, total=total, quantity="heterodyne output",
+                    units=SHOT_NOISE_UNITS, total=total, quantity=f"heterodyne output {AT_CAVITY}",
                     contributions=parts, calibration={"detection_efficiency": eta},
                     lines=tone_lines(model, scenario, u, eta),
-                    provenance=_provenance(scenario, "heterodyne", eta))
+                    provenance=provenance(scenario, "heterodyne", eta) | {"at": "cavity"})
 
 
 def homodyne_spectrum(system, frequency_hz=None, *, quadrature_angle=np.pi / 2,
@@ -231,10 +234,11 @@ def homodyne_spectrum(system, frequency_hz=None, *, quadrature_angle=np.pi / 2,
     total, parts = detected_budget(model, angular(f), u, 2.0, eta)
     return Spectrum(frequency_hz=f, axis=HOMODYNE_AXIS, sided="one-sided",
                     units=SHOT_NOISE_UNITS, total=total,
-                    quantity=f"homodyne output, quadrature angle {np.degrees(theta):.6g} deg",
+                    quantity=f"homodyne output {AT_CAVITY}, quadrature angle "
+                    f"{np.degrees(theta):.6g} deg",
                     contributions=parts, calibration={"detection_efficiency": eta},
                     lines=tone_lines(model, scenario, u, eta, one_sided=True),
-                    provenance=_provenance(scenario, "homodyne", eta, theta))
+                    provenance=provenance(scenario, "homodyne", eta, theta) | {"at": "cavity"})
 
 
 def measured_spectrum(system, *, frequency_hz=None, quadrature_angle=None):

@@ -52,7 +52,7 @@ class SteadyState:
 
     states: tuple
     covariance: np.ndarray  # symmetrised, vacuum = ½·identity
-    cavity_occupation: float
+    cavity_occupation: float  # of the drive's field (with several tones, each has its own)
     modes: tuple  # ModeState per mechanical mode
 
 
@@ -73,11 +73,16 @@ def steady_state(system):
     OperatingPointError
         If the operating point is unstable (no steady state exists).
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, several_tones=True).require_stable()
     scenario, point, model = system.scenario, system.point, system.model
     v = model.covariance()
     cavity_occupation = occupation(v, slice(0, 2))
-    frequencies, linewidths = effective_mechanics(model, len(point.modes))
+    frequencies, linewidths = effective_mechanics(model, len(point.modes),
+                                                  max(len(point.tones), 1))
+    if point.several_tones:
+        return SteadyState(states=model.states, covariance=v,
+                           cavity_occupation=float(cavity_occupation),
+                           modes=_summed_mode_states(point, v, frequencies, linewidths))
     kappa, delta = angular([point.cavity_linewidth_hz, point.detuning_effective_hz])
     kappa_in_fraction = 1 - point.external_linewidth_hz / point.cavity_linewidth_hz
     n_cavity_bath = kappa_in_fraction * point.cavity_bath_occupation
@@ -103,6 +108,42 @@ def steady_state(system):
                        cavity_occupation=float(cavity_occupation), modes=tuple(modes))
 
 
+def _summed_mode_states(point, v, frequencies, linewidths):
+    """Mode states with several tones: the weak-coupling rates of every tone added.
+
+    Each tone k on cavity mode c scatters at A∓,k = g_k² κc / (κc²/4 + (Δk ± Ωm)²);
+    the rates add over tones (Aspelmeyer, Kippenberg & Marquardt, Rev. Mod.
+    Phys. 86, 1391 (2014), Sec. VII), so n_f = [Γm n_th + Σk A+,k (n_c,k + 1) +
+    Σk A−,k n_c,k] / (Γm + Σk (A−,k − A+,k)), n_c,k the loss-weighted bath
+    occupation of tone k's cavity mode (classical noise of the drive left out).
+    """
+    modes = []
+    for j, mode in enumerate(point.modes):
+        om, gm = angular([mode.frequency_hz, mode.linewidth_hz])
+        a_minus = a_plus = spring = heating = 0.0
+        for tone in point.tones:
+            cav = point.cavity_modes[tone.cavity_mode]
+            rates = dict(g=float(angular(tone.coupling_rates_hz[j])),
+                         kappa=float(angular(cav.linewidth_hz)),
+                         detuning=float(angular(tone.detuning_effective_hz)), frequency=om)
+            down, up = weak_coupling.scattering_rates(**rates)
+            n_c = (1 - cav.external_linewidth_hz / cav.linewidth_hz) * cav.bath_occupation
+            a_minus, a_plus = a_minus + down, a_plus + up
+            spring += weak_coupling.optical_spring(**rates)
+            heating += up * (n_c + 1) + down * n_c
+        with np.errstate(divide="ignore", invalid="ignore"):
+            n_min = a_plus / (a_minus - a_plus)
+            n_weak = (gm * mode.bath_occupation + heating) / (gm + a_minus - a_plus)
+        modes.append(ModeState(
+            name=mode.name, occupation=occupation(v, mode_states(j)),
+            effective_frequency_hz=frequencies[j], effective_linewidth_hz=linewidths[j],
+            anti_stokes_rate_hz=float(ordinary(a_minus)), stokes_rate_hz=float(ordinary(a_plus)),
+            optical_damping_hz=float(ordinary(a_minus - a_plus)),
+            optical_spring_hz=float(ordinary(spring)), backaction_limit=float(n_min),
+            weak_coupling_occupation=float(n_weak)))
+    return tuple(modes)
+
+
 def _laser_occupation(scenario, point, mode):
     """η_c n_c: the drive's classical noise at Ωm as an input occupation (0 without)."""
     from simulator.model import laser_noise
@@ -122,18 +163,18 @@ def occupation(covariance, states):
     return float((covariance[x, x] + covariance[y, y] - 1.0) / 2.0)
 
 
-def effective_mechanics(model, n_modes):
+def effective_mechanics(model, n_modes, n_tones=1):
     """Effective frequency and linewidth (Hz) of each mechanical mode.
 
     The eigenvalue λ chosen for each mode by :func:`mode_eigenvalues` gives
     frequency |Im λ|/2π and energy linewidth −2 Re λ/2π.
     """
-    chosen = mode_eigenvalues(model, n_modes)
+    chosen = mode_eigenvalues(model, n_modes, n_tones)
     return (tuple(float(x) for x in ordinary(np.abs(chosen.imag))),
             tuple(float(x) for x in ordinary(-2 * chosen.real)))
 
 
-def mode_eigenvalues(model, n_modes):
+def mode_eigenvalues(model, n_modes, n_tones=1):
     """Each mechanical mode's eigenvalue of the drift matrix (the one with Im λ ≥ 0).
 
     Taken from the cavity–mechanics block alone (the first 2 + 2·modes
@@ -145,7 +186,7 @@ def mode_eigenvalues(model, n_modes):
     eigenvalue per mode (an assignment problem); past normal-mode splitting
     the assignment picks the hybrid mode that is more mechanical.
     """
-    size = device_size(n_modes)
+    size = device_size(n_modes, n_tones)
     lam, vec = np.linalg.eig(model.A[:size, :size])
     candidates = np.flatnonzero(lam.imag >= -UPPER_HALF_RTOL * np.abs(lam))
     if len(candidates) < n_modes:

@@ -111,7 +111,7 @@ def regime_checks(point, occupations=None):
     return tuple(checks)
 
 
-def regime_verdict(point, occupations=None):
+def regime_verdict(point, occupations=None, *, master_advice=None):
     """Regime verdict for an operating point; see the module doc.
 
     Parameters
@@ -119,6 +119,10 @@ def regime_verdict(point, occupations=None):
     point : simulator.model.operating_point.OperatingPoint
     occupations : sequence of float, optional
         Mode occupations to use in the thermal-jitter check.
+    master_advice : str, optional
+        What to say instead of "use the master equation (inspect --master)"
+        when the verdict is nonlinear (e.g. why the master equation cannot
+        help either, for occupations beyond its Fock space).
 
     Returns
     -------
@@ -140,6 +144,6 @@ def regime_verdict(point, occupations=None):
                   f"{listed}; {n_bar}")
     else:
         reason = (f"linear engine NOT trustworthy, nonlinear optomechanics: {listed}; "
-                  f"{n_bar}; use the master equation (inspect --master)")
+                  f"{n_bar}; " + (master_advice or "use the master equation (inspect --master)"))
     return RegimeVerdict(level=level, trustworthy=level != "nonlinear", reason=reason,
                          photon_number=point.photon_number, checks=checks)

@@ -28,6 +28,9 @@ Receivers (quadratures X, Y with vacuum variance ½; z = (X + iY)/√2):
 In every case the record's two-sided vacuum density is 1 per Hz (the unit
 ``shot_noise_per_count`` refers to) when the electronics add nothing.
 
+Scales (volts at the digitiser per record unit, optical or microwave) are in
+:mod:`simulator.model.scales`.
+
 References
 ----------
 Caves, Phys. Rev. D 26, 1817 (1982) (added noise of phase-preserving
@@ -36,15 +39,21 @@ Yuen and Chan, Opt. Lett. 8, 177 (1983) (balanced homodyne detection).
 """
 
 import dataclasses
+import functools
 
 import numpy as np
-from scipy import constants
 
 from simulator.model.laser_noise import device_eigenvalues
+from simulator.model.scales import microwave_scales, optical_scales
 from simulator.model.statespace import StateSpace
 from simulator.model.units import angular, ordinary
+from simulator.scenario.receiver import amplifier_added_quanta
 
-OVERSAMPLING = 2.5  # automatic sample rate: this many times the highest relevant frequency
+OVERSAMPLING = 2.5  # automatic sample rate: at least this many times the highest relevant frequency
+# ... and high enough that the integrate-and-dump sinc²(f/fs) keeps this share of the
+# highest line: our choice, so that the digitiser costs a planned record no more than
+# 5 % of its signal (2.5× alone kept 74 % of a line at 0.3 fs)
+LINE_SINC2 = 0.95
 
 
 @dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
@@ -69,9 +78,25 @@ class DetectionChain:
     electronic_noise : float
         Two-sided density of the current noise in record units, per real channel.
     amperes_per_unit : float
-        Photocurrent (A) per record unit (per channel for iq).
+        Photocurrent (A) per record unit (per channel for iq); NaN for a
+        microwave receiver, which has no photocurrent.
     volts_per_unit : float
         Voltage at the digitiser (V) per record unit.
+    lo_photocurrent_a : float
+        Mean photocurrent of the optical local oscillator (A); NaN for a
+        microwave receiver.
+    front_end : str
+        ``"optical"`` or ``"microwave"`` (``detection.receiver``).
+    power_gain : float
+        Power gain G of the microwave amplifier chain (NaN for optical).
+    impedance_ohm : float
+        Impedance Z of the microwave line and digitiser (NaN for optical).
+    quantum_j : float
+        h f, the energy of one quantum at the drive frequency (J); NaN for
+        optical, whose scale is the local oscillator's.
+    scale_key : str
+        The scenario key that sets the volts per record unit (named when the
+        record clips).
     """
 
     model: StateSpace
@@ -83,6 +108,11 @@ class DetectionChain:
     amperes_per_unit: float
     volts_per_unit: float
     lo_photocurrent_a: float
+    front_end: str = "optical"
+    power_gain: float = float("nan")
+    impedance_ohm: float = float("nan")
+    quantum_j: float = float("nan")
+    scale_key: str = "electronics.transimpedance_ohm"
 
     @property
     def record_kind(self):
@@ -146,6 +176,37 @@ class DetectionChain:
             total += ((self.record_spectrum(g) - white) * np.sinc(g / fs) ** 2).sum(axis=-1)
         return total
 
+    def white_density(self):
+        """The record's two-sided density at high frequency (white noise; 0 behind a low-pass)."""
+        return self._white_density()
+
+    def channel_form(self, sample_rate_hz=None, groups=None):
+        """:class:`~simulator.model.poles.PoleForm` of the record's real channels.
+
+        iq: the 2×2 matrix of I and Q; homodyne: the one channel; if: the one
+        real photocurrent r = e^{iθt}u + c.c. (time-averaged, image band
+        included). With ``sample_rate_hz``, the integrate-and-dump samples
+        (aliased × sinc², exact). Evaluate on the model's axis ω; the record's
+        FFT axis is f = −ω/2π (:meth:`record_spectrum`). ``groups`` (input
+        indices per budget term) splits it by source.
+        """
+        from simulator.model.poles import channel_form
+
+        return channel_form(self.model, groups=groups, sample_rate_hz=sample_rate_hz,
+                            carrier_rad_s=self.carrier_rad_s if self.receiver == "if" else None)
+
+    def sampled_channel_matrix(self, frequency_hz, sample_rate_hz):
+        """Spectral matrix of the stored samples' real channels on the record's FFT axis.
+
+        Shape ``(len(f), p, p)``, p = 2 (I, Q) for iq and 1 otherwise; |f| <
+        fs/2. Amplifier added noise, electronics and filter included; for iq
+        the off-diagonal is the I–Q cross density (the pseudo-spectrum of
+        I + iQ), for if the density of the one real photocurrent. See
+        :meth:`channel_form`; c S c† with c = (1, i) is :meth:`sampled_spectrum`.
+        """
+        f = np.asarray(frequency_hz, dtype=float).reshape(-1)
+        return self.channel_form(sample_rate_hz).spectrum(-angular(f))[0]
+
     def _white_density(self):
         d = self.model.D @ self.model.N @ self.model.D.T
         if self.receiver == "homodyne":
@@ -177,13 +238,27 @@ class DetectionChain:
         return np.sqrt(var) * self.volts_per_unit
 
     def calibration(self):
-        """Conversion factors with their units in the key names."""
-        return {"detection_efficiency": self.efficiency,
-                "added_noise_quanta": self.added_quanta,
-                "electronic_noise_shot_noise_units": self.electronic_noise,
-                "amperes_per_shot_noise_unit": self.amperes_per_unit,
-                "volts_per_shot_noise_unit": self.volts_per_unit,
-                "local_oscillator_photocurrent_a": self.lo_photocurrent_a}
+        """Conversion factors with their units in the key names.
+
+        Optical: the photocurrent scale and the local oscillator's mean
+        photocurrent. Microwave: volts at the digitiser per record unit, the
+        power at the digitiser per hertz of bandwidth per quantum referred to
+        the amplifier's input (G h f), the gain and the impedance; no
+        photocurrent. ``added_noise_quanta`` is referred to the amplifier's
+        input (the detector's, for optical).
+        """
+        common = {"detection_efficiency": self.efficiency,
+                  "added_noise_quanta": self.added_quanta,
+                  "volts_per_shot_noise_unit": self.volts_per_unit}
+        if self.front_end == "microwave":
+            return common | {
+                "digitiser_watts_per_hz_per_quantum": self.power_gain * self.quantum_j,
+                "amplifier_power_gain": self.power_gain,
+                "amplifier_gain_db": float(10.0 * np.log10(self.power_gain)),
+                "impedance_ohm": self.impedance_ohm}
+        return common | {"electronic_noise_shot_noise_units": self.electronic_noise,
+                         "amperes_per_shot_noise_unit": self.amperes_per_unit,
+                         "local_oscillator_photocurrent_a": self.lo_photocurrent_a}
 
 
 def _project(s, c):
@@ -232,14 +307,13 @@ def detection_chain(scenario, point, model):
     receiver = receiver_of(scenario)
     share = 1.0 if det.balanced else 0.5
     eta = det.efficiency * share
-    added = el.amplifier_added_quanta
+    added = amplifier_added_quanta(scenario)
     if receiver == "iq" and added == 0.0:
         added = 0.5
     side = 1.0 if det.local_oscillator_side == "above" else -1.0
-    f_lo = scenario.drive.carrier_frequency_hz + side * det.intermediate_frequency_hz
-    flux = det.efficiency * det.local_oscillator_power_w / (constants.h * f_lo)
-    amps = constants.e * np.sqrt(share * flux)
-    electronic = el.current_noise_a_per_sqrt_hz ** 2 / 2.0 / amps ** 2
+    scales = (microwave_scales(scenario, receiver) if det.receiver == "microwave"
+              else optical_scales(scenario, share, side))
+    electronic = scales.pop("electronic")
 
     builder = _Builder(model)
     x_d = builder.detected(np.sqrt(eta))
@@ -265,9 +339,7 @@ def detection_chain(scenario, point, model):
     chain_model = builder.finish(channels, names, el.bandwidth_hz, theta)
     return DetectionChain(model=chain_model, receiver=receiver, carrier_rad_s=theta,
                           efficiency=eta, added_quanta=added, electronic_noise=electronic,
-                          amperes_per_unit=float(amps),
-                          volts_per_unit=float(amps * el.transimpedance_ohm),
-                          lo_photocurrent_a=float(constants.e * flux))
+                          **scales)
 
 
 class _Builder:
@@ -350,24 +422,49 @@ def _add(a, b):
 
 
 def automatic_sample_rate(chain, intermediate_frequency_hz=0.0):
-    """Sample rate (Hz) that takes in every resonance of the cavity and mechanics.
+    """Sample rate (Hz) that takes in every resonance and keeps 95 % of every line.
 
     Each eigenvalue λ of the cavity–mechanics drift is a line at |Im λ| with
-    half-width |Re λ|; the highest relevant frequency is the largest
-    |Im λ| + 3|Re λ|, plus the intermediate frequency for a real if record.
-    The rate is 2.5 times that (complex baseband: the band ±fs/2; real: 0 to
-    fs/2), rounded up to 1, 2, 2.5 or 5 times a power of ten.
+    half-width |Re λ| (plus the intermediate frequency for a real if record).
+    The rate is the larger of
+
+    - 2.5 times the highest relevant frequency, the largest |Im λ| + 3|Re λ|
+      (the band ±fs/2, or 0 to fs/2 for a real record, holds every line with
+      its wings), and
+    - the rate at which the integrate-and-dump response sinc²(f/fs) is
+      ``LINE_SINC2`` = 0.95 at the highest line centre, fs = f/x₀ with
+      sinc²(x₀) = 0.95, x₀ ≈ 0.124 (about 8 samples per period of the
+      fastest line),
+
+    rounded up to 1, 1.25, 1.5, 2, 2.5, 3, 4, 5, 6 or 8 times a power of ten.
     """
     lam = device_eigenvalues(chain.model, also=("filter",))
-    top = float(ordinary(np.max(np.abs(lam.imag) + 3.0 * np.abs(lam.real))))
-    if chain.receiver == "if":
-        top += float(intermediate_frequency_hz)
-    return _round_up(OVERSAMPLING * top)
+    shift = float(intermediate_frequency_hz) if chain.receiver == "if" else 0.0
+    top = float(ordinary(np.max(np.abs(lam.imag) + 3.0 * np.abs(lam.real)))) + shift
+    line = float(ordinary(np.max(np.abs(lam.imag)))) + shift
+    return _round_up(max(OVERSAMPLING * top, line / _line_fraction()))
+
+
+@functools.cache
+def _line_fraction():
+    """x₀ = f/fs at which sinc²(x₀) = ``LINE_SINC2`` (sinc(x) = sin πx/(πx))."""
+    from scipy.optimize import brentq
+
+    return float(brentq(lambda x: np.sinc(x) ** 2 - LINE_SINC2, 1e-9, 0.5, xtol=1e-14))
+
+
+def record_sample_rate(scenario, chain):
+    """The record's sample rate (Hz): ``digitizer.sample_rate_hz`` or the automatic one."""
+    return float(scenario.digitizer.sample_rate_hz
+                 or automatic_sample_rate(chain, scenario.detection.intermediate_frequency_hz))
+
+
+_RATE_STEPS = (1.0, 1.25, 1.5, 2.0, 2.5, 3.0, 4.0, 5.0, 6.0, 8.0, 10.0)  # at most 25 % over
 
 
 def _round_up(x):
     decade = 10.0 ** np.floor(np.log10(x))
-    for step in (1.0, 2.0, 2.5, 5.0, 10.0):
+    for step in _RATE_STEPS:
         if step * decade >= x * (1 - 1e-12):
             return float(step * decade)
     return float(10 * decade)

@@ -156,7 +156,9 @@ def laser_model(model, scenario, point):
     StateSpace
         New states ``laser.*`` after the mechanics, new inputs ``laser.*``
         after the baths; the outputs and the optomechanical ``coupling`` are
-        those of ``model``. See the module docstring for the equations.
+        those of ``model``. See the module docstring for the equations. With
+        several tones the noise drives the drive's field and output only (the
+        first two states and outputs).
     """
     noise, det = scenario.drive.phase_noise, scenario.detection
     kappa, kappa_ex, delta = (float(x) for x in angular([
@@ -229,27 +231,28 @@ def _assemble(model, blocks, phase_rows, lo_rows, reference, source, tau, *, por
     c[:, :n0] = model.C
     d = np.zeros((len(model.outputs), m))
     d[:, :m0] = model.D
+    drive = slice(0, 2)  # the drive's field and output (several tones: the first of each)
     for k in range(ml):
-        b[0:2, m0 + k] = blocks.cavity[k]
-        d[:, m0 + k] = blocks.output[k]
+        b[drive, m0 + k] = blocks.cavity[k]
+        d[drive, m0 + k] = blocks.output[k]
         if k in blocks.b:
             b[n0:n0 + blocks.b[k].size, m0 + k] = blocks.b[k]
     phase = np.zeros(nl)  # φ_S as a row over the laser states
     for rows, row in phase_rows:
         phase[rows] = row
-    a[0:2, n0:] = np.outer(port, phase)
+    a[drive, n0:] = np.outer(port, phase)
     if source == "common" and tau == 0:
-        c[:, n0:] += np.outer(prompt, phase)  # −iā_in φ_S + iā_out φ_S = −i√κ_ex ᾱ φ_S
+        c[drive, n0:] += np.outer(prompt, phase)  # −iā_in φ_S + iā_out φ_S = −i√κ_ex ᾱ φ_S
     elif reference is None:
-        c[:, n0:] += np.outer(direct, phase)
+        c[drive, n0:] += np.outer(direct, phase)
     else:
         rows, _, gain = reference
         r = rows.start
         a[n0 + r, n0:] += -gain * phase
-        c[:, n0 + r] += ref
-        c[:, n0:] += np.outer(direct + (ref if source == "common" else 0.0), phase)
+        c[drive, n0 + r] += ref
+        c[drive, n0:] += np.outer(direct + (ref if source == "common" else 0.0), phase)
     for rows, row in lo_rows:  # ρ gains −φ_S,LO: the measured field gains +iā_out φ_S,LO
-        c[:, n0 + rows.start:n0 + rows.stop] -= np.outer(ref, row)
+        c[drive, n0 + rows.start:n0 + rows.stop] -= np.outer(ref, row)
     n_total = np.zeros((m, m))
     n_total[:m0, :m0] = model.N
     n_total[m0:, m0:] = np.diag(blocks.intensity)

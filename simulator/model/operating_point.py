@@ -57,6 +57,16 @@ class OperatingPoint:
     external_linewidth_hz: float
     cavity_bath_occupation: float
     modes: tuple  # ModePoint per mechanical mode
+    # With [[tones]]: every tone (the drive first) and cavity mode ([cavity] first);
+    # the fields above are then the drive's, and ``branches`` holds the total photon
+    # number Σ n_k of each solution. Empty for a scenario with the drive alone.
+    tones: tuple = ()  # simulator.model.tone_point.TonePoint per tone
+    cavity_modes: tuple = ()  # simulator.model.tone_point.CavityModePoint per mode
+
+    @property
+    def several_tones(self):
+        """True when the scenario has tones beside the drive (``[[tones]]``)."""
+        return len(self.tones) > 1
 
     @property
     def static_shift_hz(self):
@@ -115,6 +125,8 @@ def operating_point(scenario):
     -------
     OperatingPoint
     """
+    if scenario.tones:
+        return _several_tones_point(scenario)
     drive, cavity = scenario.drive, scenario.cavity
     f_drive = drive.carrier_frequency_hz
     flux = drive.power_w / photon_energy_j(f_drive)
@@ -141,6 +153,30 @@ def operating_point(scenario):
         cavity_linewidth_hz=cavity.linewidth_hz,
         external_linewidth_hz=cavity.external_linewidth_hz,
         cavity_bath_occupation=cavity.bath_occupation, modes=modes)
+
+
+def _several_tones_point(scenario):
+    """Operating point with ``[[tones]]``: every tone's photons shift its cavity mode."""
+    from simulator.model.tone_point import solve_tones
+
+    drive, cavity = scenario.drive, scenario.cavity
+    solutions = solve_tones(scenario)
+    pick = {"lowest": 0, "middle": len(solutions) // 2, "highest": -1}
+    tones, cavity_modes = solutions[pick[drive.bistable_branch]]
+    first = tones[0]
+    kappa = angular(cavity.linewidth_hz)
+    modes = tuple(_mode_point(mode, first.photon_number, kappa) for mode in scenario.mechanics)
+    return OperatingPoint(
+        drive_frequency_hz=first.frequency_hz, input_photon_flux=first.input_photon_flux,
+        photon_number=first.photon_number,
+        branches=tuple(sum(t.photon_number for t in sol[0]) for sol in solutions),
+        bistable=len(solutions) > 1, branch=drive.bistable_branch,
+        detuning_bare_hz=first.detuning_bare_hz,
+        detuning_effective_hz=first.detuning_effective_hz,
+        cavity_linewidth_hz=cavity.linewidth_hz,
+        external_linewidth_hz=cavity.external_linewidth_hz,
+        cavity_bath_occupation=cavity.bath_occupation, modes=modes, tones=tones,
+        cavity_modes=cavity_modes)
 
 
 def bath_occupation(mode):

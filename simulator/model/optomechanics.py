@@ -40,9 +40,13 @@ CAVITY_STATES = ("cavity.X", "cavity.Y")
 OUTPUTS = ("output.X", "output.Y")
 
 
-def device_size(n_modes):
-    """Number of cavity and mechanical states: they come first in every model."""
-    return len(CAVITY_STATES) + 2 * n_modes
+def device_size(n_modes, n_tones=1):
+    """Number of cavity and mechanical states: they come first in every model.
+
+    With several tones the fields of the tones after the drive follow the
+    mechanical modes (:func:`several_tones_model`) and count as device states.
+    """
+    return len(CAVITY_STATES) * n_tones + 2 * n_modes
 
 
 def mode_states(j):
@@ -69,8 +73,11 @@ def linear_model(scenario, point):
         ``external.X/Y, internal.X/Y, <mode>.bath.q/p``; outputs ``output.X/Y``.
         When the drive carries classical noise or a calibration tone,
         :func:`simulator.model.laser_noise.laser_model` appends ``laser.*`` states
-        and inputs; otherwise the model is exactly the one above.
+        and inputs; otherwise the model is exactly the one above. With several
+        tones (``point.several_tones``) see :func:`several_tones_model`.
     """
+    if point.several_tones:
+        return several_tones_model(scenario, point)
     kappa, kappa_ex, delta = angular([point.cavity_linewidth_hz,
                                       point.external_linewidth_hz,
                                       point.detuning_effective_hz])
@@ -108,6 +115,85 @@ def linear_model(scenario, point):
     D[:, 0:2] = np.eye(2)
     model = StateSpace(A=A, B=B, N=N, C=C, D=D, states=tuple(states),
                        inputs=tuple(inputs), outputs=OUTPUTS, sources=tuple(sources),
+                       coupling=coupling)
+    if laser_noise.is_quiet(scenario):
+        return model
+    return laser_noise.laser_model(model, scenario, point)
+
+
+def several_tones_model(scenario, point):
+    """The linear model with one fluctuation field per drive tone, each in its own frame.
+
+    Tone k on cavity mode c, with mean field √n_k (phase chosen real) and
+    effective detuning Δk, contributes the quadratures (X_k, Y_k) with drift
+    [[−κc/2, −Δk], [Δk, −κc/2]], couplings g_kj = g0_cj √n_k to every mechanical
+    mode j as in the one-tone model, and its own vacuum (external port) and
+    thermal (internal loss) inputs. The drive's field keeps the names and
+    places of the one-tone model (``cavity.X/Y`` first, then the mechanical
+    modes); the other tones follow as ``<tone>.X/Y`` with inputs
+    ``<tone>.external.X/Y``, ``<tone>.internal.X/Y`` and outputs
+    ``<tone>.output.X/Y``, the part of the field leaving the mode's port in
+    that tone's frame.
+
+    Exact for tones on different cavity modes. For tones on one mode it drops
+    the terms that rotate at their spacing and counts each tone's share of the
+    input noise as independent of the others' (docs/physics.md, "Several tones
+    and cavity modes"); :func:`simulator.model.tone_validity.check_tone_spacings`
+    refuses or warns where that fails. Classical noise on the added tones is
+    not modelled yet and is refused.
+    """
+    from simulator.model.tone_validity import check_tone_spacings, require_quiet_tones
+
+    require_quiet_tones(scenario)
+    check_tone_spacings(scenario, point)
+    n_modes, tones = len(point.modes), point.tones
+    n_dev = device_size(n_modes, len(tones))
+    m = 4 * len(tones) + 2 * n_modes
+    A, coupling = np.zeros((n_dev, n_dev)), np.zeros((n_dev, n_dev))
+    B, N = np.zeros((n_dev, m)), np.zeros((m, m))
+    C, D = np.zeros((2 * len(tones), n_dev)), np.zeros((2 * len(tones), m))
+    states, outputs, sources = list(CAVITY_STATES), list(OUTPUTS), []
+    inputs = [""] * 4 + [f"{mode.name}.bath.{x}" for mode in point.modes for x in "qp"]
+    inputs += [""] * (4 * (len(tones) - 1))
+    field_rows = [0] + [device_size(n_modes) + 2 * k for k in range(len(tones) - 1)]
+    input_cols = [0] + [4 + 2 * n_modes + 4 * k for k in range(len(tones) - 1)]
+    for j, mode in enumerate(point.modes):
+        s, i = mode_states(j).start, 4 + 2 * j
+        om, gm = angular([mode.frequency_hz, mode.linewidth_hz])
+        A[s:s + 2, s:s + 2] = [[-gm / 2, om], [-om, -gm / 2]]
+        B[s:s + 2, i:i + 2] = np.sqrt(gm) * np.eye(2)
+        N[i:i + 2, i:i + 2] = (mode.bath_occupation + 0.5) * np.eye(2)
+        states += [f"{mode.name}.q", f"{mode.name}.p"]
+        sources.append((f"{mode.name} thermal bath", (i, i + 1)))
+    for k, tone in enumerate(tones):
+        cav = point.cavity_modes[tone.cavity_mode]
+        r, i = field_rows[k], input_cols[k]
+        kappa, kappa_ex, delta = angular([cav.linewidth_hz, cav.external_linewidth_hz,
+                                          tone.detuning_effective_hz])
+        kappa_in = max(kappa - kappa_ex, 0.0)
+        A[r:r + 2, r:r + 2] = [[-kappa / 2, -delta], [delta, -kappa / 2]]
+        B[r:r + 2, i:i + 2] = np.sqrt(kappa_ex) * np.eye(2)
+        B[r:r + 2, i + 2:i + 4] = np.sqrt(kappa_in) * np.eye(2)
+        N[i:i + 2, i:i + 2] = 0.5 * np.eye(2)
+        N[i + 2:i + 4, i + 2:i + 4] = (cav.bath_occupation + 0.5) * np.eye(2)
+        C[2 * k:2 * k + 2, r:r + 2] = -np.sqrt(kappa_ex) * np.eye(2)
+        D[2 * k:2 * k + 2, i:i + 2] = np.eye(2)
+        for j, g in enumerate(angular(np.array(tone.coupling_rates_hz))):
+            s = mode_states(j).start
+            coupling[r + 1, s] = coupling[s + 1, r] = 2 * g
+        prefix = "" if k == 0 else f"{tone.name}."
+        inputs[i:i + 4] = [f"{prefix}{port}.{x}" for port in ("external", "internal")
+                           for x in ("X", "Y")]
+        who = f"{tone.name} " if k else ""
+        sources += [(f"{who}external port vacuum", (i, i + 1)),
+                    (f"{who}internal loss bath", (i + 2, i + 3))]
+        if k:
+            states += [f"{tone.name}.X", f"{tone.name}.Y"]
+            outputs += [f"{tone.name}.output.X", f"{tone.name}.output.Y"]
+    sources.sort(key=lambda item: item[1])
+    A = A + coupling
+    model = StateSpace(A=A, B=B, N=N, C=C, D=D, states=tuple(states),
+                       inputs=tuple(inputs), outputs=tuple(outputs), sources=tuple(sources),
                        coupling=coupling)
     if laser_noise.is_quiet(scenario):
         return model

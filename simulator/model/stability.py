@@ -86,7 +86,8 @@ def stability(model, point):
                      "positive (det A < 0), the optical spring has pulled a mechanical "
                      "frequency through zero; this is the unstable branch of a bistable "
                      "response or an overly strong drive")
-        elif point.detuning_effective_hz > 0:
+        elif point.detuning_effective_hz > 0 or any(
+                t.detuning_effective_hz > 0 for t in point.tones):
             cause = ("parametric instability on blue detuning: optical anti-damping "
                      "exceeds the intrinsic mechanical damping (Γm + Γopt < 0), so the "
                      "mechanics self-oscillates")

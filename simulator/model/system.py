@@ -10,13 +10,19 @@ Steady state, spectra, sideband summary, noise budget, records, feasibility
 and the master-equation comparison all take this object; none of them
 rebuilds the operating point or the model it was handed.
 
+A scenario with several drive tones (``[[tones]]``) builds a System (operating
+point, model, stability) that the steady state takes; every other stage still
+refuses it through :func:`as_system` and :meth:`System.require_one_tone`.
+
 A System is immutable, like the scenario it holds. New ones are derived by
 path (:meth:`System.replace`); a change that cannot alter the physics (the
 record's duration or chunking, its seed) keeps the operating point and model.
 """
 
 import functools
+import sys
 
+from simulator.errors import InputError
 from simulator.model.chain import detection_chain
 from simulator.model.operating_point import operating_point
 from simulator.model.optomechanics import linear_model
@@ -77,7 +83,25 @@ class System:
     @functools.cached_property
     def chain(self):
         """The model extended by the detection chain (built on first use, then kept)."""
+        self.require_one_tone("the detection chain (records, measured spectra, feasibility)")
         return detection_chain(self.scenario, self.point, self.model)
+
+    @property
+    def several_tones(self):
+        """True when the scenario drives further tones (``[[tones]]``) beside ``[drive]``."""
+        return self.point.several_tones
+
+    def require_one_tone(self, what):
+        """This system, or :class:`simulator.errors.InputError` naming ``what`` if it has
+        several tones, which ``what`` does not support yet."""
+        if self.several_tones:
+            names = ", ".join(repr(t.name) for t in self.point.tones)
+            raise InputError(
+                f"{what} does not yet support several drive tones (this scenario has "
+                f"{names}); supported so far: the operating point, the linear model, its "
+                "stability and the steady state (simulator.linear.steady_state); remove "
+                "the [[tones]] tables for everything else")
+        return self
 
     def replace(self, path, value):
         """A new System of the scenario with ``path`` set to ``value``.
@@ -102,17 +126,27 @@ def _build(scenario):
     return point, model, stability(model, point)
 
 
-def as_system(item):
+def as_system(item, *, several_tones=False):
     """``item`` if it is a :class:`System`; a System built from it if it is a Scenario.
 
     The one-line path for scripts (``steady_state(scenario)``); a caller that
     evaluates one scenario several ways builds the System once and passes it.
+    Every stage takes its system through here: a system with several tones is
+    refused with :class:`~simulator.errors.InputError` naming the calling
+    function, unless the caller says it handles them (``several_tones=True``).
     """
     if isinstance(item, System):
-        return item
+        return item if several_tones else item.require_one_tone(_caller())
     from simulator.scenario.loader import Scenario
 
     if isinstance(item, Scenario):
-        return System(item)
+        system = System(item)
+        return system if several_tones else system.require_one_tone(_caller())
     raise TypeError(f"expected a simulator.System or a simulator.scenario.loader.Scenario; got "
                     f"{type(item).__name__}")
+
+
+def _caller():
+    """``module.function`` of the stage that called :func:`as_system`, for messages."""
+    frame = sys._getframe(2)
+    return f"{frame.f_globals.get('__name__', '?')}.{frame.f_code.co_name}"

@@ -198,9 +198,10 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
     watched = np.array([chain.model.index(f"{name}.{q}") for name in names for q in "qp"]
                        if store else [], dtype=np.int64)
     calibration = dict(chain.calibration(), full_scale_v=full_scale, bits=dig.bits,
-                       transimpedance_ohm=scenario.electronics.transimpedance_ohm,
-                       bandwidth_hz=scenario.electronics.bandwidth_hz or float("inf"),
-                       local_oscillator_power_w=det.local_oscillator_power_w)
+                       bandwidth_hz=scenario.electronics.bandwidth_hz or float("inf"))
+    if chain.front_end == "optical":  # a microwave receiver has no photocurrent
+        calibration.update(transimpedance_ohm=scenario.electronics.transimpedance_ohm,
+                           local_oscillator_power_w=det.local_oscillator_power_w)
     truth = Truth(mode_names=names,
                   occupation=tuple(m.occupation for m in steady.modes),
                   effective_frequency_hz=tuple(m.effective_frequency_hz for m in steady.modes),
@@ -272,7 +273,7 @@ def generate_record(system, *, seed=None, duration_s=None, form="auto",
         warnings.warn(f"{clipped} of {plan.n_samples} samples "
                       f"({100.0 * clipped / plan.n_samples:.3g} %) clipped at the digitiser's "
                       f"full scale ±{plan.full_scale_v:.6g} V; raise digitizer.full_scale_v "
-                      "or lower electronics.transimpedance_ohm", RecordWarning, stacklevel=3)
+                      f"or lower {plan.chain.scale_key}", RecordWarning, stacklevel=3)
     return record
 
 

@@ -12,11 +12,17 @@ motion.
 
 import numpy as np
 
+from simulator.report.colours import FLOOR_COLOUR, TOTAL_COLOUR, source_colour, term_style
+
 _PREFIXES = ((1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz"), (1.0, "Hz"))
 ZOOM_LINEWIDTHS = 6.0
+DECADES_FOR_LOG = 1.5  # values spanning more decades get a log axis (common practice)
+# standard quantum limit and zero-point motion: apart from every noise source's colour
+REFERENCE_COLOURS = ("#d35400", "#16a085", "#7f8c8d")
 
 
-def _unit(span):
+def unit_of_span(span):
+    """(scale, name) of the frequency unit for an axis spanning ``span`` Hz."""
     for scale, name in _PREFIXES:
         if span >= 2 * scale:
             return scale, name
@@ -44,20 +50,14 @@ def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, titl
     overwrite : bool
         Replace an existing file at ``path`` (by default it is an error).
     """
-    import matplotlib
-
     two_sided = spectrum.sided == "two-sided"
     zooms = _zooms(summary, mode, two_sided)
     rows = 1 + bool(zooms) + bool(zooms and displacement is not None)
     fig = figure(figsize=(13, 3.6 * rows + 0.5), layout="constrained")
     grid = fig.add_gridspec(rows, max(len(zooms), 1))
     names = list(spectrum.contributions)
-    # ten distinct default colours suffice for a plain budget; laser-noise terms
-    # make it longer, and a repeated colour would pair unrelated terms
-    palette = ([f"C{i}" for i in range(10)] if len(names) <= 11
-               else [matplotlib.colormaps["tab20"](i % 20) for i in range(len(names))])
-    colours = {name: ("0.45" if i == 0 else palette[(i - 1) % len(palette)])
-               for i, name in enumerate(names)}
+    modes = tuple(s.mode for s in summary) or None
+    colours = {name: term_style(name, modes, names) for name in names}
     ax = fig.add_subplot(grid[0, :])
     _overview(ax, spectrum, colours, summary)
     fig.suptitle(title or spectrum.quantity, x=0.02, ha="left")
@@ -65,9 +65,15 @@ def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, titl
         zx = fig.add_subplot(grid[1, k])
         _zoom(zx, spectrum, colours, label, centre, width)
         if displacement is not None:
-            _displacement_zoom(fig.add_subplot(grid[2, k]), displacement, label, centre, width)
+            dx = fig.add_subplot(grid[2, k])
+            _displacement_zoom(dx, displacement, label, centre, width)
     handles, labels = ax.get_legend_handles_labels()
-    fig.legend(handles, labels, loc="outside right upper", fontsize=8, frameon=False)
+    fig.legend(handles, labels, loc="outside right upper", fontsize=8, frameon=False,
+               title="noise budget (colour: source;\nline: term)", title_fontsize=8)
+    if zooms and displacement is not None:
+        handles, labels = dx.get_legend_handles_labels()
+        fig.legend(handles, labels, loc="outside right lower", fontsize=8, frameon=False,
+                   title="referred to displacement", title_fontsize=8)
     save_figure(fig, path, overwrite=overwrite)
     return path
 
@@ -81,33 +87,33 @@ def _zooms(summary, mode, two_sided):
     sides = [("Stokes", s.stokes, f"area n + 1 = {s.stokes.area_quanta:.4g}")] if two_sided \
         else []
     sides.append(("anti-Stokes", s.anti_stokes,
-                  f"area n = {s.anti_stokes.area_quanta:.4g}\nn from ratio = "
-                  f"{s.occupation_from_ratio:.4g}\nsteady state n = "
+                  f"area n = {s.anti_stokes.area_quanta:.4g}, n from ratio = "
+                  f"{s.occupation_from_ratio:.4g}, steady state n = "
                   f"{s.steady_state_occupation:.4g}"))
     out = []
     for name, side, text in sides:
         centre = side.frequency_hz if two_sided else abs(side.frequency_hz)
         if not two_sided:
-            name, text = "mechanical peak", f"heterodyne sideband summary:\n{text}"
+            name, text = "mechanical peak", f"from the heterodyne sideband summary: {text}"
         out.append((f"{s.mode} {name}\n{text}", centre, side.linewidth_hz))
     return out
 
 
 def _overview(ax, spectrum, colours, summary):
-    scale, unit = _unit(np.ptp(spectrum.frequency_hz))
+    scale, unit = unit_of_span(np.ptp(spectrum.frequency_hz))
     f = spectrum.frequency_hz / scale
     excess = spectrum.total - 1.0
-    ax.semilogy(f, np.where(excess > 0, excess, np.nan), color="black", lw=3.0, alpha=0.4,
-                label="total", zorder=1)
+    ax.semilogy(f, np.where(excess > 0, excess, np.nan), color=TOTAL_COLOUR, lw=3.0,
+                alpha=0.4, label="total", zorder=1)
     for name, curve in list(spectrum.contributions.items())[1:]:
-        ax.semilogy(f, np.where(curve > 0, curve, np.nan), color=colours[name], lw=1.2,
-                    label=name)
-        if np.any(curve < 0):
-            ax.semilogy(f, np.where(curve < 0, -curve, np.nan), color=colours[name], lw=1.2,
-                        ls="--", label=f"−({name}) where negative")
+        ax.semilogy(f, np.where(curve > 0, curve, np.nan), lw=1.2, label=name,
+                    **colours[name])
+        if np.any(curve < 0):  # the magnitude, pale: a cross term can be negative
+            ax.semilogy(f, np.where(curve < 0, -curve, np.nan), lw=1.0, alpha=0.4,
+                        **colours[name])
     for line in getattr(spectrum, "lines", ()):
         # a line is a power (density units × Hz), not a density: marked, not drawn
-        ax.axvline(line.frequency_hz / scale, color="magenta", lw=1.0, ls="-.",
+        ax.axvline(line.frequency_hz / scale, color=source_colour(line.name), lw=1.0, ls="-.",
                    label=f"{line.name}: power {line.power:.3g} (units × Hz)")
     positive = excess[excess > 1e-12]
     if positive.size:
@@ -130,7 +136,7 @@ def _overview(ax, spectrum, colours, summary):
     ax.set_xlabel(f"{spectrum.axis} ({unit})")
     ax.set_ylabel(f"S − 1: excess above shot noise\n({spectrum.sided}, {spectrum.units})")
     gaps = "; gaps in the total: below shot noise" if np.any(excess < -1e-12) else ""
-    ax.set_title(f"whole spectrum, log scale (dashed: magnitude of negative terms{gaps})",
+    ax.set_title(f"whole spectrum, log scale (pale: magnitude of negative terms{gaps})",
                  fontsize=10)
 
 
@@ -138,36 +144,66 @@ def _window(spectrum, centre, width):
     half = ZOOM_LINEWIDTHS * width
     f = spectrum.frequency_hz
     inside = (f >= centre - half) & (f <= centre + half)
-    scale, unit = _unit(2 * half)
+    scale, unit = unit_of_span(2 * half)
     return inside, (f[inside] - centre) / scale, unit, centre - half, centre + half
 
 
 def _zoom(ax, spectrum, colours, label, centre, width):
     inside, x, unit, _, _ = _window(spectrum, centre, width)
-    ax.plot(x, spectrum.total[inside] - 1.0, color="black", lw=3.0, alpha=0.4, zorder=1)
+    ax.plot(x, spectrum.total[inside] - 1.0, color=TOTAL_COLOUR, lw=3.0, alpha=0.4, zorder=1)
     for name, curve in list(spectrum.contributions.items())[1:]:
-        ax.plot(x, curve[inside], color=colours[name], lw=1.2)
+        ax.plot(x, curve[inside], lw=1.2, **colours[name])
     ax.axhline(0.0, color="0.6", lw=0.8, zorder=0)
     ax.set_xlabel(f"offset from {centre / 1e6:.6g} MHz ({unit})")
     ax.set_ylabel(f"S − 1, linear scale\n({spectrum.units})")
-    ax.text(0.02, 0.96, label, transform=ax.transAxes, va="top", fontsize=8,
-            bbox=dict(boxstyle="round", fc="white", ec="0.7", alpha=0.9))
+    ax.set_title(label, fontsize=9)
 
 
 def _displacement_zoom(ax, x_spec, label, centre, width):
     inside, x, unit, _, _ = _window(x_spec, centre, width)
-    ax.semilogy(x, x_spec.total[inside], color="black", lw=2.0, label="measured, referred")
+    curves = [x_spec.total[inside]]
+    ax.plot(x, curves[0], color=TOTAL_COLOUR, lw=2.0, label="measured, referred")
     floor = next(iter(x_spec.contributions.values()), None)
     if floor is not None:
-        ax.semilogy(x, floor[inside], ls="--", color="0.45", label="shot-noise imprecision")
-    for (name, curve), style in zip(x_spec.reference.items(), ("-.", ":", "-"), strict=False):
-        ax.semilogy(x, curve[inside], ls=style, lw=1.6, label=name)
+        curves.append(floor[inside])
+        ax.plot(x, curves[-1], ls="--", color=FLOOR_COLOUR, label="shot-noise imprecision")
+    for (name, curve), style, colour in zip(x_spec.reference.items(), ("-.", ":", "-"),
+                                            REFERENCE_COLOURS, strict=False):
+        curves.append(curve[inside])
+        ax.plot(x, curves[-1], ls=style, lw=1.6, color=colour, label=name)
     ax.set_xlabel(f"offset from {centre / 1e6:.6g} MHz ({unit})")
     ax.set_ylabel(f"{x_spec.sided} density\n({x_spec.units.replace('^2', '²')})")
-    ax.set_title(f"{label.splitlines()[0]}: referred to displacement", fontsize=10)
-    low, high = ax.get_ylim()
-    ax.set_ylim(low, high * (high / low) ** 0.8)
-    ax.legend(loc="upper right", fontsize=8, framealpha=0.9)
+    ax.set_title(f"{label.splitlines()[0]}: referred to displacement", fontsize=9)
+    values = np.concatenate(curves)
+    log = spans_decades(values)
+    ax.set_yscale("log" if log else "linear")
+    ax.set_ylim(*data_limits(values, log=log))
+
+
+def spans_decades(values):
+    """Whether the positive finite ``values`` span more than DECADES_FOR_LOG decades."""
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v) & (v > 0)]
+    return v.size > 1 and np.log10(v.max() / v.min()) > DECADES_FOR_LOG
+
+
+def data_limits(values, *, log, margin=0.05):
+    """Axis limits that hold the finite ``values`` with a small margin, nothing more.
+
+    On a log axis only positive values count and the margin is a fraction of
+    the decades spanned, so no empty decades are drawn.
+    """
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v) & (v > 0)] if log else v[np.isfinite(v)]
+    if not v.size:
+        return (0.1, 10.0) if log else (0.0, 1.0)
+    low, high = v.min(), v.max()
+    if log:
+        span = max(np.log10(high / low), 0.3)  # a flat curve still gets a readable axis
+        pad = 10 ** (margin * span + (0.3 - min(np.log10(high / low), 0.3)) / 2)
+        return low / pad, high * pad
+    pad = margin * (high - low) or margin * abs(high) or 1.0
+    return low - pad, high + pad
 
 
 FIGURE_DPI = 110  # every saved figure (png); vector formats ignore it

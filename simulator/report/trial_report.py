@@ -15,7 +15,7 @@ def _figure(dataset, q, truth, path):
     unc = dataset["uncertainty"].sel(quantity=q).values
     ok = np.isfinite(est) & np.isfinite(unc) & (unc > 0)
     fig, axes = subplots(1, 2 if truth is not None else 1, figsize=(10, 3.6),
-                             squeeze=False)
+                         squeeze=False, layout="constrained")
     ax = axes[0, 0]
     ax.hist(est[ok], bins=max(8, int(np.sqrt(ok.sum()))), color="tab:blue", alpha=0.75,
             label="estimates")
@@ -26,7 +26,8 @@ def _figure(dataset, q, truth, path):
     ax.set_xlabel(q)
     ax.set_ylabel("trials")
     ax.yaxis.get_major_locator().set_params(integer=True)
-    ax.legend(fontsize=8)
+    ax.legend(fontsize=8, loc="upper center", bbox_to_anchor=(0.5, -0.2), ncols=3,
+                  frameon=False)
     if truth is not None:
         pulls = (est[ok] - truth) / unc[ok]
         ax = axes[0, 1]
@@ -38,41 +39,51 @@ def _figure(dataset, q, truth, path):
                 label="unit normal (honest errors)")
         ax.set_xlabel("(estimate − truth) / stated uncertainty")
         ax.set_ylabel("density")
-        ax.legend(fontsize=8)
+        ax.legend(fontsize=8, loc="upper center", bbox_to_anchor=(0.5, -0.2), ncols=3,
+                  frameon=False)
     fig.suptitle(f"{q}: {ok.sum()} trials")
-    fig.tight_layout()
     save_figure(fig, path, overwrite=True)  # the trial's own folder
 
 
+def _text(x):
+    return "—" if x is None else x
+
+
 def write_trial_report(result, scenario, estimator, path):
-    """Write the report page of a :class:`simulator.workflows.trial.TrialResult`."""
-    rows = []
-    for q in result.quantities:
-        rows.append([q.name, "—" if q.truth is None else q.truth, q.trials, q.failures,
-                     q.mean, q.spread, "—" if q.bias is None else q.bias,
-                     "—" if q.bias_error is None else q.bias_error,
-                     "—" if q.rmse is None else q.rmse,
-                     "—" if q.pull_width is None else q.pull_width,
-                     "—" if q.coverage_1sigma is None else q.coverage_1sigma,
-                     "—" if q.coverage_2sigma is None else q.coverage_2sigma, q.verdict])
-    table = html.table(rows, header=["quantity", "truth", "trials", "failures", "mean",
-                                     "spread", "bias", "± (s.e.)", "rms error", "pull width",
-                                     "1σ coverage", "2σ coverage", "verdict"])
+    """Write the report page of a :class:`simulator.workflows.trial.TrialResult`.
+
+    The page leads with the verdict of each quantity (truth, mean ± spread,
+    verdict in words), then the statistics behind it in a second table narrow
+    enough for a 1280 px screen, the figures, the failed trials and, folded at
+    the end, the scenario.
+    """
+    verdicts = html.table(
+        [[q.name, _text(q.truth), q.mean, q.spread, q.verdict] for q in result.quantities],
+        header=["quantity", "truth", "mean", "spread", "verdict"])
+    statistics = html.table(
+        [[q.name, q.trials, q.failures, _text(q.bias), _text(q.bias_error), _text(q.rmse),
+          _text(q.pull_width), _text(q.coverage_1sigma), _text(q.coverage_2sigma)]
+         for q in result.quantities],
+        header=["quantity", "trials", "failures", "bias", "± (s.e.)", "rms error",
+                "pull width", "1σ coverage", "2σ coverage"])
     figures = []
     with tempfile.TemporaryDirectory() as tmp:
         for i, q in enumerate(result.quantities):
             png = Path(tmp) / f"q{i}.png"
             _figure(result.dataset, q.name, q.truth, png)
-            figures.append(html.png_tag(png, q.name))
+            figures.append(html.figure(png, f"{q.name}: estimates over the trials and their "
+                                            "pulls against the truth"))
     errors = ("<p>No trial failed.</p>" if not result.errors else html.table(
         [[i, e] for i, e in result.errors[:50]], header=["trial", "error"]))
     sections = [
-        ("Summary", "<p>Expected for an unbiased estimator with honest uncertainties: "
-                    "bias within a few standard errors of zero, pull width 1, coverage "
-                    "68.3 % (1σ) and 95.4 % (2σ).</p>" + table),
+        ("Verdicts", verdicts),
+        ("Statistics", "<p>Expected for an unbiased estimator with honest uncertainties: "
+                       "bias within a few standard errors of zero, pull width 1, coverage "
+                       "68.3 % (1σ) and 95.4 % (2σ).</p>" + statistics),
         ("Histograms and pulls", "\n".join(figures)),
         ("Failed trials", errors),
-        ("Scenario", html.preformatted(scenario.to_toml())),
+        ("Scenario", html.folded(f"scenario file ({scenario.source}), as run",
+                                 html.preformatted(scenario.to_toml()))),
     ]
     return html.write_report(path, f"noisechain trial: {scenario.scenario.name}", sections,
                              meta=f"estimator {estimator} · "

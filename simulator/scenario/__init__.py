@@ -6,6 +6,8 @@ checks such as the local oscillator's reference) into a
 :class:`~simulator.scenario.loader.Scenario`; :mod:`~simulator.scenario.schema`
 is the declarative walker the checks and the generated reference
 (docs/scenario-reference.md) share; :mod:`~simulator.scenario.sections` and
-:mod:`~simulator.scenario.sweep_section` declare the sections. Nothing here
+:mod:`~simulator.scenario.sweep_section` declare the sections;
+:mod:`~simulator.scenario.labels` names parameter paths in words, with
+symbols and units, for figures, reports and planners. Nothing here
 knows any physics beyond units and ranges.
 """

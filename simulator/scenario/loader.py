@@ -18,7 +18,7 @@ from collections.abc import Mapping
 from pathlib import Path
 
 from simulator.errors import ScenarioError
-from simulator.scenario import schema
+from simulator.scenario import schema, units
 from simulator.scenario.paths import (
     assign,
     join,
@@ -27,7 +27,13 @@ from simulator.scenario.paths import (
     objects_along,
     split_path,
 )
-from simulator.scenario.schema import optional_section, required_section, section
+from simulator.scenario.receiver import receiver_problems
+from simulator.scenario.schema import (
+    optional_section,
+    optional_sections,
+    required_section,
+    section,
+)
 from simulator.scenario.sections import (  # noqa: F401 - re-exported for users of the loader
     CalibrationTone,
     Cavity,
@@ -42,6 +48,7 @@ from simulator.scenario.sections import (  # noqa: F401 - re-exported for users 
     ScenarioInfo,
 )
 from simulator.scenario.sweep_section import Sweep
+from simulator.scenario.tone_sections import CavityMode, Coupling, Tone, tone_problems
 
 _frozen = dataclasses.dataclass(frozen=True, kw_only=True)
 
@@ -55,6 +62,14 @@ class Scenario:
     cavity: Cavity = required_section("the optical or microwave mode")
     mechanics: tuple[Mechanics, ...] = required_section(
         "one table per mechanical mode")
+    cavity_modes: tuple[CavityMode, ...] = optional_sections(
+        "further cavity modes beside [cavity], one table each (see "
+        "simulator.scenario.tone_sections)")
+    tones: tuple[Tone, ...] = optional_sections(
+        "further drive tones beside [drive], one table each, on any cavity mode")
+    couplings: tuple[Coupling, ...] = optional_sections(
+        "single-photon couplings of the [[cavity_modes]] to the mechanical modes, one "
+        "table per coupled pair")
     detection: Detection = section(Detection, "how the output field is measured")
     electronics: Electronics = section(
         Electronics, "amplifier and photocurrent electronics before the digitiser")
@@ -73,8 +88,10 @@ class Scenario:
                 yield (f"mechanics[{i}].name",
                        f"{mode.name!r} is used by an earlier mode; expected unique names")
             seen.add(mode.name)
+        yield from tone_problems(self)
         yield from self._chain_problems()
         yield from self._local_oscillator_problems()
+        yield from receiver_problems(self)
         if self.sweep is not None:
             for path, spec in self.sweep.parameters.items():
                 for p in (path, *([spec["unit"]] if "unit" in spec else [])):
@@ -111,7 +128,7 @@ class Scenario:
         if path.split(".")[0] == "sweep" or dataclasses.is_dataclass(value) or isinstance(
                 value, tuple):
             yield key, f"{path!r} does not name a single scenario parameter"
-        elif leaf_type(type(self), path, self.source) not in (int, float):
+        elif leaf_type(type(self), self._canonical(path)[0], self.source) not in (int, float):
             role = "sweepable" if path == swept else "usable as the unit of a range"
             yield key, (f"{path!r} is not a numeric parameter, so it is not {role}; "
                         "expected a number such as 'drive.detuning_hz'")
@@ -129,6 +146,9 @@ class Scenario:
                 paths += leaf_paths(cls, prefix)
         return paths
 
+    def _canonical(self, path):
+        return units.alias_path(type(self), path, self.source)
+
     def to_dict(self):
         """The scenario as nested plain data, as it would appear in TOML."""
         return _as_data(self)
@@ -140,7 +160,13 @@ class Scenario:
         return tomli_w.dumps(self.to_dict())
 
     def get(self, path):
-        """Value at a parameter path such as ``"mechanics[0].frequency_hz"``."""
+        """Value at a parameter path such as ``"mechanics[0].frequency_hz"``.
+
+        A power may be asked for in dBm: ``"drive.power_dbm"``.
+        """
+        canonical, alias = self._canonical(path)
+        if alias:
+            return units.dbm_from_watts(self.get(canonical))
         node = self
         for name, index in split_path(path, self.source):
             try:
@@ -155,9 +181,18 @@ class Scenario:
     def replace(self, path, value):
         """New scenario with the parameter at ``path`` set to ``value``, re-validated.
 
-        Setting one of two exclusive keys (for example ``bath_temperature_k``)
-        clears the other one.
+        Setting one of two exclusive or alternative keys (for example
+        ``bath_temperature_k``) clears the other one. A power may be set in
+        dBm (``"drive.power_dbm"``).
         """
+        canonical, alias = self._canonical(path)
+        if alias:
+            watts = units.watts_from_dbm(units.dbm_value(value, path, self.source))
+            try:
+                return self.replace(canonical, watts)
+            except ScenarioError as exc:
+                raise ScenarioError(f"{value!r} dBm is {watts:.6g} W; {exc.detail}",
+                                    source=self.source, key=path) from None
         parts = split_path(path, self.source)
         chain = objects_along(self, parts)
         if chain is not None:
@@ -167,8 +202,9 @@ class Scenario:
             f = next(f for f in schema.public_fields(type(owner)) if f.name == leaf)
             _, tp, _ = schema.field_kind(type(owner), leaf)
             changes = {leaf: _scalar(f, tp, value, path, self.source)}
-            for group in getattr(type(owner), "EXCLUSIVE", ()):
-                changes.update({k: None for k in group if k != leaf and leaf in group})
+            for group in schema.alternative_groups(type(owner)):
+                changes.update({k: type(owner).__dataclass_fields__[k].default
+                                for k in group if k != leaf and leaf in group})
             new = dataclasses.replace(owner, **changes)
             for depth in range(len(parts) - 1, -1, -1):
                 _require_no_problems(new, ".".join(join(parts[:depth])), self.source)
@@ -192,8 +228,8 @@ def _as_data(obj):
         nested = not isinstance(obj, Scenario)
         for f in schema.public_fields(type(obj)):
             value = getattr(obj, f.name)
-            if value is None or (nested and dataclasses.is_dataclass(value)
-                                 and value == type(value)()):
+            if value is None or value == () or (nested and dataclasses.is_dataclass(value)
+                                                and value == type(value)()):
                 continue
             out[f.name] = _as_data(value)
         return out
@@ -257,8 +293,13 @@ def _build(cls, data, path, source):
         raise ScenarioError(f"{data!r} is not a table; expected a TOML table",
                             source=source, key=path or None)
     fields = {f.name: f for f in schema.public_fields(cls)}
+    data, aliases = units.resolve_aliases(cls, data, path, source)
     for key in data:
         if key not in fields:
+            slip = units.unit_slip(cls, key, data[key])
+            if slip:
+                raise ScenarioError(f"unknown key {key!r} in {label}; {slip}",
+                                    source=source, key=_key(path, key))
             close = difflib.get_close_matches(key, list(fields), n=1, cutoff=0.5)
             hint = f"; did you mean {close[0]!r}?" if close else ""
             valid = ", ".join(fields)
@@ -275,6 +316,8 @@ def _build(cls, data, path, source):
                     "array of tables" if kind == "sections" else "key")
                 accepts = ("" if kind != "scalar"
                            else f" as {schema.expectation(f, tp)}")
+                if f.metadata.get("unit") == "W":
+                    accepts += f", or {name.removesuffix('_w')}{units.DBM} in dBm"
                 raise ScenarioError(f"missing required {what} {name!r} in {label}; "
                                     f"expected {f.metadata.get('doc', name)}{accepts}",
                                     source=source, key=key)
@@ -292,7 +335,12 @@ def _build(cls, data, path, source):
             if f.metadata.get("parser"):
                 values[name] = f.metadata["parser"](value, key, source)
                 continue
-            values[name] = _scalar(f, tp, value, key, source)
+            try:
+                values[name] = _scalar(f, tp, value, key, source)
+            except ScenarioError as exc:
+                if name not in aliases:
+                    raise
+                raise units.given_in_dbm(exc, data[name], aliases[name], path) from None
     for group in getattr(cls, "EXCLUSIVE", ()):
         given = [k for k in group if k in values and values[k] is not None]
         if len(given) != 1:
@@ -301,7 +349,13 @@ def _build(cls, data, path, source):
             raise ScenarioError(f"give exactly one of {' or '.join(group)} in {label}; "
                                 f"found {found}", source=source, key=_key(path, group[0]))
     obj = cls(**values)
-    _require_no_problems(obj, path, source)
+    try:
+        _require_no_problems(obj, path, source)
+    except ScenarioError as exc:
+        leaf = (exc.key or "").rpartition(".")[2]
+        if leaf not in aliases:
+            raise
+        raise units.given_in_dbm(exc, data[leaf], aliases[leaf], path) from None
     return obj
 
 

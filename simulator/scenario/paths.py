@@ -61,7 +61,7 @@ def assign(data, owner, parts, value, path, source):
     for name, index in parents:
         owner = getattr(owner, name, None)
         owner = owner[index] if index is not None and owner is not None else owner
-    for group in getattr(type(owner), "EXCLUSIVE", ()):
+    for group in schema.alternative_groups(type(owner)):
         if leaf in group:
             for other in group:
                 if other != leaf:

@@ -81,9 +81,25 @@ def optional_section(doc):
     return dataclasses.field(default=None, metadata={"doc": doc})
 
 
+def optional_sections(doc):
+    """Field of :class:`~simulator.scenario.loader.Scenario` for an array of tables that may be
+    absent (then empty)."""
+    return dataclasses.field(default=(), metadata={"doc": doc})
+
+
 def required_section(doc):
     """Field of :class:`~simulator.scenario.loader.Scenario` for a section that must be given."""
     return dataclasses.field(metadata={"doc": doc})
+
+
+def alternative_groups(cls):
+    """Groups of keys of section ``cls`` that stand for one quantity.
+
+    ``EXCLUSIVE`` (exactly one must be given) and ``ALTERNATIVES`` (at most one
+    may be given, the section's ``problems()`` says so); setting one key of a
+    group by path clears the others to their defaults.
+    """
+    return getattr(cls, "EXCLUSIVE", ()) + getattr(cls, "ALTERNATIVES", ())
 
 
 def is_section(tp):
@@ -226,7 +242,11 @@ def reference_markdown(root):
         "",
         "A scenario is a TOML file with the sections below. Keys carry their unit",
         "as a suffix (`_hz`, `_w`, `_m`, `_kg`, `_k`); every frequency or rate is an",
-        "ordinary frequency in Hz, the value of ω/2π. Numbers must be finite;",
+        "ordinary frequency in Hz, the value of ω/2π. Every power key `<name>_w`",
+        "may be given as `<name>_dbm` instead (exactly one of the two; P[W] =",
+        "1 mW · 10^(P[dBm]/10)), and its dBm path works in sweeps too. A key written",
+        "in a scaled unit (`bath_temperature_mk`, `frequency_mhz`, `power_mw`) is",
+        "refused with the SI key and the converted value. Numbers must be finite;",
         "integers are accepted where a number is expected. Many keys also have",
         "physical limits, listed beside them: the span of real devices, which also",
         "keeps every number the engine derives finite; a value outside them is",
@@ -247,8 +267,8 @@ def reference_markdown(root):
         lines += [f"## `{_table_header(root, f)}` ({status})", "",
                   _sentence(f.metadata.get("doc", ""))]
         if kind == "sections":
-            lines.append(f"Repeat the `[[{f.name}]]` table once per item; at least "
-                         "one is required.")
+            lines.append(f"Repeat the `[[{f.name}]]` table once per item"
+                         + ("; at least one is required." if required else "."))
         if f.default_factory is not dataclasses.MISSING:
             lines.append("Every key takes its default when the section is left out.")
         elif not required:
@@ -282,8 +302,10 @@ def _key_table(cls, path):
             default = "not set"
         else:
             default = f"`{_toml_literal(sub.default)}`"
-        cells = (f"`{sub.name}`", _sentence(sub.metadata["doc"]),
-                 expectation(sub, tp), default)
+        meaning = _sentence(sub.metadata["doc"])
+        if sub.metadata.get("unit") == "W":
+            meaning += f" Or `{sub.name.removesuffix('_w')}_dbm` in dBm."
+        cells = (f"`{sub.name}`", meaning, expectation(sub, tp), default)
         lines.append("| " + " | ".join(c.replace("|", "\\|") for c in cells) + " |")
     lines.append("")
     for sub, tp in nested:

@@ -4,7 +4,8 @@ Every field is declared with :func:`simulator.scenario.schema.param` (meaning, u
 admissible range, default), which the loader in :mod:`simulator.scenario.loader`
 walks generically and the scenario reference in ``docs/`` is generated from.
 A section may define ``EXCLUSIVE`` (groups of keys of which exactly one must
-be given) and ``problems()`` (checks across its keys).
+be given), ``ALTERNATIVES`` (groups of which at most one may be given) and
+``problems()`` (checks across its keys).
 """
 
 import dataclasses
@@ -222,9 +223,17 @@ class Detection:
 
     scheme: str = param("detection scheme", choices=("heterodyne", "homodyne"),
                         default="heterodyne")
+    receiver: str = param(
+        "what turns the output field into the record: \"optical\", a local "
+        "oscillator beaten with it on a photodetector (photocurrent, transimpedance); "
+        "\"microwave\", an amplifier chain and an IQ mixer whose outputs are digitised "
+        "(needs electronics.amplifier_gain_db and the amplifier's added noise; no "
+        "optical local oscillator, photocurrent or transimpedance)",
+        choices=("optical", "microwave"), default="optical")
     efficiency: float = param(
         "total efficiency from the cavity port to the photocurrent (transmission "
-        "losses times detector quantum efficiency)", check="fraction", default=1.0,
+        "losses times detector quantum efficiency), or to the first amplifier's input "
+        "for a microwave receiver", check="fraction", default=1.0,
         low=1e-6, why="−60 dB; below it the record holds no signal")
     local_oscillator_power_w: float = param(
         "local-oscillator power at the detector; sets the photocurrent scale and so "
@@ -269,6 +278,8 @@ class Detection:
 class Electronics:
     """``[electronics]``: amplifier and photocurrent electronics before the digitiser."""
 
+    ALTERNATIVES = (("amplifier_added_quanta", "amplifier_noise_temperature_k"),)
+
     transimpedance_ohm: float = param(
         "transimpedance gain from photocurrent to voltage", unit="V/A",
         check="positive", default=1e4, low=1e-3, high=1e12)
@@ -283,9 +294,28 @@ class Electronics:
         "microwave case: 10–20 for a cryogenic transistor amplifier), in quanta "
         "referred to its input; 0: no amplifier", check="nonnegative", default=0.0,
         high=1e6)
+    amplifier_noise_temperature_k: float | None = param(
+        "the amplifier's noise temperature T_N, instead of amplifier_added_quanta: "
+        "n_add = k_B T_N/(h f) at the drive frequency f; left out: use "
+        "amplifier_added_quanta", unit="K", check="positive", default=None, high=1e5,
+        why="hotter than any amplifier worth using")
+    amplifier_gain_db: float | None = param(
+        "power gain from the amplifier's input to the digitiser (the whole chain: "
+        "amplifiers, cables, mixer), receiver = \"microwave\" only", unit="dB",
+        check="real", default=None, low=-50.0, high=200.0,
+        why="from a lossy line to any stack of amplifiers")
+    impedance_ohm: float = param(
+        "characteristic impedance of the line and the digitiser's input, receiver "
+        "= \"microwave\" only", unit="Ω", check="positive", default=50.0, low=1e-3,
+        high=1e6)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if self.amplifier_noise_temperature_k is not None and self.amplifier_added_quanta:
+            yield ("amplifier_noise_temperature_k",
+                   f"{self.amplifier_noise_temperature_k!r} K given beside "
+                   f"amplifier_added_quanta = {self.amplifier_added_quanta!r}; expected "
+                   "one of the two (the noise temperature is the added noise in kelvin)")
         if 0.0 < self.amplifier_added_quanta < 0.5:
             yield ("amplifier_added_quanta",
                    f"{self.amplifier_added_quanta!r} is below the quantum limit of a "

@@ -14,9 +14,9 @@ a detuning can be given in mechanical frequencies). The sweep engine is
 :mod:`simulator.workflows.sweep`.
 """
 
+import collections.abc
 import dataclasses
 import math
-import types
 
 import numpy as np
 
@@ -59,6 +59,34 @@ def _range_problem(spec):
     return None
 
 
+class ReadOnlyTable(collections.abc.Mapping):
+    """A read-only mapping that, unlike ``types.MappingProxyType``, pickles.
+
+    Scenarios travel to worker processes (sweeps, trials), so every part of
+    them must survive pickling.
+    """
+
+    __slots__ = ("_items",)
+
+    def __init__(self, items):
+        self._items = dict(items)
+
+    def __getitem__(self, key):
+        return self._items[key]
+
+    def __iter__(self):
+        return iter(self._items)
+
+    def __len__(self):
+        return len(self._items)
+
+    def __repr__(self):
+        return f"ReadOnlyTable({self._items!r})"
+
+    def __reduce__(self):
+        return (ReadOnlyTable, (self._items,))
+
+
 def parse_parameters(value, key, source):
     """Check ``[sweep.parameters]`` and freeze it (read-only mappings)."""
     if not isinstance(value, dict) or not value:
@@ -82,11 +110,11 @@ def parse_parameters(value, key, source):
             if problem:
                 raise ScenarioError(problem, source=source, key=where)
             spec = dict(spec, start=float(spec["start"]), stop=float(spec["stop"]))
-            frozen[path] = types.MappingProxyType(spec)
+            frozen[path] = ReadOnlyTable(spec)
         else:
             raise ScenarioError(f"{spec!r} is neither a list of values nor a range table",
                                 source=source, key=where)
-    return types.MappingProxyType(frozen)
+    return ReadOnlyTable(frozen)
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)

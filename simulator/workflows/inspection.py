@@ -13,6 +13,8 @@ from simulator.linear.laser_effects import occupation_report
 from simulator.linear.steady_state import STRONG_COUPLING_TOLERANCE, steady_state
 from simulator.model import laser_noise
 from simulator.model.system import as_system
+from simulator.scenario.plausibility import plausibility_warnings
+from simulator.scenario.units import dbm_from_watts, power_text
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -71,6 +73,9 @@ class Inspection:
                     "weak_coupling_occupation": _finite(ms.weak_coupling_occupation),
                     "backaction_limit": _finite(ms.backaction_limit),
                 })
+                why = backaction_limit_not_applicable(ms)
+                if why:
+                    entry.update(backaction_limit=None, backaction_limit_not_applicable=why)
             if self.laser:
                 entry.update(self.laser[j])
             modes.append(entry)
@@ -78,6 +83,8 @@ class Inspection:
             "scenario": self.scenario.scenario.name,
             "source": self.scenario.source,
             "drive_frequency_hz": p.drive_frequency_hz,
+            "drive_power_w": self.scenario.drive.power_w,
+            "drive_power_dbm": _finite(dbm_from_watts(self.scenario.drive.power_w)),
             "input_photon_flux_per_s": p.input_photon_flux,
             "photon_number": p.photon_number,
             "photon_number_branches": list(p.branches),
@@ -101,6 +108,7 @@ class Inspection:
         d = self.to_dict()
         lines = [f"scenario {d['scenario']}  ({d['source']})", "",
                  "operating point"]
+        lines.append(f"  drive power            {power_text(d['drive_power_w'])}")
         lines.append(f"  intracavity photons    {d['photon_number']:.6g}"
                      + ("   (bistable: branches " + ", ".join(
                          f"{b:.6g}" for b in d["photon_number_branches"])
@@ -133,7 +141,11 @@ class Inspection:
                 if key in mode:
                     value = mode[key]
                     text = "inf" if value is None else f"{value:.6g}"
+                    if f"{key}_not_applicable" in mode:
+                        text = f"not applicable ({mode[key + '_not_applicable']})"
                     lines.append(f"  {label:<28}{text}")
+            if "apparent_occupation_gap" in mode:
+                lines.append(f"    {mode['apparent_occupation_gap']['explanation']}")
         for f in d["feasibility"]:
             lines += ["", f"feasibility, mode {f['mode']} (Cramér–Rao, Whittle)"]
             lines.append(f"  occupation error after 1 s       "
@@ -155,6 +167,46 @@ def _finite(x):
     return x if math.isfinite(x) else None
 
 
+def backaction_limit_not_applicable(ms):
+    """Why n_min = A+/(A− − A+) does not apply to mode state ``ms``, or ``""``.
+
+    The formula is the floor of sideband cooling: it needs net optical
+    damping, A− > A+ (Marquardt, Chen, Clerk, Girvin, PRL 99, 093902 (2007)).
+    """
+    a_minus, a_plus = ms.anti_stokes_rate_hz, ms.stokes_rate_hz
+    if a_minus == 0 and a_plus == 0:
+        return "no light scatters: there is no drive or no coupling"
+    if not a_minus > a_plus:
+        return (f"the Stokes rate {a_plus:.3g} Hz is not below the anti-Stokes rate "
+                f"{a_minus:.3g} Hz: the light heats this mode rather than cooling it, "
+                "so there is no cooling limit")
+    return ""
+
+
+def master_equation_advice(point, occupations):
+    """Advice for a nonlinear regime: the master equation, or why it cannot help.
+
+    A thermal state of n quanta needs about ln(1/ε)/ln((n+1)/n) ≈ n ln(1/ε)
+    Fock levels to keep a tail ε out of the truncation (ε a quarter of the
+    engine's tolerance, as in simulator.master.hilbert.expected_cutoffs);
+    beyond the size the engine handles the master equation is not applicable
+    either.
+    """
+    from simulator.master.hilbert import DEFAULT_TOLERANCE, MAX_DIMENSION
+
+    quanta = [m.bath_occupation for m in point.modes] if occupations is None else occupations
+    n = max(quanta, default=0.0)
+    if not n > 0:
+        return None
+    levels = math.log(4.0 / DEFAULT_TOLERANCE) / math.log1p(1.0 / n)
+    if levels <= MAX_DIMENSION:
+        return None
+    return (f"the master equation: not applicable ({n:.3g} quanta need about "
+            f"{levels:.2g} Fock levels per mode, the engine handles {MAX_DIMENSION} in "
+            "all; the motion is classical here: treat the nonlinear transduction "
+            "classically, or lower the occupation)")
+
+
 def inspect_scenario(system, *, feasibility=True):
     """Operating point, stability, steady state and warnings of ``scenario``.
 
@@ -173,12 +225,7 @@ def inspect_scenario(system, *, feasibility=True):
             "the intracavity photon number is bistable (branches "
             + ", ".join(f"{b:.4g}" for b in point.branches)
             + f"); using the {point.branch} branch, set drive.bistable_branch to choose")
-    for mode in scenario.mechanics:
-        if mode.linewidth_hz > 0.1 * mode.frequency_hz:
-            warnings.append(
-                f"mode {mode.name}: linewidth {mode.linewidth_hz:.4g} Hz is more than a tenth "
-                f"of its frequency {mode.frequency_hz:.4g} Hz; the symmetric damping model "
-                "assumes a high quality factor and is not accurate here")
+    warnings += plausibility_warnings(scenario)
     steady = steady_state(system) if verdict.stable else None
     if steady is not None:
         for ms in steady.modes:
@@ -198,10 +245,11 @@ def inspect_scenario(system, *, feasibility=True):
                                               math.isfinite(f["asymmetry_time_s"] or 0.0))]
     from simulator.master.regime import regime_verdict  # pure formulas, no QuTiP
 
-    regime = regime_verdict(point, None if steady is None else
-                            [ms.occupation for ms in steady.modes])
+    occupations = None if steady is None else [ms.occupation for ms in steady.modes]
+    regime = regime_verdict(point, occupations,
+                            master_advice=master_equation_advice(point, occupations))
     laser = (() if steady is None or laser_noise.is_quiet(scenario)
-             else occupation_report(system, steady))
+             else _explained(system, occupation_report(system, steady)))
     warnings += [f"mode {ms.name}: the apparent (sideband ratio) occupation is not to be "
                  f"trusted: {entry['apparent_occupation_warning']}"
                  for ms, entry in zip(steady.modes if steady else (), laser, strict=False)
@@ -209,6 +257,17 @@ def inspect_scenario(system, *, feasibility=True):
     return Inspection(system=system, steady=steady,
                       warnings=tuple(warnings), feasibility=feasibility, regime=regime,
                       laser=laser)
+
+
+def _explained(system, laser):
+    """The laser report, each apparent occupation with the causes of its gap to the exact one."""
+    if not any("apparent_occupation_from_asymmetry" in entry for entry in laser):
+        return laser
+    from simulator.linear.occupation_gap import occupation_gaps
+
+    return tuple(entry | {"apparent_occupation_gap": gap.to_dict() | {
+        "explanation": gap.text()}} for entry, gap in zip(laser, occupation_gaps(system),
+                                                           strict=True))
 
 
 def _feasibility(system, steady):

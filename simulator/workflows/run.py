@@ -4,9 +4,10 @@
 spectrum of its detection scheme with the noise budget and sideband summary
 (when the operating point is stable), writes a record when the scenario has a
 ``[record]`` section, runs the ``[sweep]`` when there is one, draws the
-figures and writes ``report.html``: one self-contained page with the
-parameters, derived quantities, regime warnings, sideband summary, figures and
-the list of files written.
+figures and writes ``report.html``: one self-contained page that leads with
+the answer (verdict, occupations, feasibility, best operating points), then
+the figures, the tables behind them, the files written and, folded at the
+end, the scenario as run.
 """
 
 import dataclasses
@@ -27,7 +28,7 @@ class RunResult:
     stable: bool
 
 
-def run_scenario(scenario, out, *, workers=None, dask=None, progress=True):
+def run_scenario(scenario, out, *, workers=None, dask=None, progress=True, best_points=()):
     """Run everything ``scenario`` asks for into folder ``out``; see the module notes.
 
     The folder belongs to the run: a rerun of the same scenario replaces the
@@ -35,6 +36,10 @@ def run_scenario(scenario, out, *, workers=None, dask=None, progress=True):
     report) and resumes its sweep; a folder of another scenario, or one
     holding other files, is refused, and so is a second run into the same
     folder while the first is still going.
+
+    ``best_points`` are (criterion, where, value) rows of best operating
+    points found elsewhere (a planner); the report leads with them beside
+    those of the scenario's own sweep (:func:`simulator.report.summary.at_a_glance`).
     """
     from simulator.workflows import tasks
 
@@ -42,14 +47,15 @@ def run_scenario(scenario, out, *, workers=None, dask=None, progress=True):
     text = scenario.to_toml()
     with tasks.claim_folder(out, "run.json", {"format": "noisechain-run", "format_version": 1,
                                               "sha256": tasks.digest(text)}, "run"):
-        return _run(scenario, out, workers, dask, progress)
+        return _run(scenario, out, workers, dask, progress, list(best_points))
 
 
-def _run(scenario, out, workers, dask, progress):
+def _run(scenario, out, workers, dask, progress, best):
     from simulator.model.system import System
+    from simulator.report.summary import at_a_glance
     from simulator.workflows.inspection import inspect_scenario
 
-    files, sections, figures = [], [], []
+    files, details, figures = [], [], []
 
     def wrote(path):
         files.append(Path(path))
@@ -61,41 +67,41 @@ def _run(scenario, out, workers, dask, progress):
     data = jsontext.plain(inspection.to_dict())  # non-finite numbers as None (null)
     atomic_write_text(wrote(out / "inspect.json"), jsontext.dumps(data, indent=2))
     atomic_write_text(wrote(out / "inspect.txt"), inspection.to_text() + "\n")
-    sections.append(("Scenario", html.preformatted(scenario.to_toml())))
-    sections.append(("Derived quantities", _derived_table(data)))
-    regime = data.get("regime")
-    notes = list(data["warnings"])
-    if regime is not None and regime.get("level") != "linear":
-        notes.insert(0, f"regime verdict: {regime['level']} — {regime['reason']}")
-    sections.append(("Regime warnings", html.warnings_block(notes)))
+    summary = ()
+    if inspection.stability.stable:
+        part, summary = _spectrum_part(system, out, wrote, figures)
+        details.append(("Sideband summary", part))
+    else:
+        details.append(("Spectrum", "<p>No spectrum: the operating point is unstable ("
+                        + html.escape(inspection.stability.cause) + ").</p>"))
+    details.append(("Derived quantities", _derived_table(data)))
     if data.get("feasibility"):
         rows = [[f["mode"], f["occupation_error_1s"],
                  "—" if f["asymmetry_time_s"] is None else f["asymmetry_time_s"]]
                 for f in data["feasibility"]]
-        sections.append(("Feasibility (Cramér–Rao, Whittle)", html.table(
+        details.append(("Feasibility (Cramér–Rao, Whittle)", html.table(
             rows, header=["mode", "occupation error after 1 s",
                           f"time to resolve the asymmetry at "
                           f"{data['feasibility'][0]['significance']:g}σ (s)"])))
 
-    if inspection.stability.stable:
-        sections.append(("Sideband summary", _spectrum_part(system, out, wrote, figures)))
-    else:
-        sections.append(("Spectrum", "<p>No spectrum: the operating point is unstable ("
-                         + html.escape(inspection.stability.cause) + ").</p>"))
-
     record_part = _record_part(system, out, wrote, figures, progress)
     if record_part:
-        sections.append(("Record", record_part))
+        details.append(("Record", record_part))
 
     if scenario.sweep is not None:
-        sections.append(("Sweep", _sweep_part(scenario, out, wrote, figures, workers, dask,
-                                              progress)))
+        part, sweep_best = _sweep_part(scenario, out, wrote, figures, workers, dask, progress)
+        details.append(("Sweep", part))
+        best += sweep_best
 
-    sections.append(("Figures", "\n".join(html.png_tag(p, p.name) for p in figures)
-                     or "<p>No figures.</p>"))
     report_path = out / "report.html"
     listing = [[str(p.relative_to(out))] for p in files + [report_path]]
-    sections.append(("Files written", html.table(listing, header=["file"])))
+    sections = [("Answer", at_a_glance(data, summary, best)),
+                ("Figures", "\n".join(html.figure(p, caption) for p, caption in figures)
+                 or "<p>No figures.</p>"),
+                *details,
+                ("Files written", html.table(listing, header=["file"])),
+                ("Scenario", html.folded(f"scenario file ({scenario.source}), as run",
+                                         html.preformatted(scenario.to_toml())))]
     from simulator import __version__
 
     html.write_report(report_path, f"noisechain run: {scenario.scenario.name}", sections,
@@ -130,20 +136,17 @@ def _derived_table(data):
 
 
 def _spectrum_part(system, out, wrote, figures):
-    from simulator.linear.referral import to_displacement
-    from simulator.linear.sidebands import sideband_summary
-    from simulator.linear.spectra import measured_spectrum
     from simulator.report.plots import plot_spectrum
+    from simulator.workflows.spectrum import compute_spectrum, figure_title
 
-    spectrum = measured_spectrum(system)
-    summary = sideband_summary(system)
+    result = compute_spectrum(system)  # at the digitiser, with the explained summary
+    spectrum, summary = result.spectrum, result.summary
     spectrum.save(wrote(out / "spectrum.nc"), overwrite=True)
     png = wrote(out / "spectrum.png")
-    plot_spectrum(spectrum, png, displacement=to_displacement(spectrum, system),
-                  summary=summary,
-                  title=f"{system.scenario.scenario.name}: {spectrum.quantity}",
-                  overwrite=True)
-    figures.append(png)
+    plot_spectrum(spectrum, png, summary=summary,
+                  title=figure_title(result, system.scenario.scenario.name), overwrite=True)
+    figures.append((png, "Spectrum of the record at the digitiser and its noise budget: the "
+                         "whole band and each sideband zoomed."))
     rows = [[s.mode, s.anti_stokes.frequency_hz, s.anti_stokes.area_quanta,
              s.stokes.frequency_hz, s.stokes.area_quanta, s.ratio, s.occupation_from_ratio,
              s.steady_state_occupation] for s in summary]
@@ -152,8 +155,10 @@ def _spectrum_part(system, out, wrote, figures):
             + html.table(rows, header=["mode", "anti-Stokes (Hz)", "area (quanta)",
                                        "Stokes (Hz)", "area (quanta)", "ratio",
                                        "n from ratio", "n exact"])
+            + "".join(f"<p>Mode {html.escape(s.mode)}: {html.escape(s.gap.text())}.</p>"
+                      for s in summary if s.gap is not None)
             + "".join(f"<p>Warning, mode {html.escape(s.mode)}: {html.escape(s.warning)}.</p>"
-                      for s in summary if s.warning))
+                      for s in summary if s.warning)), summary
 
 
 def _record_part(system, out, wrote, figures, progress):
@@ -162,6 +167,7 @@ def _record_part(system, out, wrote, figures, progress):
         return ""
     import warnings
 
+    from simulator.report.record_plots import plot_record_sidebands
     from simulator.workflows.record import simulate_record
 
     path = wrote(out / "record.h5")
@@ -169,8 +175,10 @@ def _record_part(system, out, wrote, figures, progress):
         warnings.simplefilter("always")
         record = simulate_record(system, out=path, progress=progress, overwrite=True)
     png = wrote(out / "record_spectrum.png")
-    _plot_record_spectrum(system, record, png)
-    figures.append(png)
+    plot_record_sidebands(system, record, png)
+    figures.append((png, "Synthetic record against the model: its averaged periodogram over "
+                         "the expected one with the 95 % χ² band, the whole band and each "
+                         "motional sideband zoomed."))
     truth = record.truth
     rows = [[name, n, f, w] for name, n, f, w in zip(
         truth.mode_names, truth.occupation, truth.effective_frequency_hz,
@@ -183,54 +191,19 @@ def _record_part(system, out, wrote, figures, progress):
                                        "linewidth (Hz)"]))
 
 
-def _plot_record_spectrum(system, record, path):
-    """Periodogram of the record over the exact density of its samples."""
-    import numpy as np
-
-    from simulator.analysis.psd import averaged_periodogram
-    from simulator.report.plots import save_figure, subplots
-
-    fs = record.sample_rate_hz
-    # bins of a quarter of the narrowest line, but at least 16 averages
-    width = min(record.truth.effective_linewidth_hz, default=fs / 1e4)
-    segment = int(2 ** np.ceil(np.log2(fs / max(width / 4, 1e-9))))
-    segment = int(min(segment, 2 ** np.floor(np.log2(max(record.n_samples // 16, 16)))))
-    psd = averaged_periodogram(record.shot_noise_units(), fs, segment_samples=segment,
-                               window="boxcar")
-    step = max(1, psd.frequency_hz.size // 1024)  # the exact curve is smooth: 1024 points
-    f_exact = psd.frequency_hz[::step]
-    exact = system.chain.sampled_spectrum(f_exact, fs, aliases=40)
-    if psd.sided == "one-sided":
-        exact = 2 * exact
-    fig, ax = subplots(figsize=(9, 4.5))
-    scale, unit = (1e6, "MHz") if fs > 2e6 else (1e3, "kHz")
-    ax.semilogy(psd.frequency_hz / scale, psd.density, lw=0.6, color="tab:blue",
-                label=f"record periodogram ({psd.averages} averages)")
-    ax.semilogy(f_exact / scale, exact, lw=1.5, color="k",
-                label="exact density of the samples (model)")
-    axis = ("offset from the drive (> 0: anti-Stokes)" if record.kind == "iq"
-            else "frequency")
-    ax.set_xlabel(f"{axis} ({unit})")
-    floor = "1" if psd.sided == "two-sided" else "2 (one-sided)"
-    ax.set_ylabel(f"{psd.sided} density, record units²/Hz\n(vacuum floor {floor})")
-    ax.set_title(f"{system.scenario.scenario.name}: synthetic record against the model")
-    ax.legend(fontsize=8)
-    ax.grid(alpha=0.3)
-    fig.tight_layout()
-    save_figure(fig, path, overwrite=True)  # the run's or sweep's own folder
-
-
 def _sweep_part(scenario, out, wrote, figures, workers, dask, progress):
-    from simulator.report.sweep_plots import plot_occupation, plot_stability
+    from simulator.report.summary import best_sweep_points
+    from simulator.report.sweep_plots import SWEEP_FIGURES
     from simulator.workflows.sweep import run_sweep
 
     folder = out / "sweep"
     dataset = run_sweep(scenario, folder, workers=workers, dask=dask, progress=progress)
     wrote(folder / "sweep.nc")
-    for name, plot in (("occupation.png", plot_occupation), ("stability.png", plot_stability)):
-        figures.append(wrote(plot(dataset, folder / name)))
+    for name, plot, caption in SWEEP_FIGURES:
+        figures.append((wrote(plot(dataset, folder / name)), caption))
     failed = int((dataset["error"] != "").sum())
     unstable = int((dataset["stable"] == 0).sum())
     dims = ", ".join(f"{d} ({n})" for d, n in dataset["stable"].sizes.items())
     return (f"<p>{dataset['stable'].size} points over {html.escape(dims)}; "
-            f"{unstable} unstable, {failed} failed. Dataset: sweep/sweep.nc.</p>")
+            f"{unstable} unstable, {failed} failed. Dataset: sweep/sweep.nc.</p>",
+            best_sweep_points(dataset))

@@ -89,7 +89,7 @@ def _netcdf_name(path):
 
 def _without_units(path):
     """``drive.detuning_hz`` → ``drive_detuning`` (the unit suffix dropped)."""
-    return re.sub(r"_(hz|w|k|m|kg|s)$", "", _netcdf_name(path))
+    return re.sub(r"_(hz|w|dbm|k|m|kg|s)$", "", _netcdf_name(path))
 
 
 def sweep_axes(scenario):
@@ -366,7 +366,7 @@ def _axis_attrs(axis):
         attrs["units"] = f"in units of {axis.unit}"
     else:
         suffix = axis.path.rsplit("_", 1)[-1]
-        attrs["units"] = {"hz": "Hz", "w": "W", "k": "K", "m": "m", "kg": "kg",
+        attrs["units"] = {"hz": "Hz", "w": "W", "dbm": "dBm", "k": "K", "m": "m", "kg": "kg",
                           "s": "s"}.get(suffix, "")
     return attrs
 

@@ -1,0 +1,86 @@
+"""One colour per noise source, the same in every figure and every scenario.
+
+A noise budget names its terms "source: term" (``simulator.linear.budget``),
+e.g. "internal loss bath: back-action motion". The colour follows the source
+by name from a fixed table, so the internal-loss bath is drawn in the same
+colour in the demo, a microwave case and a sweep; the term sets the line
+style (motion solid, imprecision dotted, their cross term dashed). The
+thermal baths of the mechanical modes take colours in mode order, so the
+first mode's bath keeps its colour whatever the mode is called. A source the
+table does not know takes a colour from a reserve list chosen by a checksum of
+its name: stable from run to run, never one of the named colours.
+"""
+
+import zlib
+
+FLOOR_COLOUR = "0.45"
+TOTAL_COLOUR = "black"
+
+# named sources (substring of the source name, first match wins) -> colour
+_NAMED = (
+    ("shot noise", FLOOR_COLOUR),
+    ("external port vacuum", "#1f5fa8"),      # blue
+    ("internal loss bath", "#c0392b"),        # red
+    ("detection loss vacuum", "#7f8c8d"),     # grey-green
+    ("added noise", "#8c564b"),               # brown
+    ("electronics", "#34495e"),               # slate
+    ("intensity noise", "#d4a017"),           # gold
+    ("relaxation-oscillation", "#ff7f0e"),    # orange
+    ("phase-noise", "#e377c2"),               # pink
+    ("frequency noise", "#ad1457"),           # raspberry
+    ("calibration tone", "#bcbd22"),          # olive
+)
+# thermal baths of mechanical modes 0, 1, 2 ... (then repeating)
+_THERMAL = ("#2ca02c", "#9467bd", "#17becf", "#006d5b", "#6b4c9a")
+# sources nobody named yet
+_RESERVE = ("#8e6c8a", "#5b7e96", "#a0522d", "#4f7942", "#b8860b", "#6a7b8c")
+
+THERMAL_SUFFIX = " thermal bath"
+_TERM_STYLES = (("imprecision × back-action", "--"), ("imprecision", ":"),
+                ("motion", "-"), ("correlation", "-."))
+
+
+def source_colour(source, mode_names=()):
+    """Colour of noise source ``source`` (see the module notes)."""
+    if source.endswith(THERMAL_SUFFIX):
+        name = source[: -len(THERMAL_SUFFIX)]
+        if name in mode_names:
+            return _THERMAL[list(mode_names).index(name) % len(_THERMAL)]
+        return _THERMAL[zlib.crc32(name.encode()) % len(_THERMAL)]
+    for key, colour in _NAMED:
+        if key in source:
+            return colour
+    return _RESERVE[zlib.crc32(source.encode()) % len(_RESERVE)]
+
+
+def split_term(name):
+    """(source, term) of a budget term "source: term"; a correlation keeps its first source."""
+    if ": " in name:
+        source, term = name.split(": ", 1)
+        return source, term
+    if name.endswith(" correlation") and " × " in name:
+        return name.split(" × ", 1)[0], "correlation"
+    return name, ""
+
+
+def term_style(name, mode_names=None, names=()):
+    """Matplotlib ``color`` and ``ls`` of budget term ``name``.
+
+    ``mode_names`` orders the thermal baths; by default the order in which
+    their terms appear in ``names`` (a budget lists modes in scenario order).
+    """
+    if mode_names is None:
+        mode_names = mode_order(names)
+    source, term = split_term(name)
+    style = next((ls for key, ls in _TERM_STYLES if key in term), "-")
+    return {"color": source_colour(source, mode_names), "ls": style}
+
+
+def mode_order(names):
+    """Mode names of the thermal-bath terms among budget ``names``, in order of appearance."""
+    modes = []
+    for name in names:
+        source = split_term(name)[0]
+        if source.endswith(THERMAL_SUFFIX) and source[: -len(THERMAL_SUFFIX)] not in modes:
+            modes.append(source[: -len(THERMAL_SUFFIX)])
+    return tuple(modes)

@@ -1,0 +1,163 @@
+"""Sections for several cavity modes and drive tones: ``[[cavity_modes]]``, ``[[tones]]``,
+``[[couplings]]``.
+
+A scenario always has one drive (``[drive]``) on one cavity mode (``[cavity]``);
+that pair keeps its meaning. These optional sections add further cavity modes
+(each with its own linewidths and bath), further coherent tones (each on a
+named cavity mode, with its own detuning and power) and the single-photon
+couplings of the added cavity modes to the mechanical modes. The ``[cavity]``
+mode is named :data:`PRIMARY_CAVITY` and the ``[drive]`` tone :data:`PRIMARY_TONE`;
+those names are reserved.
+
+How the model treats several tones (one fluctuation field per tone, each in
+its own rotating frame) and when that holds is in docs/physics.md, "Several
+tones and cavity modes".
+"""
+
+import dataclasses
+
+from simulator.scenario.schema import param, section
+from simulator.scenario.sections import (
+    MAX_AUXILIARY_HZ,
+    MIN_DRIVE_POWER_W,
+    IntensityNoise,
+    PhaseNoise,
+)
+
+_frozen = dataclasses.dataclass(frozen=True, kw_only=True)
+
+PRIMARY_CAVITY = "cavity"  # name of the [cavity] mode, for tones and couplings
+PRIMARY_TONE = "drive"  # name of the [drive] tone
+
+
+@_frozen
+class CavityMode:
+    """``[[cavity_modes]]``: a further optical or microwave mode of the device."""
+
+    name: str = param(f"name of the mode, unique; \"{PRIMARY_CAVITY}\" is the [cavity] "
+                      "mode", check="label")
+    frequency_hz: float = param(
+        "bare resonance frequency of the mode (sets the photon energy of its tones)",
+        unit="Hz", check="positive", low=3e7, high=3e15,
+        why="radio waves to ultraviolet, the span of drive.frequency_hz")
+    linewidth_hz: float = param("total energy decay rate κ/2π (FWHM)", unit="Hz",
+                                check="positive", low=1e-3, high=1e14)
+    external_linewidth_hz: float = param(
+        "decay rate κ_ex/2π into the port its tones drive", unit="Hz", check="positive",
+        low=1e-3, high=1e14)
+    bath_occupation: float = param(
+        "thermal photon occupation of the internal-loss bath (microwave cavities)",
+        check="nonnegative", default=0.0, high=1e8)
+
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if self.external_linewidth_hz > self.linewidth_hz:
+            yield ("external_linewidth_hz",
+                   f"{self.external_linewidth_hz!r} is larger than linewidth_hz = "
+                   f"{self.linewidth_hz!r}; expected external_linewidth_hz ≤ linewidth_hz "
+                   "(the external port is part of the total loss)")
+
+
+@_frozen
+class Tone:
+    """``[[tones]]``: a further coherent drive tone on one cavity mode."""
+
+    name: str = param(f"name of the tone, unique; \"{PRIMARY_TONE}\" is the [drive] tone",
+                      check="label")
+    cavity_mode: str = param(
+        f"name of the cavity mode the tone drives: \"{PRIMARY_CAVITY}\" (the [cavity] "
+        "mode) or the name of a [[cavity_modes]] table", check="label",
+        default=PRIMARY_CAVITY)
+    power_w: float = param(f"tone power arriving at the mode's external port; 0 or at "
+                           f"least {MIN_DRIVE_POWER_W:g} W", unit="W", check="nonnegative",
+                           high=1e3, why="1 kW, above any continuous drive a device survives")
+    detuning_hz: float = param(
+        "tone minus cavity-mode frequency, red negative, measured like drive.detuning_hz "
+        "(from the bare or effective resonance, as drive.detuning_reference says)",
+        unit="Hz", check="real")
+    noise_source: str = param(
+        "classical noise of the tone: \"own\", the phase_noise and intensity_noise "
+        "tables below (none when left out); \"drive\", the same laser as [drive], "
+        "sharing its noise", choices=("own", "drive"), default="own")
+    phase_noise: PhaseNoise = section(
+        PhaseNoise, "own classical phase noise of the tone; left out: none")
+    intensity_noise: IntensityNoise = section(
+        IntensityNoise, "own classical intensity noise of the tone; left out: none")
+
+    def problems(self):
+        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if 0 < self.power_w < MIN_DRIVE_POWER_W:
+            yield ("power_w", f"{self.power_w!r} W is a rounding error, not a drive; "
+                   f"expected 0 or at least {MIN_DRIVE_POWER_W:g} W")
+        if not abs(self.detuning_hz) < MAX_AUXILIARY_HZ:
+            yield ("detuning_hz", f"{self.detuning_hz!r} Hz is out of range; expected "
+                   f"|detuning_hz| below {MAX_AUXILIARY_HZ:g} Hz")
+        own = (self.phase_noise, self.intensity_noise)
+        if self.noise_source == "drive" and any(x != type(x)() for x in own):
+            yield ("noise_source", '"drive" with own phase_noise or intensity_noise '
+                   "tables; expected either the drive's noise or the tone's own, not both")
+
+    @property
+    def quiet(self):
+        """True when the tone carries no classical noise of its own."""
+        return self.noise_source == "own" and all(
+            x == type(x)() for x in (self.phase_noise, self.intensity_noise))
+
+
+@_frozen
+class Coupling:
+    """``[[couplings]]``: single-photon coupling of a further cavity mode to a mechanical mode."""
+
+    cavity_mode: str = param("name of a [[cavity_modes]] table (the coupling to the "
+                             "[cavity] mode is mechanics.coupling_hz)", check="label")
+    mechanics: str = param("name of a [[mechanics]] table", check="label")
+    coupling_hz: float = param("single-photon coupling rate g0/2π of the pair; pairs "
+                               "left out are uncoupled", unit="Hz", check="nonnegative",
+                               high=1e9)
+
+
+def tone_problems(scenario):
+    """Cross-section checks of cavity modes, tones and couplings: yields ``(key, message)``."""
+    modes = [PRIMARY_CAVITY]
+    for i, mode in enumerate(scenario.cavity_modes):
+        if mode.name in modes:
+            yield (f"cavity_modes[{i}].name", f"{mode.name!r} is already used "
+                   f"(\"{PRIMARY_CAVITY}\" names the [cavity] mode); expected unique names")
+        modes.append(mode.name)
+        if mode.linewidth_hz > mode.frequency_hz:
+            yield (f"cavity_modes[{i}].linewidth_hz", f"{mode.linewidth_hz!r} Hz is wider "
+                   f"than the mode's frequency {mode.frequency_hz!r} Hz; expected a "
+                   "resonance (linewidth below its frequency)")
+    drive = scenario.drive
+    frequency = {PRIMARY_CAVITY: drive.carrier_frequency_hz - drive.detuning_hz}
+    frequency.update({m.name: m.frequency_hz for m in scenario.cavity_modes})
+    tones = [PRIMARY_TONE]
+    for i, tone in enumerate(scenario.tones):
+        if tone.name in tones:
+            yield (f"tones[{i}].name", f"{tone.name!r} is already used (\"{PRIMARY_TONE}\" "
+                   "names the [drive] tone); expected unique names")
+        tones.append(tone.name)
+        if tone.cavity_mode not in modes:
+            yield (f"tones[{i}].cavity_mode", f"{tone.cavity_mode!r} names no cavity mode; "
+                   f"expected one of {', '.join(map(repr, modes))}")
+        elif not abs(tone.detuning_hz) < frequency[tone.cavity_mode]:
+            yield (f"tones[{i}].detuning_hz", f"{tone.detuning_hz!r} Hz puts the tone at "
+                   f"{frequency[tone.cavity_mode] + tone.detuning_hz:.6g} Hz for a mode at "
+                   f"{frequency[tone.cavity_mode]:.6g} Hz; expected |detuning_hz| below the "
+                   "mode's frequency (the rotating-frame model assumes |Δ| ≪ its frequency)")
+    mechanics, seen = [m.name for m in scenario.mechanics], set()
+    for i, pair in enumerate(scenario.couplings):
+        key = f"couplings[{i}]"
+        if pair.cavity_mode == PRIMARY_CAVITY:
+            yield (f"{key}.cavity_mode", f"\"{PRIMARY_CAVITY}\": the coupling to the [cavity] "
+                   "mode is given by mechanics.coupling_hz; expected a [[cavity_modes]] name")
+        elif pair.cavity_mode not in modes:
+            yield (f"{key}.cavity_mode", f"{pair.cavity_mode!r} names no [[cavity_modes]] "
+                   f"table; expected one of {', '.join(map(repr, modes[1:])) or '(none given)'}")
+        if pair.mechanics not in mechanics:
+            yield (f"{key}.mechanics", f"{pair.mechanics!r} names no [[mechanics]] table; "
+                   f"expected one of {', '.join(map(repr, mechanics))}")
+        if (pair.cavity_mode, pair.mechanics) in seen:
+            yield (key, f"the pair ({pair.cavity_mode!r}, {pair.mechanics!r}) is given twice; "
+                   "expected one coupling per pair")
+        seen.add((pair.cavity_mode, pair.mechanics))
