@@ -55,3 +55,10 @@ def returns_nan_for_one(record):
     """One quantity is NaN, the other is fine."""
     level = float(np.mean(np.abs(record.samples) ** 2))
     return {"broken": (float("nan"), 1.0), "level": (level, 0.1)}
+
+
+def spectrum_floor(view):
+    """The median of an averaged spectrum's bins (input: a PublicSpectrum, not a record)."""
+    estimate = view.estimate
+    level = float(np.median(estimate.density))
+    return {"floor_density": (level, level / np.sqrt(estimate.averages * estimate.density.size))}

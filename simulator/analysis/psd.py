@@ -170,12 +170,23 @@ class WindowedExpectation:
         # R(m) = ∫ S(f) e^{2πifm/fs} df ≈ (fs/M) Σ_j S(f_j) e^{2πijm/M} = fs · ifft(S)
         r = self.fs * np.fft.ifft(density(self.fine_hz))  # R(m), m mod M
         m = np.arange(1, self.n)
+        return self.of_autocovariance(r[:self.n], r[self.m - m]).real
+
+    def of_autocovariance(self, positive, negative):
+        """(1/(fs N)) Σ_{|m|<N} c(m) R(m) e^{−2πikm/N} on :attr:`frequency_hz`, from R itself.
+
+        ``positive`` holds R(0) … R(N − 1), ``negative`` R(−1) … R(−(N − 1)):
+        exact for any line width (no grid). With R(m) = E[x_{n+m} x_n*] this
+        is E[P_k]; with the pseudo-autocovariance E[x_{n+m} x_n] of a complex
+        record it is E[X_k X_{−k}]/(fs N), the ±f correlation of the windowed
+        transforms. Complex; take the real part of an expected periodogram.
+        """
+        m = np.arange(1, self.n)
         folded = np.zeros(self.n, dtype=complex)
-        folded[0] = self.c[0] * r[0]
-        folded[m] += self.c[m] * r[m]  # positive lags
-        folded[self.n - m] += self.c[m] * r[self.m - m]  # negative lags, at −m mod N
-        expected = np.fft.fft(folded).real / (self.fs * self.n)
-        return expected[self.order]
+        folded[0] = self.c[0] * positive[0]
+        folded[m] += self.c[m] * positive[m]  # positive lags
+        folded[self.n - m] += self.c[m] * negative[m - 1]  # negative lags, at −m mod N
+        return (np.fft.fft(folded) / (self.fs * self.n))[self.order]
 
     def at(self, density, frequency_hz, margin_bins=64):
         """E[P] at the bins ``frequency_hz`` (a subset of :attr:`frequency_hz`).

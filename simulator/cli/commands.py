@@ -217,6 +217,8 @@ def cmd_record(args):
 
     _require_output_file(args.out, (".h5", ".hdf5"), "--out", args.force)
     scenario = load_scenario(args.scenario)
+    if args.averaged is not None:
+        return _averaged_spectrum(args, scenario)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         if args.engine == "master":
@@ -227,7 +229,8 @@ def cmd_record(args):
         else:
             record = simulate_record(scenario, seed=args.seed, duration_s=args.duration,
                                      out=args.out, form=args.form, progress=not args.quiet,
-                                     overwrite=args.force)
+                                     overwrite=args.force, workers=args.threads,
+                                     compression="deflate" if args.compress else "none")
     _print_warnings(args, [w.message for w in caught])
     truth = record.truth
     summary = {"out": str(Path(args.out).resolve()), "samples": record.n_samples,
@@ -257,6 +260,35 @@ def cmd_record(args):
     return EXIT_OK
 
 
+def _averaged_spectrum(args, scenario):
+    """``noisechain record --averaged N``: the averaged periodogram drawn from its law."""
+    from simulator.workflows.record import simulate_averaged_spectrum
+
+    if args.engine != "linear":
+        raise InputError(f"--averaged with --engine {args.engine}: expected the linear "
+                         "engine (the law is that of a stationary Gaussian record)")
+    spectrum = simulate_averaged_spectrum(scenario, segment_samples=args.averaged,
+                                          window=args.window, seed=args.seed,
+                                          duration_s=args.duration, out=args.out,
+                                          overwrite=args.force)
+    summary = {"out": str(Path(args.out).resolve()), "kind": spectrum.kind,
+               "samples": spectrum.n_samples, "segment_samples": spectrum.segment_samples,
+               "averages": spectrum.averages, "window": spectrum.window,
+               "resolution_hz": spectrum.resolution_hz, "seed": spectrum.seed,
+               "occupation": dict(zip(spectrum.truth.mode_names, spectrum.truth.occupation,
+                                      strict=True))}
+    if args.json:
+        print_json(summary)
+        return EXIT_OK
+    print(f"averaged spectrum of {spectrum.n_samples} samples ({spectrum.kind}, "
+          f"{spectrum.averages} segments of {spectrum.segment_samples}, {spectrum.window} "
+          f"window, {spectrum.resolution_hz:.6g} Hz bins, seed {spectrum.seed}) written to "
+          f"{summary['out']}")
+    for name, n in summary["occupation"].items():
+        print(f"  true occupation of {name}: {n:.6g}")
+    return EXIT_OK
+
+
 def cmd_trial(args):
     """``noisechain trial``: an estimator on many records, against the truth."""
     _require_output_folder(args.out)
@@ -266,7 +298,9 @@ def cmd_trial(args):
 
     result = run_trials(load_scenario(args.scenario), args.estimator, args.trials, args.out,
                         duration_s=args.duration, workers=args.workers, dask=args.dask,
-                        progress=not args.quiet, timeout_s=args.timeout_s)
+                        progress=not args.quiet, timeout_s=args.timeout_s,
+                        averaged=None if args.averaged is None else (args.averaged,
+                                                                     args.window))
     if args.json:
         print_json(result.to_dict())
         return EXIT_OK

@@ -7,11 +7,18 @@ Layout (docs/records.md, "The file"; a reader needs h5py alone):
   ``kind`` (``"iq"`` or ``"if"``), ``created_utc``, and the detection
   settings that place the record on the optical axis;
 - dataset ``samples``: integer ADC counts, (N, 2) for I, Q or (N,) for if,
-  chunked and gzip-compressed, with attributes ``volts_per_count`` and
-  ``shot_noise_per_count``;
+  chunked, byte-shuffled and deflate-compressed (HDF5's built-in shuffle and
+  gzip filters, so any HDF5 reader decodes it), with attributes
+  ``volts_per_count`` and ``shot_noise_per_count``;
 - group ``truth``: per-mode attribute arrays and the cavity occupation,
   subgroup ``truth/calibration`` with the conversion factors, optional
   dataset ``truth/mechanical_quadratures`` (N, 2 × modes).
+
+The chunks of ``samples`` are shuffled and compressed here (:func:`encode_chunk`,
+exactly what HDF5's filters would store) rather than by the HDF5 library, so
+that the generator's worker threads compress them in parallel (zlib releases
+the GIL); the main thread writes the finished bytes with HDF5's direct chunk
+write.
 
 The file is written under a temporary name in the target folder and renamed
 when complete; the ``format`` attribute is written last, so a file that a
@@ -20,6 +27,7 @@ killed run leaves behind is neither at the target path nor loadable.
 
 import datetime
 import functools
+import zlib
 from pathlib import Path
 
 import numpy as np
@@ -34,6 +42,8 @@ HDF5_CHUNK_ROWS = 1 << 18  # 1 MB chunks of int16 pairs: few chunks even for 10�
 FREQUENCY_CONVENTION = ("I + iQ: anti-Stokes sideband (light above the drive) at positive "
                         "frequency of numpy.fft / scipy.signal.welch; if records: local "
                         "oscillator below the drive puts it above the intermediate frequency")
+DEFLATE_LEVEL = 1  # zlib level of the samples: fastest; higher levels gain < 1 % (docs/records.md)
+COMPRESSIONS = ("none", "deflate")  # of the samples; docs/records.md weighs size against speed
 _TRUTH_ARRAYS = ("occupation", "effective_frequency_hz", "effective_linewidth_hz",
                  "coupling_rate_hz", "zero_point_amplitude_m")
 
@@ -45,8 +55,14 @@ class RecordFileWriter:
     deletes the temporary file.
     """
 
-    def __init__(self, path, plan, chunk_rows=HDF5_CHUNK_ROWS, *, overwrite=False):
+    def __init__(self, path, plan, chunk_rows=HDF5_CHUNK_ROWS, *, overwrite=False,
+                 compression="none"):
         import h5py
+
+        if compression not in COMPRESSIONS:
+            raise InputError(f"compression = {compression!r}; expected one of "
+                             f"{', '.join(map(repr, COMPRESSIONS))}")
+        self.deflate = compression == "deflate"
 
         self.path, self.plan = Path(path), plan
         if self.path.is_dir():
@@ -70,8 +86,10 @@ class RecordFileWriter:
             shape = (n, 2) if plan.chain.record_kind == "iq" else (n,)
             self.samples = self.file.create_dataset(
                 "samples", shape=shape, dtype=np.int16 if plan.bits <= 16 else np.int32,
-                chunks=(rows,) + shape[1:], compression="gzip", compression_opts=1,
-                shuffle=True)
+                chunks=(rows,) + shape[1:],
+                **(dict(compression="gzip", compression_opts=DEFLATE_LEVEL, shuffle=True)
+                   if self.deflate else {}))
+            self.rows, self.partial = rows, {}
             self.truth = self.file.create_group("truth")
             if plan.watched.size:
                 self.mech = self.truth.create_dataset(
@@ -110,9 +128,55 @@ class RecordFileWriter:
 
     def write(self, first, counts, mech):
         """Write a chunk of counts (and mechanical quadratures) from sample ``first``."""
-        self.samples[first:first + len(counts)] = counts
+        self.write_encoded(first, counts, mech, self.encode(first, counts))
+
+    def encode(self, first, counts):
+        """The compressed HDF5 chunks lying wholly in samples [first, first + len(counts)).
+
+        Safe on any thread (it reads only its arguments); returns a list of
+        (chunk index, bytes). A chunk that ends the record counts as whole.
+        """
+        rows, n = self.rows, self.plan.n_samples
+        end = first + len(counts)
+        out = []
+        for k in range(-(-first // rows), (end - 1) // rows + 1):
+            lo, hi = k * rows, min((k + 1) * rows, n)
+            if hi <= end:
+                out.append((k, encode_chunk(counts[lo - first:hi - first], rows, self.deflate)))
+        return out
+
+    def write_encoded(self, first, counts, mech, encoded):
+        """Write the chunks :meth:`encode` made, and gather the rows of the chunks cut short.
+
+        Rows of a chunk that straddles two calls are kept until the chunk is
+        complete, then compressed and written here.
+        """
+        rows, n = self.rows, self.plan.n_samples
+        whole = set()
+        for k, data in encoded:
+            self._put(k, data)
+            whole.add(k)
+        end = first + len(counts)
+        for k in range(first // rows, (end - 1) // rows + 1):
+            if k in whole:
+                continue
+            lo, hi = max(k * rows, first), min((k + 1) * rows, end)
+            size = min((k + 1) * rows, n) - k * rows
+            buffer, filled = self.partial.get(k, (np.empty((size,) + counts.shape[1:],
+                                                           dtype=counts.dtype), 0))
+            buffer[lo - k * rows:hi - k * rows] = counts[lo - first:hi - first]
+            filled += hi - lo
+            if filled == size:
+                self.partial.pop(k, None)
+                self._put(k, encode_chunk(buffer, rows, self.deflate))
+            else:
+                self.partial[k] = (buffer, filled)
         if mech is not None:
             self.mech[first:first + len(mech)] = mech
+
+    def _put(self, k, data):
+        offset = (k * self.rows,) + (0,) * (self.samples.ndim - 1)
+        self.samples.id.write_direct_chunk(offset, data)
 
     def finish(self, clipped):
         """Write the attributes, close, and rename into place; return the Record."""
@@ -129,14 +193,7 @@ class RecordFileWriter:
         s["columns"] = np.array(["I", "Q"] if header["kind"] == "iq" else ["r"],
                                 dtype=h5py.string_dtype())
         truth = plan.truth
-        t = self.truth.attrs
-        t["mode_names"] = np.array(truth.mode_names, dtype=h5py.string_dtype())
-        for name in _TRUTH_ARRAYS:
-            t[name] = np.asarray(getattr(truth, name), dtype=float)
-        t["cavity_occupation"] = truth.cavity_occupation
-        cal = self.truth.create_group("calibration").attrs
-        for key, value in truth.calibration.items():
-            cal[key] = value
+        write_truth(self.truth, truth)
         if self.mech is not None:
             self.mech.attrs["columns"] = np.array(
                 [f"{m}.{q}" for m in truth.mode_names for q in "qp"], dtype=h5py.string_dtype())
@@ -160,6 +217,47 @@ class RecordFileWriter:
                       scenario=plan.scenario, truth=truth, created_utc=created,
                       mechanical_quadratures=None,
                       reader=functools.partial(_counts_of, self.path), **header)
+
+
+def write_truth(group, truth):
+    """The ground truth as attributes of ``group`` and its subgroup ``calibration``."""
+    import h5py
+
+    t = group.attrs
+    t["mode_names"] = np.array(truth.mode_names, dtype=h5py.string_dtype())
+    for name in _TRUTH_ARRAYS:
+        t[name] = np.asarray(getattr(truth, name), dtype=float)
+    t["cavity_occupation"] = truth.cavity_occupation
+    cal = group.create_group("calibration").attrs
+    for key, value in truth.calibration.items():
+        cal[key] = value
+
+
+def read_truth(group):
+    """The :class:`simulator.records.generate.Truth` that :func:`write_truth` stored."""
+    return Truth(mode_names=tuple(_text(x) for x in group.attrs["mode_names"]),
+                 **{k: tuple(float(x) for x in group.attrs[k]) for k in _TRUTH_ARRAYS},
+                 cavity_occupation=float(group.attrs["cavity_occupation"]),
+                 calibration={k: _plain(v) for k, v in group["calibration"].attrs.items()})
+
+
+def encode_chunk(counts, rows, deflate=True):
+    """One chunk of counts as HDF5 stores it: raw, or through its shuffle and deflate filters.
+
+    The chunk is padded with zeros to ``rows`` rows (HDF5 stores edge chunks
+    whole), its elements' bytes are regrouped by significance (the shuffle
+    filter: all first bytes, then all second bytes, …) and the result is
+    deflated with a zlib header, which is the HDF5 gzip filter's format
+    (The HDF Group, HDF5 User's Guide, "Filters"; common practice of writers
+    that compress chunks themselves). zlib releases the GIL while it works.
+    """
+    block = np.zeros((rows,) + counts.shape[1:], dtype=counts.dtype)
+    block[:len(counts)] = counts
+    if not deflate:
+        return block.tobytes()
+    width = block.dtype.itemsize
+    shuffled = np.ascontiguousarray(block.reshape(-1).view(np.uint8).reshape(-1, width).T)
+    return zlib.compress(shuffled.data, DEFLATE_LEVEL)
 
 
 def _counts_of(path):
@@ -217,10 +315,7 @@ def load_record(path, *, start=0, stop=None, samples_only=False):
             raise InputError(f"record file {str(path)!r}: truth/mechanical_quadratures holds "
                              f"{int(np.size(mech) - np.isfinite(mech).sum())} non-finite "
                              "values (NaN or infinity); expected finite numbers")
-        truth = Truth(mode_names=tuple(_text(x) for x in t.attrs["mode_names"]),
-                      **{k: tuple(float(x) for x in t.attrs[k]) for k in _TRUTH_ARRAYS},
-                      cavity_occupation=float(t.attrs["cavity_occupation"]),
-                      calibration={k: _plain(v) for k, v in t["calibration"].attrs.items()})
+        truth = read_truth(t)
         scenario = parse_scenario(_text(a["scenario_toml"]), source=f"{path}:scenario_toml")
         return Record(
             counts=counts, path=path, kind=_text(a["kind"]), scheme=_text(a["scheme"]),

@@ -218,7 +218,8 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
 
 
 def generate_record(system, *, seed=None, duration_s=None, form="auto",
-                    store_mechanics=None, chunk_samples=None, sink=None, progress=None):
+                    store_mechanics=None, chunk_samples=None, sink=None, progress=None,
+                    workers=None):
     """Generate a digitised record of ``system`` into a sink; return the Record.
 
     The engine behind :func:`simulator.workflows.record.simulate_record`,
@@ -237,6 +238,10 @@ def generate_record(system, *, seed=None, duration_s=None, form="auto",
     progress : callable, optional
         Called with the number of samples of each chunk and the total, after
         each chunk.
+    workers : int, optional
+        Threads that draw normals, digitise and compress beside the
+        recursion (default: every core this process may use); the record is
+        the same bits for any number.
 
     Warns
     -----
@@ -249,9 +254,12 @@ def generate_record(system, *, seed=None, duration_s=None, form="auto",
     chunk = plan.scenario.record.chunk_samples if chunk_samples is None else chunk_samples
     if isinstance(chunk, bool) or not isinstance(chunk, (int, np.integer)) or chunk < 1:
         raise InputError(f"chunk_samples = {chunk!r}; expected a positive integer")
+    from simulator.records.pipeline import checked_workers
+
+    workers = checked_workers(workers)
     target = MemorySink(plan) if sink is None else sink(plan, int(min(chunk, plan.n_samples)))
     with target:
-        clipped = generate(plan, target, chunk=int(chunk), progress=progress)
+        clipped = generate(plan, target, chunk=int(chunk), progress=progress, workers=workers)
         record = target.finish(clipped)
     coarse = quantisation_share(plan)
     if coarse > QUANTISATION_WARNING:
@@ -287,42 +295,70 @@ def quantisation_share(plan):
     return plan.volts_per_count**2 / 12.0 / (variance * plan.chain.volts_per_unit**2)
 
 
-def generate(plan, sink, *, chunk, progress=None):
+def generate(plan, sink, *, chunk, progress=None, workers=1):
     """Run the recursion of ``plan`` chunk by chunk into ``sink``; return the clipped count.
 
     ``progress``, when given, is called with the number of samples of each
     chunk once it is written and the record's total (a progress bar; a check
-    for Ctrl-C).
+    for Ctrl-C). With ``workers`` > 1 the normals are drawn ahead and each
+    chunk is finished (carrier, tone, digitiser, and the sink's ``encode``
+    when it has one: compression) on a pool of threads while the recursion
+    runs on this one (:mod:`simulator.records.pipeline`); the counts are the
+    same bits for any number of workers.
     """
     from simulator.model.tone import tone_signal
-    from simulator.records import kernels
+    from simulator.records import kernels, pipeline
 
     chain, n_total = plan.chain, plan.n_samples
     step = kernels.stepper(plan)
-    normals = kernels.NormalBlocks(plan.seed, kernels.SAMPLE_STREAM, step.width,
-                                   kernels.BLOCK_SAMPLES)
     p = len(chain.model.outputs)
     digitiser = kernels.Digitiser(plan)
     tone = tone_signal(plan.chain, plan.scenario, plan.sample_rate_hz)
-    clipped = 0
-    for first in range(0, n_total, chunk):
-        count = min(chunk, n_total - first)
-        y = np.empty((count, p))
-        mech = np.empty((count, plan.watched.size))
-        for pos, xi in normals.pieces(first, count):
-            step(xi, y[pos:pos + len(xi)], mech[pos:pos + len(xi)])
+    cycles = chain.carrier_rad_s / (2 * np.pi * plan.sample_rate_hz)
+    encode = getattr(sink, "encode", None)
+
+    def finish(first, y, mech):  # a pure function of the chunk: any thread, same bits
         if chain.receiver == "homodyne":
             y = y[:, 0]
         elif chain.receiver == "if":
-            y = kernels.rotate_to_carrier(
-                y, first, chain.carrier_rad_s / (2 * np.pi * plan.sample_rate_hz))
+            y = kernels.rotate_to_carrier(y, first, cycles)
         if tone is not None:  # the calibration tone's exact response, by linearity
-            y = y + tone(first, count)
+            y = y + tone(first, len(y))
         counts, n_clip = digitiser(y)
+        return first, counts, mech, n_clip, (None if encode is None else encode(first, counts))
+
+    clipped = 0
+
+    def deliver(done):
+        nonlocal clipped
+        first, counts, mech, n_clip, encoded = done
         clipped += n_clip
-        sink.write(first, counts, mech if plan.watched.size else None)
+        if encoded is None:
+            sink.write(first, counts, mech)
+        else:
+            sink.write_encoded(first, counts, mech, encoded)
         if progress is not None:
-            progress(count, n_total)
+            progress(len(counts), n_total)
+
+    workers = int(workers)
+    with pipeline.executor(workers) as pool:
+        normals = kernels.NormalBlocks(
+            plan.seed, kernels.SAMPLE_STREAM, step.width, kernels.BLOCK_SAMPLES,
+            executor=pool if workers > 1 else None, total=n_total,
+            ahead=2 * workers + 2)  # enough to keep every thread drawing, memory bounded
+        stage = pipeline.OrderedStage(pool, finish, deliver, depth=2 * workers)
+        try:
+            for first in range(0, n_total, chunk):
+                count = min(chunk, n_total - first)
+                y = np.empty((count, p))
+                mech = np.empty((count, plan.watched.size))
+                for pos, xi in normals.pieces(first, count):
+                    step(xi, y[pos:pos + len(xi)], mech[pos:pos + len(xi)])
+                stage.put(first, y, mech if plan.watched.size else None)
+            stage.drain()
+        except BaseException:
+            stage.cancel()
+            raise
     return clipped
 
 

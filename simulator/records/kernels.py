@@ -18,6 +18,8 @@ import dataclasses
 import numba
 import numpy as np
 
+from simulator.records.pipeline import NormalBlocks, draw_block  # noqa: F401 (the streams)
+
 BLOCK_SAMPLES = 1 << 16  # samples per block of random normals, each block seeded alone
 START_STREAM, SAMPLE_STREAM = 0, 1  # spawn keys: the stationary start, the samples
 
@@ -221,45 +223,6 @@ class Digitiser:
         n_clip = digitise(np.ascontiguousarray(values), self.scale, float(self.low),
                           float(self.high), counts)
         return (counts if y.ndim == 2 else counts[:, 0]), int(n_clip)
-
-
-class NormalBlocks:
-    """Standard normals for samples [start, start + count), drawn by fixed-size block.
-
-    Block k (samples k·size … (k+1)·size − 1) is drawn by its own generator
-    seeded with SeedSequence(seed, spawn_key=(stream, k)), so the numbers of
-    any sample depend only on (seed, stream, its index), not on how the
-    samples are grouped into chunks. numpy's Generator is used rather than
-    numba's (faster, and reproducible by block).
-    """
-
-    def __init__(self, seed, stream, width, size):
-        self.seed, self.stream, self.width, self.size = seed, stream, width, size
-        self.index, self.block = None, None
-
-    def _block(self, k):
-        if k != self.index:
-            seq = np.random.SeedSequence(self.seed, spawn_key=(self.stream, k))
-            rng = np.random.Generator(np.random.PCG64(seq))
-            self.block = rng.standard_normal((self.size, self.width))
-            self.index = k
-        return self.block
-
-    def pieces(self, start, count):
-        """Yield (position from ``start``, view of the normals) covering the range."""
-        pos, end = start, start + count
-        while pos < end:
-            k, offset = divmod(pos, self.size)
-            n = min(self.size - offset, end - pos)
-            yield pos - start, self._block(k)[offset:offset + n]
-            pos += n
-
-    def take(self, start, count):
-        """The normals of samples [start, start + count) as one (count, width) array."""
-        out = np.empty((count, self.width))
-        for pos, piece in self.pieces(start, count):
-            out[pos:pos + len(piece)] = piece
-        return out
 
 
 def rotate_to_carrier(y, first, cycles_per_sample):

@@ -50,8 +50,37 @@ class PublicRecord:
     scenario: object
 
 
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class PublicSpectrum:
+    """What an estimator of averaged spectra may see: the estimate, no truth.
+
+    ``estimate`` is a :class:`simulator.analysis.psd.PSDEstimate` in
+    shot-noise units (two-sided for iq, one-sided for real records), as
+    :func:`simulator.analysis.psd.averaged_periodogram` would return for the
+    record; ``cross`` (iq) the averaged Z_f Z_{−f}/(fs N) on the same axis.
+    An estimator tells the two inputs apart by type (or ``hasattr(x, "estimate")``).
+    """
+
+    estimate: object
+    cross: np.ndarray | None
+    segment_samples: int
+    kind: str
+    scheme: str
+    sample_rate_hz: float
+    intermediate_frequency_hz: float
+    local_oscillator_side: str
+    scenario: object
+
+
 def public_view(record):
-    """The :class:`PublicRecord` of a :class:`simulator.records.generate.Record`."""
+    """The :class:`PublicRecord` of a Record, or :class:`PublicSpectrum` of an averaged spectrum."""
+    if hasattr(record, "segment_samples"):
+        return PublicSpectrum(estimate=record.estimate(), cross=record.cross,
+                              segment_samples=record.segment_samples, kind=record.kind,
+                              scheme=record.scheme, sample_rate_hz=record.sample_rate_hz,
+                              intermediate_frequency_hz=record.intermediate_frequency_hz,
+                              local_oscillator_side=record.local_oscillator_side,
+                              scenario=record.scenario)
     return PublicRecord(samples=record.shot_noise_units(), kind=record.kind,
                         scheme=record.scheme, sample_rate_hz=record.sample_rate_hz,
                         intermediate_frequency_hz=record.intermediate_frequency_hz,

@@ -38,6 +38,21 @@ def end_with_parent(parent_pid):
         os._exit(1)
 
 
+def worker_start(parent_pid):
+    """Start a pool worker: end with the parent, and run BLAS on one thread.
+
+    N workers on N cores each with N BLAS threads oversubscribe the machine;
+    OpenBLAS threads then spin waiting for cores (a fit in a trial ran 10 to
+    20 times slower on a busy 2-core machine, tests/benchmarks/bench_scaling.py).
+    One thread per worker is what Dask's workers use too (its nanny sets
+    OMP_NUM_THREADS and friends to 1).
+    """
+    from threadpoolctl import threadpool_limits
+
+    end_with_parent(parent_pid)
+    threadpool_limits(limits=1)
+
+
 def _watch_parent(parent_pid):
     while os.getppid() == parent_pid:
         time.sleep(1.0)

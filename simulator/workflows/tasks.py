@@ -173,12 +173,12 @@ def _execute(func, common, todo, workers, dask):
     import concurrent.futures as cf
     import multiprocessing
 
-    from simulator.workflows.processes import end_with_parent
+    from simulator.workflows.processes import worker_start
 
-    # workers end with this process, however it ends (kill -9 included)
+    # workers end with this process, however it ends (kill -9 included); one BLAS thread each
     pool = cf.ProcessPoolExecutor(max_workers=workers,
                                   mp_context=multiprocessing.get_context("spawn"),
-                                  initializer=end_with_parent, initargs=(os.getpid(),))
+                                  initializer=worker_start, initargs=(os.getpid(),))
     try:
         futures = [pool.submit(run_batch, func, common, b) for b in _batches(todo, workers)]
         for future in cf.as_completed(futures):

@@ -50,14 +50,17 @@ def _trial_task(common, seed):
     import warnings
 
     from simulator.scenario.loader import parse_scenario
-    from simulator.workflows.record import simulate_record
+    from simulator.workflows.record import simulate_averaged_spectrum, simulate_record
 
-    text, spec, duration, timeout_s = common
+    text, spec, duration, timeout_s, averaged = common
     try:
         scenario = parse_scenario(text, source="<trial>")
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
-            record = simulate_record(scenario, seed=seed, duration_s=duration)
+            record = (simulate_record(scenario, seed=seed, duration_s=duration, workers=1)
+                      if averaged is None else simulate_averaged_spectrum(
+                          scenario, seed=seed, duration_s=duration,
+                          segment_samples=averaged[0], window=averaged[1]))
     except Exception as exc:  # noqa: BLE001 - one trial fails, not the run
         return {"estimates": {}, "error": f"{type(exc).__name__}: {exc}", "warnings": []}
     estimates, failure = estimate(spec, record, timeout_s)
@@ -176,7 +179,7 @@ class TrialResult:
 
 
 def run_trials(scenario, estimator, n_trials, out, *, duration_s=None, workers=None,
-               dask=None, progress=True, timeout_s=DEFAULT_TIMEOUT_S):
+               dask=None, progress=True, timeout_s=DEFAULT_TIMEOUT_S, averaged=None):
     """Run ``estimator`` on ``n_trials`` independent records of ``scenario``.
 
     Parameters
@@ -195,6 +198,11 @@ def run_trials(scenario, estimator, n_trials, out, *, duration_s=None, workers=N
     timeout_s : float
         Seconds the estimator may take on one record (and to import) before
         its process is stopped and the trial counts as failed.
+    averaged : (int, str), optional
+        (segment samples, window): give the estimator a synthetic averaged
+        periodogram of each record, drawn from its exact law
+        (:class:`simulator.workflows.estimator.PublicSpectrum`), instead of
+        the record itself.
 
     Returns
     -------
@@ -214,14 +222,17 @@ def run_trials(scenario, estimator, n_trials, out, *, duration_s=None, workers=N
     # fail fast with a clear message; the estimator's code is part of the identity, so
     # edited code never reuses old results
     source = check_estimator(estimator, timeout_s)
-    identity = f"{text}\n{estimator}\n{duration!r}\n{source}"
+    if averaged is not None:
+        averaged = (int(averaged[0]), str(averaged[1]))
+    identity = f"{text}\n{estimator}\n{duration!r}\n{source}" + (
+        "" if averaged is None else f"\naveraged {averaged!r}")
     with tasks.claim_folder(out, "trial.json", {
             "format": FORMAT, "format_version": FORMAT_VERSION,
             "sha256": tasks.digest(identity), "scenario_toml": text, "estimator": estimator,
-            "duration_s": duration}, "trial"):
+            "duration_s": duration, "averaged": averaged}, "trial"):
         seeds = trial_seeds(scenario, n_trials)
         results = tasks.run_tasks(out / "trials", _trial_task,
-                                  (text, estimator, duration, float(timeout_s)),
+                                  (text, estimator, duration, float(timeout_s), averaged),
                                   [(f"{i:06d}", s) for i, s in enumerate(seeds)],
                                   workers=workers, dask=dask, progress=progress,
                                   desc="trials", unit="trial", keep=succeeded)

@@ -23,9 +23,25 @@ Prints, measured side by side in one run:
    500 MB: pass ``--samples 1e9`` for it (an hour or so on one core); the
    default is shorter so the benchmark finishes in minutes. Memory must not
    depend on the length, which the printout of two lengths shows.
+5. A streamed record on every core. Side by side: the single-core bound
+   (the sample stream's normals drawn block after block on one thread), the
+   recursion alone (normals drawn beforehand), and whole records streamed to
+   HDF5 with 1 worker thread and with one per core, raw and deflated. Target:
+   the raw stream on all cores reaches 0.8 × (cores × single-core bound), or
+   the recursion's own rate where that is lower.
+6. Compression of the counts: size against write speed for HDF5's built-in
+   filters through h5py (none, shuffle, gzip levels, lzf), the registered
+   filters of hdf5plugin when it is importable, and this package's own
+   deflate on 1 and all threads.
+7. A synthetic averaged spectrum (drawn from its exact law) of a 1 s and a
+   one-hour record, against the time the time-domain route (stream the
+   record, then average its periodograms) would take at the rate of 5.
+
+The machine may be shared: absolute rates vary from run to run, the ratios
+measured side by side in one run are what count.
 
 Run: ``.venv/bin/python tests/benchmarks/bench_records.py [--samples N]
-[--kernel-samples N] [--skip-qutip]``.
+[--kernel-samples N] [--skip-qutip] [--only 5,6]``.
 """
 
 import argparse
@@ -213,7 +229,7 @@ from simulator.workflows.record import simulate_record
 n = int(float(sys.argv[1]))
 simulate_record(scenario(1e-3), out=sys.argv[2], seed=1)  # load the compiled kernels
 t = time.perf_counter()
-r = simulate_record(scenario(n / 2e6), out=sys.argv[2], seed=1)
+r = simulate_record(scenario(n / 2e6), out=sys.argv[2], seed=1, overwrite=True)
 dt = time.perf_counter() - t
 hwm = [line for line in Path("/proc/self/status").read_text().splitlines()
        if line.startswith("VmHWM")]  # peak RSS of this process image (not inherited)
@@ -235,9 +251,126 @@ def streamed_memory(lengths):
             print(f"   {int(samples):.3g} samples: peak RSS {float(rss_mb):7.1f} MB "
                   f"(target < 500 MB; ratio {float(rss_mb) / 500:.2f}), "
                   f"{int(samples) / float(seconds) / 1e6:.2f} M samples/s with "
-                  f"digitising, compression and writing, "
+                  f"digitising and writing (raw counts, every core), "
                   f"file {float(size_mb):.0f} MB")
             path.unlink()
+
+
+def every_core(n):
+    import warnings
+
+    from simulator.records import kernels
+    from simulator.records.pipeline import available_cores
+    from simulator.workflows.record import simulate_record
+
+    cores = available_cores()
+    plan = plan_record(scenario(n / 2e6), form="innovations")
+    step = stepper(plan)
+    t_draw = best_of(lambda: [None for _ in kernels.NormalBlocks(
+        plan.seed, SAMPLE_STREAM, step.width, BLOCK_SAMPLES).pieces(0, n)], repeats=2)
+    normals = kernels.NormalBlocks(plan.seed, SAMPLE_STREAM, step.width, BLOCK_SAMPLES).take(
+        0, min(n, 1 << 22))
+    y, mech = np.empty((len(normals), 2)), np.empty((len(normals), 0))
+    t_rec = best_of(lambda: step(normals, y, mech)) * n / len(normals)
+    bound, rec = n / t_draw, n / t_rec
+    target = min(0.8 * cores * bound, rec)
+    print(f"5. streamed iq record of {n:.3g} samples on {cores} core(s), M samples/s")
+    print(f"   single-core normal bound:  {bound / 1e6:8.2f}   recursion alone: {rec / 1e6:8.2f}"
+          f"   target: {target / 1e6:.2f} (0.8 x cores x bound, capped by the recursion)")
+    with tempfile.TemporaryDirectory() as tmp, warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        path = Path(tmp) / "r.h5"
+        simulate_record(scenario(1e-3), out=path, seed=1, overwrite=True)  # compile
+        rates = {}
+        for compression in ("none", "deflate"):
+            for workers in sorted({1, cores}):
+                rates[compression, workers] = n / best_of(lambda c=compression, w=workers: (
+                    simulate_record(scenario(n / 2e6), out=path, seed=1, overwrite=True,
+                                    workers=w, compression=c)), repeats=2)
+                rate = rates[compression, workers]
+                print(f"   {compression:8s} {workers} thread(s): {rate / 1e6:8.2f}"
+                      f"   / target {rate / target:5.2f}"
+                      f"   / (cores x bound) {rate / (cores * bound):5.2f}"
+                      f"   speed-up {rate / rates[compression, 1]:4.2f}")
+    return rates["none", cores]
+
+
+COMPRESSION_CHUNK = 1 << 18
+
+
+def compression_options(n):
+    import os
+    import warnings
+
+    import h5py
+
+    from simulator.io.recordfile import encode_chunk
+    from simulator.records.pipeline import available_cores, executor
+    from simulator.workflows.record import simulate_record
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        counts = simulate_record(scenario(n / 2e6), seed=1).counts
+    raw = counts.nbytes
+    options = {"none": {}, "shuffle": dict(shuffle=True), "lzf": dict(compression="lzf"),
+               "lzf + shuffle": dict(compression="lzf", shuffle=True)}
+    for level in (1, 4, 9):
+        options[f"gzip {level}"] = dict(compression="gzip", compression_opts=level)
+        options[f"gzip {level} + shuffle"] = dict(compression="gzip", compression_opts=level,
+                                                  shuffle=True)
+    try:
+        import hdf5plugin
+    except ImportError:
+        hdf5plugin = None
+    if hdf5plugin is not None:
+        options["[plugin] zstd 1"] = dict(hdf5plugin.Zstd(clevel=1))
+        options["[plugin] bitshuffle lz4"] = dict(hdf5plugin.Bitshuffle(cname="lz4"))
+        options["[plugin] blosc2 zstd 1 shuffle"] = dict(hdf5plugin.Blosc2(
+            cname="zstd", clevel=1, filters=hdf5plugin.Blosc2.SHUFFLE))
+        options["[plugin] blosc2 lz4 shuffle"] = dict(hdf5plugin.Blosc2(
+            cname="lz4", clevel=5, filters=hdf5plugin.Blosc2.SHUFFLE))
+    print(f"6. compression of {n:.3g} iq samples ({counts.std():.0f} counts rms), "
+          f"chunks of {COMPRESSION_CHUNK} rows; size relative to the raw counts")
+    if hdf5plugin is None:
+        print("   (hdf5plugin not importable: registered filters not measured)")
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "c.h5"
+        for name, kw in options.items():
+            def write(kw=kw):
+                with h5py.File(path, "w") as f:
+                    f.create_dataset("s", data=counts, chunks=(COMPRESSION_CHUNK, 2), **kw)
+            t = best_of(write, repeats=2)
+            size = os.path.getsize(path) / raw
+            print(f"   h5py {name:32s} {raw / t / 1e6:8.0f} MB/s   size {size:.3f}")
+    pieces = [counts[i:i + COMPRESSION_CHUNK] for i in range(0, len(counts), COMPRESSION_CHUNK)]
+    for workers in sorted({1, available_cores()}):
+        with executor(workers) as pool:
+            def encode_all(pool=pool):
+                return [f.result() for f in [pool.submit(encode_chunk, p, COMPRESSION_CHUNK)
+                                             for p in pieces]]
+            t = best_of(encode_all, repeats=2)
+            size = sum(len(b) for b in encode_all())
+        print(f"   noisechain deflate, {workers} thread(s)  {raw / t / 1e6:8.0f} MB/s   "
+              f"size {size / raw:.3f}")
+
+
+def synthetic_spectra(stream_rate):
+    from simulator.analysis.synthetic_spectrum import synthetic_averaged_spectrum
+
+    segment = 4096
+    synthetic_averaged_spectrum(scenario(1.0), segment_samples=segment, seed=1)  # imports
+    times = {}
+    for seconds in (1.0, 3600.0):
+        times[seconds] = best_of(lambda seconds=seconds: synthetic_averaged_spectrum(
+            scenario(1.0), segment_samples=segment, duration_s=seconds, seed=1))
+    hour = 3600.0 * 2e6
+    print(f"7. synthetic averaged spectrum, segments of {segment} samples at 2 MS/s")
+    print(f"   1 s record: {times[1.0] * 1e3:8.1f} ms   one hour: {times[3600.0] * 1e3:8.1f} ms"
+          f"   ratio {times[3600.0] / times[1.0]:.2f}")
+    if stream_rate:
+        route = hour / stream_rate
+        print(f"   the time-domain route for the hour at {stream_rate / 1e6:.1f} M samples/s: "
+              f"{route:8.0f} s   ratio {route / times[3600.0]:.3g}")
 
 
 def main():
@@ -246,11 +379,22 @@ def main():
                         help="length of the streamed record (target: 1e9)")
     parser.add_argument("--kernel-samples", type=float, default=2e6)
     parser.add_argument("--skip-qutip", action="store_true")
+    parser.add_argument("--only", default="1,2,3,4,5,6,7", help="sections to run, e.g. 5,6")
     args = parser.parse_args()
-    innovations_against_normals(int(args.kernel_samples))
-    full_state_against_baselines(int(args.kernel_samples) // 4, args.skip_qutip)
-    modal_against_dense(int(args.kernel_samples))
-    streamed_memory([int(args.samples) // 10, int(args.samples)])
+    only = {int(x) for x in args.only.split(",")}
+    kernel = int(args.kernel_samples)
+    sections = {1: lambda: innovations_against_normals(kernel),
+                2: lambda: full_state_against_baselines(kernel // 4, args.skip_qutip),
+                3: lambda: modal_against_dense(kernel),
+                4: lambda: streamed_memory([int(args.samples) // 10, int(args.samples)]),
+                5: lambda: every_core(int(args.samples)),
+                6: lambda: compression_options(kernel)}
+    rate = None
+    for number, run in sections.items():
+        if number in only:
+            rate = run() if number == 5 else (run(), rate)[1]
+    if 7 in only:
+        synthetic_spectra(rate)
 
 
 if __name__ == "__main__":

@@ -1,0 +1,126 @@
+"""Averaged-spectrum files: one synthetic averaged periodogram per HDF5 file, with its truth.
+
+The companion of :mod:`simulator.io.recordfile` for
+:func:`simulator.analysis.synthetic_spectrum.synthetic_averaged_spectrum`;
+the same conventions (docs/records.md, "Synthetic averaged spectra"), and h5py
+alone reads it:
+
+- root attributes ``format = "noisechain-averaged-spectrum"``,
+  ``format_version``, ``scenario_toml``, ``seed``, ``software_version``,
+  ``created_utc``, ``kind``, ``scheme``, ``sample_rate_hz``, ``n_samples``,
+  ``duration_s``, ``intermediate_frequency_hz``, ``local_oscillator_side``,
+  ``frequency_convention``, and the estimator's settings ``segment_samples``,
+  ``averages``, ``window``, ``sided``, ``resolution_hz``,
+  ``noise_bandwidth_hz``, ``rounding_variance``, ``units``;
+- datasets ``frequency_hz``, ``density`` and, for iq, ``cross`` (complex:
+  the averaged Z_f Z_{−f}/(fs N));
+- group ``truth`` as in a record file, with the exact means
+  ``truth/expected_density`` (and ``truth/expected_cross``).
+
+Written through :class:`simulator.io.files.AtomicFile`: a temporary file
+renamed when complete, the ``format`` attribute last.
+"""
+
+from pathlib import Path
+
+import numpy as np
+
+from simulator.errors import InputError
+from simulator.io.files import AtomicFile
+from simulator.io.recordfile import FREQUENCY_CONVENTION, _text, read_truth, write_truth
+
+FORMAT = "noisechain-averaged-spectrum"
+FORMAT_VERSION = 1
+UNITS = "shot-noise units squared per Hz (shot-noise floor 1 per Hz, two-sided)"
+_NUMBERS = ("seed", "sample_rate_hz", "n_samples", "intermediate_frequency_hz",
+            "segment_samples", "averages", "resolution_hz", "noise_bandwidth_hz",
+            "rounding_variance")
+_TEXT = ("kind", "scheme", "local_oscillator_side", "window", "sided", "software_version",
+         "created_utc")
+
+
+def write_averaged_spectrum(spectrum, path, *, overwrite=False):
+    """Write ``spectrum`` (an AveragedSpectrum) to ``path`` atomically; return the path."""
+    import h5py
+
+    path = Path(path)
+    if path.is_dir() or not path.parent.is_dir():
+        raise InputError(f"output {str(path)!r}: expected a file name such as spectrum.h5 "
+                         "in an existing folder")
+    with AtomicFile(path, overwrite=overwrite) as out:  # renamed into place on a clean exit
+        try:
+            handle = h5py.File(out.tmp, "w")
+        except OSError as exc:
+            raise InputError(f"cannot write {str(path)!r} ({exc})") from None
+        with handle as f:
+            f.create_dataset("frequency_hz", data=spectrum.frequency_hz)
+            f.create_dataset("density", data=spectrum.density)
+            truth = f.create_group("truth")
+            write_truth(truth, spectrum.truth)
+            truth.create_dataset("expected_density", data=spectrum.expected_density)
+            if spectrum.cross is not None:
+                f.create_dataset("cross", data=spectrum.cross)
+                truth.create_dataset("expected_cross", data=spectrum.expected_cross)
+            a = f.attrs
+            a["scenario_toml"] = spectrum.scenario.to_toml()
+            for key in _NUMBERS + _TEXT:
+                a[key] = getattr(spectrum, key)
+            a["duration_s"] = spectrum.n_samples / spectrum.sample_rate_hz
+            a["units"] = UNITS
+            a["frequency_convention"] = FREQUENCY_CONVENTION
+            a["format_version"] = FORMAT_VERSION
+            a["format"] = FORMAT
+    return path
+
+
+def load_averaged_spectrum(path):
+    """Read an averaged-spectrum file back as an AveragedSpectrum (with truth and scenario).
+
+    Raises
+    ------
+    simulator.errors.InputError
+        Missing file, not HDF5, not a complete averaged-spectrum file, a
+        missing or malformed part, or a newer format version.
+    """
+    import h5py
+
+    from simulator.analysis.synthetic_spectrum import AveragedSpectrum
+    from simulator.scenario.loader import parse_scenario
+
+    path = Path(path)
+    if not path.is_file():
+        raise InputError(f"averaged-spectrum file {str(path)!r} not found; expected an HDF5 "
+                         "file written by `noisechain record --averaged`")
+    try:
+        handle = h5py.File(path, "r")
+    except OSError as exc:
+        raise InputError(f"{str(path)!r} is not a readable HDF5 file ({exc})") from None
+    with handle as f:
+        a = f.attrs
+        if a.get("format") != FORMAT:
+            raise InputError(f"{str(path)!r} is not a complete noisechain averaged spectrum "
+                             f"(no format = {FORMAT!r} attribute)")
+        if int(a.get("format_version", 0)) > FORMAT_VERSION:
+            raise InputError(f"{str(path)!r} has averaged-spectrum format version "
+                             f"{int(a['format_version'])}; this software reads up to "
+                             f"{FORMAT_VERSION}, upgrade noisechain")
+        try:
+            iq = _text(a["kind"]) == "iq"
+            data = {k: f[k][:] for k in ("frequency_hz", "density")}
+            expected = f["truth/expected_density"][:]
+            cross = (f["cross"][:], f["truth/expected_cross"][:]) if iq else (None, None)
+            numbers = {k: float(a[k]) for k in _NUMBERS}
+            text = {k: _text(a[k]) for k in _TEXT}
+            truth = read_truth(f["truth"])
+        except KeyError as exc:
+            raise InputError(f"averaged-spectrum file {str(path)!r} lacks {exc}; expected "
+                             "every part of the format (docs/records.md)") from None
+        if not all(np.isfinite(x).all() for x in (data["density"], expected)):
+            raise InputError(f"averaged-spectrum file {str(path)!r}: density holds NaN or "
+                             "infinity; expected finite numbers")
+        scenario = parse_scenario(_text(a["scenario_toml"]), source=f"{path}:scenario_toml")
+    for key in ("seed", "n_samples", "segment_samples", "averages"):
+        numbers[key] = int(numbers[key])
+    return AveragedSpectrum(**data, cross=cross[0], expected_density=expected,
+                            expected_cross=cross[1], scenario=scenario, truth=truth,
+                            path=path, **numbers, **text)

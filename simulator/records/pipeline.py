@@ -1,0 +1,154 @@
+"""Record generation on every core, the same bits as on one.
+
+The random normals of a record come in blocks, each from its own generator
+(:func:`draw_block`); numpy's Generator releases the GIL while it fills a
+block, and so do the numba kernels (``nogil``), zlib's compressor and
+numpy's bulk array operations. So a few threads overlap the work of a
+record: blocks of normals are drawn ahead (:class:`NormalBlocks` with an
+executor), the sequential recursion runs on the calling thread, and each
+finished chunk is rotated, digitised and compressed by the pool
+(:class:`OrderedStage`) while the next chunk's recursion runs, then written
+in order. Every step is a pure function of the sample indices it covers, so
+the result does not depend on the number of threads or the chunk size.
+"""
+
+import collections
+import concurrent.futures as cf
+import os
+
+import numpy as np
+
+from simulator.errors import InputError
+
+
+def available_cores():
+    """Cores this process may run on (its affinity mask), at least 1."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def checked_workers(workers):
+    """``workers`` threads for a record (default: every available core)."""
+    if workers is None:
+        return available_cores()
+    if isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1:
+        raise InputError(f"workers = {workers!r}; expected a positive number of threads")
+    return int(workers)
+
+
+class InlineExecutor:
+    """An executor that runs each task at once on the calling thread (one worker)."""
+
+    def submit(self, fn, *args):
+        """Run ``fn(*args)`` now; return a finished future holding its result or error."""
+        future = cf.Future()
+        try:
+            future.set_result(fn(*args))
+        except BaseException as exc:  # handed to whoever asks for the result
+            future.set_exception(exc)
+        return future
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        return False
+
+
+def executor(workers):
+    """A thread pool of ``workers`` threads, or :class:`InlineExecutor` for one."""
+    if workers <= 1:
+        return InlineExecutor()
+    return cf.ThreadPoolExecutor(max_workers=workers, thread_name_prefix="record")
+
+
+class OrderedStage:
+    """Runs ``fn`` on items in the pool; hands the results to ``deliver`` in order.
+
+    At most ``depth`` items are in flight (memory stays bounded); the caller
+    thread delivers, so the consumer (a file) is touched by one thread only.
+    """
+
+    def __init__(self, pool, fn, deliver, depth):
+        self.pool, self.fn, self.deliver, self.depth = pool, fn, deliver, max(1, int(depth))
+        self.queue = collections.deque()
+
+    def put(self, *args):
+        """Submit one item; deliver the oldest ones while more than ``depth`` wait."""
+        self.queue.append(self.pool.submit(self.fn, *args))
+        while len(self.queue) > self.depth:
+            self.deliver(self.queue.popleft().result())
+
+    def drain(self):
+        """Deliver everything still in flight, in order."""
+        while self.queue:
+            self.deliver(self.queue.popleft().result())
+
+    def cancel(self):
+        """Drop what has not started (after an error)."""
+        while self.queue:
+            self.queue.popleft().cancel()
+
+
+def draw_block(seed, stream, index, size, width):
+    """Block ``index`` of a stream: (size, width) standard normals from its own generator.
+
+    Seeded with SeedSequence(seed, spawn_key=(stream, index)); numpy's
+    Generator releases the GIL while it fills the array, so blocks can be
+    drawn on several threads at once with the same bits.
+    """
+    seq = np.random.SeedSequence(seed, spawn_key=(stream, index))
+    return np.random.Generator(np.random.PCG64(seq)).standard_normal((size, width))
+
+
+class NormalBlocks:
+    """Standard normals for samples [start, start + count), drawn by fixed-size block.
+
+    Block k (samples k·size … (k+1)·size − 1) is drawn by its own generator
+    (:func:`draw_block`), so the numbers of any sample depend only on (seed,
+    stream, its index), not on how the samples are grouped into chunks, nor
+    on which thread drew them. numpy's Generator is used rather than numba's
+    (faster, and reproducible by block). Given an ``executor`` (a thread
+    pool), the next ``ahead`` blocks are drawn in the background while the
+    caller works on the current one, never past sample ``total``.
+    """
+
+    def __init__(self, seed, stream, width, size, *, executor=None, ahead=0, total=None):
+        self.seed, self.stream, self.width, self.size = seed, stream, width, size
+        self.index, self.block = None, None
+        self.executor, self.ahead, self.pending = executor, int(ahead), {}
+        self.last = None if total is None else max(0, (int(total) - 1) // size)
+
+    def _block(self, k):
+        if k != self.index:
+            if self.executor is None:
+                self.block = draw_block(self.seed, self.stream, k, self.size, self.width)
+            else:
+                last = k + self.ahead if self.last is None else min(k + self.ahead, self.last)
+                for j in range(k, max(k, last) + 1):
+                    if j not in self.pending:
+                        self.pending[j] = self.executor.submit(
+                            draw_block, self.seed, self.stream, j, self.size, self.width)
+                for j in [j for j in self.pending if j < k]:
+                    self.pending.pop(j).cancel()
+                self.block = self.pending.pop(k).result()
+            self.index = k
+        return self.block
+
+    def pieces(self, start, count):
+        """Yield (position from ``start``, view of the normals) covering the range."""
+        pos, end = start, start + count
+        while pos < end:
+            k, offset = divmod(pos, self.size)
+            n = min(self.size - offset, end - pos)
+            yield pos - start, self._block(k)[offset:offset + n]
+            pos += n
+
+    def take(self, start, count):
+        """The normals of samples [start, start + count) as one (count, width) array."""
+        out = np.empty((count, self.width))
+        for pos, piece in self.pieces(start, count):
+            out[pos:pos + len(piece)] = piece
+        return out
