@@ -89,10 +89,20 @@ class ReadOnlyTable(collections.abc.Mapping):
 
 def parse_parameters(value, key, source):
     """Check ``[sweep.parameters]`` and freeze it (read-only mappings)."""
-    if not isinstance(value, dict) or not value:
+    if isinstance(value, dict) and not value:
+        raise ScenarioError(f"[{key}] is empty: nothing to vary; expected at least one "
+                            'parameter path, e.g. "drive.power_w" = {start = 1e-9, stop = '
+                            "1e-6, num = 7, log = true}", source=source, key=key)
+    if not isinstance(value, dict):
         raise ScenarioError(f"{value!r} is not a table of swept parameters; expected "
-                            "[sweep.parameters] mapping parameter paths to a list of "
+                            f"[{key}] mapping parameter paths to a list of "
                             "values or a range table", source=source, key=key)
+    for path in value:
+        twin = path[: -len("_dbm")] + "_w" if path.endswith("_dbm") else None
+        if twin in value:  # one power in two units: which would the point use?
+            raise ScenarioError(f"both {twin!r} and {path!r} are varied: they are one power "
+                                "in W and in dBm; expected exactly one of them",
+                                source=source, key=f'{key}."{path}"')
     frozen = {}
     for path, spec in value.items():
         where = f'{key}."{path}"'
