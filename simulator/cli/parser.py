@@ -124,8 +124,9 @@ def build_parser():
     p.add_argument("scenario", help="scenario TOML file")
     p.add_argument("--at", choices=("record", "cavity"), default="record",
                    help="record: what the digitiser sees, detection chain and sampling "
-                   "included (default); cavity: the field at the cavity port, before the "
-                   "detection chain")
+                   "included (default); cavity: the field at the cavity port as an ideal "
+                   "detector behind the detection efficiency sees it, before the amplifier, "
+                   "filter and sampling")
     p.add_argument("--out", default=None, help="write the spectrum: .nc (NetCDF) or .csv")
     p.add_argument("--plot", default=None, help="write a figure: .png, .pdf or .svg")
     _force_option(p)

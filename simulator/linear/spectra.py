@@ -64,8 +64,10 @@ from simulator.model.units import angular, ordinary
 HETERODYNE_AXIS = "optical offset from the drive (> 0: anti-Stokes, above the drive)"
 HOMODYNE_AXIS = "baseband frequency f >= 0"
 SHOT_NOISE_UNITS = "shot-noise units (vacuum = 1)"
-# every cavity-port spectrum says so: the default of `noisechain spectrum` is the record
-AT_CAVITY = "at the cavity port (before the detection chain)"
+# every cavity-port spectrum says so: the default of `noisechain spectrum` is the record.
+# It is what an ideal detector sees behind the loss η (S = 1 + η N_out), hence the words.
+AT_CAVITY = ("at the cavity port (seen through the detection efficiency η; before the "
+             "amplifier, filter and sampling)")
 
 
 def adaptive_grid(model, *, span_hz=None, one_sided=False, points_per_decade=48,

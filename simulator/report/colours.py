@@ -4,7 +4,9 @@ A noise budget names its terms "source: term" (``simulator.linear.budget``),
 e.g. "internal loss bath: back-action motion". The colour follows the source
 by name from a fixed table, so the internal-loss bath is drawn in the same
 colour in the demo, a microwave case and a sweep; the term sets the line
-style (motion solid, imprecision dotted, their cross term dashed). The
+style (motion solid, imprecision dotted, their cross term dashed; among the
+detection chain's terms, the signal lost solid, the sample averaging dashed,
+aliasing dotted). The
 thermal baths of the mechanical modes take colours in mode order, so the
 first mode's bath keeps its colour whatever the mode is called. A source the
 table does not know takes a colour from a reserve list chosen by a checksum of
@@ -29,15 +31,23 @@ _NAMED = (
     ("phase-noise", "#e377c2"),               # pink
     ("frequency noise", "#ad1457"),           # raspberry
     ("calibration tone", "#bcbd22"),          # olive
+    # what the detection chain takes away: losses, then the digitiser
+    ("detection efficiency", "#7f8c8d"),      # grey-green, as the loss's vacuum
+    ("single-ended detection", "#7f8c8d"),
+    ("sampling", "#b8860b"),                  # dark goldenrod
 )
 # thermal baths of mechanical modes 0, 1, 2 ... (then repeating)
 _THERMAL = ("#2ca02c", "#9467bd", "#17becf", "#006d5b", "#6b4c9a")
 # sources nobody named yet
-_RESERVE = ("#8e6c8a", "#5b7e96", "#a0522d", "#4f7942", "#b8860b", "#6a7b8c")
+_RESERVE = ("#8e6c8a", "#5b7e96", "#a0522d", "#4f7942", "#d95f02", "#6a7b8c")
 
 THERMAL_SUFFIX = " thermal bath"
 _TERM_STYLES = (("imprecision × back-action", "--"), ("imprecision", ":"),
-                ("motion", "-"), ("correlation", "-."))
+                ("motion", "-"), ("correlation", "-."),
+                # the chain's terms of one source: signal lost solid, the
+                # sample averaging dashed, aliasing dotted, the low-pass dash-dot
+                ("half the signal", "--"), ("average over each sample", "--"),
+                ("aliasing", ":"), ("low-pass", "-."))
 
 
 def source_colour(source, mode_names=()):
@@ -72,7 +82,8 @@ def term_style(name, mode_names=None, names=()):
     if mode_names is None:
         mode_names = mode_order(names)
     source, term = split_term(name)
-    style = next((ls for key, ls in _TERM_STYLES if key in term), "-")
+    words = term or source  # a chain term may be one phrase ("electronics low-pass filter")
+    style = next((ls for key, ls in _TERM_STYLES if key in words), "-")
     return {"color": source_colour(source, mode_names), "ls": style}
 
 

@@ -11,12 +11,18 @@ objective along it with the spans each constraint excludes shaded.
 import numpy as np
 
 from simulator.report.plots import save_figure, subplots
+from simulator.scenario.labels import axis_label
 
 _STYLES = ("-", "--", "-.", ":")
+# the objective in a few words, for the colour bar and the vertical axis
+_OBJECTIVE_WORDS = {"asymmetry_time": "time to resolve the asymmetry",
+                    "occupation_error": "error of the occupation",
+                    "occupation": "occupation"}
 
 
 def _label(axis):
-    return f"{axis['path']} / {axis['unit']}" if axis["unit"] else axis["path"]
+    """The axis in words with its unit ("drive detuning Δ / Ωm"), as the sweep figures."""
+    return axis_label(axis["path"], axis["unit"])
 
 
 def _where(point, axes):
@@ -70,6 +76,7 @@ def plot_plan(data, path, *, overwrite=False):
     best = _where(data.get("optimum"), axes)
     own = _where(data.get("own_point"), axes)
     units = f" ({data['units']})" if data["units"] else ""
+    quantity = _OBJECTIVE_WORDS.get(data["objective"], "objective") + units
     if len(axes) == 1:
         fig, ax = subplots(figsize=(8, 4.5))
         x = np.asarray(axes[0]["numbers"])
@@ -88,7 +95,7 @@ def plot_plan(data, path, *, overwrite=False):
         if np.nanmin(np.where(objective > 0, objective, np.nan), initial=np.inf) > 0:
             ax.set_yscale("log")
         ax.set_xlabel(_label(axes[0]))
-        ax.set_ylabel(f"objective{units}")
+        ax.set_ylabel(quantity)
         if axes[0]["log"]:
             ax.set_xscale("log")
     else:
@@ -100,7 +107,7 @@ def plot_plan(data, path, *, overwrite=False):
         norm = LogNorm(finite.min(), finite.max()) if finite.size else None
         mesh = ax.pcolormesh(x, y, np.where(np.isfinite(objective), objective, np.nan).T,
                              shading="nearest", norm=norm, cmap="viridis")
-        fig.colorbar(mesh, ax=ax, label=f"objective{units}")
+        fig.colorbar(mesh, ax=ax, label=quantity)
         for k, (name, field) in enumerate(fields.items()):
             if (field <= 0).any():
                 ax.contour(x, y, field.T, levels=[0.0], colors=["w"],

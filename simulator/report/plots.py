@@ -134,7 +134,8 @@ def _overview(ax, spectrum, colours, summary):
                         textcoords="offset points", rotation=90, va="top", fontsize=7,
                         color="0.35")
     ax.set_xlabel(f"{spectrum.axis} ({unit})")
-    ax.set_ylabel(f"S − 1: excess above shot noise\n({spectrum.sided}, {spectrum.units})")
+    # three short lines: a long label would run past the panel into the title
+    ax.set_ylabel(f"S − 1: excess above shot noise\n{spectrum.sided},\n{spectrum.units}")
     gaps = "; gaps in the total: below shot noise" if np.any(excess < -1e-12) else ""
     ax.set_title(f"whole spectrum, log scale (pale: magnitude of negative terms{gaps})",
                  fontsize=10)

@@ -20,7 +20,7 @@ import re
 # unit of a key from its suffix (the scenario's naming rule: key_<unit>)
 SUFFIX_UNITS = {"hz": "Hz", "w": "W", "k": "K", "m": "m", "kg": "kg", "s": "s", "v": "V",
                 "rad": "rad", "ohm": "V/A", "per_hz": "1/Hz", "rad2_per_hz": "rad²/Hz",
-                "a_per_sqrt_hz": "A/√Hz", "quanta": "quanta"}
+                "a_per_sqrt_hz": "A/√Hz", "quanta": "quanta", "dbm": "dBm"}
 
 
 @dataclasses.dataclass(frozen=True)

@@ -84,12 +84,18 @@ def _change(probe, found):
     return (probe.value - best) / (abs(best) if best else (coord.high - coord.low))
 
 
+def _plain_unit(path):
+    """The unit of a parameter path in words ("Hz" for drive.detuning_hz), or ""."""
+    suffix = path.rsplit("_", 1)[-1]
+    return {"hz": "Hz", "w": "W", "k": "K", "s": "s", "m": "m", "kg": "kg",
+            "dbm": "dBm"}.get(suffix, "")
+
+
 def _where(parameters):
     parts = []
     for p in parameters:
         unit = f" × {p['unit']}" if p["unit"] else ""
-        suffix = p["path"].rsplit("_", 1)[-1]
-        plain = {"hz": "Hz", "w": "W", "k": "K", "s": "s", "m": "m", "kg": "kg"}.get(suffix, "")
+        plain = _plain_unit(p["path"])
         shown = f"{p['number']:.4g}{unit}" + (f" ({p['value']:.4g} {plain})"
                                               if unit and plain else f" {plain}" if plain
                                               else "")
@@ -118,7 +124,8 @@ def plan_text(d):
                          "do better")
         for p in d["flatness"]:
             note = "" if p["feasible"] else f" (infeasible: {', '.join(p['violated'])})"
-            lines.append(f"  flatness: {p['path']} {p['change']:+.0%} ({p['value']:.4g}): "
+            value = f"{p['value']:.4g} {_plain_unit(p['path'])}".rstrip()
+            lines.append(f"  flatness: {p['path']} {p['change']:+.0%} ({value}): "
                          f"objective × {p['ratio']:.3g}{note}")
     own = d["own_point"]
     ratio = own.get("ratio_to_optimum")

@@ -1,0 +1,62 @@
+"""What a new user met on a first walk through the commands, kept fixed.
+
+Each test pins one thing that read wrongly or misled: a figure's line that
+looked like another, a label that claimed less than the number holds, a
+value printed without its unit.
+"""
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from simulator.linear.record_budget import digitiser_spectrum
+from simulator.linear.spectra import heterodyne_spectrum
+from simulator.model.system import System
+from simulator.report import colours, plan_plots
+from simulator.scenario.labels import axis_label
+from simulator.scenario.loader import load_scenario
+from simulator.workflows.plan import plan_scenario
+from simulator.workflows.plan_text import plan_dict, plan_text
+
+SCENARIOS = Path(__file__).resolve().parents[1] / "scenarios"
+
+
+def test_every_term_of_the_drums_record_budget_is_drawn_its_own_way():
+    """Colour = source, line = term: no two terms of one figure look the same.
+
+    The detection efficiency's loss and the digitiser's two terms once drew
+    in one colour and one line style, so the legend could not tell them apart.
+    """
+    drum = System(load_scenario(SCENARIOS / "drum_microwave_mK.toml"))
+    names = list(digitiser_spectrum(drum, np.linspace(-1e7, 1e7, 41)).contributions)
+    assert any(n.startswith("sampling: aliasing") for n in names)  # the chain's terms are there
+    looks = [tuple(colours.term_style(n, names=names).values()) for n in names]
+    assert len(set(looks)) == len(looks), list(zip(names, looks, strict=True))
+
+
+def test_the_cavity_port_spectrum_says_it_carries_the_detection_efficiency():
+    """S = 1 + η N_out: the excess scales with η, and the label says η is in it."""
+    system = System(load_scenario(SCENARIOS / "drum_microwave_mK.toml"))
+    f = np.array([-8.0e6, 0.0, 8.0e6])
+    full = heterodyne_spectrum(system, f, efficiency=1.0)
+    lossy = heterodyne_spectrum(system, f, efficiency=0.25)
+    assert lossy.total - 1.0 == pytest.approx(0.25 * (full.total - 1.0), rel=1e-12)
+    assert "detection efficiency" in lossy.quantity and "cavity port" in lossy.quantity
+
+
+def test_plan_axes_and_powers_in_dbm_read_as_quantities():
+    assert plan_plots._label({"path": "drive.detuning_hz",
+                              "unit": "mechanics[0].frequency_hz"}) == "drive detuning Δ / Ωm"
+    assert plan_plots._label({"path": "drive.power_w", "unit": None}) == "drive power P (W)"
+    assert axis_label("drive.power_dbm") == "drive power (dBm)"
+
+
+def test_the_plans_flatness_lines_give_their_values_with_units():
+    scenario = load_scenario(SCENARIOS / "drum_microwave_plan.toml")
+    text = plan_text(plan_dict(plan_scenario(scenario, refine=False)))
+    flat = [line for line in text.splitlines() if "flatness:" in line]
+    assert flat, text
+    for line in flat:
+        unit = "Hz)" if "detuning_hz" in line else "W)"
+        assert unit + ": objective" in line, line
