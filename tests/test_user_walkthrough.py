@@ -60,3 +60,26 @@ def test_the_plans_flatness_lines_give_their_values_with_units():
     for line in flat:
         unit = "Hz)" if "detuning_hz" in line else "W)"
         assert unit + ": objective" in line, line
+
+
+def test_the_reference_estimator_reads_averaged_spectra_too():
+    """`trial --averaged N` with the bundled reference once failed every trial.
+
+    The anti-Stokes area of a synthetic averaged spectrum (one second of the
+    4 K membrane) must give back the Lyapunov occupation within its stated
+    error: the two are independent computations (the fit against the
+    steady-state covariance).
+    """
+    from simulator.analysis.reference import sideband_thermometry
+    from simulator.linear.steady_state import steady_state
+    from simulator.workflows.estimator import public_view
+    from simulator.workflows.record import simulate_averaged_spectrum
+
+    system = System(load_scenario(SCENARIOS / "membrane_4k.toml"))
+    spectrum = simulate_averaged_spectrum(system, segment_samples=4096, seed=7,
+                                          duration_s=1.0)
+    found = sideband_thermometry(public_view(spectrum))
+    value, error = found["occupation:anti_stokes_area"]
+    truth = steady_state(system).modes[0].occupation
+    assert 0 < error < 0.05 * truth
+    assert abs(value - truth) < 4 * error, (value, error, truth)

@@ -2,8 +2,9 @@
 
 ``noisechain trial SCENARIO --estimator simulator.analysis.reference:sideband_thermometry``
 runs the careful-lab analysis of :mod:`simulator.analysis.thermometry` on each
-record. Every estimator here uses only the public record and the scenario's
-nominal calibration, never the truth.
+record (with ``--averaged N``, on each averaged spectrum). Every estimator here
+uses only the public record and the scenario's nominal calibration, never the
+truth.
 """
 
 import numpy as np
@@ -58,7 +59,13 @@ def sideband_thermometry(record, mode=0, *, fano=False):
     k, g = cal.cavity_linewidth_hz, cal.coupling_rate_hz
     a_minus = g**2 * k / (k**2 / 4 + (cal.detuning_hz + cal.mechanical_frequency_hz) ** 2)
     width = cal.mechanical_linewidth_hz + a_minus - cal.stokes_rate_hz()
-    psd = record_psd(record, resolution_hz=abs(width) / BINS_PER_LINEWIDTH)
+    if hasattr(record, "estimate"):  # an averaged spectrum (`trial --averaged N`): its bins
+        if record.kind != "iq":
+            raise InputError(f"record kind {record.kind!r}: the sideband thermometry needs "
+                             "an IQ (complex heterodyne) spectrum")
+        psd = record.estimate
+    else:
+        psd = record_psd(record, resolution_hz=abs(width) / BINS_PER_LINEWIDTH)
     # the periodogram's own kernel (boxcar: Fejér) convolves the model lines
     smear = WindowedExpectation(record.sample_rate_hz, psd.frequency_hz.size, psd.window)
     # integrate-and-dump samples: the model carries the sinc², the data stay as they are
