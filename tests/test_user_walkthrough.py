@@ -83,3 +83,31 @@ def test_the_reference_estimator_reads_averaged_spectra_too():
     truth = steady_state(system).modes[0].occupation
     assert 0 < error < 0.05 * truth
     assert abs(value - truth) < 4 * error, (value, error, truth)
+
+
+def test_a_dbm_level_in_a_watt_range_is_refused_with_the_twin_key(tmp_path):
+    from conftest import run_cli
+
+    drum = (SCENARIOS / "drum_microwave_mK.toml").read_text()
+    path = tmp_path / "plan.toml"
+    path.write_text(drum + '\n[plan]\n[plan.parameters]\n'
+                    '"drive.power_w" = { start = -67, stop = -50, num = 5 }\n')
+    done = run_cli("check", path)
+    assert done.returncode == 2 and "Traceback" not in done.stderr
+    assert 'plan.parameters."drive.power_w"' in done.stderr
+    assert "a level in dBm? vary 'drive.power_dbm' instead" in done.stderr
+
+
+def test_a_plan_nothing_satisfies_exits_with_the_documented_status(tmp_path):
+    """README: exit status 3 for plan means no point satisfies the constraints."""
+    from conftest import run_cli
+
+    assert "3 unstable operating point\n(for `plan`: no point satisfies the constraints)" \
+        in (SCENARIOS.parent / "README.md").read_text()
+    drum = (SCENARIOS / "drum_microwave_mK.toml").read_text()
+    path = tmp_path / "plan.toml"
+    path.write_text(drum + '\n[plan]\nmax_power_w = 1e-12\n[plan.parameters]\n'
+                    '"drive.power_w" = { start = 1e-11, stop = 1e-8, num = 3, log = true }\n')
+    done = run_cli("plan", path, "--no-refine")
+    assert done.returncode == 3, done.stderr
+    assert "no feasible point: max_power_w excludes every one" in done.stdout

@@ -124,8 +124,10 @@ def parameter_axes(scenario, parameters, section):
             try:
                 base.replace(path, v)
             except ScenarioError as exc:
+                hint = (f"; a level in dBm? vary {path[:-2] + '_dbm'!r} instead"
+                        if path.endswith("power_w") and v < 0 else "")
                 raise ScenarioError(f"{'swept' if section == 'sweep' else 'bound'} value "
-                                    f"{v!r} is invalid: {exc.detail}",
+                                    f"{v!r} is invalid: {exc.detail}{hint}",
                                     source=scenario.source,
                                     key=f'{section}.parameters."{path}"') from None
         log = not isinstance(spec, tuple) and bool(spec.get("log", False))
