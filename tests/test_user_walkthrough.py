@@ -52,9 +52,26 @@ def test_plan_axes_and_powers_in_dbm_read_as_quantities():
     assert axis_label("drive.power_dbm") == "drive power (dBm)"
 
 
-def test_the_plans_flatness_lines_give_their_values_with_units():
-    scenario = load_scenario(SCENARIOS / "drum_microwave_plan.toml")
-    text = plan_text(plan_dict(plan_scenario(scenario, refine=False)))
+@pytest.fixture(scope="module")
+def drum_plan():
+    """The bundled drum's plan on its coarse grid, as plain data."""
+    return plan_dict(plan_scenario(load_scenario(SCENARIOS / "drum_microwave_plan.toml"),
+                                   refine=False))
+
+
+def test_the_plans_optimum_leads_the_run_reports_answer(drum_plan):
+    from simulator.workflows.run import _plan_best
+
+    (criterion, where, value), = _plan_best(drum_plan)
+    assert criterion.startswith("plan: time to resolve the sideband asymmetry")
+    assert where.startswith("drive detuning Δ / Ωm = ")
+    assert "drive detuning Δ/2π (Hz) = " in where and "drive power P (W) = " in where
+    assert value == f"{drum_plan['optimum']['objective']:.4g} s"
+    assert _plan_best(dict(drum_plan, feasible=False)) == []
+
+
+def test_the_plans_flatness_lines_give_their_values_with_units(drum_plan):
+    text = plan_text(drum_plan)
     flat = [line for line in text.splitlines() if "flatness:" in line]
     assert flat, text
     for line in flat:

@@ -97,6 +97,8 @@ def _run(scenario, out, workers, dask, progress, best):
 
         details.insert(0, ("Best operating point (plan)",
                            plan_part(scenario, out, wrote, figures)))
+        if out / "plan.json" in files:  # written by this run: its optimum leads the answer
+            best += _plan_best(jsontext.loads((out / "plan.json").read_text()))
 
     report_path = out / "report.html"
     listing = [[str(p.relative_to(out))] for p in files + [report_path]]
@@ -115,6 +117,22 @@ def _run(scenario, out, workers, dask, progress, best):
     files.append(report_path)
     return RunResult(out=out, files=tuple(files), report=report_path,
                      stable=inspection.stability.stable)
+
+
+def _plan_best(data):
+    """The plan's optimum as a (criterion, where, value) row of the answer; none if infeasible."""
+    from simulator.scenario.labels import axis_label
+
+    if not data.get("feasible"):
+        return []
+    where = []
+    for p in data["optimum"]["parameters"]:
+        where.append(f"{axis_label(p['path'], p['unit'])} = {p['number']:.4g}")
+        if p["unit"]:  # a scaled parameter also in its own unit, as the sweep's rows
+            where.append(f"{axis_label(p['path'])} = {p['value']:.4g}")
+    unit = f" {data['units']}" if data["units"] else ""
+    return [(f"plan: {data['objective_description']}", "; ".join(where),
+             f"{data['optimum']['objective']:.4g}{unit}")]
 
 
 def _derived_table(data):
