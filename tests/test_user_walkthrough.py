@@ -128,3 +128,13 @@ def test_a_plan_nothing_satisfies_exits_with_the_documented_status(tmp_path):
     done = run_cli("plan", path, "--no-refine")
     assert done.returncode == 3, done.stderr
     assert "no feasible point: max_power_w excludes every one" in done.stdout
+
+
+def test_an_averaged_spectrum_says_how_long_a_record_it_stands_for(tmp_path):
+    from conftest import run_cli
+
+    done = run_cli("record", SCENARIOS / "drum_microwave_mK.toml", "--out",
+                   tmp_path / "a.h5", "--averaged", "4096", "--duration", "2")
+    assert done.returncode == 0, done.stderr
+    # 2 s at the drum's automatic 8e7 samples/s
+    assert done.stdout.startswith("averaged spectrum of 2 s of record (1.6e+08 samples, iq, ")

@@ -280,7 +280,8 @@ def _averaged_spectrum(args, scenario):
     if args.json:
         print_json(summary)
         return EXIT_OK
-    print(f"averaged spectrum of {spectrum.n_samples} samples ({spectrum.kind}, "
+    print(f"averaged spectrum of {spectrum.n_samples / spectrum.sample_rate_hz:.6g} s of "
+          f"record ({spectrum.n_samples:.4g} samples, {spectrum.kind}, "
           f"{spectrum.averages} segments of {spectrum.segment_samples}, {spectrum.window} "
           f"window, {spectrum.resolution_hz:.6g} Hz bins, seed {spectrum.seed}) written to "
           f"{summary['out']}")
