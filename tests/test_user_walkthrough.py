@@ -138,3 +138,18 @@ def test_an_averaged_spectrum_says_how_long_a_record_it_stands_for(tmp_path):
     assert done.returncode == 0, done.stderr
     # 2 s at the drum's automatic 8e7 samples/s
     assert done.stdout.startswith("averaged spectrum of 2 s of record (1.6e+08 samples, iq, ")
+
+
+def test_plan_without_a_plan_points_to_an_example_that_exists():
+    import re
+
+    from simulator.errors import ScenarioError
+    from simulator.workflows.plan import check_plan
+
+    with pytest.raises(ScenarioError) as refused:
+        check_plan(load_scenario(SCENARIOS / "membrane_4k.toml"))
+    named = re.findall(r"(scenarios/\S+\.toml|docs/\S+\.md)", str(refused.value))
+    assert len(named) == 2
+    for path in named:
+        assert (SCENARIOS.parent / path).exists(), path
+    assert load_scenario(SCENARIOS.parent / named[0]).plan is not None

@@ -47,7 +47,9 @@ def check_plan(scenario):
     plan = scenario.plan
     if plan is None:
         raise ScenarioError("the scenario has no [plan] section; expected [plan] with "
-                            "[plan.parameters] to find the best operating point",
+                            "[plan.parameters] to find the best operating point (an "
+                            "example: scenarios/drum_microwave_plan.toml; "
+                            "docs/tutorial-feasibility.md, section 4a)",
                             source=scenario.source, key="plan")
     if plan.objective == "asymmetry_time" and scenario.detection.scheme != "heterodyne":
         raise ScenarioError(f"objective \"asymmetry_time\" with detection.scheme = "
