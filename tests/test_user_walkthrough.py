@@ -148,7 +148,7 @@ def test_plan_without_a_plan_points_to_an_example_that_exists():
 
     with pytest.raises(ScenarioError) as refused:
         check_plan(load_scenario(SCENARIOS / "membrane_4k.toml"))
-    named = re.findall(r"(scenarios/\S+\.toml|docs/\S+\.md)", str(refused.value))
+    named = re.findall(r"(scenarios/\S+\.toml|docs/\S+\.md)", refused.value.detail)
     assert len(named) == 2
     for path in named:
         assert (SCENARIOS.parent / path).exists(), path
