@@ -153,3 +153,16 @@ def test_plan_without_a_plan_points_to_an_example_that_exists():
     for path in named:
         assert (SCENARIOS.parent / path).exists(), path
     assert load_scenario(SCENARIOS.parent / named[0]).plan is not None
+
+
+def test_a_homodyne_records_budget_is_quoted_on_the_mechanical_line():
+    """It was quoted mid-band, where the homodyne record has no line at all."""
+    from simulator.workflows.spectrum import compute_spectrum, reference_frequency
+
+    result = compute_spectrum(System(load_scenario(
+        SCENARIOS / "microtoroid_room_temperature.toml")))
+    spectrum, line = result.spectrum, result.summary[0].anti_stokes
+    assert spectrum.sided == "one-sided"
+    k = reference_frequency(result)
+    assert abs(spectrum.frequency_hz[k] - abs(line.frequency_hz)) < line.linewidth_hz
+    assert spectrum.total[k] > 0.9 * spectrum.total.max()  # the thermal line is the peak

@@ -85,6 +85,8 @@ def reference_frequency(result):
     for s in result.summary:
         side = s.anti_stokes
         where = side.record_frequency_hz if result.at == "record" else side.frequency_hz
+        if not np.isfinite(where):  # a homodyne record: the line sits at |Ωm| in baseband
+            where = side.frequency_hz
         if spectrum.sided == "one-sided":
             where = abs(where)
         if np.isfinite(where) and f.min() <= where <= f.max():
