@@ -166,3 +166,16 @@ def test_a_homodyne_records_budget_is_quoted_on_the_mechanical_line():
     k = reference_frequency(result)
     assert abs(spectrum.frequency_hz[k] - abs(line.frequency_hz)) < line.linewidth_hz
     assert spectrum.total[k] > 0.9 * spectrum.total.max()  # the thermal line is the peak
+
+
+def test_the_trial_report_says_why_nothing_is_tested_with_few_trials():
+    from types import SimpleNamespace
+
+    from simulator.report.trial_report import _tests_in_words
+
+    untested = SimpleNamespace(quantities=[SimpleNamespace(level=None)] * 2)
+    tested = SimpleNamespace(quantities=[SimpleNamespace(level=0.0025),
+                                         SimpleNamespace(level=None)])
+    assert "No quantity is tested yet" in _tests_in_words(untested)
+    assert "—" not in _tests_in_words(untested)
+    assert "two-sided level of 0.0025 per quantity" in _tests_in_words(tested)

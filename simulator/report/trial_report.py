@@ -49,9 +49,19 @@ def _text(x):
     return "—" if x is None else x
 
 
-def _levels(result):
+def _tests_in_words(result):
+    """How the verdicts test, or why there is none yet (too few trials, no truth)."""
     levels = sorted({q.level for q in result.quantities if q.level is not None})
-    return ", ".join(f"{v:.2g}" for v in levels) or "— (no quantity tested)"
+    if not levels:
+        return ("No quantity is tested yet: a verdict needs a truth and enough successful "
+                "trials (each quantity's line above says which is missing); rerun with more "
+                "--trials, the trials done are kept. ")
+    return ("The verdict tests each at a two-sided level of "
+            f"{', '.join(f'{v:.2g}' for v in levels)} per quantity, a family-wise level "
+            "shared among the quantities with a truth (Bonferroni): the bias by Student's "
+            "t with N − 1 degrees of freedom, the pull width by its exact χ² interval, the "
+            "coverage by the Clopper–Pearson interval; each verdict names the statistic "
+            "and its threshold. ")
 
 
 def write_trial_report(result, scenario, estimator, path):
@@ -84,12 +94,7 @@ def write_trial_report(result, scenario, estimator, path):
         ("Verdicts", verdicts),
         ("Statistics", "<p>Expected for an unbiased estimator with honest uncertainties: "
                        "bias zero, pull width 1, coverage 68.3 % (1σ) and 95.4 % (2σ). "
-                       "The verdict tests each at a two-sided level of "
-                       f"{_levels(result)} per quantity, a family-wise level shared among "
-                       "the quantities with a truth (Bonferroni): the bias by Student's t "
-                       "with N − 1 degrees of freedom, the pull width by its exact χ² "
-                       "interval, the coverage by the Clopper–Pearson interval; each "
-                       "verdict names the statistic and its threshold.</p>" + statistics),
+                       + _tests_in_words(result) + "</p>" + statistics),
         ("Histograms and pulls", "\n".join(figures)),
         ("Failed trials", errors),
         ("Scenario", html.folded(f"scenario file ({scenario.source}), as run",
