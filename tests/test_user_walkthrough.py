@@ -179,3 +179,19 @@ def test_the_trial_report_says_why_nothing_is_tested_with_few_trials():
     assert "No quantity is tested yet" in _tests_in_words(untested)
     assert "—" not in _tests_in_words(untested)
     assert "two-sided level of 0.0025 per quantity" in _tests_in_words(tested)
+
+
+def test_a_record_larger_than_the_free_space_is_refused_before_any_work(tmp_path):
+    """`--duration 1e6` on the drum once began a 10¹⁴-sample file and filled the disk."""
+    import shutil
+
+    from conftest import run_cli
+
+    free = shutil.disk_usage(tmp_path).free
+    seconds = 2 * free / (4 * 8e7)  # int16 I and Q at the drum's 8e7 samples/s: twice the room
+    done = run_cli("record", SCENARIOS / "drum_microwave_mK.toml", "--out", tmp_path / "r.h5",
+                   "--duration", f"{seconds:.6g}", "--quiet")
+    assert done.returncode == 2, done.stderr
+    assert "GB free; expected a shorter --duration" in done.stderr
+    assert "Traceback" not in done.stderr
+    assert not list(tmp_path.iterdir())  # nothing written, no temporary file left

@@ -33,7 +33,7 @@ from pathlib import Path
 import numpy as np
 
 from simulator.errors import InputError
-from simulator.io.files import AtomicFile
+from simulator.io.files import AtomicFile, OutputError
 from simulator.records.generate import Record, Truth, record_header
 
 FORMAT = "noisechain-record"
@@ -71,6 +71,7 @@ class RecordFileWriter:
         if not self.path.parent.is_dir():
             raise InputError(f"output folder {str(self.path.parent)!r} does not exist; "
                              "create it first")
+        refuse_beyond_free_space(self.path, plan)
         self.output = AtomicFile(self.path, overwrite=overwrite)
         self.mech = None
         try:
@@ -263,6 +264,32 @@ def encode_chunk(counts, rows, deflate=True):
 def _counts_of(path):
     """The counts of a record file (the samples alone: nothing else is read)."""
     return load_record(path, samples_only=True)
+
+
+def record_bytes(plan):
+    """Bytes of the samples of ``plan`` as written uncompressed (the truth is small)."""
+    per_sample = (2 if plan.chain.record_kind == "iq" else 1) * (2 if plan.bits <= 16 else 4)
+    return plan.n_samples * per_sample
+
+
+def refuse_beyond_free_space(path, plan):
+    """Refuse, before any work, a record larger than the free space of its folder.
+
+    Without this a slip in --duration (seconds for milliseconds) fills the disk
+    for hours before the write fails. Deflate saves about a tenth
+    (docs/records.md), which this check does not count on.
+    """
+    import shutil
+
+    need = record_bytes(plan)
+    free = shutil.disk_usage(path.parent).free
+    if need > free:
+        raise OutputError(
+            f"output {str(path)!r}: a record of {plan.n_samples / plan.sample_rate_hz:.6g} s "
+            f"at {plan.sample_rate_hz:.6g} samples/s is {plan.n_samples:.4g} samples, "
+            f"{need / 1e9:.4g} GB, but the folder has {free / 1e9:.4g} GB free; expected a "
+            "shorter --duration, another folder, or --averaged N (the averaged spectrum "
+            "of the whole record, drawn from its law in milliseconds)")
 
 
 def load_record(path, *, start=0, stop=None, samples_only=False):
