@@ -51,7 +51,8 @@ def _system(item):
     """The System of ``item`` (a System, or a scenario built into one), checked stable."""
     from simulator.model.system import as_system
 
-    return as_system(item).require_stable()  # a clear error for an unstable point
+    # the detected tone in the drive's place; a clear error for an unstable point
+    return as_system(item, several_tones="detected").require_stable()
 
 
 def _sample_rate(system, sample_rate_hz=None):
