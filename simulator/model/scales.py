@@ -19,9 +19,10 @@ power is (I² + Q²)/(2Z),
 so that a white input-referred noise of n + ½ quanta (n added by the
 amplifier, ½ the vacuum) gives the power P = G h f (n + ½) B in a band B
 at the digitiser (Clerk et al., Rev. Mod. Phys. 82, 1155 (2010), Sec. V,
-for added noise referred to the amplifier's input). f is the drive
-frequency (the detected tone's, ``detection.tone``): the sidebands lie within Ωm of it, a relative error of Ωm/ω in
-the scale, common practice to neglect.
+for added noise referred to the amplifier's input). f is the frequency of
+the detected tone (``detection.tone``, the drive by default): the sidebands
+lie within Ωm of it, a relative error of Ωm/ω in the scale, common practice
+to neglect.
 
 References
 ----------
