@@ -202,3 +202,31 @@ max_power_w = 1e-10
     # the tones' powers add up: the blue probe below the limit, with the others above it
     louder = evaluate_plan_point(planned, planned.plan, [("tones[1].power_w", 5e-11)])
     assert louder.violations["max_power_w"] > 0
+
+
+def test_the_tutorial_table_of_schemes_is_current():
+    """docs/tutorial-feasibility.md §4b quotes each scheme's occupation and asymmetry time
+    for the bundled examples; recomputed here to the digits it prints."""
+    import dataclasses
+    import re
+
+    text = open("docs/tutorial-feasibility.md", encoding="utf-8").read()
+    files = {"drum": "scenarios/drum_two_probes.toml", "ring": "scenarios/ring_two_modes.toml"}
+    tones = {"cooling tone alone": None, "cooling tone, probes on (drive)": "drive",
+             "red probe": "red_probe", "blue probe": "blue_probe",
+             "resonant probe on the second mode": "probe"}
+    rows = re.findall(r"^\| (drum|ring) \| ([^|]+) \| ([\d.]+) \| ([^|]+) s \|$", text, re.M)
+    assert len(rows) == 6
+    for device, scheme, occupation, time_text in rows:
+        scenario = load_scenario(files[device])
+        tone = tones[scheme.strip()]
+        if tone is None:
+            scenario = dataclasses.replace(scenario, tones=(), cavity_modes=(), couplings=())
+            tone = "drive"
+        system = System(scenario.replace("detection.tone", tone))
+        mantissa, _, power = time_text.replace(" ", "").partition("×10")
+        quoted = float(mantissa) * 10.0 ** int(power.translate(str.maketrans(
+            "⁰¹²³⁴⁵⁶⁷⁸⁹", "0123456789"))) if power else float(mantissa)
+        assert steady_state(system).modes[0].occupation == pytest.approx(
+            float(occupation), abs=6e-4 * float(occupation) + 5e-4)
+        assert asymmetry_time(system).duration_s == pytest.approx(quoted, rel=0.05)
