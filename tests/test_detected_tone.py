@@ -230,3 +230,16 @@ def test_the_tutorial_table_of_schemes_is_current():
         assert steady_state(system).modes[0].occupation == pytest.approx(
             float(occupation), abs=6e-4 * float(occupation) + 5e-4)
         assert asymmetry_time(system).duration_s == pytest.approx(quoted, rel=0.05)
+
+
+def test_the_regime_verdict_checks_every_tone_cavity_mode():
+    """A strong single-photon coupling on the cooling tone's mode makes the linear engine
+    marginal there; reading the probe on the other mode does not hide it."""
+    from simulator.master.regime import regime_verdict
+
+    scenario = load_scenario("scenarios/ring_two_modes.toml").replace(
+        "mechanics[0].coupling_hz", 4e5).replace("drive.power_w", 1e-9)
+    system = System(scenario)
+    own = regime_verdict(system.detected.point)
+    assert own.level == "linear"  # the probe's mode alone
+    assert inspect_scenario(system).regime.level != "linear"

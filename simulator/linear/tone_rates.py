@@ -10,7 +10,8 @@ tone's photons, detuning and cooperativity C = 4 g_k²/(κc Γm), for
 """
 
 from simulator.linear.weak_coupling import scattering_rates
-from simulator.model.units import angular, ordinary
+from simulator.model.units import angular, ordinary, photon_energy_j
+from simulator.scenario.units import power_text
 
 
 def tone_rows(point, detected=None):
@@ -37,6 +38,8 @@ def tone_rows(point, detected=None):
                 "stokes_rate_hz": float(ordinary(up))})
         rows.append({"name": tone.name, "cavity_mode": cav.name,
                      "frequency_hz": float(tone.frequency_hz),
+                     "power_w": float(tone.input_photon_flux
+                                      * photon_energy_j(tone.frequency_hz)),
                      "photon_number": float(tone.photon_number),
                      "detuning_effective_hz": float(tone.detuning_effective_hz),
                      "detected": tone.name == detected, "modes": per_mode})
@@ -49,6 +52,7 @@ def tone_text(rows):
     for row in rows:
         mark = "   (detected)" if row["detected"] else ""
         lines += ["", f"tone {row['name']} on cavity mode {row['cavity_mode']}{mark}",
+                  f"  power                  {power_text(row['power_w'])}",
                   f"  intracavity photons    {row['photon_number']:.6g}",
                   f"  detuning effective     {row['detuning_effective_hz']:.6g} Hz"]
         for m in row["modes"]:

@@ -58,12 +58,13 @@ def detected_parts(scenario, point, model):
             "supported so far with [[tones]]: quiet tones, and the steady state with a "
             "noisy drive (simulator.linear.steady_state)")
     k = detected_index(scenario, point)
-    seen = point if k == 0 else _tone_point(scenario, point, k)
+    seen = point if k == 0 else tone_point_of(scenario, point, k)
     return seen, _detected_outputs(model, k)
 
 
-def _tone_point(scenario, point, k):
-    """The operating point with its one-tone fields taken from tone ``k``."""
+def tone_point_of(scenario, point, k):
+    """The operating point with its one-tone fields taken from tone ``k`` of ``point.tones``
+    (which, with the cavity modes, it keeps)."""
     from simulator.model.tone_point import coupling_matrix_hz
 
     tone = point.tones[k]

@@ -249,11 +249,12 @@ def inspect_scenario(system, *, feasibility=True):
                  "JSON); raise the drive power or the coupling"
                  for f in feasibility if not (math.isfinite(f["occupation_error_1s"]) and
                                               math.isfinite(f["asymmetry_time_s"] or 0.0))]
-    from simulator.master.regime import regime_verdict  # pure formulas, no QuTiP
+    from simulator.master.regime import LEVELS, regime_verdict  # pure formulas, no QuTiP
 
     occupations = None if steady is None else [ms.occupation for ms in steady.modes]
-    regime = regime_verdict(point, occupations,
-                            master_advice=master_equation_advice(point, occupations))
+    regime = max((regime_verdict(p, occupations,
+                                 master_advice=master_equation_advice(p, occupations))
+                  for p in _tone_points(system)), key=lambda v: LEVELS.index(v.level))
     laser = (() if steady is None or laser_noise.is_quiet(scenario)
              else _explained(system, occupation_report(system, steady)))
     warnings += [f"mode {ms.name}: the apparent (sideband ratio) occupation is not to be "
@@ -263,6 +264,18 @@ def inspect_scenario(system, *, feasibility=True):
     return Inspection(system=system, steady=steady,
                       warnings=tuple(warnings), feasibility=feasibility, regime=regime,
                       laser=laser)
+
+
+def _tone_points(system):
+    """The operating point seen from each tone (the detected one first), for the regime
+    checks: with several tones every cavity mode a tone drives is checked."""
+    point = system.point
+    if not point.several_tones:
+        return (point,)
+    from simulator.model.detected_tone import tone_point_of
+
+    return (point,) + tuple(tone_point_of(system.scenario, point, k)
+                            for k in range(len(point.tones)))
 
 
 def _explained(system, laser):
