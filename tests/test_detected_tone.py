@@ -182,8 +182,8 @@ def test_what_is_still_unsupported_is_refused():
 def test_tone_paths_are_sweepable_and_plannable():
     """Each tone's power and detuning are scenario paths; the sweep and the planner
     evaluate them (a probe's detuning moved changes its own lines only)."""
-    from simulator.workflows.plan import evaluate_plan_point
-    from simulator.workflows.sweep import evaluate_point
+    from simulator.workflows.plan import coordinates_of, evaluate_plan_point
+    from simulator.workflows.sweep import evaluate_point, sweep_points
 
     scenario = probes("blue")
     row = evaluate_point(scenario.to_toml(), [("tones[1].detuning_hz", OMEGA_HZ + 2 * DELTA_HZ),
@@ -197,6 +197,14 @@ max_power_w = 1e-10
 "tones[1].power_w" = { start = 1e-12, stop = 1e-9, num = 4, log = true }
 """
     planned = parse_scenario(plan_text)
+    assert [c.path for c in coordinates_of(planned)] == ["tones[1].power_w"]
+    swept = parse_scenario(scenario.to_toml() + """
+[sweep]
+[sweep.parameters]
+"tones[0].detuning_hz" = { start = -1.2, stop = -1.1, num = 3, unit = "mechanics[0].frequency_hz" }
+""")
+    values = [dict(a)["tones[0].detuning_hz"] for _, a in sweep_points(swept)]
+    assert values == pytest.approx([-1.2 * OMEGA_HZ, -1.15 * OMEGA_HZ, -1.1 * OMEGA_HZ])
     outcome = evaluate_plan_point(planned, planned.plan, [("tones[1].power_w", 1e-11)])
     assert np.isfinite(outcome.objective) and outcome.violations["max_power_w"] < 0
     # the tones' powers add up: the blue probe below the limit, with the others above it
