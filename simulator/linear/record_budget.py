@@ -250,7 +250,7 @@ def _named_lines(raw, chain_group, scenario, chain):
     if share < 1.0:
         out["single-ended detection: half the signal to the combiner's unused port"] = (
             eta_d * (share - 1.0) * excess)
-    n_add = scenario.electronics.amplifier_added_quanta
+    n_add = chain.added_quanta  # from the noise temperature too (scenario.receiver)
     if "added." in chain_lines and n_add > 0:
         label = (f"amplifier added noise beyond heterodyne's half quantum (n_add − ½ = "
                  f"{n_add - 0.5:.4g})" if chain.receiver == "iq"
