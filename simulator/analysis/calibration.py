@@ -76,7 +76,7 @@ class Device:
         from simulator.analysis.thermometry import Calibration
         from simulator.model.system import as_system
 
-        system = as_system(system)
+        system = as_system(system, stage="simulator.analysis.calibration.Device.from_scenario")
         known = Calibration.from_scenario(system, mode)
         return cls(photon_number=system.point.photon_number, **{
             f.name: getattr(known, f.name) for f in dataclasses.fields(cls)

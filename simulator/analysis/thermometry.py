@@ -57,7 +57,8 @@ class Calibration:
         """Nominal calibration from a system (or scenario): its operating point, not the truth."""
         from simulator.model.system import as_system
 
-        system = as_system(system)
+        system = as_system(
+            system, stage="simulator.analysis.thermometry.Calibration.from_scenario")
         point = system.point
         mp = point.modes[mode]
         return cls(cavity_linewidth_hz=point.cavity_linewidth_hz,

@@ -125,7 +125,7 @@ def transduction(spectrum, system, mode=0):
     (one-sided f): η|G_θ(2πf)|², so that S_hom/transduction is the one-sided
     displacement density 2S̄_xx.
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, stage="simulator.linear.referral.transduction").require_stable()
     j = mode_index(system.point, mode)
     return _gain(spectrum, system, j, spectrum.frequency_hz)
 
@@ -170,7 +170,7 @@ def to_displacement(spectrum, system, mode=0):
     back-action terms add ±ħ Im χ, so the anti-Stokes side shows n and the
     Stokes side n + 1 quanta.
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, stage="simulator.linear.referral.to_displacement").require_stable()
     point, model = system.point, system.model
     j = mode_index(point, mode)
     f = spectrum.frequency_hz
@@ -193,7 +193,7 @@ def to_force(spectrum, system, mode=0):
     the mode. References: "standard quantum limit" ħ/|χ_eff| and "zero-point
     force" ħ|Im χ_eff|/|χ_eff|² (doubled when one-sided).
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, stage="simulator.linear.referral.to_force").require_stable()
     x = to_displacement(spectrum, system, mode)
     point = system.point
     j = mode_index(point, mode)
@@ -283,7 +283,8 @@ def imprecision_backaction(system, frequency_hz, mode=0, *, quadrature_angle=np.
     (G_θ = 0, e.g. the amplitude quadrature at Δ = 0) the imprecision is
     infinite and the correlation undefined (inf or NaN).
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, stage="simulator.linear.referral.imprecision_backaction")
+    system = system.require_stable()
     scenario, point, model = system.scenario, system.point, system.model
     j = mode_index(point, mode)
     if scheme not in ("homodyne", "heterodyne"):

@@ -175,7 +175,8 @@ def sideband_summary(system, *, at_digitiser=True):
     drive that also reaches the detector the areas carry its interference
     with the motion it drives: the false asymmetry (docs/laser-noise.md).
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, stage="simulator.linear.sidebands.sideband_summary")
+    system = system.require_stable()
     scenario, point, model = system.scenario, system.point, system.model
     steady = steady_state(system)
     eta = scenario.detection.efficiency

@@ -20,7 +20,6 @@ record's duration or chunking, its seed) keeps the operating point and model.
 """
 
 import functools
-import sys
 
 from simulator.errors import InputError
 from simulator.model.chain import detection_chain
@@ -126,27 +125,24 @@ def _build(scenario):
     return point, model, stability(model, point)
 
 
-def as_system(item, *, several_tones=False):
+def as_system(item, *, several_tones=False, stage=None):
     """``item`` if it is a :class:`System`; a System built from it if it is a Scenario.
 
     The one-line path for scripts (``steady_state(scenario)``); a caller that
     evaluates one scenario several ways builds the System once and passes it.
     Every stage takes its system through here: a system with several tones is
-    refused with :class:`~simulator.errors.InputError` naming the calling
-    function, unless the caller says it handles them (``several_tones=True``).
+    refused with :class:`~simulator.errors.InputError` naming ``stage`` (the
+    calling stage's public name, ``"module.function"``, given by the caller), unless
+    the caller says it handles them (``several_tones=True``).
     """
-    if isinstance(item, System):
-        return item if several_tones else item.require_one_tone(_caller())
     from simulator.scenario.loader import Scenario
 
     if isinstance(item, Scenario):
-        system = System(item)
-        return system if several_tones else system.require_one_tone(_caller())
-    raise TypeError(f"expected a simulator.System or a simulator.scenario.loader.Scenario; got "
-                    f"{type(item).__name__}")
+        item = System(item)
+    elif not isinstance(item, System):
+        raise TypeError(f"expected a simulator.System or a simulator.scenario.loader.Scenario; "
+                        f"got {type(item).__name__}")
+    return item if several_tones else item.require_one_tone(stage or _UNNAMED_STAGE)
 
 
-def _caller():
-    """``module.function`` of the stage that called :func:`as_system`, for messages."""
-    frame = sys._getframe(2)
-    return f"{frame.f_globals.get('__name__', '?')}.{frame.f_code.co_name}"
+_UNNAMED_STAGE = "this computation"  # for a caller that does not name its stage

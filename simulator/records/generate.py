@@ -158,7 +158,7 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
     from simulator.model.tone import tone_amplitude
     from simulator.records.discretize import discretize, innovations_form
 
-    system = as_system(system)
+    system = as_system(system, stage="simulator.records.generate.plan_record")
     scenario = system.scenario
     seed = scenario.scenario.seed if seed is None else seed
     if (isinstance(seed, bool) or not isinstance(seed, (int, np.integer))

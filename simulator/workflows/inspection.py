@@ -217,7 +217,7 @@ def inspect_scenario(system, *, feasibility=True):
     Unlike :func:`simulator.linear.steady_state.steady_state`, an unstable operating
     point does not raise: the report says so and carries no steady state.
     """
-    system = as_system(system)
+    system = as_system(system, stage="simulator.workflows.inspection.inspect_scenario")
     scenario, point, verdict = system.scenario, system.point, system.stability
     warnings = []
     if point.bistable:

@@ -78,7 +78,7 @@ def truth_table(scenario):
     from simulator.linear.steady_state import steady_state
     from simulator.model.system import as_system
 
-    system = as_system(scenario)
+    system = as_system(scenario, stage="simulator.workflows.trial.truth_table")
     point, steady = system.point, steady_state(system)
     table = {"cavity_occupation": steady.cavity_occupation}
     for j, (mp, ms) in enumerate(zip(point.modes, steady.modes, strict=True)):
