@@ -319,7 +319,9 @@ def to_photocurrent(spectrum, scenario, *, lo_power_w, quantum_efficiency,
     spectrum : simulator.linear.spectrum.Spectrum
         Heterodyne or homodyne spectrum in shot-noise units.
     scenario : simulator.scenario.loader.Scenario
-        Gives the optical frequency (photon energy) of the local oscillator.
+        Gives the optical frequency (photon energy) of the local oscillator. An
+        optical receiver only (``detection.receiver = "optical"``); a microwave
+        one is refused (its record is in volts: ``record_budget.in_volts``).
     lo_power_w : float
         Local-oscillator power on the detector (W).
     quantum_efficiency : float
@@ -350,6 +352,12 @@ def to_photocurrent(spectrum, scenario, *, lo_power_w, quantum_efficiency,
     Schottky, Ann. Phys. 362, 541 (1918); Yuen and Chan, Opt. Lett. 8, 177
     (1983) (balanced homodyne: shot-noise level 2 e I_dc of the LO current).
     """
+    if scenario.detection.receiver != "optical":
+        raise InputError(
+            f'to_photocurrent: detection.receiver = "{scenario.detection.receiver}" has no '
+            "photodetector or optical local oscillator; expected an optical receiver. The "
+            "record of an amplifier chain is in volts at the digitiser: "
+            "simulator.linear.record_budget.in_volts(digitiser_spectrum(system))")
     _positive("lo_power_w", lo_power_w)
     if not 0.0 < quantum_efficiency <= 1.0:
         raise InputError(f"quantum_efficiency = {quantum_efficiency!r}; expected a number "
