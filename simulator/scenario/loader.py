@@ -308,7 +308,8 @@ def _build(cls, data, path, source):
             if slip:
                 raise ScenarioError(f"unknown key {key!r} in {label}; {slip}",
                                     source=source, key=_key(path, key))
-            close = difflib.get_close_matches(key, list(fields), n=1, cutoff=0.5)
+            close = difflib.get_close_matches(key, [*fields, *units.dbm_keys(cls)], n=1,
+                                              cutoff=0.5)
             hint = f"; did you mean {close[0]!r}?" if close else ""
             valid = ", ".join(fields)
             raise ScenarioError(f"unknown key {key!r} in {label}{hint} "
