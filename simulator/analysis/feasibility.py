@@ -61,7 +61,7 @@ def _sample_rate(system, sample_rate_hz=None):
     ``math.inf`` stands for the continuous record (no digitiser: no sinc², no
     aliasing, no band limit), the limit the bound approaches as fs grows.
     """
-    from simulator.model.chain import record_sample_rate
+    from simulator.model.sample_rate import record_sample_rate
 
     if sample_rate_hz is None:
         return record_sample_rate(system.scenario, system.chain)
@@ -118,7 +118,7 @@ def fisher_matrix(system, paths, *, frequency_hz=None, sample_rate_hz=None):
         the sampled record.
     sample_rate_hz : float, optional
         The digitiser's rate; default ``digitizer.sample_rate_hz`` or the
-        automatic rate of :func:`simulator.model.chain.automatic_sample_rate`;
+        automatic rate of :func:`simulator.model.sample_rate.automatic_sample_rate`;
         ``math.inf`` for the continuous record (no digitiser).
 
     Returns

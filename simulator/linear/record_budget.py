@@ -46,8 +46,9 @@ from simulator.errors import InputError
 from simulator.linear.budget import CHUNK, FLOOR, Paths, budget_pieces, source_groups
 from simulator.linear.spectra import adaptive_grid, checked_grid, provenance, tone_lines
 from simulator.linear.spectrum import Spectrum
-from simulator.model.chain import detection_chain, record_sample_rate
+from simulator.model.chain import detection_chain
 from simulator.model.laser_noise import vacuum_intensity
+from simulator.model.sample_rate import record_sample_rate
 from simulator.model.system import as_system
 from simulator.model.units import angular
 
