@@ -134,8 +134,9 @@ class Sweep:
         "also write a synthetic record at every stable point (DIR/records/<point>.h5; "
         "seeds spawned per point from scenario.seed)", default=False)
     spectra: bool = param(
-        "also write the analytic spectrum at every stable point (DIR/spectra/<point>.nc)",
-        default=False)
+        "also write the analytic spectrum at the cavity port (that of `noisechain spectrum "
+        "--at cavity`, before the detection chain) at every stable point "
+        "(DIR/spectra/<point>.nc)", default=False)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
