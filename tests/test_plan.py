@@ -238,6 +238,20 @@ def test_asymmetry_objective_needs_heterodyne():
         plan_scenario(scenario)
 
 
+def test_feasibility_objectives_refuse_several_tones():
+    """Before this check every point failed inside the bound and the plan read 'no feasible
+    point'; the occupation objective (the steady state supports tones) still runs."""
+    tone = '[[tones]]\nname = "probe"\npower_w = 1e-7\ndetuning_hz = 1.5e6\n'
+    for objective in ("asymmetry_time", "occupation_error"):
+        scenario = _with_plan(MEMBRANE, f'[plan]\nobjective = "{objective}"\n'
+                              '[plan.parameters]\n"drive.power_w" = [1e-6]\n' + tone)
+        with pytest.raises(ScenarioError, match="do not yet support several drive tones"):
+            plan_scenario(scenario)
+    scenario = _with_plan(MEMBRANE, '[plan]\nobjective = "occupation"\n'
+                          '[plan.parameters]\n"drive.power_w" = [1e-6, 2e-6]\n' + tone)
+    assert plan_scenario(scenario, refine=False).found.best_outcome.objective > 0
+
+
 def test_search_on_a_known_function():
     # f = (log10 x + 7)² + (y − 0.3)²: minimum at x = 1e-7, y = 0.3; constraint y ≤ 0.2
     def evaluate(values):

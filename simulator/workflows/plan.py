@@ -55,6 +55,11 @@ def check_plan(scenario):
                             "detection of both sidebands; expected scheme = \"heterodyne\" "
                             "or another objective", source=scenario.source,
                             key="plan.objective")
+    if scenario.tones and plan.objective != "occupation":
+        raise ScenarioError(f"objective \"{plan.objective}\" with [[tones]]: the feasibility "
+                            "bounds do not yet support several drive tones; expected "
+                            "objective = \"occupation\" (the steady state does) or no "
+                            "[[tones]] tables", source=scenario.source, key="plan.objective")
     if plan.heating_per_photon_k > 0 or plan.heating_k_per_w > 0:
         for i, mode in enumerate(scenario.mechanics):
             if mode.bath_temperature_k is None:
