@@ -27,3 +27,20 @@ def test_bad_record_options_are_refused(tmp_path, capsys, options, says):
     err = capsys.readouterr().err
     assert re.search(says, err) and "Traceback" not in err
     assert not out.exists()
+
+
+@pytest.mark.parametrize("averaged, says", [
+    ((1, "hann"), "--averaged 1: expected segments of 2 to the record's"),
+    ((64, "nonsense"), "window = 'nonsense'"),
+])
+def test_trial_checks_its_averaged_option_before_any_trial(tmp_path, averaged, says):
+    """Before this check every trial failed alike, reported as the estimator's failure."""
+    from simulator.errors import InputError
+    from simulator.scenario.loader import load_scenario
+    from simulator.workflows.trial import run_trials
+
+    scenario = load_scenario("tests/data/fast_thermometry.toml")
+    with pytest.raises(InputError, match=says):
+        run_trials(scenario, "tests.estimators_for_tests:spectrum_floor", 2,
+                   tmp_path / "trial", workers=1, progress=False, averaged=averaged)
+    assert not (tmp_path / "trial").exists()
