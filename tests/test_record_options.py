@@ -15,6 +15,7 @@ DEMO = "simulator/data/demo.toml"
     (["--averaged", "64", "--compress", "--threads", "2"],
      "--compress, --threads with --averaged: expected none"),
     (["--averaged", "64", "--form", "innovations"], "--form with --averaged"),
+    (["--engine", "master", "--threads", "2"], "--threads with --engine master"),
     (["--averaged", "64", "--window", "nonsense"],
      "window = 'nonsense': .*expected a scipy.signal.get_window name"),
     (["--averaged", "64", "--window", "kaiser"], "window = 'kaiser': .*needs no parameter"),

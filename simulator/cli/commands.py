@@ -266,17 +266,18 @@ def _require_record_options(args):
     would silently ignore."""
     if args.threads is not None and args.threads < 1:
         raise InputError(f"--threads {args.threads}: expected a positive number of threads")
-    if args.averaged is None:
-        if args.window is not None:
-            raise InputError(f"--window {args.window}: expected it only with --averaged N "
-                             "(it is the averaged periodogram's window)")
-        return
+    if args.averaged is None and args.window is not None:
+        raise InputError(f"--window {args.window}: expected it only with --averaged N "
+                         "(it is the averaged periodogram's window)")
     unused = [name for name, given in (("--compress", args.compress),
                                        ("--threads", args.threads is not None),
                                        ("--form", args.form != "auto")) if given]
-    if unused:
+    if unused and args.averaged is not None:
         raise InputError(f"{', '.join(unused)} with --averaged: expected none of them (an "
                          "averaged spectrum is drawn from its law, not from time samples)")
+    if unused and args.engine == "master":
+        raise InputError(f"{', '.join(unused)} with --engine master: expected none of them "
+                         "(they shape the linear engine's records)")
 
 
 def _averaged_spectrum(args, scenario):
