@@ -16,6 +16,7 @@ DEMO = "simulator/data/demo.toml"
      "--compress, --threads with --averaged: expected none"),
     (["--averaged", "64", "--form", "innovations"], "--form with --averaged"),
     (["--engine", "master", "--threads", "2"], "--threads with --engine master"),
+    (["--threads", "100000"], "workers = 100000 threads; expected at most"),
     (["--averaged", "64", "--window", "nonsense"],
      "window = 'nonsense': .*expected a scipy.signal.get_window name"),
     (["--averaged", "64", "--window", "kaiser"], "window = 'kaiser': .*needs no parameter"),
