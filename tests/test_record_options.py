@@ -1,6 +1,6 @@
-"""``noisechain record``: options out of range, or that the chosen output would ignore, are
-refused with a message naming the option, its value and what was expected (status 2, no
-traceback, no file)."""
+"""``noisechain record`` (and ``spectrum``, ``trial``): options out of range, or that the
+chosen output would ignore, are refused with a message naming the option, its value and
+what was expected (status 2, no traceback, no file)."""
 
 import pytest
 
@@ -46,3 +46,9 @@ def test_trial_checks_its_averaged_option_before_any_trial(tmp_path, averaged, s
         run_trials(scenario, "tests.estimators_for_tests:spectrum_floor", 2,
                    tmp_path / "trial", workers=1, progress=False, averaged=averaged)
     assert not (tmp_path / "trial").exists()
+
+
+def test_a_homodyne_angle_with_heterodyne_detection_is_refused(capsys):
+    """It was ignored: the heterodyne spectrum does not depend on a quadrature angle."""
+    assert main(["spectrum", DEMO, "--angle-deg", "30"]) == 2
+    assert "--angle-deg 30 with detection.scheme = 'heterodyne'" in capsys.readouterr().err

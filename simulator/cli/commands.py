@@ -183,6 +183,10 @@ def cmd_spectrum(args):
     )
 
     scenario = load_scenario(args.scenario)
+    if args.angle_deg is not None and scenario.detection.scheme != "homodyne":
+        raise InputError(f"--angle-deg {args.angle_deg:g} with detection.scheme = "
+                         f"{scenario.detection.scheme!r}: expected it only for homodyne "
+                         "detection (a heterodyne record holds both quadratures)")
     system = System(scenario)  # built once: spectrum, summary and referral share it
     angle = None if args.angle_deg is None else math.radians(args.angle_deg)
     result = compute_spectrum(system, at=args.at, engine=args.engine,
