@@ -90,9 +90,9 @@ class ReadOnlyTable(collections.abc.Mapping):
 def parse_parameters(value, key, source):
     """Check ``[sweep.parameters]`` and freeze it (read-only mappings)."""
     if not isinstance(value, dict) or not value:
-        raise ScenarioError(f"{value!r} is not a table of swept parameters; expected "
-                            "[sweep.parameters] mapping parameter paths to a list of "
-                            "values or a range table", source=source, key=key)
+        raise ScenarioError(f"{value!r} is not a table of parameters; expected "
+                            f"[{key}] mapping parameter paths to a list of values or a "
+                            "range table", source=source, key=key)
     frozen = {}
     for path, spec in value.items():
         where = f'{key}."{path}"'
