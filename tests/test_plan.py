@@ -238,6 +238,24 @@ def test_asymmetry_objective_needs_heterodyne():
         plan_scenario(scenario)
 
 
+def test_feasibility_objectives_with_several_tones_read_the_detected_tone():
+    """With [[tones]] every objective is evaluated through the detected tone's receiver
+    (here the drive's): the plan's objective equals the bound computed directly."""
+    from simulator.analysis.feasibility import asymmetry_time, occupation_bound
+
+    tone = '[[tones]]\nname = "probe"\npower_w = 1e-7\ndetuning_hz = 1.5e6\n'
+    for objective in ("asymmetry_time", "occupation_error", "occupation"):
+        scenario = _with_plan(MEMBRANE, f'[plan]\nobjective = "{objective}"\n'
+                              '[plan.parameters]\n"drive.power_w" = [1e-6]\n' + tone)
+        found = plan_scenario(scenario, refine=False).found
+        assert math.isfinite(found.best_outcome.objective) and found.best_outcome.objective > 0
+        if objective == "asymmetry_time":
+            system = System(base_of(scenario).replace("drive.power_w", 1e-6))
+            assert found.best_outcome.objective == pytest.approx(
+                asymmetry_time(system).duration_s, rel=1e-9)
+            assert occupation_bound(system).error_one_second > 0
+
+
 def test_search_on_a_known_function():
     # f = (log10 x + 7)² + (y − 0.3)²: minimum at x = 1e-7, y = 0.3; constraint y ≤ 0.2
     def evaluate(values):

@@ -47,8 +47,9 @@ from simulator.model.optomechanics import mode_states
 ASYMMETRY_SIGNIFICANCE = 5.0
 
 
-def _system(item):
-    """The System of ``item`` (a System, or a scenario built into one), checked stable."""
+def _system(item, stage):
+    """The System of ``item`` (a System, or a scenario built into one), checked stable;
+    ``stage`` names the public function for the several-tones refusal."""
     from simulator.model.system import as_system
 
     # the detected tone in the drive's place; a clear error for an unstable point
@@ -61,7 +62,7 @@ def _sample_rate(system, sample_rate_hz=None):
     ``math.inf`` stands for the continuous record (no digitiser: no sinc², no
     aliasing, no band limit), the limit the bound approaches as fs grows.
     """
-    from simulator.model.chain import record_sample_rate
+    from simulator.model.sample_rate import record_sample_rate
 
     if sample_rate_hz is None:
         return record_sample_rate(system.scenario, system.chain)
@@ -118,7 +119,7 @@ def fisher_matrix(system, paths, *, frequency_hz=None, sample_rate_hz=None):
         the sampled record.
     sample_rate_hz : float, optional
         The digitiser's rate; default ``digitizer.sample_rate_hz`` or the
-        automatic rate of :func:`simulator.model.chain.automatic_sample_rate`;
+        automatic rate of :func:`simulator.model.sample_rate.automatic_sample_rate`;
         ``math.inf`` for the continuous record (no digitiser).
 
     Returns
@@ -144,7 +145,7 @@ def fisher_matrix(system, paths, *, frequency_hz=None, sample_rate_hz=None):
     """
     from simulator.model.units import angular
 
-    system = _system(system)
+    system = _system(system, "simulator.analysis.feasibility.fisher_matrix")
     fs = _sample_rate(system, sample_rate_hz)
     if frequency_hz is not None:
         omega = angular(frequency_hz)
@@ -205,7 +206,7 @@ def occupation_bound(system, mode=0, paths=None, *, sample_rate_hz=None):
     the cost of estimating the nuisance parameters. The record is the
     sampled one (:func:`fisher_matrix`), at ``sample_rate_hz`` if given.
     """
-    system = _system(system)
+    system = _system(system, "simulator.analysis.feasibility.occupation_bound")
     paths = tuple(paths) if paths is not None else default_paths(system.scenario, mode)
     return occupation_bounds(system, [mode], [paths], sample_rate_hz=sample_rate_hz)[0]
 
@@ -230,7 +231,7 @@ def occupation_bounds(system, modes=None, paths=None, steady=None, *, sample_rat
     -------
     list of OccupationBound
     """
-    system = _system(system)
+    system = _system(system, "simulator.analysis.feasibility.occupation_bounds")
     scenario = system.scenario
     modes = range(len(scenario.mechanics)) if modes is None else modes
     paths = [default_paths(scenario, j) for j in modes] if paths is None else paths
@@ -345,7 +346,7 @@ def asymmetry_time(system, mode=0, significance=ASYMMETRY_SIGNIFICANCE, steady=N
     from simulator.analysis.thermometry import Calibration, cavity_filter
     from simulator.linear.steady_state import steady_state
 
-    system = _system(system)
+    system = _system(system, "simulator.analysis.feasibility.asymmetry_time")
     scenario = system.scenario
     if scenario.detection.scheme != "heterodyne":
         raise InputError(f"detection.scheme = {scenario.detection.scheme!r}: the sideband "

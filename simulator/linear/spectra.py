@@ -147,12 +147,18 @@ def _efficiency(scenario, efficiency):
 def _grid(frequency_hz, model, one_sided):
     if frequency_hz is None:
         return adaptive_grid(model, one_sided=one_sided)
+    return checked_grid(frequency_hz, one_sided, "homodyne")
+
+
+def checked_grid(frequency_hz, one_sided, what):
+    """``frequency_hz`` as a float array, or :class:`InputError` if it is not a non-empty 1-D
+    array of finite frequencies, or has negative ones for a one-sided (``what``) spectrum."""
     f = np.asarray(frequency_hz, dtype=float)
     if f.ndim != 1 or f.size == 0 or not np.all(np.isfinite(f)):
         raise InputError(f"frequency grid of shape {f.shape}; expected a non-empty "
                          "one-dimensional array of finite frequencies in Hz")
     if one_sided and np.any(f < 0):
-        raise InputError(f"homodyne frequency grid has negative values (min {f.min()!r} "
+        raise InputError(f"{what} frequency grid has negative values (min {f.min()!r} "
                          "Hz); a one-sided spectrum needs f >= 0")
     return f
 

@@ -25,7 +25,6 @@ record's duration or chunking, its seed) keeps the operating point and model.
 """
 
 import functools
-import sys
 
 from simulator.errors import InputError
 from simulator.model.chain import detection_chain
@@ -144,16 +143,17 @@ def _build(scenario):
     return point, model, stability(model, point)
 
 
-def as_system(item, *, several_tones=False):
+def as_system(item, *, several_tones=False, stage=None):
     """``item`` if it is a :class:`System`; a System built from it if it is a Scenario.
 
     The one-line path for scripts (``steady_state(scenario)``); a caller that
     evaluates one scenario several ways builds the System once and passes it.
     Every stage takes its system through here: a system with several tones is
-    refused with :class:`~simulator.errors.InputError` naming the calling
-    function, unless the caller says it handles them: ``several_tones=True``
-    (the whole system, every tone's field alike) or ``several_tones="detected"``
-    (its :attr:`System.detected` view, the detected tone in the drive's place).
+    refused with :class:`~simulator.errors.InputError` naming ``stage`` (the
+    calling stage's public name, ``"module.function"``, given by the caller), unless
+    the caller says it handles them: ``several_tones=True`` (the whole system, every
+    tone's field alike) or ``several_tones="detected"`` (its :attr:`System.detected`
+    view, the detected tone in the drive's place).
     """
     from simulator.scenario.loader import Scenario
 
@@ -164,10 +164,7 @@ def as_system(item, *, several_tones=False):
                         f"got {type(item).__name__}")
     if several_tones == "detected":
         return item.detected
-    return item if several_tones else item.require_one_tone(_caller())
+    return item if several_tones else item.require_one_tone(stage or _UNNAMED_STAGE)
 
 
-def _caller():
-    """``module.function`` of the stage that called :func:`as_system`, for messages."""
-    frame = sys._getframe(2)
-    return f"{frame.f_globals.get('__name__', '?')}.{frame.f_code.co_name}"
+_UNNAMED_STAGE = "this computation"  # for a caller that does not name its stage

@@ -153,7 +153,7 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
     See :func:`simulator.workflows.record.simulate_record` for the parameters.
     """
     from simulator.linear.steady_state import steady_state
-    from simulator.model.chain import automatic_sample_rate
+    from simulator.model.sample_rate import record_sample_rate
     from simulator.model.system import as_system
     from simulator.model.tone import tone_amplitude
     from simulator.records.discretize import discretize, innovations_form
@@ -184,7 +184,7 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
 
     point, steady, chain = system.point, steady_state(system), system.chain
     det, dig = scenario.detection, scenario.digitizer
-    fs = dig.sample_rate_hz or automatic_sample_rate(chain, det.intermediate_frequency_hz)
+    fs = record_sample_rate(scenario, chain)
     n = int(round(scenario.record.duration_s * fs))
     if n < 1:
         raise InputError(f"duration {scenario.record.duration_s!r} s at {fs:.6g} samples/s "

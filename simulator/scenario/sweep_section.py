@@ -90,9 +90,9 @@ class ReadOnlyTable(collections.abc.Mapping):
 def parse_parameters(value, key, source):
     """Check ``[sweep.parameters]`` and freeze it (read-only mappings)."""
     if not isinstance(value, dict) or not value:
-        raise ScenarioError(f"{value!r} is not a table of swept parameters; expected "
-                            "[sweep.parameters] mapping parameter paths to a list of "
-                            "values or a range table", source=source, key=key)
+        raise ScenarioError(f"{value!r} is not a table of parameters; expected "
+                            f"[{key}] mapping parameter paths to a list of values or a "
+                            "range table", source=source, key=key)
     frozen = {}
     for path, spec in value.items():
         where = f'{key}."{path}"'
@@ -134,8 +134,9 @@ class Sweep:
         "also write a synthetic record at every stable point (DIR/records/<point>.h5; "
         "seeds spawned per point from scenario.seed)", default=False)
     spectra: bool = param(
-        "also write the analytic spectrum at every stable point (DIR/spectra/<point>.nc)",
-        default=False)
+        "also write the analytic spectrum at the cavity port (that of `noisechain spectrum "
+        "--at cavity`, before the detection chain) at every stable point "
+        "(DIR/spectra/<point>.nc)", default=False)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""

@@ -22,6 +22,7 @@ from simulator.scenario.sections import (
     MIN_DRIVE_POWER_W,
     IntensityNoise,
     PhaseNoise,
+    port_problems,
 )
 
 _frozen = dataclasses.dataclass(frozen=True, kw_only=True)
@@ -51,11 +52,7 @@ class CavityMode:
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
-        if self.external_linewidth_hz > self.linewidth_hz:
-            yield ("external_linewidth_hz",
-                   f"{self.external_linewidth_hz!r} is larger than linewidth_hz = "
-                   f"{self.linewidth_hz!r}; expected external_linewidth_hz ≤ linewidth_hz "
-                   "(the external port is part of the total loss)")
+        yield from port_problems(self)
 
 
 @_frozen
