@@ -117,6 +117,11 @@ def test_a_bad_dbm_value_is_refused_naming_the_dbm_key(section, key, value, word
     assert info.value.key == f"{section}.{key}"
 
 
+def test_a_misspelt_dbm_key_is_pointed_to_the_dbm_key():
+    with pytest.raises(ScenarioError, match="did you mean 'power_dbm'"):
+        make_scenario(drive={"power_w": None, "power_dBm": -30.0})
+
+
 def test_a_sweep_over_a_dbm_path_sets_the_watt_power():
     s = make_scenario(sweep={"parameters": {"drive.power_dbm": {"start": -40.0, "stop": -20.0,
                                                                 "num": 3}}})

@@ -238,6 +238,24 @@ def test_asymmetry_objective_needs_heterodyne():
         plan_scenario(scenario)
 
 
+def test_feasibility_objectives_with_several_tones_read_the_detected_tone():
+    """With [[tones]] every objective is evaluated through the detected tone's receiver
+    (here the drive's): the plan's objective equals the bound computed directly."""
+    from simulator.analysis.feasibility import asymmetry_time, occupation_bound
+
+    tone = '[[tones]]\nname = "probe"\npower_w = 1e-7\ndetuning_hz = 1.5e6\n'
+    for objective in ("asymmetry_time", "occupation_error", "occupation"):
+        scenario = _with_plan(MEMBRANE, f'[plan]\nobjective = "{objective}"\n'
+                              '[plan.parameters]\n"drive.power_w" = [1e-6]\n' + tone)
+        found = plan_scenario(scenario, refine=False).found
+        assert math.isfinite(found.best_outcome.objective) and found.best_outcome.objective > 0
+        if objective == "asymmetry_time":
+            system = System(base_of(scenario).replace("drive.power_w", 1e-6))
+            assert found.best_outcome.objective == pytest.approx(
+                asymmetry_time(system).duration_s, rel=1e-9)
+            assert occupation_bound(system).error_one_second > 0
+
+
 def test_search_on_a_known_function():
     # f = (log10 x + 7)² + (y − 0.3)²: minimum at x = 1e-7, y = 0.3; constraint y ≤ 0.2
     def evaluate(values):
@@ -374,3 +392,17 @@ def test_occupation_error_objective_is_the_cramer_rao_bound():
     out = evaluate_plan_point(base, plan, [("drive.power_w", 1e-6)])
     bound = occupation_bound(System(base.replace("drive.power_w", 1e-6)), 0)
     assert out.objective == pytest.approx(bound.error_one_second / 2.0)
+
+
+def test_flatness_of_a_power_in_dbm_is_ten_percent_of_the_power():
+    """±10 % of a level in dBm would be tens of decibels; the probe moves the power by ±10 %."""
+    from simulator.analysis.planner import in_decibels, relative_change
+
+    best = -70.9
+    for change in (-0.1, 0.1):
+        probe = best + 10 * math.log10(1 + change)
+        assert relative_change("drive.power_dbm", probe, best, 50.0) == pytest.approx(change)
+        watts = 1e-3 * 10 ** (probe / 10)
+        assert watts / (1e-3 * 10 ** (best / 10)) == pytest.approx(1 + change)
+    assert in_decibels("electronics.amplifier_gain_db") and not in_decibels("drive.power_w")
+    assert relative_change("drive.power_w", 1.1e-9, 1e-9, 1.0) == pytest.approx(0.1)

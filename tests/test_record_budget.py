@@ -194,3 +194,25 @@ def test_cli_default_is_the_record_and_at_cavity_is_labelled(tmp_path, capsys):
     assert record["budget_residual"] < 1e-12
     assert main(["spectrum", str(path), "--engine", "master"]) == 2
     assert "--at cavity" in capsys.readouterr().err
+
+
+def test_amplifier_line_from_a_noise_temperature():
+    """Given as a noise temperature T_N, the amplifier's line is that of n_add =
+    k_B T_N/(h f) quanta (Caves, Phys. Rev. D 26, 1817 (1982)), and the budget
+    still sums to the record's total."""
+    from scipy import constants
+
+    sections = {k: dict(v) for k, v in RECEIVERS["iq"].items()}
+    sections["electronics"] = {"amplifier_added_quanta": 0.0,
+                               "amplifier_noise_temperature_k": 5e4}
+    system = System(make(**sections))
+    n_add = (constants.k * 5e4 / (constants.h * system.scenario.drive.carrier_frequency_hz))
+    assert system.chain.added_quanta == pytest.approx(n_add, rel=1e-12)
+    f = grid("iq")
+    lines = continuous_lines(system, f)
+    amp = [v for k, v in lines.items() if k.startswith("amplifier")]
+    assert len(amp) == 1
+    np.testing.assert_allclose(amp[0], n_add - 0.5, rtol=1e-12)
+    spectrum = digitiser_spectrum(system, f)
+    np.testing.assert_allclose(sum(spectrum.contributions.values()), spectrum.total,
+                               rtol=1e-9)

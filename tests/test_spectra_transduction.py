@@ -231,3 +231,15 @@ def test_photocurrent_and_voltage_conversion():
         tr.to_photocurrent(hom, sc, lo_power_w=-1.0, quantum_efficiency=0.9)
     with pytest.raises(InputError, match="A\\^2/Hz"):
         tr.to_voltage(hom, transimpedance_ohm=1e3)
+
+
+def test_photocurrent_refuses_a_microwave_receiver():
+    """A microwave receiver (amplifier and IQ mixer) has no photodetector: its record's
+    volts are the digitiser spectrum's (record_budget.in_volts), not a photocurrent."""
+    from simulator.scenario.loader import load_scenario
+
+    sc = load_scenario("scenarios/drum_microwave_mK.toml")
+    het = spectra.heterodyne_spectrum(sc, np.linspace(-1e6, 1e6, 11))
+    with pytest.raises(InputError, match='receiver = "microwave".*in_volts'):
+        tr.to_photocurrent(het, sc, lo_power_w=1e-3, quantum_efficiency=0.9,
+                           intermediate_frequency_hz=5e6)

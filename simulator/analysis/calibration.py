@@ -76,7 +76,7 @@ class Device:
         from simulator.analysis.thermometry import Calibration
         from simulator.model.system import as_system
 
-        system = as_system(system)
+        system = as_system(system, stage="simulator.analysis.calibration.Device.from_scenario")
         known = Calibration.from_scenario(system, mode)
         return cls(photon_number=system.point.photon_number, **{
             f.name: getattr(known, f.name) for f in dataclasses.fields(cls)
@@ -251,9 +251,9 @@ def bin_correlation(window, segment_samples=4096):
     Flyvbjerg, Rev. Sci. Instrum. 81, 075103 (2010)); the fit covariance of
     a lineshape spanning many bins is scaled by this factor.
     """
-    import scipy.signal
+    from simulator.analysis.psd import taper
 
-    w2 = scipy.signal.get_window(window, segment_samples, fftbins=True) ** 2
+    w2 = taper(window, segment_samples) ** 2
     rho = np.fft.fft(w2) / np.sum(w2)
     return float(np.sum(np.abs(rho) ** 2))
 

@@ -47,11 +47,13 @@ from simulator.model.optomechanics import mode_states
 ASYMMETRY_SIGNIFICANCE = 5.0
 
 
-def _system(item):
-    """The System of ``item`` (a System, or a scenario built into one), checked stable."""
+def _system(item, stage):
+    """The System of ``item`` (a System, or a scenario built into one), checked stable;
+    ``stage`` names the public function for the several-tones refusal."""
     from simulator.model.system import as_system
 
-    return as_system(item).require_stable()  # a clear error for an unstable point
+    # the detected tone in the drive's place; a clear error for an unstable point
+    return as_system(item, several_tones="detected").require_stable()
 
 
 def _sample_rate(system, sample_rate_hz=None):
@@ -60,7 +62,7 @@ def _sample_rate(system, sample_rate_hz=None):
     ``math.inf`` stands for the continuous record (no digitiser: no sinc², no
     aliasing, no band limit), the limit the bound approaches as fs grows.
     """
-    from simulator.model.chain import record_sample_rate
+    from simulator.model.sample_rate import record_sample_rate
 
     if sample_rate_hz is None:
         return record_sample_rate(system.scenario, system.chain)
@@ -117,7 +119,7 @@ def fisher_matrix(system, paths, *, frequency_hz=None, sample_rate_hz=None):
         the sampled record.
     sample_rate_hz : float, optional
         The digitiser's rate; default ``digitizer.sample_rate_hz`` or the
-        automatic rate of :func:`simulator.model.chain.automatic_sample_rate`;
+        automatic rate of :func:`simulator.model.sample_rate.automatic_sample_rate`;
         ``math.inf`` for the continuous record (no digitiser).
 
     Returns
@@ -143,7 +145,7 @@ def fisher_matrix(system, paths, *, frequency_hz=None, sample_rate_hz=None):
     """
     from simulator.model.units import angular
 
-    system = _system(system)
+    system = _system(system, "simulator.analysis.feasibility.fisher_matrix")
     fs = _sample_rate(system, sample_rate_hz)
     if frequency_hz is not None:
         omega = angular(frequency_hz)
@@ -176,11 +178,23 @@ def default_paths(scenario, mode=0):
     separately, by ring-down, in common practice): in the spectrum it enters
     almost only through Γm·n_th, so estimating it jointly with the bath makes
     the information matrix nearly singular. Pass ``paths`` to choose others.
+    The coupling is that of the detected tone's cavity mode (``detection.tone``):
+    ``mechanics[j].coupling_hz`` for the [cavity] mode, else the
+    ``couplings[i].coupling_hz`` of the pair.
     """
     m = scenario.mechanics[mode]
     bath = "bath_occupation" if m.bath_occupation is not None else "bath_temperature_k"
-    return (f"mechanics[{mode}].{bath}", f"mechanics[{mode}].coupling_hz",
-            "detection.efficiency")
+    return (f"mechanics[{mode}].{bath}", _coupling_path(scenario, mode), "detection.efficiency")
+
+
+def _coupling_path(scenario, mode):
+    """Path of g0 between the detected tone's cavity mode and mechanical mode ``mode``."""
+    cavity = next((t.cavity_mode for t in scenario.tones if t.name == scenario.detection.tone),
+                  None)
+    for i, pair in enumerate(scenario.couplings):
+        if pair.cavity_mode == cavity and pair.mechanics == scenario.mechanics[mode].name:
+            return f"couplings[{i}].coupling_hz"
+    return f"mechanics[{mode}].coupling_hz"
 
 
 def occupation_bound(system, mode=0, paths=None, *, sample_rate_hz=None):
@@ -192,7 +206,7 @@ def occupation_bound(system, mode=0, paths=None, *, sample_rate_hz=None):
     the cost of estimating the nuisance parameters. The record is the
     sampled one (:func:`fisher_matrix`), at ``sample_rate_hz`` if given.
     """
-    system = _system(system)
+    system = _system(system, "simulator.analysis.feasibility.occupation_bound")
     paths = tuple(paths) if paths is not None else default_paths(system.scenario, mode)
     return occupation_bounds(system, [mode], [paths], sample_rate_hz=sample_rate_hz)[0]
 
@@ -217,7 +231,7 @@ def occupation_bounds(system, modes=None, paths=None, steady=None, *, sample_rat
     -------
     list of OccupationBound
     """
-    system = _system(system)
+    system = _system(system, "simulator.analysis.feasibility.occupation_bounds")
     scenario = system.scenario
     modes = range(len(scenario.mechanics)) if modes is None else modes
     paths = [default_paths(scenario, j) for j in modes] if paths is None else paths
@@ -332,7 +346,7 @@ def asymmetry_time(system, mode=0, significance=ASYMMETRY_SIGNIFICANCE, steady=N
     from simulator.analysis.thermometry import Calibration, cavity_filter
     from simulator.linear.steady_state import steady_state
 
-    system = _system(system)
+    system = _system(system, "simulator.analysis.feasibility.asymmetry_time")
     scenario = system.scenario
     if scenario.detection.scheme != "heterodyne":
         raise InputError(f"detection.scheme = {scenario.detection.scheme!r}: the sideband "

@@ -48,6 +48,17 @@ class PSDEstimate:
         return 1.0 / np.sqrt(self.averages)
 
 
+def taper(window, n):
+    """The periodic window ``window`` of ``n`` samples (:func:`scipy.signal.get_window`),
+    or :class:`~simulator.errors.InputError` naming it if scipy does not know it."""
+    try:
+        return scipy.signal.get_window(window, n, fftbins=True)
+    except (ValueError, TypeError) as exc:
+        raise InputError(f"window = {window!r}: {exc}; expected a scipy.signal.get_window "
+                         "name that needs no parameter (hann, hamming, blackman, "
+                         "boxcar, ...)") from None
+
+
 def averaged_periodogram(samples, sample_rate_hz, *, segment_samples, window="hann"):
     """Bartlett-averaged periodogram of a real or complex record.
 
@@ -80,7 +91,7 @@ def averaged_periodogram(samples, sample_rate_hz, *, segment_samples, window="ha
     if not sample_rate_hz > 0:
         raise InputError(f"sample_rate_hz = {sample_rate_hz}; expected a positive rate")
     k = x.size // seg
-    w = scipy.signal.get_window(window, seg, fftbins=True)
+    w = taper(window, seg)
     w = w / np.sqrt(np.mean(w**2))  # unit power: the density integrates to the variance
     blocks = x[:k * seg].reshape(k, seg) * w
     spectra = np.abs(np.fft.fft(blocks, axis=1)) ** 2
@@ -149,10 +160,7 @@ class WindowedExpectation:
         if isinstance(oversample, bool) or int(oversample) != oversample or oversample < 2:
             raise InputError(f"oversample = {oversample!r}; expected an integer ≥ 2")
         n = int(segment_samples)
-        try:
-            w = scipy.signal.get_window(window, n, fftbins=True)
-        except ValueError as exc:
-            raise InputError(f"window = {window!r}: {exc}") from None
+        w = taper(window, n)
         w = w / np.sqrt(np.mean(w**2))
         self.window, self.fs, self.n = window, float(sample_rate_hz), n
         self.m = n * int(oversample)

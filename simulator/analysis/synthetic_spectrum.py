@@ -48,8 +48,8 @@ neglected.
 import dataclasses
 
 import numpy as np
-import scipy.signal
 
+from simulator.analysis.psd import taper
 from simulator.errors import InputError
 
 SPECTRUM_STREAM = 2  # spawn key of an averaged spectrum's draws (records use 0 and 1)
@@ -207,8 +207,8 @@ def synthetic_averaged_spectrum(system, *, segment_samples, window="hann", seed=
     rng = np.random.Generator(np.random.PCG64(
         np.random.SeedSequence(plan.seed, spawn_key=(SPECTRUM_STREAM,))))
     freq = expectation.frequency_hz
-    taper = scipy.signal.get_window(window, n, fftbins=True)
-    enbw = plan.sample_rate_hz * np.mean(taper**2) / np.mean(taper) ** 2 / n
+    w = taper(window, n)
+    enbw = plan.sample_rate_hz * np.mean(w**2) / np.mean(w) ** 2 / n
     if pseudo is None:
         half = freq > 0  # 0 < f < fs/2: an even N's fs/2 bin sits at −fs/2
         density = 2.0 * mean[half] * rng.standard_gamma(averages, half.sum()) / averages

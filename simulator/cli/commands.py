@@ -183,6 +183,10 @@ def cmd_spectrum(args):
     )
 
     scenario = load_scenario(args.scenario)
+    if args.angle_deg is not None and scenario.detection.scheme != "homodyne":
+        raise InputError(f"--angle-deg {args.angle_deg:g} with detection.scheme = "
+                         f"{scenario.detection.scheme!r}: expected it only for homodyne "
+                         "detection (a heterodyne record holds both quadratures)")
     system = System(scenario)  # built once: spectrum, summary and referral share it
     angle = None if args.angle_deg is None else math.radians(args.angle_deg)
     result = compute_spectrum(system, at=args.at, engine=args.engine,
@@ -216,6 +220,7 @@ def cmd_record(args):
     from simulator.workflows.record import master_records_to_files, simulate_record
 
     _require_output_file(args.out, (".h5", ".hdf5"), "--out", args.force)
+    _require_record_options(args)
     scenario = load_scenario(args.scenario)
     if args.averaged is not None:
         return _averaged_spectrum(args, scenario)
@@ -260,6 +265,25 @@ def cmd_record(args):
     return EXIT_OK
 
 
+def _require_record_options(args):
+    """Refuse options of ``record`` that are out of range or that the chosen output
+    would silently ignore."""
+    if args.threads is not None and args.threads < 1:
+        raise InputError(f"--threads {args.threads}: expected a positive number of threads")
+    if args.averaged is None and args.window is not None:
+        raise InputError(f"--window {args.window}: expected it only with --averaged N "
+                         "(it is the averaged periodogram's window)")
+    unused = [name for name, given in (("--compress", args.compress),
+                                       ("--threads", args.threads is not None),
+                                       ("--form", args.form != "auto")) if given]
+    if unused and args.averaged is not None:
+        raise InputError(f"{', '.join(unused)} with --averaged: expected none of them (an "
+                         "averaged spectrum is drawn from its law, not from time samples)")
+    if unused and args.engine == "master":
+        raise InputError(f"{', '.join(unused)} with --engine master: expected none of them "
+                         "(they shape the linear engine's records)")
+
+
 def _averaged_spectrum(args, scenario):
     """``noisechain record --averaged N``: the averaged periodogram drawn from its law."""
     from simulator.workflows.record import simulate_averaged_spectrum
@@ -268,7 +292,7 @@ def _averaged_spectrum(args, scenario):
         raise InputError(f"--averaged with --engine {args.engine}: expected the linear "
                          "engine (the law is that of a stationary Gaussian record)")
     spectrum = simulate_averaged_spectrum(scenario, segment_samples=args.averaged,
-                                          window=args.window, seed=args.seed,
+                                          window=args.window or "hann", seed=args.seed,
                                           duration_s=args.duration, out=args.out,
                                           overwrite=args.force)
     summary = {"out": str(Path(args.out).resolve()), "kind": spectrum.kind,

@@ -168,9 +168,9 @@ def build_parser():
     p.add_argument("--averaged", type=int, default=None, metavar="N",
                    help="write instead the averaged periodogram of the record, segments of "
                    "N samples, drawn from its exact law (milliseconds for any duration)")
-    p.add_argument("--window", default="hann", metavar="NAME",
+    p.add_argument("--window", default=None, metavar="NAME",
                    help="window of --averaged (a scipy.signal.get_window name; default "
-                   "%(default)s)")
+                   "hann)")
     p.add_argument("--compress", action="store_true",
                    help="deflate the samples (HDF5 shuffle + gzip: about 11 %% smaller, "
                    "several times slower to write)")

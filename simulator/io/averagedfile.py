@@ -26,7 +26,7 @@ from pathlib import Path
 import numpy as np
 
 from simulator.errors import InputError
-from simulator.io.files import AtomicFile
+from simulator.io.files import AtomicFile, open_hdf5
 from simulator.io.recordfile import FREQUENCY_CONVENTION, _text, read_truth, write_truth
 
 FORMAT = "noisechain-averaged-spectrum"
@@ -82,20 +82,11 @@ def load_averaged_spectrum(path):
         Missing file, not HDF5, not a complete averaged-spectrum file, a
         missing or malformed part, or a newer format version.
     """
-    import h5py
-
     from simulator.analysis.synthetic_spectrum import AveragedSpectrum
     from simulator.scenario.loader import parse_scenario
 
     path = Path(path)
-    if not path.is_file():
-        raise InputError(f"averaged-spectrum file {str(path)!r} not found; expected an HDF5 "
-                         "file written by `noisechain record --averaged`")
-    try:
-        handle = h5py.File(path, "r")
-    except OSError as exc:
-        raise InputError(f"{str(path)!r} is not a readable HDF5 file ({exc})") from None
-    with handle as f:
+    with open_hdf5(path, "averaged-spectrum file", "`noisechain record --averaged`") as f:
         a = f.attrs
         if a.get("format") != FORMAT:
             raise InputError(f"{str(path)!r} is not a complete noisechain averaged spectrum "

@@ -192,6 +192,21 @@ class AtomicFile:
         self.tmp.unlink()
 
 
+def open_hdf5(path, what, written_by):
+    """``path`` opened read-only with h5py, or :class:`InputError` if it is missing or not
+    HDF5; ``what`` names the file ("record file") and ``written_by`` its writer."""
+    import h5py
+
+    path = Path(path)
+    if not path.is_file():
+        raise InputError(f"{what} {str(path)!r} not found; expected an HDF5 file written by "
+                         f"{written_by}")
+    try:
+        return h5py.File(path, "r")
+    except OSError as exc:
+        raise InputError(f"{str(path)!r} is not a readable HDF5 file ({exc})") from None
+
+
 def _output_error(path, exc):
     # HDF5 puts the system's error number inside its message ("errno = 28, ...")
     number = exc.errno or next(map(int, re.findall(r"errno = (\d+)", str(exc))), None)

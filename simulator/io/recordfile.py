@@ -33,7 +33,7 @@ from pathlib import Path
 import numpy as np
 
 from simulator.errors import InputError
-from simulator.io.files import AtomicFile, OutputError
+from simulator.io.files import AtomicFile, OutputError, open_hdf5
 from simulator.records.generate import Record, Truth, record_header
 
 FORMAT = "noisechain-record"
@@ -316,19 +316,10 @@ def load_record(path, *, start=0, stop=None, samples_only=False):
         Missing file, not HDF5, not a complete noisechain record, or a newer
         format version.
     """
-    import h5py
-
     from simulator.scenario.loader import parse_scenario
 
     path = Path(path)
-    if not path.is_file():
-        raise InputError(f"record file {str(path)!r} not found; expected an HDF5 file "
-                         "written by `noisechain record`")
-    try:
-        handle = h5py.File(path, "r")
-    except OSError as exc:
-        raise InputError(f"{str(path)!r} is not a readable HDF5 file ({exc})") from None
-    with handle as f:
+    with open_hdf5(path, "record file", "`noisechain record`") as f:
         if f.attrs.get("format") != FORMAT:
             raise InputError(f"{str(path)!r} is not a complete noisechain record (no "
                              f"format = {FORMAT!r} attribute; an interrupted write leaves "

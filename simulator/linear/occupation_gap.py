@@ -107,7 +107,8 @@ def occupation_gaps(system, summaries=None):
     tuple of OccupationGap
         One per mode, in scenario order.
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, stage="simulator.linear.occupation_gap.occupation_gaps")
+    system = system.require_stable()
     summaries = (sideband_summary(system, at_digitiser=False) if summaries is None
                  else summaries)
     base = _plain(system.scenario)

@@ -44,10 +44,11 @@ import numpy as np
 
 from simulator.errors import InputError
 from simulator.linear.budget import CHUNK, FLOOR, Paths, budget_pieces, source_groups
-from simulator.linear.spectra import adaptive_grid, provenance, tone_lines
+from simulator.linear.spectra import adaptive_grid, checked_grid, provenance, tone_lines
 from simulator.linear.spectrum import Spectrum
-from simulator.model.chain import detection_chain, record_sample_rate
+from simulator.model.chain import detection_chain
 from simulator.model.laser_noise import vacuum_intensity
+from simulator.model.sample_rate import record_sample_rate
 from simulator.model.system import as_system
 from simulator.model.units import angular
 
@@ -85,13 +86,14 @@ def digitiser_spectrum(system, frequency_hz=None, *, sample_rate_hz=None, aliase
         ``total`` equals ``system.chain.sampled_spectrum(f, fs, aliases)``;
         the contributions sum to it to round-off.
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, several_tones="detected").require_stable()
     scenario, chain = system.scenario, system.chain
     fs = record_sample_rate(scenario, chain) if sample_rate_hz is None else float(sample_rate_hz)
     if not (np.isfinite(fs) and fs > 0):
         raise InputError(f"sample_rate_hz = {sample_rate_hz!r}; expected a positive rate in Hz")
     real = chain.receiver != "iq"
-    f = _record_grid(system, fs) if frequency_hz is None else _checked(frequency_hz, real)
+    f = (_record_grid(system, fs) if frequency_hz is None
+         else checked_grid(frequency_hz, real, "a real record's"))
     parts = continuous_lines(system, f)
     if scenario.electronics.bandwidth_hz is not None:
         parts[f"electronics low-pass filter ({scenario.electronics.bandwidth_hz:.6g} Hz)"] = (
@@ -250,7 +252,7 @@ def _named_lines(raw, chain_group, scenario, chain):
     if share < 1.0:
         out["single-ended detection: half the signal to the combiner's unused port"] = (
             eta_d * (share - 1.0) * excess)
-    n_add = scenario.electronics.amplifier_added_quanta
+    n_add = chain.added_quanta  # from the noise temperature too (scenario.receiver)
     if "added." in chain_lines and n_add > 0:
         label = (f"amplifier added noise beyond heterodyne's half quantum (n_add − ½ = "
                  f"{n_add - 0.5:.4g})" if chain.receiver == "iq"
@@ -275,17 +277,6 @@ def _record_grid(system, fs):
     return np.unique(f[f <= fs / 2])
 
 
-def _checked(frequency_hz, real):
-    f = np.asarray(frequency_hz, dtype=float)
-    if f.ndim != 1 or f.size == 0 or not np.all(np.isfinite(f)):
-        raise InputError(f"frequency grid of shape {f.shape}; expected a non-empty "
-                         "one-dimensional array of finite frequencies in Hz")
-    if real and np.any(f < 0):
-        raise InputError(f"the record is real: its spectrum is one-sided, but the grid has "
-                         f"negative frequencies (min {f.min()!r} Hz); expected f >= 0")
-    return f
-
-
 def record_sidebands(system, summaries, *, sample_rate_hz=None, aliases=ALIASES):
     """The sideband summary with each line's place, area and contrast at the digitiser.
 
@@ -297,7 +288,7 @@ def record_sidebands(system, summaries, *, sample_rate_hz=None, aliases=ALIASES)
     peak). The homodyne record mixes both sidebands into one line at |ν|:
     NaN there.
     """
-    system = as_system(system)
+    system = as_system(system, several_tones="detected")
     scenario, chain = system.scenario, system.chain
     fs = record_sample_rate(scenario, chain) if sample_rate_hz is None else sample_rate_hz
     out = []

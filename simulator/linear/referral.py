@@ -1,4 +1,5 @@
-"""Referral of detected spectra to displacement, force, photocurrent and voltage.
+"""Referral of detected spectra to displacement and force (photocurrent and voltage:
+:mod:`simulator.linear.photocurrent`).
 
 Displacement of mode j is x_j = √2 x_zpf q_j. The linearised interaction
 H = −ħ g (a + a†)(b + b†) = −√2 ħ g X x_j / x_zpf gives the radiation-pressure
@@ -29,14 +30,14 @@ Aspelmeyer, Kippenberg, Marquardt, Rev. Mod. Phys. 86, 1391 (2014), Sec. VI.A.
 import dataclasses
 
 import numpy as np
-from scipy import constants
 
 from simulator.errors import InputError
+from simulator.linear.photocurrent import to_photocurrent, to_voltage  # noqa: F401 (also from here)
 from simulator.linear.steady_state import effective_mechanics
 from simulator.model.optomechanics import mode_states
 from simulator.model.statespace import StateSpace
 from simulator.model.system import as_system
-from simulator.model.units import HBAR, angular, photon_energy_j
+from simulator.model.units import HBAR, angular
 
 HBAR_SQUARED_OVER_4 = HBAR**2 / 4
 
@@ -125,7 +126,7 @@ def transduction(spectrum, system, mode=0):
     (one-sided f): η|G_θ(2πf)|², so that S_hom/transduction is the one-sided
     displacement density 2S̄_xx.
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, stage="simulator.linear.referral.transduction").require_stable()
     j = mode_index(system.point, mode)
     return _gain(spectrum, system, j, spectrum.frequency_hz)
 
@@ -170,7 +171,7 @@ def to_displacement(spectrum, system, mode=0):
     back-action terms add ±ħ Im χ, so the anti-Stokes side shows n and the
     Stokes side n + 1 quanta.
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, stage="simulator.linear.referral.to_displacement").require_stable()
     point, model = system.point, system.model
     j = mode_index(point, mode)
     f = spectrum.frequency_hz
@@ -193,7 +194,7 @@ def to_force(spectrum, system, mode=0):
     the mode. References: "standard quantum limit" ħ/|χ_eff| and "zero-point
     force" ħ|Im χ_eff|/|χ_eff|² (doubled when one-sided).
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, stage="simulator.linear.referral.to_force").require_stable()
     x = to_displacement(spectrum, system, mode)
     point = system.point
     j = mode_index(point, mode)
@@ -283,7 +284,8 @@ def imprecision_backaction(system, frequency_hz, mode=0, *, quadrature_angle=np.
     (G_θ = 0, e.g. the amplitude quadrature at Δ = 0) the imprecision is
     infinite and the correlation undefined (inf or NaN).
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, stage="simulator.linear.referral.imprecision_backaction")
+    system = system.require_stable()
     scenario, point, model = system.scenario, system.point, system.model
     j = mode_index(point, mode)
     if scheme not in ("homodyne", "heterodyne"):
@@ -307,104 +309,3 @@ def imprecision_backaction(system, frequency_hz, mode=0, *, quadrature_angle=np.
     return MeasurementNoise(frequency_hz=f, imprecision=imprecision, backaction=backaction,
                             correlation=correlation, efficiency=eta,
                             mode=point.modes[j].name, quadrature_angle=float(quadrature_angle))
-
-
-def to_photocurrent(spectrum, scenario, *, lo_power_w, quantum_efficiency,
-                    intermediate_frequency_hz=None, lo_side="below"):
-    """Photocurrent spectral density (A²/Hz) of a detected spectrum.
-
-    Parameters
-    ----------
-    spectrum : simulator.linear.spectrum.Spectrum
-        Heterodyne or homodyne spectrum in shot-noise units.
-    scenario : simulator.scenario.loader.Scenario
-        Gives the optical frequency (photon energy) of the local oscillator.
-    lo_power_w : float
-        Local-oscillator power on the detector (W).
-    quantum_efficiency : float
-        Detector quantum efficiency η_d (electrons per photon).
-    intermediate_frequency_hz : float, optional
-        Heterodyne only: offset of the local oscillator from the drive (Hz);
-        must exceed every |ν| of the spectrum so no band folds over zero.
-    lo_side : {"below", "above"}
-        Heterodyne only: local oscillator below the drive (the sideband at ν
-        appears at f_IF + ν) or above it (at f_IF − ν).
-
-    Returns
-    -------
-    simulator.linear.spectrum.Spectrum
-        One-sided density in A²/Hz. Homodyne: on the same f axis. Heterodyne:
-        on the intermediate-frequency axis of the single real photocurrent.
-
-    Notes
-    -----
-    The DC photocurrent is I_dc = e η_d P_LO / (h f_L), and its shot noise is
-    white with one-sided density 2 e I_dc (Schottky's formula). A spectrum in
-    shot-noise units is that level times S; the factor is returned in
-    ``calibration["shot_noise_a2_per_hz"]``. The signal's own detection
-    efficiency is already in S (``scenario.detection.efficiency``).
-
-    References
-    ----------
-    Schottky, Ann. Phys. 362, 541 (1918); Yuen and Chan, Opt. Lett. 8, 177
-    (1983) (balanced homodyne: shot-noise level 2 e I_dc of the LO current).
-    """
-    _positive("lo_power_w", lo_power_w)
-    if not 0.0 < quantum_efficiency <= 1.0:
-        raise InputError(f"quantum_efficiency = {quantum_efficiency!r}; expected a number "
-                         "in (0, 1]")
-    if spectrum.units != "shot-noise units (vacuum = 1)":
-        raise InputError(f"spectrum in {spectrum.units!r}; expected shot-noise units")
-    current = constants.e * quantum_efficiency * lo_power_w / photon_energy_j(
-        scenario.drive.carrier_frequency_hz)
-    level = 2.0 * constants.e * current
-    f = np.asarray(spectrum.frequency_hz)
-    order = np.arange(f.size)
-    axis = spectrum.axis
-    if spectrum.sided == "two-sided":
-        if intermediate_frequency_hz is None:
-            raise InputError("intermediate_frequency_hz is required for a heterodyne "
-                             "spectrum: it places the sidebands on the photocurrent axis")
-        if lo_side not in ("below", "above"):
-            raise InputError(f"lo_side = {lo_side!r}; expected 'below' or 'above'")
-        f_if = float(intermediate_frequency_hz)
-        if not f_if > np.max(np.abs(f)):
-            raise InputError(f"intermediate_frequency_hz = {intermediate_frequency_hz!r} "
-                             f"Hz; expected more than the largest |ν| = "
-                             f"{np.max(np.abs(f)):.6g} Hz so no band folds over zero")
-        f = f_if + f if lo_side == "below" else f_if - f
-        order = np.argsort(f)
-        f = f[order]
-        axis = (f"photocurrent frequency = f_IF {'+' if lo_side == 'below' else '-'} ν, "
-                f"f_IF = {f_if:.9g} Hz (local oscillator {lo_side} the drive)")
-    return dataclasses.replace(
-        spectrum, frequency_hz=f, axis=axis, sided="one-sided", units="A^2/Hz",
-        quantity=f"{spectrum.quantity} photocurrent", total=level * spectrum.total[order],
-        contributions={k: level * v[order] for k, v in spectrum.contributions.items()},
-        reference={k: level * v[order] for k, v in spectrum.reference.items()},
-        calibration={**spectrum.calibration, "shot_noise_a2_per_hz": level,
-                     "lo_photocurrent_a": current, "lo_power_w": float(lo_power_w),
-                     "detector_quantum_efficiency": float(quantum_efficiency)})
-
-
-def to_voltage(current_spectrum, *, transimpedance_ohm):
-    """Voltage density (V²/Hz) after a transimpedance amplifier of gain R (Ω): R²·S_I."""
-    _positive("transimpedance_ohm", transimpedance_ohm)
-    if current_spectrum.units != "A^2/Hz":
-        raise InputError(f"spectrum in {current_spectrum.units!r}; expected A^2/Hz "
-                         "(convert with to_photocurrent first)")
-    r2 = float(transimpedance_ohm) ** 2
-    return dataclasses.replace(
-        current_spectrum, units="V^2/Hz",
-        quantity=current_spectrum.quantity.replace("photocurrent", "voltage"),
-        total=r2 * current_spectrum.total,
-        contributions={k: r2 * v for k, v in current_spectrum.contributions.items()},
-        reference={k: r2 * v for k, v in current_spectrum.reference.items()},
-        calibration={**current_spectrum.calibration, "transimpedance_ohm": float(
-            transimpedance_ohm), "shot_noise_v2_per_hz": r2 * current_spectrum.calibration[
-                "shot_noise_a2_per_hz"]})
-
-
-def _positive(name, value):
-    if not (isinstance(value, (int, float, np.floating)) and np.isfinite(value) and value > 0):
-        raise InputError(f"{name} = {value!r}; expected a positive finite number")

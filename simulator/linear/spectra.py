@@ -149,12 +149,18 @@ def _efficiency(scenario, efficiency):
 def _grid(frequency_hz, model, one_sided):
     if frequency_hz is None:
         return adaptive_grid(model, one_sided=one_sided)
+    return checked_grid(frequency_hz, one_sided, "homodyne")
+
+
+def checked_grid(frequency_hz, one_sided, what):
+    """``frequency_hz`` as a float array, or :class:`InputError` if it is not a non-empty 1-D
+    array of finite frequencies, or has negative ones for a one-sided (``what``) spectrum."""
     f = np.asarray(frequency_hz, dtype=float)
     if f.ndim != 1 or f.size == 0 or not np.all(np.isfinite(f)):
         raise InputError(f"frequency grid of shape {f.shape}; expected a non-empty "
                          "one-dimensional array of finite frequencies in Hz")
     if one_sided and np.any(f < 0):
-        raise InputError(f"homodyne frequency grid has negative values (min {f.min()!r} "
+        raise InputError(f"{what} frequency grid has negative values (min {f.min()!r} "
                          "Hz); a one-sided spectrum needs f >= 0")
     return f
 
@@ -189,7 +195,7 @@ def heterodyne_spectrum(system, frequency_hz=None, *, efficiency=None):
     ----------
     Weinstein et al., Phys. Rev. X 4, 041003 (2014) (heterodyne sideband spectra).
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, several_tones="detected").require_stable()
     scenario, model = system.scenario, system.model
     eta = _efficiency(scenario, efficiency)
     f = _grid(frequency_hz, model, one_sided=False)
@@ -224,7 +230,7 @@ def homodyne_spectrum(system, frequency_hz=None, *, quadrature_angle=np.pi / 2,
     simulator.linear.spectrum.Spectrum
         One-sided density in shot-noise units, S(f) = 1 + η(2 S̄_θθ(f) − 1).
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, several_tones="detected").require_stable()
     scenario, model = system.scenario, system.model
     eta = _efficiency(scenario, efficiency)
     theta = float(quadrature_angle)
@@ -250,7 +256,7 @@ def measured_spectrum(system, *, frequency_hz=None, quadrature_angle=None):
     :func:`homodyne_spectrum`. The homodyne quadrature angle defaults to the
     scenario's ``detection.quadrature_angle_rad``, as in its records.
     """
-    system = as_system(system)
+    system = as_system(system, several_tones="detected")
     detection = system.scenario.detection
     if quadrature_angle is None:
         quadrature_angle = detection.quadrature_angle_rad

@@ -73,7 +73,8 @@ def steady_state(system):
     OperatingPointError
         If the operating point is unstable (no steady state exists).
     """
-    system = as_system(system, several_tones=True).require_stable()
+    system = as_system(system, several_tones=True)
+    system = system.require_stable()
     scenario, point, model = system.scenario, system.point, system.model
     v = model.covariance()
     cavity_occupation = occupation(v, slice(0, 2))

@@ -167,7 +167,7 @@ def build_model(system, kind="full", *, frame="auto", cutoffs=None,
         raise InputError(f"master-equation model {kind!r}; expected one of {', '.join(KINDS)}")
     from simulator.model import laser_noise
 
-    system = as_system(system)
+    system = as_system(system, stage="simulator.master.hilbert.build_model")
     scenario, point = system.scenario, system.point
     if not laser_noise.is_quiet(scenario):
         raise InputError(
@@ -273,7 +273,7 @@ def expected_cutoffs(system, kind, *, tolerance=DEFAULT_TOLERANCE):
     """
     from simulator.linear.steady_state import steady_state
 
-    system = as_system(system)
+    system = as_system(system, stage="simulator.master.hilbert.expected_cutoffs")
     point = system.point
     linear = steady_state(system)
     thermal = [linear.cavity_occupation] + [m.occupation for m in linear.modes]

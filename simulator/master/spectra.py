@@ -106,7 +106,7 @@ def master_heterodyne_spectrum(system, frequency_hz=None, *, kind="full", effici
         Two-sided density in shot-noise units, S(ν) = 1 + η N_out(ν), with
         the budget split into the shot-noise floor and the output photon flux.
     """
-    system = as_system(system)
+    system = as_system(system, stage="simulator.master.spectra.master_heterodyne_spectrum")
     scenario = system.scenario
     if scenario.detection.scheme != "heterodyne":
         raise InputError(f"detection.scheme = {scenario.detection.scheme!r}; the "

@@ -144,7 +144,7 @@ def master_steady_state(system, kind="full", *, frame="auto", cutoffs=None,
     if not 0 < tolerance < 1:
         raise InputError(f"truncation tolerance = {tolerance!r}; expected a population "
                          "in (0, 1)")
-    system = as_system(system)
+    system = as_system(system, stage="simulator.master.steady.master_steady_state")
     model = build_model(system, kind, frame=frame, cutoffs=cutoffs, tolerance=tolerance,
                         max_dimension=max_dimension)
     _check_size(model, max_dimension)

@@ -83,7 +83,7 @@ def master_records(system, seeds, *, duration_s=None, kind="full", step_phase=ST
         raise InputError("no seeds given; expected one seed per record")
     if not 0 < step_phase <= 1:
         raise InputError(f"step_phase = {step_phase!r}; expected a number in (0, 1]")
-    system = as_system(system)
+    system = as_system(system, stage="simulator.master.trajectories.master_records")
     scenario = system.scenario
     plan = plan_record(system, seed=seeds[0], duration_s=duration_s, store_mechanics=False)
     if plan.chain.receiver != "iq":
@@ -123,7 +123,7 @@ def master_records(system, seeds, *, duration_s=None, kind="full", step_phase=ST
 
 def master_record(system, *, seed=None, **options):
     """One record (see :func:`master_records`); seed default ``scenario.scenario.seed``."""
-    system = as_system(system)
+    system = as_system(system, stage="simulator.master.trajectories.master_record")
     seed = system.scenario.scenario.seed if seed is None else seed
     return master_records(system, [seed], **options)[0]
 

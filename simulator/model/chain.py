@@ -39,21 +39,19 @@ Yuen and Chan, Opt. Lett. 8, 177 (1983) (balanced homodyne detection).
 """
 
 import dataclasses
-import functools
 
 import numpy as np
 
-from simulator.model.laser_noise import device_eigenvalues
+from simulator.model.sample_rate import (  # noqa: F401 (the rate's rule, imported from here too)
+    LINE_SINC2,
+    OVERSAMPLING,
+    automatic_sample_rate,
+    record_sample_rate,
+)
 from simulator.model.scales import microwave_scales, optical_scales
 from simulator.model.statespace import StateSpace
-from simulator.model.units import angular, ordinary
+from simulator.model.units import angular
 from simulator.scenario.receiver import amplifier_added_quanta
-
-OVERSAMPLING = 2.5  # automatic sample rate: at least this many times the highest relevant frequency
-# ... and high enough that the integrate-and-dump sinc²(f/fs) keeps this share of the
-# highest line: our choice, so that the digitiser costs a planned record no more than
-# 5 % of its signal (2.5× alone kept 74 % of a line at 0.3 fs)
-LINE_SINC2 = 0.95
 
 
 @dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
@@ -284,7 +282,10 @@ def detection_chain(scenario, point, model):
     scenario : simulator.scenario.loader.Scenario
     point : simulator.model.operating_point.OperatingPoint
     model : simulator.model.statespace.StateSpace
-        The model of :func:`simulator.model.optomechanics.linear_model`.
+        The model of :func:`simulator.model.optomechanics.linear_model`; with
+        several tones the detected view of both
+        (:func:`simulator.model.detected_tone.detected_parts`): the receiver
+        demodulates the outputs ``output.X/Y`` at ``point.drive_frequency_hz``.
 
     Returns
     -------
@@ -311,8 +312,9 @@ def detection_chain(scenario, point, model):
     if receiver == "iq" and added == 0.0:
         added = 0.5
     side = 1.0 if det.local_oscillator_side == "above" else -1.0
-    scales = (microwave_scales(scenario, receiver) if det.receiver == "microwave"
-              else optical_scales(scenario, share, side))
+    f_tone = point.drive_frequency_hz  # the detected tone's carrier (detection.tone)
+    scales = (microwave_scales(scenario, receiver, f_tone) if det.receiver == "microwave"
+              else optical_scales(scenario, share, side, f_tone))
     electronic = scales.pop("electronic")
 
     builder = _Builder(model)
@@ -419,52 +421,3 @@ def _add(a, b):
     """Sum of two signal rows, the shorter one padded with zeros (later inputs)."""
     width = max(a.size, b.size)
     return _pad(a, width) + _pad(b, width)
-
-
-def automatic_sample_rate(chain, intermediate_frequency_hz=0.0):
-    """Sample rate (Hz) that takes in every resonance and keeps 95 % of every line.
-
-    Each eigenvalue λ of the cavity–mechanics drift is a line at |Im λ| with
-    half-width |Re λ| (plus the intermediate frequency for a real if record).
-    The rate is the larger of
-
-    - 2.5 times the highest relevant frequency, the largest |Im λ| + 3|Re λ|
-      (the band ±fs/2, or 0 to fs/2 for a real record, holds every line with
-      its wings), and
-    - the rate at which the integrate-and-dump response sinc²(f/fs) is
-      ``LINE_SINC2`` = 0.95 at the highest line centre, fs = f/x₀ with
-      sinc²(x₀) = 0.95, x₀ ≈ 0.124 (about 8 samples per period of the
-      fastest line),
-
-    rounded up to 1, 1.25, 1.5, 2, 2.5, 3, 4, 5, 6 or 8 times a power of ten.
-    """
-    lam = device_eigenvalues(chain.model, also=("filter",))
-    shift = float(intermediate_frequency_hz) if chain.receiver == "if" else 0.0
-    top = float(ordinary(np.max(np.abs(lam.imag) + 3.0 * np.abs(lam.real)))) + shift
-    line = float(ordinary(np.max(np.abs(lam.imag)))) + shift
-    return _round_up(max(OVERSAMPLING * top, line / _line_fraction()))
-
-
-@functools.cache
-def _line_fraction():
-    """x₀ = f/fs at which sinc²(x₀) = ``LINE_SINC2`` (sinc(x) = sin πx/(πx))."""
-    from scipy.optimize import brentq
-
-    return float(brentq(lambda x: np.sinc(x) ** 2 - LINE_SINC2, 1e-9, 0.5, xtol=1e-14))
-
-
-def record_sample_rate(scenario, chain):
-    """The record's sample rate (Hz): ``digitizer.sample_rate_hz`` or the automatic one."""
-    return float(scenario.digitizer.sample_rate_hz
-                 or automatic_sample_rate(chain, scenario.detection.intermediate_frequency_hz))
-
-
-_RATE_STEPS = (1.0, 1.25, 1.5, 2.0, 2.5, 3.0, 4.0, 5.0, 6.0, 8.0, 10.0)  # at most 25 % over
-
-
-def _round_up(x):
-    decade = 10.0 ** np.floor(np.log10(x))
-    for step in _RATE_STEPS:
-        if step * decade >= x * (1 - 1e-12):
-            return float(step * decade)
-    return float(10 * decade)

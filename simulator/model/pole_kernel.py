@@ -11,6 +11,20 @@ import numpy as np
 
 
 @numba.njit(cache=True, nogil=True, fastmath=False)
+def _accumulate(acc, a_re, a_im, b_re, b_im, coef):
+    """acc[j] += Σ_k Re f · coef[k, j] + Im f · coef[n + k, j], f = 1/(a − b_k), one point a."""
+    n = b_re.size
+    for k in range(n):
+        dr = a_re - b_re[k]
+        di = a_im - b_im[k]
+        d = 1.0 / (dr * dr + di * di)
+        fr = dr * d
+        fi = -di * d
+        for j in range(acc.size):
+            acc[j] += fr * coef[k, j] + fi * coef[n + k, j]
+
+
+@numba.njit(cache=True, nogil=True, fastmath=False)
 def pole_sum(a_re, a_im, b_re, b_im, coef, out):
     """out[w, j] = Σ_k Re f · coef[k, j] + Im f · coef[n + k, j], f = 1/(a_w − b_k).
 
@@ -25,20 +39,12 @@ def pole_sum(a_re, a_im, b_re, b_im, coef, out):
     out : (W, M) float64
         Receives the sums.
     """
-    n = b_re.size
     m = coef.shape[1]
     acc = np.empty(m)
     for w in range(a_re.size):
         for j in range(m):
             acc[j] = 0.0
-        for k in range(n):
-            dr = a_re[w] - b_re[k]
-            di = a_im[w] - b_im[k]
-            d = 1.0 / (dr * dr + di * di)
-            fr = dr * d
-            fi = -di * d
-            for j in range(m):
-                acc[j] += fr * coef[k, j] + fi * coef[n + k, j]
+        _accumulate(acc, a_re[w], a_im[w], b_re, b_im, coef)
         for j in range(m):
             out[w, j] = acc[j]
 
@@ -53,7 +59,6 @@ def pole_sum_hermitian(a_re, a_im, b_re, b_im, coef, white, upper_i, upper_j, ou
     ``upper_i``, ``upper_j``); ``out`` (groups, W, p, p, 2) float64 is the
     view of the complex result.
     """
-    n = b_re.size
     m = coef.shape[1]
     groups, p = out.shape[0], out.shape[2]
     k_up = upper_i.size
@@ -61,14 +66,7 @@ def pole_sum_hermitian(a_re, a_im, b_re, b_im, coef, white, upper_i, upper_j, ou
     for w in range(a_re.size):
         for j in range(m):
             acc[j] = white[j]
-        for k in range(n):
-            dr = a_re[w] - b_re[k]
-            di = a_im[w] - b_im[k]
-            d = 1.0 / (dr * dr + di * di)
-            fr = dr * d
-            fi = -di * d
-            for j in range(m):
-                acc[j] += fr * coef[k, j] + fi * coef[n + k, j]
+        _accumulate(acc, a_re[w], a_im[w], b_re, b_im, coef)
         for g in range(groups):
             base = g * p * p
             for i in range(p):

@@ -20,6 +20,10 @@ import numpy as np
 
 from simulator.errors import InputError
 
+# Most threads per available core: beyond a few the threads only wait, while each
+# holds blocks of normals drawn ahead (2 per thread, ~MB each) and chunks in flight.
+THREADS_PER_CORE = 4
+
 
 def available_cores():
     """Cores this process may run on (its affinity mask), at least 1."""
@@ -35,6 +39,11 @@ def checked_workers(workers):
         return available_cores()
     if isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1:
         raise InputError(f"workers = {workers!r}; expected a positive number of threads")
+    most = THREADS_PER_CORE * available_cores()
+    if workers > most:
+        raise InputError(f"workers = {workers!r} threads; expected at most {most} "
+                         f"({THREADS_PER_CORE} per available core: more only hold more "
+                         "blocks of random numbers in memory)")
     return int(workers)
 
 

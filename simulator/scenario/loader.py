@@ -12,13 +12,13 @@ from a parameter path such as ``"mechanics[0].bath_temperature_k"``.
 
 import dataclasses
 import difflib
-import math
 import tomllib
 from collections.abc import Mapping
 from pathlib import Path
 
 from simulator.errors import ScenarioError
 from simulator.scenario import schema, units
+from simulator.scenario.local_oscillator import local_oscillator_problems
 from simulator.scenario.paths import (
     assign,
     join,
@@ -308,7 +308,8 @@ def _build(cls, data, path, source):
             if slip:
                 raise ScenarioError(f"unknown key {key!r} in {label}; {slip}",
                                     source=source, key=_key(path, key))
-            close = difflib.get_close_matches(key, list(fields), n=1, cutoff=0.5)
+            close = difflib.get_close_matches(key, [*fields, *units.dbm_keys(cls)], n=1,
+                                              cutoff=0.5)
             hint = f"; did you mean {close[0]!r}?" if close else ""
             valid = ", ".join(fields)
             raise ScenarioError(f"unknown key {key!r} in {label}{hint} "
@@ -387,46 +388,3 @@ def _require_no_problems(obj, path, source):
 
 def _key(path, name):
     return f"{path}.{name}" if path else name
-
-
-DELAY_LIMIT = 0.5  # largest 2π f_m τ of the one-state (Padé) delay of the LO path
-
-
-def local_oscillator_problems(scenario):
-    """Cross-section checks of the LO reference: yields ``(key, message)``."""
-    det, noise = scenario.detection, scenario.drive.phase_noise
-    source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
-    if source == "locked" and det.local_oscillator_lock_bandwidth_hz is None:
-        yield ("detection.local_oscillator_lock_bandwidth_hz", 'missing with '
-               'local_oscillator_source = "locked"; expected the lock bandwidth in Hz')
-    if source != "locked" and det.local_oscillator_lock_bandwidth_hz is not None:
-        yield ("detection.local_oscillator_lock_bandwidth_hz", f'set with '
-               f'local_oscillator_source = "{source}"; expected it only for "locked"')
-    if source != "common" and tau > 0:
-        yield ("detection.local_oscillator_delay_s", f'{tau!r} s with '
-               f'local_oscillator_source = "{source}"; expected 0 (a delay applies to a '
-               'common local oscillator only)')
-    if source == "independent" and noise.linewidth_hz > 0:
-        yield ("drive.phase_noise.linewidth_hz", f"{noise.linewidth_hz!r} Hz with an "
-               "independent local oscillator: the relative phase of white frequency "
-               "noise is a random walk (the beat note diffuses), which has no "
-               'stationary spectrum; expected local_oscillator_source = "common" (with '
-               'local_oscillator_delay_s) or "locked", or linewidth_hz = 0')
-    own = det.local_oscillator_phase_noise
-    if own != type(own)() and source != "independent":
-        yield ("detection.local_oscillator_phase_noise", f'given with '
-               f'local_oscillator_source = "{source}"; expected it only for "independent" '
-               '(a common or locked local oscillator takes its phase from the drive)')
-    if own.linewidth_hz > 0:
-        yield ("detection.local_oscillator_phase_noise.linewidth_hz", f"{own.linewidth_hz!r} "
-               "Hz: the beat of two free-running sources is a random walk in phase with no "
-               "stationary spectrum; expected 0 (give the floor and peak of the local "
-               'oscillator\'s phase noise), or local_oscillator_source = "locked"')
-    if source == "common" and tau > 0:
-        for mode in scenario.mechanics:
-            x = 2 * math.pi * mode.frequency_hz * tau
-            if x > DELAY_LIMIT:
-                yield ("detection.local_oscillator_delay_s", f"{tau!r} s gives 2π f τ = "
-                       f"{x:.3g} at mode {mode.name}; expected 2π f τ ≤ {DELAY_LIMIT}, "
-                       "where the one-state delay model errs by at most (2π f τ)²/6 "
-                       "≈ 4 % in the phase-difference spectrum")

@@ -170,6 +170,15 @@ class Drive:
         return c / self.wavelength_m
 
 
+def port_problems(mode):
+    """The external port of a cavity mode is part of its total loss: κ_ex ≤ κ."""
+    if mode.external_linewidth_hz > mode.linewidth_hz:
+        yield ("external_linewidth_hz",
+               f"{mode.external_linewidth_hz!r} is larger than linewidth_hz = "
+               f"{mode.linewidth_hz!r}; expected external_linewidth_hz ≤ "
+               "linewidth_hz (the external port is part of the total loss)")
+
+
 @_frozen
 class Cavity:
     """``[cavity]``: the optical or microwave mode."""
@@ -185,11 +194,7 @@ class Cavity:
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
-        if self.external_linewidth_hz > self.linewidth_hz:
-            yield ("external_linewidth_hz",
-                   f"{self.external_linewidth_hz!r} is larger than linewidth_hz = "
-                   f"{self.linewidth_hz!r}; expected external_linewidth_hz ≤ "
-                   "linewidth_hz (the external port is part of the total loss)")
+        yield from port_problems(self)
 
 
 @_frozen
@@ -264,6 +269,11 @@ class Detection:
     local_oscillator_lock_bandwidth_hz: float | None = param(
         "bandwidth of the first-order phase lock (\"locked\" only)", unit="Hz",
         check="positive", default=None, high=MAX_AUXILIARY_HZ)
+    tone: str = param(
+        "name of the drive tone whose output field the receiver demodulates: the local "
+        "oscillator (or the microwave IQ reference) sits at that tone's frequency, offset "
+        "by intermediate_frequency_hz; \"drive\" is the [drive] tone, any other name a "
+        "[[tones]] table", check="label", default="drive")
     balanced: bool = param(
         "balanced detection (both ports of the signal–local-oscillator beam splitter "
         "subtracted); false: one port of a 50:50 combiner, which halves the efficiency",

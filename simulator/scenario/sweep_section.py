@@ -94,9 +94,9 @@ def parse_parameters(value, key, source):
                             'parameter path, e.g. "drive.power_w" = {start = 1e-9, stop = '
                             "1e-6, num = 7, log = true}", source=source, key=key)
     if not isinstance(value, dict):
-        raise ScenarioError(f"{value!r} is not a table of swept parameters; expected "
-                            f"[{key}] mapping parameter paths to a list of "
-                            "values or a range table", source=source, key=key)
+        raise ScenarioError(f"{value!r} is not a table of parameters; expected "
+                            f"[{key}] mapping parameter paths to a list of values or a "
+                            "range table", source=source, key=key)
     for path in value:
         twin = path[: -len("_dbm")] + "_w" if path.endswith("_dbm") else None
         if twin in value:  # one power in two units: which would the point use?
@@ -144,8 +144,9 @@ class Sweep:
         "also write a synthetic record at every stable point (DIR/records/<point>.h5; "
         "seeds spawned per point from scenario.seed)", default=False)
     spectra: bool = param(
-        "also write the analytic spectrum at every stable point (DIR/spectra/<point>.nc)",
-        default=False)
+        "also write the analytic spectrum at the cavity port (that of `noisechain spectrum "
+        "--at cavity`, before the detection chain) at every stable point "
+        "(DIR/spectra/<point>.nc)", default=False)
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""

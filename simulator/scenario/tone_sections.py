@@ -22,6 +22,7 @@ from simulator.scenario.sections import (
     MIN_DRIVE_POWER_W,
     IntensityNoise,
     PhaseNoise,
+    port_problems,
 )
 
 _frozen = dataclasses.dataclass(frozen=True, kw_only=True)
@@ -51,11 +52,7 @@ class CavityMode:
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
-        if self.external_linewidth_hz > self.linewidth_hz:
-            yield ("external_linewidth_hz",
-                   f"{self.external_linewidth_hz!r} is larger than linewidth_hz = "
-                   f"{self.linewidth_hz!r}; expected external_linewidth_hz ≤ linewidth_hz "
-                   "(the external port is part of the total loss)")
+        yield from port_problems(self)
 
 
 @_frozen
@@ -145,6 +142,9 @@ def tone_problems(scenario):
                    f"{frequency[tone.cavity_mode] + tone.detuning_hz:.6g} Hz for a mode at "
                    f"{frequency[tone.cavity_mode]:.6g} Hz; expected |detuning_hz| below the "
                    "mode's frequency (the rotating-frame model assumes |Δ| ≪ its frequency)")
+    if scenario.detection.tone not in tones:
+        yield ("detection.tone", f"{scenario.detection.tone!r} names no drive tone; expected "
+               f"one of {', '.join(map(repr, tones))}")
     mechanics, seen = [m.name for m in scenario.mechanics], set()
     for i, pair in enumerate(scenario.couplings):
         key = f"couplings[{i}]"

@@ -84,6 +84,12 @@ def power_alias(cls, name):
     return None
 
 
+def dbm_keys(cls):
+    """The ``<name>_dbm`` keys section ``cls`` accepts beside its watt keys."""
+    return [f.name[:-2] + DBM for f in schema.public_fields(cls)
+            if f.metadata.get("unit") == "W" and f.name.endswith("_w")]
+
+
 def dbm_value(value, key, source):
     """A dBm value checked to be a finite number, or the error naming ``key``."""
     if isinstance(value, bool) or not isinstance(value, (int, float)):

@@ -243,7 +243,7 @@ class PointOutputs:
                 warnings.simplefilter("ignore")  # clipping is counted in the file
                 simulate_record(scenario, seed=self.seed, out=path, overwrite=True)
             written.append(f"records/{self.key}.h5")
-        if self.spectra:
+        if self.spectra:  # at the cavity port: milliseconds a point (the digitiser's takes ~1 s)
             from simulator.linear.spectra import measured_spectrum
 
             path = Path(self.folder) / "spectra" / f"{self.key}.nc"
@@ -257,13 +257,15 @@ def _add_sidebands(scenario, result):
     """Sideband ratio, the occupation it implies, and the asymmetry integration time."""
     from simulator.analysis.feasibility import ASYMMETRY_SIGNIFICANCE, asymmetry_time
     from simulator.linear.sidebands import sideband_summary
+    from simulator.model.system import System
 
-    for j, s in enumerate(sideband_summary(scenario)):
+    system = System(scenario)  # built once for the summary and every mode's bound
+    for j, s in enumerate(sideband_summary(system)):
         result["sideband_ratio"][j] = s.ratio
         result["occupation_from_ratio"][j] = s.occupation_from_ratio
         if scenario.detection.scheme == "heterodyne":
             result["asymmetry_time_s"][j] = asymmetry_time(
-                scenario, j, ASYMMETRY_SIGNIFICANCE).duration_s
+                system, j, ASYMMETRY_SIGNIFICANCE).duration_s
 
 
 def _point_task(common, payload):

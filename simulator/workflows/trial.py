@@ -78,7 +78,7 @@ def truth_table(scenario):
     from simulator.linear.steady_state import steady_state
     from simulator.model.system import as_system
 
-    system = as_system(scenario)
+    system = as_system(scenario, stage="simulator.workflows.trial.truth_table")
     point, steady = system.point, steady_state(system)
     table = {"cavity_occupation": steady.cavity_occupation}
     for j, (mp, ms) in enumerate(zip(point.modes, steady.modes, strict=True)):
@@ -91,6 +91,23 @@ def truth_table(scenario):
             if j == 0:
                 table[key] = value
     return table
+
+
+def checked_averaged(scenario, averaged, duration_s):
+    """``(segment samples, window)`` of ``--averaged`` checked against the record before
+    any trial runs (else every trial would fail alike, as if the estimator had)."""
+    from simulator.analysis.psd import taper
+    from simulator.model.sample_rate import record_sample_rate
+    from simulator.model.system import System
+
+    segment, window = averaged
+    samples = round(duration_s * record_sample_rate(scenario, System(scenario).chain))
+    if isinstance(segment, bool) or not isinstance(segment, (int, np.integer)) or not (
+            2 <= segment <= samples):
+        raise InputError(f"--averaged {segment!r}: expected segments of 2 to the record's "
+                         f"{samples} samples")
+    taper(str(window), int(segment))  # an unknown window: InputError naming it
+    return int(segment), str(window)
 
 
 def truth_of(name, table):
@@ -223,7 +240,7 @@ def run_trials(scenario, estimator, n_trials, out, *, duration_s=None, workers=N
     # edited code never reuses old results
     source = check_estimator(estimator, timeout_s)
     if averaged is not None:
-        averaged = (int(averaged[0]), str(averaged[1]))
+        averaged = checked_averaged(scenario, averaged, duration)
     identity = f"{text}\n{estimator}\n{duration!r}\n{source}" + (
         "" if averaged is None else f"\naveraged {averaged!r}")
     with tasks.claim_folder(out, "trial.json", {

@@ -1,6 +1,6 @@
 """Benchmark: the reference thermometry on the resolved microwave drum.
 
-tests/data/drum_microwave_trial.toml: 0.2 s IQ records at 20 MS/s. Prints
+tests/data/drum_microwave_trial.toml: 0.2 s IQ records at the automatic 60 MS/s. Prints
 
 - seconds per record of the reference estimator beside a naive one (Hann
   periodogram, excess power summed over ±5 linewidths at +Ωm), measured on
