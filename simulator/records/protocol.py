@@ -270,6 +270,37 @@ def _mean_output_peak(segment, mean):
     return scale * float(np.sqrt(np.sum(amplitude**2)))
 
 
+def segment_starts(segments, mean, cov, fs):
+    """Yield ``(segment, mean, covariance)`` at each segment's first sample, kick included."""
+    for seg in segments:
+        mean = mean.copy()
+        mean[seg.kick_index] += seg.kick
+        yield seg, mean, cov
+        cov, e = covariance_flow(seg.chain.model.A, seg.discrete.state_covariance, cov,
+                                 seg.n_samples / fs)
+        mean = e @ mean
+
+
+def state_moments(plan, samples):
+    """Exact mean (k, n) and covariance (k, n, n) of the state at the given sample indices.
+
+    The state at sample s is the one at the start of its interval, time s/fs
+    (the rows of the stored mechanical quadratures).
+    """
+    samples = np.asarray(samples, dtype=np.int64)
+    fs = plan.sample_rate_hz
+    n = len(plan.start_mean)
+    means, covs = np.empty((len(samples), n)), np.empty((len(samples), n, n))
+    for seg, mean, cov in segment_starts(plan.segments, plan.start_mean,
+                                         plan.start_covariance, fs):
+        inside = np.flatnonzero((samples >= seg.first) & (samples < seg.first + seg.n_samples))
+        for i in inside:
+            covs[i], e = covariance_flow(seg.chain.model.A, seg.discrete.state_covariance,
+                                         cov, (samples[i] - seg.first) / fs)
+            means[i] = e @ mean
+    return means, covs
+
+
 def exact_timeline(segments, mean, cov, points, fs):
     """The :class:`Timeline` from the exact mean and covariance flow; peak mean outputs."""
     from simulator.linear.steady_state import steady_state
@@ -281,25 +312,19 @@ def exact_timeline(segments, mean, cov, points, fs):
     ip = [model0.index(f"{n}.p") for n in names]
     cavity = [model0.index(s) for s in ("cavity.X", "cavity.Y") if s in model0.states]
     rows, peaks = [], []
-    for k, seg in enumerate(segments):
-        mean = mean.copy()
-        mean[seg.kick_index] += seg.kick
-        peaks.append(_mean_output_peak(seg, mean))
+    for k, (seg, m0, v0) in enumerate(segment_starts(segments, mean, cov, fs)):
+        peaks.append(_mean_output_peak(seg, m0))
         steady = steady_state(seg.system)
         freq = [m.effective_frequency_hz for m in steady.modes]
         width = [m.effective_linewidth_hz for m in steady.modes]
-        a, v_inf = seg.chain.model.A, seg.discrete.state_covariance
-        duration = seg.n_samples / fs
-        for t in np.linspace(0.0, duration, points):
-            v, e = covariance_flow(a, v_inf, cov, t)
-            m = e @ mean
+        for t in np.linspace(0.0, seg.n_samples / fs, points):
+            v, e = covariance_flow(seg.chain.model.A, seg.discrete.state_covariance, v0, t)
+            m = e @ m0
             n_cav = (0.5 * (v[cavity[0], cavity[0]] + v[cavity[1], cavity[1]] - 1.0)
                      if cavity else np.nan)
             rows.append((seg.first / fs + t, k,
                          0.5 * (np.diag(v)[iq] + np.diag(v)[ip] - 1.0), m[iq], m[ip],
                          freq, width, n_cav))
-        cov, e = covariance_flow(a, v_inf, cov, duration)
-        mean = e @ mean
     cols = list(zip(*rows, strict=True))
     return Timeline(
         mode_names=names, segment_names=tuple(s.name for s in segments),

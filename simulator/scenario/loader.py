@@ -138,8 +138,8 @@ class Scenario:
                 "; expected a path such as 'drive.detuning_hz'")
             yield key, exc.detail + hint
             return
-        if path.split(".")[0] in ("sweep", "plan", "schedule") or dataclasses.is_dataclass(value) or isinstance(
-                value, tuple):
+        if path.split(".")[0] in ("sweep", "plan", "schedule") or dataclasses.is_dataclass(
+                value) or isinstance(value, tuple):
             yield key, f"{path!r} does not name a single scenario parameter"
         elif leaf_type(type(self), self._canonical(path)[0], self.source) not in (int, float):
             role = "sweepable" if path == swept else "usable as the unit of a range"

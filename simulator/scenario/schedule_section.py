@@ -23,6 +23,7 @@ import dataclasses
 import math
 
 from simulator.errors import ScenarioError
+from simulator.scenario.paths import leaf_type
 from simulator.scenario.schema import param
 from simulator.scenario.sweep_section import ReadOnlyTable
 
@@ -115,11 +116,14 @@ def segment_problems(scenario):
                    "tables")
         for path, value in (segment.changes or {}).items():
             try:
-                kind = type(base.get(path))
+                value_now = base.get(path)
+                kind = leaf_type(type(base), base._canonical(path)[0], base.source)
             except ScenarioError as exc:
                 yield f'{where}.changes."{path}"', exc.detail
                 continue
-            if kind not in (int, float):
+            except (KeyError, TypeError):  # a path through a structured value
+                kind = None
+            if kind not in (int, float) or isinstance(value_now, tuple):
                 yield (f'{where}.changes."{path}"', f"{path!r} is not a numeric parameter; "
                        "expected a number such as 'drive.power_w'")
                 continue
