@@ -189,3 +189,22 @@ def test_a_segment_that_changes_the_state_layout_is_refused():
                      {"duration_s": 1e-4, "changes": {"electronics.bandwidth_hz": 1e5}}])
     with pytest.raises(InputError, match="state layout"):
         plan_protocol(scenario)
+
+
+def test_example_protocol_scenario_rings_down_cools_and_rethermalises():
+    from pathlib import Path
+
+    from simulator.scenario.loader import load_scenario
+
+    path = Path(__file__).resolve().parents[1] / "scenarios" / "nanostring_protocol.toml"
+    record, tl = generate_protocol_record(load_scenario(path))
+    assert record.clipped_samples == 0
+    ring, cool, off = (np.flatnonzero(tl.segment == k) for k in range(3))
+    amplitude = np.hypot(tl.mean_q[:, 0], tl.mean_p[:, 0])
+    t = tl.times_s[ring]
+    assert np.allclose(amplitude[ring], amplitude[0] * np.exp(-np.pi * 20.0 * t), rtol=1e-6)
+    n_th = tl.occupation[0, 0]
+    assert tl.occupation[cool[-1], 0] < 0.01 * n_th  # cooled
+    n_c, dt = tl.occupation[off[0], 0], tl.times_s[off] - tl.times_s[off[0]]
+    assert np.allclose(tl.occupation[off, 0],
+                       n_th + (n_c - n_th) * np.exp(-2 * np.pi * 20.0 * dt), rtol=1e-6)
