@@ -203,8 +203,9 @@ def test_example_protocol_scenario_rings_down_cools_and_rethermalises():
     amplitude = np.hypot(tl.mean_q[:, 0], tl.mean_p[:, 0])
     t = tl.times_s[ring]
     assert np.allclose(amplitude[ring], amplitude[0] * np.exp(-np.pi * 20.0 * t), rtol=1e-6)
-    n_th = tl.occupation[0, 0]
-    assert tl.occupation[cool[-1], 0] < 0.01 * n_th  # cooled
+    probed = plan_protocol(load_scenario(path)).segments[2].system
+    n_probe = steady_state(probed).modes[0].occupation  # the bath plus the probe's heating
+    assert tl.occupation[cool[-1], 0] < 0.01 * n_probe  # cooled
     n_c, dt = tl.occupation[off[0], 0], tl.times_s[off] - tl.times_s[off[0]]
     assert np.allclose(tl.occupation[off, 0],
-                       n_th + (n_c - n_th) * np.exp(-2 * np.pi * 20.0 * dt), rtol=1e-6)
+                       n_probe + (n_c - n_probe) * np.exp(-2 * np.pi * 20.0 * dt), rtol=2e-3)
