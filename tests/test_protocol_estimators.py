@@ -1,0 +1,71 @@
+"""Reference estimators of scheduled records, run through the trial harness.
+
+The ring-down linewidth (simulator.analysis.ringdown: demodulated sideband,
+exponential fit of the block power; common practice) on the example
+nanostring's probe ring-down, where zero detuning gives no optical damping
+(Aspelmeyer, Kippenberg & Marquardt, Rev. Mod. Phys. 86, 1391 (2014), Eq. 87:
+Γopt ∝ the difference of the two sideband weights, zero at Δ = 0), so the truth
+is the intrinsic Γm.
+"""
+
+import dataclasses
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from simulator.analysis.ringdown import correlation_factor, fit_ring_down
+from simulator.errors import InputError
+from simulator.scenario.loader import load_scenario
+from simulator.workflows.trial import run_trials, truth_table
+
+EXAMPLE = Path(__file__).resolve().parents[1] / "scenarios" / "nanostring_protocol.toml"
+TRIALS = 16
+
+
+def ring_down_only():
+    scenario = load_scenario(EXAMPLE)
+    return dataclasses.replace(scenario, schedule=dataclasses.replace(
+        scenario.schedule, segments=scenario.schedule.segments[:1]))
+
+
+def test_fit_recovers_a_noiseless_decay_exactly():
+    fs, f, rate = 1e6, 1e5, 300.0
+    t = np.arange(40_000) / fs
+    z = 50.0 * np.exp(-rate * t / 2 + 2j * np.pi * f * t)
+    estimate, _ = fit_ring_down(z, fs, f, 500)
+    assert estimate == pytest.approx(rate, rel=1e-6)
+    with pytest.raises(InputError, match="at least"):
+        fit_ring_down(z[:2000], fs, f, 500)
+
+
+def test_correlation_factor_of_white_and_of_correlated_residuals():
+    rng = np.random.default_rng(4)
+    white = rng.standard_normal(4000)
+    assert correlation_factor(white) < 1.1
+    smooth = np.convolve(white, np.ones(9) / 9, mode="valid")  # ρ_j = 1 − j/9: 1 + 2Σ = 9
+    assert correlation_factor(smooth) == pytest.approx(9.0, rel=0.25)
+
+
+def test_ring_down_linewidth_through_the_trial_harness(tmp_path):
+    """Bias and pulls of the reference ring-down fit over independent records.
+
+    Measured (16 trials, the example's seed): mean 20.15 Hz for Γm/2π = 20 Hz,
+    bias 0.15 ± 0.12 Hz (not significant), spread 0.48 Hz, pull width 3.0:
+    the stated errors are about three times too small, since the thermal
+    motion's beat with the kicked amplitude is correlated over most of the
+    fit window, which the integrated-autocorrelation inflation only partly
+    captures (docs/records.md, "Schedules"). The test pins the bias and keeps
+    the pull width measured within broad limits, so a change shows.
+    """
+    scenario = ring_down_only()
+    truth = truth_table(scenario)["effective_linewidth_hz@ring-down"]
+    assert truth == pytest.approx(scenario.mechanics[0].linewidth_hz, rel=1e-9)
+    result = run_trials(scenario, "simulator.analysis.ringdown:ring_down_linewidth", TRIALS,
+                        tmp_path, workers=2, progress=False)
+    assert not result.errors
+    (q,) = result.quantities
+    assert q.truth == truth and q.trials == TRIALS
+    assert abs(q.bias) < 0.02 * truth
+    assert abs(q.bias) < 4 * q.bias_error
+    assert 0.5 < q.pull_width < 4.0
