@@ -8,7 +8,7 @@ Checks:
   coupling: cooling switched on (Marquardt et al., PRL 99, 093902 (2007);
   Wilson-Rae et al., PRL 99, 093901 (2007)) and re-thermalisation with the drive
   off at the rate Γm, initial heating rate Γm (n_th − n_i) (Aspelmeyer, Kippenberg
-  and Marquardt, Rev. Mod. Phys. 86, 1391 (2014), Sec. VII.A);
+  and Marquardt, Rev. Mod. Phys. 86, 1391 (2014); section recalled from memory);
 - a ring-down's mean amplitude decays as e^{−Γ_eff t/2};
 - a Monte Carlo of many short records: the ensemble mean and variance of the
   stored mechanical quadrature at several times against the exact moments,

@@ -33,6 +33,21 @@ BLOCK_DECAY = 0.02  # Γ × block length: the decay within a block stays below 2
 MIN_BLOCKS = 8  # fewer blocks leave too few degrees of freedom for three parameters
 
 
+def demodulated_power(z, sample_rate_hz, frequency_hz, block_samples):
+    """Block centres (s) and |block mean of z e^{−2πi f t}|²: the power near the line at +f.
+
+    Each block mean passes a band of about fs/L around the line (a sinc
+    response), so the result follows the sideband's power in time: a coherent
+    amplitude's square plus the thermal and shot-noise power in that band.
+    """
+    block_samples = int(block_samples)
+    n_blocks = len(z) // block_samples
+    k = np.arange(n_blocks * block_samples)
+    w = np.asarray(z)[:len(k)] * np.exp(-2j * np.pi * frequency_hz * k / sample_rate_hz)
+    power = np.abs(w.reshape(n_blocks, block_samples).mean(axis=1)) ** 2
+    return (np.arange(n_blocks) + 0.5) * block_samples / sample_rate_hz, power
+
+
 def fit_ring_down(z, sample_rate_hz, frequency_hz, block_samples):
     """Energy decay rate Γ (1/s) and its standard error from a demodulated ring-down.
 
@@ -46,14 +61,11 @@ def fit_ring_down(z, sample_rate_hz, frequency_hz, block_samples):
     block_samples : int
         Samples averaged into one point of the envelope.
     """
-    n_blocks = len(z) // int(block_samples)
+    t, power = demodulated_power(z, sample_rate_hz, frequency_hz, block_samples)
+    n_blocks = len(t)
     if n_blocks < MIN_BLOCKS:
         raise InputError(f"a ring-down of {len(z)} samples gives {n_blocks} blocks of "
                          f"{block_samples}; expected at least {MIN_BLOCKS}")
-    k = np.arange(n_blocks * block_samples)
-    w = z[:len(k)] * np.exp(-2j * np.pi * frequency_hz * k / sample_rate_hz)
-    power = np.abs(w.reshape(n_blocks, block_samples).mean(axis=1)) ** 2
-    t = (np.arange(n_blocks) + 0.5) * block_samples / sample_rate_hz
 
     def model(time, a, rate, b):
         return a * np.exp(-rate * time) + b
