@@ -20,6 +20,7 @@ The engine is :mod:`simulator.records.protocol`.
 """
 
 import dataclasses
+import difflib
 import math
 
 from simulator.errors import ScenarioError
@@ -119,7 +120,10 @@ def segment_problems(scenario):
                 value_now = base.get(path)
                 kind = leaf_type(type(base), base._canonical(path)[0], base.source)
             except ScenarioError as exc:
-                yield f'{where}.changes."{path}"', exc.detail
+                close = difflib.get_close_matches(path, base.parameter_paths(), n=1)
+                hint = f"; did you mean {close[0]!r}?" if close else (
+                    "; expected a path such as 'drive.power_w'")
+                yield f'{where}.changes."{path}"', exc.detail + hint
                 continue
             except (KeyError, TypeError):  # a path through a structured value
                 kind = None
