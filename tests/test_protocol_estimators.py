@@ -78,3 +78,17 @@ def test_protocol_figure_is_written(tmp_path):
     record, timeline = generate_protocol_record(load_scenario(EXAMPLE))
     path = plot_protocol(record, timeline, tmp_path / "protocol.png")
     assert path.stat().st_size > 10_000
+
+
+def test_run_writes_the_scheduled_record_and_its_figure(tmp_path):
+    from simulator.io.timelinefile import read_timeline
+    from simulator.workflows.run import run_scenario
+
+    scenario = load_scenario(EXAMPLE)
+    scenario = dataclasses.replace(scenario, record=dataclasses.replace(scenario.record,
+                                                                        in_run=True))
+    run_scenario(scenario, tmp_path / "run", progress=False)
+    timeline = read_timeline(tmp_path / "run" / "record.h5")
+    assert timeline.segment_names == ("ring-down", "cooling on", "cooling off")
+    assert (tmp_path / "run" / "record_protocol.png").stat().st_size > 10_000
+    assert not (tmp_path / "run" / "record_spectrum.png").exists()
