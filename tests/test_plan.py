@@ -374,3 +374,17 @@ def test_occupation_error_objective_is_the_cramer_rao_bound():
     out = evaluate_plan_point(base, plan, [("drive.power_w", 1e-6)])
     bound = occupation_bound(System(base.replace("drive.power_w", 1e-6)), 0)
     assert out.objective == pytest.approx(bound.error_one_second / 2.0)
+
+
+def test_flatness_of_a_power_in_dbm_is_ten_percent_of_the_power():
+    """±10 % of a level in dBm would be tens of decibels; the probe moves the power by ±10 %."""
+    from simulator.analysis.planner import in_decibels, relative_change
+
+    best = -70.9
+    for change in (-0.1, 0.1):
+        probe = best + 10 * math.log10(1 + change)
+        assert relative_change("drive.power_dbm", probe, best, 50.0) == pytest.approx(change)
+        watts = 1e-3 * 10 ** (probe / 10)
+        assert watts / (1e-3 * 10 ** (best / 10)) == pytest.approx(1 + change)
+    assert in_decibels("electronics.amplifier_gain_db") and not in_decibels("drive.power_w")
+    assert relative_change("drive.power_w", 1.1e-9, 1e-9, 1.0) == pytest.approx(0.1)

@@ -228,3 +228,22 @@ def test_sweep_table_is_valid(path):
     for _, assignments in points:
         for key, value in assignments:
             scenario.replace(key, value)
+
+
+TONE_FILES = [p for p in FILES if "[[tones]]" in p.read_text(encoding="utf-8")]
+
+
+@pytest.mark.parametrize("path", TONE_FILES, ids=lambda p: p.name)
+def test_several_tone_examples_give_spectrum_and_record(path, tmp_path, capsys):
+    """The examples with several tones run through the stages of their detected tone:
+    the spectrum at the digitiser and a short record that names its tone."""
+    scenario = load_scenario(path)
+    assert cli.main(["spectrum", str(path), "--json"]) == cli.EXIT_OK
+    assert strict_json(capsys.readouterr().out)["scenario"] == scenario.scenario.name
+    out = tmp_path / "record.h5"
+    assert cli.main(["record", str(path), "--out", str(out), "--duration", "2e-5"]) == 0
+    capsys.readouterr()
+    from simulator.io.recordfile import load_record
+
+    record = load_record(out)
+    assert record.truth.calibration["detected_tone"] == scenario.detection.tone

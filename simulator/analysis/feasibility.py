@@ -51,7 +51,8 @@ def _system(item):
     """The System of ``item`` (a System, or a scenario built into one), checked stable."""
     from simulator.model.system import as_system
 
-    return as_system(item).require_stable()  # a clear error for an unstable point
+    # the detected tone in the drive's place; a clear error for an unstable point
+    return as_system(item, several_tones="detected").require_stable()
 
 
 def _sample_rate(system, sample_rate_hz=None):
@@ -176,11 +177,23 @@ def default_paths(scenario, mode=0):
     separately, by ring-down, in common practice): in the spectrum it enters
     almost only through Γm·n_th, so estimating it jointly with the bath makes
     the information matrix nearly singular. Pass ``paths`` to choose others.
+    The coupling is that of the detected tone's cavity mode (``detection.tone``):
+    ``mechanics[j].coupling_hz`` for the [cavity] mode, else the
+    ``couplings[i].coupling_hz`` of the pair.
     """
     m = scenario.mechanics[mode]
     bath = "bath_occupation" if m.bath_occupation is not None else "bath_temperature_k"
-    return (f"mechanics[{mode}].{bath}", f"mechanics[{mode}].coupling_hz",
-            "detection.efficiency")
+    return (f"mechanics[{mode}].{bath}", _coupling_path(scenario, mode), "detection.efficiency")
+
+
+def _coupling_path(scenario, mode):
+    """Path of g0 between the detected tone's cavity mode and mechanical mode ``mode``."""
+    cavity = next((t.cavity_mode for t in scenario.tones if t.name == scenario.detection.tone),
+                  None)
+    for i, pair in enumerate(scenario.couplings):
+        if pair.cavity_mode == cavity and pair.mechanics == scenario.mechanics[mode].name:
+            return f"couplings[{i}].coupling_hz"
+    return f"mechanics[{mode}].coupling_hz"
 
 
 def occupation_bound(system, mode=0, paths=None, *, sample_rate_hz=None):

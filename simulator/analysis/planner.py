@@ -279,18 +279,35 @@ def penalised(outcome):
     return PENALTY + min(excess, 1e6) + (0.0 if math.isfinite(outcome.objective) else 1.0)
 
 
+def in_decibels(path):
+    """Whether the parameter at ``path`` is a level in decibels (dBm, dB)."""
+    return path.endswith(("_dbm", "_db"))
+
+
+def relative_change(path, value, best, span):
+    """Relative change from ``best`` to ``value``: of the power for a level in
+    decibels, of the value otherwise (of ``span`` when ``best`` is zero)."""
+    if in_decibels(path):
+        return 10.0 ** ((value - best) / 10.0) - 1.0
+    return (value - best) / (abs(best) if best else span)
+
+
 def _flatness(memo, coordinates, continuous, best, best_outcome):
     """The objective with each continuous parameter at (1 ± FLATNESS_STEP) × its value.
 
     A parameter at zero (a detuning on resonance) moves by FLATNESS_STEP of
-    its range instead.
+    its range instead; a level in decibels (a ``_dbm`` or ``_db`` path) moves
+    by the decibels of (1 ± FLATNESS_STEP) × the power it stands for.
     """
     probes = []
     for j in continuous:
         c = coordinates[j]
         for sign in (-1.0, 1.0):
-            step = abs(best[j]) if best[j] != 0 else (c.high - c.low)
-            value = best[j] + sign * FLATNESS_STEP * step
+            if in_decibels(c.path):
+                value = best[j] + 10.0 * math.log10(1.0 + sign * FLATNESS_STEP)
+            else:
+                step = abs(best[j]) if best[j] != 0 else (c.high - c.low)
+                value = best[j] + sign * FLATNESS_STEP * step
             point = tuple(value if k == j else v for k, v in enumerate(best))
             outcome = memo(point)
             with np.errstate(all="ignore"):

@@ -54,10 +54,13 @@ class Calibration:
 
     @classmethod
     def from_scenario(cls, system, mode=0):
-        """Nominal calibration from a system (or scenario): its operating point, not the truth."""
+        """Nominal calibration from a system (or scenario): its operating point, not the truth.
+
+        With several tones, that of the detected tone (``detection.tone``): its
+        cavity mode, detuning and g; the occupation is set by every tone."""
         from simulator.model.system import as_system
 
-        system = as_system(system)
+        system = as_system(system, several_tones="detected")
         point = system.point
         mp = point.modes[mode]
         return cls(cavity_linewidth_hz=point.cavity_linewidth_hz,

@@ -85,7 +85,7 @@ def digitiser_spectrum(system, frequency_hz=None, *, sample_rate_hz=None, aliase
         ``total`` equals ``system.chain.sampled_spectrum(f, fs, aliases)``;
         the contributions sum to it to round-off.
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, several_tones="detected").require_stable()
     scenario, chain = system.scenario, system.chain
     fs = record_sample_rate(scenario, chain) if sample_rate_hz is None else float(sample_rate_hz)
     if not (np.isfinite(fs) and fs > 0):
@@ -297,7 +297,7 @@ def record_sidebands(system, summaries, *, sample_rate_hz=None, aliases=ALIASES)
     peak). The homodyne record mixes both sidebands into one line at |ν|:
     NaN there.
     """
-    system = as_system(system)
+    system = as_system(system, several_tones="detected")
     scenario, chain = system.scenario, system.chain
     fs = record_sample_rate(scenario, chain) if sample_rate_hz is None else sample_rate_hz
     out = []

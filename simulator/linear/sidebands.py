@@ -175,12 +175,14 @@ def sideband_summary(system, *, at_digitiser=True):
     drive that also reaches the detector the areas carry its interference
     with the motion it drives: the false asymmetry (docs/laser-noise.md).
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, several_tones="detected").require_stable()
     scenario, point, model = system.scenario, system.point, system.model
     steady = steady_state(system)
     eta = scenario.detection.efficiency
-    poles = _Poles(model, len(point.modes))
-    stokes_index = [poles.index_of(lam) for lam in mode_eigenvalues(model, len(point.modes))]
+    n_tones = max(len(point.tones), 1)  # every tone's field is part of the device
+    poles = _Poles(model, len(point.modes), n_tones)
+    stokes_index = [poles.index_of(lam)
+                    for lam in mode_eigenvalues(model, len(point.modes), n_tones)]
     summaries = []
     for j, mode in enumerate(point.modes):
         sides = {}
@@ -237,9 +239,9 @@ def _warning(poles, k, j):
 class _Poles:
     """Poles ω_k = iλ_k of the heterodyne output density and their residues."""
 
-    def __init__(self, model, n_modes):
+    def __init__(self, model, n_modes, n_tones=1):
         self.model = model
-        self.device = device_size(n_modes)
+        self.device = device_size(n_modes, n_tones)
         # balance first: with laser-noise filter states the raw eigenvectors of a
         # simple eigenvalue can be nearly orthogonal to its left ones (scaling only)
         balanced, (self.scale, _) = scipy.linalg.matrix_balance(

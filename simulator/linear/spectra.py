@@ -187,7 +187,7 @@ def heterodyne_spectrum(system, frequency_hz=None, *, efficiency=None):
     ----------
     Weinstein et al., Phys. Rev. X 4, 041003 (2014) (heterodyne sideband spectra).
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, several_tones="detected").require_stable()
     scenario, model = system.scenario, system.model
     eta = _efficiency(scenario, efficiency)
     f = _grid(frequency_hz, model, one_sided=False)
@@ -222,7 +222,7 @@ def homodyne_spectrum(system, frequency_hz=None, *, quadrature_angle=np.pi / 2,
     simulator.linear.spectrum.Spectrum
         One-sided density in shot-noise units, S(f) = 1 + η(2 S̄_θθ(f) − 1).
     """
-    system = as_system(system).require_stable()
+    system = as_system(system, several_tones="detected").require_stable()
     scenario, model = system.scenario, system.model
     eta = _efficiency(scenario, efficiency)
     theta = float(quadrature_angle)
@@ -248,7 +248,7 @@ def measured_spectrum(system, *, frequency_hz=None, quadrature_angle=None):
     :func:`homodyne_spectrum`. The homodyne quadrature angle defaults to the
     scenario's ``detection.quadrature_angle_rad``, as in its records.
     """
-    system = as_system(system)
+    system = as_system(system, several_tones="detected")
     detection = system.scenario.detection
     if quadrature_angle is None:
         quadrature_angle = detection.quadrature_angle_rad

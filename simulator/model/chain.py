@@ -284,7 +284,10 @@ def detection_chain(scenario, point, model):
     scenario : simulator.scenario.loader.Scenario
     point : simulator.model.operating_point.OperatingPoint
     model : simulator.model.statespace.StateSpace
-        The model of :func:`simulator.model.optomechanics.linear_model`.
+        The model of :func:`simulator.model.optomechanics.linear_model`; with
+        several tones the detected view of both
+        (:func:`simulator.model.detected_tone.detected_parts`): the receiver
+        demodulates the outputs ``output.X/Y`` at ``point.drive_frequency_hz``.
 
     Returns
     -------
@@ -311,8 +314,9 @@ def detection_chain(scenario, point, model):
     if receiver == "iq" and added == 0.0:
         added = 0.5
     side = 1.0 if det.local_oscillator_side == "above" else -1.0
-    scales = (microwave_scales(scenario, receiver) if det.receiver == "microwave"
-              else optical_scales(scenario, share, side))
+    f_tone = point.drive_frequency_hz  # the detected tone's carrier (detection.tone)
+    scales = (microwave_scales(scenario, receiver, f_tone) if det.receiver == "microwave"
+              else optical_scales(scenario, share, side, f_tone))
     electronic = scales.pop("electronic")
 
     builder = _Builder(model)

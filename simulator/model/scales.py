@@ -19,9 +19,10 @@ power is (I² + Q²)/(2Z),
 so that a white input-referred noise of n + ½ quanta (n added by the
 amplifier, ½ the vacuum) gives the power P = G h f (n + ½) B in a band B
 at the digitiser (Clerk et al., Rev. Mod. Phys. 82, 1155 (2010), Sec. V,
-for added noise referred to the amplifier's input). f is the drive
-frequency: the sidebands lie within Ωm of it, a relative error of Ωm/ω in
-the scale, common practice to neglect.
+for added noise referred to the amplifier's input). f is the frequency of
+the detected tone (``detection.tone``, the drive by default): the sidebands
+lie within Ωm of it, a relative error of Ωm/ω in the scale, common practice
+to neglect.
 
 References
 ----------
@@ -33,12 +34,13 @@ import numpy as np
 from scipy import constants
 
 
-def optical_scales(scenario, share, side):
+def optical_scales(scenario, share, side, frequency_hz=None):
     """Photocurrent and volts per record unit of an optical receiver.
 
     The photocurrent per record unit is e √(b Φ_LO), Φ_LO = η P_LO/(h f_LO)
     (see :func:`simulator.model.chain.detection_chain`); ``share`` is b,
-    ``side`` ±1 for a local oscillator above or below the drive.
+    ``side`` ±1 for a local oscillator above or below the detected tone, whose
+    carrier is ``frequency_hz`` (default: the drive's).
 
     Returns
     -------
@@ -47,7 +49,8 @@ def optical_scales(scenario, share, side):
         fields of :class:`simulator.model.chain.DetectionChain`.
     """
     det, el = scenario.detection, scenario.electronics
-    f_lo = scenario.drive.carrier_frequency_hz + side * det.intermediate_frequency_hz
+    f_lo = (frequency_hz or scenario.drive.carrier_frequency_hz) + side * \
+        det.intermediate_frequency_hz
     flux = det.efficiency * det.local_oscillator_power_w / (constants.h * f_lo)
     amps = constants.e * np.sqrt(share * flux)
     return {"electronic": el.current_noise_a_per_sqrt_hz ** 2 / 2.0 / amps ** 2,
@@ -56,16 +59,17 @@ def optical_scales(scenario, share, side):
             "lo_photocurrent_a": float(constants.e * flux)}
 
 
-def microwave_scales(scenario, receiver):
+def microwave_scales(scenario, receiver, frequency_hz=None):
     """Volts per record unit of a microwave receiver (module doc): no photocurrent.
 
     ``receiver`` is ``"iq"`` or ``"if"``. Returns the scale fields of
     :class:`simulator.model.chain.DetectionChain` (photocurrents NaN) and
     ``electronic`` = 0 (later stages are in the amplifier's added noise).
+    ``frequency_hz`` is the detected tone's carrier (default: the drive's).
     """
     el = scenario.electronics
     gain = 10.0 ** (el.amplifier_gain_db / 10.0)
-    quantum = constants.h * scenario.drive.carrier_frequency_hz
+    quantum = constants.h * (frequency_hz or scenario.drive.carrier_frequency_hz)
     volts = np.sqrt(2.0 * gain * el.impedance_ohm * quantum)
     if receiver == "if":  # v_IF = I cos θt − Q sin θt = (volts of iq) × r / 2
         volts /= 2.0

@@ -11,8 +11,13 @@ and the master-equation comparison all take this object; none of them
 rebuilds the operating point or the model it was handed.
 
 A scenario with several drive tones (``[[tones]]``) builds a System (operating
-point, model, stability) that the steady state takes; every other stage still
-refuses it through :func:`as_system` and :meth:`System.require_one_tone`.
+point, model, stability) that the steady state takes whole. The stages that
+follow the receiver (spectra, sideband summary, noise budget, detection chain,
+records, feasibility, inspection) take its :attr:`System.detected` view, in
+which the tone named by ``detection.tone`` plays the drive's part
+(:mod:`simulator.model.detected_tone`); the master equation and the other
+stages still refuse it through :func:`as_system` and
+:meth:`System.require_one_tone`.
 
 A System is immutable, like the scenario it holds. New ones are derived by
 path (:meth:`System.replace`); a change that cannot alter the physics (the
@@ -24,6 +29,7 @@ import sys
 
 from simulator.errors import InputError
 from simulator.model.chain import detection_chain
+from simulator.model.detected_tone import detected_parts
 from simulator.model.operating_point import operating_point
 from simulator.model.optomechanics import linear_model
 from simulator.model.stability import require_stable, stability
@@ -55,10 +61,10 @@ class System:
         (built on first use).
     """
 
-    def __init__(self, scenario, *, _parts=None):
+    def __init__(self, scenario, *, _parts=None, _detected=False):
         point, model, verdict = _parts or _build(scenario)
         for name, value in (("scenario", scenario), ("point", point), ("model", model),
-                            ("stability", verdict)):
+                            ("stability", verdict), ("_detected", _detected)):
             object.__setattr__(self, name, value)
 
     def __setattr__(self, name, value):
@@ -83,8 +89,18 @@ class System:
     @functools.cached_property
     def chain(self):
         """The model extended by the detection chain (built on first use, then kept)."""
-        self.require_one_tone("the detection chain (records, measured spectra, feasibility)")
-        return detection_chain(self.scenario, self.point, self.model)
+        seen = self.detected
+        return detection_chain(self.scenario, seen.point, seen.model)
+
+    @functools.cached_property
+    def detected(self):
+        """The system as the receiver sees it: with several tones, the operating point's
+        one-tone fields and the model's ``output.X/Y`` are those of ``detection.tone``
+        (:func:`simulator.model.detected_tone.detected_parts`); otherwise this system."""
+        if self._detected or not self.several_tones:
+            return self
+        point, model = detected_parts(self.scenario, self.point, self.model)
+        return System(self.scenario, _parts=(point, model, self.stability), _detected=True)
 
     @property
     def several_tones(self):
@@ -99,8 +115,9 @@ class System:
             raise InputError(
                 f"{what} does not yet support several drive tones (this scenario has "
                 f"{names}); supported so far: the operating point, the linear model, its "
-                "stability and the steady state (simulator.linear.steady_state); remove "
-                "the [[tones]] tables for everything else")
+                "stability, the steady state, and for the tone named by detection.tone "
+                "the spectra, sideband summary, noise budget, records, feasibility, "
+                "inspect, plan and sweep; remove the [[tones]] tables for everything else")
         return self
 
     def replace(self, path, value):
@@ -114,7 +131,8 @@ class System:
         scenario = self.scenario.replace(path, value)
         if path not in _RECORD_ONLY and not path.startswith(_CHAIN_ONLY):
             return System(scenario)
-        derived = System(scenario, _parts=(self.point, self.model, self.stability))
+        derived = System(scenario, _parts=(self.point, self.model, self.stability),
+                         _detected=self._detected)
         if path in _RECORD_ONLY and "chain" in self.__dict__:  # the chain is the same too
             derived.__dict__["chain"] = self.__dict__["chain"]
         return derived
@@ -133,17 +151,20 @@ def as_system(item, *, several_tones=False):
     evaluates one scenario several ways builds the System once and passes it.
     Every stage takes its system through here: a system with several tones is
     refused with :class:`~simulator.errors.InputError` naming the calling
-    function, unless the caller says it handles them (``several_tones=True``).
+    function, unless the caller says it handles them: ``several_tones=True``
+    (the whole system, every tone's field alike) or ``several_tones="detected"``
+    (its :attr:`System.detected` view, the detected tone in the drive's place).
     """
-    if isinstance(item, System):
-        return item if several_tones else item.require_one_tone(_caller())
     from simulator.scenario.loader import Scenario
 
     if isinstance(item, Scenario):
-        system = System(item)
-        return system if several_tones else system.require_one_tone(_caller())
-    raise TypeError(f"expected a simulator.System or a simulator.scenario.loader.Scenario; got "
-                    f"{type(item).__name__}")
+        item = System(item)
+    elif not isinstance(item, System):
+        raise TypeError(f"expected a simulator.System or a simulator.scenario.loader.Scenario; "
+                        f"got {type(item).__name__}")
+    if several_tones == "detected":
+        return item.detected
+    return item if several_tones else item.require_one_tone(_caller())
 
 
 def _caller():

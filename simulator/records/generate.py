@@ -158,7 +158,7 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
     from simulator.model.tone import tone_amplitude
     from simulator.records.discretize import discretize, innovations_form
 
-    system = as_system(system)
+    system = as_system(system, several_tones="detected")
     scenario = system.scenario
     seed = scenario.scenario.seed if seed is None else seed
     if (isinstance(seed, bool) or not isinstance(seed, (int, np.integer))
@@ -202,6 +202,9 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
     if chain.front_end == "optical":  # a microwave receiver has no photocurrent
         calibration.update(transimpedance_ohm=scenario.electronics.transimpedance_ohm,
                            local_oscillator_power_w=det.local_oscillator_power_w)
+    if point.several_tones:  # the one tone whose sidebands the record holds
+        calibration.update(detected_tone=det.tone, detected_tone_frequency_hz=float(
+            point.drive_frequency_hz))
     truth = Truth(mode_names=names,
                   occupation=tuple(m.occupation for m in steady.modes),
                   effective_frequency_hz=tuple(m.effective_frequency_hz for m in steady.modes),

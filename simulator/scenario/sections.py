@@ -264,6 +264,11 @@ class Detection:
     local_oscillator_lock_bandwidth_hz: float | None = param(
         "bandwidth of the first-order phase lock (\"locked\" only)", unit="Hz",
         check="positive", default=None, high=MAX_AUXILIARY_HZ)
+    tone: str = param(
+        "name of the drive tone whose output field the receiver demodulates: the local "
+        "oscillator (or the microwave IQ reference) sits at that tone's frequency, offset "
+        "by intermediate_frequency_hz; \"drive\" is the [drive] tone, any other name a "
+        "[[tones]] table", check="label", default="drive")
     balanced: bool = param(
         "balanced detection (both ports of the signal–local-oscillator beam splitter "
         "subtracted); false: one port of a 50:50 combiner, which halves the efficiency",

@@ -145,6 +145,9 @@ def tone_problems(scenario):
                    f"{frequency[tone.cavity_mode] + tone.detuning_hz:.6g} Hz for a mode at "
                    f"{frequency[tone.cavity_mode]:.6g} Hz; expected |detuning_hz| below the "
                    "mode's frequency (the rotating-frame model assumes |Δ| ≪ its frequency)")
+    if scenario.detection.tone not in tones:
+        yield ("detection.tone", f"{scenario.detection.tone!r} names no drive tone; expected "
+               f"one of {', '.join(map(repr, tones))}")
     mechanics, seen = [m.name for m in scenario.mechanics], set()
     for i, pair in enumerate(scenario.couplings):
         key = f"couplings[{i}]"

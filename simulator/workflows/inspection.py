@@ -11,6 +11,7 @@ import math
 
 from simulator.linear.laser_effects import occupation_report
 from simulator.linear.steady_state import STRONG_COUPLING_TOLERANCE, steady_state
+from simulator.linear.tone_rates import tone_rows, tone_text
 from simulator.model import laser_noise
 from simulator.model.system import as_system
 from simulator.scenario.plausibility import plausibility_warnings
@@ -99,6 +100,9 @@ class Inspection:
             "cavity_occupation": None if st is None else st.cavity_occupation,
             "modes": modes,
             "feasibility": [dict(f) for f in self.feasibility],
+            **({"detected_tone": self.scenario.detection.tone,
+                "tones": tone_rows(p, self.scenario.detection.tone)} if p.several_tones
+               else {}),
             "regime": None if self.regime is None else self.regime.to_dict(),
             "warnings": list(self.warnings),
         }
@@ -107,7 +111,8 @@ class Inspection:
         """Human-readable report for the terminal."""
         d = self.to_dict()
         lines = [f"scenario {d['scenario']}  ({d['source']})", "",
-                 "operating point"]
+                 "operating point" + (f" (the detected tone, {d['detected_tone']}; "
+                                      "occupations from every tone)" if "tones" in d else "")]
         lines.append(f"  drive power            {power_text(d['drive_power_w'])}")
         lines.append(f"  intracavity photons    {d['photon_number']:.6g}"
                      + ("   (bistable: branches " + ", ".join(
@@ -146,6 +151,7 @@ class Inspection:
                     lines.append(f"  {label:<28}{text}")
             if "apparent_occupation_gap" in mode:
                 lines.append(f"    {mode['apparent_occupation_gap']['explanation']}")
+        lines += tone_text(d.get("tones", ()))
         for f in d["feasibility"]:
             lines += ["", f"feasibility, mode {f['mode']} (Cramér–Rao, Whittle)"]
             lines.append(f"  occupation error after 1 s       "
@@ -217,7 +223,7 @@ def inspect_scenario(system, *, feasibility=True):
     Unlike :func:`simulator.linear.steady_state.steady_state`, an unstable operating
     point does not raise: the report says so and carries no steady state.
     """
-    system = as_system(system)
+    system = as_system(system, several_tones="detected")
     scenario, point, verdict = system.scenario, system.point, system.stability
     warnings = []
     if point.bistable:
@@ -243,11 +249,12 @@ def inspect_scenario(system, *, feasibility=True):
                  "JSON); raise the drive power or the coupling"
                  for f in feasibility if not (math.isfinite(f["occupation_error_1s"]) and
                                               math.isfinite(f["asymmetry_time_s"] or 0.0))]
-    from simulator.master.regime import regime_verdict  # pure formulas, no QuTiP
+    from simulator.master.regime import LEVELS, regime_verdict  # pure formulas, no QuTiP
 
     occupations = None if steady is None else [ms.occupation for ms in steady.modes]
-    regime = regime_verdict(point, occupations,
-                            master_advice=master_equation_advice(point, occupations))
+    regime = max((regime_verdict(p, occupations,
+                                 master_advice=master_equation_advice(p, occupations))
+                  for p in _tone_points(system)), key=lambda v: LEVELS.index(v.level))
     laser = (() if steady is None or laser_noise.is_quiet(scenario)
              else _explained(system, occupation_report(system, steady)))
     warnings += [f"mode {ms.name}: the apparent (sideband ratio) occupation is not to be "
@@ -257,6 +264,18 @@ def inspect_scenario(system, *, feasibility=True):
     return Inspection(system=system, steady=steady,
                       warnings=tuple(warnings), feasibility=feasibility, regime=regime,
                       laser=laser)
+
+
+def _tone_points(system):
+    """The operating point seen from each tone (the detected one first), for the regime
+    checks: with several tones every cavity mode a tone drives is checked."""
+    point = system.point
+    if not point.several_tones:
+        return (point,)
+    from simulator.model.detected_tone import tone_point_of
+
+    return (point,) + tuple(tone_point_of(system.scenario, point, k)
+                            for k in range(len(point.tones)))
 
 
 def _explained(system, laser):
@@ -278,6 +297,9 @@ def _feasibility(system, steady):
     # a mode without coupling or drive leaves no trace in the record: no bound
     informative = [j for j, mode in enumerate(scenario.mechanics)
                    if mode.coupling_hz != 0 and scenario.drive.power_w != 0]
+    if system.several_tones:  # the detected tone's coupling (detection.tone)
+        informative = [j for j, mode in enumerate(system.point.modes)
+                       if mode.coupling_rate_hz != 0]
     out = []
     for j, bound in zip(informative, fz.occupation_bounds(system, informative, steady=steady),
                         strict=True):

@@ -107,17 +107,20 @@ def evaluate_plan_point(scenario, plan, assignments):
     point, verdict = system.point, system.stability
     drive = scenario.drive
     violations = {}
+    # with several tones: their summed power, and the fullest cavity mode's photons
+    power = drive.power_w + sum(tone.power_w for tone in scenario.tones)
+    photons = max((c.photon_number for c in point.cavity_modes), default=point.photon_number)
     if plan.max_power_w is not None:
-        violations["max_power_w"] = (drive.power_w - plan.max_power_w) / plan.max_power_w
+        violations["max_power_w"] = (power - plan.max_power_w) / plan.max_power_w
     if plan.max_photon_number is not None:
-        violations["max_photon_number"] = ((point.photon_number - plan.max_photon_number)
+        violations["max_photon_number"] = ((photons - plan.max_photon_number)
                                            / plan.max_photon_number)
     scale = abs(plan.max_growth_rate_hz) + scenario.mechanics[plan.mode].linewidth_hz
     margin = (verdict.growth_rate_hz - plan.max_growth_rate_hz) / scale
     violations["stability"] = margin if verdict.stable else max(margin, 1.0)
     violations["bistability_margin"] = float(_near_bistable(scenario, point,
                                                             plan.bistability_margin))
-    quantities = {"photon_number": point.photon_number, "growth_rate_hz":
+    quantities = {"photon_number": photons, "growth_rate_hz":
                   verdict.growth_rate_hz, "bistable": point.bistable,
                   "bath_temperature_k": scenario.mechanics[plan.mode].bath_temperature_k}
     objective = inf
@@ -147,8 +150,10 @@ def _objective(system, plan):
     occupations = [m.occupation for m in steady.modes]
     if plan.objective == "occupation":
         return occupations[plan.mode], occupations
-    if system.scenario.drive.power_w == 0 or system.scenario.mechanics[
-            plan.mode].coupling_hz == 0:
+    seen = system.detected.point  # the detected tone's (detection.tone)
+    if (seen.photon_number == 0 or seen.modes[plan.mode].coupling_rate_hz == 0
+            if system.several_tones else system.scenario.drive.power_w == 0
+            or system.scenario.mechanics[plan.mode].coupling_hz == 0):
         return math.inf, occupations  # the record carries no trace of the mode
     if plan.objective == "asymmetry_time":
         return feasibility.asymmetry_time(system, plan.mode, plan.significance,

@@ -2,6 +2,8 @@
 
 import math
 
+from simulator.analysis.planner import relative_change
+
 UNITS = {"asymmetry_time": "s", "occupation_error": "", "occupation": ""}
 
 
@@ -78,10 +80,11 @@ def plan_dict(result):
 
 
 def _change(probe, found):
-    """Relative change of the probed parameter from the optimum (±0.1, or of its range)."""
+    """Relative change of the probed parameter from the optimum (±0.1, of its range at
+    zero, of the power for a level in dBm)."""
     j = [c.path for c in found.coordinates].index(probe.path)
     best, coord = found.best[j], found.coordinates[j]
-    return (probe.value - best) / (abs(best) if best else (coord.high - coord.low))
+    return relative_change(probe.path, probe.value, best, coord.high - coord.low)
 
 
 def _where(parameters):

@@ -72,8 +72,10 @@ def compute_spectrum(system, *, at="record", engine="linear", master_model="full
     else:
         spectrum = measured_spectrum(system, quadrature_angle=quadrature_angle)
     summary = sideband_summary(system)
-    gaps = occupation_gaps(system, summary)
-    summary = tuple(dataclasses.replace(s, gap=g) for s, g in zip(summary, gaps, strict=True))
+    if not system.several_tones:  # the gap's causes are split for one tone only
+        gaps = occupation_gaps(system, summary)
+        summary = tuple(dataclasses.replace(s, gap=g)
+                        for s, g in zip(summary, gaps, strict=True))
     return SpectrumResult(spectrum=spectrum, at=at, engine=engine, summary=summary,
                           name=system.scenario.scenario.name)
 

@@ -1,0 +1,99 @@
+"""The detected tone: the one tone whose output field the receiver demodulates.
+
+With several drive tones (``[[tones]]``) the linear model
+(:func:`simulator.model.optomechanics.several_tones_model`) has one output
+field per tone, each in that tone's own frame. The receiver's local
+oscillator (or microwave IQ reference) sits at the frequency of one of them,
+``detection.tone``; the record sees the sidebands around that tone, filtered by
+its cavity mode, while the mechanics carries the occupation set by every tone.
+
+:func:`detected_parts` gives the operating point and model as every stage
+after the steady state reads them: the point's one-tone fields (frequency,
+photons, detunings, the linewidths of its cavity mode, each mechanical mode's
+g = g0·√n and cooperativity) are the detected tone's, and the model's
+outputs ``output.X/Y`` are that tone's output field alone: the receiver,
+tuned to that tone, rejects the fields of the others (they lie at the tones'
+spacing, outside its band; docs/physics.md §13 states when that holds). Every
+state, input and noise source is kept: the
+spectra, records and bounds computed from this model hold the scattering of
+all tones. With the drive detected (the default) both are returned unchanged,
+so a one-tone scenario is bit for bit what it was.
+"""
+
+import dataclasses
+
+import numpy as np
+
+from simulator.errors import InputError
+from simulator.model.optomechanics import OUTPUTS
+
+
+def detected_index(scenario, point):
+    """Index in ``point.tones`` of the tone named by ``detection.tone`` (0: the drive)."""
+    names = [tone.name for tone in point.tones]
+    if not names:
+        return 0
+    return names.index(scenario.detection.tone)
+
+
+def detected_parts(scenario, point, model):
+    """``(point, model)`` as seen by the receiver of ``detection.tone`` (module doc).
+
+    Raises
+    ------
+    InputError
+        With several tones and classical noise on the drive or a calibration
+        tone: how that noise reaches the other tones' fields and the local
+        oscillator is not modelled yet.
+    """
+    from simulator.model import laser_noise
+
+    if not point.several_tones:
+        return point, model
+    if not laser_noise.is_quiet(scenario):
+        raise InputError(
+            "the detection chain with several drive tones does not yet support classical "
+            "noise on the drive (drive.phase_noise, drive.intensity_noise or "
+            "drive.calibration_tone) nor a local oscillator with noise of its own; "
+            "supported so far with [[tones]]: quiet tones, and the steady state with a "
+            "noisy drive (simulator.linear.steady_state)")
+    k = detected_index(scenario, point)
+    seen = point if k == 0 else tone_point_of(scenario, point, k)
+    return seen, _detected_outputs(model, k)
+
+
+def tone_point_of(scenario, point, k):
+    """The operating point with its one-tone fields taken from tone ``k`` of ``point.tones``
+    (which, with the cavity modes, it keeps)."""
+    from simulator.model.tone_point import coupling_matrix_hz
+
+    tone = point.tones[k]
+    cav = point.cavity_modes[tone.cavity_mode]
+    g0 = coupling_matrix_hz(scenario)[tone.cavity_mode]
+    modes = tuple(_mode_for_tone(mode, g0[j], tone.coupling_rates_hz[j], cav.linewidth_hz)
+                  for j, mode in enumerate(point.modes))
+    return dataclasses.replace(
+        point, drive_frequency_hz=tone.frequency_hz, input_photon_flux=tone.input_photon_flux,
+        photon_number=tone.photon_number, detuning_bare_hz=tone.detuning_bare_hz,
+        detuning_effective_hz=tone.detuning_effective_hz,
+        cavity_linewidth_hz=cav.linewidth_hz, external_linewidth_hz=cav.external_linewidth_hz,
+        cavity_bath_occupation=cav.bath_occupation, modes=modes)
+
+
+def _mode_for_tone(mode, g0_hz, g_hz, kappa_hz):
+    """A mechanical mode's coupling quantities for one tone: g, C = 4g²/(κΓm), C/n_th."""
+    cooperativity = 4 * g_hz**2 / (kappa_hz * mode.linewidth_hz)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        quantum = (np.float64(cooperativity) / mode.bath_occupation
+                   if mode.bath_occupation > 0 else np.inf)
+    return dataclasses.replace(
+        mode, single_photon_coupling_hz=float(g0_hz), coupling_rate_hz=float(g_hz),
+        cooperativity=float(cooperativity), quantum_cooperativity=float(quantum),
+        sideband_resolution=mode.frequency_hz / float(kappa_hz))
+
+
+def _detected_outputs(model, k):
+    """``model`` with tone ``k``'s output pair alone, named ``output.X/Y``: what the
+    receiver demodulates (the other tones' fields pass it by, see the module doc)."""
+    rows = [2 * k, 2 * k + 1]
+    return dataclasses.replace(model, C=model.C[rows], D=model.D[rows], outputs=OUTPUTS)
