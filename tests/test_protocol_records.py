@@ -209,3 +209,15 @@ def test_example_protocol_scenario_rings_down_cools_and_rethermalises():
     n_c, dt = tl.occupation[off[0], 0], tl.times_s[off] - tl.times_s[off[0]]
     assert np.allclose(tl.occupation[off, 0],
                        n_probe + (n_c - n_probe) * np.exp(-2 * np.pi * 20.0 * dt), rtol=2e-3)
+
+
+def test_a_kick_that_crowds_out_the_quiet_segments_is_warned_about():
+    """Rounding variance Δ²/12 (Widrow and Kollár, Quantization Noise, 2008, Ch. 4)."""
+    from simulator.records.generate import RecordWarning
+
+    scenario = make([{"duration_s": 5e-5, "excite_phonons": 1e12},
+                     {"duration_s": 5e-5, "changes": OFF}])
+    scenario = scenario.replace("digitizer.bits", 10)
+    with pytest.warns(RecordWarning, match="rounding noise"):
+        generate_protocol_record(scenario, seed=1)
+    generate_protocol_record(make([{"duration_s": 5e-5}]), seed=1)  # no warning at 16 bits

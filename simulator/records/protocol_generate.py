@@ -11,6 +11,7 @@ gives the stationary full-state record bit for bit (same seed). The record
 is the same bits for any chunk size.
 """
 
+import dataclasses
 import warnings
 
 import numpy as np
@@ -43,7 +44,12 @@ def generate_protocol_record(scenario, *, seed=None, chunk_samples=None, sink=No
         The record, whose ``truth`` is the first segment's steady state, and
         the truth in time (a record file stores it in ``truth/timeline``).
     """
-    from simulator.records.generate import MemorySink, RecordWarning
+    from simulator.records.generate import (
+        QUANTISATION_WARNING,
+        MemorySink,
+        RecordWarning,
+        quantisation_share,
+    )
     from simulator.records.protocol import plan_protocol
 
     plan = plan_protocol(scenario, seed=seed)
@@ -54,6 +60,14 @@ def generate_protocol_record(scenario, *, seed=None, chunk_samples=None, sink=No
     with target:
         clipped = run_segments(plan, target, chunk=int(chunk), progress=progress)
         record = target.finish(clipped)
+    coarse = max(quantisation_share(dataclasses.replace(plan, chain=seg.chain,
+                                                        discrete=seg.discrete))
+                 for seg in plan.segments)
+    if coarse > QUANTISATION_WARNING:
+        warnings.warn(f"the digitiser's step ({plan.bits} bits over ±{plan.full_scale_v:.6g} V, "
+                      "a range set by the loudest segment) adds rounding noise of "
+                      f"{100.0 * coarse:.3g} % of the quietest segment's variance; raise "
+                      "digitizer.bits or lower the kick", RecordWarning, stacklevel=2)
     if clipped:
         warnings.warn(f"{clipped} of {plan.n_samples} samples clipped at the digitiser's "
                       f"full scale ±{plan.full_scale_v:.6g} V; raise digitizer.full_scale_v",
