@@ -92,3 +92,19 @@ def test_run_writes_the_scheduled_record_and_its_figure(tmp_path):
     assert timeline.segment_names == ("ring-down", "cooling on", "cooling off")
     assert (tmp_path / "run" / "record_protocol.png").stat().st_size > 10_000
     assert not (tmp_path / "run" / "record_spectrum.png").exists()
+
+
+def test_record_command_follows_the_schedule(tmp_path, capsys):
+    import json
+
+    from simulator.cli import parser as cli
+
+    out = tmp_path / "r.h5"
+    assert cli.main(["record", str(EXAMPLE), "--out", str(out), "--quiet", "--json"]) == 0
+    summary = json.loads(capsys.readouterr().out)
+    assert summary["schedule"] == ["ring-down", "cooling on", "cooling off"]
+    assert summary["samples"] == round(0.042 * summary["sample_rate_hz"])
+    status = cli.main(["record", str(EXAMPLE), "--out", str(tmp_path / "m.h5"), "--quiet",
+                       "--engine", "master"])
+    assert status == cli.EXIT_INPUT
+    assert "linear engine only" in capsys.readouterr().err
