@@ -222,6 +222,11 @@ def cmd_record(args):
     _require_output_file(args.out, (".h5", ".hdf5"), "--out", args.force)
     _require_record_options(args)
     scenario = load_scenario(args.scenario)
+    if scenario.schedule is not None and (args.averaged is not None
+                                          or args.engine == "master"):
+        raise InputError("a scenario with a [schedule] makes a non-stationary record with "
+                         "the linear engine only; expected no --averaged and --engine "
+                         "linear (or remove the [schedule])")
     if args.averaged is not None:
         return _averaged_spectrum(args, scenario)
     with warnings.catch_warnings(record=True) as caught:
@@ -250,6 +255,8 @@ def cmd_record(args):
                                                   truth.effective_frequency_hz,
                                                   truth.effective_linewidth_hz, strict=True)],
                "cavity_occupation": truth.cavity_occupation}
+    if scenario.schedule is not None:  # the truth above is the first segment's steady state
+        summary["schedule"] = [seg.name for seg in scenario.schedule.segments]
     if args.json:
         print_json(summary)
         return EXIT_OK
@@ -257,6 +264,9 @@ def cmd_record(args):
           f"{record.sample_rate_hz:.6g} samples/s, seed {record.seed}, {record.form} form) "
           f"written to {summary['out']}")
     print(f"  clipped samples: {record.clipped_samples}")
+    if scenario.schedule is not None:
+        print(f"  schedule: {', '.join(summary['schedule'])}; the truth in time is in "
+              "truth/timeline, the occupations below are the first segment's steady state")
     for mode in summary["modes"]:
         print(f"  true occupation of {mode['name']}: {mode['occupation']:.6g} "
               f"(at {mode['effective_frequency_hz']:.9g} Hz, linewidth "

@@ -195,6 +195,9 @@ class RecordFileWriter:
                                 dtype=h5py.string_dtype())
         truth = plan.truth
         write_truth(self.truth, truth)
+        if getattr(plan, "timeline", None) is not None:  # a scheduled record's truth in time
+            from simulator.io.timelinefile import write_timeline
+            write_timeline(self.truth.create_group("timeline"), plan.timeline)
         if self.mech is not None:
             self.mech.attrs["columns"] = np.array(
                 [f"{m}.{q}" for m in truth.mode_names for q in "qp"], dtype=h5py.string_dtype())

@@ -29,6 +29,7 @@ from simulator.scenario.paths import (
 )
 from simulator.scenario.plan_section import Plan
 from simulator.scenario.receiver import receiver_problems
+from simulator.scenario.schedule_section import Schedule, segment_problems
 from simulator.scenario.schema import (
     optional_section,
     optional_sections,
@@ -81,6 +82,9 @@ class Scenario:
     plan: Plan | None = optional_section(
         "free parameters, objective and constraints of the best operating point, for "
         "`noisechain plan` (see simulator.scenario.plan_section)")
+    schedule: Schedule | None = optional_section(
+        "segments of a record in time, each with its own parameters: ring-downs, heating "
+        "and cooling transients, stepped drives (see simulator.scenario.schedule_section)")
     source: str = dataclasses.field(default="<memory>", compare=False,
                                     metadata={"internal": True})
 
@@ -96,6 +100,7 @@ class Scenario:
         yield from self._chain_problems()
         yield from self._local_oscillator_problems()
         yield from receiver_problems(self)
+        yield from segment_problems(self)
         for name in ("sweep", "plan"):
             varied = getattr(self, name)
             for path, spec in varied.parameters.items() if varied is not None else ():
@@ -133,8 +138,8 @@ class Scenario:
                 "; expected a path such as 'drive.detuning_hz'")
             yield key, exc.detail + hint
             return
-        if path.split(".")[0] in ("sweep", "plan") or dataclasses.is_dataclass(value) or isinstance(
-                value, tuple):
+        if path.split(".")[0] in ("sweep", "plan", "schedule") or dataclasses.is_dataclass(
+                value) or isinstance(value, tuple):
             yield key, f"{path!r} does not name a single scenario parameter"
         elif leaf_type(type(self), self._canonical(path)[0], self.source) not in (int, float):
             role = "sweepable" if path == swept else "usable as the unit of a range"
@@ -146,7 +151,7 @@ class Scenario:
         paths = []
         for f in schema.public_fields(type(self)):
             kind, cls, _ = schema.field_kind(type(self), f.name)
-            if f.name in ("sweep", "plan") or kind == "scalar":
+            if f.name in ("sweep", "plan", "schedule") or kind == "scalar":
                 continue
             prefixes = ([f"{f.name}[{i}]" for i in range(len(getattr(self, f.name)))]
                         if kind == "sections" else [f.name])

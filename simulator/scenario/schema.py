@@ -288,10 +288,13 @@ def _key_table(cls, path):
     lines += ["| key | meaning | accepts | default |", "|---|---|---|---|"]
     for sub in public_fields(cls):
         kind, tp, _ = field_kind(cls, sub.name)
-        if kind == "section":
-            nested.append((sub, tp))
+        if kind in ("section", "sections"):
+            header = (f"[[{path}.{sub.name}]]" if kind == "sections"
+                      else f"[{path}.{sub.name}]")
+            nested.append((sub, tp, header))
             cells = (f"`{sub.name}`", _sentence(sub.metadata.get("doc", "")),
-                     f"a table, `[{path}.{sub.name}]` below", "defaults")
+                     f"{'tables' if kind == 'sections' else 'a table'}, `{header}` below",
+                     "none" if kind == "sections" else "defaults")
             lines.append("| " + " | ".join(cells) + " |")
             continue
         if sub.default is dataclasses.MISSING:
@@ -308,10 +311,12 @@ def _key_table(cls, path):
         cells = (f"`{sub.name}`", meaning, expectation(sub, tp), default)
         lines.append("| " + " | ".join(c.replace("|", "\\|") for c in cells) + " |")
     lines.append("")
-    for sub, tp in nested:
-        lines += [f"## `[{path}.{sub.name}]` (optional)", "",
+    for sub, tp, header in nested:
+        repeated = header.startswith("[[")
+        lines += [f"## `{header}` (optional)", "",
                   _sentence(sub.metadata.get("doc", "")),
-                  "Every key takes its default when the table is left out.", ""]
+                  "Repeat the table once per item." if repeated
+                  else "Every key takes its default when the table is left out.", ""]
         lines += _key_table(tp, f"{path}.{sub.name}")
     return lines
 

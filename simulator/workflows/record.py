@@ -7,6 +7,7 @@ the run between chunks; :func:`master_records_to_files` does the same for the
 master equation's trajectory records.
 """
 
+from simulator.errors import InputError
 from simulator.records.generate import generate_record
 
 
@@ -87,9 +88,41 @@ def simulate_record(system, *, seed=None, duration_s=None, out=None, form="auto"
             bar.update(count)
             interrupt.check()  # a Ctrl-C swallowed inside a library callback still stops
 
+        scenario = system if hasattr(system, "schedule") else system.scenario
+        if scenario.schedule is not None:
+            return scheduled_record(scenario, seed=seed, duration_s=duration_s, form=form,
+                                    store_mechanics=store_mechanics,
+                                    chunk_samples=chunk_samples, sink=sink, progress=advance)
         return generate_record(system, seed=seed, duration_s=duration_s, form=form,
                                store_mechanics=store_mechanics, chunk_samples=chunk_samples,
                                sink=sink, progress=advance, workers=workers)
+
+
+def scheduled_record(scenario, *, seed, duration_s, form, store_mechanics, chunk_samples,
+                     sink, progress):
+    """The record of a scenario with a ``[schedule]`` (docs/records.md, "Schedules").
+
+    Its length is the sum of the segments' durations and it runs the full
+    state form; a different ``duration_s``, ``form = "innovations"`` or
+    ``store_mechanics`` against the scenario's are refused.
+    """
+    import dataclasses
+
+    from simulator.records.protocol_generate import generate_protocol_record
+
+    if duration_s is not None and duration_s != scenario.record.duration_s:
+        raise InputError(f"duration = {duration_s!r} s with a [schedule]: a scheduled "
+                         "record lasts the sum of its segments' duration_s; leave the "
+                         "duration out")
+    if form == "innovations":
+        raise InputError("form = 'innovations' with a [schedule]: a scheduled record is "
+                         "not stationary and runs the full-state form; use 'auto'")
+    if store_mechanics is not None and store_mechanics != scenario.record.store_mechanics:
+        scenario = dataclasses.replace(scenario, record=dataclasses.replace(
+            scenario.record, store_mechanics=bool(store_mechanics)))
+    record, _ = generate_protocol_record(scenario, seed=seed, chunk_samples=chunk_samples,
+                                         sink=sink, progress=progress)
+    return record
 
 
 def simulate_averaged_spectrum(system, *, segment_samples, window="hann", seed=None,

@@ -197,11 +197,14 @@ def _record_part(system, out, wrote, figures, progress):
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         record = simulate_record(system, out=path, progress=progress, overwrite=True)
-    png = wrote(out / "record_spectrum.png")
-    plot_record_sidebands(system, record, png)
-    figures.append((png, "Synthetic record against the model: its averaged periodogram over "
-                         "the expected one with the 95 % χ² band, the whole band and each "
-                         "motional sideband zoomed."))
+    if system.scenario.schedule is not None and record.kind == "iq":
+        _protocol_figure(path, wrote(out / "record_protocol.png"), figures)
+    elif system.scenario.schedule is None:  # a stationary record against its spectrum
+        png = wrote(out / "record_spectrum.png")
+        plot_record_sidebands(system, record, png)
+        figures.append((png, "Synthetic record against the model: its averaged periodogram "
+                             "over the expected one with the 95 % χ² band, the whole band "
+                             "and each motional sideband zoomed."))
     truth = record.truth
     rows = [[name, n, f, w] for name, n, f, w in zip(
         truth.mode_names, truth.occupation, truth.effective_frequency_hz,
@@ -212,6 +215,18 @@ def _record_part(system, out, wrote, figures, progress):
             "record.h5 with the ground truth below.</p>" + notes
             + html.table(rows, header=["mode", "true occupation", "frequency (Hz)",
                                        "linewidth (Hz)"]))
+
+
+def _protocol_figure(path, png, figures):
+    """The figure of a scheduled record in time (docs/records.md, "Schedules")."""
+    from simulator.io.recordfile import load_record
+    from simulator.io.timelinefile import read_timeline
+    from simulator.report.protocol_plots import plot_protocol
+
+    plot_protocol(load_record(path), read_timeline(path), png, overwrite=True)
+    figures.append((png, "Scheduled record: the true thermal occupation and coherent phonon "
+                         "number of the first mode in time, above the record's anti-Stokes "
+                         "sideband power; the segments shaded and named."))
 
 
 def _sweep_part(scenario, out, wrote, figures, workers, dask, progress):

@@ -18,7 +18,9 @@ successful trials are stored, so a rerun tries the failed ones again.
 A quantity is compared with the truth by its name: ``occupation`` (first
 mode), ``occupation[<mode>]``, ``effective_frequency_hz``,
 ``effective_linewidth_hz``, ``coupling_rate_hz`` (also with ``[<mode>]``) and
-``cavity_occupation``. Text after a colon labels a variant, so
+``cavity_occupation``; for a scenario with a ``[schedule]`` also
+``effective_linewidth_hz@<segment>``, ``effective_frequency_hz@<segment>``
+and ``occupation@<segment>`` (the segment's steady state). Text after a colon labels a variant, so
 ``occupation:asymmetry`` and ``occupation:damping`` are both compared with
 the occupation. Other names are reported without a truth (spread only).
 """
@@ -90,6 +92,27 @@ def truth_table(scenario):
             table[f"{key}[{mp.name}]"] = value
             if j == 0:
                 table[key] = value
+    table.update(segment_truths(system.scenario))
+    return table
+
+
+def segment_truths(scenario):
+    """Truth of each ``[schedule]`` segment, first mode: ``<quantity>@<segment name>``.
+
+    The segment's steady-state effective linewidth and frequency (a ring-down
+    measures them) and occupation (where a transient ends).
+    """
+    if getattr(scenario, "schedule", None) is None:
+        return {}
+    from simulator.linear.steady_state import steady_state
+    from simulator.records.protocol import segment_systems
+
+    table = {}
+    for name, system in segment_systems(scenario):
+        mode = steady_state(system).modes[0]
+        table.update({f"effective_linewidth_hz@{name}": mode.effective_linewidth_hz,
+                      f"effective_frequency_hz@{name}": mode.effective_frequency_hz,
+                      f"occupation@{name}": mode.occupation})
     return table
 
 

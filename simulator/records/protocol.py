@@ -1,0 +1,359 @@
+"""Non-stationary records: the segments of a ``[schedule]``, exact in every segment.
+
+A scenario's ``[schedule]`` (:mod:`simulator.scenario.schedule_section`)
+cuts a record into segments, each running the scenario with its own
+parameter changes: a ring-down with the drive off, cooling switched on,
+re-thermalisation with it off again, a stepped detuning. Within a segment the
+linear model dx = A x dt + B dW is fixed, so
+
+- the record is the exact integrate-and-dump discretisation of that
+  segment's model (:func:`simulator.records.discretize.discretize`), run by
+  the full-state kernel (:func:`simulator.records.kernels.full_state_step`):
+  no time-step error, whatever the segment's length;
+- the state is carried over from one segment to the next (the models of the
+  segments must share their state layout, which a change of parameters
+  keeps; a change that adds or removes states is refused);
+- the mean obeys dm/dt = A m, so a coherent kick at a segment's start decays
+  with the segment's effective damping and rotates at its effective
+  frequency; the record carries it exactly, since the recursion is linear;
+- the covariance obeys the Lyapunov differential equation
+  dV/dt = A V + V Aᵀ + B N Bᵀ, solved in closed form: V(t) = e^{At}(V₀ − V∞)
+  e^{Aᵀt} + V∞ for a stable segment (:func:`covariance_flow`), or by Van
+  Loan's block exponential for any A (:func:`covariance_flow_van_loan`).
+
+The truth of a protocol record is a :class:`Timeline`: occupation, mean
+quadratures, effective frequency and linewidth of every mode as functions of
+time, from the exact mean and covariance evolution.
+
+References
+----------
+Van Loan, IEEE Trans. Autom. Control 23, 395 (1978) (integrals of matrix
+exponentials). Gardiner, Stochastic Methods, 4th ed. (Springer, 2009),
+Sec. 4.5.6 (moments of the Ornstein–Uhlenbeck process: the mean e^{At} m₀ and
+the covariance equation above).
+"""
+
+import dataclasses
+
+import numpy as np
+import scipy.linalg
+
+from simulator.errors import InputError, OperatingPointError
+from simulator.records.generate import FULL_SCALE_SIGMAS, RecordPlan
+
+VOLTS_RTOL = 1e-12  # relative change of volts per unit that still counts as one calibration
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class SegmentPlan:
+    """One segment: its System, detection chain, exact discrete model and samples."""
+
+    name: str
+    first: int
+    n_samples: int
+    system: object
+    chain: object
+    discrete: object
+    noise_factor: np.ndarray  # (n + p, width), zero columns padding to the widest segment
+    kick_index: int
+    kick: float  # added to the mean of state ``kick_index`` at the segment's start
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class Timeline:
+    """Exact truth of a protocol record as functions of time.
+
+    Arrays have one row per time in ``times_s`` (from the record's first
+    sample) and one column per mode of ``mode_names``. ``occupation`` is the
+    thermal occupation of the fluctuations, (⟨δq²⟩ + ⟨δp²⟩ − 1)/2;
+    ``mean_q``, ``mean_p`` the mean quadratures (a coherent amplitude β has
+    ⟨q⟩ + i⟨p⟩ = √2 β), so the total phonon number is occupation +
+    (mean_q² + mean_p²)/2. The effective frequency and linewidth are those of
+    the segment in force (steady-state values of its linear model).
+    """
+
+    mode_names: tuple
+    segment_names: tuple
+    segment_starts_s: np.ndarray
+    times_s: np.ndarray
+    segment: np.ndarray
+    occupation: np.ndarray
+    mean_q: np.ndarray
+    mean_p: np.ndarray
+    effective_frequency_hz: np.ndarray
+    effective_linewidth_hz: np.ndarray
+    cavity_occupation: np.ndarray
+
+
+@dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
+class ProtocolPlan(RecordPlan):
+    """A :class:`RecordPlan` made of segments, with the start state and the timeline.
+
+    ``system``, ``chain`` and ``discrete`` are those of the first segment;
+    ``truth`` holds the first segment's steady state (the stationary truth
+    fields) and ``timeline`` the truth in time.
+    """
+
+    segments: tuple
+    start_mean: np.ndarray
+    start_covariance: np.ndarray
+    timeline: Timeline
+
+
+def segment_systems(scenario):
+    """``(name, System)`` of every segment of ``scenario``'s schedule, checked stable."""
+    from simulator.model.system import System
+
+    schedule = scenario.schedule
+    if schedule is None:
+        raise InputError(f"scenario {scenario.scenario.name!r} has no [schedule]; expected "
+                         "[[schedule.segments]] tables for a protocol record")
+    base = System(dataclasses.replace(scenario, schedule=None))
+    out = []
+    for i, segment in enumerate(schedule.segments):
+        system = base
+        for path, value in (segment.changes or {}).items():
+            system = system.replace(path, value)
+        if not system.stable:
+            raise OperatingPointError(
+                f"schedule segment {i} ({segment.name!r}) is unstable "
+                f"({system.stability.cause}); "
+                "protocol records need every segment's linear model to be stable")
+        out.append((segment.name, system))
+    return out
+
+
+def _check_layout(first, chain, name):
+    """Refuse a segment whose detection chain differs from the first in layout or scale."""
+    ref = first
+    if chain.model.states != ref.model.states or chain.model.outputs != ref.model.outputs:
+        extra = sorted(set(chain.model.states) ^ set(ref.model.states))
+        raise InputError(
+            f"schedule segment {name!r} changes the model's state layout (states that "
+            f"differ: {', '.join(extra) or 'their order'}); a schedule may change "
+            "parameters only, not add or remove noise sources, modes or receiver states")
+    if (chain.record_kind != ref.record_kind or chain.receiver != ref.receiver
+            or chain.carrier_rad_s != ref.carrier_rad_s):
+        raise InputError(f"schedule segment {name!r} changes the receiver or the record "
+                         "kind; expected the detection scheme to stay the same in a record")
+    if abs(chain.volts_per_unit - ref.volts_per_unit) > VOLTS_RTOL * abs(ref.volts_per_unit):
+        raise InputError(f"schedule segment {name!r} changes the detection gain (volts per "
+                         "shot-noise unit); expected the calibration to stay the same in "
+                         "one record")
+
+
+def plan_protocol(scenario, *, seed=None):
+    """Resolve a scheduled record: every segment's exact model, the start and the truth.
+
+    Parameters
+    ----------
+    scenario : simulator.scenario.loader.Scenario
+        With a ``[schedule]``.
+    seed : int, optional
+        Default: the scenario's seed.
+
+    Returns
+    -------
+    ProtocolPlan
+    """
+    from simulator.model.chain import automatic_sample_rate
+    from simulator.model.tone import tone_amplitude
+    from simulator.records.discretize import discretize, noise_factor
+    from simulator.records.generate import plan_record
+
+    systems = segment_systems(scenario)
+    first_plan = plan_record(systems[0][1], seed=seed, form="full-state")
+    store = first_plan.scenario.record.store_mechanics
+    det, dig = scenario.detection, scenario.digitizer
+    chains = [system.chain for _, system in systems]
+    for (name, _), chain in zip(systems, chains, strict=True):
+        _check_layout(chains[0], chain, name)
+    fs = dig.sample_rate_hz or max(automatic_sample_rate(c, det.intermediate_frequency_hz)
+                                   for c in chains)
+    discretes = [discretize(c.model, 1.0 / fs, integrator_drift=c.integrator_drift())
+                 for c in chains]
+    factors = [noise_factor(d.noise_covariance) for d in discretes]
+    width = max(f.shape[1] for f in factors)
+    segments, first = [], 0
+    for (name, system), chain, disc, factor, spec in zip(
+            systems, chains, discretes, factors, scenario.schedule.segments, strict=True):
+        n = int(round(spec.duration_s * fs))
+        if n < 1:
+            raise InputError(f"schedule segment {name!r}: duration_s = {spec.duration_s!r} s "
+                             f"at {fs:.6g} samples/s gives no sample; expected at least one "
+                             "sample interval")
+        padded = np.zeros((factor.shape[0], width))
+        padded[:, :factor.shape[1]] = factor
+        mode = system.point.modes[spec.excite_mode].name
+        segments.append(SegmentPlan(
+            name=name, first=first, n_samples=n, system=system, chain=chain, discrete=disc,
+            noise_factor=np.ascontiguousarray(padded),
+            kick_index=chain.model.index(f"{mode}.q"),
+            kick=float(np.sqrt(2.0 * spec.excite_phonons))))
+        first += n
+    mean0, cov0 = start_state(scenario.schedule, segments[0])
+    timeline, peaks = exact_timeline(segments, mean0, cov0, scenario.schedule.truth_points,
+                                     fs)
+    full_scale = dig.full_scale_v or max(
+        FULL_SCALE_SIGMAS * s.chain.record_std(s.discrete)
+        + (tone_amplitude(s.chain, s.system.scenario) + peak) * s.chain.volts_per_unit
+        for s, peak in zip(segments, peaks, strict=True))
+    fields = {f.name: getattr(first_plan, f.name) for f in dataclasses.fields(RecordPlan)}
+    truth = dataclasses.replace(first_plan.truth, calibration=dict(
+        first_plan.truth.calibration, full_scale_v=float(full_scale)))
+    fields.update(truth=truth, scenario=dataclasses.replace(first_plan.scenario,
+                                               schedule=scenario.schedule),
+                  sample_rate_hz=float(fs), n_samples=first, full_scale_v=float(full_scale),
+                  discrete=discretes[0], innovations=None)
+    if not store:
+        fields["watched"] = np.array([], dtype=np.int64)
+    return ProtocolPlan(**fields, segments=tuple(segments), start_mean=mean0,
+                        start_covariance=cov0, timeline=timeline)
+
+
+def start_state(schedule, segment):
+    """Mean and covariance at the first sample, before the first segment's kick.
+
+    ``steady``: the stationary covariance of the first segment. ``thermal`` and
+    ``occupation``: the same with every mechanical mode's (q, p) block set to
+    (n + ½)·1 and its correlations with the other states removed (n the bath
+    occupation or ``start_occupation``), which is a covariance again (a
+    block-diagonal matrix of positive semi-definite blocks).
+    """
+    cov = np.array(segment.discrete.state_covariance, dtype=float)
+    if schedule.start != "steady":
+        for mode in segment.system.point.modes:
+            n = mode.bath_occupation if schedule.start == "thermal" else (
+                schedule.start_occupation)
+            idx = [segment.chain.model.index(f"{mode.name}.{q}") for q in "qp"]
+            cov[idx, :] = 0.0
+            cov[:, idx] = 0.0
+            cov[idx, idx] = n + 0.5
+    return np.zeros(len(cov)), cov
+
+
+def covariance_flow(a, steady, v0, t):
+    """V(t) = e^{At}(V₀ − V∞)e^{Aᵀt} + V∞ for a stable A; also returns e^{At}."""
+    e = scipy.linalg.expm(a * t)
+    v = e @ (v0 - steady) @ e.T + steady
+    return 0.5 * (v + v.T), e
+
+
+def covariance_flow_van_loan(a, diffusion, v0, t):
+    """V(t) = e^{At} V₀ e^{Aᵀt} + ∫₀ᵗ e^{As} D e^{Aᵀs} ds for any A (Van Loan 1978).
+
+    The block exponential expm([[−A, D], [0, Aᵀ]] h) = [[·, E₁₂], [0, E₂₂]]
+    gives e^{Ah} = E₂₂ᵀ and the integral E₂₂ᵀ E₁₂ over a step h = t/2^k with
+    ‖A‖h ≤ 1, then doubled k times exactly (Φ(2h) = Φ(h)², Q(2h) =
+    Φ(h) Q(h) Φ(h)ᵀ + Q(h)), as in :func:`simulator.records.discretize.discretize`.
+    """
+    n = len(a)
+    k = max(0, int(np.ceil(np.log2(max(np.linalg.norm(a, 1) * t, 1e-300)))))
+    h = t / 2**k
+    block = np.zeros((2 * n, 2 * n))
+    block[:n, :n], block[:n, n:], block[n:, n:] = -a, diffusion, a.T
+    e = scipy.linalg.expm(block * h)
+    phi = e[n:, n:].T
+    q = phi @ e[:n, n:]
+    for _ in range(k):
+        q = phi @ q @ phi.T + q
+        phi = phi @ phi
+    v = phi @ v0 @ phi.T + q
+    return 0.5 * (v + v.T), phi
+
+
+MEAN_CHUNK = 1 << 16  # samples of the noiseless mean run at a time (bounded memory)
+
+
+def _mean_output_peak(segment, mean):
+    """Largest |Γ m_n| over a segment: the noiseless recursion run from its start mean.
+
+    Exact (the full-state kernel with no noise), so the automatic full scale
+    holds a kicked mode's sideband without wasting the digitiser's range.
+    """
+    from simulator.records.kernels import full_state_step
+
+    phi = np.ascontiguousarray(segment.discrete.transition)
+    gam = np.ascontiguousarray(segment.discrete.output)
+    n, p = gam.shape[1], gam.shape[0]
+    if not np.any(mean):
+        return 0.0
+    state, silent = np.array(mean, dtype=float), np.zeros((n + p, 1))
+    peak, left = 0.0, segment.n_samples
+    while left:
+        count = min(left, MEAN_CHUNK)
+        y = np.empty((count, p))
+        full_state_step(phi, gam, silent, state, np.zeros((count, 1)), y,
+                        np.empty(0, dtype=np.int64), np.empty((count, 0)))
+        if segment.chain.receiver == "if":  # r = 2 Re[e^{iφ} ρ]
+            peak = max(peak, 2.0 * float(np.hypot(y[:, 0], y[:, 1]).max()))
+        else:
+            peak = max(peak, float(np.abs(y[:, :1 if segment.chain.receiver == "homodyne"
+                                             else p]).max()))
+        left -= count
+    return peak
+
+
+def segment_starts(segments, mean, cov, fs):
+    """Yield ``(segment, mean, covariance)`` at each segment's first sample, kick included."""
+    for seg in segments:
+        mean = mean.copy()
+        mean[seg.kick_index] += seg.kick
+        yield seg, mean, cov
+        cov, e = covariance_flow(seg.chain.model.A, seg.discrete.state_covariance, cov,
+                                 seg.n_samples / fs)
+        mean = e @ mean
+
+
+def state_moments(plan, samples):
+    """Exact mean (k, n) and covariance (k, n, n) of the state at the given sample indices.
+
+    The state at sample s is the one at the start of its interval, time s/fs
+    (the rows of the stored mechanical quadratures).
+    """
+    samples = np.asarray(samples, dtype=np.int64)
+    fs = plan.sample_rate_hz
+    n = len(plan.start_mean)
+    means, covs = np.empty((len(samples), n)), np.empty((len(samples), n, n))
+    for seg, mean, cov in segment_starts(plan.segments, plan.start_mean,
+                                         plan.start_covariance, fs):
+        inside = np.flatnonzero((samples >= seg.first) & (samples < seg.first + seg.n_samples))
+        for i in inside:
+            covs[i], e = covariance_flow(seg.chain.model.A, seg.discrete.state_covariance,
+                                         cov, (samples[i] - seg.first) / fs)
+            means[i] = e @ mean
+    return means, covs
+
+
+def exact_timeline(segments, mean, cov, points, fs):
+    """The :class:`Timeline` from the exact mean and covariance flow; peak mean outputs."""
+    from simulator.linear.steady_state import steady_state
+
+    modes = segments[0].system.point.modes
+    names = tuple(m.name for m in modes)
+    model0 = segments[0].chain.model
+    iq = [model0.index(f"{n}.q") for n in names]
+    ip = [model0.index(f"{n}.p") for n in names]
+    cavity = [model0.index(s) for s in ("cavity.X", "cavity.Y") if s in model0.states]
+    rows, peaks = [], []
+    for k, (seg, m0, v0) in enumerate(segment_starts(segments, mean, cov, fs)):
+        peaks.append(_mean_output_peak(seg, m0))
+        steady = steady_state(seg.system)
+        freq = [m.effective_frequency_hz for m in steady.modes]
+        width = [m.effective_linewidth_hz for m in steady.modes]
+        for t in np.linspace(0.0, seg.n_samples / fs, points):
+            v, e = covariance_flow(seg.chain.model.A, seg.discrete.state_covariance, v0, t)
+            m = e @ m0
+            n_cav = (0.5 * (v[cavity[0], cavity[0]] + v[cavity[1], cavity[1]] - 1.0)
+                     if cavity else np.nan)
+            rows.append((seg.first / fs + t, k,
+                         0.5 * (np.diag(v)[iq] + np.diag(v)[ip] - 1.0), m[iq], m[ip],
+                         freq, width, n_cav))
+    cols = list(zip(*rows, strict=True))
+    return Timeline(
+        mode_names=names, segment_names=tuple(s.name for s in segments),
+        segment_starts_s=np.array([s.first / fs for s in segments]),
+        times_s=np.array(cols[0]), segment=np.array(cols[1], dtype=np.int64),
+        occupation=np.array(cols[2]), mean_q=np.array(cols[3]), mean_p=np.array(cols[4]),
+        effective_frequency_hz=np.array(cols[5]), effective_linewidth_hz=np.array(cols[6]),
+        cavity_occupation=np.array(cols[7])), peaks

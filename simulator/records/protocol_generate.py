@@ -1,0 +1,117 @@
+"""Generate a scheduled record segment by segment (:mod:`simulator.records.protocol`).
+
+Each segment runs the full-state kernel with its own exact discrete model;
+the state (mean included) is carried over, and a segment's coherent kick is
+added to the state at its first sample. The random normals come from the
+same per-block streams as a stationary record's
+(:class:`simulator.records.kernels.NormalBlocks`), indexed by the sample's
+place in the whole record, and the start is drawn as a stationary record's
+start is: a one-segment schedule that starts in the steady state therefore
+gives the stationary full-state record bit for bit (same seed). The record
+is the same bits for any chunk size.
+"""
+
+import dataclasses
+import warnings
+
+import numpy as np
+
+from simulator.errors import InputError
+
+
+def generate_protocol_record(scenario, *, seed=None, chunk_samples=None, sink=None,
+                             progress=None):
+    """A digitised record of ``scenario``'s ``[schedule]``; returns the Record.
+
+    Parameters
+    ----------
+    scenario : simulator.scenario.loader.Scenario
+        With a ``[schedule]``.
+    seed : int, optional
+        Default: the scenario's seed.
+    chunk_samples : int, optional
+        Samples per chunk (default: the scenario's ``record.chunk_samples``).
+    sink : callable, optional
+        As in :func:`simulator.records.generate.generate_record`: ``sink(plan,
+        chunk_rows)`` (e.g. :class:`simulator.io.recordfile.RecordFileWriter`,
+        which then stores the timeline too); default: memory.
+    progress : callable, optional
+        Called with the samples of each chunk and the total.
+
+    Returns
+    -------
+    (simulator.records.generate.Record, simulator.records.protocol.Timeline)
+        The record, whose ``truth`` is the first segment's steady state, and
+        the truth in time (a record file stores it in ``truth/timeline``).
+    """
+    from simulator.records.generate import (
+        QUANTISATION_WARNING,
+        MemorySink,
+        RecordWarning,
+        quantisation_share,
+    )
+    from simulator.records.protocol import plan_protocol
+
+    plan = plan_protocol(scenario, seed=seed)
+    chunk = plan.scenario.record.chunk_samples if chunk_samples is None else chunk_samples
+    if isinstance(chunk, bool) or not isinstance(chunk, (int, np.integer)) or chunk < 1:
+        raise InputError(f"chunk_samples = {chunk!r}; expected a positive integer")
+    target = MemorySink(plan) if sink is None else sink(plan, int(min(chunk, plan.n_samples)))
+    with target:
+        clipped = run_segments(plan, target, chunk=int(chunk), progress=progress)
+        record = target.finish(clipped)
+    coarse = max(quantisation_share(dataclasses.replace(plan, chain=seg.chain,
+                                                        discrete=seg.discrete))
+                 for seg in plan.segments)
+    if coarse > QUANTISATION_WARNING:
+        warnings.warn(f"the digitiser's step ({plan.bits} bits over ±{plan.full_scale_v:.6g} V, "
+                      "a range set by the loudest segment) adds rounding noise of "
+                      f"{100.0 * coarse:.3g} % of the quietest segment's variance; raise "
+                      "digitizer.bits or lower the kick", RecordWarning, stacklevel=2)
+    if clipped:
+        warnings.warn(f"{clipped} of {plan.n_samples} samples clipped at the digitiser's "
+                      f"full scale ±{plan.full_scale_v:.6g} V; raise digitizer.full_scale_v",
+                      RecordWarning, stacklevel=2)
+    return record, plan.timeline
+
+
+def run_segments(plan, sink, *, chunk, progress=None):
+    """Run every segment's recursion into ``sink``; return the number of clipped samples."""
+    from simulator.model.tone import tone_signal
+    from simulator.records import kernels
+
+    first_seg = plan.segments[0]
+    width = first_seg.noise_factor.shape[1]
+    state = kernels._stationary_start(plan.seed, plan.start_covariance) + plan.start_mean
+    normals = kernels.NormalBlocks(plan.seed, kernels.SAMPLE_STREAM, width,
+                                   kernels.BLOCK_SAMPLES)
+    digitiser = kernels.Digitiser(plan)
+    cycles = first_seg.chain.carrier_rad_s / (2 * np.pi * plan.sample_rate_hz)
+    p = len(first_seg.chain.model.outputs)
+    clipped = 0
+    for seg in plan.segments:
+        state[seg.kick_index] += seg.kick
+        phi = np.ascontiguousarray(seg.discrete.transition)
+        gam = np.ascontiguousarray(seg.discrete.output)
+        tone = tone_signal(seg.chain, seg.system.scenario, plan.sample_rate_hz)
+        end = seg.first + seg.n_samples
+        for first in range(seg.first, end, chunk):
+            count = min(chunk, end - first)
+            y = np.empty((count, p))
+            mech = np.empty((count, plan.watched.size))
+            for pos, xi in normals.pieces(first, count):
+                kernels.full_state_step(phi, gam, seg.noise_factor, state, xi,
+                                        y[pos:pos + len(xi)], plan.watched,
+                                        mech[pos:pos + len(xi)])
+            if seg.chain.receiver == "homodyne":
+                y = y[:, 0]
+            elif seg.chain.receiver == "if":
+                y = kernels.rotate_to_carrier(y, first, cycles)
+            if tone is not None:
+                y = y + tone(first, len(y))
+            counts, n_clip = digitiser(y)
+            clipped += n_clip
+            sink.write(first, counts, mech if plan.watched.size else None)
+            if progress is not None:
+                progress(count, plan.n_samples)
+    return clipped

@@ -1,0 +1,58 @@
+"""Figure of a scheduled record: the true occupation and the measured sideband in time.
+
+Top: the exact thermal occupation of the first mode and its coherent phonon
+number (mean_q² + mean_p²)/2 from the record's timeline
+(:class:`simulator.records.protocol.Timeline`). Below: the record's
+anti-Stokes sideband power in time, |block mean of z e^{−2πi f_m t}|²
+(:func:`simulator.analysis.ringdown.demodulated_power`), in shot-noise units;
+the segments are shaded and named on both.
+"""
+
+import numpy as np
+
+from simulator.report.plots import save_figure, subplots
+
+BLOCKS = 400  # points of the measured sideband power across the record
+MIN_COHERENT = 0.1  # coherent phonons below this are not drawn (they decay without end)
+SHADES = ("#f2f2f2", "#ffffff")  # alternate segment backgrounds
+TRUTH_COLOUR, COHERENT_COLOUR, RECORD_COLOUR = "#b5432f", "#6a6a6a", "#3b75af"
+
+
+def plot_protocol(record, timeline, path, *, overwrite=False):
+    """Write the figure of a scheduled iq ``record`` and its ``timeline`` to ``path``."""
+    from simulator.analysis.ringdown import demodulated_power
+    from simulator.errors import InputError
+
+    if record.kind != "iq":
+        raise InputError(f"record kind {record.kind!r}; the protocol figure needs an iq "
+                         "record (I + iQ)")
+    fs = record.sample_rate_hz
+    frequency = record.scenario.mechanics[0].frequency_hz
+    block = max(1, record.n_samples // BLOCKS)
+    t, power = demodulated_power(record.shot_noise_units(), fs, frequency, block)
+    fig, (top, bottom) = subplots(2, 1, figsize=(9.0, 6.4), layout="constrained", sharex=True)
+    ms = 1e3  # the axis in milliseconds
+    coherent = 0.5 * (timeline.mean_q[:, 0] ** 2 + timeline.mean_p[:, 0] ** 2)
+    top.semilogy(timeline.times_s * ms, timeline.occupation[:, 0], color=TRUTH_COLOUR,
+                 label="thermal occupation n(t) (truth)")
+    if np.any(coherent >= MIN_COHERENT):
+        top.semilogy(timeline.times_s * ms, np.where(coherent >= MIN_COHERENT, coherent, np.nan),
+                     color=COHERENT_COLOUR, linestyle="--", label="coherent phonons |β(t)|²")
+    top.set_ylabel(f"{timeline.mode_names[0]}: phonons")
+    top.legend(loc="best", fontsize="small")
+    bottom.semilogy(t * ms, power, color=RECORD_COLOUR, linewidth=0.8,
+                    label=f"record: anti-Stokes power, {block / fs * 1e6:.3g} µs blocks")
+    shown = power[power > 0]
+    if shown.size:
+        bottom.set_ylim(shown.min() / 2, shown.max() * 2)
+    bottom.set_ylabel("sideband power (shot-noise units)")
+    bottom.set_xlabel("time (ms)")
+    bottom.legend(loc="best", fontsize="small")
+    ends = list(timeline.segment_starts_s[1:]) + [record.n_samples / fs]
+    for k, (start, end, name) in enumerate(zip(timeline.segment_starts_s, ends,
+                                               timeline.segment_names, strict=True)):
+        for ax in (top, bottom):
+            ax.axvspan(start * ms, end * ms, color=SHADES[k % 2], zorder=0)
+        top.annotate(name, xy=(0.5 * (start + end) * ms, 1.0), xycoords=("data", "axes fraction"),
+                     ha="center", va="bottom", fontsize="small")
+    return save_figure(fig, path, overwrite=overwrite)
