@@ -195,3 +195,17 @@ def test_a_record_larger_than_the_free_space_is_refused_before_any_work(tmp_path
     assert "GB free; expected a shorter --duration" in done.stderr
     assert "Traceback" not in done.stderr
     assert not list(tmp_path.iterdir())  # nothing written, no temporary file left
+
+
+def test_an_integration_time_beyond_a_day_says_why_and_where_to_look():
+    """The bundled drum needs ~10⁷ s at its own point: inspect says a weak sideband sets it
+    and points to the planner; a time under a day gets no such note."""
+    from simulator.workflows.inspection import LONG_INTEGRATION_S, inspect_scenario
+
+    root = Path(__file__).resolve().parents[1] / "scenarios"
+    long = inspect_scenario(System(load_scenario(root / "drum_microwave_mK.toml")))
+    assert long.to_dict()["feasibility"][0]["asymmetry_time_s"] > LONG_INTEGRATION_S
+    assert "noisechain plan" in long.to_text() and "more than a day" in long.to_text()
+    short = inspect_scenario(System(load_scenario(root / "membrane_4k.toml")))
+    assert short.to_dict()["feasibility"][0]["asymmetry_time_s"] < LONG_INTEGRATION_S
+    assert "more than a day" not in short.to_text()

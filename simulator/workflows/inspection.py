@@ -161,12 +161,27 @@ class Inspection:
                 lines.append(f"  time to resolve the asymmetry    "
                              f"{f['asymmetry_time_s']:.4g} s at {f['significance']:g} "
                              "standard deviations")
+                lines += _long_time_hint(f)
         if d["regime"] is not None:
             lines += ["", f"regime (linear engine validity)  {d['regime']['level']}",
                       f"  {d['regime']['reason']}"]
         if d["warnings"]:
             lines += ["", "warnings"] + [f"  - {w}" for w in d["warnings"]]
         return "\n".join(lines)
+
+
+# an asymmetry time beyond this gets a hint on why, and where to look for a shorter one
+LONG_INTEGRATION_S = 86400.0
+
+
+def _long_time_hint(f):
+    """Lines explaining an integration time beyond a day (empty otherwise)."""
+    if f.get("asymmetry_time_s") is None or not f["asymmetry_time_s"] > LONG_INTEGRATION_S:
+        return []
+    return ["    more than a day: a sideband weak against the record's floor sets it "
+            "(`noisechain spectrum` gives each",
+            "    line's height over the floor); `noisechain plan` searches detuning and power "
+            "for a shorter time."]
 
 
 def _finite(x):

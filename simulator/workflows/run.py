@@ -204,7 +204,10 @@ def _record_part(system, out, wrote, figures, progress):
         plot_record_sidebands(system, record, png)
         figures.append((png, "Synthetic record against the model: its averaged periodogram "
                              "over the expected one with the 95 % χ² band, the whole band "
-                             "and each motional sideband zoomed."))
+                             "and each motional sideband zoomed. A line 'resolved bin by "
+                             "bin' stands out of the band in single bins; resolving the "
+                             "sideband asymmetry (the feasibility numbers above) is a "
+                             "different, stricter test."))
     truth = record.truth
     rows = [[name, n, f, w] for name, n, f, w in zip(
         truth.mode_names, truth.occupation, truth.effective_frequency_hz,
