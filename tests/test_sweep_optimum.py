@@ -63,3 +63,16 @@ def test_run_sweep_stores_the_optima(tmp_path):
     occupation = dataset["occupation"].values[:, 0]
     assert lowest["value"] == pytest.approx(np.nanmin(occupation))
     assert not lowest["on_edge"]
+
+
+def test_the_printed_optimum_names_the_swept_parameters_in_words():
+    """The terminal line reads 'drive detuning Δ / Ωm = …', not a dataset variable name."""
+    from simulator.workflows.sweep_optimum import optima_lines
+
+    entry = {"description": "lowest occupation", "mode": "drum", "value": 0.5, "units": "",
+             "at": {"drive_detuning_over_mechanics0_frequency": -1.05},
+             "labels": {"drive_detuning_over_mechanics0_frequency": "drive detuning Δ / Ωm"},
+             "on_edge": False, "next_to_unstable": False, "bistable": False,
+             "next_to_bistable": False}
+    (line,) = optima_lines([entry])
+    assert "drive detuning Δ / Ωm = -1.05" in line and "over_mechanics0" not in line

@@ -15,6 +15,7 @@ import math
 import numpy as np
 
 from simulator.analysis.planner import grid_flags
+from simulator.report.summary import coord_label
 
 # figure of merit → words; every one is minimised
 FIGURES_OF_MERIT = {
@@ -29,6 +30,7 @@ def sweep_optima(dataset):
     masks = {"unstable": dataset["stable"].values == 0,
              "bistable": dataset["bistable"].values == 1}
     dims = dataset["stable"].dims
+    names = tuple(str(m) for m in dataset["mode"].values)
     out = []
     for name, words in FIGURES_OF_MERIT.items():
         if name not in dataset:
@@ -38,15 +40,17 @@ def sweep_optima(dataset):
             if not np.isfinite(values).any():
                 continue
             index = np.unravel_index(int(np.nanargmin(values)), values.shape)
-            at = {}
+            at, labels = {}, {}
             for d in dataset.coords:
                 coord = dataset[d]
                 if d != "mode" and coord.dims and set(coord.dims) <= set(dims):
                     at[d] = float(coord.values[tuple(index[dims.index(k)]
                                                      for k in coord.dims)])
+                    labels[d] = coord_label(coord, names)
             entry = {"quantity": name, "description": words, "mode": str(mode),
                      "value": float(values[index]),
                      "units": dataset[name].attrs.get("units", ""), "at": at,
+                     "labels": labels,
                      "index": [int(i) for i in index],
                      "bistable": bool(masks["bistable"][index])}
             entry.update(grid_flags(index, values.shape, masks))
@@ -75,7 +79,8 @@ def optima_lines(optima):
     """One line per optimum for the terminal."""
     lines = []
     for e in optima:
-        where = ", ".join(f"{k} = {v:.4g}" for k, v in e["at"].items())
+        labels = e.get("labels", {})
+        where = ", ".join(f"{labels.get(k, k)} = {v:.4g}" for k, v in e["at"].items())
         unit = f" {e['units']}" if e["units"] else ""
         note = "; ".join(caveats(e))
         lines.append(f"  {e['description']} of {e['mode']}: {e['value']:.4g}{unit} at "
