@@ -14,6 +14,14 @@ from simulator.report.plots import save_figure, subplots
 from simulator.scenario.labels import axis_label
 
 _STYLES = ("-", "--", "-.", ":")
+# the planner's constraint names in words, for the legend
+_CONSTRAINT_WORDS = {"max_power_w": "maximum drive power",
+                     "max_photon_number": "maximum intracavity photons",
+                     "stability": "stability margin",
+                     "bistability_margin": "distance from bistability",
+                     "regime": "linear-engine regime",
+                     "signal": "a finite bound (a line to measure)",
+                     "valid": "a valid scenario"}
 # the objective in a few words, for the colour bar and the vertical axis
 _OBJECTIVE_WORDS = {"asymmetry_time": "time to resolve the asymmetry",
                     "occupation_error": "error of the occupation",
@@ -113,7 +121,7 @@ def plot_plan(data, path, *, overwrite=False):
                 ax.contour(x, y, field.T, levels=[0.0], colors=["w"],
                            linestyles=_STYLES[k % len(_STYLES)], linewidths=1.5)
                 ax.plot([], [], color="0.3", ls=_STYLES[k % len(_STYLES)],
-                        label=f"boundary: {name}")
+                        label=f"limit: {_CONSTRAINT_WORDS.get(name, name)}")
         if best is not None:
             ax.plot(best[0], best[1], "*", color="C3", ms=16, mec="w", label="optimum")
         if own is not None and None not in own:
@@ -125,7 +133,9 @@ def plot_plan(data, path, *, overwrite=False):
             ax.set_xscale("log")
         if axes[1]["log"]:
             ax.set_yscale("log")
-    ax.legend(loc="best", fontsize=8, framealpha=0.9)
+    # below the axes, off the map
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.14), ncol=3, fontsize=8,
+              frameon=False)
     ax.set_title(data["objective_description"], fontsize=10)
     fig.suptitle(f"{data['scenario']}: best operating point")
     fig.tight_layout()
