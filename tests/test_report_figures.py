@@ -139,3 +139,20 @@ def test_line_plots_span_the_stable_range_and_name_what_they_leave_out():
     assert note == "unstable for drive detuning Δ / Ωm above 0 (not shown)"
     (low, high), note = _stable_window(x, np.ones(9, bool), False, "Δ")
     assert (low, high, note) == pytest.approx((-2.25, 2.25, ""))
+
+
+def test_a_zoom_leaves_out_a_flat_floor_but_keeps_the_lines():
+    """Under a 20-quanta amplifier the lines would be slivers on a floor of ~12: the zoom
+    subtracts budget terms flat across its window and keeps every term with a line."""
+    from types import SimpleNamespace
+
+    from simulator.report.plots import FLAT_RTOL, _flat_terms
+
+    f = np.linspace(-1.0, 1.0, 201)
+    line = 0.3 / (1 + (f / 0.05) ** 2)
+    spectrum = SimpleNamespace(contributions={"total": 1 + 11.5 + line,
+                                              "amplifier": np.full_like(f, 11.5),
+                                              "thermal motion": line,
+                                              "nearly flat": 2.0 + 0.5 * FLAT_RTOL * f})
+    flat = _flat_terms(spectrum, np.ones_like(f, dtype=bool))
+    assert flat == {"amplifier": pytest.approx(11.5), "nearly flat": pytest.approx(2.0)}

@@ -117,7 +117,12 @@ def _overview(ax, spectrum, colours, summary):
                    label=f"{line.name}: power {line.power:.3g} (units × Hz)")
     positive = excess[excess > 1e-12]
     if positive.size:
-        ax.set_ylim(max(positive.max() * 1e-9, positive.min() / 3), positive.max() * 3)
+        # low enough to show every budget term's peak (under a flat floor, the lines are
+        # in the terms), at most nine decades
+        peaks = [float(c.max()) for c in list(spectrum.contributions.values())[1:]
+                 if c.size and c.max() > 0]
+        low = min([positive.min() / 3] + [p / 10 for p in peaks])
+        ax.set_ylim(max(positive.max() * 1e-9, low), positive.max() * 3)
     else:
         ax.text(0.5, 0.5, "no excess noise: the spectrum is the shot-noise floor, S = 1",
                 transform=ax.transAxes, ha="center", va="center", fontsize=11)
@@ -149,14 +154,37 @@ def _window(spectrum, centre, width):
     return inside, (f[inside] - centre) / scale, unit, centre - half, centre + half
 
 
+# a budget term that varies by less than this fraction of itself across a zoom is a flat
+# floor there (an amplifier's added noise, say): drawn, it would squash the lines
+FLAT_RTOL = 1e-3
+
+
+def _flat_terms(spectrum, inside):
+    """Budget terms constant across the window (name → value), left out of a zoom."""
+    flat = {}
+    for name, curve in list(spectrum.contributions.items())[1:]:
+        c = curve[inside]
+        if c.size and np.abs(c).max() > 0 and np.ptp(c) <= FLAT_RTOL * np.abs(c).max():
+            flat[name] = float(np.mean(c))
+    return flat
+
+
 def _zoom(ax, spectrum, colours, label, centre, width):
     inside, x, unit, _, _ = _window(spectrum, centre, width)
-    ax.plot(x, spectrum.total[inside] - 1.0, color=TOTAL_COLOUR, lw=3.0, alpha=0.4, zorder=1)
+    flat = _flat_terms(spectrum, inside)
+    offset = sum(flat.values())
+    ax.plot(x, spectrum.total[inside] - 1.0 - offset, color=TOTAL_COLOUR, lw=3.0, alpha=0.4,
+            zorder=1)
     for name, curve in list(spectrum.contributions.items())[1:]:
-        ax.plot(x, curve[inside], lw=1.2, **colours[name])
+        if name not in flat:
+            ax.plot(x, curve[inside], lw=1.2, **colours[name])
     ax.axhline(0.0, color="0.6", lw=0.8, zorder=0)
     ax.set_xlabel(f"offset from {centre / 1e6:.6g} MHz ({unit})")
-    ax.set_ylabel(f"S − 1, linear scale\n({spectrum.units})")
+    if flat:  # the flat terms keep their legend entries (with their values)
+        ax.set_ylabel(f"S − 1 less its flat floor {offset:.3g},\nlinear "
+                      f"({spectrum.units})")
+    else:
+        ax.set_ylabel(f"S − 1, linear scale\n({spectrum.units})")
     ax.set_title(label, fontsize=9)
 
 
