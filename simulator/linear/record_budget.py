@@ -316,8 +316,8 @@ def record_sidebands(system, summaries, *, sample_rate_hz=None, aliases=ALIASES)
     gain at its record frequency, |L(f)|² sinc²(f/fs) (a line much narrower
     than the filter and the band); its peak is area·2/(π·FWHM), compared
     with the rest of the record's density there (the sampled total of
-    :func:`sampled_density` minus the peak). The homodyne record mixes both sidebands into one line at |ν|:
-    NaN there.
+    :func:`sampled_density` minus the peak). The homodyne record mixes both
+    sidebands into one line at |ν|: NaN there.
     """
     system = as_system(system, several_tones="detected")
     scenario, chain = system.scenario, system.chain
