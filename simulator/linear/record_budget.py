@@ -1,9 +1,14 @@
 """The spectrum the digitiser sees: the record of the detection chain, with its noise budget.
 
 :func:`digitiser_spectrum` is the default of ``noisechain spectrum``: the
-exact density of the digitised samples, :meth:`DetectionChain.sampled_spectrum
-<simulator.model.chain.DetectionChain.sampled_spectrum>` at the record's
-sample rate, split into one budget line per physical cause. The lines are
+exact density of the digitised samples at the record's sample rate, split into
+one budget line per physical cause. The total comes from the chain's poles and
+residues sampled in closed form (:func:`simulator.model.poles.channel_form`:
+every alias summed exactly, one pass over the grid; the resolvent stands in
+where the eigenvectors fail and the form says so); the truncated alias sum
+:meth:`DetectionChain.sampled_spectrum
+<simulator.model.chain.DetectionChain.sampled_spectrum>` is its independent
+check in the tests. The lines are
 built from the chain's own state-space inputs (which noise enters where), in
 three steps that telescope, so they sum to the total to round-off:
 
@@ -48,15 +53,17 @@ from simulator.linear.spectra import adaptive_grid, checked_grid, provenance, to
 from simulator.linear.spectrum import Spectrum
 from simulator.model.chain import detection_chain
 from simulator.model.laser_noise import vacuum_intensity
+from simulator.model.poles import channel_form
 from simulator.model.sample_rate import record_sample_rate
 from simulator.model.system import as_system
 from simulator.model.units import angular
 
 RECORD_UNITS = "record shot-noise units (vacuum = 1)"
 VOLT_UNITS = "V^2/Hz at the digitiser"
-# Aliases summed on each side by default: the non-white part of the density
-# falls at least as 1/f^3 after the sinc^2, so the truncated tail is below
-# 1e-6 of the total on the bundled scenarios (checked against 400 in the tests).
+# Aliases summed on each side where an alias sum is still needed (the resolvent
+# fallback of a carried if record, close to an exceptional point): the non-white
+# part of the density falls at least as 1/f^3 after the sinc^2, so the truncated
+# tail is below 1e-6 of the total on the bundled scenarios (checked in the tests).
 ALIASES = 100
 BAND_POINTS = 801  # uniform points laid over the whole Nyquist band (filter, sinc^2)
 SINC = "sampling: average over each sample interval (sinc²)"
@@ -78,13 +85,16 @@ def digitiser_spectrum(system, frequency_hz=None, *, sample_rate_hz=None, aliase
     sample_rate_hz : float, optional
         Default: the record's (``digitizer.sample_rate_hz`` or the automatic one).
     aliases : int
-        Aliases k summed on each side (see the module notes).
+        Aliases k summed on each side, only where the pole form falls back to
+        an alias sum (see :func:`sampled_density`); otherwise every alias is
+        summed exactly.
 
     Returns
     -------
     simulator.linear.spectrum.Spectrum
-        ``total`` equals ``system.chain.sampled_spectrum(f, fs, aliases)``;
-        the contributions sum to it to round-off.
+        ``total`` is :func:`sampled_density` (the limit of
+        ``system.chain.sampled_spectrum(f, fs, aliases)`` as the aliases
+        grow); the contributions sum to it to round-off.
     """
     system = as_system(system, several_tones="detected").require_stable()
     scenario, chain = system.scenario, system.chain
@@ -101,7 +111,7 @@ def digitiser_spectrum(system, frequency_hz=None, *, sample_rate_hz=None, aliase
     # the continuous density as the lines give it (they agree with record_spectrum to the
     # resolvent's round-off), so that the sampling lines close the sum exactly
     continuous = sum(parts.values())
-    total = chain.sampled_spectrum(f, fs, aliases=aliases)
+    total, method = sampled_density(chain, f, fs, aliases=aliases)
     # white noise (the density's limit at high frequency) passes the sampling unchanged
     # (Σ_k sinc²(x + k) = 1): the two sampling lines show what it does to the rest
     coloured = continuous - chain.white_density()
@@ -123,9 +133,30 @@ def digitiser_spectrum(system, frequency_hz=None, *, sample_rate_hz=None, aliase
                     total=total, quantity=f"record at the digitiser ({chain.receiver} "
                     f"receiver, {fs:.6g} samples/s)", contributions=parts,
                     calibration={**chain.calibration(), "sample_rate_hz": fs,
-                                 "aliases_summed": int(aliases),
+                                 "sampled_by": method,
                                  "v2_per_hz_per_shot_noise_unit": volts2},
                     lines=lines, provenance=prov)
+
+
+def sampled_density(chain, frequency_hz, sample_rate_hz, *, aliases=ALIASES):
+    """(density, method): the record's integrate-and-dump density from the chain's poles.
+
+    The closed-form sampled pole–residue form of the record's channels
+    (:meth:`simulator.model.poles.PoleForm.sampled`: Σ_k over every alias,
+    exactly), projected on the record (I + iQ for iq; the one channel
+    otherwise) and read on the record's FFT axis, ω = −2πf. ``method`` is the
+    form's own: ``"pole-residue"``, or the resolvent fallback and why (then
+    sampled through the discrete-time resolvent, or for a carried if record by
+    the alias sum over ±``aliases``).
+    """
+    carrier = chain.carrier_rad_s if chain.receiver == "if" else None
+    form = channel_form(chain.model, carrier_rad_s=carrier, sample_rate_hz=sample_rate_hz,
+                        aliases=aliases)
+    if chain.receiver == "iq":
+        form = form.project(np.array([1.0, 1.0j]))
+    f = np.asarray(frequency_hz, dtype=float)
+    density = form.spectrum(-angular(f))[0, :, 0, 0].real.reshape(f.shape)
+    return density, form.method
 
 
 def chain_gain(scenario, frequency_hz, sample_rate_hz):
@@ -284,9 +315,9 @@ def record_sidebands(system, summaries, *, sample_rate_hz=None, aliases=ALIASES)
     the pole residue of :mod:`simulator.linear.sidebands`) times the chain's
     gain at its record frequency, |L(f)|² sinc²(f/fs) (a line much narrower
     than the filter and the band); its peak is area·2/(π·FWHM), compared
-    with the rest of the record's density there (the sampled total minus the
-    peak). The homodyne record mixes both sidebands into one line at |ν|:
-    NaN there.
+    with the rest of the record's density there (the sampled total of
+    :func:`sampled_density` minus the peak). The homodyne record mixes both
+    sidebands into one line at |ν|: NaN there.
     """
     system = as_system(system, several_tones="detected")
     scenario, chain = system.scenario, system.chain
@@ -303,7 +334,7 @@ def record_sidebands(system, summaries, *, sample_rate_hz=None, aliases=ALIASES)
             area = (chain.efficiency * side.area_above_floor / scenario.detection.efficiency
                     * float(chain_gain(scenario, f, fs)))
             peak = area * 2.0 / (np.pi * side.linewidth_hz)
-            total = float(chain.sampled_spectrum(np.array([f]), fs, aliases=aliases)[0])
+            total = float(sampled_density(chain, np.array([f]), fs, aliases=aliases)[0][0])
             sides[key] = dataclasses.replace(side, record_frequency_hz=f, record_area=area,
                                              record_peak_to_background=peak / (total - peak))
         out.append(dataclasses.replace(s, **sides))

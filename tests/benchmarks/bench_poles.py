@@ -15,6 +15,12 @@ Prints, for the detection-chain models of the bundled scenarios (4 to 11 states)
   the stepped models on the record's grid (the continuous record, which needs
   no alias sum; the sampled one by the resolvent costs ~10² times more).
 
+* seconds of ``digitiser_spectrum`` (the default of ``noisechain spectrum``,
+  every budget line, on its own grid) with its total from the sampled pole
+  form, and by the route it replaced, the ±100-alias sum of resolvent
+  densities (``DetectionChain.sampled_spectrum``), side by side, their ratio
+  and largest relative difference (the alias sum's truncation).
+
 Times are the best of several runs in CPU time of this process, so that other
 jobs on a shared machine do not enter; the ratios are what to compare.
 Run: ``.venv/bin/python tests/benchmarks/bench_poles.py``.
@@ -36,6 +42,7 @@ from simulator.analysis.feasibility import (  # noqa: E402
     occupation_bound,
 )
 from simulator.analysis.information import steps  # noqa: E402
+from simulator.linear import record_budget  # noqa: E402
 from simulator.model.poles import pole_form  # noqa: E402
 from simulator.model.statespace import StateSpace  # noqa: E402
 from simulator.model.system import System  # noqa: E402
@@ -116,12 +123,37 @@ def bounds(name, scenario):
           f"{t_before * 1e3:7.1f} ms   ratio {t_before / t_after:5.1f}")
 
 
+def digitiser(name, scenario):
+    """digitiser_spectrum by the pole form and by the alias sum, on the same system."""
+    system = System(scenario)
+    exact = record_budget.sampled_density
+
+    def alias_sum(chain, f, fs, aliases):
+        return chain.sampled_spectrum(f, fs, aliases=aliases), "alias sum"
+
+    new = record_budget.digitiser_spectrum(system)
+    t_new = best(lambda: record_budget.digitiser_spectrum(system), 5)
+    record_budget.sampled_density = alias_sum
+    try:
+        old = record_budget.digitiser_spectrum(system)
+        t_old = best(lambda: record_budget.digitiser_spectrum(system), 1)
+    finally:
+        record_budget.sampled_density = exact
+    diff = float(np.max(np.abs(new.total - old.total) / np.abs(new.total)))
+    print(f"{name:<22} {new.frequency_hz.size:>5} points, {len(new.contributions):>2} lines:"
+          f"  pole form {t_new:7.3f} s   alias sum (±{record_budget.ALIASES}) {t_old:7.3f} s"
+          f"   ratio {t_old / t_new:6.1f}   max difference {diff:.1e}")
+
+
 if __name__ == "__main__":
     scenarios = {name: load_scenario(REPO / "scenarios" / f"{name}.toml") for name in NAMES}
     print(f"channel spectral matrix on {POINTS:,} points (resolvent timed on "
           f"{RESOLVENT_POINTS:,}; rates per CPU second)")
     for name, scenario in scenarios.items():
         spectra(name, System(scenario).chain.model)
+    print("digitiser_spectrum with its budget (best of repeats, CPU time)")
+    for name, scenario in scenarios.items():
+        digitiser(name, scenario)
     print("Fisher bound per operating point (best of repeats, CPU time)")
     for name, scenario in scenarios.items():
         bounds(name, scenario)
