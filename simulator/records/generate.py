@@ -306,8 +306,9 @@ def generate(plan, sink, *, chunk, progress=None, workers=1):
     for Ctrl-C). With ``workers`` > 1 the normals are drawn ahead and each
     chunk is finished (carrier, tone, digitiser, and the sink's ``encode``
     when it has one: compression) on a pool of threads while the recursion
-    runs on this one (:mod:`simulator.records.pipeline`); the counts are the
-    same bits for any number of workers.
+    runs on this one (:mod:`simulator.records.pipeline`); an iq record without
+    a tone is digitised here instead, block by block after the recursion. The
+    counts are the same bits for any number of workers.
     """
     from simulator.model.tone import tone_signal
     from simulator.records import kernels, pipeline

@@ -8,8 +8,11 @@ record: blocks of normals are drawn ahead (:class:`NormalBlocks` with an
 executor), the sequential recursion runs on the calling thread, and each
 finished chunk is rotated, digitised and compressed by the pool
 (:class:`OrderedStage`) while the next chunk's recursion runs, then written
-in order. Every step is a pure function of the sample indices it covers, so
-the result does not depend on the number of threads or the chunk size.
+in order. (An iq record without a tone is digitised on the calling thread,
+block by block right after the recursion, while its outputs are still in
+the cache; the pool then only compresses.) Every step is a pure function
+of the sample indices it covers, so the result does not depend on the
+number of threads or the chunk size.
 """
 
 import collections
