@@ -26,7 +26,9 @@ Prints, measured side by side in one run:
 5. A streamed record on every core. Side by side: the single-core bound
    (the sample stream's normals drawn block after block on one thread), the
    recursion alone (normals drawn beforehand), and whole records streamed to
-   HDF5 with 1 worker thread and with one per core, raw and deflated. Target:
+   HDF5 with 1 worker thread and with one per core, raw and deflated; and
+   each stage's core time per sample (drawing, recursion, digitiser, raw
+   chunk) with the ceiling their sum sets on every core. Target:
    the raw stream on all cores reaches 0.8 × (cores × single-core bound), or
    the recursion's own rate where that is lower.
 6. Compression of the counts: size against write speed for HDF5's built-in
