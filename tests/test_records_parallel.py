@@ -23,8 +23,8 @@ IF = dict(detection={"intermediate_frequency_hz": 0.41e6}, record={"kind": "if"}
 N = 3 * kernels.BLOCK_SAMPLES + 4321  # a record that ends inside a block
 
 
-def single_threaded(plan):
-    """The counts by the plain sequential loop: the reference bits."""
+def single_threaded(plan, *, with_clipped=False):
+    """The counts by the plain sequential loop: the reference bits (and clipped samples)."""
     step = kernels.stepper(plan)
     blocks = kernels.NormalBlocks(plan.seed, kernels.SAMPLE_STREAM, step.width,
                                   kernels.BLOCK_SAMPLES)
@@ -35,7 +35,8 @@ def single_threaded(plan):
     if plan.chain.receiver == "if":
         y = kernels.rotate_to_carrier(
             y, 0, plan.chain.carrier_rad_s / (2 * np.pi * plan.sample_rate_hz))
-    return kernels.Digitiser(plan)(y)[0]
+    counts, clipped = kernels.Digitiser(plan)(y)
+    return (counts, clipped) if with_clipped else counts
 
 
 @pytest.mark.parametrize("form, sections", [("innovations", {}), ("full-state", {}),
@@ -56,6 +57,26 @@ def test_same_bits_for_any_worker_count_and_chunk(form, sections, tmp_path):
             assert f["samples"].shuffle == (compression == "deflate")
             assert f["samples"].compression == ("gzip" if compression == "deflate" else None)
             np.testing.assert_array_equal(f["samples"][:], reference)
+
+
+def test_clipped_count_is_that_of_the_whole_record():
+    """An iq record is digitised block by block as the recursion makes it: the
+    clipped samples, counted per block, add up to the count over the whole
+    record, for any chunk size and worker count."""
+    import warnings
+
+    from simulator.records.generate import RecordWarning
+
+    full_scale = plan_record(make(samples=N), seed=5).full_scale_v / 6  # about 1.3 sigma
+    scenario = make(samples=N, digitizer={"full_scale_v": full_scale})
+    counts, clipped = single_threaded(plan_record(scenario, seed=5), with_clipped=True)
+    assert 0 < clipped < N
+    for workers, chunk in [(1, N), (2, 1000), (3, kernels.BLOCK_SAMPLES + 7)]:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RecordWarning)
+            record = simulate_record(scenario, seed=5, workers=workers, chunk_samples=chunk)
+        assert record.clipped_samples == clipped
+        np.testing.assert_array_equal(record.counts, counts)
 
 
 def test_file_chunks_cut_across_generator_chunks(tmp_path):
@@ -100,3 +121,24 @@ def test_cli_threads_and_compression(tmp_path):
         assert a["samples"].compression == "gzip"
         np.testing.assert_array_equal(a["samples"][:],
                                       simulate_record(scenario, seed=4, workers=1).counts)
+
+
+@pytest.mark.skipif(not __import__("sys").platform.startswith("linux"),
+                    reason="niceness per thread is Linux's")
+def test_pool_threads_yield_to_the_recursion():
+    """The pool's threads run at a lower priority than the thread running the
+    recursion (or at the lowest one there is), so the sequential recursion is
+    not the one kept waiting for a core."""
+    import os
+    import threading
+
+    from simulator.records import pipeline
+
+    def niceness():
+        return os.getpriority(os.PRIO_PROCESS, threading.get_native_id())
+
+    mine = niceness()
+    with pipeline.executor(2) as pool:
+        theirs = pool.submit(niceness).result()
+    assert theirs == min(mine + pipeline.WORKER_NICENESS, 19)  # setpriority(2): niceness -20 … 19
+    assert niceness() == mine

@@ -254,11 +254,16 @@ def encode_chunk(counts, rows, deflate=True):
     deflated with a zlib header, which is the HDF5 gzip filter's format
     (The HDF Group, HDF5 User's Guide, "Filters"; common practice of writers
     that compress chunks themselves). zlib releases the GIL while it works.
+    Returns the deflated bytes, or for a raw chunk the (padded) array itself:
+    h5py writes its buffer without another copy.
     """
-    block = np.zeros((rows,) + counts.shape[1:], dtype=counts.dtype)
-    block[:len(counts)] = counts
+    if len(counts) == rows:  # a whole chunk goes as it is: no padded copy
+        block = np.ascontiguousarray(counts)
+    else:
+        block = np.zeros((rows,) + counts.shape[1:], dtype=counts.dtype)
+        block[:len(counts)] = counts
     if not deflate:
-        return block.tobytes()
+        return block  # h5py's write_direct_chunk takes the array's buffer as it is
     width = block.dtype.itemsize
     shuffled = np.ascontiguousarray(block.reshape(-1).view(np.uint8).reshape(-1, width).T)
     return zlib.compress(shuffled.data, DEFLATE_LEVEL)

@@ -306,8 +306,9 @@ def generate(plan, sink, *, chunk, progress=None, workers=1):
     for Ctrl-C). With ``workers`` > 1 the normals are drawn ahead and each
     chunk is finished (carrier, tone, digitiser, and the sink's ``encode``
     when it has one: compression) on a pool of threads while the recursion
-    runs on this one (:mod:`simulator.records.pipeline`); the counts are the
-    same bits for any number of workers.
+    runs on this one (:mod:`simulator.records.pipeline`); an iq record without
+    a tone is digitised here instead, block by block after the recursion. The
+    counts are the same bits for any number of workers.
     """
     from simulator.model.tone import tone_signal
     from simulator.records import kernels, pipeline
@@ -320,14 +321,21 @@ def generate(plan, sink, *, chunk, progress=None, workers=1):
     cycles = chain.carrier_rad_s / (2 * np.pi * plan.sample_rate_hz)
     encode = getattr(sink, "encode", None)
 
-    def finish(first, y, mech):  # a pure function of the chunk: any thread, same bits
-        if chain.receiver == "homodyne":
-            y = y[:, 0]
-        elif chain.receiver == "if":
-            y = kernels.rotate_to_carrier(y, first, cycles)
-        if tone is not None:  # the calibration tone's exact response, by linearity
-            y = y + tone(first, len(y))
-        counts, n_clip = digitiser(y)
+    # iq without a tone: each block's outputs are digitised at once, still in the cache
+    # (one reused buffer), not written out by chunk and read back by another thread.
+    direct = chain.receiver == "iq" and tone is None
+
+    def finish(first, y, mech, n_clip):  # a pure function of the chunk: any thread, same bits
+        if direct:
+            counts = y
+        else:
+            if chain.receiver == "homodyne":
+                y = y[:, 0]
+            elif chain.receiver == "if":
+                y = kernels.rotate_to_carrier(y, first, cycles)
+            if tone is not None:  # the calibration tone's exact response, by linearity
+                y = y + tone(first, len(y))
+            counts, n_clip = digitiser(y)
         return first, counts, mech, n_clip, (None if encode is None else encode(first, counts))
 
     clipped = 0
@@ -344,6 +352,7 @@ def generate(plan, sink, *, chunk, progress=None, workers=1):
             progress(len(counts), n_total)
 
     workers = int(workers)
+    y_block = np.empty((min(chunk, kernels.BLOCK_SAMPLES), p)) if direct else None
     with pipeline.executor(workers) as pool:
         normals = kernels.NormalBlocks(
             plan.seed, kernels.SAMPLE_STREAM, step.width, kernels.BLOCK_SAMPLES,
@@ -353,11 +362,19 @@ def generate(plan, sink, *, chunk, progress=None, workers=1):
         try:
             for first in range(0, n_total, chunk):
                 count = min(chunk, n_total - first)
-                y = np.empty((count, p))
+                out = (np.empty((count, p), dtype=digitiser.dtype) if direct
+                       else np.empty((count, p)))
                 mech = np.empty((count, plan.watched.size))
+                n_clip = 0
                 for pos, xi in normals.pieces(first, count):
-                    step(xi, y[pos:pos + len(xi)], mech[pos:pos + len(xi)])
-                stage.put(first, y, mech if plan.watched.size else None)
+                    end = pos + len(xi)
+                    if direct:
+                        y = y_block[:len(xi)]
+                        step(xi, y, mech[pos:end])
+                        n_clip += digitiser.into(y, out[pos:end])
+                    else:
+                        step(xi, out[pos:end], mech[pos:end])
+                stage.put(first, out, mech if plan.watched.size else None, n_clip)
             stage.drain()
         except BaseException:
             stage.cancel()

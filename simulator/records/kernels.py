@@ -218,11 +218,16 @@ class Digitiser:
         self.dtype = np.int16 if plan.bits <= 16 else np.int32
 
     def __call__(self, y):
+        """Counts of ``y`` (shape (count,) or (count, channels)) and the clipped samples."""
         values = y if y.ndim == 2 else y[:, None]
         counts = np.empty(values.shape, dtype=self.dtype)
-        n_clip = digitise(np.ascontiguousarray(values), self.scale, float(self.low),
-                          float(self.high), counts)
-        return (counts if y.ndim == 2 else counts[:, 0]), int(n_clip)
+        n_clip = self.into(values, counts)
+        return (counts if y.ndim == 2 else counts[:, 0]), n_clip
+
+    def into(self, values, counts):
+        """Digitise (count, channels) ``values`` into ``counts``; return the clipped samples."""
+        return int(digitise(np.ascontiguousarray(values), self.scale, float(self.low),
+                            float(self.high), counts))
 
 
 def rotate_to_carrier(y, first, cycles_per_sample):

@@ -26,7 +26,9 @@ Prints, measured side by side in one run:
 5. A streamed record on every core. Side by side: the single-core bound
    (the sample stream's normals drawn block after block on one thread), the
    recursion alone (normals drawn beforehand), and whole records streamed to
-   HDF5 with 1 worker thread and with one per core, raw and deflated. Target:
+   HDF5 with 1 worker thread and with one per core, raw and deflated; and
+   each stage's core time per sample (drawing, recursion, digitiser, raw
+   chunk) with the ceiling their sum sets on every core. Target:
    the raw stream on all cores reaches 0.8 × (cores × single-core bound), or
    the recursion's own rate where that is lower.
 6. Compression of the counts: size against write speed for HDF5's built-in
@@ -277,6 +279,7 @@ def every_core(n):
     print(f"5. streamed iq record of {n:.3g} samples on {cores} core(s), M samples/s")
     print(f"   single-core normal bound:  {bound / 1e6:8.2f}   recursion alone: {rec / 1e6:8.2f}"
           f"   target: {target / 1e6:.2f} (0.8 x cores x bound, capped by the recursion)")
+    stage_ceiling(plan, y, t_draw / n, t_rec / n, cores)
     with tempfile.TemporaryDirectory() as tmp, warnings.catch_warnings():
         warnings.simplefilter("ignore")
         path = Path(tmp) / "r.h5"
@@ -293,6 +296,31 @@ def every_core(n):
                       f"   / (cores x bound) {rate / (cores * bound):5.2f}"
                       f"   speed-up {rate / rates[compression, 1]:4.2f}")
     return rates["none", cores]
+
+
+def stage_ceiling(plan, y, draw_ns, recursion_ns, cores):
+    """Core time of each stage per sample, and the ceiling it sets on ``cores`` cores.
+
+    Every stage but the drawing costs core time the drawing cannot use: with
+    all cores busy, the streamed rate is at most cores / (sum of the stages'
+    core times per sample), i.e. a fraction draw / sum of cores × bound.
+    """
+    from simulator.io.recordfile import HDF5_CHUNK_ROWS, encode_chunk
+    from simulator.records import kernels
+
+    digitiser = kernels.Digitiser(plan)
+    rows = min(len(y), HDF5_CHUNK_ROWS)
+    counts, _ = digitiser(y[:rows])
+    hot, out = y[:BLOCK_SAMPLES], np.empty((BLOCK_SAMPLES, y.shape[1]), dtype=counts.dtype)
+    t_dig = best_of(lambda: [digitiser.into(hot, out) for _ in range(0, len(y), len(hot))])
+    t_dig /= len(y)  # block by block, on outputs the recursion has just left in the cache
+    t_raw = best_of(lambda: encode_chunk(counts, rows, deflate=False)) / rows
+    stages = {"draw": draw_ns, "recursion": recursion_ns, "digitise": t_dig, "raw chunk": t_raw}
+    total = sum(stages.values())
+    print("   core time per sample, ns:  " + "   ".join(
+        f"{name} {1e9 * t:.1f}" for name, t in stages.items()))
+    print(f"   ceiling with every core busy: {cores / total / 1e6:8.2f} M samples/s"
+          f" = {stages['draw'] / total:4.2f} of (cores x bound)")
 
 
 COMPRESSION_CHUNK = 1 << 18
