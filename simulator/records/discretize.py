@@ -114,6 +114,31 @@ class DiscreteModel:
         return s.reshape(f.shape + s.shape[1:])
 
 
+def van_loan(drift, diffusion, duration):
+    """Φ = e^{A t} and Q = ∫₀ᵗ e^{As} W e^{Aᵀs} ds by Van Loan's block exponential.
+
+    expm([[−A, W], [0, Aᵀ]] h) = [[·, E₁₂], [0, E₂₂]] gives e^{Ah} = E₂₂ᵀ and
+    the integral E₂₂ᵀ E₁₂ over a step h = t/2^k with ‖A‖₁ h ≤ 1, then doubled
+    k times exactly (Φ(2h) = Φ(h)², Q(2h) = Φ(h) Q(h) Φ(h)ᵀ + Q(h)).
+    Van Loan, IEEE Trans. Autom. Control 23, 395 (1978). Q is returned
+    symmetrised.
+    """
+    size = len(drift)
+    k = max(0, int(np.ceil(np.log2(max(np.linalg.norm(drift, 1) * duration, 1e-300)))))
+    h = duration / 2**k
+    block = np.zeros((2 * size, 2 * size))
+    block[:size, :size] = -drift
+    block[:size, size:] = diffusion
+    block[size:, size:] = drift.T
+    e = scipy.linalg.expm(block * h)
+    phi = e[size:, size:].T
+    q = phi @ e[:size, size:]
+    for _ in range(k):
+        q = phi @ q @ phi.T + q
+        phi = phi @ phi
+    return phi, 0.5 * (q + q.T)
+
+
 def discretize(model, sample_interval_s, *, integrator_drift=None):
     """Exact integrate-and-dump discretisation of ``model`` (Van Loan's method).
 
@@ -169,20 +194,7 @@ def discretize(model, sample_interval_s, *, integrator_drift=None):
                   [model.C * np.outer(1.0 / u, s), r * np.outer(1.0 / u, u)]])
     g = np.vstack([model.B / s[:, None], model.D / u[:, None]])
     w = g @ model.N @ g.T
-    k = max(0, int(np.ceil(np.log2(max(np.linalg.norm(f, 1) * t, 1e-300)))))
-    h = t / 2**k
-    size = n + p
-    block = np.zeros((2 * size, 2 * size))
-    block[:size, :size] = -f
-    block[:size, size:] = w
-    block[size:, size:] = f.T
-    e = scipy.linalg.expm(block * h)
-    phi = e[size:, size:].T
-    q = phi @ e[:size, size:]
-    for _ in range(k):
-        q = phi @ q @ phi.T + q
-        phi = phi @ phi
-    q = 0.5 * (q + q.T)
+    phi, q = van_loan(f, w, t)
     scale = np.concatenate([s, u / t])
     return DiscreteModel(transition=phi[:n, :n] * np.outer(s, 1.0 / s),
                          output=phi[n:, :n] * np.outer(u, 1.0 / s) / t,

@@ -39,6 +39,7 @@ import numpy as np
 import scipy.linalg
 
 from simulator.errors import InputError, OperatingPointError
+from simulator.records.discretize import van_loan
 from simulator.records.generate import FULL_SCALE_SIGMAS, RecordPlan
 
 VOLTS_RTOL = 1e-12  # relative change of volts per unit that still counts as one calibration
@@ -242,22 +243,10 @@ def covariance_flow(a, steady, v0, t):
 def covariance_flow_van_loan(a, diffusion, v0, t):
     """V(t) = e^{At} V₀ e^{Aᵀt} + ∫₀ᵗ e^{As} D e^{Aᵀs} ds for any A (Van Loan 1978).
 
-    The block exponential expm([[−A, D], [0, Aᵀ]] h) = [[·, E₁₂], [0, E₂₂]]
-    gives e^{Ah} = E₂₂ᵀ and the integral E₂₂ᵀ E₁₂ over a step h = t/2^k with
-    ‖A‖h ≤ 1, then doubled k times exactly (Φ(2h) = Φ(h)², Q(2h) =
-    Φ(h) Q(h) Φ(h)ᵀ + Q(h)), as in :func:`simulator.records.discretize.discretize`.
+    Φ and the integral from :func:`simulator.records.discretize.van_loan`, the
+    block exponential the record's own discretisation uses.
     """
-    n = len(a)
-    k = max(0, int(np.ceil(np.log2(max(np.linalg.norm(a, 1) * t, 1e-300)))))
-    h = t / 2**k
-    block = np.zeros((2 * n, 2 * n))
-    block[:n, :n], block[:n, n:], block[n:, n:] = -a, diffusion, a.T
-    e = scipy.linalg.expm(block * h)
-    phi = e[n:, n:].T
-    q = phi @ e[:n, n:]
-    for _ in range(k):
-        q = phi @ q @ phi.T + q
-        phi = phi @ phi
+    phi, q = van_loan(np.asarray(a, dtype=float), diffusion, t)
     v = phi @ v0 @ phi.T + q
     return 0.5 * (v + v.T), phi
 
