@@ -253,6 +253,11 @@ def test_no_master_equation_advice_for_occupations_beyond_its_fock_space():
     ({"drive": {"power_w": 67.0}}, "67 W (48.26 dBm) at the port of a 6e+09 Hz circuit"),
     ({"electronics": {"amplifier_added_quanta": 12.0}},
      'set detection.receiver = "microwave"'),
+    # a −20 MHz detuning and a 2 MHz cavity linewidth written in Hz
+    ({"drive": {"detuning_hz": -20.0}},
+     "was a value in MHz written in Hz? (-20 MHz is detuning_hz = -2e+07)"),
+    ({"cavity": {"linewidth_hz": 2.0, "external_linewidth_hz": 1.0}},
+     "(2 MHz is linewidth_hz = 2e+06)"),
 ])
 def test_implausible_values_are_warned_with_what_looks_wrong(sections, words, tmp_path, capsys):
     from conftest import make_scenario

@@ -113,3 +113,19 @@ def test_honest_unbiased_draws_are_consistent_and_the_report_carries_the_tests()
 def test_identical_estimates_off_the_truth_are_biased():
     q = summarise("x", np.full(12, 3.0), np.full(12, 0.1), TRUTH, 0)
     assert "every trial returned 3" in q.verdict
+
+
+def test_fewer_trials_than_a_verdict_needs_still_report_the_statistics():
+    # Three estimates 2.95, 3.0, 3.4 with stated errors 0.1 against a truth of 3 (not
+    # this file's TRUTH): pulls (−0.5, 0, 4), so bias = 0.35/3, pull mean 3.5/3, pull
+    # width √(73/12) (sample standard deviation) and 1σ coverage 2/3 — printed, but
+    # with no test behind them.
+    q = summarise("x", np.array([2.95, 3.0, 3.4]), np.full(3, 0.1), 3.0, 0)
+    assert q.truth == 3.0
+    assert q.bias == pytest.approx(0.35 / 3) and q.pull_mean == pytest.approx(3.5 / 3)
+    assert q.pull_width == pytest.approx(np.sqrt(73 / 12))
+    assert q.coverage_1sigma == pytest.approx(2 / 3)
+    assert q.level is None and "too few trials for a verdict (3 < 10)" in q.verdict
+    one = summarise("x", np.array([3.2]), np.array([0.1]), 3.0, 0)
+    assert one.bias == pytest.approx(0.2) and one.pull_width is None
+    assert one.bias_error is None

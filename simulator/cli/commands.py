@@ -347,8 +347,10 @@ def cmd_trial(args):
         truth = "no truth" if q.truth is None else f"truth {q.truth:.6g}"
         line = f"  {q.name}: mean {q.mean:.6g} ({truth}), spread {q.spread:.3g}"
         if q.bias is not None:
-            line += (f", bias {q.bias:+.3g} ± {q.bias_error:.2g}, pull width "
-                     f"{q.pull_width:.3g}, 1σ coverage {q.coverage_1sigma:.0%}")
+            line += f", bias {q.bias:+.3g}"
+        if q.bias_error is not None:  # two or more trials
+            line += (f" ± {q.bias_error:.2g}, pull width {q.pull_width:.3g}, "
+                     f"1σ coverage {q.coverage_1sigma:.0%}")
         print(line)
         print(f"      {q.verdict}")
     print(f"open {result.out / 'report.html'} for histograms and pulls")

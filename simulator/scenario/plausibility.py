@@ -24,6 +24,13 @@ COLDEST_BATH_K = 1e-3
 # A circuit drive above 1 mW (0 dBm) at the device would heat any cryogenic
 # circuit; more likely a dBm value written in W.
 STRONGEST_CIRCUIT_DRIVE_W = 1e-3
+# A detuning or cavity linewidth below 1 kHz whose value in MHz would sit within a
+# factor of 10 of the device's mechanical frequencies (or, for a detuning, of the
+# cavity linewidth) is more likely a MHz value written in Hz: drive tones are set
+# at multiples of Ωm and cavities of such devices are kHz to GHz wide.
+SLIP_BELOW_HZ = 1e3
+MHZ_IN_HZ = 1e6
+SLIP_FACTOR = 10.0
 
 
 def plausibility_warnings(scenario):
@@ -54,6 +61,7 @@ def plausibility_warnings(scenario):
                 f"{COLDEST_BATH_K * 1e3:g} mK, colder than any refrigerator keeps a "
                 f"mechanical bath; was a value in mK written in K? ({temperature:.4g} mK is "
                 f"bath_temperature_k = {temperature * 1e-3:.4g})")
+    out.extend(_mhz_slips(scenario))
     power = scenario.drive.power_w
     if circuit and power > STRONGEST_CIRCUIT_DRIVE_W:
         out.append(
@@ -69,3 +77,27 @@ def plausibility_warnings(scenario):
             'For an amplifier chain and an IQ mixer set detection.receiver = "microwave" '
             "with electronics.amplifier_gain_db")
     return tuple(out)
+
+
+def _looks_like_mhz(value, rates):
+    """True if ``value`` (Hz) is small and its MHz reading is of the size of ``rates``."""
+    size = abs(value)
+    return 0 < size < SLIP_BELOW_HZ and any(
+        1 / SLIP_FACTOR <= size * MHZ_IN_HZ / rate <= SLIP_FACTOR for rate in rates if rate > 0)
+
+
+def _mhz_slips(scenario):
+    """Warnings for a detuning or cavity linewidth that reads like MHz written in Hz."""
+    mechanical = [mode.frequency_hz for mode in scenario.mechanics]
+    kappa = scenario.cavity.linewidth_hz
+    checks = [("drive.detuning_hz", scenario.drive.detuning_hz, mechanical + [kappa],
+               "the mechanical frequencies and the cavity linewidth"),
+              ("cavity.linewidth_hz", kappa, mechanical, "the mechanical frequencies"),
+              ("cavity.external_linewidth_hz", scenario.cavity.external_linewidth_hz,
+               mechanical, "the mechanical frequencies")]
+    for key, value, rates, what in checks:
+        if _looks_like_mhz(value, rates):
+            yield (f"{key}: {value:.4g} Hz is a million times smaller than {what} "
+                   f"({', '.join(f'{r:.4g} Hz' for r in rates)}); was a value in MHz "
+                   f"written in Hz? ({value:.4g} MHz is {key.split('.')[1]} = "
+                   f"{value * MHZ_IN_HZ:.4g})")

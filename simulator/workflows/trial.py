@@ -179,23 +179,26 @@ def summarise(name, estimates, uncertainties, truth, failures, *, compared=1):
     n = estimates.size
     mean = float(estimates.mean()) if n else math.nan
     spread = float(estimates.std(ddof=1)) if n > 1 else math.nan
-    if truth is None or n < MIN_TRIALS_FOR_VERDICT:
+    if truth is None or n == 0:
         return QuantityReport(name=name, truth=truth, trials=n, failures=failures, mean=mean,
                               spread=spread, bias=None, bias_error=None, rmse=None,
                               pull_mean=None, pull_width=None, coverage_1sigma=None,
                               coverage_2sigma=None, verdict="no truth to compare with"
-                              if truth is None else f"too few trials for a verdict "
-                              f"({n} < {MIN_TRIALS_FOR_VERDICT})")
+                              if truth is None else "no successful trial")
     pulls = (estimates - truth) / uncertainties
+    statistics = dict(
+        name=name, truth=float(truth), trials=n, failures=failures, mean=mean, spread=spread,
+        bias=float(mean - truth), bias_error=float(spread / math.sqrt(n)) if n > 1 else None,
+        rmse=float(np.sqrt(np.mean((estimates - truth) ** 2))),
+        pull_mean=float(pulls.mean()), pull_width=float(pulls.std(ddof=1)) if n > 1 else None,
+        coverage_1sigma=float(np.mean(np.abs(pulls) <= 1)),
+        coverage_2sigma=float(np.mean(np.abs(pulls) <= 2)))
+    if n < MIN_TRIALS_FOR_VERDICT:  # the statistics, but too few trials to test them
+        return QuantityReport(**statistics, verdict=f"too few trials for a verdict "
+                              f"({n} < {MIN_TRIALS_FOR_VERDICT})")
     tested = checks(estimates, uncertainties, truth, level_for(compared))
     return QuantityReport(
-        name=name, truth=float(truth), trials=n, failures=failures, mean=mean, spread=spread,
-        bias=float(mean - truth), bias_error=float(spread / math.sqrt(n)),
-        rmse=float(np.sqrt(np.mean((estimates - truth) ** 2))),
-        pull_mean=float(pulls.mean()), pull_width=float(pulls.std(ddof=1)),
-        coverage_1sigma=float(np.mean(np.abs(pulls) <= 1)),
-        coverage_2sigma=float(np.mean(np.abs(pulls) <= 2)),
-        verdict=tested.verdict, level=tested.level, bias_t=tested.bias_t,
+        **statistics, verdict=tested.verdict, level=tested.level, bias_t=tested.bias_t,
         bias_threshold=tested.bias_threshold, pull_width_interval=tested.pull_width_interval,
         coverage_1sigma_interval=tested.coverage_1sigma_interval,
         coverage_2sigma_interval=tested.coverage_2sigma_interval)
