@@ -54,6 +54,8 @@ frequency-noise density).
 Gorodetsky et al., Opt. Express 18, 23236 (2010) (phase-modulation calibration).
 """
 
+import dataclasses
+
 import numpy as np
 
 from simulator.model.laser_spectra import (  # noqa: F401  (the shapes are part of this module's API)
@@ -65,6 +67,7 @@ from simulator.model.laser_spectra import (  # noqa: F401  (the shapes are part 
 )
 from simulator.model.statespace import StateSpace
 from simulator.model.units import angular
+from simulator.scenario.tone_sections import PRIMARY_TONE, noise_lasers, noise_tables
 
 PREFIX = "laser."
 TONE_INPUT = "laser.tone"
@@ -72,11 +75,13 @@ _SQRT2 = np.sqrt(2.0)
 
 
 def is_quiet(scenario):
-    """True when neither the drive nor the local oscillator carries classical noise or a tone."""
+    """True when no tone, nor the local oscillator, carries classical noise, and the drive
+    no calibration tone."""
     d = scenario.drive
-    return all(x == type(x)() for x in (d.phase_noise, d.intensity_noise,
-                                        d.calibration_tone,
-                                        scenario.detection.local_oscillator_phase_noise))
+    tables = [d.phase_noise, d.intensity_noise, d.calibration_tone,
+              scenario.detection.local_oscillator_phase_noise]
+    tables += [x for t in scenario.tones for x in (t.phase_noise, t.intensity_noise)]
+    return all(x == type(x)() for x in tables)
 
 
 # -- the state-space model ----------------------------------------------------------
@@ -112,16 +117,15 @@ class _Blocks:
         self.states, self.inputs, self.sources, self.intensity = [], [], [], []
         self.a = np.zeros((0, 0))
         self.b = {}  # input index -> column over the laser states
-        self.cavity = {}  # input index -> cavity rows (X, Y)
-        self.output = {}  # input index -> output rows (X, Y)
+        self.cavity = {}  # input index -> [(field rows, (X, Y) column), ...]
+        self.output = {}  # input index -> [(output rows, (X, Y) column), ...]
 
-    def add_input(self, name, intensity, source, cavity=None, output=None):
+    def add_input(self, name, intensity, source):
         k = len(self.inputs)
         self.inputs.append(name)
         self.intensity.append(float(intensity))
         self.sources.append((source, k))
-        self.cavity[k] = np.zeros(2) if cavity is None else cavity
-        self.output[k] = np.zeros(2) if output is None else output
+        self.cavity[k], self.output[k] = [], []
         return k
 
     def add_states(self, names, a):
@@ -141,8 +145,63 @@ class _Blocks:
         self.b[k] = full
 
 
+@dataclasses.dataclass(frozen=True)
+class _Field:
+    """One tone's field in the model: its rows and the mean fields its noise rides on."""
+
+    name: str
+    rows: slice  # its cavity quadratures (X, Y) among the states
+    out: slice  # its output quadratures
+    alpha: float  # intracavity mean field, chosen real
+    a_in: complex  # incoming carrier ā_in (photon flux |ā_in|²)
+    a_out: complex  # reflected carrier ā_out = ā_in − √κ_ex ᾱ
+    root_kex: float  # √κ_ex of its cavity mode's port
+
+    @classmethod
+    def of(cls, name, rows, out, photons, kappa_hz, kappa_ex_hz, detuning_hz):
+        kappa, kappa_ex, delta = (float(x) for x in angular([kappa_hz, kappa_ex_hz,
+                                                             detuning_hz]))
+        alpha = np.sqrt(photons)
+        return cls(name, rows, out, alpha, alpha * (kappa / 2 - 1j * delta) / np.sqrt(kappa_ex),
+                   alpha * (kappa / 2 - kappa_ex - 1j * delta) / np.sqrt(kappa_ex),
+                   np.sqrt(kappa_ex))
+
+    @property
+    def port(self):
+        """Cavity rows of a phase modulation −iā_in φ entering through √κ_ex."""
+        return self.root_kex * _quad(-1j * self.a_in)
+
+    @property
+    def direct(self):
+        """Output rows of the promptly reflected phase modulation −iā_in φ."""
+        return _quad(-1j * self.a_in)
+
+
+def tone_fields(model, point):
+    """A :class:`_Field` per drive tone (the drive first), placed in ``model``."""
+    if not point.several_tones:
+        return [_Field.of(PRIMARY_TONE, slice(0, 2), slice(0, 2), point.photon_number,
+                          point.cavity_linewidth_hz, point.external_linewidth_hz,
+                          point.detuning_effective_hz)]
+    out = []
+    for k, tone in enumerate(point.tones):
+        cav = point.cavity_modes[tone.cavity_mode]
+        r = 0 if k == 0 else model.index(f"{tone.name}.X")
+        out.append(_Field.of(tone.name, slice(r, r + 2), slice(2 * k, 2 * k + 2),
+                             tone.photon_number, cav.linewidth_hz,
+                             cav.external_linewidth_hz, tone.detuning_effective_hz))
+    return out
+
+
+def _labels(laser):
+    """(name prefix, source label) of a laser's inputs, named by the tone it belongs to."""
+    if laser == PRIMARY_TONE:
+        return "laser.", lambda kind: f"laser {kind}"
+    return f"laser.tones.{laser}.", lambda kind: f"{kind} of tone {laser}"
+
+
 def laser_model(model, scenario, point):
-    """``model`` with the drive's classical noise, LO reference and tone appended.
+    """``model`` with every tone's classical noise, the LO reference and the tone appended.
 
     Parameters
     ----------
@@ -156,68 +215,106 @@ def laser_model(model, scenario, point):
     StateSpace
         New states ``laser.*`` after the mechanics, new inputs ``laser.*``
         after the baths; the outputs and the optomechanical ``coupling`` are
-        those of ``model``. See the module docstring for the equations. With
-        several tones the noise drives the drive's field and output only (the
-        first two states and outputs).
+        those of ``model``. See the module docstring for the equations. The
+        drive's noise is named ``laser.*``; that of a tone with a laser of its
+        own ``laser.tones.<tone>.*``. A laser's noise enters every tone made
+        by it (``noise_source``), each in its own frame and with its own mean
+        field; the local oscillator is referred to the laser of the detected
+        tone (``detection.tone``) and enters that tone's output only.
     """
-    noise, det = scenario.drive.phase_noise, scenario.detection
-    kappa, kappa_ex, delta = (float(x) for x in angular([
-        point.cavity_linewidth_hz, point.external_linewidth_hz, point.detuning_effective_hz]))
-    alpha = np.sqrt(point.photon_number)
-    a_in = alpha * (kappa / 2 - 1j * delta) / np.sqrt(kappa_ex)
-    a_out = alpha * (kappa / 2 - kappa_ex - 1j * delta) / np.sqrt(kappa_ex)
-    port, direct, ref = np.sqrt(kappa_ex) * _quad(-1j * a_in), _quad(-1j * a_in), _quad(
-        -1j * a_out)
+    det = scenario.detection
+    fields = tone_fields(model, point)
+    lasers = noise_lasers(scenario)
+    seen = next(f for f in fields if f.name == det.tone) if len(fields) > 1 else fields[0]
     blocks = _Blocks()
-    phase_rows = _stationary_shapes(blocks, noise, "laser.", "laser")  # φ_S = Σ C x
-    lo_rows = _stationary_shapes(blocks, det.local_oscillator_phase_noise, "laser.lo.",
-                                 "local-oscillator")  # its own φ_S,LO
-    source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
-    reference = None
-    if source == "common" and tau > 0:
-        reference = (blocks.add_states(["laser.reference"], [[-2.0 / tau]]), 2.0, 4.0 / tau)
-    elif source == "locked":
-        wb = float(angular(det.local_oscillator_lock_bandwidth_hz))
-        reference = (blocks.add_states(["laser.reference"], [[-wb]]), 1.0, wb)
-    if noise.linewidth_hz > 0:
-        k = blocks.add_input("laser.frequency", frequency_noise_density(noise.linewidth_hz),
-                             "laser frequency noise", cavity=_quad(1j * alpha))
-        if reference is not None:
-            blocks.drive(k, reference[0], reference[1])
-    rin = scenario.drive.intensity_noise.relative_intensity_noise_per_hz
+    phases, frequency = {}, {}  # laser -> [(state slice, C row)], its frequency input
+    intensities = _unique(lasers[f.name][1] for f in fields)
+    for laser in _unique(lasers[f.name][0] for f in fields):
+        prefix, label = _labels(laser)
+        phases[laser] = _stationary_shapes(blocks, noise_tables(scenario, laser)[0], prefix,
+                                           label)
+        if laser == PRIMARY_TONE:
+            lo_rows = _stationary_shapes(blocks, det.local_oscillator_phase_noise, "laser.lo.",
+                                         lambda kind: f"local-oscillator {kind}",
+                                         peak="phase-noise peak")
+            reference = _reference(blocks, det)
+    for laser in _unique(lasers[f.name][0] for f in fields):
+        prefix, label = _labels(laser)
+        linewidth = noise_tables(scenario, laser)[0].linewidth_hz
+        if linewidth > 0:
+            frequency[laser] = k = blocks.add_input(f"{prefix}frequency",
+                                                    frequency_noise_density(linewidth),
+                                                    label("frequency noise"))
+            for f in fields:
+                if lasers[f.name][0] == laser:
+                    blocks.cavity[k].append((f.rows, _quad(1j * f.alpha)))
+        if laser in intensities:
+            _intensity(blocks, scenario, laser, fields, lasers)
+        if laser == PRIMARY_TONE and scenario.drive.calibration_tone.depth_rad > 0:
+            k = blocks.add_input(TONE_INPUT, 0.0, "calibration tone")
+            blocks.cavity[k].append((fields[0].rows, fields[0].port))
+            blocks.output[k].append((fields[0].out, fields[0].direct))
+    for laser in intensities:
+        if laser not in phases:  # a tone's own intensity noise on a shared laser
+            _intensity(blocks, scenario, laser, fields, lasers)
+    own = lasers[seen.name][0]
+    if reference is not None and own in frequency:
+        blocks.drive(frequency[own], reference[0], reference[1])
+    return _assemble(model, blocks, fields, {f.name: phases[lasers[f.name][0]] for f in fields},
+                     lo_rows, reference, det, seen)
+
+
+def _intensity(blocks, scenario, laser, fields, lasers):
+    """Append ``laser``'s white intensity noise ε, entering as ā_in ε/2 every tone it reaches."""
+    rin = noise_tables(scenario, laser)[1].relative_intensity_noise_per_hz
     if rin > 0:
-        blocks.add_input("laser.intensity", rin / 2, "laser intensity noise",
-                         cavity=np.sqrt(kappa_ex) * _quad(a_in / 2), output=_quad(a_in / 2))
-    if scenario.drive.calibration_tone.depth_rad > 0:
-        blocks.add_input(TONE_INPUT, 0.0, "calibration tone", cavity=port, output=direct)
-    return _assemble(model, blocks, phase_rows, lo_rows, reference, source, tau,
-                     port=port, direct=direct, ref=ref,
-                     prompt=_quad(-1j * np.sqrt(kappa_ex) * alpha))
+        prefix, label = _labels(laser)
+        k = blocks.add_input(f"{prefix}intensity", rin / 2, label("intensity noise"))
+        for f in fields:
+            if lasers[f.name][1] == laser:
+                blocks.cavity[k].append((f.rows, f.root_kex * _quad(f.a_in / 2)))
+                blocks.output[k].append((f.out, _quad(f.a_in / 2)))
 
 
-def _stationary_shapes(blocks, noise, prefix, who):
-    """Append the floor and peak of ``noise``; return their (state slice, C row) pairs."""
+def _unique(names):
+    """``names`` in order of first appearance, each once."""
+    return list(dict.fromkeys(names))
+
+
+def _reference(blocks, det):
+    """The LO reference's state (common and delayed, or locked), or None: (rows, δω gain,
+    φ_S gain)."""
+    source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
+    if source == "common" and tau > 0:
+        return blocks.add_states(["laser.reference"], [[-2.0 / tau]]), 2.0, 4.0 / tau
+    if source == "locked":
+        wb = float(angular(det.local_oscillator_lock_bandwidth_hz))
+        return blocks.add_states(["laser.reference"], [[-wb]]), 1.0, wb
+    return None
+
+
+def _stationary_shapes(blocks, noise, prefix, label, peak="relaxation-oscillation peak"):
+    """Append the floor and peak of ``noise``; return their (state slice, C row) pairs.
+
+    Their sources are ``label("phase-noise floor")`` and ``label(peak)``."""
     rows_out = []
     if noise.floor_rad2_per_hz > 0:
         a, b, c = _floor_filter(noise)
         rows = blocks.add_states([f"{prefix}floor.{i}" for i in range(len(b))], a)
         k = blocks.add_input(f"{prefix}floor", noise.floor_rad2_per_hz / 2,
-                             f"{who} phase-noise floor")
+                             label("phase-noise floor"))
         blocks.drive(k, rows, b)
         rows_out.append((rows, c))
     if noise.peak_rad2_per_hz > 0:
         a, b, c = _peak_filter(noise)
         rows = blocks.add_states([f"{prefix}peak.0", f"{prefix}peak.1"], a)
-        k = blocks.add_input(f"{prefix}peak", noise.peak_rad2_per_hz / 2,
-                             f"{who} relaxation-oscillation peak" if who == "laser"
-                             else f"{who} phase-noise peak")
+        k = blocks.add_input(f"{prefix}peak", noise.peak_rad2_per_hz / 2, label(peak))
         blocks.drive(k, rows, b)
         rows_out.append((rows, c))
     return rows_out
 
 
-def _assemble(model, blocks, phase_rows, lo_rows, reference, source, tau, *, port, direct,
-              ref, prompt):
+def _assemble(model, blocks, fields, phase_rows, lo_rows, reference, det, seen):
     """One StateSpace from the base model and the laser blocks."""
     n0, m0 = len(model.states), len(model.inputs)
     nl, ml = len(blocks.states), len(blocks.inputs)
@@ -231,28 +328,36 @@ def _assemble(model, blocks, phase_rows, lo_rows, reference, source, tau, *, por
     c[:, :n0] = model.C
     d = np.zeros((len(model.outputs), m))
     d[:, :m0] = model.D
-    drive = slice(0, 2)  # the drive's field and output (several tones: the first of each)
     for k in range(ml):
-        b[drive, m0 + k] = blocks.cavity[k]
-        d[drive, m0 + k] = blocks.output[k]
+        for rows, column in blocks.cavity[k]:
+            b[rows, m0 + k] = column
+        for rows, column in blocks.output[k]:
+            d[rows, m0 + k] = column
         if k in blocks.b:
             b[n0:n0 + blocks.b[k].size, m0 + k] = blocks.b[k]
-    phase = np.zeros(nl)  # φ_S as a row over the laser states
-    for rows, row in phase_rows:
-        phase[rows] = row
-    a[drive, n0:] = np.outer(port, phase)
-    if source == "common" and tau == 0:
-        c[drive, n0:] += np.outer(prompt, phase)  # −iā_in φ_S + iā_out φ_S = −i√κ_ex ᾱ φ_S
-    elif reference is None:
-        c[drive, n0:] += np.outer(direct, phase)
-    else:
-        rows, _, gain = reference
-        r = rows.start
-        a[n0 + r, n0:] += -gain * phase
-        c[drive, n0 + r] += ref
-        c[drive, n0:] += np.outer(direct + (ref if source == "common" else 0.0), phase)
-    for rows, row in lo_rows:  # ρ gains −φ_S,LO: the measured field gains +iā_out φ_S,LO
-        c[drive, n0 + rows.start:n0 + rows.stop] -= np.outer(ref, row)
+    source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
+    for f in fields:
+        phase = np.zeros(nl)  # φ_S of the tone's laser as a row over the laser states
+        for rows, row in phase_rows[f.name]:
+            phase[rows] = row
+        a[f.rows, n0:] = np.outer(f.port, phase)
+        ref = _quad(-1j * f.a_out)
+        if f is not seen:  # a tone nobody demodulates: its field in its laser's frame
+            c[f.out, n0:] += np.outer(f.direct, phase)
+        elif source == "common" and tau == 0:
+            # −iā_in φ_S + iā_out φ_S = −i√κ_ex ᾱ φ_S
+            c[f.out, n0:] += np.outer(_quad(-1j * f.root_kex * f.alpha), phase)
+        elif reference is None:
+            c[f.out, n0:] += np.outer(f.direct, phase)
+        else:
+            rows, _, gain = reference
+            r = rows.start
+            a[n0 + r, n0:] += -gain * phase
+            c[f.out, n0 + r] += ref
+            c[f.out, n0:] += np.outer(f.direct + (ref if source == "common" else 0.0), phase)
+        if f is seen:
+            for rows, row in lo_rows:  # ρ gains −φ_S,LO: the measured field gains +iā_out φ_S,LO
+                c[f.out, n0 + rows.start:n0 + rows.stop] -= np.outer(ref, row)
     n_total = np.zeros((m, m))
     n_total[:m0, :m0] = model.N
     n_total[m0:, m0:] = np.diag(blocks.intensity)

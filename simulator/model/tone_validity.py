@@ -44,19 +44,6 @@ class ToneSpacingWarning(UserWarning):
     """Two tones on one cavity mode sit close to a mechanical combination frequency."""
 
 
-def require_quiet_tones(scenario):
-    """Refuse classical noise on the added tones: not modelled yet."""
-    for i, tone in enumerate(scenario.tones):
-        if not tone.quiet:
-            what = ("shares the drive's noise" if tone.noise_source == "drive"
-                    else "has its own phase or intensity noise")
-            raise ScenarioError(
-                f"tone {tone.name!r} {what}; classical noise on [[tones]] is not yet "
-                "supported by the linear model (only the [drive] tone may carry it); "
-                'expected noise_source = "own" without phase_noise or intensity_noise '
-                "tables", key=f"tones[{i}]", source=scenario.source)
-
-
 def mechanical_width(point):
     """w (rad/s): the largest effective mechanical linewidth, weak coupling, summed over tones."""
     widest = 0.0
