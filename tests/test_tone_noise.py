@@ -264,3 +264,27 @@ def test_a_record_of_a_probe_with_shared_noise_matches_its_spectrum():
     assert abs(ratio.mean() - 1.0) < 5.0 / np.sqrt(k * m)
     z = (k * np.sum((ratio - 1.0) ** 2) - m) / np.sqrt(m * (2.0 + 6.0 / k))
     assert abs(z) < 5.0
+
+
+def test_an_independent_oscillator_refuses_the_detected_tones_random_walk():
+    """White frequency noise on the detected tone's laser with an independent local
+    oscillator has no stationary beat (docs/laser-noise.md): refused, naming the table
+    of the laser that makes the detected tone, own or shared."""
+    from simulator.errors import ScenarioError
+
+    walk = noise_tables({"linewidth_hz": 100.0}, 0.0)
+    own = two_tones(tone_noise=walk)
+    with pytest.raises(ScenarioError, match="random walk") as info:
+        own.replace("detection.tone", "probe").replace(
+            "detection.local_oscillator_source", "independent")
+    assert info.value.key == "tones[0].phase_noise.linewidth_hz"
+    shared = two_tones(drive_noise=noise_tables({"linewidth_hz": 100.0}, 0.0, "drive"),
+                       tone_noise='noise_source = "drive"\n', detected="probe")
+    with pytest.raises(ScenarioError, match="random walk") as info:
+        shared.replace("detection.local_oscillator_source", "independent")
+    assert info.value.key == "drive.phase_noise.linewidth_hz"
+    # the drive's laser free-running is no obstacle when the probe has a clean laser
+    quiet_probe = two_tones(drive_noise=noise_tables({"linewidth_hz": 100.0}, 0.0, "drive"),
+                            detected="probe").replace("detection.local_oscillator_source",
+                                                      "independent")
+    assert steady_state(quiet_probe).modes[0].occupation > 0

@@ -38,9 +38,10 @@ def occupation_report(system, steady):
     Returns
     -------
     tuple of dict
-        ``laser_input_occupation`` (η_c n_c at the mode frequency of the
-        detected tone, see :func:`simulator.model.laser_spectra.input_occupation`), ``laser_noise_excess_occupation`` (exact
-        occupation minus that of the same scenario without laser noise) and,
+        ``laser_input_occupation`` (η_c n_c at the mode frequency, of the
+        detected tone, see :func:`simulator.model.laser_spectra.input_occupation`),
+        ``laser_noise_excess_occupation`` (exact occupation minus that of the
+        same scenario without laser noise) and,
         for heterodyne detection, ``apparent_occupation_from_asymmetry`` (the
         sideband-ratio occupation of :func:`simulator.linear.sidebands.sideband_summary`,
         which laser noise biases: the classical noise the detector sees
