@@ -288,3 +288,17 @@ def test_an_independent_oscillator_refuses_the_detected_tones_random_walk():
                             detected="probe").replace("detection.local_oscillator_source",
                                                       "independent")
     assert steady_state(quiet_probe).modes[0].occupation > 0
+
+
+def test_tone_noise_round_trips_and_is_derived_by_path():
+    """The tone's noise tables and its laser survive to_toml → parse, and are scenario
+    paths (sweeps and plans take them like any other)."""
+    scenario = two_tones(drive_noise=noise_tables(FLOOR, 1e-12, "drive"),
+                         tone_noise='noise_source = "drive"\n' + noise_tables({}, 2e-12))
+    assert parse_scenario(scenario.to_toml()) == scenario
+    own = scenario.replace("tones[0].noise_source", "own")
+    assert own.tones[0].noise_source == "own"
+    assert excess(own) != pytest.approx(excess(scenario), rel=1e-3)  # the phase noise left
+    path = "tones[0].intensity_noise.relative_intensity_noise_per_hz"
+    e0, e2, e4 = (excess(own.replace(path, rin)) for rin in (0.0, 2e-12, 4e-12))
+    assert e4 - e2 == pytest.approx(e2 - e0, rel=1e-8) and e2 > e0  # linear in the RIN

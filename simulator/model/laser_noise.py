@@ -38,6 +38,16 @@ The tone is on the drive path only (the electro-optic modulator sits after
 the LO is split off), so the LO never carries it. LO intensity noise is
 cancelled by balanced detection (common practice) and not modelled.
 
+With several tones (``[[tones]]``) every tone is made by a laser: its own
+(``noise_source = "own"``, its tables) or another tone's (the same φ and, unless
+it has its own intensity table, the same ε; :func:`simulator.scenario.tone_sections.noise_lasers`).
+Each laser's inputs and filters are built once, named after the tone that owns
+it (``laser.*`` for the drive, ``laser.tones.<tone>.*``), and enter every tone
+it makes with that tone's own ᾱ, ā_in and ā_out, in that tone's frame. The
+LO reference above is taken from the laser of the detected tone
+(``detection.tone``) and enters that tone's output; the output of a tone not
+demodulated is its field in its own laser's frame (ρ = 0, no LO).
+
 Every classical input is a white input of the model, named ``laser.*``, with
 its own two-sided intensity (no vacuum ½); the tone input has intensity 0
 and is used only through its transfer function (lines in spectra, a
@@ -225,20 +235,22 @@ def laser_model(model, scenario, point):
     det = scenario.detection
     fields = tone_fields(model, point)
     lasers = noise_lasers(scenario)
-    seen = next(f for f in fields if f.name == det.tone) if len(fields) > 1 else fields[0]
+    seen = next(f for f in fields if f.name == det.tone)  # the detected tone
     blocks = _Blocks()
-    phases, frequency = {}, {}  # laser -> [(state slice, C row)], its frequency input
+    phase_lasers = _unique(lasers[f.name][0] for f in fields)  # the drive's first
     intensities = _unique(lasers[f.name][1] for f in fields)
-    for laser in _unique(lasers[f.name][0] for f in fields):
-        prefix, label = _labels(laser)
-        phases[laser] = _stationary_shapes(blocks, noise_tables(scenario, laser)[0], prefix,
-                                           label)
-        if laser == PRIMARY_TONE:
-            lo_rows = _stationary_shapes(blocks, det.local_oscillator_phase_noise, "laser.lo.",
-                                         lambda kind: f"local-oscillator {kind}",
-                                         peak="phase-noise peak")
-            reference = _reference(blocks, det)
-    for laser in _unique(lasers[f.name][0] for f in fields):
+    # states: the drive's shapes, the LO's and its reference (their one-tone places), then
+    # the shapes of the tones' own lasers
+    phases = {PRIMARY_TONE: _stationary_shapes(blocks, scenario.drive.phase_noise, "laser.",
+                                               _labels(PRIMARY_TONE)[1])}
+    lo_rows = _stationary_shapes(blocks, det.local_oscillator_phase_noise, "laser.lo.",
+                                 lambda kind: f"local-oscillator {kind}", peak="phase-noise peak")
+    reference = _reference(blocks, det)
+    for laser in phase_lasers[1:]:
+        phases[laser] = _stationary_shapes(blocks, noise_tables(scenario, laser)[0],
+                                           *_labels(laser))
+    frequency = {}  # laser -> its frequency input
+    for laser in phase_lasers:
         prefix, label = _labels(laser)
         linewidth = noise_tables(scenario, laser)[0].linewidth_hz
         if linewidth > 0:
