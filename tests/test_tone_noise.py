@@ -17,7 +17,7 @@ from simulator.linear.laser_effects import without_laser_noise
 from simulator.linear.record_budget import digitiser_spectrum
 from simulator.linear.spectra import heterodyne_spectrum
 from simulator.linear.steady_state import steady_state
-from simulator.model.laser_spectra import floor_shape, tone_input_occupation
+from simulator.model.laser_spectra import floor_shape, tone_densities, tone_input_occupation
 from simulator.model.system import System
 from simulator.model.units import angular
 from simulator.scenario.loader import parse_scenario, scenario_from_dict
@@ -75,7 +75,8 @@ def test_a_tones_laser_noise_heats_as_the_weak_coupling_rate(name, where):
     (2013)), the form tests/test_laser_noise.py checks for the drive, rates added over
     tones (Aspelmeyer, Kippenberg & Marquardt, Rev. Mod. Phys. 86, 1391 (2014), Sec. VII).
     The tone sits at −Ωm on an identical second mode, or on the drive's mode with the
-    drive 400 kHz (thousands of mechanical widths) above it. Off the sideband the term
+    drive 400 kHz (thousands of mechanical widths) above it; there the tone's white
+    intensity noise is also input noise in the drive's bands. Off the sideband the term
     in σ² that this form drops grows (tone_rates.classical_heating keeps it)."""
     shapes, rin = NOISE[name]
     drive_detuning = -OMEGA_HZ if where == "twin" else -OMEGA_HZ + 4e5
@@ -93,9 +94,14 @@ def test_a_tones_laser_noise_heats_as_the_weak_coupling_rate(name, where):
                                                          frequency=om)
         n_c = tone_input_occupation(scenario, tone.name, tone.input_photon_flux,
                                     m.frequency_hz)
+        assert (n_c > 0) == (tone.name == "probe")
+        # white intensity noise of another tone on the mode is input noise in this
+        # tone's bands too: Φ_l S̄_εε/4, phase-insensitive there
+        n_c += sum(other.input_photon_flux * tone_densities(scenario, other.name, m.frequency_hz)[1] / 4
+                   for other in point.tones
+                   if other is not tone and other.cavity_mode == tone.cavity_mode)
         down, up, heating = down + a_minus, up + a_plus, heating + (a_minus + a_plus) * (
             kex / kappa) * n_c
-        assert (n_c > 0) == (tone.name == "probe")
     formula = (gm * m.bath_occupation + up + heating) / (gm + down - up)
     steady = steady_state(system)
     assert excess(scenario) > 0.05 * steady.modes[0].occupation  # the noise heats visibly

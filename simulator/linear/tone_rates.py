@@ -107,4 +107,27 @@ def classical_heating(scenario, point, j):
     for (laser, kind), c in forces.items():
         s_phi, s_eps = tone_densities(scenario, laser, mode.frequency_hz)
         total += 0.5 * float(s_phi if kind == "phase" else s_eps) * float(np.sum(np.abs(c) ** 2))
+    return total + _crossed_intensity_heating(scenario, point, j)
+
+
+def _crossed_intensity_heating(scenario, point, j):
+    """Heating (1/s) by white intensity noise of tone l in the bands of tone k on its mode:
+    (A−,k + A+,k) η_c Σ_l Φ_l S̄_εε,l/4, a phase-insensitive input occupation
+    (:func:`simulator.model.laser_noise.laser_model`)."""
+    from simulator.model.laser_spectra import tone_densities
+
+    om = float(angular(point.modes[j].frequency_hz))
+    total = 0.0
+    for k, tone in enumerate(point.tones):
+        occupation = sum(other.input_photon_flux * tone_densities(
+            scenario, other.name, point.modes[j].frequency_hz)[1] / 4
+            for m, other in enumerate(point.tones)
+            if m != k and other.cavity_mode == tone.cavity_mode)
+        if occupation > 0:
+            cav = point.cavity_modes[tone.cavity_mode]
+            kappa, kex, delta, g = (float(x) for x in angular([
+                cav.linewidth_hz, cav.external_linewidth_hz, tone.detuning_effective_hz,
+                tone.coupling_rates_hz[j]]))
+            down, up = scattering_rates(g=g, kappa=kappa, detuning=delta, frequency=om)
+            total += (down + up) * kex / kappa * occupation
     return total

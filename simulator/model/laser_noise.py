@@ -160,6 +160,7 @@ class _Field:
     """One tone's field in the model: its rows and the mean fields its noise rides on."""
 
     name: str
+    mode: int  # index of its cavity mode
     rows: slice  # its cavity quadratures (X, Y) among the states
     out: slice  # its output quadratures
     alpha: float  # intracavity mean field, chosen real
@@ -168,11 +169,11 @@ class _Field:
     root_kex: float  # √κ_ex of its cavity mode's port
 
     @classmethod
-    def of(cls, name, rows, out, photons, kappa_hz, kappa_ex_hz, detuning_hz):
+    def of(cls, name, mode, rows, out, photons, kappa_hz, kappa_ex_hz, detuning_hz):
         kappa, kappa_ex, delta = (float(x) for x in angular([kappa_hz, kappa_ex_hz,
                                                              detuning_hz]))
         alpha = np.sqrt(photons)
-        return cls(name, rows, out, alpha, alpha * (kappa / 2 - 1j * delta) / np.sqrt(kappa_ex),
+        return cls(name, mode, rows, out, alpha, alpha * (kappa / 2 - 1j * delta) / np.sqrt(kappa_ex),
                    alpha * (kappa / 2 - kappa_ex - 1j * delta) / np.sqrt(kappa_ex),
                    np.sqrt(kappa_ex))
 
@@ -190,14 +191,15 @@ class _Field:
 def tone_fields(model, point):
     """A :class:`_Field` per drive tone (the drive first), placed in ``model``."""
     if not point.several_tones:
-        return [_Field.of(PRIMARY_TONE, slice(0, 2), slice(0, 2), point.photon_number,
+        return [_Field.of(PRIMARY_TONE, 0, slice(0, 2), slice(0, 2), point.photon_number,
                           point.cavity_linewidth_hz, point.external_linewidth_hz,
                           point.detuning_effective_hz)]
     out = []
     for k, tone in enumerate(point.tones):
         cav = point.cavity_modes[tone.cavity_mode]
         r = 0 if k == 0 else model.index(f"{tone.name}.X")
-        out.append(_Field.of(tone.name, slice(r, r + 2), slice(2 * k, 2 * k + 2),
+        out.append(_Field.of(tone.name, tone.cavity_mode, slice(r, r + 2),
+                             slice(2 * k, 2 * k + 2),
                              tone.photon_number, cav.linewidth_hz,
                              cav.external_linewidth_hz, tone.detuning_effective_hz))
     return out
@@ -277,15 +279,31 @@ def laser_model(model, scenario, point):
 
 
 def _intensity(blocks, scenario, laser, fields, lasers):
-    """Append ``laser``'s white intensity noise ε, entering as ā_in ε/2 every tone it reaches."""
+    """Append ``laser``'s white intensity noise ε, entering as ā_in ε/2 every tone it reaches.
+
+    ε is white, so a tone l it reaches also puts noise into the band of every
+    other tone k on its cavity mode, at k's carrier ± Ωm, ω_k − ω_l ± Ωm from
+    its own. In k's frame that noise rotates at the spacing; kept to the
+    per-tone model's order (terms rotating at the spacing dropped) it is a
+    phase-insensitive white input of occupation Σ_l Φ_l S̄_εε/4 on both of
+    k's quadratures, independent of the rest (other frequencies of ε), with
+    the same source name.
+    """
     rin = noise_tables(scenario, laser)[1].relative_intensity_noise_per_hz
     if rin > 0:
         prefix, label = _labels(laser)
         k = blocks.add_input(f"{prefix}intensity", rin / 2, label("intensity noise"))
+        reached = [f for f in fields if lasers[f.name][1] == laser]
+        for f in reached:
+            blocks.cavity[k].append((f.rows, f.root_kex * _quad(f.a_in / 2)))
+            blocks.output[k].append((f.out, _quad(f.a_in / 2)))
         for f in fields:
-            if lasers[f.name][1] == laser:
-                blocks.cavity[k].append((f.rows, f.root_kex * _quad(f.a_in / 2)))
-                blocks.output[k].append((f.out, _quad(f.a_in / 2)))
+            level = sum(abs(o.a_in) ** 2 for o in reached if o is not f and o.mode == f.mode)
+            for x, unit in (("X", [1.0, 0.0]), ("Y", [0.0, 1.0])) if level > 0 else ():
+                k = blocks.add_input(f"{prefix}intensity.{f.name}.{x}", level * rin / 8,
+                                     label("intensity noise"))
+                blocks.cavity[k].append((f.rows, f.root_kex * np.array(unit)))
+                blocks.output[k].append((f.out, np.array(unit)))
 
 
 def _unique(names):
@@ -375,7 +393,10 @@ def _assemble(model, blocks, fields, phase_rows, lo_rows, reference, det, seen):
     n_total[m0:, m0:] = np.diag(blocks.intensity)
     coupling = np.zeros((n, n))
     coupling[:n0, :n0] = model.coupling
-    sources = tuple(model.sources) + tuple((name, (m0 + k,)) for name, k in blocks.sources)
+    merged = {}  # one source per name: a noise may have several inputs
+    for name, k in blocks.sources:
+        merged[name] = merged.get(name, ()) + (m0 + k,)
+    sources = tuple(model.sources) + tuple(merged.items())
     return StateSpace(A=a, B=b, N=n_total, C=c, D=d, states=model.states + tuple(
         blocks.states), inputs=model.inputs + tuple(blocks.inputs), outputs=model.outputs,
         sources=sources, coupling=coupling)
