@@ -97,7 +97,8 @@ def test_a_tones_laser_noise_heats_as_the_weak_coupling_rate(name, where):
         assert (n_c > 0) == (tone.name == "probe")
         # white intensity noise of another tone on the mode is input noise in this
         # tone's bands too: Φ_l S̄_εε/4, phase-insensitive there
-        n_c += sum(other.input_photon_flux * tone_densities(scenario, other.name, m.frequency_hz)[1] / 4
+        n_c += sum(other.input_photon_flux
+                   * tone_densities(scenario, other.name, m.frequency_hz)[1] / 4
                    for other in point.tones
                    if other is not tone and other.cavity_mode == tone.cavity_mode)
         down, up, heating = down + a_minus, up + a_plus, heating + (a_minus + a_plus) * (

@@ -68,6 +68,7 @@ import dataclasses
 
 import numpy as np
 
+from simulator.model.laser_blocks import Blocks, quad, stationary_shapes
 from simulator.model.laser_spectra import (  # noqa: F401  (the shapes are part of this module's API)
     floor_shape,
     frequency_noise_density,
@@ -81,7 +82,6 @@ from simulator.scenario.tone_sections import PRIMARY_TONE, noise_lasers, noise_t
 
 PREFIX = "laser."
 TONE_INPUT = "laser.tone"
-_SQRT2 = np.sqrt(2.0)
 
 
 def is_quiet(scenario):
@@ -95,65 +95,6 @@ def is_quiet(scenario):
 
 
 # -- the state-space model ----------------------------------------------------------
-
-def _quad(c):
-    """Quadratures (X, Y) = √2 (Re, Im) of a complex field amplitude."""
-    return _SQRT2 * np.array([np.real(c), np.imag(c)])
-
-
-def _floor_filter(noise):
-    """(A, B, C) with φ = C x for white input: Butterworth high-pass then low-pass."""
-    wh = float(angular(noise.floor_high_hz))
-    low = ([[0.0, wh], [-wh, -_SQRT2 * wh]], [0.0, wh], [1.0, 0.0])
-    if noise.floor_low_hz == 0:
-        return tuple(np.array(x) for x in low)
-    wl = float(angular(noise.floor_low_hz))
-    a = np.array([[0.0, wl, 0.0, 0.0], [-wl, -_SQRT2 * wl, 0.0, 0.0],
-                  [0.0, 0.0, 0.0, wh], [-wh, -_SQRT2 * wh, -wh, -_SQRT2 * wh]])
-    return a, np.array([0.0, wl, 0.0, wh]), np.array([0.0, 0.0, 1.0, 0.0])
-
-
-def _peak_filter(noise):
-    """(A, B, C) of γ s/(s² + γ s + ω0²), states (ω0 z, dz/dt)."""
-    w0, gamma = (float(x) for x in angular([noise.peak_frequency_hz, noise.peak_width_hz]))
-    return (np.array([[0.0, w0], [-w0, -gamma]]), np.array([0.0, 1.0]),
-            np.array([0.0, gamma]))
-
-
-class _Blocks:
-    """Laser states and inputs being appended to a model, with their couplings."""
-
-    def __init__(self):
-        self.states, self.inputs, self.sources, self.intensity = [], [], [], []
-        self.a = np.zeros((0, 0))
-        self.b = {}  # input index -> column over the laser states
-        self.cavity = {}  # input index -> [(field rows, (X, Y) column), ...]
-        self.output = {}  # input index -> [(output rows, (X, Y) column), ...]
-
-    def add_input(self, name, intensity, source):
-        k = len(self.inputs)
-        self.inputs.append(name)
-        self.intensity.append(float(intensity))
-        self.sources.append((source, k))
-        self.cavity[k], self.output[k] = [], []
-        return k
-
-    def add_states(self, names, a):
-        n = len(self.states)
-        self.states += list(names)
-        grown = np.zeros((n + len(names),) * 2)
-        grown[:n, :n] = self.a
-        grown[n:, n:] = a
-        self.a = grown
-        return slice(n, n + len(names))
-
-    def drive(self, k, rows, column):
-        col = self.b.setdefault(k, np.zeros(0))
-        full = np.zeros(len(self.states))
-        full[:col.size] = col
-        full[rows] += column
-        self.b[k] = full
-
 
 @dataclasses.dataclass(frozen=True)
 class _Field:
@@ -173,19 +114,19 @@ class _Field:
         kappa, kappa_ex, delta = (float(x) for x in angular([kappa_hz, kappa_ex_hz,
                                                              detuning_hz]))
         alpha = np.sqrt(photons)
-        return cls(name, mode, rows, out, alpha, alpha * (kappa / 2 - 1j * delta) / np.sqrt(kappa_ex),
-                   alpha * (kappa / 2 - kappa_ex - 1j * delta) / np.sqrt(kappa_ex),
-                   np.sqrt(kappa_ex))
+        root = np.sqrt(kappa_ex)
+        return cls(name, mode, rows, out, alpha, alpha * (kappa / 2 - 1j * delta) / root,
+                   alpha * (kappa / 2 - kappa_ex - 1j * delta) / root, root)
 
     @property
     def port(self):
         """Cavity rows of a phase modulation −iā_in φ entering through √κ_ex."""
-        return self.root_kex * _quad(-1j * self.a_in)
+        return self.root_kex * quad(-1j * self.a_in)
 
     @property
     def direct(self):
         """Output rows of the promptly reflected phase modulation −iā_in φ."""
-        return _quad(-1j * self.a_in)
+        return quad(-1j * self.a_in)
 
 
 def tone_fields(model, point):
@@ -238,18 +179,18 @@ def laser_model(model, scenario, point):
     fields = tone_fields(model, point)
     lasers = noise_lasers(scenario)
     seen = next(f for f in fields if f.name == det.tone)  # the detected tone
-    blocks = _Blocks()
+    blocks = Blocks()
     phase_lasers = _unique(lasers[f.name][0] for f in fields)  # the drive's first
     intensities = _unique(lasers[f.name][1] for f in fields)
     # states: the drive's shapes, the LO's and its reference (their one-tone places), then
     # the shapes of the tones' own lasers
-    phases = {PRIMARY_TONE: _stationary_shapes(blocks, scenario.drive.phase_noise, "laser.",
+    phases = {PRIMARY_TONE: stationary_shapes(blocks, scenario.drive.phase_noise, "laser.",
                                                _labels(PRIMARY_TONE)[1])}
-    lo_rows = _stationary_shapes(blocks, det.local_oscillator_phase_noise, "laser.lo.",
+    lo_rows = stationary_shapes(blocks, det.local_oscillator_phase_noise, "laser.lo.",
                                  lambda kind: f"local-oscillator {kind}", peak="phase-noise peak")
     reference = _reference(blocks, det)
     for laser in phase_lasers[1:]:
-        phases[laser] = _stationary_shapes(blocks, noise_tables(scenario, laser)[0],
+        phases[laser] = stationary_shapes(blocks, noise_tables(scenario, laser)[0],
                                            *_labels(laser))
     frequency = {}  # laser -> its frequency input
     for laser in phase_lasers:
@@ -261,7 +202,7 @@ def laser_model(model, scenario, point):
                                                     label("frequency noise"))
             for f in fields:
                 if lasers[f.name][0] == laser:
-                    blocks.cavity[k].append((f.rows, _quad(1j * f.alpha)))
+                    blocks.cavity[k].append((f.rows, quad(1j * f.alpha)))
         if laser in intensities:
             _intensity(blocks, scenario, laser, fields, lasers)
         if laser == PRIMARY_TONE and scenario.drive.calibration_tone.depth_rad > 0:
@@ -295,8 +236,8 @@ def _intensity(blocks, scenario, laser, fields, lasers):
         k = blocks.add_input(f"{prefix}intensity", rin / 2, label("intensity noise"))
         reached = [f for f in fields if lasers[f.name][1] == laser]
         for f in reached:
-            blocks.cavity[k].append((f.rows, f.root_kex * _quad(f.a_in / 2)))
-            blocks.output[k].append((f.out, _quad(f.a_in / 2)))
+            blocks.cavity[k].append((f.rows, f.root_kex * quad(f.a_in / 2)))
+            blocks.output[k].append((f.out, quad(f.a_in / 2)))
         for f in fields:
             level = sum(abs(o.a_in) ** 2 for o in reached if o is not f and o.mode == f.mode)
             for x, unit in (("X", [1.0, 0.0]), ("Y", [0.0, 1.0])) if level > 0 else ():
@@ -321,27 +262,6 @@ def _reference(blocks, det):
         wb = float(angular(det.local_oscillator_lock_bandwidth_hz))
         return blocks.add_states(["laser.reference"], [[-wb]]), 1.0, wb
     return None
-
-
-def _stationary_shapes(blocks, noise, prefix, label, peak="relaxation-oscillation peak"):
-    """Append the floor and peak of ``noise``; return their (state slice, C row) pairs.
-
-    Their sources are ``label("phase-noise floor")`` and ``label(peak)``."""
-    rows_out = []
-    if noise.floor_rad2_per_hz > 0:
-        a, b, c = _floor_filter(noise)
-        rows = blocks.add_states([f"{prefix}floor.{i}" for i in range(len(b))], a)
-        k = blocks.add_input(f"{prefix}floor", noise.floor_rad2_per_hz / 2,
-                             label("phase-noise floor"))
-        blocks.drive(k, rows, b)
-        rows_out.append((rows, c))
-    if noise.peak_rad2_per_hz > 0:
-        a, b, c = _peak_filter(noise)
-        rows = blocks.add_states([f"{prefix}peak.0", f"{prefix}peak.1"], a)
-        k = blocks.add_input(f"{prefix}peak", noise.peak_rad2_per_hz / 2, label(peak))
-        blocks.drive(k, rows, b)
-        rows_out.append((rows, c))
-    return rows_out
 
 
 def _assemble(model, blocks, fields, phase_rows, lo_rows, reference, det, seen):
@@ -371,12 +291,12 @@ def _assemble(model, blocks, fields, phase_rows, lo_rows, reference, det, seen):
         for rows, row in phase_rows[f.name]:
             phase[rows] = row
         a[f.rows, n0:] = np.outer(f.port, phase)
-        ref = _quad(-1j * f.a_out)
+        ref = quad(-1j * f.a_out)
         if f is not seen:  # a tone nobody demodulates: its field in its laser's frame
             c[f.out, n0:] += np.outer(f.direct, phase)
         elif source == "common" and tau == 0:
             # −iā_in φ_S + iā_out φ_S = −i√κ_ex ᾱ φ_S
-            c[f.out, n0:] += np.outer(_quad(-1j * f.root_kex * f.alpha), phase)
+            c[f.out, n0:] += np.outer(quad(-1j * f.root_kex * f.alpha), phase)
         elif reference is None:
             c[f.out, n0:] += np.outer(f.direct, phase)
         else:
