@@ -49,6 +49,7 @@ class Blocks:
         self.output = {}  # input index -> [(output rows, (X, Y) column), ...]
 
     def add_input(self, name, intensity, source):
+        """Append a white input (two-sided ``intensity``) of ``source``; its index."""
         k = len(self.inputs)
         self.inputs.append(name)
         self.intensity.append(float(intensity))
@@ -57,6 +58,7 @@ class Blocks:
         return k
 
     def add_states(self, names, a):
+        """Append states ``names`` with their own drift ``a``; their slice."""
         n = len(self.states)
         self.states += list(names)
         grown = np.zeros((n + len(names),) * 2)
@@ -66,6 +68,7 @@ class Blocks:
         return slice(n, n + len(names))
 
     def drive(self, k, rows, column):
+        """Let input ``k`` drive the states ``rows`` through ``column``."""
         col = self.b.setdefault(k, np.zeros(0))
         full = np.zeros(len(self.states))
         full[:col.size] = col
