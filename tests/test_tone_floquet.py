@@ -37,8 +37,11 @@ from simulator.model.units import angular
 from simulator.scenario.loader import parse_scenario
 
 
-def exact_periodic(system, *, average=True):
-    """Covariance of the drum from the periodic reference, frame of the drive."""
+def exact_periodic(system, *, average=True, noise=None):
+    """Covariance of the drum from the periodic reference, frame of the drive.
+
+    ``noise(t, fields)``, if given, adds a periodic diffusion (n, n) at time t, with
+    ``fields`` the reference's cavity fields (their tones' amplitudes and offsets)."""
     point = system.point
     fields = []
     for c, cav in enumerate(point.cavity_modes):
@@ -61,8 +64,14 @@ def exact_periodic(system, *, average=True):
     drift, n = optomechanical_drift(fields, mech)
     offsets = sorted({abs(nu) for f in fields for _, nu in f["tones"] if nu != 0})
     period = 2 * np.pi / offsets[0]
-    v = periodic_covariance(drift, optomechanical_diffusion(fields, mech), period, n,
-                            samples=16, average=average)
+    diffusion = optomechanical_diffusion(fields, mech)
+    if noise is not None:
+        constant = diffusion
+
+        def diffusion(t):
+            return constant + noise(t, fields)
+
+    v = periodic_covariance(drift, diffusion, period, n, samples=16, average=average)
     return v, 2 * len(fields)
 
 

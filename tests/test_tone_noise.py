@@ -7,6 +7,8 @@ scaling of a shared (fully correlated) noise against independent noises, and
 a record's Welch estimate against the analytic spectrum.
 """
 
+import dataclasses
+
 import numpy as np
 import pytest
 from tone_scenarios import OMEGA_HZ, scenario_text, second_mode, tone_table
@@ -309,3 +311,45 @@ def test_tone_noise_round_trips_and_is_derived_by_path():
     path = "tones[0].intensity_noise.relative_intensity_noise_per_hz"
     e0, e2, e4 = (excess(own.replace(path, rin)) for rin in (0.0, 2e-12, 4e-12))
     assert e4 - e2 == pytest.approx(e2 - e0, rel=1e-8) and e2 > e0  # linear in the RIN
+
+
+def test_white_intensity_noise_of_a_tone_on_one_mode_against_the_exact_periodic_state():
+    """Cooling drive at −Ωm and a probe on the same mode at −Ωm/2 with white intensity
+    noise. In the drive's frame the probe's noise enters as (ā_in/2) e^(−iνt) ε(t), a
+    periodic input; the exact periodic steady state (tests/periodic_linear.py, Floquet
+    theory) agrees with the per-tone model, which must count that white noise also in
+    the drive's bands (a phase-insensitive input there): without that term the model
+    would miss most of the heating."""
+    from test_tone_floquet import exact_periodic
+    from tone_scenarios import mechanical_occupation
+
+    rin = 1e-9
+    scenario = two_tones(tone_noise=noise_tables({}, rin), mode="cavity",
+                         detuning_hz=-0.5 * OMEGA_HZ, drive_photons=1e4, tone_photons=1e3)
+    system = System(scenario)
+    probe = system.point.tones[1]
+    cav = system.point.cavity_modes[0]
+    kappa, kex, delta = angular([cav.linewidth_hz, cav.external_linewidth_hz,
+                                 probe.detuning_effective_hz])
+    a_in = np.sqrt(probe.photon_number) * (kappa / 2 - 1j * delta) / np.sqrt(kex)
+
+    def noise(t, fields):
+        nu = fields[0]["tones"][1][1]  # the probe's offset from the drive
+        column = np.zeros(4)
+        rotated = a_in / 2 * np.exp(-1j * nu * t)
+        column[:2] = np.sqrt(2 * kex) * np.array([rotated.real, rotated.imag])
+        return np.outer(column, column) * rin / 2
+
+    exact = mechanical_occupation(*exact_periodic(system, noise=noise))
+    model = system.model
+    tone = mechanical_occupation(model.covariance())
+    quiet = mechanical_occupation(System(without_laser_noise(scenario)).model.covariance())
+    crossed = [i for i, name in enumerate(model.inputs) if name.startswith(
+        "laser.tones.probe.intensity.drive.")]
+    assert len(crossed) == 2
+    n = model.N.copy()
+    n[crossed, crossed] = 0.0
+    without = mechanical_occupation(dataclasses.replace(model, N=n).covariance())
+    assert exact - quiet > 0.5 * quiet  # the noise heats strongly
+    assert tone == pytest.approx(exact, rel=1e-5)  # measured: 3e-7
+    assert abs(without - exact) > 0.9 * (exact - quiet)  # nearly all of it, here
