@@ -143,9 +143,11 @@ def several_tones_model(scenario, point):
     tone its laser makes (``noise_source``), each in its own frame
     (:func:`simulator.model.laser_noise.laser_model`).
     """
-    from simulator.model.tone_validity import check_tone_spacings
+    from simulator.model.tone_validity import check_tone_noise_bands, check_tone_spacings
 
     check_tone_spacings(scenario, point)
+    if not laser_noise.is_quiet(scenario):
+        check_tone_noise_bands(scenario, point)
     n_modes, tones = len(point.modes), point.tones
     n_dev = device_size(n_modes, len(tones))
     m = 4 * len(tones) + 2 * n_modes
