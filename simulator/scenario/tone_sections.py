@@ -99,12 +99,6 @@ class Tone:
                    "laser) with a phase_noise table of its own; expected either the shared "
                    f"phase noise or the tone's own (noise_source = \"{OWN_NOISE}\"), not both")
 
-    @property
-    def quiet(self):
-        """True when the tone carries no classical noise of its own and shares none."""
-        return self.noise_source == OWN_NOISE and all(
-            x == type(x)() for x in (self.phase_noise, self.intensity_noise))
-
 
 @_frozen
 class Coupling:
