@@ -28,8 +28,9 @@ def periodic_covariance(drift, diffusion, period, n_states, samples=64, average=
     ----------
     drift : callable
         ``drift(t)`` → A(t), shape (n, n), periodic with ``period``.
-    diffusion : ndarray (n, n)
-        D = B N Bᵀ, constant.
+    diffusion : ndarray (n, n) or callable
+        D = B N Bᵀ, constant, or ``diffusion(t)`` periodic with ``period`` (an input
+        that rotates in this frame, e.g. another tone's classical noise).
     period : float
     n_states : int
     samples : int
@@ -38,11 +39,12 @@ def periodic_covariance(drift, diffusion, period, n_states, samples=64, average=
         False: return V(t) at the ``samples + 1`` times instead of the average.
     """
     n = n_states
+    noise = diffusion if callable(diffusion) else (lambda t: diffusion)
 
     def rhs(t, y):
         a = drift(t)
         phi, v = y[:n * n].reshape(n, n), y[n * n:].reshape(n, n)
-        dv = a @ v + v @ a.T + diffusion
+        dv = a @ v + v @ a.T + noise(t)
         return np.concatenate([(a @ phi).ravel(), dv.ravel()])
 
     y0 = np.concatenate([np.eye(n).ravel(), np.zeros(n * n)])

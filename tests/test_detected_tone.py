@@ -173,10 +173,11 @@ def test_what_is_still_unsupported_is_refused():
 
     with pytest.raises(InputError, match="does not yet support several drive tones"):
         master_steady_state(system)
-    noisy = probes("blue").replace("drive.phase_noise.linewidth_hz", 10.0)
-    with pytest.raises(InputError, match="classical noise on the drive"):
-        heterodyne_spectrum(noisy)
-    assert steady_state(noisy).modes[0].occupation > 0  # the steady state keeps it
+    marked = parse_scenario(probes("blue").to_toml()
+                            + "[drive.calibration_tone]\ndepth_rad = 0.01\nfrequency_hz = 3e5\n")
+    with pytest.raises(InputError, match="calibration tone"):
+        heterodyne_spectrum(marked)
+    assert steady_state(marked).modes[0].occupation > 0  # the steady state keeps it
 
 
 def test_tone_paths_are_sweepable_and_plannable():

@@ -57,19 +57,20 @@ def test_tone_sections_load_and_round_trip():
      'coupling_hz = 1.0\n', "couplings[1]", "given twice"),
     (second_mode().replace('mechanics = "drum"', 'mechanics = "plate"'),
      "couplings[0].mechanics", "names no .*mechanics.* table"),
-    (tone_table("probe", 1e3, 7e6) + 'noise_source = "drive"\n[tones.intensity_noise]\n'
-     "relative_intensity_noise_per_hz = 1e-12\n", "tones[0].noise_source", "not both"),
+    (tone_table("probe", 1e3, 7e6) + 'noise_source = "drive"\n[tones.phase_noise]\n'
+     "linewidth_hz = 10.0\n", "tones[0].noise_source", "not both"),
+    (tone_table("probe", 1e3, 7e6) + 'noise_source = "pump"\n', "tones[0].noise_source",
+     "names no tone"),
+    (tone_table("a", 1e3, 7e6) + 'noise_source = "b"\n' + tone_table("b", 1e3, 8e6)
+     + 'noise_source = "a"\n', "tones[0].noise_source", "loop of shared lasers"),
+    (tone_table("a", 1e3, 7e6) + 'noise_source = "a"\n', "tones[0].noise_source",
+     "loop of shared lasers"),
+    (tone_table("own", 1e3, 7e6), "tones[0].name", "reserved"),
 ])
 def test_bad_tone_sections_are_refused_with_the_key(extra, key, words):
     with pytest.raises(ScenarioError, match=words) as info:
         parse_scenario(scenario_text(extra=extra))
     assert info.value.key == key
-
-
-def test_noisy_tones_are_refused_by_the_model():
-    text = scenario_text(extra=tone_table("probe", 1e3, 7e6) + 'noise_source = "drive"\n')
-    with pytest.raises(ScenarioError, match="not yet supported by the linear model"):
-        System(parse_scenario(text))
 
 
 # -- the one-tone path is untouched -----------------------------------------------------

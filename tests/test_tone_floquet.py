@@ -37,8 +37,8 @@ from simulator.model.units import angular
 from simulator.scenario.loader import parse_scenario
 
 
-def exact_periodic(system, *, average=True):
-    """Covariance of the drum from the periodic reference, frame of the drive."""
+def reference_fields(system):
+    """(fields, mechanics, period) of the periodic reference in the drive's frame."""
     point = system.point
     fields = []
     for c, cav in enumerate(point.cavity_modes):
@@ -58,11 +58,25 @@ def exact_periodic(system, *, average=True):
                            n_bath=cav.bath_occupation, detuning=detuning, tones=tones, g0=g0))
     mech = [dict(frequency=angular(m.frequency_hz), linewidth=angular(m.linewidth_hz),
                  n_bath=m.bath_occupation) for m in point.modes]
-    drift, n = optomechanical_drift(fields, mech)
     offsets = sorted({abs(nu) for f in fields for _, nu in f["tones"] if nu != 0})
-    period = 2 * np.pi / offsets[0]
-    v = periodic_covariance(drift, optomechanical_diffusion(fields, mech), period, n,
-                            samples=16, average=average)
+    return fields, mech, 2 * np.pi / offsets[0]
+
+
+def exact_periodic(system, *, average=True, noise=None):
+    """Covariance of the drum from the periodic reference, frame of the drive.
+
+    ``noise(t, fields)``, if given, adds a periodic diffusion (n, n) at time t, with
+    ``fields`` the reference's cavity fields (their tones' amplitudes and offsets)."""
+    fields, mech, period = reference_fields(system)
+    drift, n = optomechanical_drift(fields, mech)
+    diffusion = optomechanical_diffusion(fields, mech)
+    if noise is not None:
+        constant = diffusion
+
+        def diffusion(t):
+            return constant + noise(t, fields)
+
+    v = periodic_covariance(drift, diffusion, period, n, samples=16, average=average)
     return v, 2 * len(fields)
 
 

@@ -83,7 +83,8 @@ def steady_state(system):
     if point.several_tones:
         return SteadyState(states=model.states, covariance=v,
                            cavity_occupation=float(cavity_occupation),
-                           modes=_summed_mode_states(point, v, frequencies, linewidths))
+                           modes=_summed_mode_states(scenario, point, v, frequencies,
+                                                     linewidths))
     kappa, delta = angular([point.cavity_linewidth_hz, point.detuning_effective_hz])
     kappa_in_fraction = 1 - point.external_linewidth_hz / point.cavity_linewidth_hz
     n_cavity_bath = kappa_in_fraction * point.cavity_bath_occupation
@@ -109,15 +110,19 @@ def steady_state(system):
                        cavity_occupation=float(cavity_occupation), modes=tuple(modes))
 
 
-def _summed_mode_states(point, v, frequencies, linewidths):
+def _summed_mode_states(scenario, point, v, frequencies, linewidths):
     """Mode states with several tones: the weak-coupling rates of every tone added.
 
     Each tone k on cavity mode c scatters at A∓,k = g_k² κc / (κc²/4 + (Δk ± Ωm)²);
     the rates add over tones (Aspelmeyer, Kippenberg & Marquardt, Rev. Mod.
     Phys. 86, 1391 (2014), Sec. VII), so n_f = [Γm n_th + Σk A+,k (n_c,k + 1) +
-    Σk A−,k n_c,k] / (Γm + Σk (A−,k − A+,k)), n_c,k the loss-weighted bath
-    occupation of tone k's cavity mode (classical noise of the drive left out).
+    Σk A−,k n_c,k + H] / (Γm + Σk (A−,k − A+,k)), n_c,k the loss-weighted bath
+    occupation of tone k's cavity mode and H the heating by the tones' classical
+    laser noise, tones of one laser interfering
+    (:func:`simulator.linear.tone_rates.classical_heating`).
     """
+    from simulator.linear.tone_rates import classical_heating
+
     modes = []
     for j, mode in enumerate(point.modes):
         om, gm = angular([mode.frequency_hz, mode.linewidth_hz])
@@ -132,6 +137,7 @@ def _summed_mode_states(point, v, frequencies, linewidths):
             a_minus, a_plus = a_minus + down, a_plus + up
             spring += weak_coupling.optical_spring(**rates)
             heating += up * (n_c + 1) + down * n_c
+        heating += classical_heating(scenario, point, j)
         with np.errstate(divide="ignore", invalid="ignore"):
             n_min = a_plus / (a_minus - a_plus)
             n_weak = (gm * mode.bath_occupation + heating) / (gm + a_minus - a_plus)

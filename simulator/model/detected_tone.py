@@ -42,21 +42,17 @@ def detected_parts(scenario, point, model):
     Raises
     ------
     InputError
-        With several tones and classical noise on the drive or a calibration
-        tone: how that noise reaches the other tones' fields and the local
-        oscillator is not modelled yet.
+        With several tones and a calibration tone on the drive: its line around
+        another tone is not modelled yet.
     """
-    from simulator.model import laser_noise
-
     if not point.several_tones:
         return point, model
-    if not laser_noise.is_quiet(scenario):
+    if scenario.drive.calibration_tone.depth_rad > 0:
         raise InputError(
-            "the detection chain with several drive tones does not yet support classical "
-            "noise on the drive (drive.phase_noise, drive.intensity_noise or "
-            "drive.calibration_tone) nor a local oscillator with noise of its own; "
-            "supported so far with [[tones]]: quiet tones, and the steady state with a "
-            "noisy drive (simulator.linear.steady_state)")
+            "the detection chain with several drive tones does not yet support a "
+            "calibration tone (drive.calibration_tone); supported so far with [[tones]]: "
+            "classical phase and intensity noise on every tone, and the steady state with "
+            "a calibration tone (simulator.linear.steady_state)")
     k = detected_index(scenario, point)
     seen = point if k == 0 else tone_point_of(scenario, point, k)
     return seen, _detected_outputs(model, k)

@@ -38,6 +38,16 @@ The tone is on the drive path only (the electro-optic modulator sits after
 the LO is split off), so the LO never carries it. LO intensity noise is
 cancelled by balanced detection (common practice) and not modelled.
 
+With several tones (``[[tones]]``) every tone is made by a laser: its own
+(``noise_source = "own"``, its tables) or another tone's (the same φ and, unless
+it has its own intensity table, the same ε; :func:`simulator.scenario.tone_sections.noise_lasers`).
+Each laser's inputs and filters are built once, named after the tone that owns
+it (``laser.*`` for the drive, ``laser.tones.<tone>.*``), and enter every tone
+it makes with that tone's own ᾱ, ā_in and ā_out, in that tone's frame. The
+LO reference above is taken from the laser of the detected tone
+(``detection.tone``) and enters that tone's output; the output of a tone not
+demodulated is its field in its own laser's frame (ρ = 0, no LO).
+
 Every classical input is a white input of the model, named ``laser.*``, with
 its own two-sided intensity (no vacuum ½); the tone input has intensity 0
 and is used only through its transfer function (lines in spectra, a
@@ -54,8 +64,11 @@ frequency-noise density).
 Gorodetsky et al., Opt. Express 18, 23236 (2010) (phase-modulation calibration).
 """
 
+import dataclasses
+
 import numpy as np
 
+from simulator.model.laser_blocks import Blocks, quad, stationary_shapes
 from simulator.model.laser_spectra import (  # noqa: F401  (the shapes are part of this module's API)
     floor_shape,
     frequency_noise_density,
@@ -65,84 +78,83 @@ from simulator.model.laser_spectra import (  # noqa: F401  (the shapes are part 
 )
 from simulator.model.statespace import StateSpace
 from simulator.model.units import angular
+from simulator.scenario.tone_sections import PRIMARY_TONE, noise_lasers, noise_tables
 
 PREFIX = "laser."
 TONE_INPUT = "laser.tone"
-_SQRT2 = np.sqrt(2.0)
 
 
 def is_quiet(scenario):
-    """True when neither the drive nor the local oscillator carries classical noise or a tone."""
+    """True when no tone, nor the local oscillator, carries classical noise, and the drive
+    no calibration tone."""
     d = scenario.drive
-    return all(x == type(x)() for x in (d.phase_noise, d.intensity_noise,
-                                        d.calibration_tone,
-                                        scenario.detection.local_oscillator_phase_noise))
+    tables = [d.phase_noise, d.intensity_noise, d.calibration_tone,
+              scenario.detection.local_oscillator_phase_noise]
+    tables += [x for t in scenario.tones for x in (t.phase_noise, t.intensity_noise)]
+    return all(x == type(x)() for x in tables)
 
 
 # -- the state-space model ----------------------------------------------------------
 
-def _quad(c):
-    """Quadratures (X, Y) = √2 (Re, Im) of a complex field amplitude."""
-    return _SQRT2 * np.array([np.real(c), np.imag(c)])
+@dataclasses.dataclass(frozen=True)
+class _Field:
+    """One tone's field in the model: its rows and the mean fields its noise rides on."""
+
+    name: str
+    mode: int  # index of its cavity mode
+    rows: slice  # its cavity quadratures (X, Y) among the states
+    out: slice  # its output quadratures
+    alpha: float  # intracavity mean field, chosen real
+    a_in: complex  # incoming carrier ā_in (photon flux |ā_in|²)
+    a_out: complex  # reflected carrier ā_out = ā_in − √κ_ex ᾱ
+    root_kex: float  # √κ_ex of its cavity mode's port
+
+    @classmethod
+    def of(cls, name, mode, rows, out, photons, kappa_hz, kappa_ex_hz, detuning_hz):
+        kappa, kappa_ex, delta = (float(x) for x in angular([kappa_hz, kappa_ex_hz,
+                                                             detuning_hz]))
+        alpha = np.sqrt(photons)
+        root = np.sqrt(kappa_ex)
+        return cls(name, mode, rows, out, alpha, alpha * (kappa / 2 - 1j * delta) / root,
+                   alpha * (kappa / 2 - kappa_ex - 1j * delta) / root, root)
+
+    @property
+    def port(self):
+        """Cavity rows of a phase modulation −iā_in φ entering through √κ_ex."""
+        return self.root_kex * quad(-1j * self.a_in)
+
+    @property
+    def direct(self):
+        """Output rows of the promptly reflected phase modulation −iā_in φ."""
+        return quad(-1j * self.a_in)
 
 
-def _floor_filter(noise):
-    """(A, B, C) with φ = C x for white input: Butterworth high-pass then low-pass."""
-    wh = float(angular(noise.floor_high_hz))
-    low = ([[0.0, wh], [-wh, -_SQRT2 * wh]], [0.0, wh], [1.0, 0.0])
-    if noise.floor_low_hz == 0:
-        return tuple(np.array(x) for x in low)
-    wl = float(angular(noise.floor_low_hz))
-    a = np.array([[0.0, wl, 0.0, 0.0], [-wl, -_SQRT2 * wl, 0.0, 0.0],
-                  [0.0, 0.0, 0.0, wh], [-wh, -_SQRT2 * wh, -wh, -_SQRT2 * wh]])
-    return a, np.array([0.0, wl, 0.0, wh]), np.array([0.0, 0.0, 1.0, 0.0])
+def tone_fields(model, point):
+    """A :class:`_Field` per drive tone (the drive first), placed in ``model``."""
+    if not point.several_tones:
+        return [_Field.of(PRIMARY_TONE, 0, slice(0, 2), slice(0, 2), point.photon_number,
+                          point.cavity_linewidth_hz, point.external_linewidth_hz,
+                          point.detuning_effective_hz)]
+    out = []
+    for k, tone in enumerate(point.tones):
+        cav = point.cavity_modes[tone.cavity_mode]
+        r = 0 if k == 0 else model.index(f"{tone.name}.X")
+        out.append(_Field.of(tone.name, tone.cavity_mode, slice(r, r + 2),
+                             slice(2 * k, 2 * k + 2),
+                             tone.photon_number, cav.linewidth_hz,
+                             cav.external_linewidth_hz, tone.detuning_effective_hz))
+    return out
 
 
-def _peak_filter(noise):
-    """(A, B, C) of γ s/(s² + γ s + ω0²), states (ω0 z, dz/dt)."""
-    w0, gamma = (float(x) for x in angular([noise.peak_frequency_hz, noise.peak_width_hz]))
-    return (np.array([[0.0, w0], [-w0, -gamma]]), np.array([0.0, 1.0]),
-            np.array([0.0, gamma]))
-
-
-class _Blocks:
-    """Laser states and inputs being appended to a model, with their couplings."""
-
-    def __init__(self):
-        self.states, self.inputs, self.sources, self.intensity = [], [], [], []
-        self.a = np.zeros((0, 0))
-        self.b = {}  # input index -> column over the laser states
-        self.cavity = {}  # input index -> cavity rows (X, Y)
-        self.output = {}  # input index -> output rows (X, Y)
-
-    def add_input(self, name, intensity, source, cavity=None, output=None):
-        k = len(self.inputs)
-        self.inputs.append(name)
-        self.intensity.append(float(intensity))
-        self.sources.append((source, k))
-        self.cavity[k] = np.zeros(2) if cavity is None else cavity
-        self.output[k] = np.zeros(2) if output is None else output
-        return k
-
-    def add_states(self, names, a):
-        n = len(self.states)
-        self.states += list(names)
-        grown = np.zeros((n + len(names),) * 2)
-        grown[:n, :n] = self.a
-        grown[n:, n:] = a
-        self.a = grown
-        return slice(n, n + len(names))
-
-    def drive(self, k, rows, column):
-        col = self.b.setdefault(k, np.zeros(0))
-        full = np.zeros(len(self.states))
-        full[:col.size] = col
-        full[rows] += column
-        self.b[k] = full
+def _labels(laser):
+    """(name prefix, source label) of a laser's inputs, named by the tone it belongs to."""
+    if laser == PRIMARY_TONE:
+        return "laser.", lambda kind: f"laser {kind}"
+    return f"laser.tones.{laser}.", lambda kind: f"{kind} of tone {laser}"
 
 
 def laser_model(model, scenario, point):
-    """``model`` with the drive's classical noise, LO reference and tone appended.
+    """``model`` with every tone's classical noise, the LO reference and the tone appended.
 
     Parameters
     ----------
@@ -156,68 +168,103 @@ def laser_model(model, scenario, point):
     StateSpace
         New states ``laser.*`` after the mechanics, new inputs ``laser.*``
         after the baths; the outputs and the optomechanical ``coupling`` are
-        those of ``model``. See the module docstring for the equations. With
-        several tones the noise drives the drive's field and output only (the
-        first two states and outputs).
+        those of ``model``. See the module docstring for the equations. The
+        drive's noise is named ``laser.*``; that of a tone with a laser of its
+        own ``laser.tones.<tone>.*``. A laser's noise enters every tone made
+        by it (``noise_source``), each in its own frame and with its own mean
+        field; the local oscillator is referred to the laser of the detected
+        tone (``detection.tone``) and enters that tone's output only.
     """
-    noise, det = scenario.drive.phase_noise, scenario.detection
-    kappa, kappa_ex, delta = (float(x) for x in angular([
-        point.cavity_linewidth_hz, point.external_linewidth_hz, point.detuning_effective_hz]))
-    alpha = np.sqrt(point.photon_number)
-    a_in = alpha * (kappa / 2 - 1j * delta) / np.sqrt(kappa_ex)
-    a_out = alpha * (kappa / 2 - kappa_ex - 1j * delta) / np.sqrt(kappa_ex)
-    port, direct, ref = np.sqrt(kappa_ex) * _quad(-1j * a_in), _quad(-1j * a_in), _quad(
-        -1j * a_out)
-    blocks = _Blocks()
-    phase_rows = _stationary_shapes(blocks, noise, "laser.", "laser")  # φ_S = Σ C x
-    lo_rows = _stationary_shapes(blocks, det.local_oscillator_phase_noise, "laser.lo.",
-                                 "local-oscillator")  # its own φ_S,LO
-    source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
-    reference = None
-    if source == "common" and tau > 0:
-        reference = (blocks.add_states(["laser.reference"], [[-2.0 / tau]]), 2.0, 4.0 / tau)
-    elif source == "locked":
-        wb = float(angular(det.local_oscillator_lock_bandwidth_hz))
-        reference = (blocks.add_states(["laser.reference"], [[-wb]]), 1.0, wb)
-    if noise.linewidth_hz > 0:
-        k = blocks.add_input("laser.frequency", frequency_noise_density(noise.linewidth_hz),
-                             "laser frequency noise", cavity=_quad(1j * alpha))
-        if reference is not None:
-            blocks.drive(k, reference[0], reference[1])
-    rin = scenario.drive.intensity_noise.relative_intensity_noise_per_hz
+    det = scenario.detection
+    fields = tone_fields(model, point)
+    lasers = noise_lasers(scenario)
+    seen = next(f for f in fields if f.name == det.tone)  # the detected tone
+    blocks = Blocks()
+    phase_lasers = _unique(lasers[f.name][0] for f in fields)  # the drive's first
+    intensities = _unique(lasers[f.name][1] for f in fields)
+    # states: the drive's shapes, the LO's and its reference (their one-tone places), then
+    # the shapes of the tones' own lasers
+    phases = {PRIMARY_TONE: stationary_shapes(blocks, scenario.drive.phase_noise, "laser.",
+                                               _labels(PRIMARY_TONE)[1])}
+    lo_rows = stationary_shapes(blocks, det.local_oscillator_phase_noise, "laser.lo.",
+                                 lambda kind: f"local-oscillator {kind}", peak="phase-noise peak")
+    reference = _reference(blocks, det)
+    for laser in phase_lasers[1:]:
+        phases[laser] = stationary_shapes(blocks, noise_tables(scenario, laser)[0],
+                                           *_labels(laser))
+    frequency = {}  # laser -> its frequency input
+    for laser in phase_lasers:
+        prefix, label = _labels(laser)
+        linewidth = noise_tables(scenario, laser)[0].linewidth_hz
+        if linewidth > 0:
+            frequency[laser] = k = blocks.add_input(f"{prefix}frequency",
+                                                    frequency_noise_density(linewidth),
+                                                    label("frequency noise"))
+            for f in fields:
+                if lasers[f.name][0] == laser:
+                    blocks.cavity[k].append((f.rows, quad(1j * f.alpha)))
+        if laser in intensities:
+            _intensity(blocks, scenario, laser, fields, lasers)
+        if laser == PRIMARY_TONE and scenario.drive.calibration_tone.depth_rad > 0:
+            k = blocks.add_input(TONE_INPUT, 0.0, "calibration tone")
+            blocks.cavity[k].append((fields[0].rows, fields[0].port))
+            blocks.output[k].append((fields[0].out, fields[0].direct))
+    for laser in intensities:
+        if laser not in phases:  # a tone's own intensity noise on a shared laser
+            _intensity(blocks, scenario, laser, fields, lasers)
+    own = lasers[seen.name][0]
+    if reference is not None and own in frequency:
+        blocks.drive(frequency[own], reference[0], reference[1])
+    return _assemble(model, blocks, fields, {f.name: phases[lasers[f.name][0]] for f in fields},
+                     lo_rows, reference, det, seen)
+
+
+def _intensity(blocks, scenario, laser, fields, lasers):
+    """Append ``laser``'s white intensity noise ε, entering as ā_in ε/2 every tone it reaches.
+
+    ε is white, so a tone l it reaches also puts noise into the band of every
+    other tone k on its cavity mode, at k's carrier ± Ωm, ω_k − ω_l ± Ωm from
+    its own. In k's frame that noise rotates at the spacing; kept to the
+    per-tone model's order (terms rotating at the spacing dropped) it is a
+    phase-insensitive white input of occupation Σ_l Φ_l S̄_εε/4 on both of
+    k's quadratures, independent of the rest (other frequencies of ε), with
+    the same source name.
+    """
+    rin = noise_tables(scenario, laser)[1].relative_intensity_noise_per_hz
     if rin > 0:
-        blocks.add_input("laser.intensity", rin / 2, "laser intensity noise",
-                         cavity=np.sqrt(kappa_ex) * _quad(a_in / 2), output=_quad(a_in / 2))
-    if scenario.drive.calibration_tone.depth_rad > 0:
-        blocks.add_input(TONE_INPUT, 0.0, "calibration tone", cavity=port, output=direct)
-    return _assemble(model, blocks, phase_rows, lo_rows, reference, source, tau,
-                     port=port, direct=direct, ref=ref,
-                     prompt=_quad(-1j * np.sqrt(kappa_ex) * alpha))
+        prefix, label = _labels(laser)
+        k = blocks.add_input(f"{prefix}intensity", rin / 2, label("intensity noise"))
+        reached = [f for f in fields if lasers[f.name][1] == laser]
+        for f in reached:
+            blocks.cavity[k].append((f.rows, f.root_kex * quad(f.a_in / 2)))
+            blocks.output[k].append((f.out, quad(f.a_in / 2)))
+        for f in fields:
+            level = sum(abs(o.a_in) ** 2 for o in reached if o is not f and o.mode == f.mode)
+            for x, unit in (("X", [1.0, 0.0]), ("Y", [0.0, 1.0])) if level > 0 else ():
+                k = blocks.add_input(f"{prefix}intensity.{f.name}.{x}", level * rin / 8,
+                                     label("intensity noise"))
+                blocks.cavity[k].append((f.rows, f.root_kex * np.array(unit)))
+                blocks.output[k].append((f.out, np.array(unit)))
 
 
-def _stationary_shapes(blocks, noise, prefix, who):
-    """Append the floor and peak of ``noise``; return their (state slice, C row) pairs."""
-    rows_out = []
-    if noise.floor_rad2_per_hz > 0:
-        a, b, c = _floor_filter(noise)
-        rows = blocks.add_states([f"{prefix}floor.{i}" for i in range(len(b))], a)
-        k = blocks.add_input(f"{prefix}floor", noise.floor_rad2_per_hz / 2,
-                             f"{who} phase-noise floor")
-        blocks.drive(k, rows, b)
-        rows_out.append((rows, c))
-    if noise.peak_rad2_per_hz > 0:
-        a, b, c = _peak_filter(noise)
-        rows = blocks.add_states([f"{prefix}peak.0", f"{prefix}peak.1"], a)
-        k = blocks.add_input(f"{prefix}peak", noise.peak_rad2_per_hz / 2,
-                             f"{who} relaxation-oscillation peak" if who == "laser"
-                             else f"{who} phase-noise peak")
-        blocks.drive(k, rows, b)
-        rows_out.append((rows, c))
-    return rows_out
+def _unique(names):
+    """``names`` in order of first appearance, each once."""
+    return list(dict.fromkeys(names))
 
 
-def _assemble(model, blocks, phase_rows, lo_rows, reference, source, tau, *, port, direct,
-              ref, prompt):
+def _reference(blocks, det):
+    """The LO reference's state (common and delayed, or locked), or None: (rows, δω gain,
+    φ_S gain)."""
+    source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
+    if source == "common" and tau > 0:
+        return blocks.add_states(["laser.reference"], [[-2.0 / tau]]), 2.0, 4.0 / tau
+    if source == "locked":
+        wb = float(angular(det.local_oscillator_lock_bandwidth_hz))
+        return blocks.add_states(["laser.reference"], [[-wb]]), 1.0, wb
+    return None
+
+
+def _assemble(model, blocks, fields, phase_rows, lo_rows, reference, det, seen):
     """One StateSpace from the base model and the laser blocks."""
     n0, m0 = len(model.states), len(model.inputs)
     nl, ml = len(blocks.states), len(blocks.inputs)
@@ -231,34 +278,45 @@ def _assemble(model, blocks, phase_rows, lo_rows, reference, source, tau, *, por
     c[:, :n0] = model.C
     d = np.zeros((len(model.outputs), m))
     d[:, :m0] = model.D
-    drive = slice(0, 2)  # the drive's field and output (several tones: the first of each)
     for k in range(ml):
-        b[drive, m0 + k] = blocks.cavity[k]
-        d[drive, m0 + k] = blocks.output[k]
+        for rows, column in blocks.cavity[k]:
+            b[rows, m0 + k] = column
+        for rows, column in blocks.output[k]:
+            d[rows, m0 + k] = column
         if k in blocks.b:
             b[n0:n0 + blocks.b[k].size, m0 + k] = blocks.b[k]
-    phase = np.zeros(nl)  # φ_S as a row over the laser states
-    for rows, row in phase_rows:
-        phase[rows] = row
-    a[drive, n0:] = np.outer(port, phase)
-    if source == "common" and tau == 0:
-        c[drive, n0:] += np.outer(prompt, phase)  # −iā_in φ_S + iā_out φ_S = −i√κ_ex ᾱ φ_S
-    elif reference is None:
-        c[drive, n0:] += np.outer(direct, phase)
-    else:
-        rows, _, gain = reference
-        r = rows.start
-        a[n0 + r, n0:] += -gain * phase
-        c[drive, n0 + r] += ref
-        c[drive, n0:] += np.outer(direct + (ref if source == "common" else 0.0), phase)
-    for rows, row in lo_rows:  # ρ gains −φ_S,LO: the measured field gains +iā_out φ_S,LO
-        c[drive, n0 + rows.start:n0 + rows.stop] -= np.outer(ref, row)
+    source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
+    for f in fields:
+        phase = np.zeros(nl)  # φ_S of the tone's laser as a row over the laser states
+        for rows, row in phase_rows[f.name]:
+            phase[rows] = row
+        a[f.rows, n0:] = np.outer(f.port, phase)
+        ref = quad(-1j * f.a_out)
+        if f is not seen:  # a tone nobody demodulates: its field in its laser's frame
+            c[f.out, n0:] += np.outer(f.direct, phase)
+        elif source == "common" and tau == 0:
+            # −iā_in φ_S + iā_out φ_S = −i√κ_ex ᾱ φ_S
+            c[f.out, n0:] += np.outer(quad(-1j * f.root_kex * f.alpha), phase)
+        elif reference is None:
+            c[f.out, n0:] += np.outer(f.direct, phase)
+        else:
+            rows, _, gain = reference
+            r = rows.start
+            a[n0 + r, n0:] += -gain * phase
+            c[f.out, n0 + r] += ref
+            c[f.out, n0:] += np.outer(f.direct + (ref if source == "common" else 0.0), phase)
+        if f is seen:
+            for rows, row in lo_rows:  # ρ gains −φ_S,LO: the measured field gains +iā_out φ_S,LO
+                c[f.out, n0 + rows.start:n0 + rows.stop] -= np.outer(ref, row)
     n_total = np.zeros((m, m))
     n_total[:m0, :m0] = model.N
     n_total[m0:, m0:] = np.diag(blocks.intensity)
     coupling = np.zeros((n, n))
     coupling[:n0, :n0] = model.coupling
-    sources = tuple(model.sources) + tuple((name, (m0 + k,)) for name, k in blocks.sources)
+    merged = {}  # one source per name: a noise may have several inputs
+    for name, k in blocks.sources:
+        merged[name] = merged.get(name, ()) + (m0 + k,)
+    sources = tuple(model.sources) + tuple(merged.items())
     return StateSpace(A=a, B=b, N=n_total, C=c, D=d, states=model.states + tuple(
         blocks.states), inputs=model.inputs + tuple(blocks.inputs), outputs=model.outputs,
         sources=sources, coupling=coupling)

@@ -17,6 +17,7 @@ Safavi-Naeini et al., New J. Phys. 15, 035007 (2013) (input occupation).
 import numpy as np
 
 from simulator.model.units import angular
+from simulator.scenario.tone_sections import PRIMARY_TONE, noise_lasers, noise_tables
 
 
 def frequency_noise_density(linewidth_hz):
@@ -74,7 +75,20 @@ def input_occupation(scenario, point, frequency_hz):
     (Safavi-Naeini et al., New J. Phys. 15, 035007 (2013); Rabl et al., Phys.
     Rev. A 80, 063819 (2009)).
     """
-    drive = scenario.drive
-    rin = 0.5 * drive.intensity_noise.relative_intensity_noise_per_hz
-    return point.input_photon_flux * (phase_noise_density(drive.phase_noise, frequency_hz)
-                                      + rin / 4.0)
+    return tone_input_occupation(scenario, PRIMARY_TONE, point.input_photon_flux,
+                                 frequency_hz)
+
+
+def tone_densities(scenario, name, frequency_hz):
+    """(S̄_φφ(f), S̄_εε) of the laser noise tone ``name`` carries (two-sided; its own or
+    shared, :func:`simulator.scenario.tone_sections.noise_lasers`)."""
+    phase_laser, intensity_laser = noise_lasers(scenario)[name]
+    rin = noise_tables(scenario, intensity_laser)[1].relative_intensity_noise_per_hz
+    return (phase_noise_density(noise_tables(scenario, phase_laser)[0], frequency_hz),
+            0.5 * rin)
+
+
+def tone_input_occupation(scenario, name, flux, frequency_hz):
+    """:func:`input_occupation` of the tone ``name`` with photon flux ``flux`` (1/s)."""
+    s_phi, s_eps = tone_densities(scenario, name, frequency_hz)
+    return flux * (s_phi + s_eps / 4.0)

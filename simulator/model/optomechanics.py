@@ -139,13 +139,15 @@ def several_tones_model(scenario, point):
     the terms that rotate at their spacing and counts each tone's share of the
     input noise as independent of the others' (docs/physics.md, "Several tones
     and cavity modes"); :func:`simulator.model.tone_validity.check_tone_spacings`
-    refuses or warns where that fails. Classical noise on the added tones is
-    not modelled yet and is refused.
+    refuses or warns where that fails. Classical laser noise enters every
+    tone its laser makes (``noise_source``), each in its own frame
+    (:func:`simulator.model.laser_noise.laser_model`).
     """
-    from simulator.model.tone_validity import check_tone_spacings, require_quiet_tones
+    from simulator.model.tone_validity import check_tone_noise_bands, check_tone_spacings
 
-    require_quiet_tones(scenario)
     check_tone_spacings(scenario, point)
+    if not laser_noise.is_quiet(scenario):
+        check_tone_noise_bands(scenario, point)
     n_modes, tones = len(point.modes), point.tones
     n_dev = device_size(n_modes, len(tones))
     m = 4 * len(tones) + 2 * n_modes

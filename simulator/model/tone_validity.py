@@ -40,21 +40,27 @@ WARN_WIDTHS = 30.0
 BEAT_EXCURSION = 0.1
 
 
+# Phase noise of one tone's laser in the bands of another tone on its cavity mode (left
+# out of the model), as a fraction of the mode's heating rate, above which it is warned.
+CROSSED_PHASE_NOISE = 0.01
+
+
 class ToneSpacingWarning(UserWarning):
     """Two tones on one cavity mode sit close to a mechanical combination frequency."""
 
 
-def require_quiet_tones(scenario):
-    """Refuse classical noise on the added tones: not modelled yet."""
-    for i, tone in enumerate(scenario.tones):
-        if not tone.quiet:
-            what = ("shares the drive's noise" if tone.noise_source == "drive"
-                    else "has its own phase or intensity noise")
-            raise ScenarioError(
-                f"tone {tone.name!r} {what}; classical noise on [[tones]] is not yet "
-                "supported by the linear model (only the [drive] tone may carry it); "
-                'expected noise_source = "own" without phase_noise or intensity_noise '
-                "tables", key=f"tones[{i}]", source=scenario.source)
+class ToneNoiseWarning(UserWarning):
+    """A tone's phase noise reaches another tone's sidebands, which the model leaves out."""
+
+
+def _rates(point, tone, j):
+    """(A−, A+) (1/s): tone's anti-Stokes and Stokes rates on mechanical mode j, weak
+    coupling (Marquardt et al., PRL 99, 093902 (2007), Eq. (3))."""
+    kappa = angular(point.cavity_modes[tone.cavity_mode].linewidth_hz)
+    g, delta, om = angular([tone.coupling_rates_hz[j], tone.detuning_effective_hz,
+                            point.modes[j].frequency_hz])
+    return (g**2 * kappa / (kappa**2 / 4 + (delta + om) ** 2),
+            g**2 * kappa / (kappa**2 / 4 + (delta - om) ** 2))
 
 
 def mechanical_width(point):
@@ -62,14 +68,64 @@ def mechanical_width(point):
     widest = 0.0
     kappa_max = max(angular(c.linewidth_hz) for c in point.cavity_modes)
     for j, mode in enumerate(point.modes):
-        om, total = angular(mode.frequency_hz), angular(mode.linewidth_hz)
+        total = angular(mode.linewidth_hz)
         for tone in point.tones:
-            kappa = angular(point.cavity_modes[tone.cavity_mode].linewidth_hz)
-            g, delta = angular([tone.coupling_rates_hz[j], tone.detuning_effective_hz])
-            total += abs(g**2 * kappa * (1 / (kappa**2 / 4 + (delta + om) ** 2)
-                                         - 1 / (kappa**2 / 4 + (delta - om) ** 2)))
+            down, up = _rates(point, tone, j)
+            total += abs(down - up)
         widest = max(widest, min(total, kappa_max))
     return float(widest)
+
+
+def crossed_phase_noise(scenario, point, j):
+    """(left out, scale) in 1/s: heating of mode j by phase noise in other tones' bands.
+
+    Tone l's phase noise at ω_k − ω_l ± Ωj from its carrier lies in the sidebands
+    of tone k on the same cavity mode, where it would heat like an input
+    occupation Φ_l S̄_φφ,l (weak coupling: η_c [A−,k Φ_l S̄(ω_kl + Ωj) +
+    A+,k Φ_l S̄(ω_kl − Ωj)]). The per-tone model keeps each tone's phase noise in
+    its own band and leaves this out (white intensity noise it counts,
+    :mod:`simulator.model.laser_noise`). The scale is the mode's weak-coupling
+    heating rate Γm n_th + Σk A+,k + Σk (A−,k + A+,k) η_c n_c,k with each
+    tone's own noise n_c,k.
+    """
+    from simulator.model.laser_spectra import phase_noise_density, tone_input_occupation
+    from simulator.scenario.tone_sections import noise_lasers, noise_tables
+
+    lasers = noise_lasers(scenario)
+    mode = point.modes[j]
+    left_out, scale = 0.0, angular(mode.linewidth_hz) * mode.bath_occupation
+    for tone in point.tones:
+        cav = point.cavity_modes[tone.cavity_mode]
+        share = cav.external_linewidth_hz / cav.linewidth_hz
+        down, up = _rates(point, tone, j)
+        scale += up + (down + up) * share * tone_input_occupation(
+            scenario, tone.name, tone.input_photon_flux, mode.frequency_hz)
+        for other in point.tones:
+            if other is tone or other.cavity_mode != tone.cavity_mode:
+                continue
+            noise = noise_tables(scenario, lasers[other.name][0])[0]
+            spacing = tone.detuning_effective_hz - other.detuning_effective_hz
+            left_out += share * other.input_photon_flux * (
+                down * phase_noise_density(noise, spacing + mode.frequency_hz)
+                + up * phase_noise_density(noise, spacing - mode.frequency_hz))
+    return float(left_out), float(scale)
+
+
+def check_tone_noise_bands(scenario, point):
+    """Warn (:class:`ToneNoiseWarning`) where phase noise left out of other tones' bands
+    exceeds ``CROSSED_PHASE_NOISE`` of a mode's heating (:func:`crossed_phase_noise`)."""
+    for j, mode in enumerate(point.modes):
+        left_out, scale = crossed_phase_noise(scenario, point, j)
+        if left_out > CROSSED_PHASE_NOISE * scale:
+            warnings.warn(
+                f"mode {mode.name}: the phase noise of tones on one cavity mode reaches the "
+                "sidebands of the other tones there (at the tones' spacing ± Ωm from its "
+                f"carrier), which the per-tone model leaves out; it would add about "
+                f"{left_out / scale:.3g} of the mode's heating rate (weak coupling), more "
+                f"than {CROSSED_PHASE_NOISE:g}; the occupation is then too low. Put the "
+                "tones on different cavity modes or where the phase noise at their spacing "
+                "± Ωm is lower (docs/physics.md, \"Several tones and cavity modes\")",
+                ToneNoiseWarning, stacklevel=3)
 
 
 def combination_frequencies(point):

@@ -1,7 +1,8 @@
 """Cross-section checks of the local oscillator's reference (``detection.local_oscillator_*``
 against the drive's phase noise and the mechanical frequencies).
 
-A common local oscillator shares the drive's phase noise, delayed by τ (a
+A common local oscillator shares the phase noise of the detected tone's laser
+(the drive's, unless ``detection.tone`` names another tone), delayed by τ (a
 one-state Padé delay, valid for 2π f τ ≤ ``DELAY_LIMIT``); a locked one follows
 it within a lock bandwidth; an independent one has its own phase noise, which
 must have a stationary spectrum (no white frequency noise). Called by the
@@ -10,12 +11,14 @@ loader (:class:`simulator.scenario.loader.Scenario`).
 
 import math
 
+from simulator.scenario.tone_sections import noise_lasers, noise_tables
+
 DELAY_LIMIT = 0.5  # largest 2π f_m τ of the one-state (Padé) delay of the LO path
 
 
 def local_oscillator_problems(scenario):
     """Cross-section checks of the LO reference: yields ``(key, message)``."""
-    det, noise = scenario.detection, scenario.drive.phase_noise
+    det, noise, key = scenario.detection, *_detected_phase_noise(scenario)
     source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
     if source == "locked" and det.local_oscillator_lock_bandwidth_hz is None:
         yield ("detection.local_oscillator_lock_bandwidth_hz", 'missing with '
@@ -28,7 +31,7 @@ def local_oscillator_problems(scenario):
                f'local_oscillator_source = "{source}"; expected 0 (a delay applies to a '
                'common local oscillator only)')
     if source == "independent" and noise.linewidth_hz > 0:
-        yield ("drive.phase_noise.linewidth_hz", f"{noise.linewidth_hz!r} Hz with an "
+        yield (f"{key}.phase_noise.linewidth_hz", f"{noise.linewidth_hz!r} Hz with an "
                "independent local oscillator: the relative phase of white frequency "
                "noise is a random walk (the beat note diffuses), which has no "
                'stationary spectrum; expected local_oscillator_source = "common" (with '
@@ -51,3 +54,14 @@ def local_oscillator_problems(scenario):
                        f"{x:.3g} at mode {mode.name}; expected 2π f τ ≤ {DELAY_LIMIT}, "
                        "where the one-state delay model errs by at most (2π f τ)²/6 "
                        "≈ 4 % in the phase-difference spectrum")
+
+
+def _detected_phase_noise(scenario):
+    """(phase noise, its section path) of the laser of the tone ``detection.tone`` names:
+    the local oscillator's reference (the drive's unless a tone is detected)."""
+    try:
+        laser = noise_lasers(scenario)[scenario.detection.tone][0]
+    except KeyError:  # a bad tone name or a loop, reported by tone_problems
+        laser = "drive"
+    noise, _, key = noise_tables(scenario, laser)
+    return noise, key

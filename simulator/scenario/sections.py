@@ -33,14 +33,15 @@ class ScenarioInfo:
 
 @_frozen
 class PhaseNoise:
-    """``[drive.phase_noise]``: classical phase noise of the drive, a sum of shapes.
+    """``[drive.phase_noise]``: classical phase noise of the drive, a sum of shapes (also
+    ``[tones.phase_noise]``, a tone's own laser).
 
     Densities are one-sided (f ≥ 0), as phase noise is specified in practice;
     the model uses the two-sided half of each (see docs/laser-noise.md).
     """
 
     linewidth_hz: float = param(
-        "full width at half maximum of the drive's Lorentzian line from white "
+        "full width at half maximum of the laser's Lorentzian line from white "
         "frequency noise (one-sided frequency-noise density linewidth/π in Hz²/Hz); "
         "0: none", unit="Hz", check="nonnegative", default=0.0, high=MAX_AUXILIARY_HZ)
     floor_rad2_per_hz: float = param(

@@ -29,6 +29,7 @@ _frozen = dataclasses.dataclass(frozen=True, kw_only=True)
 
 PRIMARY_CAVITY = "cavity"  # name of the [cavity] mode, for tones and couplings
 PRIMARY_TONE = "drive"  # name of the [drive] tone
+OWN_NOISE = "own"  # noise_source of a tone with its own laser (a reserved tone name)
 
 
 @_frozen
@@ -73,13 +74,17 @@ class Tone:
         "(from the bare or effective resonance, as drive.detuning_reference says)",
         unit="Hz", check="real")
     noise_source: str = param(
-        "classical noise of the tone: \"own\", the phase_noise and intensity_noise "
-        "tables below (none when left out); \"drive\", the same laser as [drive], "
-        "sharing its noise", choices=("own", "drive"), default="own")
+        f"classical noise of the tone: \"{OWN_NOISE}\", its own phase_noise and "
+        "intensity_noise tables below (none when left out); or the name of another tone "
+        f"(\"{PRIMARY_TONE}\" for [drive]) made by the same laser, whose phase noise it "
+        "shares (one random process) and whose intensity noise it shares unless it gives "
+        "an intensity_noise table of its own", check="label", default=OWN_NOISE)
     phase_noise: PhaseNoise = section(
         PhaseNoise, "own classical phase noise of the tone; left out: none")
     intensity_noise: IntensityNoise = section(
-        IntensityNoise, "own classical intensity noise of the tone; left out: none")
+        IntensityNoise, "classical intensity noise of the tone, independent of any other "
+        "tone's (also when it shares another tone's laser); left out: none, or the "
+        "shared laser's")
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
@@ -89,16 +94,10 @@ class Tone:
         if not abs(self.detuning_hz) < MAX_AUXILIARY_HZ:
             yield ("detuning_hz", f"{self.detuning_hz!r} Hz is out of range; expected "
                    f"|detuning_hz| below {MAX_AUXILIARY_HZ:g} Hz")
-        own = (self.phase_noise, self.intensity_noise)
-        if self.noise_source == "drive" and any(x != type(x)() for x in own):
-            yield ("noise_source", '"drive" with own phase_noise or intensity_noise '
-                   "tables; expected either the drive's noise or the tone's own, not both")
-
-    @property
-    def quiet(self):
-        """True when the tone carries no classical noise of its own."""
-        return self.noise_source == "own" and all(
-            x == type(x)() for x in (self.phase_noise, self.intensity_noise))
+        if self.noise_source != OWN_NOISE and self.phase_noise != PhaseNoise():
+            yield ("noise_source", f"{self.noise_source!r} (the phase noise of that tone's "
+                   "laser) with a phase_noise table of its own; expected either the shared "
+                   f"phase noise or the tone's own (noise_source = \"{OWN_NOISE}\"), not both")
 
 
 @_frozen
@@ -134,6 +133,9 @@ def tone_problems(scenario):
             yield (f"tones[{i}].name", f"{tone.name!r} is already used (\"{PRIMARY_TONE}\" "
                    "names the [drive] tone); expected unique names")
         tones.append(tone.name)
+        if tone.name == OWN_NOISE:
+            yield (f"tones[{i}].name", f"\"{OWN_NOISE}\" is reserved (noise_source = "
+                   f"\"{OWN_NOISE}\" means the tone's own noise); expected another name")
         if tone.cavity_mode not in modes:
             yield (f"tones[{i}].cavity_mode", f"{tone.cavity_mode!r} names no cavity mode; "
                    f"expected one of {', '.join(map(repr, modes))}")
@@ -142,6 +144,7 @@ def tone_problems(scenario):
                    f"{frequency[tone.cavity_mode] + tone.detuning_hz:.6g} Hz for a mode at "
                    f"{frequency[tone.cavity_mode]:.6g} Hz; expected |detuning_hz| below the "
                    "mode's frequency (the rotating-frame model assumes |Δ| ≪ its frequency)")
+    yield from _noise_source_problems(scenario, tones)
     if scenario.detection.tone not in tones:
         yield ("detection.tone", f"{scenario.detection.tone!r} names no drive tone; expected "
                f"one of {', '.join(map(repr, tones))}")
@@ -161,3 +164,65 @@ def tone_problems(scenario):
             yield (key, f"the pair ({pair.cavity_mode!r}, {pair.mechanics!r}) is given twice; "
                    "expected one coupling per pair")
         seen.add((pair.cavity_mode, pair.mechanics))
+
+
+def _noise_source_problems(scenario, names):
+    """Each tone's ``noise_source`` names a tone, and following them ends at a laser."""
+    by_name = {t.name: t for t in scenario.tones}
+    for i, tone in enumerate(scenario.tones):
+        key, chain = f"tones[{i}].noise_source", [tone.name]
+        while by_name.get(chain[-1]) is not None and (
+                by_name[chain[-1]].noise_source != OWN_NOISE):
+            chain.append(by_name[chain[-1]].noise_source)
+            if chain[-1] in chain[:-1]:
+                yield (key, f"{tone.noise_source!r} closes a loop of shared lasers "
+                       f"({' → '.join(map(repr, chain))}); expected the chain of "
+                       f"noise_source names to end at \"{PRIMARY_TONE}\" or at a tone "
+                       f"with noise_source = \"{OWN_NOISE}\"")
+                break
+            if chain[-1] not in names:
+                if len(chain) == 2:
+                    yield (key, f"{tone.noise_source!r} names no tone; expected "
+                           f"\"{OWN_NOISE}\" or one of {', '.join(map(repr, names))}")
+                break
+
+
+def noise_lasers(scenario):
+    """``{tone name: (phase laser, intensity laser)}`` for ``[drive]`` and every tone.
+
+    A laser is named by the tone whose tables hold its noise: ``[drive]`` and
+    every tone with ``noise_source = "own"`` are lasers of their own. A tone
+    naming another tone takes that tone's phase laser (the same random
+    process) and its intensity laser, unless it has an ``intensity_noise``
+    table of its own, which then is its own and independent. The scenario must
+    be valid (no loops, see :func:`tone_problems`).
+    """
+    by_name = {t.name: t for t in scenario.tones}
+    out = {PRIMARY_TONE: (PRIMARY_TONE, PRIMARY_TONE)}
+
+    def resolve(name, visiting=()):
+        if name in visiting:
+            raise KeyError(f"loop of shared lasers through tone {name!r}")
+        if name not in out:
+            tone = by_name[name]
+            if tone.noise_source == OWN_NOISE:
+                out[name] = (name, name)
+            else:
+                phase, intensity = resolve(tone.noise_source, (*visiting, name))
+                own = tone.intensity_noise != IntensityNoise()
+                out[name] = (phase, name if own else intensity)
+        return out[name]
+
+    for tone in scenario.tones:
+        resolve(tone.name)
+    return out
+
+
+def noise_tables(scenario, name):
+    """``(phase_noise, intensity_noise, key)`` of the tone ``name``: its tables and their
+    scenario path (``"drive"`` or ``"tones[i]"``)."""
+    if name == PRIMARY_TONE:
+        return scenario.drive.phase_noise, scenario.drive.intensity_noise, PRIMARY_TONE
+    i = [t.name for t in scenario.tones].index(name)
+    tone = scenario.tones[i]
+    return tone.phase_noise, tone.intensity_noise, f"tones[{i}]"

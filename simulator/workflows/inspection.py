@@ -295,8 +295,9 @@ def _tone_points(system):
 
 def _explained(system, laser):
     """The laser report, each apparent occupation with the causes of its gap to the exact one."""
-    if not any("apparent_occupation_from_asymmetry" in entry for entry in laser):
-        return laser
+    if system.several_tones or not any("apparent_occupation_from_asymmetry" in entry
+                                       for entry in laser):
+        return laser  # the split of the gap by cause takes one tone only
     from simulator.linear.occupation_gap import occupation_gaps
 
     return tuple(entry | {"apparent_occupation_gap": gap.to_dict() | {
