@@ -29,11 +29,24 @@ from simulator.model.optomechanics import OUTPUTS
 
 
 def detected_index(scenario, point):
-    """Index in ``point.tones`` of the tone named by ``detection.tone`` (0: the drive)."""
-    names = [tone.name for tone in point.tones]
-    if not names:
-        return 0
-    return names.index(scenario.detection.tone)
+    """Index in ``point.tones`` of the tone named by ``detection.tone`` (0: the drive);
+    with ``detection.tones``, of the first one listed."""
+    from simulator.model.tone_channels import detected_tone_names, tone_indices
+
+    return tone_indices(point, detected_tone_names(scenario)[:1])[0]
+
+
+def require_quiet_detection(scenario):
+    """Refuse classical drive noise with several tones (see :func:`detected_parts`)."""
+    from simulator.model import laser_noise
+
+    if not laser_noise.is_quiet(scenario):
+        raise InputError(
+            "the detection chain with several drive tones does not yet support classical "
+            "noise on the drive (drive.phase_noise, drive.intensity_noise or "
+            "drive.calibration_tone) nor a local oscillator with noise of its own; "
+            "supported so far with [[tones]]: quiet tones, and the steady state with a "
+            "noisy drive (simulator.linear.steady_state)")
 
 
 def detected_parts(scenario, point, model):
@@ -46,17 +59,9 @@ def detected_parts(scenario, point, model):
         tone: how that noise reaches the other tones' fields and the local
         oscillator is not modelled yet.
     """
-    from simulator.model import laser_noise
-
     if not point.several_tones:
         return point, model
-    if not laser_noise.is_quiet(scenario):
-        raise InputError(
-            "the detection chain with several drive tones does not yet support classical "
-            "noise on the drive (drive.phase_noise, drive.intensity_noise or "
-            "drive.calibration_tone) nor a local oscillator with noise of its own; "
-            "supported so far with [[tones]]: quiet tones, and the steady state with a "
-            "noisy drive (simulator.linear.steady_state)")
+    require_quiet_detection(scenario)
     k = detected_index(scenario, point)
     seen = point if k == 0 else tone_point_of(scenario, point, k)
     return seen, _detected_outputs(model, k)
