@@ -1,0 +1,213 @@
+"""Records of several detected tones: one I/Q pair per tone, generated from the joint model.
+
+A cooling tone and two probes at ±(Ωm + δ) on a warm drum (invented device,
+tests/tone_scenarios.py). The red probe's anti-Stokes line and the blue
+probe's Stokes line are scattered by the same phonons, so the two channels
+are strongly correlated between f and −f; the record must carry exactly the
+joint spectral matrix of the one linear model (docs/records.md, "Several
+tones").
+"""
+
+import numpy as np
+import pytest
+import scipy.stats
+
+from simulator import System
+from simulator.analysis.psd import (
+    WindowedExpectation,
+    averaged_periodogram,
+    spectral_matrix_estimate,
+)
+from simulator.errors import InputError, ScenarioError
+from simulator.io.recordfile import load_record
+from simulator.model.tone_channels import joint_spectral_matrix
+from simulator.records.generate import generate_record, plan_record
+from simulator.scenario.loader import load_scenario, parse_scenario
+from simulator.workflows.record import simulate_record
+from tests.tone_scenarios import KAPPA_HZ, OMEGA_HZ, scenario_text, tone_table
+
+FS_HZ = 16e6
+SEGMENT = 1024
+SAMPLES = SEGMENT * 1024
+DELTA_HZ = 2 * KAPPA_HZ  # probes δ beyond ±Ωm: far from every spacing resonance
+
+
+def two_probe_text(detection='tones = ["red", "blue"]', extra=""):
+    return (scenario_text(drive_photons=2e4, bath_occupation=2000.0, linewidth_hz=200.0)
+            + tone_table("red", 2e4, -(OMEGA_HZ + DELTA_HZ))
+            + tone_table("blue", 2e4, OMEGA_HZ + DELTA_HZ)
+            + f"\n[detection]\nefficiency = 0.8\n{detection}\n"
+            + f"[digitizer]\nsample_rate_hz = {FS_HZ!r}\n" + extra)
+
+
+def two_probes(detection='tones = ["red", "blue"]', extra=""):
+    return parse_scenario(two_probe_text(detection, extra), source="two-probes.toml")
+
+
+def expected_matrices(plan, window):
+    """Exact E of the averaged cross- and pseudo-periodograms of the complex channels,
+    from the discrete model's autocovariance (no grid, any line width)."""
+    r = plan.discrete.autocovariance(SEGMENT)  # E[y_{n+τ} y_nᵀ], real channels
+    k = r.shape[1] // 2
+    c = np.zeros((k, 2 * k), dtype=complex)
+    c[np.arange(k), 2 * np.arange(k)], c[np.arange(k), 2 * np.arange(k) + 1] = 1.0, 1.0j
+    w = WindowedExpectation(plan.sample_rate_hz, SEGMENT, window)
+    out = {}
+    for name, right in (("cross", c.conj()), ("pseudo", c)):
+        pos = np.einsum("ja,tab,kb->tjk", c, r, right)
+        neg = np.einsum("ja,tba,kb->tjk", c, r[1:], right)
+        out[name] = np.empty((SEGMENT, k, k), dtype=complex)
+        for j in range(k):
+            for m in range(k):
+                out[name][:, j, m] = w.of_autocovariance(pos[:, j, m], neg[:, j, m])
+    return w.frequency_hz, out["cross"], out["pseudo"]
+
+
+@pytest.fixture(scope="module")
+def record_and_plan():
+    scenario = two_probes()
+    system = System(scenario)
+    return generate_record(system, seed=11, duration_s=SAMPLES / FS_HZ, workers=1), \
+        plan_record(system, seed=11, duration_s=SAMPLES / FS_HZ)
+
+
+def test_channel_spectra_and_cross_spectra_match_the_joint_model(record_and_plan):
+    """Welch estimates of each channel, the cross-spectrum and the pseudo cross-spectrum
+    against the exact expectation of the joint model: every diagonal bin inside its χ²
+    (Gamma) band at the expected rate; summed over each sideband line, every element
+    within 4 σ, σ² = Σ S_jj S_kk / K (Bendat and Piersol, Random Data, 2010, Sec. 9.2.2,
+    cited from memory)."""
+    record, plan = record_and_plan
+    assert record.tones == ("red", "blue") and record.counts.shape == (SAMPLES, 4)
+    est = spectral_matrix_estimate(record.shot_noise_units(), record.sample_rate_hz,
+                                   segment_samples=SEGMENT, window="boxcar",
+                                   tones=record.tones)
+    f, cross, pseudo = expected_matrices(plan, "boxcar")
+    assert np.allclose(est.frequency_hz, f)
+    k = est.averages
+    # diagonal: Gamma(K, 1/K) per bin (Nørrelykke & Flyvbjerg, Rev. Sci. Instrum. 81,
+    # 075103 (2010)); 99 % band, outside it at most 2 % of the bins
+    lo, hi = scipy.stats.gamma.ppf([0.005, 0.995], k, scale=1.0 / k)
+    for j in range(2):
+        ratio = est.cross[:, j, j].real / cross[:, j, j].real
+        assert np.mean((ratio < lo) | (ratio > hi)) < 0.02
+    minus = np.array([np.argmin(np.abs(f + x)) for x in f])
+    strong = 0.0
+    for centre in (OMEGA_HZ, -OMEGA_HZ):
+        line = np.abs(f - centre) < 4 * est.resolution_hz
+        for name, got, want, other in (("cross", est.cross, cross, np.arange(f.size)),
+                                       ("pseudo", est.pseudo, pseudo, minus)):
+            for j in range(2):
+                for m in range(2):
+                    var = np.sum(cross[line, j, j].real * cross[other[line], m, m].real) / k
+                    z = np.sum(got[line, j, m] - want[line, j, m]) / np.sqrt(var)
+                    assert abs(z.real) < 4 and abs(z.imag) < 4, (name, centre, j, m, z)
+                    if name == "pseudo" and j != m:
+                        strong = max(strong, abs(np.sum(want[line, j, m])) / np.sqrt(var))
+    # the correlation the joint model predicts is resolved many times over: channels
+    # drawn independently would fail the pseudo check above
+    assert strong > 10
+
+
+def test_joint_matrix_diagonal_is_each_tone_alone():
+    """The diagonal of the joint spectral matrix equals each tone's one-tone record
+    spectrum (the existing chain, System.chain.record_spectrum): the joint chain
+    changes nothing in a channel's marginal law."""
+    f = np.linspace(-6e6, 6e6, 301)
+    joint = joint_spectral_matrix(two_probes(), f).cross()
+    for j, name in enumerate(("red", "blue")):
+        alone = System(two_probes(f'tone = "{name}"')).chain.record_spectrum(f)
+        assert np.allclose(joint[:, j, j].real, alone, rtol=1e-10, atol=0)
+        assert np.allclose(joint[:, j, j].imag, 0.0, atol=1e-12)
+    cavity = joint_spectral_matrix(two_probes(), f, at="cavity").cross()
+    # at the port the vacuum is ½; the record adds ½ (heterodyne split) and scales
+    # the field's excess N_out by the detection efficiency: S = 1 + η N_out
+    for j in range(2):
+        assert np.allclose(joint[:, j, j].real - 1.0, 0.8 * (cavity[:, j, j].real - 0.5),
+                           rtol=1e-6, atol=1e-13)
+
+
+def test_one_tone_request_is_todays_record_bit_for_bit():
+    a = generate_record(two_probes('tones = ["blue"]'), seed=5, duration_s=2e-4, workers=1)
+    b = generate_record(two_probes('tone = "blue"'), seed=5, duration_s=2e-4, workers=1)
+    assert np.array_equal(a.counts, b.counts) and a.tones == b.tones == ()
+    assert a.truth.calibration == b.truth.calibration
+
+
+def test_welch_per_channel_equals_averaged_periodogram(record_and_plan):
+    record, _ = record_and_plan
+    z = record.shot_noise_units()[: 64 * 256]
+    est = spectral_matrix_estimate(z, record.sample_rate_hz, segment_samples=256)
+    for j, name in enumerate(record.tones):
+        one = averaged_periodogram(record.channel(name)[: 64 * 256], record.sample_rate_hz,
+                                   segment_samples=256)
+        assert np.allclose(est.channel(j).density, one.density, rtol=1e-12)
+
+
+def test_file_round_trip(tmp_path):
+    scenario = two_probes()
+    out = tmp_path / "two.h5"
+    written = simulate_record(scenario, seed=3, duration_s=3e-4, out=out, workers=1)
+    again = load_record(out)
+    memory = generate_record(scenario, seed=3, duration_s=3e-4, workers=1)
+    assert np.array_equal(again.counts, memory.counts)
+    assert again.tones == written.tones == ("red", "blue")
+    assert again.channel_shot_noise_per_count == memory.channel_shot_noise_per_count
+    assert again.truth.channels == memory.truth.channels
+    assert [c["tone"] for c in again.truth.channels] == ["red", "blue"]
+    red, blue = again.truth.channels
+    assert red["frequency_hz"] < blue["frequency_hz"] and red["detuning_effective_hz"] < 0
+    assert np.array_equal(load_record(out, start=10, stop=20).counts, memory.counts[10:20])
+    assert np.array_equal(again.channel("blue"), again.shot_noise_units()[:, 1])
+    import h5py
+    with h5py.File(out) as f:
+        assert [c.decode() if isinstance(c, bytes) else c for c in f["samples"].attrs[
+            "columns"]] == ["red.I", "red.Q", "blue.I", "blue.Q"]
+        assert f.attrs["format_version"] == 2
+
+
+@pytest.mark.parametrize(("detection", "key", "words"), [
+    ('tones = ["red", "green"]', "detection.tones[1]", "'green' names no drive tone"),
+    ('tones = ["red", "red"]', "detection.tones[1]", "listed twice"),
+    ('tones = []', "detection.tones", "not a list of 1 to"),
+    ('tones = ["red", "blue"]\ntone = "red"', "detection.tones", "beside detection.tone"),
+    ('tones = ["red", "blue"]\nscheme = "homodyne"', "detection.tones", "heterodyne"),
+])
+def test_bad_requests_are_named(detection, key, words):
+    with pytest.raises(ScenarioError, match=words) as info:
+        two_probes(detection)
+    assert key in str(info.value)
+
+
+def test_if_record_of_several_tones_is_refused_with_the_reason():
+    with pytest.raises(ScenarioError, match="intermediate frequency is not offered"):
+        two_probes(extra='[record]\nkind = "if"\n')
+
+
+def test_every_mode_has_an_output_port():
+    """A tone can only sit on a mode with a port: κ_ex = 0 is refused at loading."""
+    text = two_probe_text().replace(f"external_linewidth_hz = {KAPPA_HZ / 2!r}",
+                                    "external_linewidth_hz = 0.0")
+    with pytest.raises(ScenarioError, match="external_linewidth_hz"):
+        parse_scenario(text, source="x.toml")
+
+
+def test_record_channel_names_are_checked(record_and_plan):
+    record, _ = record_and_plan
+    with pytest.raises(InputError, match=r"channel\('green'\): no such detected tone"):
+        record.channel("green")
+
+
+def test_bundled_two_probe_drum_records_both_probes_in_one_file(tmp_path):
+    path = "scenarios/drum_two_probes.toml"
+    text = open(path).read().replace('tone = "blue_probe"',
+                                     'tones = ["red_probe", "blue_probe"]')
+    scenario = parse_scenario(text, source=path)
+    record = simulate_record(scenario, duration_s=2e-5, out=tmp_path / "d.h5", workers=1)
+    again = load_record(tmp_path / "d.h5")
+    assert again.tones == ("red_probe", "blue_probe")
+    assert again.counts.shape == (record.n_samples, 4)
+    system = System(load_scenario(path))
+    photons = {t.name: t.photon_number for t in system.point.tones}
+    for channel in again.truth.channels:
+        assert channel["photon_number"] == pytest.approx(photons[channel["tone"]], rel=1e-12)
