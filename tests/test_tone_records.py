@@ -211,3 +211,24 @@ def test_bundled_two_probe_drum_records_both_probes_in_one_file(tmp_path):
     photons = {t.name: t.photon_number for t in system.point.tones}
     for channel in again.truth.channels:
         assert channel["photon_number"] == pytest.approx(photons[channel["tone"]], rel=1e-12)
+
+
+def test_record_figure_zooms_each_channel(record_and_plan, tmp_path):
+    """One row of sideband zooms per detected tone; each channel's periodogram lies in
+    its χ² band about the joint model's expectation at the expected rate."""
+    from simulator.report.record_plots import (
+        channel_against_model,
+        plot_record_sidebands,
+        sideband_lines,
+    )
+
+    record, plan = record_and_plan
+    png = plot_record_sidebands(plan.system, record, tmp_path / "r.png")
+    assert png.stat().st_size > 10_000
+    for tone in record.tones:
+        psd, _, expected, (low, high) = channel_against_model(plan.system, record, tone)
+        for _, centre, width in sideband_lines(plan.system, record)[:2]:
+            near = np.abs(psd.frequency_hz - centre) < 40 * psd.resolution_hz
+            want = expected(psd.frequency_hz[near])
+            outside = np.mean((psd.density[near] < want * low) | (psd.density[near] > want * high))
+            assert outside < 0.2
