@@ -232,3 +232,39 @@ def test_record_figure_zooms_each_channel(record_and_plan, tmp_path):
             want = expected(psd.frequency_hz[near])
             outside = np.mean((psd.density[near] < want * low) | (psd.density[near] > want * high))
             assert outside < 0.2
+
+
+def test_trial_runs_an_estimator_per_channel_or_on_all(tmp_path):
+    """A one-channel estimator runs on each tone's pair, its quantities labelled by the
+    tone; one declaring ``all_channels`` gets the whole record."""
+    from simulator.workflows.trial import run_trials, truth_of, truth_table
+
+    scenario = two_probes()
+    per = run_trials(scenario, "tests.tone_estimators:shot_noise_floor", 2, tmp_path / "a",
+                     duration_s=1e-4, workers=1, progress=False)
+    got = {q.name: q for q in per.quantities}
+    assert set(got) == {"floor:red", "floor:blue", "tone_index:red", "tone_index:blue"}
+    assert got["tone_index:blue"].mean == 4.0 and got["tone_index:red"].mean == 3.0
+    assert got["floor:red"].mean == pytest.approx(1.0, rel=0.2)
+    whole = run_trials(scenario, "tests.tone_estimators:every_channel", 2, tmp_path / "b",
+                       duration_s=1e-4, workers=1, progress=False)
+    got = {q.name: q.mean for q in whole.quantities}
+    assert got == {"channels": 2.0, "named": 1.0}
+    table = truth_table(scenario)
+    system = System(scenario)
+    g = {t.name: t.coupling_rates_hz[0] for t in system.point.tones}
+    assert truth_of("coupling_rate_hz:fit:blue", table) == pytest.approx(g["blue"], rel=1e-12)
+    assert truth_of("coupling_rate_hz[drum]:red", table) == pytest.approx(g["red"], rel=1e-12)
+    assert truth_of("occupation:red", table) == table["occupation"]
+
+
+@pytest.mark.parametrize("what", ["averaged", "schedule"])
+def test_one_channel_products_refuse_several_detected_tones(what):
+    from simulator.workflows.record import simulate_averaged_spectrum
+
+    with pytest.raises(InputError, match="holds one detected tone; this scenario asks for 2"):
+        if what == "averaged":
+            simulate_averaged_spectrum(two_probes(), segment_samples=256)
+        else:
+            simulate_record(two_probes(extra="[schedule]\n[[schedule.segments]]\n"
+                                       "duration_s = 1e-5\n"), workers=1)

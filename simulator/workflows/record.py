@@ -108,8 +108,10 @@ def scheduled_record(scenario, *, seed, duration_s, form, store_mechanics, chunk
     """
     import dataclasses
 
+    from simulator.model.tone_channels import require_one_detected_tone
     from simulator.records.protocol_generate import generate_protocol_record
 
+    require_one_detected_tone(scenario, "a scheduled record ([schedule])")
     if duration_s is not None and duration_s != scenario.record.duration_s:
         raise InputError(f"duration = {duration_s!r} s with a [schedule]: a scheduled "
                          "record lasts the sum of its segments' duration_s; leave the "
@@ -136,7 +138,10 @@ def simulate_averaged_spectrum(system, *, segment_samples, window="hann", seed=N
     written atomically, replaced only with ``overwrite``.
     """
     from simulator.analysis.synthetic_spectrum import synthetic_averaged_spectrum
+    from simulator.model.tone_channels import require_one_detected_tone
 
+    require_one_detected_tone(system if hasattr(system, "detection") else system.scenario,
+                              "an averaged spectrum (--averaged)")
     if out is not None:
         from simulator.io.files import refuse_existing
 
