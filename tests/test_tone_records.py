@@ -20,7 +20,7 @@ from simulator.analysis.psd import (
 )
 from simulator.errors import InputError, ScenarioError
 from simulator.io.recordfile import load_record
-from simulator.model.tone_channels import joint_spectral_matrix
+from simulator.linear.channel_spectra import joint_spectral_matrix
 from simulator.records.generate import generate_record, plan_record
 from simulator.scenario.loader import load_scenario, parse_scenario
 from simulator.workflows.record import simulate_record
@@ -227,7 +227,7 @@ def test_record_figure_zooms_each_channel(record_and_plan, tmp_path):
     assert png.stat().st_size > 10_000
     for tone in record.tones:
         psd, _, expected, (low, high) = channel_against_model(plan.system, record, tone)
-        for _, centre, width in sideband_lines(plan.system, record)[:2]:
+        for _, centre, _ in sideband_lines(plan.system, record)[:2]:
             near = np.abs(psd.frequency_hz - centre) < 40 * psd.resolution_hz
             want = expected(psd.frequency_hz[near])
             outside = np.mean((psd.density[near] < want * low) | (psd.density[near] > want * high))

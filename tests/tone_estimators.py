@@ -1,4 +1,4 @@
-"""Estimators for the trial tests of records of several detected tones (tests/test_tone_records.py)."""
+"""Estimators for the trial tests of several detected tones (tests/test_tone_records.py)."""
 
 import numpy as np
 

@@ -425,6 +425,9 @@ class ChainBuilder:
         return rows
 
     def finish(self, channels, names, bandwidth_hz, theta):
+        """The chain's StateSpace: outputs ``names`` from the signal rows ``channels``,
+        behind a single-pole low-pass of ``bandwidth_hz`` (rotating at ``theta`` for
+        the if receiver's pair) when one is given."""
         base, n0 = self.base, len(self.base.states)
         m = len(self.inputs)
         rows = np.array([_pad(ch, n0 + m) for ch in channels])

@@ -31,8 +31,6 @@ from simulator.model.optomechanics import OUTPUTS
 def detected_index(scenario, point):
     """Index in ``point.tones`` of the tone named by ``detection.tone`` (0: the drive);
     with ``detection.tones``, of the first one listed."""
-    from simulator.model.tone_channels import detected_tone_names, tone_indices
-
     return tone_indices(point, detected_tone_names(scenario)[:1])[0]
 
 
@@ -102,3 +100,32 @@ def _detected_outputs(model, k):
     receiver demodulates (the other tones' fields pass it by, see the module doc)."""
     rows = [2 * k, 2 * k + 1]
     return dataclasses.replace(model, C=model.C[rows], D=model.D[rows], outputs=OUTPUTS)
+
+
+def detected_tone_names(scenario):
+    """The demodulated tones: ``detection.tones``, or the one ``detection.tone``."""
+    det = scenario.detection
+    return det.tones if det.tones is not None else (det.tone,)
+
+
+def require_one_detected_tone(scenario, what):
+    """Refuse ``detection.tones`` with several names for ``what``, which records one
+    channel only (:class:`~simulator.errors.InputError` naming both)."""
+    names = detected_tone_names(scenario)
+    if len(names) > 1:
+        raise InputError(f"{what} holds one detected tone; this scenario asks for "
+                         f"{len(names)} (detection.tones = {list(names)!r}); expected "
+                         "detection.tone = one of them, or the stationary record "
+                         "(`noisechain record` without --averaged), which holds them all")
+
+
+def tone_indices(point, names):
+    """Index in ``point.tones`` of every name in ``names`` (0: the drive, with one tone)."""
+    known = [tone.name for tone in point.tones]
+    if not known:
+        return [0 for _ in names]
+    missing = [n for n in names if n not in known]
+    if missing:
+        raise InputError(f"detected tone(s) {', '.join(map(repr, missing))} name no drive "
+                         f"tone; expected names among {', '.join(map(repr, known))}")
+    return [known.index(n) for n in names]

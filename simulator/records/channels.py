@@ -25,8 +25,7 @@ def channel_truths(system, chain, common):
     common : dict
         The record's calibration; each channel's replaces the scale entries by its own.
     """
-    from simulator.model.detected_tone import tone_point_of
-    from simulator.model.tone_channels import tone_indices
+    from simulator.model.detected_tone import tone_indices, tone_point_of
 
     point, scenario = system.point, system.scenario
     cavity_names = [c.name for c in point.cavity_modes]

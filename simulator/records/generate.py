@@ -193,10 +193,10 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
     See :func:`simulator.workflows.record.simulate_record` for the parameters.
     """
     from simulator.linear.steady_state import steady_state
+    from simulator.model.detected_tone import detected_tone_names
     from simulator.model.sample_rate import record_sample_rate
     from simulator.model.system import as_system
     from simulator.model.tone import tone_amplitude
-    from simulator.model.tone_channels import detected_tone_names
     from simulator.records.channels import channel_truths
     from simulator.records.discretize import discretize, innovations_form
 

@@ -104,9 +104,9 @@ def record_against_model(system, record):
 def channel_against_model(system, record, tone):
     """:func:`record_against_model` for the I/Q pair of ``tone`` in a record of several
     detected tones: its periodogram and the diagonal of the joint model's sampled
-    spectral matrix (:func:`simulator.model.tone_channels.joint_spectral_matrix`)."""
+    spectral matrix (:func:`simulator.linear.channel_spectra.joint_spectral_matrix`)."""
     from simulator.analysis.psd import WindowedExpectation, averaged_periodogram
-    from simulator.model.tone_channels import joint_spectral_matrix
+    from simulator.linear.channel_spectra import joint_spectral_matrix
 
     fs, segment = record.sample_rate_hz, segment_length(record)
     psd = averaged_periodogram(record.channel(tone), fs, segment_samples=segment,

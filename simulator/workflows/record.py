@@ -108,7 +108,7 @@ def scheduled_record(scenario, *, seed, duration_s, form, store_mechanics, chunk
     """
     import dataclasses
 
-    from simulator.model.tone_channels import require_one_detected_tone
+    from simulator.model.detected_tone import require_one_detected_tone
     from simulator.records.protocol_generate import generate_protocol_record
 
     require_one_detected_tone(scenario, "a scheduled record ([schedule])")
@@ -138,7 +138,7 @@ def simulate_averaged_spectrum(system, *, segment_samples, window="hann", seed=N
     written atomically, replaced only with ``overwrite``.
     """
     from simulator.analysis.synthetic_spectrum import synthetic_averaged_spectrum
-    from simulator.model.tone_channels import require_one_detected_tone
+    from simulator.model.detected_tone import require_one_detected_tone
 
     require_one_detected_tone(system if hasattr(system, "detection") else system.scenario,
                               "an averaged spectrum (--averaged)")

@@ -105,8 +105,7 @@ def truth_table(scenario):
 def tone_truths(system):
     """``coupling_rate_hz:<tone>`` (and ``[<mode>]``) of each detected tone of a record
     of several (``detection.tones``); empty otherwise."""
-    from simulator.model.detected_tone import tone_point_of
-    from simulator.model.tone_channels import detected_tone_names, tone_indices
+    from simulator.model.detected_tone import detected_tone_names, tone_indices, tone_point_of
 
     names = detected_tone_names(system.scenario)
     if len(names) < 2:
@@ -144,10 +143,9 @@ def checked_averaged(scenario, averaged, duration_s):
     """``(segment samples, window)`` of ``--averaged`` checked against the record before
     any trial runs (else every trial would fail alike, as if the estimator had)."""
     from simulator.analysis.psd import taper
+    from simulator.model.detected_tone import require_one_detected_tone
     from simulator.model.sample_rate import record_sample_rate
     from simulator.model.system import System
-
-    from simulator.model.tone_channels import require_one_detected_tone
 
     require_one_detected_tone(scenario, "an averaged spectrum (--averaged)")
     segment, window = averaged
