@@ -109,16 +109,37 @@ def test_channel_spectra_and_cross_spectra_match_the_joint_model(record_and_plan
     assert strong > 10
 
 
-def test_joint_matrix_diagonal_is_each_tone_alone():
+ELECTRONICS = {
+    "ideal optical": "",
+    "optical, filter and current noise": "[electronics]\nbandwidth_hz = 3e6\n"
+                                         "current_noise_a_per_sqrt_hz = 3e-12\n",
+    "microwave amplifier": "[electronics]\namplifier_added_quanta = 2.0\n"
+                           "amplifier_gain_db = 60.0\n",
+}
+
+
+@pytest.mark.parametrize("receiver", ELECTRONICS)
+def test_joint_matrix_diagonal_is_each_tone_alone(receiver):
     """The diagonal of the joint spectral matrix equals each tone's one-tone record
-    spectrum (the existing chain, System.chain.record_spectrum): the joint chain
-    changes nothing in a channel's marginal law."""
+    spectrum (the existing chain, System.chain.record_spectrum), and each channel's
+    scale its one-tone chain's: the joint chain changes nothing in a channel's
+    marginal law."""
+    f = np.linspace(-6e6, 6e6, 301)
+    extra = ELECTRONICS[receiver]
+    detection = "receiver = \"microwave\"\n" if "microwave" in receiver else ""
+    joint_system = System(two_probes(detection + 'tones = ["red", "blue"]', extra))
+    joint = joint_spectral_matrix(joint_system, f).cross()
+    for j, name in enumerate(("red", "blue")):
+        alone = System(two_probes(detection + f'tone = "{name}"', extra)).chain
+        assert np.allclose(joint[:, j, j].real, alone.record_spectrum(f), rtol=1e-10, atol=0)
+        assert np.allclose(joint[:, j, j].imag, 0.0, atol=1e-12)
+        assert joint_system.channels.channel_scales[j]["volts_per_unit"] == pytest.approx(
+            alone.volts_per_unit, rel=1e-14)
+
+
+def test_cavity_port_and_record_matrices_differ_by_the_receiver():
     f = np.linspace(-6e6, 6e6, 301)
     joint = joint_spectral_matrix(two_probes(), f).cross()
-    for j, name in enumerate(("red", "blue")):
-        alone = System(two_probes(f'tone = "{name}"')).chain.record_spectrum(f)
-        assert np.allclose(joint[:, j, j].real, alone, rtol=1e-10, atol=0)
-        assert np.allclose(joint[:, j, j].imag, 0.0, atol=1e-12)
     cavity = joint_spectral_matrix(two_probes(), f, at="cavity").cross()
     # at the port the vacuum is ½; the record adds ½ (heterodyne split) and scales
     # the field's excess N_out by the detection efficiency: S = 1 + η N_out
