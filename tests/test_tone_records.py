@@ -289,3 +289,25 @@ def test_one_channel_products_refuse_several_detected_tones(what):
         else:
             simulate_record(two_probes(extra="[schedule]\n[[schedule.segments]]\n"
                                        "duration_s = 1e-5\n"), workers=1)
+
+
+def test_record_command_names_the_tones_and_writes_both_modes(tmp_path, capsys):
+    """Tones on two cavity modes (the bundled ring): `noisechain record` writes one pair
+    per tone, each with its own mode and frequency in the truth, and says so."""
+    import json
+
+    from simulator.cli.parser import main
+
+    source = "scenarios/ring_two_modes.toml"
+    scenario = tmp_path / "ring.toml"
+    scenario.write_text(open(source).read().replace('tone = "probe"',
+                                                    'tones = ["drive", "probe"]'))
+    out = tmp_path / "ring.h5"
+    assert main(["record", str(scenario), "--out", str(out), "--quiet", "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["tones"] == ["drive", "probe"]
+    record = load_record(out)
+    assert [c["cavity_mode"] for c in record.truth.channels] == ["cavity", "readout"]
+    system = System(load_scenario(source))
+    frequency = {t.name: t.frequency_hz for t in system.point.tones}
+    for channel in record.truth.channels:
+        assert channel["frequency_hz"] == frequency[channel["tone"]]
