@@ -138,10 +138,7 @@ def simulate_averaged_spectrum(system, *, segment_samples, window="hann", seed=N
     written atomically, replaced only with ``overwrite``.
     """
     from simulator.analysis.synthetic_spectrum import synthetic_averaged_spectrum
-    from simulator.model.detected_tone import require_one_detected_tone
 
-    require_one_detected_tone(system if hasattr(system, "detection") else system.scenario,
-                              "an averaged spectrum (--averaged)")
     if out is not None:
         from simulator.io.files import refuse_existing
 
