@@ -18,6 +18,11 @@ state, input and noise source is kept: the
 spectra, records and bounds computed from this model hold the scattering of
 all tones. With the drive detected (the default) both are returned unchanged,
 so a one-tone scenario is bit for bit what it was.
+
+With ``detection.tones`` (several tones demodulated into one record,
+:mod:`simulator.model.tone_channels`) the detected view is that of the first
+listed tone; :func:`detected_tone_names` and :func:`tone_indices` name and
+place every demodulated tone.
 """
 
 import dataclasses

@@ -11,10 +11,12 @@ record is generated from that joint model (one state, 2K outputs), never
 from K separate ones.
 
 Each demodulator adds its own detection-loss vacuum, heterodyne (or
-amplifier) added noise and current noise. Those noises belong to frequency
-bands a tone spacing apart and are independent between the demodulators
-(common practice: white noise in disjoint bands is uncorrelated); the
-correlation between the channels comes from the device's states alone.
+amplifier) added noise and current noise, independent of the others': each
+pair is modelled as seeing its own tone's band only, like the one-tone
+record (where the bands of two demodulators overlap, the shared vacuum
+correlates them only at offsets a tone spacing apart, which averages out of
+the time-averaged spectral matrix; docs/physics.md §13). The correlation
+between the channels comes from the device's states alone.
 
 :func:`simulator.linear.channel_spectra.joint_spectral_matrix` is the
 analytic spectral matrix of the K complex channels (each channel's density
