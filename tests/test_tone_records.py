@@ -311,3 +311,25 @@ def test_record_command_names_the_tones_and_writes_both_modes(tmp_path, capsys):
     frequency = {t.name: t.frequency_hz for t in system.point.tones}
     for channel in record.truth.channels:
         assert channel["frequency_hz"] == frequency[channel["tone"]]
+
+
+@pytest.mark.parametrize("extra", ["", "[electronics]\nbandwidth_hz = 3e6\n"
+                                       "current_noise_a_per_sqrt_hz = 3e-12\n"])
+def test_every_generator_of_four_channels_has_the_joint_autocovariance(extra):
+    """Full state, dense and modal innovations recursions of the four-output joint model:
+    stationary from the first sample, autocovariance E[y_{n+τ} y_nᵀ] (4 × 4) equal to the
+    discrete model's to 1e-10 (Anderson and Moore, Optimal Filtering (1979), Ch. 9; the
+    check of tests/test_record_recursions.py on the joint model)."""
+    from tests.test_record_recursions import assert_exact, recursions
+
+    plan = plan_record(two_probes(extra=extra), form="innovations")
+    assert plan.discrete.output.shape[0] == 4
+    assert_exact(plan, recursions(plan))
+
+
+def test_full_state_record_of_two_tones_stores_the_mechanics():
+    record = generate_record(two_probes(), seed=2, duration_s=1e-4, workers=1,
+                             store_mechanics=True)
+    q = record.mechanical_quadratures
+    assert record.form == "full-state" and q.shape == (record.n_samples, 2)
+    assert record.counts.shape == (record.n_samples, 4)
