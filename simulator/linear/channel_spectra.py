@@ -90,8 +90,9 @@ def joint_spectral_matrix(system, frequency_hz, *, at="record", sample_rate_hz=N
     model, whose outputs are evaluated at ω = −2πf (the model's kernel is
     e^{+iωt}, the FFT's e^{−iωt}; docs/architecture.md).
     """
-    from simulator.model.detected_tone import detected_tone_names, tone_indices
+    from simulator.model.detected_tone import detected_tone_names
     from simulator.model.system import as_system
+    from simulator.model.tone_channels import detected_fields
 
     system = as_system(system, several_tones=True)
     names = detected_tone_names(system.scenario)
@@ -109,10 +110,10 @@ def joint_spectral_matrix(system, frequency_hz, *, at="record", sample_rate_hz=N
         if sample_rate_hz is not None:
             raise InputError("sample_rate_hz with at = 'cavity'; expected the samples only "
                              "at the digitiser (at = 'record')")
-        rows = [r for k in tone_indices(system.point, names) for r in (2 * k, 2 * k + 1)]
+        fields = detected_fields(system.scenario, system.point, system.model)
         # (I, Q) = (X, −Y)/√2: the record's convention, z = conj(a) (docs/records.md)
         m = np.tile([np.sqrt(0.5), -np.sqrt(0.5)], len(names))
-        s = system.model.output_spectrum(-angular(f))[:, rows][:, :, rows]
+        s = fields.output_spectrum(-angular(f))
         real = m[:, None] * s * m[None, :]
     else:
         raise InputError(f"at = {at!r}; expected 'record' or 'cavity'")

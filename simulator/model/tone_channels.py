@@ -24,6 +24,8 @@ on the diagonal, the cross-spectra off it, and their pseudo-spectra), at
 the cavity port or at the digitiser, continuous or of the samples.
 """
 
+import dataclasses
+
 
 def channels_chain(scenario, point, model):
     """The detection chain with one demodulator per tone of ``detection.tones``.
@@ -84,3 +86,16 @@ def tone_channels_chain(scenario, names, points, model, rows):
     return DetectionChain(model=chain_model, receiver="iq", carrier_rad_s=0.0, efficiency=eta,
                           added_quanta=added, electronic_noise=per_tone[0]["electronic_noise"],
                           tones=tuple(names), channel_scales=tuple(per_tone), **first)
+
+
+def detected_fields(scenario, point, model):
+    """``model`` with the output fields of the demodulated tones alone, in their order:
+    outputs ``<tone>.X``, ``<tone>.Y`` (quadratures of the field leaving each tone's
+    port, in its own frame, vacuum ½). The joint model of the detected tones at the
+    cavity ports, before any receiver; every state, input and source is kept."""
+    from simulator.model.detected_tone import detected_tone_names, tone_indices
+
+    names = detected_tone_names(scenario)
+    rows = [r for k in tone_indices(point, names) for r in (2 * k, 2 * k + 1)]
+    outputs = tuple(f"{name}.{q}" for name in names for q in "XY")
+    return dataclasses.replace(model, C=model.C[rows], D=model.D[rows], outputs=outputs)
