@@ -189,8 +189,10 @@ def default_paths(scenario, mode=0):
 
 def _coupling_path(scenario, mode):
     """Path of g0 between the detected tone's cavity mode and mechanical mode ``mode``."""
-    cavity = next((t.cavity_mode for t in scenario.tones if t.name == scenario.detection.tone),
-                  None)
+    from simulator.model.detected_tone import detected_tone_names
+
+    detected = detected_tone_names(scenario)[0]
+    cavity = next((t.cavity_mode for t in scenario.tones if t.name == detected), None)
     for i, pair in enumerate(scenario.couplings):
         if pair.cavity_mode == cavity and pair.mechanics == scenario.mechanics[mode].name:
             return f"couplings[{i}].coupling_hz"

@@ -188,7 +188,12 @@ def synthetic_averaged_spectrum(system, *, segment_samples, window="hann", seed=
     import datetime
 
     from simulator import __version__
+    from simulator.model.detected_tone import require_one_detected_tone
+    from simulator.model.system import as_system
     from simulator.records.generate import plan_record
+
+    system = as_system(system, several_tones=True)  # plan_record takes its detected view
+    require_one_detected_tone(system.scenario, "an averaged spectrum (--averaged)")
 
     plan = plan_record(system, seed=seed, duration_s=duration_s, form="innovations",
                        store_mechanics=False)

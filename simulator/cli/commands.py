@@ -257,6 +257,8 @@ def cmd_record(args):
                "cavity_occupation": truth.cavity_occupation}
     if scenario.schedule is not None:  # the truth above is the first segment's steady state
         summary["schedule"] = [seg.name for seg in scenario.schedule.segments]
+    if record.tones:  # one I/Q pair per detected tone
+        summary["tones"] = list(record.tones)
     if args.json:
         print_json(summary)
         return EXIT_OK
@@ -264,6 +266,8 @@ def cmd_record(args):
           f"{record.sample_rate_hz:.6g} samples/s, seed {record.seed}, {record.form} form) "
           f"written to {summary['out']}")
     print(f"  clipped samples: {record.clipped_samples}")
+    if record.tones:
+        print(f"  detected tones, one I/Q pair each: {', '.join(record.tones)}")
     if scenario.schedule is not None:
         print(f"  schedule: {', '.join(summary['schedule'])}; the truth in time is in "
               "truth/timeline, the occupations below are the first segment's steady state")

@@ -34,10 +34,10 @@ import numpy as np
 
 from simulator.errors import InputError
 from simulator.io.files import AtomicFile, OutputError, open_hdf5
-from simulator.records.generate import Record, Truth, record_header
+from simulator.records.generate import Record, Truth, record_header, record_shape
 
 FORMAT = "noisechain-record"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2  # 2: several detected tones (samples (N, 2K), truth/channels); else as 1
 HDF5_CHUNK_ROWS = 1 << 18  # 1 MB chunks of int16 pairs: few chunks even for 10⁹ samples
 FREQUENCY_CONVENTION = ("I + iQ: anti-Stokes sideband (light above the drive) at positive "
                         "frequency of numpy.fft / scipy.signal.welch; if records: local "
@@ -84,7 +84,7 @@ class RecordFileWriter:
             raise InputError(f"cannot write {str(self.path)!r} ({exc})") from None
         try:
             n, rows = plan.n_samples, max(1, min(chunk_rows, HDF5_CHUNK_ROWS, plan.n_samples))
-            shape = (n, 2) if plan.chain.record_kind == "iq" else (n,)
+            shape = record_shape(plan)
             self.samples = self.file.create_dataset(
                 "samples", shape=shape, dtype=np.int16 if plan.bits <= 16 else np.int32,
                 chunks=(rows,) + shape[1:],
@@ -191,8 +191,11 @@ class RecordFileWriter:
         s["shot_noise_per_count"] = header["shot_noise_per_count"]
         s["full_scale_v"] = header["full_scale_v"]
         s["bits"] = header["bits"]
-        s["columns"] = np.array(["I", "Q"] if header["kind"] == "iq" else ["r"],
-                                dtype=h5py.string_dtype())
+        s["columns"] = np.array(_columns(header), dtype=h5py.string_dtype())
+        if plan.chain.tones:
+            s["tones"] = np.array(plan.chain.tones, dtype=h5py.string_dtype())
+            s["channel_shot_noise_per_count"] = np.asarray(header[
+                "channel_shot_noise_per_count"], dtype=float)
         truth = plan.truth
         write_truth(self.truth, truth)
         if getattr(plan, "timeline", None) is not None:  # a scheduled record's truth in time
@@ -213,7 +216,7 @@ class RecordFileWriter:
         root["clipped_samples"] = clipped
         root["created_utc"] = created
         root["frequency_convention"] = FREQUENCY_CONVENTION
-        root["format_version"] = FORMAT_VERSION
+        root["format_version"] = FORMAT_VERSION if plan.chain.tones else 1
         root["format"] = FORMAT
         self._close(strict=True)
         self.output.commit()
@@ -235,14 +238,68 @@ def write_truth(group, truth):
     cal = group.create_group("calibration").attrs
     for key, value in truth.calibration.items():
         cal[key] = value
+    if truth.channels:
+        write_channels(group.create_group("channels"), truth.channels)
 
 
-def read_truth(group):
+def write_channels(group, channels):
+    """Each detected tone's truth as a subgroup ``<k>`` of ``group`` (k = its pair's index),
+    attributes its frame and couplings, sub-subgroup ``calibration``."""
+    group.attrs["tones"] = np.array([c["tone"] for c in channels], dtype=_strings())
+    for k, channel in enumerate(channels):
+        sub = group.create_group(str(k))
+        for key, value in channel.items():
+            if key == "calibration":
+                cal = sub.create_group("calibration").attrs
+                for name, number in value.items():
+                    cal[name] = number
+            elif key in _CHANNEL_ARRAYS:
+                sub.attrs[key] = np.asarray(value, dtype=float)
+            else:
+                sub.attrs[key] = value
+
+
+def read_channels(group, path):
+    """The per-tone truth that :func:`write_channels` stored, in the pairs' order."""
+    tones = [_text(x) for x in group.attrs.get("tones", [])]
+    out = []
+    for k, tone in enumerate(tones):
+        sub = group.get(str(k))
+        if sub is None or "calibration" not in sub or _text(sub.attrs.get("tone", "")) != tone:
+            raise InputError(f"record file {str(path)!r}: truth/channels/{k} is missing or "
+                             f"not tone {tone!r}; expected one group per detected tone (a "
+                             "file written by `noisechain record`)")
+        entry = {key: (tuple(float(x) for x in value) if key in _CHANNEL_ARRAYS
+                       else _plain(value)) for key, value in sub.attrs.items()}
+        entry["calibration"] = {n: _plain(v) for n, v in sub["calibration"].attrs.items()}
+        out.append(entry)
+    return tuple(out)
+
+
+_CHANNEL_ARRAYS = ("coupling_rate_hz", "cooperativity")
+
+
+def _strings():
+    import h5py
+
+    return h5py.string_dtype()
+
+
+def _columns(header):
+    """Names of the sample columns: I, Q; <tone>.I, <tone>.Q per detected tone; or r."""
+    if header.get("tones"):
+        return [f"{tone}.{q}" for tone in header["tones"] for q in "IQ"]
+    return ["I", "Q"] if header["kind"] == "iq" else ["r"]
+
+
+def read_truth(group, path=""):
     """The :class:`simulator.records.generate.Truth` that :func:`write_truth` stored."""
+    channels = read_channels(group["channels"], path) if "channels" in group else ()
     return Truth(mode_names=tuple(_text(x) for x in group.attrs["mode_names"]),
                  **{k: tuple(float(x) for x in group.attrs[k]) for k in _TRUTH_ARRAYS},
                  cavity_occupation=float(group.attrs["cavity_occupation"]),
-                 calibration={k: _plain(v) for k, v in group["calibration"].attrs.items()})
+                 calibration={k: _plain(v) for k, v in group["calibration"].attrs.items()},
+                 channels=channels)
 
 
 def encode_chunk(counts, rows, deflate=True):
@@ -276,7 +333,7 @@ def _counts_of(path):
 
 def record_bytes(plan):
     """Bytes of the samples of ``plan`` as written uncompressed (the truth is small)."""
-    per_sample = (2 if plan.chain.record_kind == "iq" else 1) * (2 if plan.bits <= 16 else 4)
+    per_sample = int(np.prod(record_shape(plan)[1:])) * (2 if plan.bits <= 16 else 4)
     return plan.n_samples * per_sample
 
 
@@ -341,9 +398,12 @@ def load_record(path, *, start=0, stop=None, samples_only=False):
             raise InputError(f"record file {str(path)!r}: truth/mechanical_quadratures holds "
                              f"{int(np.size(mech) - np.isfinite(mech).sum())} non-finite "
                              "values (NaN or infinity); expected finite numbers")
-        truth = read_truth(t)
+        truth = read_truth(t, path)
         scenario = parse_scenario(_text(a["scenario_toml"]), source=f"{path}:scenario_toml")
-        return Record(
+        tones = tuple(_text(x) for x in s.attrs.get("tones", ()))
+        several = {} if not tones else dict(tones=tones, channel_shot_noise_per_count=tuple(
+            float(x) for x in s.attrs["channel_shot_noise_per_count"]))
+        return Record(**several,
             counts=counts, path=path, kind=_text(a["kind"]), scheme=_text(a["scheme"]),
             sample_rate_hz=float(a["sample_rate_hz"]), n_samples=int(a["n_samples"]),
             volts_per_count=float(s.attrs["volts_per_count"]),
@@ -399,7 +459,12 @@ def _checked_layout(f, path):
         raise InputError(f"{str(path)!r} has record format version {version}; this "
                          f"software reads up to {FORMAT_VERSION}, upgrade noisechain")
     kind = _text(a["kind"])
-    shape = (int(a["n_samples"]), 2) if kind == "iq" else (int(a["n_samples"]),)
+    tones = s.attrs.get("tones", ()) if isinstance(s, h5py.Dataset) else ()
+    shape = (int(a["n_samples"]), 2 * max(1, len(tones))) if kind == "iq" else (
+        int(a["n_samples"]),)
+    if len(tones) and np.size(s.attrs.get("channel_shot_noise_per_count", ())) != len(tones):
+        raise bad(f"samples name {len(tones)} detected tones without one "
+                  "channel_shot_noise_per_count each", "one scale per tone")
     if not isinstance(s, h5py.Dataset) or s.dtype.kind not in "iu":
         raise bad(f"samples are {getattr(s, 'dtype', 'a group')}, which can hold NaN or "
                   "infinity", "a dataset of integer ADC counts")

@@ -95,6 +95,14 @@ class DetectionChain:
     scale_key : str
         The scenario key that sets the volts per record unit (named when the
         record clips).
+    tones : tuple of str
+        With several demodulated tones (``detection.tones``), their names: the
+        outputs are ``record.<tone>.I/Q`` in this order and the scale fields
+        above are the first tone's; empty for the one-tone chain.
+    channel_scales : tuple of dict
+        Per tone of ``tones``: its scale fields and ``electronic_noise`` (the
+        scale follows each tone's frequency, h f for microwave, the local
+        oscillator's for optical).
     """
 
     model: StateSpace
@@ -111,6 +119,8 @@ class DetectionChain:
     impedance_ohm: float = float("nan")
     quantum_j: float = float("nan")
     scale_key: str = "electronics.transimpedance_ohm"
+    tones: tuple = ()
+    channel_scales: tuple = ()
 
     @property
     def record_kind(self):
@@ -222,6 +232,13 @@ class DetectionChain:
         return (discrete.output @ discrete.state_covariance @ discrete.output.T
                 + discrete.output_noise)
 
+    def output_volts_per_unit(self):
+        """Volts at the digitiser per record unit of each output channel, shape (p,)."""
+        p = len(self.model.outputs)
+        if not self.tones:
+            return np.full(p, self.volts_per_unit)
+        return np.repeat([s["volts_per_unit"] for s in self.channel_scales], 2)
+
     def record_std(self, discrete):
         """Largest standard deviation (V) of a sample, over channels and carrier phases.
 
@@ -229,6 +246,8 @@ class DetectionChain:
         most 4 times the largest eigenvalue of the covariance of (Re ρ, Im ρ).
         """
         cov = self.sample_covariance(discrete)
+        if self.tones:  # several demodulators: the largest channel in volts
+            return float(np.max(np.sqrt(np.diag(cov)) * self.output_volts_per_unit()))
         if self.receiver == "if":
             var = 4.0 * float(np.linalg.eigvalsh(cov).max())
         else:
@@ -313,19 +332,43 @@ def detection_chain(scenario, point, model):
         added = 0.5
     side = 1.0 if det.local_oscillator_side == "above" else -1.0
     f_tone = point.drive_frequency_hz  # the detected tone's carrier (detection.tone)
-    scales = (microwave_scales(scenario, receiver, f_tone) if det.receiver == "microwave"
-              else optical_scales(scenario, share, side, f_tone))
+    scales = receiver_scales(scenario, receiver, share, side, f_tone)
     electronic = scales.pop("electronic")
 
-    builder = _Builder(model)
-    x_d = builder.detected(np.sqrt(eta))
+    builder = ChainBuilder(model)
+    channels, names = demodulator(builder, scenario, receiver, eta, added, electronic)
+    theta = float(angular(side * det.intermediate_frequency_hz)) if receiver == "if" else 0.0
+    chain_model = builder.finish(channels, names, el.bandwidth_hz, theta)
+    return DetectionChain(model=chain_model, receiver=receiver, carrier_rad_s=theta,
+                          efficiency=eta, added_quanta=added, electronic_noise=electronic,
+                          **scales)
+
+
+def receiver_scales(scenario, receiver, share, side, f_tone):
+    """Volts (and photocurrent) per record unit of a receiver referenced to ``f_tone``."""
+    if scenario.detection.receiver == "microwave":
+        return microwave_scales(scenario, receiver, f_tone)
+    return optical_scales(scenario, share, side, f_tone)
+
+
+def demodulator(builder, scenario, receiver, eta, added, electronic, *, rows=(0, 1),
+                 tag=""):
+    """The record channels of one demodulator: the field of ``model`` outputs ``rows``
+    through loss, added noise and current noise; their names.
+
+    ``tag`` (a tone's name) names the inputs and channels of one of several
+    demodulators (``loss.<tag>.X``, ``record.<tag>.I``); empty, the one-tone names.
+    """
+    det = scenario.detection
+    part = f".{tag}" if tag else ""
+    x_d = builder.detected(np.sqrt(eta), rows=rows, tag=tag)
     if added > 0:
-        a = builder.add_inputs(("added.X", "added.Y"), added)
+        a = builder.add_inputs((f"added{part}.X", f"added{part}.Y"), added, tag=tag)
         x_d = [_add(x_d[0], a[0]), _add(x_d[1], a[1])]
     if receiver == "iq":
         channels = [x_d[0] / np.sqrt(2), -x_d[1] / np.sqrt(2)]
-        names, noise_names, noise = ("record.I", "record.Q"), ("electronics.I",
-                                                               "electronics.Q"), electronic
+        names, noise_names, noise = (f"record{part}.I", f"record{part}.Q"), (
+            f"electronics{part}.I", f"electronics{part}.Q"), electronic
     elif receiver == "if":
         channels = [x_d[0] / np.sqrt(2), x_d[1] / np.sqrt(2)]
         names = ("record.envelope.re", "record.envelope.im")
@@ -335,16 +378,12 @@ def detection_chain(scenario, point, model):
         channels = [np.sqrt(2) * (np.cos(phi) * x_d[0] + np.sin(phi) * x_d[1])]
         names, noise_names, noise = ("record",), ("electronics",), electronic
     if noise > 0:
-        e = builder.add_inputs(noise_names, noise)
+        e = builder.add_inputs(noise_names, noise, tag=tag)
         channels = [_add(ch, ei) for ch, ei in zip(channels, e, strict=True)]
-    theta = float(angular(side * det.intermediate_frequency_hz)) if receiver == "if" else 0.0
-    chain_model = builder.finish(channels, names, el.bandwidth_hz, theta)
-    return DetectionChain(model=chain_model, receiver=receiver, carrier_rad_s=theta,
-                          efficiency=eta, added_quanta=added, electronic_noise=electronic,
-                          **scales)
+    return channels, names
 
 
-class _Builder:
+class ChainBuilder:
     """Collects signal rows over (base states | all inputs) while inputs are added."""
 
     def __init__(self, model):
@@ -356,15 +395,18 @@ class _Builder:
     def _row(self, state_part, input_part):
         return np.concatenate([state_part, input_part])
 
-    def detected(self, gain):
-        """Rows of the quadratures at the detector, X_d and Y_d."""
-        rows = [gain * self._row(self.base.C[i], self.base.D[i]) for i in range(2)]
+    def detected(self, gain, rows=(0, 1), tag=""):
+        """Rows of the quadratures at the detector, X_d and Y_d, of the field at outputs
+        ``rows`` of the base model (``tag``: the tone of one of several demodulators)."""
+        signal = [gain * self._row(self.base.C[i], self.base.D[i]) for i in rows]
         if gain < 1.0:
-            loss = self.add_inputs(("loss.X", "loss.Y"), 0.5, "detection loss vacuum")
-            rows = [_add(r, np.sqrt(1 - gain**2) * lo) for r, lo in zip(rows, loss, strict=True)]
-        return rows
+            names = (f"loss.{tag}.X", f"loss.{tag}.Y") if tag else ("loss.X", "loss.Y")
+            loss = self.add_inputs(names, 0.5, "detection loss vacuum", tag=tag)
+            signal = [_add(r, np.sqrt(1 - gain**2) * lo)
+                      for r, lo in zip(signal, loss, strict=True)]
+        return signal
 
-    def add_inputs(self, names, intensity, source=None):
+    def add_inputs(self, names, intensity, source=None, tag=""):
         """Append white inputs of the given intensity; return their unit rows."""
         start = len(self.inputs)
         self.inputs += list(names)
@@ -377,10 +419,15 @@ class _Builder:
             rows.append(row)
         label = source or {"added": "added noise (heterodyne split or amplifier)",
                            "electronics": "electronics current noise"}[names[0].split(".")[0]]
+        if tag:
+            label = f"{label} ({tag})"
         self.sources.append((label, tuple(range(start, start + len(names)))))
         return rows
 
     def finish(self, channels, names, bandwidth_hz, theta):
+        """The chain's StateSpace: outputs ``names`` from the signal rows ``channels``,
+        behind a single-pole low-pass of ``bandwidth_hz`` (rotating at ``theta`` for
+        the if receiver's pair) when one is given."""
         base, n0 = self.base, len(self.base.states)
         m = len(self.inputs)
         rows = np.array([_pad(ch, n0 + m) for ch in channels])

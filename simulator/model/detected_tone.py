@@ -18,6 +18,11 @@ state, input and noise source is kept: the
 spectra, records and bounds computed from this model hold the scattering of
 all tones. With the drive detected (the default) both are returned unchanged,
 so a one-tone scenario is bit for bit what it was.
+
+With ``detection.tones`` (several tones demodulated into one record,
+:mod:`simulator.model.tone_channels`) the detected view is that of the first
+listed tone; :func:`detected_tone_names` and :func:`tone_indices` name and
+place every demodulated tone.
 """
 
 import dataclasses
@@ -29,11 +34,19 @@ from simulator.model.optomechanics import OUTPUTS
 
 
 def detected_index(scenario, point):
-    """Index in ``point.tones`` of the tone named by ``detection.tone`` (0: the drive)."""
-    names = [tone.name for tone in point.tones]
-    if not names:
-        return 0
-    return names.index(scenario.detection.tone)
+    """Index in ``point.tones`` of the tone named by ``detection.tone`` (0: the drive);
+    with ``detection.tones``, of the first one listed."""
+    return tone_indices(point, detected_tone_names(scenario)[:1])[0]
+
+
+def require_quiet_detection(scenario):
+    """Refuse a calibration tone with several tones (see :func:`detected_parts`)."""
+    if scenario.drive.calibration_tone.depth_rad > 0:
+        raise InputError(
+            "the detection chain with several drive tones does not yet support a "
+            "calibration tone (drive.calibration_tone); supported so far with [[tones]]: "
+            "classical phase and intensity noise on every tone, and the steady state with "
+            "a calibration tone (simulator.linear.steady_state)")
 
 
 def detected_parts(scenario, point, model):
@@ -47,12 +60,7 @@ def detected_parts(scenario, point, model):
     """
     if not point.several_tones:
         return point, model
-    if scenario.drive.calibration_tone.depth_rad > 0:
-        raise InputError(
-            "the detection chain with several drive tones does not yet support a "
-            "calibration tone (drive.calibration_tone); supported so far with [[tones]]: "
-            "classical phase and intensity noise on every tone, and the steady state with "
-            "a calibration tone (simulator.linear.steady_state)")
+    require_quiet_detection(scenario)
     k = detected_index(scenario, point)
     seen = point if k == 0 else tone_point_of(scenario, point, k)
     return seen, _detected_outputs(model, k)
@@ -93,3 +101,32 @@ def _detected_outputs(model, k):
     receiver demodulates (the other tones' fields pass it by, see the module doc)."""
     rows = [2 * k, 2 * k + 1]
     return dataclasses.replace(model, C=model.C[rows], D=model.D[rows], outputs=OUTPUTS)
+
+
+def detected_tone_names(scenario):
+    """The demodulated tones: ``detection.tones``, or the one ``detection.tone``."""
+    det = scenario.detection
+    return det.tones if det.tones is not None else (det.tone,)
+
+
+def require_one_detected_tone(scenario, what):
+    """Refuse ``detection.tones`` with several names for ``what``, which records one
+    channel only (:class:`~simulator.errors.InputError` naming both)."""
+    names = detected_tone_names(scenario)
+    if len(names) > 1:
+        raise InputError(f"{what} holds one detected tone; this scenario asks for "
+                         f"{len(names)} (detection.tones = {list(names)!r}); expected "
+                         "detection.tone = one of them, or the stationary record "
+                         "(`noisechain record` without --averaged), which holds them all")
+
+
+def tone_indices(point, names):
+    """Index in ``point.tones`` of every name in ``names`` (0: the drive, with one tone)."""
+    known = [tone.name for tone in point.tones]
+    if not known:
+        return [0 for _ in names]
+    missing = [n for n in names if n not in known]
+    if missing:
+        raise InputError(f"detected tone(s) {', '.join(map(repr, missing))} name no drive "
+                         f"tone; expected names among {', '.join(map(repr, known))}")
+    return [known.index(n) for n in names]

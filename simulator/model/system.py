@@ -92,6 +92,17 @@ class System:
         return detection_chain(self.scenario, seen.point, seen.model)
 
     @functools.cached_property
+    def channels(self):
+        """The detection chain with one demodulator per tone of ``detection.tones``
+        (:func:`simulator.model.tone_channels.channels_chain`), built on first use;
+        None when one tone is demodulated (:attr:`chain` is then the record's)."""
+        from simulator.model.tone_channels import channels_chain
+
+        if self._detected:
+            return System(self.scenario).channels
+        return channels_chain(self.scenario, self.point, self.model)
+
+    @functools.cached_property
     def detected(self):
         """The system as the receiver sees it: with several tones, the operating point's
         one-tone fields and the model's ``output.X/Y`` are those of ``detection.tone``
@@ -132,8 +143,10 @@ class System:
             return System(scenario)
         derived = System(scenario, _parts=(self.point, self.model, self.stability),
                          _detected=self._detected)
-        if path in _RECORD_ONLY and "chain" in self.__dict__:  # the chain is the same too
-            derived.__dict__["chain"] = self.__dict__["chain"]
+        if path in _RECORD_ONLY:  # the chains are the same too
+            for name in ("chain", "channels"):
+                if name in self.__dict__:
+                    derived.__dict__[name] = self.__dict__[name]
         return derived
 
 

@@ -42,7 +42,11 @@ class Truth:
 
     Per-mode tuples follow ``mode_names``. ``calibration`` holds the
     conversion factors with their units in the key names (see
-    :meth:`simulator.model.chain.DetectionChain.calibration`).
+    :meth:`simulator.model.chain.DetectionChain.calibration`). ``channels``
+    (a record of several detected tones) holds one dict per I/Q pair: the
+    tone, its frame (frequency, detunings, cavity mode), photons, each mode's
+    coupling rate and cooperativity for that tone, and its own calibration
+    (:func:`channel_truths`); empty for a one-tone record.
     """
 
     mode_names: tuple
@@ -53,6 +57,7 @@ class Truth:
     zero_point_amplitude_m: tuple
     cavity_occupation: float
     calibration: dict
+    channels: tuple = ()
 
 
 @dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
@@ -63,7 +68,8 @@ class Record:
     ----------
     counts : ndarray or None
         ADC counts, shape (N, 2) for I, Q (kind ``"iq"``) or (N,) (``"if"``);
-        None when the record lives only in its file (:meth:`samples` reads it).
+        (N, 2K) for I, Q of each of K detected tones (``tones``); None when the
+        record lives only in its file (:meth:`samples` reads it).
     kind : str
         ``"iq"`` or ``"if"``.
     sample_rate_hz, volts_per_count, shot_noise_per_count : float
@@ -78,6 +84,12 @@ class Record:
     reader : callable or None
         Returns the counts of a record that lives only in its file (set by
         the file writer, :mod:`simulator.io.recordfile`).
+    tones : tuple of str
+        The detected tones of a record with several (``detection.tones``),
+        in the order of the I/Q pairs; empty for a one-tone record.
+    channel_shot_noise_per_count : tuple of float
+        One count in shot-noise units for each tone's pair (the scale follows
+        the tone's frequency); ``shot_noise_per_count`` is the first's.
     """
 
     counts: np.ndarray | None
@@ -101,20 +113,42 @@ class Record:
     mechanical_quadratures: np.ndarray | None = None
     path: object = None
     reader: object = None
+    tones: tuple = ()
+    channel_shot_noise_per_count: tuple = ()
 
     def samples(self):
         """The ADC counts, read from the file when not held in memory."""
         return self.counts if self.counts is not None else self.reader()
 
     def shot_noise_units(self):
-        """The record in shot-noise units: complex I + iQ (iq) or real (if)."""
+        """The record in shot-noise units: complex I + iQ (iq) or real (if); with
+        several detected tones (N, K) complex, column k the pair of ``tones[k]``."""
         c = self.samples()
+        if self.tones:
+            scale = np.asarray(self.channel_shot_noise_per_count)
+            return (c[:, 0::2] + 1j * c[:, 1::2]) * scale
         if self.kind == "iq":
             return (c[:, 0] + 1j * c[:, 1]) * self.shot_noise_per_count
         return c * self.shot_noise_per_count
 
+    def channel(self, tone):
+        """I + iQ in shot-noise units of the detected tone named ``tone`` (N,)."""
+        if not self.tones:
+            raise InputError(f"channel({tone!r}): this record holds one detected tone; use "
+                             "shot_noise_units()")
+        if tone not in self.tones:
+            raise InputError(f"channel({tone!r}): no such detected tone; expected one of "
+                             f"{', '.join(map(repr, self.tones))}")
+        k = self.tones.index(tone)
+        c = self.samples()
+        return (c[:, 2 * k] + 1j * c[:, 2 * k + 1]) * self.channel_shot_noise_per_count[k]
+
     def volts(self):
-        """The digitised voltage (V); complex I + iQ for an iq record."""
+        """The digitised voltage (V); complex I + iQ for an iq record ((N, K) with
+        several detected tones: one digitiser, one volts per count)."""
+        if self.tones:
+            c = self.samples()
+            return (c[:, 0::2] + 1j * c[:, 1::2]) * self.volts_per_count
         return self.shot_noise_units() * (self.volts_per_count / self.shot_noise_per_count)
 
 
@@ -146,6 +180,12 @@ class RecordPlan:
         """One count in shot-noise units (two-sided shot-noise density 1 per Hz)."""
         return self.volts_per_count / self.chain.volts_per_unit
 
+    @property
+    def channel_shot_noise_per_count(self):
+        """With several detected tones, :attr:`shot_noise_per_count` of each tone's pair."""
+        return tuple(self.volts_per_count / s["volts_per_unit"]
+                     for s in self.chain.channel_scales)
+
 
 def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechanics=None):
     """Resolve every setting of a record and build its exact discrete model.
@@ -153,11 +193,14 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
     See :func:`simulator.workflows.record.simulate_record` for the parameters.
     """
     from simulator.linear.steady_state import steady_state
+    from simulator.model.detected_tone import detected_tone_names
     from simulator.model.sample_rate import record_sample_rate
     from simulator.model.system import as_system
     from simulator.model.tone import tone_amplitude
+    from simulator.records.channels import channel_truths
     from simulator.records.discretize import discretize, innovations_form
 
+    channels = as_system(system, several_tones=True).channels  # several detected tones
     system = as_system(system, several_tones="detected")
     scenario = system.scenario
     seed = scenario.scenario.seed if seed is None else seed
@@ -182,7 +225,7 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
     if form == "auto":
         form = "full-state" if store else "innovations"
 
-    point, steady, chain = system.point, steady_state(system), system.chain
+    point, steady, chain = system.point, steady_state(system), channels or system.chain
     det, dig = scenario.detection, scenario.digitizer
     fs = record_sample_rate(scenario, chain)
     n = int(round(scenario.record.duration_s * fs))
@@ -202,16 +245,17 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
     if chain.front_end == "optical":  # a microwave receiver has no photocurrent
         calibration.update(transimpedance_ohm=scenario.electronics.transimpedance_ohm,
                            local_oscillator_power_w=det.local_oscillator_power_w)
-    if point.several_tones:  # the one tone whose sidebands the record holds
-        calibration.update(detected_tone=det.tone, detected_tone_frequency_hz=float(
-            point.drive_frequency_hz))
+    if point.several_tones:  # the (first) tone whose sidebands the record holds
+        calibration.update(detected_tone=detected_tone_names(scenario)[0],
+                           detected_tone_frequency_hz=float(point.drive_frequency_hz))
     truth = Truth(mode_names=names,
                   occupation=tuple(m.occupation for m in steady.modes),
                   effective_frequency_hz=tuple(m.effective_frequency_hz for m in steady.modes),
                   effective_linewidth_hz=tuple(m.effective_linewidth_hz for m in steady.modes),
                   coupling_rate_hz=tuple(m.coupling_rate_hz for m in point.modes),
                   zero_point_amplitude_m=tuple(m.zero_point_amplitude_m for m in point.modes),
-                  cavity_occupation=steady.cavity_occupation, calibration=calibration)
+                  cavity_occupation=steady.cavity_occupation, calibration=calibration,
+                  channels=channel_truths(system, chain, calibration) if chain.tones else ())
     return RecordPlan(system=system, scenario=scenario, seed=int(seed), form=form, chain=chain,
                       discrete=discrete, sample_rate_hz=float(fs), n_samples=n,
                       full_scale_v=float(full_scale), bits=dig.bits, truth=truth,
@@ -291,6 +335,9 @@ def quantisation_share(plan):
     independent of the signal, of variance Δ²/12.
     """
     cov = plan.chain.sample_covariance(plan.discrete)
+    if plan.chain.tones:  # several detected tones: the weakest channel in volts
+        volts2 = float(np.min(np.diag(cov) * plan.chain.output_volts_per_unit() ** 2))
+        return plan.volts_per_count**2 / 12.0 / volts2
     if plan.chain.receiver == "if":  # r = 2(cos φ Re ρ − sin φ Im ρ), averaged over φ
         variance = 2.0 * float(np.trace(cov))
     else:
@@ -323,12 +370,16 @@ def generate(plan, sink, *, chunk, progress=None, workers=1):
 
     # iq without a tone: each block's outputs are digitised at once, still in the cache
     # (one reused buffer), not written out by chunk and read back by another thread.
-    direct = chain.receiver == "iq" and tone is None
+    direct = chain.receiver == "iq" and tone is None and not chain.tones
+    # several detected tones: each pair's volts per record unit over the first's
+    ratio = chain.output_volts_per_unit() / chain.volts_per_unit if chain.tones else None
 
     def finish(first, y, mech, n_clip):  # a pure function of the chunk: any thread, same bits
         if direct:
             counts = y
         else:
+            if ratio is not None:
+                y = y * ratio
             if chain.receiver == "homodyne":
                 y = y[:, 0]
             elif chain.receiver == "if":
@@ -387,7 +438,9 @@ def record_header(plan, record_kind):
     from simulator import __version__
 
     det = plan.scenario.detection
-    return dict(kind=record_kind, scheme=det.scheme, sample_rate_hz=plan.sample_rate_hz,
+    several = {} if not plan.chain.tones else dict(
+        tones=plan.chain.tones, channel_shot_noise_per_count=plan.channel_shot_noise_per_count)
+    return several | dict(kind=record_kind, scheme=det.scheme, sample_rate_hz=plan.sample_rate_hz,
                 n_samples=plan.n_samples, volts_per_count=plan.volts_per_count,
                 shot_noise_per_count=plan.shot_noise_per_count,
                 full_scale_v=plan.full_scale_v, bits=plan.bits,
@@ -401,7 +454,7 @@ class MemorySink:
 
     def __init__(self, plan):
         self.plan = plan
-        shape = (plan.n_samples, 2) if plan.chain.record_kind == "iq" else (plan.n_samples,)
+        shape = record_shape(plan)
         self.counts = np.empty(shape, dtype=np.int16 if plan.bits <= 16 else np.int32)
         self.mech = np.empty((plan.n_samples, plan.watched.size)) if plan.watched.size else None
 
@@ -426,3 +479,10 @@ class MemorySink:
                       truth=self.plan.truth, mechanical_quadratures=self.mech,
                       created_utc=created, **record_header(self.plan,
                                                            self.plan.chain.record_kind))
+
+
+def record_shape(plan):
+    """Shape of the counts: (N, 2) for iq, (N, 2K) for K detected tones, (N,) otherwise."""
+    if plan.chain.record_kind == "iq":
+        return (plan.n_samples, len(plan.chain.model.outputs))
+    return (plan.n_samples,)

@@ -101,8 +101,36 @@ def record_against_model(system, record):
     return psd, model, expected, chi2_band(psd.averages)
 
 
+def channel_against_model(system, record, tone):
+    """:func:`record_against_model` for the I/Q pair of ``tone`` in a record of several
+    detected tones: its periodogram and the diagonal of the joint model's sampled
+    spectral matrix (:func:`simulator.linear.channel_spectra.joint_spectral_matrix`)."""
+    from simulator.analysis.psd import WindowedExpectation, averaged_periodogram
+    from simulator.linear.channel_spectra import joint_spectral_matrix
+
+    fs, segment = record.sample_rate_hz, segment_length(record)
+    psd = averaged_periodogram(record.channel(tone), fs, segment_samples=segment,
+                               window="boxcar")
+    kernel, k = WindowedExpectation(fs, segment, "boxcar"), record.tones.index(tone)
+
+    def model(freq):
+        return joint_spectral_matrix(system, freq, sample_rate_hz=fs).cross()[:, k, k].real
+
+    def expected(freq):
+        return kernel.at(model, freq)
+
+    return psd, model, expected, chi2_band(psd.averages)
+
+
 def plot_record_sidebands(system, record, path, *, title=None):
-    """Save the figure of ``record`` against the model of ``system`` to ``path``."""
+    """Save the figure of ``record`` against the model of ``system`` to ``path``.
+
+    A record of several detected tones gets one row per tone: that channel's
+    Stokes and anti-Stokes sidebands of the first mechanical mode, each about
+    its own tone (its channel's axis).
+    """
+    if record.tones:
+        return _plot_tone_channels(system, record, path, title=title)
     psd, model, expected, band = record_against_model(system, record)
     sampling = (record.sample_rate_hz, segment_length(record))
     lines = [line for line in sideband_lines(system, record)
@@ -183,3 +211,26 @@ def _sideband(ax, psd, expectation, line, sampling, band):
     ax.set_ylabel("noise power density\n(shot-noise units, linear)")
     ax.ticklabel_format(axis="y", useOffset=False)
     ax.grid(alpha=0.3)
+
+
+def _plot_tone_channels(system, record, path, *, title=None):
+    sampling = (record.sample_rate_hz, segment_length(record))
+    lines = sideband_lines(system, record)[:2]  # the first mode's Stokes and anti-Stokes
+    rows = len(record.tones)
+    fig, axes = subplots(rows, len(lines), figsize=(FIGURE_WIDTH, 3.3 * rows + 0.8),
+                         layout="constrained", squeeze=False)
+    for row, tone in zip(axes, record.tones, strict=True):
+        psd, _, expected, band = channel_against_model(system, record, tone)
+        for ax, (label, centre, width) in zip(row, lines, strict=True):
+            _sideband(ax, psd, expected, (f"channel {tone}: {label}", centre, width),
+                      sampling, band)
+    handles, labels = axes[0, 0].get_legend_handles_labels()
+    fig.legend(handles, labels, loc="outside lower center", ncols=3, fontsize=8,
+               frameon=False)
+    scale, unit = unit_of_span(psd.resolution_hz)
+    fig.suptitle(title or f"{system.scenario.scenario.name}: one I/Q pair per detected tone "
+                 f"against the joint model\n{psd.averages} averages, bins of "
+                 f"{psd.resolution_hz / scale:.3g} {unit}; offsets from each channel's own "
+                 "tone, shot-noise units, vacuum = 1", x=0.02, ha="left", fontsize=10)
+    save_figure(fig, path, overwrite=True)  # the run's own folder
+    return path

@@ -223,6 +223,28 @@ class Mechanics:
         default=None, high=1e18)
 
 
+MAX_DETECTED_TONES = 64  # demodulators of one record: far beyond any digitiser's (our choice)
+
+
+def parse_tone_names(value, key, source):
+    """Check ``detection.tones``: a non-empty list of distinct tone names; freeze it."""
+    from simulator.errors import ScenarioError
+    from simulator.scenario.schema import CHECKS
+
+    if not isinstance(value, list) or not 1 <= len(value) <= MAX_DETECTED_TONES:
+        raise ScenarioError(f"{str(value)[:80]} is not a list of 1 to {MAX_DETECTED_TONES} "
+                            "tone names; expected e.g. [\"red_probe\", \"blue_probe\"]",
+                            source=source, key=key)
+    for i, name in enumerate(value):
+        if not isinstance(name, str) or not CHECKS["label"][0](name):
+            raise ScenarioError(f"{name!r} is not a tone name; expected {CHECKS['label'][1]}",
+                                source=source, key=f"{key}[{i}]")
+        if name in value[:i]:
+            raise ScenarioError(f"{name!r} is listed twice; expected each tone once (one "
+                                "I/Q pair per tone)", source=source, key=f"{key}[{i}]")
+    return tuple(value)
+
+
 @_frozen
 class Detection:
     """``[detection]``: how the output field is measured."""
@@ -275,6 +297,13 @@ class Detection:
         "oscillator (or the microwave IQ reference) sits at that tone's frequency, offset "
         "by intermediate_frequency_hz; \"drive\" is the [drive] tone, any other name a "
         "[[tones]] table", check="label", default="drive")
+    tones: tuple | None = param(
+        "names of several drive tones demodulated at once, each into its own I/Q pair of "
+        "one record (a digitiser with one demodulator per tone), instead of tone; "
+        "heterodyne with kind = \"iq\" only; left out: the one tone named by tone",
+        parser=parse_tone_names,
+        default=None,
+        accepts='a list of distinct tone names, e.g. ["red_probe", "blue_probe"]')
     balanced: bool = param(
         "balanced detection (both ports of the signal–local-oscillator beam splitter "
         "subtracted); false: one port of a 50:50 combiner, which halves the efficiency",

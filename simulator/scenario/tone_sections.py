@@ -148,6 +148,7 @@ def tone_problems(scenario):
     if scenario.detection.tone not in tones:
         yield ("detection.tone", f"{scenario.detection.tone!r} names no drive tone; expected "
                f"one of {', '.join(map(repr, tones))}")
+    yield from detected_tones_problems(scenario, tones)
     mechanics, seen = [m.name for m in scenario.mechanics], set()
     for i, pair in enumerate(scenario.couplings):
         key = f"couplings[{i}]"
@@ -226,3 +227,31 @@ def noise_tables(scenario, name):
     i = [t.name for t in scenario.tones].index(name)
     tone = scenario.tones[i]
     return tone.phase_noise, tone.intensity_noise, f"tones[{i}]"
+
+
+def detected_tones_problems(scenario, tones):
+    """Checks of ``detection.tones`` against the tones and the receiver: ``(key, message)``.
+
+    One name is the same request as ``detection.tone``; several need the
+    heterodyne iq receiver (one I/Q pair per demodulated tone). One real
+    record holding every tone's sidebands at an intermediate frequency is not
+    offered (docs/records.md, "Several tones").
+    """
+    det = scenario.detection
+    if det.tones is None:
+        return
+    if det.tone != PRIMARY_TONE:
+        yield ("detection.tones", f"given beside detection.tone = {det.tone!r}; expected one "
+               "of the two (tones lists every demodulated tone, tone names a single one)")
+    for i, name in enumerate(det.tones):
+        if name not in tones:
+            yield (f"detection.tones[{i}]", f"{name!r} names no drive tone; expected one "
+                   f"of {', '.join(map(repr, tones))}")
+    if len(det.tones) > 1 and (det.scheme != "heterodyne"
+                               or (scenario.record.kind or "iq") != "iq"):
+        what = ("homodyne" if det.scheme != "heterodyne"
+                else f'record.kind = "{scenario.record.kind}"')
+        yield ("detection.tones", f"{len(det.tones)} tones with {what}; expected scheme = "
+               '"heterodyne" with record.kind = "iq": each tone is demodulated into its own '
+               "I/Q pair (one real record holding every tone's sidebands at an intermediate "
+               "frequency is not offered)")

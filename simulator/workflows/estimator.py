@@ -8,7 +8,12 @@ with a time limit, so an estimator that raises, exits, hangs or crashes
 makes a failed trial with the reason, never a failed or silent run.
 
 The function receives a :class:`PublicRecord` and returns
-``{name: (value, uncertainty)}``. Each pair must hold two real numbers
+``{name: (value, uncertainty)}``. A record of several detected tones
+(``detection.tones``) is handed to it one channel at a time, each a
+one-tone :class:`PublicRecord` with ``tone`` set, and its quantities are
+named ``<name>:<tone>``; an estimator that sets the attribute
+``all_channels = True`` on its function receives the whole record at once
+instead (``samples`` (N, K), one column per tone of ``tones``). Each pair must hold two real numbers
 (``bool`` is not a number here), both finite, the uncertainty positive; a
 quantity that breaks this is left out of the trial and named in its error.
 """
@@ -36,7 +41,11 @@ class PublicRecord:
 
     ``samples`` are in shot-noise units (two-sided shot-noise density 1 per
     Hz): complex I + iQ for an ``iq`` record (anti-Stokes at positive
-    frequency in an FFT), real for an ``if`` record.
+    frequency in an FFT), real for an ``if`` record. For an estimator with
+    ``all_channels`` of a record of several detected tones, (N, K): column k
+    the pair of ``tones[k]``, ``shot_noise_per_count`` the first's and
+    ``channel_shot_noise_per_count`` each's. One channel handed alone has
+    ``tone`` set to its tone (the anti-Stokes side is above that tone).
     """
 
     samples: np.ndarray
@@ -48,6 +57,9 @@ class PublicRecord:
     volts_per_count: float
     shot_noise_per_count: float
     scenario: object
+    tones: tuple = ()
+    channel_shot_noise_per_count: tuple = ()
+    tone: str = ""
 
 
 @dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
@@ -81,13 +93,37 @@ def public_view(record):
                               intermediate_frequency_hz=record.intermediate_frequency_hz,
                               local_oscillator_side=record.local_oscillator_side,
                               scenario=record.scenario)
+    several = {} if not getattr(record, "tones", ()) else dict(
+        tones=record.tones, channel_shot_noise_per_count=record.channel_shot_noise_per_count)
     return PublicRecord(samples=record.shot_noise_units(), kind=record.kind,
                         scheme=record.scheme, sample_rate_hz=record.sample_rate_hz,
                         intermediate_frequency_hz=record.intermediate_frequency_hz,
                         local_oscillator_side=record.local_oscillator_side,
                         volts_per_count=record.volts_per_count,
                         shot_noise_per_count=record.shot_noise_per_count,
-                        scenario=record.scenario)
+                        scenario=record.scenario, **several)
+
+
+def channel_views(record):
+    """``(tone, PublicRecord)`` of each detected tone's channel of ``record`` alone."""
+    whole = public_view(record)
+    return [(tone, dataclasses.replace(
+        whole, samples=record.channel(tone), shot_noise_per_count=scale, tones=(),
+        channel_shot_noise_per_count=(), tone=tone))
+        for tone, scale in zip(record.tones, record.channel_shot_noise_per_count, strict=True)]
+
+
+def apply_estimator(func, record):
+    """``func``'s estimates of ``record``: whole, or channel by channel (module doc)."""
+    if not getattr(record, "tones", ()) or getattr(func, "all_channels", False):
+        return func(public_view(record))
+    merged = {}
+    for tone, view in channel_views(record):
+        out = func(view)
+        if not isinstance(out, dict):
+            return out  # refused by checked(), with what it was
+        merged.update({f"{name}:{tone}": value for name, value in out.items()})
+    return merged
 
 
 def load_estimator(spec):
@@ -162,8 +198,8 @@ def estimate(spec, record, timeout_s=DEFAULT_TIMEOUT_S):
     failure : str
         Empty when every quantity passed; else the reasons, in words.
     """
-    view = public_view(record)
-    outcome, failure = call_isolated(lambda: checked(load_estimator(spec)(view)), timeout_s)
+    outcome, failure = call_isolated(
+        lambda: checked(apply_estimator(load_estimator(spec), record)), timeout_s)
     if failure:
         return {}, failure
     return outcome["estimates"], "; ".join(outcome["rejected"])

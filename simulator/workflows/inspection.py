@@ -13,6 +13,7 @@ from simulator.linear.laser_effects import occupation_report
 from simulator.linear.steady_state import STRONG_COUPLING_TOLERANCE, steady_state
 from simulator.linear.tone_rates import tone_rows, tone_text
 from simulator.model import laser_noise
+from simulator.model.detected_tone import detected_tone_names
 from simulator.model.system import as_system
 from simulator.scenario.plausibility import plausibility_warnings
 from simulator.scenario.units import dbm_from_watts, power_text
@@ -100,9 +101,9 @@ class Inspection:
             "cavity_occupation": None if st is None else st.cavity_occupation,
             "modes": modes,
             "feasibility": [dict(f) for f in self.feasibility],
-            **({"detected_tone": self.scenario.detection.tone,
-                "tones": tone_rows(p, self.scenario.detection.tone)} if p.several_tones
-               else {}),
+            **({"detected_tone": detected_tone_names(self.scenario)[0],
+                "tones": tone_rows(p, detected_tone_names(self.scenario)[0])}
+               if p.several_tones else {}),
             "regime": None if self.regime is None else self.regime.to_dict(),
             "warnings": list(self.warnings),
         }

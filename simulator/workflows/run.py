@@ -202,9 +202,12 @@ def _record_part(system, out, wrote, figures, progress):
     elif system.scenario.schedule is None:  # a stationary record against its spectrum
         png = wrote(out / "record_spectrum.png")
         plot_record_sidebands(system, record, png)
+        where = ("one row per detected tone, that channel's Stokes and anti-Stokes "
+                 "sidebands zoomed about its own tone" if record.tones else
+                 "the whole band and each motional sideband zoomed")
         figures.append((png, "Synthetic record against the model: its averaged periodogram "
-                             "over the expected one with the 95 % χ² band, the whole band "
-                             "and each motional sideband zoomed. A line 'resolved bin by "
+                             f"over the expected one with the 95 % χ² band, {where}. "
+                             "A line 'resolved bin by "
                              "bin' stands out of the band in single bins; resolving the "
                              "sideband asymmetry (the feasibility numbers above) is a "
                              "different, stricter test."))

@@ -22,7 +22,12 @@ mode), ``occupation[<mode>]``, ``effective_frequency_hz``,
 ``effective_linewidth_hz@<segment>``, ``effective_frequency_hz@<segment>``
 and ``occupation@<segment>`` (the segment's steady state). Text after a colon labels a variant, so
 ``occupation:asymmetry`` and ``occupation:damping`` are both compared with
-the occupation. Other names are reported without a truth (spread only).
+the occupation. With several detected tones (``detection.tones``) an
+estimator runs on each tone's channel alone and its quantities are labelled
+with the tone (``occupation:red_probe``: the device's occupation); the
+coupling rate differs from tone to tone, and ``coupling_rate_hz:<tone>``
+(also with ``[<mode>]``, and after any label of the estimator's) is compared
+with that tone's. Other names are reported without a truth (spread only).
 """
 
 import dataclasses
@@ -80,7 +85,7 @@ def truth_table(scenario):
     from simulator.linear.steady_state import steady_state
     from simulator.model.system import as_system
 
-    system = as_system(scenario, stage="simulator.workflows.trial.truth_table")
+    system = as_system(scenario, several_tones="detected")
     point, steady = system.point, steady_state(system)
     table = {"cavity_occupation": steady.cavity_occupation}
     for j, (mp, ms) in enumerate(zip(point.modes, steady.modes, strict=True)):
@@ -93,6 +98,24 @@ def truth_table(scenario):
             if j == 0:
                 table[key] = value
     table.update(segment_truths(system.scenario))
+    table.update(tone_truths(system))
+    return table
+
+
+def tone_truths(system):
+    """``coupling_rate_hz:<tone>`` (and ``[<mode>]``) of each detected tone of a record
+    of several (``detection.tones``); empty otherwise."""
+    from simulator.model.detected_tone import detected_tone_names, tone_indices, tone_point_of
+
+    names = detected_tone_names(system.scenario)
+    if len(names) < 2:
+        return {}
+    table = {}
+    for name, k in zip(names, tone_indices(system.point, names), strict=True):
+        for j, mode in enumerate(tone_point_of(system.scenario, system.point, k).modes):
+            table[f"coupling_rate_hz[{mode.name}]:{name}"] = mode.coupling_rate_hz
+            if j == 0:
+                table[f"coupling_rate_hz:{name}"] = mode.coupling_rate_hz
     return table
 
 
@@ -120,9 +143,11 @@ def checked_averaged(scenario, averaged, duration_s):
     """``(segment samples, window)`` of ``--averaged`` checked against the record before
     any trial runs (else every trial would fail alike, as if the estimator had)."""
     from simulator.analysis.psd import taper
+    from simulator.model.detected_tone import require_one_detected_tone
     from simulator.model.sample_rate import record_sample_rate
     from simulator.model.system import System
 
+    require_one_detected_tone(scenario, "an averaged spectrum (--averaged)")
     segment, window = averaged
     samples = round(duration_s * record_sample_rate(scenario, System(scenario).chain))
     if isinstance(segment, bool) or not isinstance(segment, (int, np.integer)) or not (
@@ -134,8 +159,11 @@ def checked_averaged(scenario, averaged, duration_s):
 
 
 def truth_of(name, table):
-    """Truth for quantity ``name`` (``base`` or ``base:label``), or None."""
-    return table.get(name.split(":", 1)[0])
+    """Truth for quantity ``name`` (``base`` or ``base:label``), or None; a last label
+    naming a detected tone with a truth of its own (``base:<tone>``) takes that."""
+    base, _, label = name.partition(":")
+    tone = label.rpartition(":")[2]
+    return table.get(f"{base}:{tone}", table.get(base)) if label else table.get(base)
 
 
 @dataclasses.dataclass(frozen=True, eq=False, kw_only=True)
