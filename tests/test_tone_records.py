@@ -360,3 +360,58 @@ def test_probe_lines_are_correlated_beyond_their_geometric_mean():
     ratio = correlation.real**2 / (red * blue)
     assert ratio == pytest.approx((n + 0.5) ** 2 / (n * (n + 1)), rel=0.02)
     assert ratio > 1.5
+
+
+def shared_laser_probes(detection, reference, own_laser=False):
+    """The two-probe device with both probes made by the drive's noisy laser (or the
+    blue one by its own, equally noisy laser) and the local oscillator ``reference``."""
+    white = "linewidth_hz = 50.0\n" if "independent" not in reference else ""
+    noise = f"floor_rad2_per_hz = 1e-12\nfloor_high_hz = 2e7\n{white}"
+    text = two_probe_text(detection + "\n" + reference)
+    text = text.replace('name = "red"', 'name = "red"\nnoise_source = "drive"')
+    blue = "\n[tones.phase_noise]\n" + noise if own_laser else ""
+    text = text.replace('name = "blue"', 'name = "blue"\nnoise_source = "drive"'
+                        if not own_laser else 'name = "blue"')
+    text = text.replace("\n[detection]", blue + "\n[detection]", 1)
+    return parse_scenario(text + "\n[drive.phase_noise]\n" + noise,
+                          source="shared-laser.toml")
+
+
+LO_REFERENCES = {
+    "common, no delay": "",
+    "common, delayed": "local_oscillator_delay_s = 1e-8",
+    "locked": 'local_oscillator_source = "locked"\nlocal_oscillator_lock_bandwidth_hz = 1e5',
+    "independent, noisy": 'local_oscillator_source = "independent"\n'
+                          "[detection.local_oscillator_phase_noise]\n"
+                          "floor_rad2_per_hz = 1e-13\nfloor_high_hz = 2e7",
+}
+
+
+@pytest.mark.filterwarnings("ignore::simulator.model.tone_validity.ToneNoiseWarning")
+@pytest.mark.parametrize("reference", LO_REFERENCES)
+def test_every_demodulator_is_referred_to_its_tones_laser(reference):
+    """Probes made by the drive's noisy laser: each channel of the joint record is the
+    one-tone record of that probe (the same local-oscillator reference: a copy of its
+    laser, delayed or locked, or an independent source with its own phase noise), to
+    1e-10. Before every demodulator was referred to the laser, the channels carried the
+    laser's phase noise unreferenced (15× the one-tone spectrum)."""
+    f = np.linspace(-6e6, 6e6, 201)
+    lo = LO_REFERENCES[reference]
+    joint_system = System(shared_laser_probes('tones = ["red", "blue"]', lo))
+    joint = joint_spectral_matrix(joint_system, f).cross()
+    for j, name in enumerate(("red", "blue")):
+        alone = System(shared_laser_probes(f'tone = "{name}"', lo)).chain
+        assert np.allclose(joint[:, j, j].real, alone.record_spectrum(f), rtol=1e-10, atol=0)
+
+
+@pytest.mark.filterwarnings("ignore::simulator.model.tone_validity.ToneNoiseWarning")
+def test_demodulators_of_two_lasers_with_a_reference_state_are_refused():
+    lo = LO_REFERENCES["locked"]
+    with pytest.raises(InputError, match=r"detection.tones: .* 2 lasers"):
+        System(shared_laser_probes('tones = ["red", "blue"]', lo, own_laser=True))
+    # with no reference state (a copy of each tone's laser) each is referred to its own
+    joint_system = System(shared_laser_probes('tones = ["red", "blue"]', "", own_laser=True))
+    f = np.linspace(-6e6, 6e6, 101)
+    joint = joint_spectral_matrix(joint_system, f).cross()
+    alone = System(shared_laser_probes('tone = "blue"', "", own_laser=True)).chain
+    assert np.allclose(joint[:, 1, 1].real, alone.record_spectrum(f), rtol=1e-10, atol=0)

@@ -31,6 +31,7 @@ import numpy as np
 
 from simulator.errors import InputError
 from simulator.model.optomechanics import OUTPUTS
+from simulator.scenario.tone_sections import detected_tone_names  # noqa: F401  (part of this module's API)
 
 
 def detected_index(scenario, point):
@@ -101,12 +102,6 @@ def _detected_outputs(model, k):
     receiver demodulates (the other tones' fields pass it by, see the module doc)."""
     rows = [2 * k, 2 * k + 1]
     return dataclasses.replace(model, C=model.C[rows], D=model.D[rows], outputs=OUTPUTS)
-
-
-def detected_tone_names(scenario):
-    """The demodulated tones: ``detection.tones``, or the one ``detection.tone``."""
-    det = scenario.detection
-    return det.tones if det.tones is not None else (det.tone,)
 
 
 def require_one_detected_tone(scenario, what):

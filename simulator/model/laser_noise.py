@@ -44,8 +44,11 @@ it has its own intensity table, the same ε; :func:`simulator.scenario.tone_sect
 Each laser's inputs and filters are built once, named after the tone that owns
 it (``laser.*`` for the drive, ``laser.tones.<tone>.*``), and enter every tone
 it makes with that tone's own ᾱ, ā_in and ā_out, in that tone's frame. The
-LO reference above is taken from the laser of the detected tone
-(``detection.tone``) and enters that tone's output; the output of a tone not
+LO reference above is taken from the laser of each demodulated tone
+(``detection.tone``, or every tone of ``detection.tones``: one local
+oscillator, each demodulator referred to its tone's laser; a reference with
+a filter state — a delayed copy or a lock — needs the demodulated tones to
+share one laser) and enters those tones' outputs; the output of a tone not
 demodulated is its field in its own laser's frame (ρ = 0, no LO).
 
 Every classical input is a white input of the model, named ``laser.*``, with
@@ -68,6 +71,7 @@ import dataclasses
 
 import numpy as np
 
+from simulator.errors import InputError
 from simulator.model.laser_blocks import Blocks, quad, stationary_shapes
 from simulator.model.laser_spectra import (  # noqa: F401  (the shapes are part of this module's API)
     floor_shape,
@@ -78,7 +82,12 @@ from simulator.model.laser_spectra import (  # noqa: F401  (the shapes are part 
 )
 from simulator.model.statespace import StateSpace
 from simulator.model.units import angular
-from simulator.scenario.tone_sections import PRIMARY_TONE, noise_lasers, noise_tables
+from simulator.scenario.tone_sections import (
+    PRIMARY_TONE,
+    detected_tone_names,
+    noise_lasers,
+    noise_tables,
+)
 
 PREFIX = "laser."
 TONE_INPUT = "laser.tone"
@@ -178,7 +187,8 @@ def laser_model(model, scenario, point):
     det = scenario.detection
     fields = tone_fields(model, point)
     lasers = noise_lasers(scenario)
-    seen = next(f for f in fields if f.name == det.tone)  # the detected tone
+    seen = set(detected_tone_names(scenario))  # the demodulated tones
+    detected_lasers = _unique(lasers[name][0] for name in detected_tone_names(scenario))
     blocks = Blocks()
     phase_lasers = _unique(lasers[f.name][0] for f in fields)  # the drive's first
     intensities = _unique(lasers[f.name][1] for f in fields)
@@ -189,6 +199,15 @@ def laser_model(model, scenario, point):
     lo_rows = stationary_shapes(blocks, det.local_oscillator_phase_noise, "laser.lo.",
                                  lambda kind: f"local-oscillator {kind}", peak="phase-noise peak")
     reference = _reference(blocks, det)
+    if reference is not None and len(detected_lasers) > 1:
+        raise InputError(
+            f"detection.tones: the tones {', '.join(map(repr, sorted(seen)))} come from "
+            f"{len(detected_lasers)} lasers ({', '.join(map(repr, detected_lasers))}) and "
+            f'detection.local_oscillator_source = "{det.local_oscillator_source}" refers '
+            "each demodulator to its own laser through a filter state, which is modelled "
+            "for one laser only; expected the demodulated tones to share one laser "
+            '(noise_source) or local_oscillator_source = "common" with no delay, or '
+            '"independent"')
     for laser in phase_lasers[1:]:
         phases[laser] = stationary_shapes(blocks, noise_tables(scenario, laser)[0],
                                            *_labels(laser))
@@ -212,7 +231,7 @@ def laser_model(model, scenario, point):
     for laser in intensities:
         if laser not in phases:  # a tone's own intensity noise on a shared laser
             _intensity(blocks, scenario, laser, fields, lasers)
-    own = lasers[seen.name][0]
+    own = detected_lasers[0]
     if reference is not None and own in frequency:
         blocks.drive(frequency[own], reference[0], reference[1])
     return _assemble(model, blocks, fields, {f.name: phases[lasers[f.name][0]] for f in fields},
@@ -286,13 +305,14 @@ def _assemble(model, blocks, fields, phase_rows, lo_rows, reference, det, seen):
         if k in blocks.b:
             b[n0:n0 + blocks.b[k].size, m0 + k] = blocks.b[k]
     source, tau = det.local_oscillator_source, det.local_oscillator_delay_s
+    referenced = False  # the reference state is driven by the (one) demodulated laser once
     for f in fields:
         phase = np.zeros(nl)  # φ_S of the tone's laser as a row over the laser states
         for rows, row in phase_rows[f.name]:
             phase[rows] = row
         a[f.rows, n0:] = np.outer(f.port, phase)
         ref = quad(-1j * f.a_out)
-        if f is not seen:  # a tone nobody demodulates: its field in its laser's frame
+        if f.name not in seen:  # a tone nobody demodulates: its field in its laser's frame
             c[f.out, n0:] += np.outer(f.direct, phase)
         elif source == "common" and tau == 0:
             # −iā_in φ_S + iā_out φ_S = −i√κ_ex ᾱ φ_S
@@ -302,10 +322,12 @@ def _assemble(model, blocks, fields, phase_rows, lo_rows, reference, det, seen):
         else:
             rows, _, gain = reference
             r = rows.start
-            a[n0 + r, n0:] += -gain * phase
+            if not referenced:
+                a[n0 + r, n0:] += -gain * phase
+                referenced = True
             c[f.out, n0 + r] += ref
             c[f.out, n0:] += np.outer(f.direct + (ref if source == "common" else 0.0), phase)
-        if f is seen:
+        if f.name in seen:  # one local oscillator for every demodulator
             for rows, row in lo_rows:  # ρ gains −φ_S,LO: the measured field gains +iā_out φ_S,LO
                 c[f.out, n0 + rows.start:n0 + rows.stop] -= np.outer(ref, row)
     n_total = np.zeros((m, m))

@@ -229,6 +229,12 @@ def noise_tables(scenario, name):
     return tone.phase_noise, tone.intensity_noise, f"tones[{i}]"
 
 
+def detected_tone_names(scenario):
+    """The demodulated tones: ``detection.tones``, or the one ``detection.tone``."""
+    det = scenario.detection
+    return det.tones if det.tones is not None else (det.tone,)
+
+
 def detected_tones_problems(scenario, tones):
     """Checks of ``detection.tones`` against the tones and the receiver: ``(key, message)``.
 
