@@ -29,7 +29,8 @@ inferred from n lies z standard deviations from the classical R = 1
 (σ_R = σ_n/(n + 1)², 1 − R = 1/(n + 1)). This time assumes the exact model
 with only those parameters unknown; the lineshape time of
 :func:`simulator.analysis.feasibility.asymmetry_time` frees the whole
-lineshape of one record and is longer.
+lineshape of one record (floor, centre, width, both areas) and is usually
+the longer one.
 """
 
 import dataclasses
@@ -183,31 +184,37 @@ def tone_set_bounds(system, tone_sets, mode=0, paths=None, *,
 
 
 def detected_tone_sets(scenario):
-    """The sets the report compares: every ``[[tones]]`` tone alone, and all together.
+    """The sets the report compares: each tone alone, then all together.
 
-    Empty for a scenario with the drive alone or with one added tone and an
-    ``if`` record (whose joint record is not built).
+    The tones are the ``[[tones]]`` (probes; the ``[drive]`` is taken as the
+    cooling tone, not recorded) when there are two or more, else the drive and
+    the one added tone. Empty for the drive alone and for ``if`` records
+    (whose joint record is not built).
     """
     from simulator.model.chain import receiver_of
 
     names = tuple(t.name for t in scenario.tones)
-    if len(names) < 2 or receiver_of(scenario) == "if":
+    if not names or receiver_of(scenario) == "if":
         return []
+    if len(names) == 1:
+        names = ("drive",) + names
     return [(name,) for name in names] + [names]
 
 
 def tone_set_text(bounds):
-    """Terminal lines of :func:`tone_set_bounds` (the joint set last)."""
-    if not bounds:
-        return []
-    first = bounds[0]
-    lines = ["", f"feasibility of the tones recorded together, mode {first.mode} "
-                 "(joint Whittle information of every receiver's channels)",
-             f"  unknown: {', '.join(first.paths)}; T: the sideband ratio n/(n+1) told from 1 "
-             f"at {first.significance:g} standard deviations"]
-    for b in bounds:
-        label = (" and ".join(b.tones) + " together") if len(b.tones) > 1 else (
-            f"{b.tones[0]} alone")
-        lines.append(f"  {label + ':':<38} σ_n after 1 s {b.error_one_second:.4g}, "
-                     f"T = {b.duration_s:.4g} s")
+    """Terminal lines of :func:`tone_set_bounds`, one block per mechanical mode."""
+    lines = []
+    for mode in dict.fromkeys(b.mode for b in bounds):
+        block = [b for b in bounds if b.mode == mode]
+        first = block[0]
+        lines += ["", f"feasibility of the tones recorded together, mode {mode} "
+                      "(joint Whittle information of every receiver's channels)",
+                  f"  unknown: {', '.join(first.paths)}",
+                  f"  T: the sideband ratio n/(n+1) told from 1 at {first.significance:g} "
+                  "standard deviations, from σ_n"]
+        for b in block:
+            label = (" and ".join(b.tones) + " together" if len(b.tones) > 1
+                     else f"{b.tones[0]} alone")
+            lines.append(f"  {label + ':':<36} σ_n after 1 s {b.error_one_second:.4g}, "
+                         f"T = {b.duration_s:.4g} s")
     return lines
