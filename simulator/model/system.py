@@ -111,12 +111,15 @@ class System:
         several tones, which ``what`` does not support yet."""
         if self.several_tones:
             names = ", ".join(repr(t.name) for t in self.point.tones)
+            why = next((text for stage, text in _WHY_ONE_TONE if what.startswith(stage)), "")
             raise InputError(
                 f"{what} does not yet support several drive tones (this scenario has "
-                f"{names}); supported so far: the operating point, the linear model, its "
-                "stability, the steady state, and for the tone named by detection.tone "
-                "the spectra, sideband summary, noise budget, records, feasibility, "
-                "inspect, plan and sweep; remove the [[tones]] tables for everything else")
+                f"{names}){why}; supported so far: the operating point, the linear model, its "
+                "stability, the steady state (every tone included), and for the tone named "
+                "by detection.tone the spectra, sideband summary, noise budget, records, "
+                "feasibility, inspect, plan and sweep, and the joint bound of several "
+                "recorded tones (simulator.analysis.joint_feasibility); remove the [[tones]] "
+                "tables for everything else")
         return self
 
     def replace(self, path, value):
@@ -167,4 +170,17 @@ def as_system(item, *, several_tones=False, stage=None):
     return item if several_tones else item.require_one_tone(stage or _UNNAMED_STAGE)
 
 
+# Why a stage refuses several tones, by the start of its public name
+_WHY_ONE_TONE = (
+    ("simulator.master", ": its Fock space holds one cavity mode in the frame of the drive, "
+     "and each added tone is a linearised field in a frame of its own (one Hilbert factor "
+     "per field) that is not built; for the occupation with every tone use the linear "
+     "steady state (simulator.linear.steady_state), whose weak-coupling check sums the "
+     "tones' rates (Marquardt, Chen, Clerk & Girvin, Phys. Rev. Lett. 99, 093902 (2007))"),
+    ("simulator.linear.occupation_gap", ": the split re-solves the model without each "
+     "cause at the same operating point, and the other tones' lines and scattering are "
+     "not yet such a cause; the detected tone's sideband summary "
+     "(simulator.linear.sidebands.sideband_summary) gives its ratio occupation beside the "
+     "exact one"),
+)
 _UNNAMED_STAGE = "this computation"  # for a caller that does not name its stage

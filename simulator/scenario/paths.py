@@ -121,8 +121,7 @@ def resolve_names(scenario, path):
     out, node, k = [], scenario, 0
     while k < len(parts):
         name, index = parts[k]
-        fields = {f.name for f in schema.public_fields(type(node))}
-        if node is None or name not in fields:
+        if node is None or name not in {f.name for f in schema.public_fields(type(node))}:
             break  # past the sections: the rest as given (a dBm twin, or the usual error)
         kind, _, _ = schema.field_kind(type(node), name)
         child = getattr(node, name)
