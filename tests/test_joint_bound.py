@@ -172,9 +172,9 @@ def test_score_variance_of_joint_records_is_the_joint_information(probes):
 
 
 @pytest.mark.parametrize("stage, reason", [
-    ("simulator.master.steady.master_steady_state", "one cavity mode in the frame of the drive"),
+    ("simulator.master.steady.master_steady_state", "one Hilbert factor per tone field"),
     ("simulator.linear.occupation_gap.occupation_gaps", "not yet such a cause")])
 def test_stages_that_refuse_several_tones_say_why_and_what_instead(probes, stage, reason):
     with pytest.raises(InputError, match=reason) as refused:
         System(probes).require_one_tone(stage)
-    assert "simulator.linear" in str(refused.value)  # what to use instead
+    assert "simulator.linear." in str(refused.value)  # what to use instead

@@ -173,10 +173,11 @@ def as_system(item, *, several_tones=False, stage=None):
 # Why a stage refuses several tones, by the start of its public name
 _WHY_ONE_TONE = (
     ("simulator.master", ": its Fock space holds one cavity mode in the frame of the drive, "
-     "and each added tone is a linearised field in a frame of its own (one Hilbert factor "
-     "per field) that is not built; for the occupation with every tone use the linear "
-     "steady state (simulator.linear.steady_state), whose weak-coupling check sums the "
-     "tones' rates (Marquardt, Chen, Clerk & Girvin, Phys. Rev. Lett. 99, 093902 (2007))"),
+     "and the full model of several tones beats at their spacing (no stationary state in "
+     "one frame); for the steady state with every tone use the linearised master equation "
+     "with one Hilbert factor per tone field, "
+     "simulator.master.tone_fields.tone_fields_steady_state, or the linear steady state "
+     "(simulator.linear.steady_state), which it reproduces"),
     ("simulator.linear.occupation_gap", ": the split re-solves the model without each "
      "cause at the same operating point, and the other tones' lines and scattering are "
      "not yet such a cause; the detected tone's sideband summary "
