@@ -171,10 +171,7 @@ def test_score_variance_of_joint_records_is_the_joint_information(probes):
     assert abs(pair - apart) > error * pair
 
 
-@pytest.mark.parametrize("stage, reason", [
-    ("simulator.master.steady.master_steady_state", "one Hilbert factor per tone field"),
-    ("simulator.linear.occupation_gap.occupation_gaps", "not yet such a cause")])
-def test_stages_that_refuse_several_tones_say_why_and_what_instead(probes, stage, reason):
-    with pytest.raises(InputError, match=reason) as refused:
-        System(probes).require_one_tone(stage)
-    assert "simulator.linear." in str(refused.value)  # what to use instead
+def test_the_master_equation_says_why_it_refuses_and_what_instead(probes):
+    with pytest.raises(InputError, match="one Hilbert factor per tone field") as refused:
+        System(probes).require_one_tone("simulator.master.steady.master_steady_state")
+    assert "simulator.master.tone_fields" in str(refused.value)  # what to use instead

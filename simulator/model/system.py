@@ -178,10 +178,5 @@ _WHY_ONE_TONE = (
      "with one Hilbert factor per tone field, "
      "simulator.master.tone_fields.tone_fields_steady_state, or the linear steady state "
      "(simulator.linear.steady_state), which it reproduces"),
-    ("simulator.linear.occupation_gap", ": the split re-solves the model without each "
-     "cause at the same operating point, and the other tones' lines and scattering are "
-     "not yet such a cause; the detected tone's sideband summary "
-     "(simulator.linear.sidebands.sideband_summary) gives its ratio occupation beside the "
-     "exact one"),
 )
 _UNNAMED_STAGE = "this computation"  # for a caller that does not name its stage
