@@ -105,6 +105,15 @@ def test_channels_that_share_no_noise_add_their_information():
     assert parts[0][1, 1] < 1e-6 * parts[1][1, 1]  # each record sees only its own mode
 
 
+def test_joint_samples_approach_the_continuous_joint_record(probes):
+    """sinc² → 1 and the aliases vanish as fs grows: the joint information of the samples
+    rises towards that of the continuous records (a function of which they are)."""
+    info = [joint_fisher(probes, PROBES, [(BATH,)], sample_rate_hz=fs)[0][0, 0]
+            for fs in (2.5e7, 6e7, 2.4e8, np.inf)]
+    assert info[0] < info[1] < info[2] <= info[3] * (1 + 1e-9)
+    assert info[2] == pytest.approx(info[3], rel=1e-2)
+
+
 def test_if_records_and_unknown_tones_are_refused(probes):
     with pytest.raises(InputError, match="iq and homodyne"):
         real = probes.replace("detection.intermediate_frequency_hz", 1e6)
