@@ -58,6 +58,9 @@ def test_one_tone_is_its_own_bound_and_the_pair_is_at_least_either(probes):
     alone = joint_fisher(probes, ["red_probe"], [paths])[0]
     np.testing.assert_allclose(alone, own, rtol=1e-9)
     pair = joint_fisher(probes, PROBES, [paths])[0]
+    # the receiver's view of the system (one tone's output) is rebuilt whole
+    np.testing.assert_array_equal(joint_fisher(System(probes).detected, PROBES, [paths])[0],
+                                  pair)
     for tone in PROBES:
         single = joint_fisher(probes, [tone], [paths])[0]
         scale = np.sqrt(np.outer(np.diag(pair), np.diag(pair)))

@@ -48,10 +48,14 @@ from simulator.errors import InputError
 
 
 def _full_system(item):
-    """The whole System (every tone's field), stable."""
-    from simulator.model.system import as_system
+    """The whole System (every tone's field), stable; a detected view (one tone's output,
+    :attr:`System.detected`) is rebuilt whole from its scenario."""
+    from simulator.model.system import System, as_system
 
-    return as_system(item, several_tones=True).require_stable()
+    system = as_system(item, several_tones=True)
+    if system.several_tones and system.detected is system:
+        system = System(system.scenario)
+    return system.require_stable()
 
 
 class _JointModels:
