@@ -84,9 +84,13 @@ def _grid(system, sample_rate_hz):
     Up to π fs for samples; for the continuous record up to the farthest line
     plus twenty of the broadest half-widths.
     """
+    return _grid_of_form(system.chain.channel_form(_finite(sample_rate_hz)), sample_rate_hz)
+
+
+def _grid_of_form(form, sample_rate_hz):
+    """:func:`_grid` of a record's (sampled) :class:`~simulator.model.poles.PoleForm`."""
     from simulator.analysis.information import record_grid
 
-    form = system.chain.channel_form(_finite(sample_rate_hz))
     if math.isfinite(sample_rate_hz):
         return record_grid(form, np.pi * sample_rate_hz)
     centres, widths = form.lines()

@@ -29,6 +29,7 @@ class Inspection:
     feasibility: tuple = ()  # per mode: dict of measurement-time bounds (heterodyne)
     regime: object = None  # simulator.master.regime.RegimeVerdict: is the linear engine valid?
     laser: tuple = ()  # per mode: laser-noise occupations (simulator.model.laser_noise)
+    tone_sets: tuple = ()  # several recorded tones: bounds of each alone and all together
 
     @property
     def scenario(self):
@@ -101,9 +102,11 @@ class Inspection:
             "cavity_occupation": None if st is None else st.cavity_occupation,
             "modes": modes,
             "feasibility": [dict(f) for f in self.feasibility],
+            **({"tone_sets": [dataclasses.asdict(b) for b in self.tone_sets]}
+               if self.tone_sets else {}),
             **({"detected_tone": detected_tone_names(self.scenario)[0],
-                "tones": tone_rows(p, detected_tone_names(self.scenario)[0])}
-               if p.several_tones else {}),
+                "tones": tone_rows(p, detected_tone_names(self.scenario)[0])} if p.several_tones
+               else {}),
             "regime": None if self.regime is None else self.regime.to_dict(),
             "warnings": list(self.warnings),
         }
@@ -163,6 +166,10 @@ class Inspection:
                              f"{f['asymmetry_time_s']:.4g} s at {f['significance']:g} "
                              "standard deviations")
                 lines += _long_time_hint(f)
+        if self.tone_sets:
+            from simulator.analysis.joint_feasibility import tone_set_text
+
+            lines += tone_set_text(self.tone_sets)
         if d["regime"] is not None:
             lines += ["", f"regime (linear engine validity)  {d['regime']['level']}",
                       f"  {d['regime']['reason']}"]
@@ -277,9 +284,24 @@ def inspect_scenario(system, *, feasibility=True):
                  f"trusted: {entry['apparent_occupation_warning']}"
                  for ms, entry in zip(steady.modes if steady else (), laser, strict=False)
                  if "apparent_occupation_warning" in entry]
+    tone_sets = (_tone_sets(system, feasibility) if steady is not None and feasibility
+                 else ())
     return Inspection(system=system, steady=steady,
                       warnings=tuple(warnings), feasibility=feasibility, regime=regime,
-                      laser=laser)
+                      laser=laser, tone_sets=tone_sets)
+
+
+def _tone_sets(system, feasibility):
+    """Bounds of the added tones recorded each alone and all together, for every mode
+    with a bound (simulator.analysis.joint_feasibility); empty with fewer than two."""
+    from simulator.analysis.joint_feasibility import detected_tone_sets, tone_set_bounds
+
+    sets = detected_tone_sets(system.scenario)
+    if not sets:
+        return ()
+    names = [m.name for m in system.scenario.mechanics]
+    return tuple(b for f in feasibility
+                 for b in tone_set_bounds(system.scenario, sets, names.index(f["mode"])))
 
 
 def _tone_points(system):

@@ -84,6 +84,15 @@ def _run(scenario, out, workers, dask, progress, best):
                           f"time to resolve the asymmetry at "
                           f"{data['feasibility'][0]['significance']:g}σ (s)"])))
 
+    if data.get("tone_sets"):
+        rows = [[b["mode"], " and ".join(b["tones"]), b["error_one_second"], b["duration_s"]]
+                for b in data["tone_sets"]]
+        details.append(("Feasibility of the tones recorded together (joint Whittle)",
+                        html.table(rows, header=[
+                            "mode", "recorded tones", "occupation error after 1 s",
+                            f"time T for n/(n+1) ≠ 1 at "
+                            f"{data['tone_sets'][0]['significance']:g}σ (s)"])))
+
     record_part = _record_part(system, out, wrote, figures, progress)
     if record_part:
         details.append(("Record", record_part))
