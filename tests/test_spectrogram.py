@@ -154,3 +154,22 @@ def test_bad_inputs_are_refused_with_the_name_and_the_expectation():
         expected_sideband_power(plan, F_M, 10**9)
     with pytest.raises(InputError, match="frequency_hz"):
         expected_sideband_power(plan, float("nan"), 10)
+
+
+def test_protocol_figure_draws_the_expected_sideband_power(tmp_path):
+    from simulator.records.protocol_generate import generate_protocol_record
+    from simulator.report.protocol_plots import plot_protocol
+
+    scenario = make([{"duration_s": 2e-4, "excite_phonons": 3e4},
+                     {"duration_s": 4e-4, "changes": PROBE}])
+    record, timeline = generate_protocol_record(scenario, seed=4)
+    path = plot_protocol(record, timeline, tmp_path / "protocol.png", scenario=scenario)
+    assert path.stat().st_size > 10_000
+    # where the ring-down dominates, the measured blocks sit on the expectation
+    block = 40
+    _, measured = demodulated_power(record.shot_noise_units(), FS, F_M, block)
+    _, expected, coherent = expected_sideband_power(plan_protocol(scenario, seed=4), F_M,
+                                                    block)
+    loud = coherent > 100 * (expected - coherent)
+    assert loud.sum() >= 5
+    assert np.allclose(measured[loud] / expected[loud], 1.0, atol=0.3)
