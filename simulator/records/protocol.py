@@ -100,6 +100,18 @@ class ProtocolPlan(RecordPlan):
     start_covariance: np.ndarray
     timeline: Timeline
 
+    def recursion_stepper(self):
+        """The full-state recursion of every segment in turn, the state carried over."""
+        from simulator.records.protocol_generate import segment_stepper
+
+        return segment_stepper(self)
+
+    def tone_samples(self):
+        """The calibration tone's samples of every segment, or None when none has one."""
+        from simulator.records.protocol_generate import segment_tone
+
+        return segment_tone(self)
+
 
 def segment_systems(scenario):
     """``(name, System)`` of every segment of ``scenario``'s schedule, checked stable."""
