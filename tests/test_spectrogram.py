@@ -39,12 +39,20 @@ F_M = 300e3  # the test mode's frequency (anti-Stokes line at +f_m in I + iQ)
 Z_LIMIT = 5.0  # standard normal: a 5σ excursion has probability 6e-7 per cell
 
 
-def test_one_stationary_segment_is_the_windowed_expected_periodogram():
-    plan = plan_protocol(make([{"duration_s": 1e-3}], start="steady"))
+@pytest.mark.parametrize("scheme", ["heterodyne", "homodyne"])
+def test_one_stationary_segment_is_the_windowed_expected_periodogram(scheme):
+    scenario = make([{"duration_s": 1e-3}], start="steady").replace("detection.scheme", scheme)
+    plan = plan_protocol(scenario)
     for window in ("hann", "boxcar"):
         spec = expected_spectrogram(plan, window_samples=256, hop_samples=100, window=window)
-        _, stationary, _ = bin_law(plan, 256, window)
-        assert spec.density.shape == (18, 256)
+        expectation, stationary, _ = bin_law(plan, 256, window)
+        axis = expectation.frequency_hz
+        if scheme == "homodyne":  # one-sided on 0 < f < fs/2, as averaged_periodogram
+            half = (axis > 0) & (axis < FS / 2)
+            stationary, axis = 2 * stationary[half], axis[half]
+            assert spec.sided == "one-sided"
+        assert np.array_equal(spec.frequency_hz, axis)
+        assert spec.density.shape == (18, len(stationary))
         assert np.allclose(spec.density, stationary[None], rtol=1e-10, atol=0)
         assert np.all(spec.coherent == 0)
 
