@@ -117,3 +117,13 @@ def test_unstable_segments_that_cannot_run_are_refused_with_the_reason():
     assert plan.timeline.occupation[0, 0] == pytest.approx(N_TH)
     cavity = plan.timeline.cavity_occupation[0]
     assert 0 <= cavity < 1  # the cavity's own steady state: a few thermal photons at most
+
+
+def test_trial_truth_of_an_unstable_segment_is_its_poles():
+    from simulator.workflows.trial import segment_truths
+
+    table = segment_truths(make([{"duration_s": 1e-4, "name": "cool"},
+                                 {"duration_s": 1e-4, "name": "blue", "changes": BLUE}]))
+    assert table["effective_linewidth_hz@blue"] == pytest.approx(rates()[0] / (2 * np.pi),
+                                                                 rel=WEAK_COUPLING_RTOL)
+    assert "occupation@blue" not in table and table["occupation@cool"] > 0
