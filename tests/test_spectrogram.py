@@ -36,6 +36,7 @@ from simulator.records.protocol_generate import run_segments
 
 PROBE = {"drive.detuning_hz": 0.0}  # the tone on resonance: no optical damping
 F_M = 300e3  # the test mode's frequency (anti-Stokes line at +f_m in I + iQ)
+TONE_HZ = 125e3  # the calibration tone's offset (a bin of 128-sample windows at 2 MHz)
 Z_LIMIT = 5.0  # standard normal: a 5σ excursion has probability 6e-7 per cell
 
 
@@ -69,10 +70,15 @@ def test_windows_across_a_boundary_of_identical_segments_equal_one_segment():
 
 
 def protocol_scenario():
-    """Kick (300 phonons) while cooled, then a resonant probe: the mode re-heats."""
-    return make([{"duration_s": 2e-4, "excite_phonons": 300.0},
-                 {"duration_s": 4e-4, "changes": PROBE}], start="occupation",
-                start_occupation=5.0)
+    """Kick (300 phonons) while cooled, then a resonant probe with a calibration tone."""
+    from simulator.scenario.loader import scenario_from_dict
+
+    data = make([{"duration_s": 2e-4, "excite_phonons": 300.0},
+                 {"duration_s": 4e-4, "changes": dict(PROBE)}], start="occupation",
+                start_occupation=5.0).to_dict()
+    data["drive"]["calibration_tone"] = {"depth_rad": 0.0, "frequency_hz": TONE_HZ}
+    data["schedule"]["segments"][1]["changes"]["drive.calibration_tone.depth_rad"] = 1e-2
+    return scenario_from_dict(data, source="<test>")
 
 
 def test_monte_carlo_of_scheduled_records_matches_the_expected_spectrogram():
@@ -105,6 +111,9 @@ def test_monte_carlo_of_scheduled_records_matches_the_expected_spectrogram():
         assert np.mean(z_score**2) == pytest.approx(1.0, abs=0.2)  # the χ² per cell ≈ 1
     line = np.argmin(np.abs(spec.frequency_hz - F_M))
     assert spec.density[0, line] > 20 * spec.density[0, 0]  # the kicked line stands out
+    tone = np.argmin(np.abs(spec.frequency_hz - TONE_HZ))
+    assert spec.coherent[-1, tone] > 3 * (spec.density - spec.coherent)[-1, tone]
+    assert spec.coherent[0, tone] < 1e-6 * spec.coherent[-1, tone]  # the probe's own tone
 
 
 def sideband_area(spec):

@@ -207,7 +207,6 @@ class _Segment:
         from simulator.model.tone import tone_signal
 
         d = seg.discrete
-        n = len(d.states)
         self.phi, self.first, self.end = d.transition, seg.first, seg.first + seg.n_samples
         self.kick_index, self.kick = seg.kick_index, seg.kick
         self.gz = c @ d.output  # Γ_z, complex row
@@ -218,7 +217,6 @@ class _Segment:
                                 + c @ d.output_noise @ c.conj())
                         + rounding_var * np.sum(np.abs(c) ** 2))
         self.tone = tone_signal(seg.chain, seg.system.scenario, fs)
-        self.c, self.n = c, n
         self.cache = {}
 
 
