@@ -170,6 +170,22 @@ class RecordPlan:
     watched: np.ndarray  # state indices of the mechanical quadratures to store
     innovations: object = None
 
+    def recursion_stepper(self):
+        """The recursion the record runs, bound to its kernel (:func:`kernels.stepper`).
+
+        The hook :func:`generate` calls; a scheduled record's plan returns a
+        stepper that switches models at segment boundaries instead.
+        """
+        from simulator.records.kernels import stepper
+
+        return stepper(self)
+
+    def tone_samples(self):
+        """``signal(first, count)``: the calibration tone's samples, or None without one."""
+        from simulator.model.tone import tone_signal
+
+        return tone_signal(self.chain, self.scenario, self.sample_rate_hz)
+
     @property
     def volts_per_count(self):
         """Voltage step of one digitiser count (V): full range 2·full_scale_v / 2^bits."""
@@ -357,14 +373,13 @@ def generate(plan, sink, *, chunk, progress=None, workers=1):
     a tone is digitised here instead, block by block after the recursion. The
     counts are the same bits for any number of workers.
     """
-    from simulator.model.tone import tone_signal
     from simulator.records import kernels, pipeline
 
     chain, n_total = plan.chain, plan.n_samples
-    step = kernels.stepper(plan)
+    step = plan.recursion_stepper()
     p = len(chain.model.outputs)
     digitiser = kernels.Digitiser(plan)
-    tone = tone_signal(plan.chain, plan.scenario, plan.sample_rate_hz)
+    tone = plan.tone_samples()
     cycles = chain.carrier_rad_s / (2 * np.pi * plan.sample_rate_hz)
     encode = getattr(sink, "encode", None)
 

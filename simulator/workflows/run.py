@@ -207,7 +207,8 @@ def _record_part(system, out, wrote, figures, progress):
         warnings.simplefilter("always")
         record = simulate_record(system, out=path, progress=progress, overwrite=True)
     if system.scenario.schedule is not None and record.kind == "iq":
-        _protocol_figure(path, wrote(out / "record_protocol.png"), figures)
+        _protocol_figure(system.scenario, path, wrote(out / "record_protocol.png"),
+                         figures)
     elif system.scenario.schedule is None:  # a stationary record against its spectrum
         png = wrote(out / "record_spectrum.png")
         plot_record_sidebands(system, record, png)
@@ -232,16 +233,18 @@ def _record_part(system, out, wrote, figures, progress):
                                        "linewidth (Hz)"]))
 
 
-def _protocol_figure(path, png, figures):
+def _protocol_figure(scenario, path, png, figures):
     """The figure of a scheduled record in time (docs/records.md, "Schedules")."""
     from simulator.io.recordfile import load_record
     from simulator.io.timelinefile import read_timeline
     from simulator.report.protocol_plots import plot_protocol
 
-    plot_protocol(load_record(path), read_timeline(path), png, overwrite=True)
+    plot_protocol(load_record(path), read_timeline(path), png, overwrite=True,
+                  scenario=scenario)
     figures.append((png, "Scheduled record: the true thermal occupation and coherent phonon "
                          "number of the first mode in time, above the record's anti-Stokes "
-                         "sideband power; the segments shaded and named."))
+                         "sideband power and its exact expectation; the segments shaded "
+                         "and named."))
 
 
 def _sweep_part(scenario, out, wrote, figures, workers, dask, progress):
