@@ -57,6 +57,10 @@ def detected_parts(scenario, point, model):
             "drive.calibration_tone) nor a local oscillator with noise of its own; "
             "supported so far with [[tones]]: quiet tones, and the steady state with a "
             "noisy drive (simulator.linear.steady_state)")
+    if scenario.detection.backaction_evading:  # the pair's field, at its mean frequency
+        from simulator.model.backaction_evasion import pair_point
+
+        return pair_point(scenario, point), model
     k = detected_index(scenario, point)
     seen = point if k == 0 else tone_point_of(scenario, point, k)
     return seen, _detected_outputs(model, k)
