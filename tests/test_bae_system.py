@@ -1,0 +1,171 @@
+"""The back-action-evading pair as a System: budget, closed forms and the exact periodic model.
+
+A scenario with ``detection.backaction_evading = true`` and tones at ±Ωm
+about one cavity mode builds the rotating-wave two-tone model of Clerk,
+Marquardt & Jacobs, New J. Phys. 10, 095010 (2008), with the counter-rotating
+terms as a stated bath correction (simulator/model/backaction_evasion.py).
+Checks: the measured quadrature X1 carries no back-action but the
+counter-rotating residual, which scales as (κ/4Ωm)²; the imprecision and the
+conjugate quadrature's heating against their closed forms; the System's X1
+and X2 variances and its mechanical line (width and frequency) against the
+exact linearised equations with time-periodic coefficients
+(tests/periodic_linear.py), where nothing is dropped.
+"""
+
+import numpy as np
+import pytest
+from periodic_linear import optomechanical_diffusion, optomechanical_drift, periodic_covariance
+from scipy.integrate import solve_ivp
+from tone_scenarios import CARRIER_HZ, G0_HZ, OMEGA_HZ, scenario_text, tone_table
+
+from simulator.errors import InputError, ScenarioError
+from simulator.linear.quadratures import (
+    closed_form_variances,
+    imprecision_closed_form,
+    quadrature_budget,
+)
+from simulator.linear.spectra import homodyne_spectrum, state_spectrum
+from simulator.linear.steady_state import steady_state
+from simulator.model.backaction_evasion import backaction_evading_model, pair_parameters
+from simulator.model.system import System
+from simulator.model.units import angular
+from simulator.scenario.loader import parse_scenario
+
+PHOTONS, GAMMA_HZ = 1e4, 10.0
+PAIR = "\n[detection]\nbackaction_evading = true\nefficiency = {eta!r}\n"
+
+
+def pair(kappa_hz=200e3, *, upper_photons=PHOTONS, n_bath=0.0, cavity_bath=0.0, eta=1.0,
+         spacing_offset_hz=0.0):
+    """Lower tone (the drive) at −Ωm, upper at +Ωm (+ offset), declared a pair."""
+    upper = tone_table("upper", upper_photons, OMEGA_HZ + spacing_offset_hz,
+                       kappa_hz=kappa_hz, frequency_hz=CARRIER_HZ + 2 * OMEGA_HZ)
+    text = scenario_text(drive_photons=PHOTONS, bath_occupation=n_bath,
+                         linewidth_hz=GAMMA_HZ, kappa_hz=kappa_hz,
+                         extra=PAIR.format(eta=eta) + upper)
+    return parse_scenario(text.replace("[[mechanics]]",
+                                       f"bath_occupation = {cavity_bath!r}\n[[mechanics]]", 1))
+
+
+def exact_periodic(scenario, samples=64):
+    """Period-averaged X1, X2 variances and the mechanical Floquet multipliers of the
+    exact linearised equations (one frame, the lower tone's; mechanics in the lab)."""
+    point = System(scenario).point
+    low, up = sorted(point.tones, key=lambda t: t.detuning_effective_hz)
+    d_low = angular(low.detuning_effective_hz)
+    nu2 = angular(up.detuning_effective_hz) - d_low
+    cav, mode = point.cavity_modes[0], point.modes[0]
+    fields = [dict(kappa=angular(cav.linewidth_hz), kappa_ex=angular(cav.external_linewidth_hz),
+                   n_bath=cav.bath_occupation, detuning=d_low, g0=[angular(G0_HZ)],
+                   tones=[(np.sqrt(low.photon_number), 0.0), (np.sqrt(up.photon_number), nu2)])]
+    mech = [dict(frequency=angular(OMEGA_HZ), linewidth=angular(GAMMA_HZ),
+                 n_bath=mode.bath_occupation)]
+    drift, n = optomechanical_drift(fields, mech)
+    period = 2 * np.pi / nu2
+    vs = periodic_covariance(drift, optomechanical_diffusion(fields, mech), period, n,
+                             samples=samples, average=False)[:-1]
+    x1 = x2 = 0.0
+    for t, v in zip(np.arange(samples) * period / samples, vs, strict=True):
+        c, s = np.cos(nu2 / 2 * t), np.sin(nu2 / 2 * t)
+        x1 += np.array([c, -s]) @ v[2:4, 2:4] @ np.array([c, -s]) / samples
+        x2 += np.array([s, c]) @ v[2:4, 2:4] @ np.array([s, c]) / samples
+    monodromy = solve_ivp(lambda t, y: (drift(t) @ y.reshape(n, n)).ravel(), (0, period),
+                          np.eye(n).ravel(), method="DOP853", rtol=1e-12,
+                          atol=1e-14).y[:, -1].reshape(n, n)
+    mu = np.linalg.eigvals(monodromy)
+    return x1, x2, mu[np.argsort(-np.abs(mu))[:2]], period
+
+
+@pytest.mark.parametrize("kappa_hz", [400e3, 100e3])
+def test_measured_quadrature_is_free_of_backaction_up_to_counter_rotating_terms(kappa_hz):
+    """Equal couplings, ν = Ωm: the cavity's noise reaches X1 only through the
+    counter-rotating terms, ½ (κ/4Ωm)² of the heating of X2 (module notes of
+    simulator.linear.quadratures), and the exact periodic X1 agrees (the exact
+    residual itself is checked in tests/test_backaction_evasion.py)."""
+    budget = quadrature_budget(pair(kappa_hz))
+    small = (kappa_hz / (4 * OMEGA_HZ)) ** 2
+    assert abs(budget.x1_backaction) < 1e-12 * budget.x2_heating
+    ratio = budget.x1_counter_rotating / budget.x2_heating
+    assert ratio / small == pytest.approx(0.5, rel=0.02)
+    x1, x2, _, _ = exact_periodic(pair(kappa_hz))
+    assert budget.x1_counter_rotating == pytest.approx(x1 - 0.5, rel=1e-3)
+    assert budget.x2_variance == pytest.approx(x2, rel=1e-6)
+
+
+def test_counter_rotating_residual_scales_as_kappa_squared():
+    """Halving κ quarters the residual back-action on X1 relative to X2's heating."""
+    ratios = []
+    for kappa_hz in (400e3, 200e3, 100e3):
+        b = quadrature_budget(pair(kappa_hz))
+        ratios.append(b.x1_counter_rotating / b.x2_heating)
+    assert ratios[0] / ratios[1] == pytest.approx(4.0, rel=1e-3)
+    assert ratios[1] / ratios[2] == pytest.approx(4.0, rel=1e-3)
+    pure = backaction_evading_model(pair(400e3), counter_rotating=False).covariance()
+    assert pure[2, 2] == pytest.approx(0.5, abs=1e-12)  # the rotating-wave model alone
+
+
+def test_variances_against_closed_forms():
+    """Var X1 = n_th + ½ + (A+ + A−)(n_c + ½)/Γm and Var X2 = Var X1 + 4c²(n_c + ½)/
+    (Γm(Γm + κ)): derived from the model's equations (simulator.linear.quadratures),
+    with a hot drum and a hot internal loss."""
+    scenario = pair(200e3, n_bath=30.0, cavity_bath=0.2)
+    budget = quadrature_budget(scenario)
+    x1, x2 = closed_form_variances(pair_parameters(scenario, System(scenario).point))
+    assert budget.x1_variance == pytest.approx(x1, rel=1e-9)
+    assert budget.x2_variance == pytest.approx(x2, rel=1e-9)
+    assert sum(budget.x2_by_source.values()) == pytest.approx(budget.x2_variance, rel=1e-9)
+
+
+def test_imprecision_referred_to_x1_against_closed_form():
+    """The phase quadrature's homodyne spectrum over the transduction of X1 is X1's own
+    spectrum plus S_imp(f) = (κ²/4 + ω²)/(2ηκex c²) + κin n_bath/c² (closed form of the
+    module notes; its ω = 0 value as in Clerk, Marquardt & Jacobs (2008), Sec. 3,
+    recalled from memory)."""
+    eta = 0.6
+    scenario = pair(200e3, n_bath=5.0, cavity_bath=0.3, eta=eta)
+    system = System(scenario)
+    p = pair_parameters(scenario, system.point)
+    f = np.array([0.0, 3.0, 30.0, 3e3, 1e5])
+    detected = homodyne_spectrum(system, f, quadrature_angle=np.pi / 2).total
+    x1 = state_spectrum(system.model, f, ["drum.X1"])[:, 0, 0].real
+    c, w = p.g_minus + p.g_plus, angular(f)
+    transduction = 2 * eta * p.kappa_ex * c**2 / (p.kappa**2 / 4 + w**2)
+    imprecision = (detected - 1) / transduction - x1 + 1 / transduction
+    assert imprecision == pytest.approx(imprecision_closed_form(p, f, eta), rel=1e-7)
+    budget = quadrature_budget(system)
+    assert budget.imprecision_per_hz == pytest.approx(imprecision_closed_form(p, 0.0, eta))
+    assert budget.imprecision_quanta < 0.5  # below the one-tone standard quantum limit
+
+
+def test_mechanical_line_against_floquet_multipliers():
+    """Unequal couplings (G+ = G−/2) and ν off Ωm by 50 Hz: the counter-rotating
+    damping and spring are not zero; the System's mechanical eigenvalues, in the
+    laboratory frame, give the exact Floquet multipliers e^(λT) of the periodic
+    equations over one period T = π/ν, and its X1, X2 variances the exact ones."""
+    scenario = pair(400e3, upper_photons=PHOTONS / 4, n_bath=20.0, spacing_offset_hz=50.0)
+    system = System(scenario)
+    x1, x2, mu, period = exact_periodic(scenario)
+    mode = steady_state(system).modes[0]
+    lam = -np.pi * mode.effective_linewidth_hz + 2j * np.pi * mode.effective_frequency_hz
+    expected = np.exp(np.array([lam, lam.conjugate()]) * period)
+    found = mu[np.argsort(mu.imag)[::-1]]
+    assert np.abs(np.log(found / expected[np.argsort(expected.imag)[::-1]])).max() * (
+        1 / period) < 1e-3 * angular(GAMMA_HZ)
+    v = system.model.covariance()
+    assert v[2, 2] == pytest.approx(x1, rel=1e-4)
+    assert v[3, 3] == pytest.approx(x2, rel=1e-4)
+
+
+def test_commands_and_refusals():
+    """The pair has no sideband summary (an error naming the quadrature budget); a pair
+    that is not one is refused with the key; without the flag the per-tone model still
+    refuses tones at ±Ωm."""
+    from simulator.linear.sidebands import sideband_summary
+
+    with pytest.raises(InputError, match="quadrature_budget"):
+        sideband_summary(pair())
+    with pytest.raises(ScenarioError, match="κ/4Ωm"):
+        System(pair(8e6))
+    text = pair().to_toml().replace("backaction_evading = true", "backaction_evading = false")
+    with pytest.raises(ScenarioError, match="back-action-evading pair"):
+        System(parse_scenario(text))
