@@ -169,3 +169,13 @@ def test_commands_and_refusals():
     text = pair().to_toml().replace("backaction_evading = true", "backaction_evading = false")
     with pytest.raises(ScenarioError, match="back-action-evading pair"):
         System(parse_scenario(text))
+
+
+@pytest.mark.parametrize(("scheme", "factor"), [("homodyne", 1.0), ("heterodyne", 2.0)])
+def test_record_imprecision_against_the_ideal_detector(scheme, factor):
+    """An optical receiver with no electronic noise: a phase-quadrature homodyne record
+    refers to X1 the ideal imprecision; a heterodyne record, which shares the field
+    between two quadratures, twice it (common practice: the heterodyne penalty)."""
+    budget = quadrature_budget(pair(eta=0.8).replace("detection.scheme", scheme))
+    assert budget.record_imprecision_quanta == pytest.approx(
+        factor * budget.imprecision_quanta, rel=2e-3)

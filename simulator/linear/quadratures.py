@@ -44,6 +44,7 @@ import dataclasses
 import numpy as np
 import scipy.linalg
 
+from simulator.linear.record_budget import digitiser_spectrum
 from simulator.model.backaction_evasion import COUNTER_ROTATING, lab_mechanics, pair_parameters
 from simulator.model.system import as_system
 
@@ -66,6 +67,7 @@ class QuadratureBudget:
     imprecision_quanta: float  # n_imp = S_imp(0) Γeff/4
     efficiency: float
     sideband_ratio: float  # κ/4Ωm
+    record_imprecision_quanta: float  # the same from the record at the digitiser
 
     @property
     def x2_heating(self):
@@ -93,6 +95,7 @@ class QuadratureBudget:
                 "x1_counter_rotating_backaction": self.x1_counter_rotating,
                 "imprecision_x1_per_hz": self.imprecision_per_hz,
                 "imprecision_quanta": self.imprecision_quanta,
+                "record_imprecision_quanta": self.record_imprecision_quanta,
                 "standard_quantum_limit_quanta": STANDARD_QUANTUM_LIMIT,
                 "detection_efficiency": self.efficiency,
                 "sideband_ratio_kappa_over_4_omega": self.sideband_ratio}
@@ -109,8 +112,12 @@ class QuadratureBudget:
                 f"  X2 variance                   {self.x2_variance:.6g}",
                 f"    back-action heating         {self.x2_heating:.6g}",
                 f"  imprecision referred to X1    {self.imprecision_per_hz:.4g} /Hz = "
-                f"{self.imprecision_quanta:.4g} quanta at the line (η = {self.efficiency:g}; "
-                f"one tone: at least {STANDARD_QUANTUM_LIMIT:g} with back-action)"]
+                f"{self.imprecision_quanta:.4g} quanta at the line (ideal phase-quadrature "
+                f"detector, η = {self.efficiency:g})",
+                f"    in this record              {self.record_imprecision_quanta:.4g} quanta "
+                "(receiver and amplifier included)",
+                f"    one tone, any power         at least {STANDARD_QUANTUM_LIMIT:g} quanta "
+                "with its back-action (standard quantum limit)"]
 
 
 def _is_cavity(source):
@@ -144,10 +151,35 @@ def quadrature_budget(system, *, efficiency=None):
     width = 2 * np.pi * lab_mechanics(scenario, system.point, model)[1]
     per_hz = float(s_imp)  # white noise of intensity ½ is ½ per Hz: S(ω) dω/2π = S df
     return QuadratureBudget(
+        record_imprecision_quanta=_record_imprecision(system, v[x1, x1], width),
         mode=p.mode, x1_variance=float(v[x1, x1]), x2_variance=float(v[x2, x2]),
         x1_by_source=by1, x2_by_source=by2, imprecision_per_hz=per_hz,
         imprecision_quanta=float(s_imp * width / 4), efficiency=eta,
         sideband_ratio=p.sideband_ratio)
+
+
+def _record_imprecision(system, variance, width):
+    """The record's floor under X1's line at zero offset, in quanta of X1 at the line.
+
+    X1's line is a Lorentzian of energy width Γeff (rad/s ``width``) whose peak
+    P holds ``variance``; the floor b follows from the record's density at the
+    centre and at LINE_WIDTHS widths away, T = b + P L(f), L(f) = (Γ/2)²/((Γ/2)²
+    + (2πf)²) (the floor is flat on the scale of the line: the cavity's κ is
+    far wider), and n = b · variance / P. A heterodyne record holds both
+    quadratures: X1 is in its phase channel alone, where the signal density is
+    twice its share P of the record's density (the I + iQ spectrum averages
+    the two channels) over the same, phase-insensitive floor, so n is halved.
+    """
+    f = LINE_WIDTHS * width / (2 * np.pi)
+    shape = (width / 2) ** 2 / ((width / 2) ** 2 + (2 * np.pi * f) ** 2)
+    centre, side = digitiser_spectrum(system, [0.0, f]).total
+    floor = (side - centre * shape) / (1 - shape)
+    channels = 2.0 if system.scenario.detection.scheme == "heterodyne" else 1.0
+    return float(floor * variance / (channels * (centre - floor)))
+
+
+# Distance from X1's line, in widths, at which the record's floor is read.
+LINE_WIDTHS = 20.0
 
 
 def closed_form_variances(p):
