@@ -70,7 +70,8 @@ def _run(scenario, out, workers, dask, progress, best):
     summary = ()
     if inspection.stability.stable:
         part, summary = _spectrum_part(system, out, wrote, figures)
-        details.append(("Sideband summary", part))
+        details.append(("Quadrature budget" if scenario.detection.backaction_evading
+                        else "Sideband summary", part))
     else:
         details.append(("Spectrum", "<p>No spectrum: the operating point is unstable ("
                         + html.escape(inspection.stability.cause) + ").</p>"))
@@ -170,6 +171,12 @@ def _spectrum_part(system, out, wrote, figures):
                   title=figure_title(result, system.scenario.scenario.name), overwrite=True)
     figures.append((png, "Spectrum of the record at the digitiser and its noise budget: the "
                          "whole band and each sideband zoomed."))
+    if result.quadratures is not None:  # one quadrature measured, no sideband pair
+        from simulator.report.summary import quadrature_table
+
+        return (f"<p>{html.escape(spectrum.quantity)}: {spectrum.sided} density in "
+                f"{html.escape(spectrum.units)}; axis: {html.escape(spectrum.axis)}.</p>"
+                + quadrature_table(result.quadratures.to_dict())), summary
     rows = [[s.mode, s.anti_stokes.frequency_hz, s.anti_stokes.area_quanta,
              s.stokes.frequency_hz, s.stokes.area_quanta, s.ratio, s.occupation_from_ratio,
              s.steady_state_occupation] for s in summary]
