@@ -151,7 +151,8 @@ def quadrature_budget(system, *, efficiency=None):
     width = 2 * np.pi * lab_mechanics(scenario, system.point, model)[1]
     per_hz = float(s_imp)  # white noise of intensity ½ is ½ per Hz: S(ω) dω/2π = S df
     return QuadratureBudget(
-        record_imprecision_quanta=_record_imprecision(system, v[x1, x1], width),
+        record_imprecision_quanta=(_record_imprecision(system, v[x1, x1], width)
+                                   if np.isfinite(s_imp) else np.inf),  # ∞: no coupling
         mode=p.mode, x1_variance=float(v[x1, x1]), x2_variance=float(v[x2, x2]),
         x1_by_source=by1, x2_by_source=by2, imprecision_per_hz=per_hz,
         imprecision_quanta=float(s_imp * width / 4), efficiency=eta,
@@ -175,11 +176,16 @@ def _record_imprecision(system, variance, width):
     centre, side = digitiser_spectrum(system, [0.0, f]).total
     floor = (side - centre * shape) / (1 - shape)
     channels = 2.0 if system.scenario.detection.scheme == "heterodyne" else 1.0
-    return float(floor * variance / (channels * (centre - floor)))
+    signal = channels * (centre - floor)
+    # a line below the round-off of the floor is no line: no measurement, ∞
+    return float(floor * variance / signal) if signal > ROUNDOFF * floor else np.inf
 
 
 # Distance from X1's line, in widths, at which the record's floor is read.
 LINE_WIDTHS = 20.0
+# A line weaker than this fraction of the floor is taken as absent (the difference of two
+# densities of the floor's size carries round-off of about 1e-15 of it).
+ROUNDOFF = 1e-9
 
 
 def closed_form_variances(p):
@@ -195,8 +201,9 @@ def closed_form_variances(p):
 def imprecision_closed_form(p, frequency_hz, efficiency=1.0):
     """S_imp(f) of the module notes (X1²/Hz, two-sided) at offsets ``frequency_hz`` from ω̄."""
     w = 2 * np.pi * np.asarray(frequency_hz, dtype=float)
-    c = p.g_minus + p.g_plus
-    s = ((p.kappa**2 / 4 + (w - p.mean_detuning) ** 2) / (2 * efficiency * p.kappa_ex * c**2)
-         + (p.kappa - p.kappa_ex) * p.cavity_bath_occupation / c**2)
-    return s
+    c = np.float64(p.g_minus + p.g_plus)
+    with np.errstate(divide="ignore", invalid="ignore"):  # no coupling: no measurement, ∞
+        return ((p.kappa**2 / 4 + (w - p.mean_detuning) ** 2)
+                / (2 * efficiency * p.kappa_ex * c**2)
+                + (p.kappa - p.kappa_ex) * p.cavity_bath_occupation / c**2)
 
