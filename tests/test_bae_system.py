@@ -156,6 +156,13 @@ def test_mechanical_line_against_floquet_multipliers():
     assert v[3, 3] == pytest.approx(x2, rel=1e-4)
 
 
+def test_pair_model_names_its_signals_as_the_one_tone_model():
+    from simulator.model import backaction_evasion, optomechanics
+
+    assert backaction_evasion.CAVITY_STATES == optomechanics.CAVITY_STATES
+    assert backaction_evasion.OUTPUTS == optomechanics.OUTPUTS
+
+
 def test_commands_and_refusals():
     """The pair has no sideband summary (an error naming the quadrature budget); a pair
     that is not one is refused with the key; without the flag the per-tone model still
