@@ -186,3 +186,23 @@ def test_record_imprecision_against_the_ideal_detector(scheme, factor):
     budget = quadrature_budget(pair(eta=0.8).replace("detection.scheme", scheme))
     assert budget.record_imprecision_quanta == pytest.approx(
         factor * budget.imprecision_quanta, rel=2e-3)
+
+
+def test_bundled_pair_runs_end_to_end(tmp_path, capsys):
+    """`spectrum` names the pair's axis and prints the quadrature budget; `run` writes a
+    report that leads with it and the resolution beside one tone's."""
+    import json
+    from pathlib import Path
+
+    from simulator.cli import parser as cli
+
+    path = Path(__file__).resolve().parents[1] / "scenarios" / "drum_bae_microwave.toml"
+    assert cli.main(["spectrum", str(path), "--json"]) == cli.EXIT_OK
+    data = json.loads(capsys.readouterr().out)
+    assert "offset from the pair's mean frequency" in data["axis"]
+    assert "counter-rotating back-action: back-action motion" in data["contributions"]
+    assert data["backaction_evasion"]["x2_backaction_heating"] > 100
+    assert cli.main(["run", str(path), "--out", str(tmp_path / "run")]) == cli.EXIT_OK
+    capsys.readouterr()
+    page = (tmp_path / "run" / "report.html").read_text()
+    assert "Quadrature budget" in page and "one red-sideband tone, same photons" in page
