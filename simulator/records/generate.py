@@ -174,6 +174,11 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
         system = system.replace("record.store_mechanics", bool(store_mechanics))
     scenario = system.scenario
     store = scenario.record.store_mechanics
+    if store and scenario.detection.backaction_evading:
+        raise InputError("record.store_mechanics with detection.backaction_evading: the "
+                         "pair's model holds the quadratures X1, X2 in the frame turning at "
+                         "half the tones' spacing, not q, p; storing them is not supported "
+                         "yet; expected store_mechanics = false")
     if form not in ("auto", "full-state", "innovations"):
         raise InputError(f"form = {form!r}; expected 'auto', 'full-state' or 'innovations'")
     if form == "innovations" and store:

@@ -178,6 +178,10 @@ def pair_problems(scenario):
     if len(scenario.mechanics) != 1:
         yield (key, f"true with {len(scenario.mechanics)} [[mechanics]] tables; expected "
                "one mechanical mode, the one whose quadrature the pair measures")
+    if scenario.schedule is not None:
+        yield ("schedule", "a [schedule] with detection.backaction_evading is not supported "
+               "yet (its segments kick and watch the mode's q, p; the pair's model holds "
+               "X1, X2); expected no [schedule] for a back-action-evading pair")
     if scenario.detection.tone != PRIMARY_TONE:
         yield ("detection.tone", f"{scenario.detection.tone!r} with detection."
                "backaction_evading: the receiver's reference sits at the pair's mean "
