@@ -8,12 +8,15 @@ splits the stationary variances of X1 and X2 by noise source (one Lyapunov
 solution per source: the sources are independent) and refers the measurement
 imprecision to X1:
 
-    S_imp(ω) = (κ²/4 + (ω − Δ̄)²)/(2 η κex c²) + κin n_bath/c²,   c = G− + G+,
+    S_imp(ω) = (κ²/4 + ω²)/(2 η κex c²) + κin n_bath/c²,   c = G− + G+,
 
 the phase quadrature's shot noise (and the internal loss's thermal noise)
 divided by the transduction |κex^½ c/(κ/2 − iω)|² of X1 into it, for an ideal
-homodyne detector of efficiency η (a heterodyne or phase-preserving receiver
-doubles it; its amplifier adds its own noise, both in the record's spectrum).
+homodyne detector of efficiency η and the pair centred on the cavity, Δ̄ = 0
+(a mean detuning changes it at relative order (2Δ̄/κ)²). A heterodyne or
+phase-preserving receiver doubles it and its amplifier adds its own noise:
+:attr:`QuadratureBudget.record_imprecision_quanta` reads the same quantity
+from the record's exact spectrum at the digitiser, whatever Δ̄.
 In quanta at the line's peak, n_imp = S_imp(0) Γeff/4 (one quantum of X1
 variance gives the Lorentzian peak 4/Γeff); a continuous measurement of the
 position with one tone adds at least ½ quantum there, the standard quantum
@@ -147,16 +150,15 @@ def quadrature_budget(system, *, efficiency=None):
             model.A, -b @ model.N[np.ix_(idx, idx)] @ b.T)
         by1[name], by2[name] = float(v[x1, x1]), float(v[x2, x2])
     v = model.covariance()
-    s_imp = float(imprecision_closed_form(p, 0.0, eta))
+    s_imp = float(imprecision_closed_form(p, 0.0, eta))  # per Hz: S(ω) dω/2π = S df
     width = 2 * np.pi * lab_mechanics(scenario, system.point, model)[1]
-    per_hz = float(s_imp)  # white noise of intensity ½ is ½ per Hz: S(ω) dω/2π = S df
     return QuadratureBudget(
-        record_imprecision_quanta=(_record_imprecision(system, v[x1, x1], width)
-                                   if np.isfinite(s_imp) else np.inf),  # ∞: no coupling
         mode=p.mode, x1_variance=float(v[x1, x1]), x2_variance=float(v[x2, x2]),
-        x1_by_source=by1, x2_by_source=by2, imprecision_per_hz=per_hz,
+        x1_by_source=by1, x2_by_source=by2, imprecision_per_hz=s_imp,
         imprecision_quanta=float(s_imp * width / 4), efficiency=eta,
-        sideband_ratio=p.sideband_ratio)
+        sideband_ratio=p.sideband_ratio,
+        record_imprecision_quanta=(_record_imprecision(system, v[x1, x1], width)
+                                   if np.isfinite(s_imp) else np.inf))  # ∞: no coupling
 
 
 def _record_imprecision(system, variance, width):
@@ -199,11 +201,11 @@ def closed_form_variances(p):
 
 
 def imprecision_closed_form(p, frequency_hz, efficiency=1.0):
-    """S_imp(f) of the module notes (X1²/Hz, two-sided) at offsets ``frequency_hz`` from ω̄."""
+    """S_imp(f) of the module notes (X1²/Hz, two-sided) at offsets ``frequency_hz`` from ω̄
+    (the pair centred on the cavity, Δ̄ = 0)."""
     w = 2 * np.pi * np.asarray(frequency_hz, dtype=float)
     c = np.float64(p.g_minus + p.g_plus)
     with np.errstate(divide="ignore", invalid="ignore"):  # no coupling: no measurement, ∞
-        return ((p.kappa**2 / 4 + (w - p.mean_detuning) ** 2)
-                / (2 * efficiency * p.kappa_ex * c**2)
+        return ((p.kappa**2 / 4 + w**2) / (2 * efficiency * p.kappa_ex * c**2)
                 + (p.kappa - p.kappa_ex) * p.cavity_bath_occupation / c**2)
 
