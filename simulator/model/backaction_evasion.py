@@ -28,15 +28,17 @@ the spring: Aspelmeyer, Kippenberg & Marquardt, Rev. Mod. Phys. 86, 1391
 
     A+,low = G−² κ / (κ²/4 + (Δ̄ − ν − Ωm)²),   A−,up = G+² κ / (κ²/4 + (Δ̄ + ν + Ωm)²),
 
-extra damping A−,up − A+,low, spring G−²(Δ− − Ωm)/(κ²/4 + (Δ− − Ωm)²) +
-G+²(Δ+ + Ωm)/(κ²/4 + (Δ+ + Ωm)²) and a quadrature diffusion
+with Δ∓ = Δ̄ ∓ ν the tones' detunings: extra damping A−,up − A+,low, spring
+G−²(Δ− − Ωm)/(κ²/4 + (Δ− − Ωm)²) + G+²(Δ+ + Ωm)/(κ²/4 + (Δ+ + Ωm)²) and a
+quadrature diffusion
 (A−,up + A+,low)(n_c + ½) on X1 and X2 alike. :func:`backaction_evading_model`
 adds them as the stated correction (``counter_rotating=True``, the default):
 the source "counter-rotating back-action" of the budget, of relative size
 about ½ (κ/4Ωm)² of the back-action on X2 for equal couplings. What is still
 left out: the mechanical sidebands those processes put at ω̄ ± 2ν (outside the
 receiver's band around ω̄), and corrections of relative order (κ/4Ωm)⁴ and
-G/Ωm (tests/test_bae_system.py compares with the exact periodic computation).
+(G/Ωm)² (tests/test_bae_system.py compares with the exact periodic computation:
+10⁻⁶ of the variances in its test device).
 
 References
 ----------
