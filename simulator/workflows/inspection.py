@@ -49,6 +49,9 @@ class Inspection:
     def to_dict(self):
         """Plain data for JSON: numbers in SI units, frequencies in Hz."""
         p, st = self.point, self.steady
+        # a back-action-evading pair is demodulated at its mean frequency, no tone's
+        detected = None if self.scenario.detection.backaction_evading else \
+            self.scenario.detection.tone
         modes = []
         for j, mp in enumerate(p.modes):
             entry = {
@@ -102,9 +105,8 @@ class Inspection:
             "cavity_occupation": None if st is None else st.cavity_occupation,
             "modes": modes,
             "feasibility": [dict(f) for f in self.feasibility],
-            **({"detected_tone": self.scenario.detection.tone,
-                "tones": tone_rows(p, self.scenario.detection.tone)} if p.several_tones
-               else {}),
+            **({"detected_tone": detected, "tones": tone_rows(p, detected)}
+               if p.several_tones else {}),
             **({"backaction_evasion": self.quadratures.to_dict() | {
                 "resolution": [r.to_dict() for r in self.resolution]}}
                if self.quadratures is not None else {}),
