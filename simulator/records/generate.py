@@ -210,6 +210,8 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
     if point.several_tones:  # the one tone whose sidebands the record holds
         calibration.update(detected_tone=det.tone, detected_tone_frequency_hz=float(
             point.drive_frequency_hz))
+        if det.backaction_evading:  # the reference sits at the pair's mean frequency
+            calibration.update(detected_tone="back-action-evading pair (mean frequency)")
     truth = Truth(mode_names=names,
                   occupation=tuple(m.occupation for m in steady.modes),
                   effective_frequency_hz=tuple(m.effective_frequency_hz for m in steady.modes),
