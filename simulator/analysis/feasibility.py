@@ -354,6 +354,10 @@ def asymmetry_time(system, mode=0, significance=ASYMMETRY_SIGNIFICANCE, steady=N
 
     system = _system(system, "simulator.analysis.feasibility.asymmetry_time")
     scenario = system.scenario
+    if scenario.detection.backaction_evading:
+        raise InputError("the sideband asymmetry does not apply to a back-action-evading "
+                         "pair, which measures one quadrature; its resolution is "
+                         "simulator.analysis.bae_feasibility.resolution_comparison")
     if scenario.detection.scheme != "heterodyne":
         raise InputError(f"detection.scheme = {scenario.detection.scheme!r}: the sideband "
                          "asymmetry needs heterodyne detection of both sidebands")

@@ -233,6 +233,11 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
         system = system.replace("record.store_mechanics", bool(store_mechanics))
     scenario = system.scenario
     store = scenario.record.store_mechanics
+    if store and scenario.detection.backaction_evading:
+        raise InputError("record.store_mechanics with detection.backaction_evading: the "
+                         "pair's model holds the quadratures X1, X2 in the frame turning at "
+                         "half the tones' spacing, not q, p; storing them is not supported "
+                         "yet; expected store_mechanics = false")
     if form not in ("auto", "full-state", "innovations"):
         raise InputError(f"form = {form!r}; expected 'auto', 'full-state' or 'innovations'")
     if form == "innovations" and store:
@@ -264,6 +269,8 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
     if point.several_tones:  # the (first) tone whose sidebands the record holds
         calibration.update(detected_tone=detected_tone_names(scenario)[0],
                            detected_tone_frequency_hz=float(point.drive_frequency_hz))
+        if det.backaction_evading:  # the reference sits at the pair's mean frequency
+            calibration.update(detected_tone="back-action-evading pair (mean frequency)")
     truth = Truth(mode_names=names,
                   occupation=tuple(m.occupation for m in steady.modes),
                   effective_frequency_hz=tuple(m.effective_frequency_hz for m in steady.modes),

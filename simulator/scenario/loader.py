@@ -51,7 +51,13 @@ from simulator.scenario.sections import (  # noqa: F401 - re-exported for users 
     ScenarioInfo,
 )
 from simulator.scenario.sweep_section import Sweep
-from simulator.scenario.tone_sections import CavityMode, Coupling, Tone, tone_problems
+from simulator.scenario.tone_sections import (
+    CavityMode,
+    Coupling,
+    Tone,
+    pair_problems,
+    tone_problems,
+)
 
 _frozen = dataclasses.dataclass(frozen=True, kw_only=True)
 
@@ -98,6 +104,7 @@ class Scenario:
                        f"{mode.name!r} is used by an earlier mode; expected unique names")
             seen.add(mode.name)
         yield from tone_problems(self)
+        yield from pair_problems(self)
         yield from self._chain_problems()
         yield from self._local_oscillator_problems()
         yield from receiver_problems(self)

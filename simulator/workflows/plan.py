@@ -70,6 +70,12 @@ def check_plan(scenario):
                                 "scenario without [[tones]] have no joint record); expected "
                                 "[[tones]] or another objective", source=scenario.source,
                                 key="plan.objective")
+    if plan.objective == "asymmetry_time" and scenario.detection.backaction_evading:
+        raise ScenarioError("objective \"asymmetry_time\" with detection.backaction_evading: "
+                            "a back-action-evading pair measures one quadrature, with no "
+                            "sideband asymmetry; expected the objective \"occupation\" or "
+                            "\"occupation_error\"", source=scenario.source,
+                            key="plan.objective")
     if plan.heating_per_photon_k > 0 or plan.heating_k_per_w > 0:
         for i, mode in enumerate(scenario.mechanics):
             if mode.bath_temperature_k is None:

@@ -70,7 +70,8 @@ def _run(scenario, out, workers, dask, progress, best):
     summary = ()
     if inspection.stability.stable:
         part, summary = _spectrum_part(system, out, wrote, figures)
-        details.append(("Sideband summary", part))
+        details.append(("Quadrature budget" if scenario.detection.backaction_evading
+                        else "Sideband summary", part))
     else:
         details.append(("Spectrum", "<p>No spectrum: the operating point is unstable ("
                         + html.escape(inspection.stability.cause) + ").</p>"))
@@ -175,10 +176,16 @@ def _spectrum_part(system, out, wrote, figures):
     spectrum, summary = result.spectrum, result.summary
     spectrum.save(wrote(out / "spectrum.nc"), overwrite=True)
     png = wrote(out / "spectrum.png")
-    plot_spectrum(spectrum, png, summary=summary,
+    plot_spectrum(spectrum, png, summary=summary, zooms=_quadrature_zoom(system, result),
                   title=figure_title(result, system.scenario.scenario.name), overwrite=True)
     figures.append((png, "Spectrum of the record at the digitiser and its noise budget: the "
                          "whole band and each sideband zoomed."))
+    if result.quadratures is not None:  # one quadrature measured, no sideband pair
+        from simulator.report.summary import quadrature_table
+
+        return (f"<p>{html.escape(spectrum.quantity)}: {spectrum.sided} density in "
+                f"{html.escape(spectrum.units)}; axis: {html.escape(spectrum.axis)}.</p>"
+                + quadrature_table(result.quadratures.to_dict())), summary
     rows = [[s.mode, s.anti_stokes.frequency_hz, s.anti_stokes.area_quanta,
              s.stokes.frequency_hz, s.stokes.area_quanta, s.ratio, s.occupation_from_ratio,
              s.steady_state_occupation] for s in summary]
@@ -191,6 +198,18 @@ def _spectrum_part(system, out, wrote, figures):
                       for s in summary if s.gap is not None)
             + "".join(f"<p>Warning, mode {html.escape(s.mode)}: {html.escape(s.warning)}.</p>"
                       for s in summary if s.warning)), summary
+
+
+def _quadrature_zoom(system, result):
+    """A back-action-evading pair's zoom on X1's line at zero offset (None otherwise)."""
+    if result.quadratures is None:
+        return None
+    from simulator.linear.steady_state import steady_state
+
+    q = result.quadratures
+    width = steady_state(system).modes[0].effective_linewidth_hz
+    return [(f"{q.mode} X1 (measured quadrature)\nvariance {q.x1_variance:.4g}, "
+             f"counter-rotating residual {q.x1_counter_rotating:.3g}", 0.0, width)]
 
 
 def _record_part(system, out, wrote, figures, progress):
