@@ -65,6 +65,19 @@ class AveragedSpectrum:
     0 < f < fs/2 for real records. ``cross`` (iq only) is the averaged
     Z_f Z_{−f}/(fs N) on the same axis (equal at f and −f). The ``expected_*``
     arrays are the exact means of the two.
+
+    With several detected tones (``tones``, K of them; always iq) the
+    spectrum holds every channel and their correlations
+    (:mod:`simulator.analysis.synthetic_channels`): ``spectral_matrix``
+    (F, K, K) the averaged Z_j(f) Z_l(f)*/(fs N) (each channel's periodogram
+    on the diagonal, the cross-spectra off it), ``pseudo_matrix`` the
+    averaged Z_j(f) Z_l(−f)/(fs N), with their exact means
+    ``expected_spectral_matrix``, ``expected_pseudo_matrix``; ``density``,
+    ``cross`` and their expectations are then (F, K), column k channel k's
+    (the diagonals). :meth:`channel` is one tone's spectrum alone,
+    :meth:`matrix` the :class:`simulator.analysis.psd.SpectralMatrixEstimate`.
+    ``rounding_variance`` is the first tone's, ``channel_rounding_variance``
+    each tone's.
     """
 
     frequency_hz: np.ndarray
@@ -91,15 +104,62 @@ class AveragedSpectrum:
     software_version: str
     created_utc: str = ""
     path: object = None
+    tones: tuple = ()
+    channel_rounding_variance: tuple = ()
+    spectral_matrix: np.ndarray | None = None
+    pseudo_matrix: np.ndarray | None = None
+    expected_spectral_matrix: np.ndarray | None = None
+    expected_pseudo_matrix: np.ndarray | None = None
 
     def estimate(self):
         """The spectrum as a :class:`simulator.analysis.psd.PSDEstimate` (what the fitters take)."""
         from simulator.analysis.psd import PSDEstimate
 
+        if self.tones:
+            raise InputError(f"estimate() of an averaged spectrum of {len(self.tones)} "
+                             f"detected tones ({', '.join(self.tones)}); expected "
+                             "channel(tone).estimate() for one tone, or matrix() for all")
         return PSDEstimate(frequency_hz=self.frequency_hz, density=self.density,
                            averages=self.averages, sided=self.sided,
                            resolution_hz=self.resolution_hz,
                            noise_bandwidth_hz=self.noise_bandwidth_hz, window=self.window)
+
+
+    def channel(self, tone):
+        """The averaged spectrum of the detected tone ``tone`` alone (a one-tone
+        AveragedSpectrum: its density, ±f term, rounding and calibration)."""
+        if not self.tones:
+            raise InputError(f"channel({tone!r}): this averaged spectrum holds one detected "
+                             "tone; use it as it is")
+        if tone not in self.tones:
+            raise InputError(f"channel({tone!r}): no such detected tone; expected one of "
+                             f"{', '.join(map(repr, self.tones))}")
+        k = self.tones.index(tone)
+        own = self.truth.channels[k]["calibration"] if self.truth.channels else None
+        truth = self.truth if own is None else dataclasses.replace(
+            self.truth, calibration=own, channels=())
+        return dataclasses.replace(
+            self, density=self.density[:, k], cross=self.cross[:, k],
+            expected_density=self.expected_density[:, k],
+            expected_cross=self.expected_cross[:, k],
+            rounding_variance=self.channel_rounding_variance[k], truth=truth, tones=(),
+            channel_rounding_variance=(), spectral_matrix=None, pseudo_matrix=None,
+            expected_spectral_matrix=None, expected_pseudo_matrix=None)
+
+    def matrix(self):
+        """Every channel and their correlations as a
+        :class:`simulator.analysis.psd.SpectralMatrixEstimate`, as
+        :func:`simulator.analysis.psd.spectral_matrix_estimate` returns for the record."""
+        from simulator.analysis.psd import SpectralMatrixEstimate
+
+        if not self.tones:
+            raise InputError("matrix() of an averaged spectrum of one detected tone; "
+                             "expected estimate() (or detection.tones for several)")
+        return SpectralMatrixEstimate(
+            frequency_hz=self.frequency_hz, cross=self.spectral_matrix,
+            pseudo=self.pseudo_matrix, tones=self.tones, averages=self.averages,
+            resolution_hz=self.resolution_hz, noise_bandwidth_hz=self.noise_bandwidth_hz,
+            window=self.window)
 
 
 def output_autocovariance(recursion, lags):
@@ -188,12 +248,10 @@ def synthetic_averaged_spectrum(system, *, segment_samples, window="hann", seed=
     import datetime
 
     from simulator import __version__
-    from simulator.model.detected_tone import require_one_detected_tone
     from simulator.model.system import as_system
     from simulator.records.generate import plan_record
 
     system = as_system(system, several_tones=True)  # plan_record takes its detected view
-    require_one_detected_tone(system.scenario, "an averaged spectrum (--averaged)")
 
     plan = plan_record(system, seed=seed, duration_s=duration_s, form="innovations",
                        store_mechanics=False)
@@ -206,34 +264,59 @@ def synthetic_averaged_spectrum(system, *, segment_samples, window="hann", seed=
             or not 2 <= segment_samples <= plan.n_samples):
         raise InputError(f"segment_samples = {segment_samples!r}; expected an integer from 2 "
                          f"to the record's {plan.n_samples} samples")
-    expectation, mean, pseudo = bin_law(plan, int(segment_samples), window)
-    n = expectation.n
-    averages = plan.n_samples // n
     rng = np.random.Generator(np.random.PCG64(
         np.random.SeedSequence(plan.seed, spawn_key=(SPECTRUM_STREAM,))))
+    if plan.chain.tones:  # several detected tones: the joint law of every channel
+        expectation, drawn = _channels_drawn(plan, int(segment_samples), window, rng)
+    else:
+        expectation, mean, pseudo = bin_law(plan, int(segment_samples), window)
+    n = expectation.n
+    averages = plan.n_samples // n
     freq = expectation.frequency_hz
     w = taper(window, n)
     enbw = plan.sample_rate_hz * np.mean(w**2) / np.mean(w) ** 2 / n
-    if pseudo is None:
+    if plan.chain.tones:
+        frequency, sided = freq, "two-sided"
+    elif pseudo is None:
         half = freq > 0  # 0 < f < fs/2: an even N's fs/2 bin sits at −fs/2
         density = 2.0 * mean[half] * rng.standard_gamma(averages, half.sum()) / averages
-        frequency, expected, cross, expected_cross, sided = (
-            freq[half], 2.0 * mean[half], None, None, "one-sided")
+        frequency, sided = freq[half], "one-sided"
+        drawn = dict(density=density, expected_density=2.0 * mean[half], cross=None,
+                     expected_cross=None)
     else:
         density, cross = draw_pairs(mean, pseudo, averages, expectation, rng)
-        frequency, expected, expected_cross, sided = freq, mean, pseudo, "two-sided"
+        frequency, sided = freq, "two-sided"
+        drawn = dict(density=density, expected_density=mean, cross=cross,
+                     expected_cross=pseudo)
     header = dict(kind=plan.chain.record_kind, scheme=plan.scenario.detection.scheme,
                   intermediate_frequency_hz=plan.scenario.detection.intermediate_frequency_hz,
                   local_oscillator_side=plan.scenario.detection.local_oscillator_side)
     return AveragedSpectrum(
-        frequency_hz=frequency, density=density, cross=cross, expected_density=expected,
-        expected_cross=expected_cross, averages=averages, segment_samples=n, window=window,
+        frequency_hz=frequency, averages=averages, segment_samples=n, window=window,
         sided=sided, resolution_hz=plan.sample_rate_hz / n, noise_bandwidth_hz=enbw,
         rounding_variance=plan.shot_noise_per_count ** 2 / 12.0,
         sample_rate_hz=plan.sample_rate_hz, n_samples=plan.n_samples, seed=plan.seed,
         scenario=plan.scenario, truth=plan.truth, software_version=__version__,
         created_utc=datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds"),
-        **header)
+        **header, **drawn)
+
+
+def _channels_drawn(plan, segment_samples, window, rng):
+    """``(expectation, fields)``: the averaged spectral matrices of a record of several
+    detected tones drawn from their law, and the AveragedSpectrum fields they fill."""
+    from simulator.analysis.synthetic_channels import channels_law, draw_channels
+
+    expectation, spectra, pseudo = channels_law(plan, segment_samples, window)
+    drawn_s, drawn_p = draw_channels(spectra, pseudo, plan.n_samples // expectation.n,
+                                     expectation, rng)
+    k = np.arange(spectra.shape[1])
+    return expectation, dict(
+        density=drawn_s[:, k, k].real, cross=drawn_p[:, k, k],
+        expected_density=spectra[:, k, k].real, expected_cross=pseudo[:, k, k],
+        spectral_matrix=drawn_s, pseudo_matrix=drawn_p, expected_spectral_matrix=spectra,
+        expected_pseudo_matrix=pseudo, tones=tuple(plan.chain.tones),
+        channel_rounding_variance=tuple(x ** 2 / 12.0
+                                        for x in plan.channel_shot_noise_per_count))
 
 
 def draw_pairs(mean, pseudo, averages, expectation, rng):
@@ -265,7 +348,15 @@ def draw_pairs(mean, pseudo, averages, expectation, rng):
 
 
 def _factor(sigma):
-    """Lower-triangular L with L L† = Σ for 2×2 positive semidefinite Σ (singular allowed)."""
+    """L with L L† = Σ for positive semidefinite Σ (M, d, d), singular allowed.
+
+    2×2: the lower-triangular (Cholesky) factor in closed form; larger: the
+    symmetric root V √Λ from the eigenvalues, rounding's tiny negative ones
+    set to zero (a Wishart draw needs any L with L L† = Σ).
+    """
+    if sigma.shape[-1] != 2:
+        values, vectors = np.linalg.eigh(sigma)
+        return vectors * np.sqrt(np.maximum(values, 0.0))[:, None, :]
     a = np.sqrt(np.maximum(sigma[:, 0, 0].real, 0.0))
     safe = np.where(a > 0, a, 1.0)
     low = np.where(a > 0, sigma[:, 1, 0] / safe, 0.0)
@@ -275,23 +366,35 @@ def _factor(sigma):
     return out
 
 
+def _bartlett(m, d, dof, diagonal, normal, dtype):
+    """Lower-triangular T (m, d, d) with T T† ~ Wishart(dof, identity): diagonal
+    ``diagonal(dof − i, m)`` (|T_ii|²), below it ``normal(m)``, columns j < dof only
+    (a singular law for dof < d). Drawn diagonal first, then row by row."""
+    t = np.zeros((m, d, d), dtype=dtype)
+    for i in range(min(d, dof)):
+        t[:, i, i] = np.sqrt(diagonal(dof - i, m))
+    for i in range(1, d):
+        for j in range(min(i, dof)):
+            t[:, i, j] = normal(m)
+    return t
+
+
 def complex_wishart(sigma, dof, rng):
-    """Draws of the 2×2 complex Wishart law CW(dof, Σ), one per Σ in ``sigma`` (M, 2, 2)."""
-    m = sigma.shape[0]
-    t = np.zeros((m, 2, 2), dtype=complex)
-    t[:, 0, 0] = np.sqrt(rng.standard_gamma(dof, m))
-    t[:, 1, 1] = np.sqrt(rng.standard_gamma(dof - 1, m)) if dof > 1 else 0.0
-    t[:, 1, 0] = (rng.standard_normal(m) + 1j * rng.standard_normal(m)) / np.sqrt(2.0)
+    """Draws of the d×d complex Wishart law CW(dof, Σ), one per Σ in ``sigma`` (M, d, d).
+
+    Complex Bartlett decomposition: |T_ii|² ~ Gamma(dof − i), T_ij (i > j)
+    standard complex normal; W = L T T† L† with L L† = Σ.
+    """
+    t = _bartlett(sigma.shape[0], sigma.shape[-1], int(dof), rng.standard_gamma,
+                  lambda m: (rng.standard_normal(m) + 1j * rng.standard_normal(m))
+                  / np.sqrt(2.0), complex)
     lt = _factor(sigma) @ t
     return lt @ lt.conj().transpose(0, 2, 1)
 
 
 def real_wishart(cov, dof, rng):
-    """Draws of the 2×2 real Wishart law W(dof, C), one per C in ``cov`` (M, 2, 2)."""
-    m = cov.shape[0]
-    t = np.zeros((m, 2, 2))
-    t[:, 0, 0] = np.sqrt(rng.chisquare(dof, m))
-    t[:, 1, 1] = np.sqrt(rng.chisquare(dof - 1, m)) if dof > 1 else 0.0
-    t[:, 1, 0] = rng.standard_normal(m)
+    """Draws of the d×d real Wishart law W(dof, C), one per C in ``cov`` (M, d, d)."""
+    t = _bartlett(cov.shape[0], cov.shape[-1], int(dof), rng.chisquare, rng.standard_normal,
+                  float)
     lt = _factor(cov).real @ t
     return lt @ lt.transpose(0, 2, 1)
