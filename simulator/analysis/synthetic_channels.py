@@ -63,10 +63,18 @@ def channels_law(plan, segment_samples, window):
 
     expectation = WindowedExpectation(plan.sample_rate_hz, segment_samples, window)
     r = output_autocovariance(stepper(plan, modal=False).recursion, expectation.n)
+    spectra, pseudo = windowed_channels(expectation, r, np.asarray(
+        plan.channel_shot_noise_per_count) ** 2 / 12.0)
+    return expectation, spectra, pseudo
+
+
+def windowed_channels(expectation, r, rounding):
+    """E S̄(f), E P̄(f) (N, K, K) from the real outputs' autocovariance ``r`` (N, 2K, 2K),
+    each channel's rounding variance Δ_k²/12 per real channel in ``rounding`` (K,)."""
     k = r.shape[1] // 2
     c = channel_vectors(k)
     rz = np.einsum("ja,mab,lb->mjl", c, r, c.conj())  # E[z_j(n+m) z_l(n)*]
-    rz[0] += np.diag(2.0 * np.asarray(plan.channel_shot_noise_per_count) ** 2 / 12.0)
+    rz[0] += np.diag(2.0 * np.asarray(rounding, dtype=float))
     pz = np.einsum("ja,mab,lb->mjl", c, r, c)  # E[z_j(n+m) z_l(n)]
     spectra = np.empty((expectation.n, k, k), dtype=complex)
     pseudo = np.empty_like(spectra)
@@ -78,7 +86,7 @@ def channels_law(plan, segment_samples, window):
             pseudo[:, j, m] = expectation.of_autocovariance(pz[:, j, m], pz[1:, m, j])
     diagonal = np.arange(k)
     spectra[:, diagonal, diagonal] = spectra[:, diagonal, diagonal].real
-    return expectation, spectra, pseudo
+    return spectra, pseudo
 
 
 def draw_channels(spectra, pseudo, averages, expectation, rng):

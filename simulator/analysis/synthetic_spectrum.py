@@ -37,6 +37,13 @@ and Kollár, Quantization Noise (Cambridge, 2008), Ch. 4); clipping is not
 modelled. For an if record the carrier makes the record cyclostationary; the
 law uses its time-averaged autocovariance 2 Re[e^{iθTm} R_u(m)].
 
+- **Several detected tones** (``detection.tones``, K I/Q pairs from one
+  model): the 2K vector of every channel at f and −f is drawn at once, as a
+  2K×2K complex Wishart matrix whose covariance holds the spectra, the
+  cross-spectra and the pseudo-spectra of the joint model
+  (:mod:`simulator.analysis.synthetic_channels`); the one-channel law above
+  is its K = 1 case, drawn by the same code.
+
 What is approximate (docs/records.md states it): the bins are drawn
 independently, while the window correlates neighbouring bins (for the Hann
 window the powers of adjacent bins of white noise correlate by 4/9) and a
@@ -201,16 +208,16 @@ def bin_law(plan, segment_samples, window):
     r = output_autocovariance(stepper(plan, modal=False).recursion, expectation.n)
     rounding = plan.shot_noise_per_count ** 2 / 12.0
     receiver = plan.chain.receiver
+    if receiver == "iq":  # one channel of the several-tone law
+        from simulator.analysis.synthetic_channels import windowed_channels
+
+        spectra, pseudo = windowed_channels(expectation, r, [rounding])
+        return expectation, spectra[:, 0, 0].real, pseudo[:, 0, 0]
     if receiver == "homodyne":
         rr = r[:, 0, 0].copy()
     else:
         c = np.array([1.0, 1.0j])
         rz = np.einsum("i,mij,j->m", c, r, c.conj())  # E[z_{n+m} z_n*], z = y0 + i y1
-        if receiver == "iq":
-            rz[0] += 2.0 * rounding
-            pseudo = np.einsum("i,mij,j->m", c, r, c)  # E[z_{n+m} z_n], even in m
-            return (expectation, expectation.of_autocovariance(rz, rz[1:].conj()).real,
-                    expectation.of_autocovariance(pseudo, pseudo[1:]))
         theta = plan.chain.carrier_rad_s / plan.sample_rate_hz  # carrier phase per sample
         rr = 2.0 * (np.exp(1j * theta * np.arange(rz.size)) * rz).real
     rr[0] += rounding
@@ -237,6 +244,8 @@ def synthetic_averaged_spectrum(system, *, segment_samples, window="hann", seed=
     Returns
     -------
     AveragedSpectrum
+        With ``detection.tones``: every tone's channel and the spectral
+        matrices between them (:class:`AveragedSpectrum`).
 
     Raises
     ------
@@ -323,28 +332,14 @@ def draw_pairs(mean, pseudo, averages, expectation, rng):
     """Averaged periodogram and Z_f Z_{−f} term of an iq record, bins sorted as ``mean``.
 
     Pairs (f, −f) get a complex Wishart 2×2 draw; the self-paired bins (0 and,
-    for even N, −fs/2) a real one.
+    for even N, −fs/2) a real one: the one-channel case of
+    :func:`simulator.analysis.synthetic_channels.draw_channels`.
     """
-    n, order = expectation.n, expectation.order
-    e, b = np.empty(n), np.empty(n, dtype=complex)  # in FFT order
-    e[order], b[order] = mean, pseudo
-    k = np.arange(1, (n + 1) // 2)
-    sigma = np.empty((k.size, 2, 2), dtype=complex)
-    sigma[:, 0, 0], sigma[:, 1, 1] = e[k], e[n - k]
-    sigma[:, 0, 1], sigma[:, 1, 0] = b[k], b[k].conj()
-    wishart = complex_wishart(sigma, averages, rng) / averages
-    density, cross = np.empty(n), np.empty(n, dtype=complex)
-    density[k], density[n - k] = wishart[:, 0, 0].real, wishart[:, 1, 1].real
-    cross[k] = cross[n - k] = wishart[:, 0, 1]
-    selfs = np.array([0] + ([n // 2] if n % 2 == 0 else []))
-    real = np.empty((selfs.size, 2, 2))  # covariance of (Re Z, Im Z)/√(fs N)
-    real[:, 0, 0] = (e[selfs] + b[selfs].real) / 2
-    real[:, 1, 1] = (e[selfs] - b[selfs].real) / 2
-    real[:, 0, 1] = real[:, 1, 0] = b[selfs].imag / 2
-    w = real_wishart(real, averages, rng) / averages
-    density[selfs] = w[:, 0, 0] + w[:, 1, 1]
-    cross[selfs] = w[:, 0, 0] - w[:, 1, 1] + 2j * w[:, 0, 1]
-    return density[order], cross[order]
+    from simulator.analysis.synthetic_channels import draw_channels
+
+    spectra, pseudo = draw_channels(mean[:, None, None].astype(complex), pseudo[:, None, None],
+                                    averages, expectation, rng)
+    return spectra[:, 0, 0].real, pseudo[:, 0, 0]
 
 
 def _factor(sigma):
