@@ -35,11 +35,8 @@ from test_records import make
 from simulator import System
 from simulator.analysis.psd import spectral_matrix_estimate
 from simulator.analysis.synthetic_channels import channels_law
-from simulator.analysis.synthetic_spectrum import (
-    complex_wishart,
-    real_wishart,
-    synthetic_averaged_spectrum,
-)
+from simulator.analysis.synthetic_spectrum import synthetic_averaged_spectrum
+from simulator.analysis.wishart import complex_wishart, real_wishart
 from simulator.errors import InputError
 from simulator.io.averagedfile import load_averaged_spectrum
 from simulator.records.generate import generate_record, plan_record
@@ -56,8 +53,8 @@ HANN_NEIGHBOUR = 4.0 / 9.0  # |Σ w² e^{2πin/N}|² / (Σ w²)² for the Hann w
 TONES = ("red", "blue", "side")
 
 
-def three_tones(detection=f"tones = {list(TONES)!r}".replace("'", '"')):
-    text = two_probe_text(detection).replace(
+def three_tones():
+    text = two_probe_text('tones = ["red", "blue", "side"]').replace(
         "[detection]", second_mode() + tone_table("side", 2e4, -OMEGA_HZ, "idler")
         + "[detection]")
     return parse_scenario(text, source="three-tones.toml")
@@ -107,8 +104,8 @@ def test_law_equals_a_brute_force_sum_over_the_segment():
     w = scipy.signal.get_window("hann", n, fftbins=True)
     w = w / np.sqrt(np.mean(w**2))
     dft = np.exp(-2j * np.pi * np.outer(np.arange(n), np.arange(n)) / n) * w
-    t = np.einsum("fn,ja->fjna", dft, c).reshape(n * k, n * 2 * k) / np.sqrt(plan.sample_rate_hz
-                                                                            * n)
+    t = np.einsum("fn,ja->fjna", dft, c).reshape(n * k, n * 2 * k) / np.sqrt(
+        plan.sample_rate_hz * n)
     cov = (t @ y @ t.conj().T).reshape(n, k, n, k)
     rel = (t @ y @ t.T).reshape(n, k, n, k)
     f = np.arange(n)

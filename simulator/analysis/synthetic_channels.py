@@ -41,6 +41,32 @@ neighbours, the approximation the one-channel law makes (docs/records.md).
 
 import numpy as np
 
+from simulator.analysis.wishart import complex_wishart, real_wishart
+
+
+def output_autocovariance(recursion, lags):
+    """E[y_{n+m} y_nᵀ] for m = 0 … lags − 1, by doubling (log₂ lags matrix products).
+
+    R(0) = H P Hᵀ + J Jᵀ, R(m) = H F^{m−1} (F P Hᵀ + G Jᵀ); the powers F^{m−1}
+    applied to the lag-one term are built 1, 2, 4, … at a time, so N lags
+    cost log₂ N batched products instead of N.
+    """
+    f, g, h, j, p = (recursion.transition, recursion.drive, recursion.output,
+                     recursion.feedthrough, recursion.start_covariance)
+    lags = int(lags)
+    out = np.empty((lags, h.shape[0], h.shape[0]))
+    out[0] = h @ p @ h.T + j @ j.T
+    x = np.empty((max(lags - 1, 1),) + (f.shape[0], h.shape[0]))
+    x[0] = f @ p @ h.T + g @ j.T
+    done, power = 1, f.copy()
+    while done < lags - 1:
+        take = min(done, lags - 1 - done)
+        x[done:done + take] = power @ x[:take]
+        done += take
+        power = power @ power
+    out[1:] = h @ x[:lags - 1]
+    return out
+
 
 def channel_vectors(k):
     """c (K, 2K): row k is (…, 1, i, …) on the real pair (I_k, Q_k), so z_k = c_k·y."""
@@ -58,7 +84,6 @@ def channels_law(plan, segment_samples, window):
     complex matrices E S̄_jl(f), E P̄_jl(f) on its sorted bins (module doc).
     """
     from simulator.analysis.psd import WindowedExpectation
-    from simulator.analysis.synthetic_spectrum import output_autocovariance
     from simulator.records.kernels import stepper
 
     expectation = WindowedExpectation(plan.sample_rate_hz, segment_samples, window)
@@ -95,8 +120,6 @@ def draw_channels(spectra, pseudo, averages, expectation, rng):
     ``spectra`` and ``pseudo`` are the law's (N, K, K) means (:func:`channels_law`).
     Pairs (f, −f) get one 2K×2K complex Wishart draw, the self-paired bins a real one.
     """
-    from simulator.analysis.synthetic_spectrum import complex_wishart, real_wishart
-
     n, order, k = expectation.n, expectation.order, spectra.shape[1]
     s, p = np.empty_like(spectra), np.empty_like(pseudo)  # in FFT order
     s[order], p[order] = spectra, pseudo

@@ -57,6 +57,12 @@ import dataclasses
 import numpy as np
 
 from simulator.analysis.psd import taper
+from simulator.analysis.synthetic_channels import (
+    channels_law,
+    draw_channels,
+    output_autocovariance,
+    windowed_channels,
+)
 from simulator.errors import InputError
 
 SPECTRUM_STREAM = 2  # spawn key of an averaged spectrum's draws (records use 0 and 1)
@@ -169,30 +175,6 @@ class AveragedSpectrum:
             window=self.window)
 
 
-def output_autocovariance(recursion, lags):
-    """E[y_{n+m} y_nᵀ] for m = 0 … lags − 1, by doubling (log₂ lags matrix products).
-
-    R(0) = H P Hᵀ + J Jᵀ, R(m) = H F^{m−1} (F P Hᵀ + G Jᵀ); the powers F^{m−1}
-    applied to the lag-one term are built 1, 2, 4, … at a time, so N lags
-    cost log₂ N batched products instead of N.
-    """
-    f, g, h, j, p = (recursion.transition, recursion.drive, recursion.output,
-                     recursion.feedthrough, recursion.start_covariance)
-    lags = int(lags)
-    out = np.empty((lags, h.shape[0], h.shape[0]))
-    out[0] = h @ p @ h.T + j @ j.T
-    x = np.empty((max(lags - 1, 1),) + (f.shape[0], h.shape[0]))
-    x[0] = f @ p @ h.T + g @ j.T
-    done, power = 1, f.copy()
-    while done < lags - 1:
-        take = min(done, lags - 1 - done)
-        x[done:done + take] = power @ x[:take]
-        done += take
-        power = power @ power
-    out[1:] = h @ x[:lags - 1]
-    return out
-
-
 def bin_law(plan, segment_samples, window):
     """Exact E[P_k] (and E[Z_k Z_{−k}]/(fs N) for iq) of ``plan``'s record, sorted bins.
 
@@ -209,8 +191,6 @@ def bin_law(plan, segment_samples, window):
     rounding = plan.shot_noise_per_count ** 2 / 12.0
     receiver = plan.chain.receiver
     if receiver == "iq":  # one channel of the several-tone law
-        from simulator.analysis.synthetic_channels import windowed_channels
-
         spectra, pseudo = windowed_channels(expectation, r, [rounding])
         return expectation, spectra[:, 0, 0].real, pseudo[:, 0, 0]
     if receiver == "homodyne":
@@ -313,8 +293,6 @@ def synthetic_averaged_spectrum(system, *, segment_samples, window="hann", seed=
 def _channels_drawn(plan, segment_samples, window, rng):
     """``(expectation, fields)``: the averaged spectral matrices of a record of several
     detected tones drawn from their law, and the AveragedSpectrum fields they fill."""
-    from simulator.analysis.synthetic_channels import channels_law, draw_channels
-
     expectation, spectra, pseudo = channels_law(plan, segment_samples, window)
     drawn_s, drawn_p = draw_channels(spectra, pseudo, plan.n_samples // expectation.n,
                                      expectation, rng)
@@ -335,61 +313,6 @@ def draw_pairs(mean, pseudo, averages, expectation, rng):
     for even N, −fs/2) a real one: the one-channel case of
     :func:`simulator.analysis.synthetic_channels.draw_channels`.
     """
-    from simulator.analysis.synthetic_channels import draw_channels
-
     spectra, pseudo = draw_channels(mean[:, None, None].astype(complex), pseudo[:, None, None],
                                     averages, expectation, rng)
     return spectra[:, 0, 0].real, pseudo[:, 0, 0]
-
-
-def _factor(sigma):
-    """L with L L† = Σ for positive semidefinite Σ (M, d, d), singular allowed.
-
-    2×2: the lower-triangular (Cholesky) factor in closed form; larger: the
-    symmetric root V √Λ from the eigenvalues, rounding's tiny negative ones
-    set to zero (a Wishart draw needs any L with L L† = Σ).
-    """
-    if sigma.shape[-1] != 2:
-        values, vectors = np.linalg.eigh(sigma)
-        return vectors * np.sqrt(np.maximum(values, 0.0))[:, None, :]
-    a = np.sqrt(np.maximum(sigma[:, 0, 0].real, 0.0))
-    safe = np.where(a > 0, a, 1.0)
-    low = np.where(a > 0, sigma[:, 1, 0] / safe, 0.0)
-    d = np.sqrt(np.maximum(sigma[:, 1, 1].real - np.abs(low) ** 2, 0.0))
-    out = np.zeros(sigma.shape, dtype=sigma.dtype)
-    out[:, 0, 0], out[:, 1, 0], out[:, 1, 1] = a, low, d
-    return out
-
-
-def _bartlett(m, d, dof, diagonal, normal, dtype):
-    """Lower-triangular T (m, d, d) with T T† ~ Wishart(dof, identity): diagonal
-    ``diagonal(dof − i, m)`` (|T_ii|²), below it ``normal(m)``, columns j < dof only
-    (a singular law for dof < d). Drawn diagonal first, then row by row."""
-    t = np.zeros((m, d, d), dtype=dtype)
-    for i in range(min(d, dof)):
-        t[:, i, i] = np.sqrt(diagonal(dof - i, m))
-    for i in range(1, d):
-        for j in range(min(i, dof)):
-            t[:, i, j] = normal(m)
-    return t
-
-
-def complex_wishart(sigma, dof, rng):
-    """Draws of the d×d complex Wishart law CW(dof, Σ), one per Σ in ``sigma`` (M, d, d).
-
-    Complex Bartlett decomposition: |T_ii|² ~ Gamma(dof − i), T_ij (i > j)
-    standard complex normal; W = L T T† L† with L L† = Σ.
-    """
-    t = _bartlett(sigma.shape[0], sigma.shape[-1], int(dof), rng.standard_gamma,
-                  lambda m: (rng.standard_normal(m) + 1j * rng.standard_normal(m))
-                  / np.sqrt(2.0), complex)
-    lt = _factor(sigma) @ t
-    return lt @ lt.conj().transpose(0, 2, 1)
-
-
-def real_wishart(cov, dof, rng):
-    """Draws of the d×d real Wishart law W(dof, C), one per C in ``cov`` (M, d, d)."""
-    t = _bartlett(cov.shape[0], cov.shape[-1], int(dof), rng.chisquare, rng.standard_normal,
-                  float)
-    lt = _factor(cov).real @ t
-    return lt @ lt.transpose(0, 2, 1)
