@@ -112,7 +112,7 @@ def require_one_detected_tone(scenario, what):
         raise InputError(f"{what} holds one detected tone; this scenario asks for "
                          f"{len(names)} (detection.tones = {list(names)!r}); expected "
                          "detection.tone = one of them, or a stationary record or "
-                         "averaged spectrum, which holds them all")
+                         "averaged spectrum, which hold them all")
 
 
 def tone_indices(point, names):
