@@ -32,6 +32,8 @@ _PUBLIC = {
     "simulate_record": "simulator.workflows.record",
     "Record": "simulator.records.generate",
     "load_record": "simulator.io.recordfile",
+    "expected_spectrogram": "simulator.analysis.spectrogram",
+    "expected_sideband_power": "simulator.analysis.spectrogram",
     "ScenarioError": "simulator.errors",
     "InputError": "simulator.errors",
     "OperatingPointError": "simulator.errors",

@@ -195,13 +195,11 @@ def test_occupation_from_summed_weak_coupling_rates():
 
 def test_unsupported_stages_refuse_with_a_message():
     """The stages after the receiver take the detected tone (tests/test_detected_tone.py);
-    the master equation and the split of the occupation gap by cause still refuse."""
-    from simulator.linear.occupation_gap import occupation_gaps
+    the master equation's full model still refuses (its several-tone linearised steady
+    state is tests/test_master_tones.py; the gap split, tests/test_tone_gap.py)."""
     from simulator.master.spectra import master_heterodyne_spectrum
 
     system = System(probe_system_text())
-    with pytest.raises(InputError, match="occupation_gaps does not yet support several"):
-        occupation_gaps(system)
     with pytest.raises(InputError, match="'drive', 'probe'"):
         master_heterodyne_spectrum(system.scenario)
     assert heterodyne_spectrum(system).total.size > 0

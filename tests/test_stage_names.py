@@ -6,7 +6,6 @@ import pytest
 from tone_scenarios import OMEGA_HZ, scenario_text, tone_table
 
 from simulator.errors import InputError
-from simulator.linear.occupation_gap import occupation_gaps
 from simulator.linear.referral import imprecision_backaction
 from simulator.master.steady import master_steady_state
 from simulator.model.system import System, as_system
@@ -20,7 +19,6 @@ def two_tones():
 
 
 @pytest.mark.parametrize("stage, name", [
-    (occupation_gaps, "simulator.linear.occupation_gap.occupation_gaps"),
     (imprecision_backaction, "simulator.linear.referral.imprecision_backaction"),
     (master_steady_state, "simulator.master.steady.master_steady_state"),
 ])

@@ -84,9 +84,13 @@ def _grid(system, sample_rate_hz):
     Up to π fs for samples; for the continuous record up to the farthest line
     plus twenty of the broadest half-widths.
     """
+    return _grid_of_form(system.chain.channel_form(_finite(sample_rate_hz)), sample_rate_hz)
+
+
+def _grid_of_form(form, sample_rate_hz):
+    """:func:`_grid` of a record's (sampled) :class:`~simulator.model.poles.PoleForm`."""
     from simulator.analysis.information import record_grid
 
-    form = system.chain.channel_form(_finite(sample_rate_hz))
     if math.isfinite(sample_rate_hz):
         return record_grid(form, np.pi * sample_rate_hz)
     centres, widths = form.lines()
@@ -350,6 +354,10 @@ def asymmetry_time(system, mode=0, significance=ASYMMETRY_SIGNIFICANCE, steady=N
 
     system = _system(system, "simulator.analysis.feasibility.asymmetry_time")
     scenario = system.scenario
+    if scenario.detection.backaction_evading:
+        raise InputError("the sideband asymmetry does not apply to a back-action-evading "
+                         "pair, which measures one quadrature; its resolution is "
+                         "simulator.analysis.bae_feasibility.resolution_comparison")
     if scenario.detection.scheme != "heterodyne":
         raise InputError(f"detection.scheme = {scenario.detection.scheme!r}: the sideband "
                          "asymmetry needs heterodyne detection of both sidebands")

@@ -91,6 +91,7 @@ class SteppedModels:
         stability verdict is not needed for a derivative.
         """
         from simulator.model.chain import detection_chain
+        from simulator.model.detected_tone import detected_parts
         from simulator.model.operating_point import operating_point
         from simulator.model.optomechanics import linear_model
 
@@ -98,8 +99,9 @@ class SteppedModels:
         if key not in self._systems:
             point = operating_point(scenario)
             model = linear_model(scenario, point)
-            self._systems[key] = _Built(model=model,
-                                        chain=detection_chain(scenario, point, model))
+            # the receiver demodulates detection.tone, in the stepped models as in the base
+            chain = detection_chain(scenario, *detected_parts(scenario, point, model))
+            self._systems[key] = _Built(point=point, model=model, chain=chain)
         return self._systems[key]
 
     def record_model(self, scenario):
@@ -109,8 +111,9 @@ class SteppedModels:
 
 @dataclasses.dataclass(frozen=True)
 class _Built:
-    """The linear model and detection chain of a stepped scenario."""
+    """The operating point, linear model and detection chain of a stepped scenario."""
 
+    point: object
     model: object
     chain: object
 

@@ -24,6 +24,9 @@ measured here by re-solving the model without it, with nothing else changed:
   the same interference with classical noise (docs/laser-noise.md).
 - other modes' lines overlapping (every other mode removed, at the same
   effective detuning so that the operating point stays).
+- other tones (several ``[[tones]]``; below, :func:`tone_occupation_gaps`): the
+  ratio is the detected tone's, and the other tones, replaced by the damping,
+  heating and spring they add, are a cause of their own.
 - coupling past the weak limit: what remains with all three removed — the
   mode alone with vacuum inputs, whose weights differ from n and n + 1 only
   as the self-energy varies across the line (order g/κ).
@@ -40,14 +43,17 @@ import numpy as np
 from simulator.errors import OperatingPointError, ScenarioError
 from simulator.linear.laser_effects import without_laser_noise
 from simulator.linear.sidebands import sideband_summary
+from simulator.linear.weak_coupling import optical_spring, scattering_rates
 from simulator.model import laser_noise
 from simulator.model.system import as_system
+from simulator.model.units import angular, ordinary, photon_energy_j
 from simulator.scenario.loader import scenario_from_dict
 
 CAVITY = "thermal cavity input"
 LASER = "classical laser noise"
 OVERLAP = "other modes' lines overlapping"
 STRONG = "coupling past the weak limit"
+OTHER_TONES = "other tones beyond their rates"
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -107,8 +113,9 @@ def occupation_gaps(system, summaries=None):
     tuple of OccupationGap
         One per mode, in scenario order.
     """
-    system = as_system(system, stage="simulator.linear.occupation_gap.occupation_gaps")
-    system = system.require_stable()
+    system = as_system(system, several_tones=True).require_stable()
+    if system.several_tones:  # the detected tone's ratio, other tones a cause of their own
+        return tone_occupation_gaps(system)
     summaries = (sideband_summary(system, at_digitiser=False) if summaries is None
                  else summaries)
     base = _plain(system.scenario)
@@ -173,3 +180,119 @@ def _mode_alone(scenario, j, detuning_effective_hz):
     data["drive"]["detuning_reference"] = "effective"
     data["drive"]["detuning_hz"] = float(detuning_effective_hz)
     return scenario_from_dict(data, source=scenario.source)
+
+
+# Several tones: the ratio-occupation gap of the detected tone.
+#
+# With several tones (``[[tones]]``) the receiver reads the sidebands of one
+# tone, ``detection.tone``, while the occupation n is set by all of them. The
+# gap n_R − n of that tone's sideband ratio splits as above, with one more
+# cause:
+#
+# - other tones (``OTHER_TONES``): every tone but the detected one replaced by
+#   what it does to the motion in weak coupling, a damping Σk (A−,k − A+,k),
+#   a heating Σk [A+,k (n_c,k + 1) + A−,k n_c,k] and an optical spring
+#   (Marquardt, Chen, Clerk & Girvin, Phys. Rev. Lett. 99, 093902 (2007),
+#   Eqs. (3)–(5); rates add over tones, Aspelmeyer, Kippenberg & Marquardt,
+#   Rev. Mod. Phys. 86, 1391 (2014), Sec. VII), folded into the mode's
+#   linewidth, bath occupation and frequency. The line keeps its width and
+#   the mode its occupation to weak-coupling accuracy; what the term measures
+#   is what the other tones do beyond their rates: their scattering through
+#   the shared mechanics (counter-rotating terms, strong coupling) seen in the
+#   detected tone's lines.
+#
+# The detected tone then stands alone as the ``[drive]`` of a one-tone scenario
+# (its cavity mode, frequency, power and effective detuning), and the causes
+# above (thermal cavity input of its mode,
+# other mechanical modes, coupling past the weak limit) split the rest.
+
+
+def tone_occupation_gaps(system):
+    """:class:`OccupationGap` of every mode for the detected tone's record (module doc).
+
+    Parameters
+    ----------
+    system : System or Scenario
+        With several tones (without, this is
+        :func:`simulator.linear.occupation_gap.occupation_gaps`).
+    """
+    whole = as_system(system, several_tones=True).require_stable()
+    if not whole.several_tones:
+        return occupation_gaps(whole)
+    summaries = sideband_summary(whole, at_digitiser=False)
+    alone = detected_alone(whole)
+    rest = occupation_gaps(alone)
+    gaps = []
+    for summary, part in zip(summaries, rest, strict=True):
+        gap = summary.occupation_from_ratio - summary.steady_state_occupation
+        terms = {OTHER_TONES: gap - part.difference, **part.terms}
+        gaps.append(OccupationGap(
+            mode=summary.mode, from_ratio=summary.occupation_from_ratio,
+            steady_state=summary.steady_state_occupation, terms=terms,
+            remainder=gap - sum(terms.values()),
+            cavity_thermal_occupation=part.cavity_thermal_occupation,
+            closed_form_cavity_term=part.closed_form_cavity_term))
+    return tuple(gaps)
+
+
+def detected_alone(system):
+    """One-tone scenario: the detected tone as the drive, the others folded into the modes.
+
+    Each mechanical mode j gets Γ' = Γ + Σ_{k≠d} (A−,k − A+,k),
+    Γ' n' = Γ n_th + Σ_{k≠d} [A+,k (n_c,k + 1) + A−,k n_c,k] and
+    Ω' = Ω + Σ_{k≠d} δΩ_k (the tones' optical springs), at the detected tone's
+    effective detuning; the coupling g0 is that of the detected tone's mode.
+    """
+    from simulator.model.detected_tone import detected_index
+    from simulator.model.tone_point import coupling_matrix_hz
+
+    scenario, point = system.scenario, system.point
+    d = detected_index(scenario, point)
+    tone = point.tones[d]
+    cav = point.cavity_modes[tone.cavity_mode]
+    g0 = coupling_matrix_hz(scenario)[tone.cavity_mode]
+    data = scenario.to_dict()
+    for key in ("tones", "cavity_modes", "couplings", "sweep", "plan", "schedule"):
+        data.pop(key, None)
+    data["drive"] = {"frequency_hz": float(tone.frequency_hz),
+                     "power_w": float(tone.input_photon_flux
+                                      * photon_energy_j(tone.frequency_hz)),
+                     "detuning_hz": float(tone.detuning_effective_hz),
+                     "detuning_reference": "effective"}
+    data["cavity"] = {"linewidth_hz": float(cav.linewidth_hz),
+                      "external_linewidth_hz": float(cav.external_linewidth_hz),
+                      "bath_occupation": float(cav.bath_occupation)}
+    data.setdefault("detection", {})["tone"] = "drive"
+    for j, mode in enumerate(point.modes):
+        damping, heating, spring = _others(point, d, j)
+        entry = data["mechanics"][j]
+        entry.pop("bath_temperature_k", None)
+        width = mode.linewidth_hz + damping
+        entry["linewidth_hz"] = float(width)
+        entry["bath_occupation"] = float((mode.linewidth_hz * mode.bath_occupation + heating)
+                                         / width)
+        entry["frequency_hz"] = float(mode.frequency_hz + spring)
+        entry["coupling_hz"] = float(g0[j])
+    return scenario_from_dict(data, source=scenario.source)
+
+
+def _others(point, detected, j):
+    """Damping, heating (quanta × Hz) and spring (Hz) the tones other than ``detected`` add
+    to mode ``j`` in weak coupling."""
+    mode = point.modes[j]
+    damping = heating = spring = 0.0
+    for k, tone in enumerate(point.tones):
+        if k == detected:
+            continue
+        cav = point.cavity_modes[tone.cavity_mode]
+        n_c = (1.0 - cav.external_linewidth_hz / cav.linewidth_hz) * cav.bath_occupation
+        args = {"g": float(angular(tone.coupling_rates_hz[j])),
+                "kappa": float(angular(cav.linewidth_hz)),
+                "detuning": float(angular(tone.detuning_effective_hz)),
+                "frequency": float(angular(mode.frequency_hz))}
+        down, up = scattering_rates(**args)
+        damping += float(ordinary(down - up))
+        heating += float(ordinary(up * (n_c + 1) + down * n_c))
+        spring += float(ordinary(optical_spring(**args)))
+    return damping, heating, spring
+

@@ -45,6 +45,7 @@ import dataclasses
 import numpy as np
 import scipy.linalg
 
+from simulator.errors import InputError
 from simulator.linear.record_budget import record_sidebands
 from simulator.linear.steady_state import mode_eigenvalues, steady_state
 from simulator.model.optomechanics import device_size, mode_states
@@ -177,6 +178,11 @@ def sideband_summary(system, *, at_digitiser=True):
     """
     system = as_system(system, several_tones="detected").require_stable()
     scenario, point, model = system.scenario, system.point, system.model
+    if scenario.detection.backaction_evading:
+        raise InputError(
+            "the sideband summary does not apply to a back-action-evading pair: both "
+            "motional sidebands fall on the cavity frequency and the record measures one "
+            "quadrature; its budget is simulator.linear.quadratures.quadrature_budget")
     steady = steady_state(system)
     eta = scenario.detection.efficiency
     n_tones = max(len(point.tones), 1)  # every tone's field is part of the device

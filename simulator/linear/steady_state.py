@@ -78,8 +78,14 @@ def steady_state(system):
     scenario, point, model = system.scenario, system.point, system.model
     v = model.covariance()
     cavity_occupation = occupation(v, slice(0, 2))
-    frequencies, linewidths = effective_mechanics(model, len(point.modes),
-                                                  max(len(point.tones), 1))
+    if scenario.detection.backaction_evading:  # one field; the mechanics' frame turns at ν
+        from simulator.model.backaction_evasion import lab_mechanics
+
+        frequencies, linewidths = map(tuple, zip(lab_mechanics(scenario, point, model),
+                                                 strict=True))
+    else:
+        frequencies, linewidths = effective_mechanics(model, len(point.modes),
+                                                      max(len(point.tones), 1))
     if point.several_tones:
         return SteadyState(states=model.states, covariance=v,
                            cavity_occupation=float(cavity_occupation),

@@ -62,6 +62,10 @@ def detected_parts(scenario, point, model):
     if not point.several_tones:
         return point, model
     require_quiet_detection(scenario)
+    if scenario.detection.backaction_evading:  # the pair's field, at its mean frequency
+        from simulator.model.backaction_evasion import pair_point
+
+        return pair_point(scenario, point), model
     k = detected_index(scenario, point)
     seen = point if k == 0 else tone_point_of(scenario, point, k)
     return seen, _detected_outputs(model, k)

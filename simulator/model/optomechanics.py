@@ -74,9 +74,15 @@ def linear_model(scenario, point):
         When the drive carries classical noise or a calibration tone,
         :func:`simulator.model.laser_noise.laser_model` appends ``laser.*`` states
         and inputs; otherwise the model is exactly the one above. With several
-        tones (``point.several_tones``) see :func:`several_tones_model`.
+        tones (``point.several_tones``) see :func:`several_tones_model`; a declared
+        back-action-evading pair (``detection.backaction_evading``) takes
+        :func:`simulator.model.backaction_evasion.backaction_evading_model`.
     """
     if point.several_tones:
+        if scenario.detection.backaction_evading:  # one field for the pair (its own module)
+            from simulator.model.backaction_evasion import backaction_evading_model
+
+            return backaction_evading_model(scenario, point)
         return several_tones_model(scenario, point)
     kappa, kappa_ex, delta = angular([point.cavity_linewidth_hz,
                                       point.external_linewidth_hz,

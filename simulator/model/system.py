@@ -122,12 +122,15 @@ class System:
         several tones, which ``what`` does not support yet."""
         if self.several_tones:
             names = ", ".join(repr(t.name) for t in self.point.tones)
+            why = next((text for stage, text in _WHY_ONE_TONE if what.startswith(stage)), "")
             raise InputError(
                 f"{what} does not yet support several drive tones (this scenario has "
-                f"{names}); supported so far: the operating point, the linear model, its "
-                "stability, the steady state, and for the tone named by detection.tone "
-                "the spectra, sideband summary, noise budget, records, feasibility, "
-                "inspect, plan and sweep; remove the [[tones]] tables for everything else")
+                f"{names}){why}; supported so far: the operating point, the linear model, its "
+                "stability, the steady state (every tone included), and for the tone named "
+                "by detection.tone the spectra, sideband summary, noise budget, records, "
+                "feasibility, inspect, plan and sweep, and the joint bound of several "
+                "recorded tones (simulator.analysis.joint_feasibility); remove the [[tones]] "
+                "tables for everything else")
         return self
 
     def replace(self, path, value):
@@ -180,4 +183,13 @@ def as_system(item, *, several_tones=False, stage=None):
     return item if several_tones else item.require_one_tone(stage or _UNNAMED_STAGE)
 
 
+# Why a stage refuses several tones, by the start of its public name
+_WHY_ONE_TONE = (
+    ("simulator.master", ": its Fock space holds one cavity mode in the frame of the drive, "
+     "and the full model of several tones beats at their spacing (no stationary state in "
+     "one frame); for the steady state with every tone use the linearised master equation "
+     "with one Hilbert factor per tone field, "
+     "simulator.master.tone_fields.tone_fields_steady_state, or the linear steady state "
+     "(simulator.linear.steady_state), which it reproduces"),
+)
 _UNNAMED_STAGE = "this computation"  # for a caller that does not name its stage

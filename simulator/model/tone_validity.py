@@ -201,9 +201,10 @@ def check_tone_spacings(scenario, point):
                 text + "; there the tones share input noise or their beat drives the "
                 "mechanics, which one field per tone cannot describe; expected the "
                 f"spacing at least {REFUSE_WIDTHS:g} widths (better {WARN_WIDTHS:g}) from "
-                "every combination frequency (two tones about ±Ωm of one mode, a "
-                "back-action-evading measurement, have their own rotating-wave model: "
-                "simulator.model.backaction_evasion)", key=f"tones[{max(k, m) - 1}].detuning_hz",
+                "every combination frequency (two tones about ±Ωm of one mode are a "
+                "back-action-evading pair: detection.backaction_evading = true gives them "
+                "their own rotating-wave model, docs/physics.md \"Back-action evasion\")",
+                key=f"tones[{max(k, m) - 1}].detuning_hz",
                 source=scenario.source)
         if ratio < WARN_WIDTHS:
             warnings.warn(text + f"; the per-tone model holds to a few per cent only beyond "

@@ -170,6 +170,22 @@ class RecordPlan:
     watched: np.ndarray  # state indices of the mechanical quadratures to store
     innovations: object = None
 
+    def recursion_stepper(self):
+        """The recursion the record runs, bound to its kernel (:func:`kernels.stepper`).
+
+        The hook :func:`generate` calls; a scheduled record's plan returns a
+        stepper that switches models at segment boundaries instead.
+        """
+        from simulator.records.kernels import stepper
+
+        return stepper(self)
+
+    def tone_samples(self):
+        """``signal(first, count)``: the calibration tone's samples, or None without one."""
+        from simulator.model.tone import tone_signal
+
+        return tone_signal(self.chain, self.scenario, self.sample_rate_hz)
+
     @property
     def volts_per_count(self):
         """Voltage step of one digitiser count (V): full range 2·full_scale_v / 2^bits."""
@@ -217,6 +233,11 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
         system = system.replace("record.store_mechanics", bool(store_mechanics))
     scenario = system.scenario
     store = scenario.record.store_mechanics
+    if store and scenario.detection.backaction_evading:
+        raise InputError("record.store_mechanics with detection.backaction_evading: the "
+                         "pair's model holds the quadratures X1, X2 in the frame turning at "
+                         "half the tones' spacing, not q, p; storing them is not supported "
+                         "yet; expected store_mechanics = false")
     if form not in ("auto", "full-state", "innovations"):
         raise InputError(f"form = {form!r}; expected 'auto', 'full-state' or 'innovations'")
     if form == "innovations" and store:
@@ -248,6 +269,8 @@ def plan_record(system, *, seed=None, duration_s=None, form="auto", store_mechan
     if point.several_tones:  # the (first) tone whose sidebands the record holds
         calibration.update(detected_tone=detected_tone_names(scenario)[0],
                            detected_tone_frequency_hz=float(point.drive_frequency_hz))
+        if det.backaction_evading:  # the reference sits at the pair's mean frequency
+            calibration.update(detected_tone="back-action-evading pair (mean frequency)")
     truth = Truth(mode_names=names,
                   occupation=tuple(m.occupation for m in steady.modes),
                   effective_frequency_hz=tuple(m.effective_frequency_hz for m in steady.modes),
@@ -357,14 +380,13 @@ def generate(plan, sink, *, chunk, progress=None, workers=1):
     a tone is digitised here instead, block by block after the recursion. The
     counts are the same bits for any number of workers.
     """
-    from simulator.model.tone import tone_signal
     from simulator.records import kernels, pipeline
 
     chain, n_total = plan.chain, plan.n_samples
-    step = kernels.stepper(plan)
+    step = plan.recursion_stepper()
     p = len(chain.model.outputs)
     digitiser = kernels.Digitiser(plan)
-    tone = tone_signal(plan.chain, plan.scenario, plan.sample_rate_hz)
+    tone = plan.tone_samples()
     cycles = chain.carrier_rad_s / (2 * np.pi * plan.sample_rate_hz)
     encode = getattr(sink, "encode", None)
 

@@ -370,7 +370,7 @@ def stepper(plan, *, modal=True):
         return Stepper(sigma_factor.shape[0], Recursion(
             kind="innovations", transition=phi, drive=drive, output=gam,
             feedthrough=sigma_factor, start_covariance=inn.predictor_covariance), step, state)
-    m = modal.to_modal @ state
+    m = np.asarray(modal.to_modal @ state, dtype=complex)  # real when every λ is: m.imag writable
     parts = [np.ascontiguousarray(x) for x in (
         modal.eigenvalues.real, modal.eigenvalues.imag, modal.output.real,
         modal.output.imag, modal.drive.real, modal.drive.imag)]

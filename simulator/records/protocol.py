@@ -25,6 +25,11 @@ The truth of a protocol record is a :class:`Timeline`: occupation, mean
 quadratures, effective frequency and linewidth of every mode as functions of
 time, from the exact mean and covariance evolution.
 
+A segment may be unstable (a blue-detuned pulse beyond the threshold of
+parametric instability): it has no steady state, but its exact
+discretisation and covariance flow exist, so it is run within a stated limit
+on its growth (:func:`segment_systems`).
+
 References
 ----------
 Van Loan, IEEE Trans. Autom. Control 23, 395 (1978) (integrals of matrix
@@ -41,6 +46,11 @@ import scipy.linalg
 from simulator.errors import InputError, OperatingPointError
 from simulator.records.discretize import van_loan
 from simulator.records.generate import FULL_SCALE_SIGMAS, RecordPlan
+from simulator.records.unstable import (
+    check_unstable,
+    effective_from_eigenvalues,
+    uncoupled_covariance,
+)
 
 VOLTS_RTOL = 1e-12  # relative change of volts per unit that still counts as one calibration
 
@@ -70,7 +80,8 @@ class Timeline:
     ``mean_q``, ``mean_p`` the mean quadratures (a coherent amplitude β has
     ⟨q⟩ + i⟨p⟩ = √2 β), so the total phonon number is occupation +
     (mean_q² + mean_p²)/2. The effective frequency and linewidth are those of
-    the segment in force (steady-state values of its linear model).
+    the segment in force (steady-state values of its linear model; for an
+    unstable segment, from its drift's eigenvalues, the linewidth negative).
     """
 
     mode_names: tuple
@@ -100,9 +111,31 @@ class ProtocolPlan(RecordPlan):
     start_covariance: np.ndarray
     timeline: Timeline
 
+    def recursion_stepper(self):
+        """The full-state recursion of every segment in turn, the state carried over."""
+        from simulator.records.protocol_stepper import segment_stepper
+
+        return segment_stepper(self)
+
+    def tone_samples(self):
+        """The calibration tone's samples of every segment, or None when none has one."""
+        from simulator.records.protocol_stepper import segment_tone
+
+        return segment_tone(self)
+
 
 def segment_systems(scenario):
-    """``(name, System)`` of every segment of ``scenario``'s schedule, checked stable."""
+    """``(name, System)`` of every segment of ``scenario``'s schedule, checked.
+
+    A segment whose linear model is unstable (a blue-detuned pulse above the
+    threshold of parametric instability: optical anti-damping beyond Γm) has
+    no steady state, but its exact discretisation and covariance flow exist:
+    it is allowed when it is finite and amplifies the state's variance by at
+    most :data:`MAX_VARIANCE_GROWTH` (e^{2 Re λ_max T}, λ_max the eigenvalue
+    of the drift with the largest real part, T the segment's duration), and
+    never as the first segment of a schedule that starts in the steady state
+    (:mod:`simulator.records.unstable`).
+    """
     from simulator.model.system import System
 
     schedule = scenario.schedule
@@ -116,11 +149,12 @@ def segment_systems(scenario):
         for path, value in (segment.changes or {}).items():
             system = system.replace(path, value)
         if not system.stable:
-            raise OperatingPointError(
-                f"schedule segment {i} ({segment.name!r}) is unstable "
-                f"({system.stability.cause}); "
-                "protocol records need every segment's linear model to be stable")
+            check_unstable(i, segment, system, schedule.start)
         out.append((segment.name, system))
+    if all(not system.stable for _, system in out):
+        raise OperatingPointError(
+            "every schedule segment is unstable; expected at least one stable segment, "
+            "whose steady state gives the record's stationary truth and calibration")
     return out
 
 
@@ -163,7 +197,8 @@ def plan_protocol(scenario, *, seed=None):
     from simulator.records.generate import plan_record
 
     systems = segment_systems(scenario)
-    first_plan = plan_record(systems[0][1], seed=seed, form="full-state")
+    stable = next(system for _, system in systems if system.stable)
+    first_plan = plan_record(stable, seed=seed, form="full-state")
     store = first_plan.scenario.record.store_mechanics
     det, dig = scenario.detection, scenario.digitizer
     chains = [system.chain for _, system in systems]
@@ -193,17 +228,20 @@ def plan_protocol(scenario, *, seed=None):
             kick=float(np.sqrt(2.0 * spec.excite_phonons))))
         first += n
     mean0, cov0 = start_state(scenario.schedule, segments[0])
-    timeline, peaks = exact_timeline(segments, mean0, cov0, scenario.schedule.truth_points,
-                                     fs)
-    full_scale = dig.full_scale_v or max(
-        FULL_SCALE_SIGMAS * s.chain.record_std(s.discrete)
+    timeline, peaks, ends = exact_timeline(segments, mean0, cov0,
+                                           scenario.schedule.truth_points, fs)
+    full_scale = dig.full_scale_v or max(  # an unstable segment: its variance at the end
+        FULL_SCALE_SIGMAS * s.chain.record_std(s.discrete if s.system.stable else
+                                               dataclasses.replace(s.discrete,
+                                                                   state_covariance=end))
         + (tone_amplitude(s.chain, s.system.scenario) + peak) * s.chain.volts_per_unit
-        for s, peak in zip(segments, peaks, strict=True))
+        for s, peak, end in zip(segments, peaks, ends, strict=True))
     fields = {f.name: getattr(first_plan, f.name) for f in dataclasses.fields(RecordPlan)}
     truth = dataclasses.replace(first_plan.truth, calibration=dict(
         first_plan.truth.calibration, full_scale_v=float(full_scale)))
     fields.update(truth=truth, scenario=dataclasses.replace(first_plan.scenario,
                                                schedule=scenario.schedule),
+                  system=segments[0].system, chain=segments[0].chain,
                   sample_rate_hz=float(fs), n_samples=first, full_scale_v=float(full_scale),
                   discrete=discretes[0], innovations=None)
     if not store:
@@ -219,9 +257,14 @@ def start_state(schedule, segment):
     ``occupation``: the same with every mechanical mode's (q, p) block set to
     (n + ½)·1 and its correlations with the other states removed (n the bath
     occupation or ``start_occupation``), which is a covariance again (a
-    block-diagonal matrix of positive semi-definite blocks).
+    block-diagonal matrix of positive semi-definite blocks). An unstable first
+    segment (never with ``steady``) has no steady state: the other states
+    then start in the steady state of its model without the optomechanical
+    coupling (the cavity and detection chain at the segment's drive).
     """
     cov = np.array(segment.discrete.state_covariance, dtype=float)
+    if not segment.system.stable:  # no steady state: the rest as if uncoupled (stable)
+        cov = uncoupled_covariance(segment.chain.model)
     if schedule.start != "steady":
         for mode in segment.system.point.modes:
             n = mode.bath_occupation if schedule.start == "thermal" else (
@@ -238,6 +281,18 @@ def covariance_flow(a, steady, v0, t):
     e = scipy.linalg.expm(a * t)
     v = e @ (v0 - steady) @ e.T + steady
     return 0.5 * (v + v.T), e
+
+
+def segment_flow(seg, v0, t):
+    """Covariance after ``t`` seconds of segment ``seg`` from ``v0``; also returns e^{At}.
+
+    The closed form about the steady state for a stable segment, Van Loan's
+    block exponential for an unstable one (no steady state to expand about).
+    """
+    model = seg.chain.model
+    if seg.system.stable:
+        return covariance_flow(model.A, seg.discrete.state_covariance, v0, t)
+    return covariance_flow_van_loan(model.A, model.diffusion, v0, t)
 
 
 def covariance_flow_van_loan(a, diffusion, v0, t):
@@ -289,8 +344,7 @@ def segment_starts(segments, mean, cov, fs):
         mean = mean.copy()
         mean[seg.kick_index] += seg.kick
         yield seg, mean, cov
-        cov, e = covariance_flow(seg.chain.model.A, seg.discrete.state_covariance, cov,
-                                 seg.n_samples / fs)
+        cov, e = segment_flow(seg, cov, seg.n_samples / fs)
         mean = e @ mean
 
 
@@ -308,8 +362,7 @@ def state_moments(plan, samples):
                                          plan.start_covariance, fs):
         inside = np.flatnonzero((samples >= seg.first) & (samples < seg.first + seg.n_samples))
         for i in inside:
-            covs[i], e = covariance_flow(seg.chain.model.A, seg.discrete.state_covariance,
-                                         cov, (samples[i] - seg.first) / fs)
+            covs[i], e = segment_flow(seg, cov, (samples[i] - seg.first) / fs)
             means[i] = e @ mean
     return means, covs
 
@@ -324,14 +377,18 @@ def exact_timeline(segments, mean, cov, points, fs):
     iq = [model0.index(f"{n}.q") for n in names]
     ip = [model0.index(f"{n}.p") for n in names]
     cavity = [model0.index(s) for s in ("cavity.X", "cavity.Y") if s in model0.states]
-    rows, peaks = [], []
+    rows, peaks, ends = [], [], []
     for k, (seg, m0, v0) in enumerate(segment_starts(segments, mean, cov, fs)):
         peaks.append(_mean_output_peak(seg, m0))
-        steady = steady_state(seg.system)
-        freq = [m.effective_frequency_hz for m in steady.modes]
-        width = [m.effective_linewidth_hz for m in steady.modes]
+        if seg.system.stable:
+            steady = steady_state(seg.system)
+            freq = [m.effective_frequency_hz for m in steady.modes]
+            width = [m.effective_linewidth_hz for m in steady.modes]
+        else:
+            freq, width = effective_from_eigenvalues(seg.system)
+        ends.append(segment_flow(seg, v0, seg.n_samples / fs)[0])
         for t in np.linspace(0.0, seg.n_samples / fs, points):
-            v, e = covariance_flow(seg.chain.model.A, seg.discrete.state_covariance, v0, t)
+            v, e = segment_flow(seg, v0, t)
             m = e @ m0
             n_cav = (0.5 * (v[cavity[0], cavity[0]] + v[cavity[1], cavity[1]] - 1.0)
                      if cavity else np.nan)
@@ -345,4 +402,5 @@ def exact_timeline(segments, mean, cov, points, fs):
         times_s=np.array(cols[0]), segment=np.array(cols[1], dtype=np.int64),
         occupation=np.array(cols[2]), mean_q=np.array(cols[3]), mean_p=np.array(cols[4]),
         effective_frequency_hz=np.array(cols[5]), effective_linewidth_hz=np.array(cols[6]),
-        cavity_occupation=np.array(cols[7])), peaks
+        cavity_occupation=np.array(cols[7])), peaks, ends
+

@@ -7,8 +7,15 @@ same per-block streams as a stationary record's
 (:class:`simulator.records.kernels.NormalBlocks`), indexed by the sample's
 place in the whole record, and the start is drawn as a stationary record's
 start is: a one-segment schedule that starts in the steady state therefore
-gives the stationary full-state record bit for bit (same seed). The record
-is the same bits for any chunk size.
+gives the stationary full-state record bit for bit (same seed).
+
+The record runs through the same threaded pipeline as a stationary one
+(:func:`simulator.records.generate.generate`, :mod:`simulator.records.pipeline`)
+with the plan's own stepper and tone (:mod:`simulator.records.protocol_stepper`):
+the kernel's matrices switch at segment boundaries inside a chunk, and each
+segment's tone is its own. Every step is a pure function of the sample
+indices, so the record is the same bits for any chunk size and any number of
+worker threads.
 """
 
 import dataclasses
@@ -20,7 +27,7 @@ from simulator.errors import InputError
 
 
 def generate_protocol_record(scenario, *, seed=None, chunk_samples=None, sink=None,
-                             progress=None):
+                             progress=None, workers=None):
     """A digitised record of ``scenario``'s ``[schedule]``; returns the Record.
 
     Parameters
@@ -37,6 +44,10 @@ def generate_protocol_record(scenario, *, seed=None, chunk_samples=None, sink=No
         which then stores the timeline too); default: memory.
     progress : callable, optional
         Called with the samples of each chunk and the total.
+    workers : int, optional
+        Threads that draw normals, digitise and compress beside the
+        recursion (default: every core this process may use); the same bits
+        for any number.
 
     Returns
     -------
@@ -50,19 +61,22 @@ def generate_protocol_record(scenario, *, seed=None, chunk_samples=None, sink=No
         RecordWarning,
         quantisation_share,
     )
+    from simulator.records.pipeline import checked_workers
     from simulator.records.protocol import plan_protocol
 
     plan = plan_protocol(scenario, seed=seed)
     chunk = plan.scenario.record.chunk_samples if chunk_samples is None else chunk_samples
     if isinstance(chunk, bool) or not isinstance(chunk, (int, np.integer)) or chunk < 1:
         raise InputError(f"chunk_samples = {chunk!r}; expected a positive integer")
+    workers = checked_workers(workers)
     target = MemorySink(plan) if sink is None else sink(plan, int(min(chunk, plan.n_samples)))
     with target:
-        clipped = run_segments(plan, target, chunk=int(chunk), progress=progress)
+        clipped = run_segments(plan, target, chunk=int(chunk), progress=progress,
+                               workers=workers)
         record = target.finish(clipped)
     coarse = max(quantisation_share(dataclasses.replace(plan, chain=seg.chain,
                                                         discrete=seg.discrete))
-                 for seg in plan.segments)
+                 for seg in plan.segments if seg.system.stable)  # unstable: only louder
     if coarse > QUANTISATION_WARNING:
         warnings.warn(f"the digitiser's step ({plan.bits} bits over ±{plan.full_scale_v:.6g} V, "
                       "a range set by the loudest segment) adds rounding noise of "
@@ -75,43 +89,8 @@ def generate_protocol_record(scenario, *, seed=None, chunk_samples=None, sink=No
     return record, plan.timeline
 
 
-def run_segments(plan, sink, *, chunk, progress=None):
+def run_segments(plan, sink, *, chunk, progress=None, workers=1):
     """Run every segment's recursion into ``sink``; return the number of clipped samples."""
-    from simulator.model.tone import tone_signal
-    from simulator.records import kernels
+    from simulator.records.generate import generate
 
-    first_seg = plan.segments[0]
-    width = first_seg.noise_factor.shape[1]
-    state = kernels._stationary_start(plan.seed, plan.start_covariance) + plan.start_mean
-    normals = kernels.NormalBlocks(plan.seed, kernels.SAMPLE_STREAM, width,
-                                   kernels.BLOCK_SAMPLES)
-    digitiser = kernels.Digitiser(plan)
-    cycles = first_seg.chain.carrier_rad_s / (2 * np.pi * plan.sample_rate_hz)
-    p = len(first_seg.chain.model.outputs)
-    clipped = 0
-    for seg in plan.segments:
-        state[seg.kick_index] += seg.kick
-        phi = np.ascontiguousarray(seg.discrete.transition)
-        gam = np.ascontiguousarray(seg.discrete.output)
-        tone = tone_signal(seg.chain, seg.system.scenario, plan.sample_rate_hz)
-        end = seg.first + seg.n_samples
-        for first in range(seg.first, end, chunk):
-            count = min(chunk, end - first)
-            y = np.empty((count, p))
-            mech = np.empty((count, plan.watched.size))
-            for pos, xi in normals.pieces(first, count):
-                kernels.full_state_step(phi, gam, seg.noise_factor, state, xi,
-                                        y[pos:pos + len(xi)], plan.watched,
-                                        mech[pos:pos + len(xi)])
-            if seg.chain.receiver == "homodyne":
-                y = y[:, 0]
-            elif seg.chain.receiver == "if":
-                y = kernels.rotate_to_carrier(y, first, cycles)
-            if tone is not None:
-                y = y + tone(first, len(y))
-            counts, n_clip = digitiser(y)
-            clipped += n_clip
-            sink.write(first, counts, mech if plan.watched.size else None)
-            if progress is not None:
-                progress(count, plan.n_samples)
-    return clipped
+    return generate(plan, sink, chunk=chunk, progress=progress, workers=workers)

@@ -30,7 +30,7 @@ def unit_of_span(span):
 
 
 def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, title=None,
-                  overwrite=False):
+                  overwrite=False, zooms=None):
     """Save a figure of ``spectrum`` with its noise budget to ``path`` (PNG, PDF, SVG).
 
     Parameters
@@ -49,9 +49,12 @@ def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, titl
     title : str, optional
     overwrite : bool
         Replace an existing file at ``path`` (by default it is an error).
+    zooms : sequence of (label, centre Hz, linewidth Hz), optional
+        Zoom panels of lines the sideband summary does not describe (a
+        back-action-evading pair's X1 line); default those of ``summary``.
     """
     two_sided = spectrum.sided == "two-sided"
-    zooms = _zooms(summary, mode, two_sided)
+    zooms = _zooms(summary, mode, two_sided) if zooms is None else list(zooms)
     rows = 1 + bool(zooms) + bool(zooms and displacement is not None)
     fig = figure(figsize=(13, 3.6 * rows + 0.5), layout="constrained")
     grid = fig.add_gridspec(rows, max(len(zooms), 1))

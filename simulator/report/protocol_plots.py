@@ -5,7 +5,11 @@ number (mean_q² + mean_p²)/2 from the record's timeline
 (:class:`simulator.records.protocol.Timeline`). Below: the record's
 anti-Stokes sideband power in time, |block mean of z e^{−2πi f_m t}|²
 (:func:`simulator.analysis.ringdown.demodulated_power`), in shot-noise units;
-the segments are shaded and named on both.
+the segments are shaded and named on both. Given the scenario, the bottom
+panel also draws the exact expectation of that measured power
+(:func:`simulator.analysis.spectrogram.expected_sideband_power`): the same
+blocks and frequency, from the exact two-time covariance and mean of the
+schedule, so the measured points scatter about it.
 """
 
 import numpy as np
@@ -16,10 +20,16 @@ BLOCKS = 400  # points of the measured sideband power across the record
 MIN_COHERENT = 0.1  # coherent phonons below this are not drawn (they decay without end)
 SHADES = ("#f2f2f2", "#ffffff")  # alternate segment backgrounds
 TRUTH_COLOUR, COHERENT_COLOUR, RECORD_COLOUR = "#b5432f", "#6a6a6a", "#3b75af"
+EXPECTED_COLOUR = "#1d1d1d"
 
 
-def plot_protocol(record, timeline, path, *, overwrite=False):
-    """Write the figure of a scheduled iq ``record`` and its ``timeline`` to ``path``."""
+def plot_protocol(record, timeline, path, *, overwrite=False, scenario=None):
+    """Write the figure of a scheduled iq ``record`` and its ``timeline`` to ``path``.
+
+    ``scenario``, the scenario with the ``[schedule]`` the record was made
+    from, adds the expected sideband power (a record's own ``scenario`` holds
+    the first segment's parameters, not the file's, so it is not used).
+    """
     from simulator.analysis.ringdown import demodulated_power
     from simulator.errors import InputError
 
@@ -42,6 +52,14 @@ def plot_protocol(record, timeline, path, *, overwrite=False):
     top.legend(loc="best", fontsize="small")
     bottom.semilogy(t * ms, power, color=RECORD_COLOUR, linewidth=0.8,
                     label=f"record: anti-Stokes power, {block / fs * 1e6:.3g} µs blocks")
+    if scenario is not None:
+        from simulator.analysis.spectrogram import expected_sideband_power
+        from simulator.records.protocol import plan_protocol
+
+        te, expected, _ = expected_sideband_power(plan_protocol(scenario, seed=record.seed),
+                                                  frequency, block)
+        bottom.semilogy(te * ms, expected, color=EXPECTED_COLOUR, linewidth=1.2,
+                        label="expected (exact, same blocks)")
     shown = power[power > 0]
     if shown.size:
         bottom.set_ylim(shown.min() / 2, shown.max() * 2)

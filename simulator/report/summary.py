@@ -41,12 +41,32 @@ def at_a_glance(data, sidebands=(), best=()):
         "mode", "phonon occupation n", "n from the sideband ratio",
         "error on n after 1 s (Cramér–Rao)",
         f"time to resolve the asymmetry at {significance:g}σ (s)"]))
+    if data.get("backaction_evasion"):
+        parts.append(quadrature_table(data["backaction_evasion"]))
     if best:
         parts.append("<p>Best stable operating points found:</p>" + html.table(
             [list(row) for row in best], header=["criterion", "where", "value"]))
     notes = _notes(data)
     parts.append(html.warnings_block(notes))
     return "\n".join(parts)
+
+
+def quadrature_table(bae):
+    """HTML of a back-action-evading pair: X1 and X2, the imprecision, the resolution
+    beside one tone's (the plain data of the inspection's ``backaction_evasion``)."""
+    rows = [["X1 variance (measured; zero-point 0.5)", bae["x1_variance"]],
+            ["X1: counter-rotating residual back-action", bae["x1_counter_rotating_backaction"]],
+            ["X2 variance (conjugate)", bae["x2_variance"]],
+            ["X2: back-action heating", bae["x2_backaction_heating"]],
+            ["imprecision referred to X1, ideal detector (quanta)", bae["imprecision_quanta"]],
+            ["imprecision referred to X1, this record (quanta)",
+             bae["record_imprecision_quanta"]],
+            ["least noise one tone adds (standard quantum limit, quanta)",
+             bae["standard_quantum_limit_quanta"]]]
+    rows += [[f"{r['scheme']}: error on n_th after 1 s (n_th the only unknown)",
+              _value(r["occupation_error_1s"])] for r in bae.get("resolution", ())]
+    return (f"<p>Back-action-evading measurement of mode {html.escape(bae['mode'])}:</p>"
+            + html.table(rows, header=["quantity", "value"]))
 
 
 def _verdict(data):

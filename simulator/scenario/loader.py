@@ -25,6 +25,7 @@ from simulator.scenario.paths import (
     leaf_paths,
     leaf_type,
     objects_along,
+    resolve_names,
     split_path,
 )
 from simulator.scenario.plan_section import Plan
@@ -50,7 +51,13 @@ from simulator.scenario.sections import (  # noqa: F401 - re-exported for users 
     ScenarioInfo,
 )
 from simulator.scenario.sweep_section import Sweep
-from simulator.scenario.tone_sections import CavityMode, Coupling, Tone, tone_problems
+from simulator.scenario.tone_sections import (
+    CavityMode,
+    Coupling,
+    Tone,
+    pair_problems,
+    tone_problems,
+)
 
 _frozen = dataclasses.dataclass(frozen=True, kw_only=True)
 
@@ -97,6 +104,7 @@ class Scenario:
                        f"{mode.name!r} is used by an earlier mode; expected unique names")
             seen.add(mode.name)
         yield from tone_problems(self)
+        yield from pair_problems(self)
         yield from self._chain_problems()
         yield from self._local_oscillator_problems()
         yield from receiver_problems(self)
@@ -160,7 +168,7 @@ class Scenario:
         return paths
 
     def _canonical(self, path):
-        return units.alias_path(type(self), path, self.source)
+        return units.alias_path(type(self), resolve_names(self, path), self.source)
 
     def to_dict(self):
         """The scenario as nested plain data, as it would appear in TOML."""
@@ -180,6 +188,7 @@ class Scenario:
         canonical, alias = self._canonical(path)
         if alias:
             return units.dbm_from_watts(self.get(canonical))
+        path = canonical  # an entry named in place of its index: tones.probe.power_w
         node = self
         for name, index in split_path(path, self.source):
             try:
@@ -206,6 +215,7 @@ class Scenario:
             except ScenarioError as exc:
                 raise ScenarioError(f"{value!r} dBm is {watts:.6g} W; {exc.detail}",
                                     source=self.source, key=path) from None
+        path = canonical  # an entry named in place of its index: tones.probe.power_w
         parts = split_path(path, self.source)
         chain = objects_along(self, parts)
         if chain is not None:

@@ -108,3 +108,46 @@ def leaf_paths(cls, prefix):
         else:
             paths.append(f"{prefix}.{sub.name}")
     return paths
+
+
+def resolve_names(scenario, path):
+    """``path`` with an entry of an array of tables named by its ``name``: ``"tones.probe.power_w"``
+    → ``"tones[1].power_w"`` (also ``mechanics.drum.…``, ``cavity_modes.idler.…``).
+
+    Paths with indices, and names that are not arrays of tables, come back unchanged; an
+    unknown entry name raises :class:`ScenarioError` listing the names there are.
+    """
+    parts = split_path(path, scenario.source)
+    out, node, k = [], scenario, 0
+    while k < len(parts):
+        name, index = parts[k]
+        if node is None or name not in {f.name for f in schema.public_fields(type(node))}:
+            break  # past the sections: the rest as given (a dBm twin, or the usual error)
+        kind, _, _ = schema.field_kind(type(node), name)
+        child = getattr(node, name)
+        if kind == "sections" and index is None and k + 1 < len(parts):
+            names = [getattr(item, "name", None) for item in child]
+            entry, entry_index = parts[k + 1]
+            if entry not in names or entry_index is not None:
+                if entry in fields_of(child):
+                    return path  # a key asked of the array itself: the usual error follows
+                raise ScenarioError(
+                    f"path {path!r}: no entry named {entry!r} in [[{name}]]; expected one of "
+                    f"{', '.join(repr(n) for n in names if n is not None) or 'none'} "
+                    f"(or an index, {name}[0])", source=scenario.source, key=path)
+            index = names.index(entry)
+            k += 1
+        out.append((name, index))
+        if kind == "sections" and index is not None and index < len(child):
+            node = child[index]
+        elif kind == "section":
+            node = child
+        else:
+            node = None
+        k += 1
+    return ".".join(join(out + parts[k:]))
+
+
+def fields_of(items):
+    """Field names of the entries of an array of tables (empty when it has none)."""
+    return {f.name for f in schema.public_fields(type(items[0]))} if items else set()

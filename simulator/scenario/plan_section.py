@@ -21,7 +21,7 @@ import dataclasses
 from simulator.scenario.schema import param
 from simulator.scenario.sweep_section import parse_parameters
 
-OBJECTIVES = ("asymmetry_time", "occupation_error", "occupation")
+OBJECTIVES = ("asymmetry_time", "occupation_error", "occupation", "recorded_tones_time")
 REGIME_LEVELS = ("linear", "marginal", "nonlinear")
 
 
@@ -31,13 +31,16 @@ class Plan:
 
     objective: str = param(
         "what to minimise: the integration time to resolve the quantum sideband asymmetry "
-        "(heterodyne), the Cramér–Rao error of the occupation after duration_s, or the "
-        "steady-state occupation", choices=OBJECTIVES, default="asymmetry_time")
+        "(heterodyne), the Cramér–Rao error of the occupation after duration_s, the "
+        "steady-state occupation, or with several tones the time T of the tones recorded "
+        "together (joint Whittle bound: the sideband ratio told from 1 at significance)",
+        choices=OBJECTIVES, default="asymmetry_time")
     mode: int = param("index of the mechanical mode the objective is about (0: the first "
                       "[[mechanics]] table)", check="nonnegative", default=0, high=999)
     significance: float = param(
         "standard deviations at which the asymmetry counts as resolved "
-        "(objective asymmetry_time)", check="positive", default=5.0, high=100.0)
+        "(objectives asymmetry_time and recorded_tones_time)", check="positive", default=5.0,
+        high=100.0)
     duration_s: float = param(
         "integration time of the occupation error (objective occupation_error)", unit="s",
         check="positive", default=1.0, high=1e9)

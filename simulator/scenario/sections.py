@@ -304,6 +304,12 @@ class Detection:
         parser=parse_tone_names,
         default=None,
         accepts='a list of distinct tone names, e.g. ["red_probe", "blue_probe"]')
+    backaction_evading: bool = param(
+        "the [drive] and the one [[tones]] table are a back-action-evading pair at ±Ωm "
+        "about the [cavity] mode (one mechanical mode): the model is their rotating-wave "
+        "two-tone model (docs/physics.md, \"Back-action evasion\"), the receiver's "
+        "reference sits at their mean frequency and the record measures one mechanical "
+        "quadrature; detection.tone must stay \"drive\"", default=False)
     balanced: bool = param(
         "balanced detection (both ports of the signal–local-oscillator beam splitter "
         "subtracted); false: one port of a 50:50 combiner, which halves the efficiency",

@@ -261,3 +261,28 @@ def detected_tones_problems(scenario, tones):
                '"heterodyne" with record.kind = "iq": each tone is demodulated into its own '
                "I/Q pair (one real record holding every tone's sidebands at an intermediate "
                "frequency is not offered)")
+
+
+def pair_problems(scenario):
+    """Checks of a declared back-action-evading pair (``detection.backaction_evading``):
+    the [drive] and exactly one [[tones]] table on the [cavity] mode, one mechanical
+    mode, the receiver at the pair (``detection.tone`` the drive). Yields ``(key, message)``."""
+    if not scenario.detection.backaction_evading:
+        return
+    key = "detection.backaction_evading"
+    tones = scenario.tones
+    if len(tones) != 1 or tones[0].cavity_mode != PRIMARY_CAVITY:
+        where = ", ".join(f"{t.name!r} on {t.cavity_mode!r}" for t in tones) or "none"
+        yield (key, f"true with [[tones]] {where}; expected the [drive] and exactly one "
+               f"[[tones]] table on the \"{PRIMARY_CAVITY}\" mode, a pair at ±Ωm about it")
+    if len(scenario.mechanics) != 1:
+        yield (key, f"true with {len(scenario.mechanics)} [[mechanics]] tables; expected "
+               "one mechanical mode, the one whose quadrature the pair measures")
+    if scenario.schedule is not None:
+        yield ("schedule", "a [schedule] with detection.backaction_evading is not supported "
+               "yet (its segments kick and watch the mode's q, p; the pair's model holds "
+               "X1, X2); expected no [schedule] for a back-action-evading pair")
+    if scenario.detection.tone != PRIMARY_TONE:
+        yield ("detection.tone", f"{scenario.detection.tone!r} with detection."
+               "backaction_evading: the receiver's reference sits at the pair's mean "
+               f"frequency; expected \"{PRIMARY_TONE}\" (the default)")

@@ -29,6 +29,9 @@ class Inspection:
     feasibility: tuple = ()  # per mode: dict of measurement-time bounds (heterodyne)
     regime: object = None  # simulator.master.regime.RegimeVerdict: is the linear engine valid?
     laser: tuple = ()  # per mode: laser-noise occupations (simulator.model.laser_noise)
+    tone_sets: tuple = ()  # several recorded tones: bounds of each alone and all together
+    quadratures: object = None  # QuadratureBudget of a back-action-evading pair
+    resolution: tuple = ()  # its Resolution, and that of one tone on the same device
 
     @property
     def scenario(self):
@@ -48,6 +51,9 @@ class Inspection:
     def to_dict(self):
         """Plain data for JSON: numbers in SI units, frequencies in Hz."""
         p, st = self.point, self.steady
+        # a back-action-evading pair is demodulated at its mean frequency, no tone's
+        detected = None if self.scenario.detection.backaction_evading else \
+            detected_tone_names(self.scenario)[0]
         modes = []
         for j, mp in enumerate(p.modes):
             entry = {
@@ -101,9 +107,13 @@ class Inspection:
             "cavity_occupation": None if st is None else st.cavity_occupation,
             "modes": modes,
             "feasibility": [dict(f) for f in self.feasibility],
-            **({"detected_tone": detected_tone_names(self.scenario)[0],
-                "tones": tone_rows(p, detected_tone_names(self.scenario)[0])}
+            **({"tone_sets": [dataclasses.asdict(b) for b in self.tone_sets]}
+               if self.tone_sets else {}),
+            **({"detected_tone": detected, "tones": tone_rows(p, detected)}
                if p.several_tones else {}),
+            **({"backaction_evasion": self.quadratures.to_dict() | {
+                "resolution": [r.to_dict() for r in self.resolution]}}
+               if self.quadratures is not None else {}),
             "regime": None if self.regime is None else self.regime.to_dict(),
             "warnings": list(self.warnings),
         }
@@ -112,7 +122,9 @@ class Inspection:
         """Human-readable report for the terminal."""
         d = self.to_dict()
         lines = [f"scenario {d['scenario']}  ({d['source']})", "",
-                 "operating point" + (f" (the detected tone, {d['detected_tone']}; "
+                 "operating point" + (" (the pair at its mean frequency; occupations "
+                                      "from both tones)" if "backaction_evasion" in d else
+                                      f" (the detected tone, {d['detected_tone']}; "
                                       "occupations from every tone)" if "tones" in d else "")]
         lines.append(f"  drive power            {power_text(d['drive_power_w'])}")
         lines.append(f"  intracavity photons    {d['photon_number']:.6g}"
@@ -163,12 +175,30 @@ class Inspection:
                              f"{f['asymmetry_time_s']:.4g} s at {f['significance']:g} "
                              "standard deviations")
                 lines += _long_time_hint(f)
+        if self.tone_sets:
+            from simulator.analysis.joint_feasibility import tone_set_text
+
+            lines += tone_set_text(self.tone_sets)
+        if self.quadratures is not None:
+            lines += [""] + self.quadratures.text() + _resolution_text(self.resolution)
         if d["regime"] is not None:
             lines += ["", f"regime (linear engine validity)  {d['regime']['level']}",
                       f"  {d['regime']['reason']}"]
         if d["warnings"]:
             lines += ["", "warnings"] + [f"  - {w}" for w in d["warnings"]]
         return "\n".join(lines)
+
+
+def _resolution_text(resolution):
+    """The feasibility lines of a back-action-evading pair beside one tone's."""
+    if not resolution:
+        return []
+    lines = ["", "feasibility, bath occupation n_th the only unknown (Cramér–Rao, Whittle)"]
+    for r in resolution:
+        lines.append(f"  {r.scheme:<38}error after 1 s {r.occupation_error_1s:.4g}; "
+                     f"zero-point ½ resolved at {r.to_dict()['significance']:g}σ after "
+                     f"{r.zero_point_time_s:.4g} s")
+    return lines
 
 
 # an asymmetry time beyond this gets a hint on why, and where to look for a shorter one
@@ -258,6 +288,15 @@ def inspect_scenario(system, *, feasibility=True):
                     f"exact {exact:.4g} by more than {STRONG_COUPLING_TOLERANCE:.0%}; the "
                     "system is near or in strong coupling and the rate-equation "
                     "diagnostics do not apply")
+    quadratures, resolution = None, ()
+    if scenario.detection.backaction_evading and steady is not None:
+        # one quadrature measured: its budget, and its resolution beside one tone's
+        from simulator.analysis.bae_feasibility import resolution_comparison
+        from simulator.linear.quadratures import quadrature_budget
+
+        quadratures = quadrature_budget(system)
+        resolution = resolution_comparison(system) if feasibility else ()
+        feasibility = False  # the sideband bounds do not apply to one quadrature
     feasibility = (_feasibility(system, steady) if steady is not None and feasibility
                    else ())
     warnings += [f"mode {f['mode']}: the record carries too little information about this "
@@ -277,9 +316,25 @@ def inspect_scenario(system, *, feasibility=True):
                  f"trusted: {entry['apparent_occupation_warning']}"
                  for ms, entry in zip(steady.modes if steady else (), laser, strict=False)
                  if "apparent_occupation_warning" in entry]
+    tone_sets = (_tone_sets(system, feasibility) if steady is not None and feasibility
+                 else ())
     return Inspection(system=system, steady=steady,
                       warnings=tuple(warnings), feasibility=feasibility, regime=regime,
-                      laser=laser)
+                      laser=laser, tone_sets=tone_sets, quadratures=quadratures,
+                      resolution=resolution)
+
+
+def _tone_sets(system, feasibility):
+    """Bounds of the added tones recorded each alone and all together, for every mode
+    with a bound (simulator.analysis.joint_feasibility); empty with fewer than two."""
+    from simulator.analysis.joint_feasibility import detected_tone_sets, tone_set_bounds
+
+    sets = detected_tone_sets(system.scenario)
+    if not sets:
+        return ()
+    names = [m.name for m in system.scenario.mechanics]
+    return tuple(b for f in feasibility
+                 for b in tone_set_bounds(system.scenario, sets, names.index(f["mode"])))
 
 
 def _tone_points(system):

@@ -13,8 +13,12 @@ Objectives (all minimised): the time to resolve the sideband asymmetry at
 ``significance`` standard deviations
 (:func:`simulator.analysis.feasibility.asymmetry_time`), the Cramér–Rao error
 of the occupation after ``duration_s``
-(:func:`simulator.analysis.feasibility.occupation_bound`), or the exact
-steady-state occupation.
+(:func:`simulator.analysis.feasibility.occupation_bound`), the exact
+steady-state occupation, or with several tones the time of the tones recorded
+together (``recorded_tones_time``, the joint bound of
+:func:`simulator.analysis.joint_feasibility.joint_bound`). Each tone's power
+and detuning are free parameters like the drive's (``tones.<name>.power_w``,
+``tones.<name>.power_dbm``, ``tones.<name>.detuning_hz`` or ``tones[i]....``).
 
 Constraints, each reported by name: ``max_power_w``, ``max_photon_number``,
 ``stability`` (largest growth rate at most ``max_growth_rate_hz``; an
@@ -56,6 +60,21 @@ def check_plan(scenario):
                             f"{scenario.detection.scheme!r}: the asymmetry needs heterodyne "
                             "detection of both sidebands; expected scheme = \"heterodyne\" "
                             "or another objective", source=scenario.source,
+                            key="plan.objective")
+    if plan.objective == "recorded_tones_time":
+        from simulator.analysis.joint_feasibility import detected_tone_sets
+
+        if not detected_tone_sets(scenario):
+            raise ScenarioError("objective \"recorded_tones_time\" needs [[tones]] recorded "
+                                "by an iq or homodyne receiver (record.kind = \"if\" and a "
+                                "scenario without [[tones]] have no joint record); expected "
+                                "[[tones]] or another objective", source=scenario.source,
+                                key="plan.objective")
+    if plan.objective == "asymmetry_time" and scenario.detection.backaction_evading:
+        raise ScenarioError("objective \"asymmetry_time\" with detection.backaction_evading: "
+                            "a back-action-evading pair measures one quadrature, with no "
+                            "sideband asymmetry; expected the objective \"occupation\" or "
+                            "\"occupation_error\"", source=scenario.source,
                             key="plan.objective")
     if plan.heating_per_photon_k > 0 or plan.heating_k_per_w > 0:
         for i, mode in enumerate(scenario.mechanics):
@@ -152,6 +171,12 @@ def _objective(system, plan):
     occupations = [m.occupation for m in steady.modes]
     if plan.objective == "occupation":
         return occupations[plan.mode], occupations
+    if plan.objective == "recorded_tones_time":
+        from simulator.analysis.joint_feasibility import detected_tone_sets, joint_bound
+
+        tones = detected_tone_sets(system.scenario)[-1]  # all of them together
+        return joint_bound(system, tones, plan.mode,
+                           significance=plan.significance).duration_s, occupations
     seen = system.detected.point  # the detected tone's (detection.tone)
     if (seen.photon_number == 0 or seen.modes[plan.mode].coupling_rate_hz == 0
             if system.several_tones else system.scenario.drive.power_w == 0

@@ -92,14 +92,15 @@ def simulate_record(system, *, seed=None, duration_s=None, out=None, form="auto"
         if scenario.schedule is not None:
             return scheduled_record(scenario, seed=seed, duration_s=duration_s, form=form,
                                     store_mechanics=store_mechanics,
-                                    chunk_samples=chunk_samples, sink=sink, progress=advance)
+                                    chunk_samples=chunk_samples, sink=sink, progress=advance,
+                                    workers=workers)
         return generate_record(system, seed=seed, duration_s=duration_s, form=form,
                                store_mechanics=store_mechanics, chunk_samples=chunk_samples,
                                sink=sink, progress=advance, workers=workers)
 
 
 def scheduled_record(scenario, *, seed, duration_s, form, store_mechanics, chunk_samples,
-                     sink, progress):
+                     sink, progress, workers=None):
     """The record of a scenario with a ``[schedule]`` (docs/records.md, "Schedules").
 
     Its length is the sum of the segments' durations and it runs the full
@@ -123,7 +124,7 @@ def scheduled_record(scenario, *, seed, duration_s, form, store_mechanics, chunk
         scenario = dataclasses.replace(scenario, record=dataclasses.replace(
             scenario.record, store_mechanics=bool(store_mechanics)))
     record, _ = generate_protocol_record(scenario, seed=seed, chunk_samples=chunk_samples,
-                                         sink=sink, progress=progress)
+                                         sink=sink, progress=progress, workers=workers)
     return record
 
 

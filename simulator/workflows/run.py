@@ -70,7 +70,8 @@ def _run(scenario, out, workers, dask, progress, best):
     summary = ()
     if inspection.stability.stable:
         part, summary = _spectrum_part(system, out, wrote, figures)
-        details.append(("Sideband summary", part))
+        details.append(("Quadrature budget" if scenario.detection.backaction_evading
+                        else "Sideband summary", part))
     else:
         details.append(("Spectrum", "<p>No spectrum: the operating point is unstable ("
                         + html.escape(inspection.stability.cause) + ").</p>"))
@@ -83,6 +84,15 @@ def _run(scenario, out, workers, dask, progress, best):
             rows, header=["mode", "occupation error after 1 s",
                           f"time to resolve the asymmetry at "
                           f"{data['feasibility'][0]['significance']:g}σ (s)"])))
+
+    if data.get("tone_sets"):
+        rows = [[b["mode"], " and ".join(b["tones"]), b["error_one_second"], b["duration_s"]]
+                for b in data["tone_sets"]]
+        details.append(("Feasibility of the tones recorded together (joint Whittle)",
+                        html.table(rows, header=[
+                            "mode", "recorded tones", "occupation error after 1 s",
+                            f"time T for n/(n+1) ≠ 1 at "
+                            f"{data['tone_sets'][0]['significance']:g}σ (s)"])))
 
     record_part = _record_part(system, out, wrote, figures, progress)
     if record_part:
@@ -166,10 +176,16 @@ def _spectrum_part(system, out, wrote, figures):
     spectrum, summary = result.spectrum, result.summary
     spectrum.save(wrote(out / "spectrum.nc"), overwrite=True)
     png = wrote(out / "spectrum.png")
-    plot_spectrum(spectrum, png, summary=summary,
+    plot_spectrum(spectrum, png, summary=summary, zooms=_quadrature_zoom(system, result),
                   title=figure_title(result, system.scenario.scenario.name), overwrite=True)
     figures.append((png, "Spectrum of the record at the digitiser and its noise budget: the "
                          "whole band and each sideband zoomed."))
+    if result.quadratures is not None:  # one quadrature measured, no sideband pair
+        from simulator.report.summary import quadrature_table
+
+        return (f"<p>{html.escape(spectrum.quantity)}: {spectrum.sided} density in "
+                f"{html.escape(spectrum.units)}; axis: {html.escape(spectrum.axis)}.</p>"
+                + quadrature_table(result.quadratures.to_dict())), summary
     rows = [[s.mode, s.anti_stokes.frequency_hz, s.anti_stokes.area_quanta,
              s.stokes.frequency_hz, s.stokes.area_quanta, s.ratio, s.occupation_from_ratio,
              s.steady_state_occupation] for s in summary]
@@ -182,6 +198,18 @@ def _spectrum_part(system, out, wrote, figures):
                       for s in summary if s.gap is not None)
             + "".join(f"<p>Warning, mode {html.escape(s.mode)}: {html.escape(s.warning)}.</p>"
                       for s in summary if s.warning)), summary
+
+
+def _quadrature_zoom(system, result):
+    """A back-action-evading pair's zoom on X1's line at zero offset (None otherwise)."""
+    if result.quadratures is None:
+        return None
+    from simulator.linear.steady_state import steady_state
+
+    q = result.quadratures
+    width = steady_state(system).modes[0].effective_linewidth_hz
+    return [(f"{q.mode} X1 (measured quadrature)\nvariance {q.x1_variance:.4g}, "
+             f"counter-rotating residual {q.x1_counter_rotating:.3g}", 0.0, width)]
 
 
 def _record_part(system, out, wrote, figures, progress):
@@ -198,7 +226,8 @@ def _record_part(system, out, wrote, figures, progress):
         warnings.simplefilter("always")
         record = simulate_record(system, out=path, progress=progress, overwrite=True)
     if system.scenario.schedule is not None and record.kind == "iq":
-        _protocol_figure(path, wrote(out / "record_protocol.png"), figures)
+        _protocol_figure(system.scenario, path, wrote(out / "record_protocol.png"),
+                         figures)
     elif system.scenario.schedule is None:  # a stationary record against its spectrum
         png = wrote(out / "record_spectrum.png")
         plot_record_sidebands(system, record, png)
@@ -223,16 +252,18 @@ def _record_part(system, out, wrote, figures, progress):
                                        "linewidth (Hz)"]))
 
 
-def _protocol_figure(path, png, figures):
+def _protocol_figure(scenario, path, png, figures):
     """The figure of a scheduled record in time (docs/records.md, "Schedules")."""
     from simulator.io.recordfile import load_record
     from simulator.io.timelinefile import read_timeline
     from simulator.report.protocol_plots import plot_protocol
 
-    plot_protocol(load_record(path), read_timeline(path), png, overwrite=True)
+    plot_protocol(load_record(path), read_timeline(path), png, overwrite=True,
+                  scenario=scenario)
     figures.append((png, "Scheduled record: the true thermal occupation and coherent phonon "
                          "number of the first mode in time, above the record's anti-Stokes "
-                         "sideband power; the segments shaded and named."))
+                         "sideband power and its exact expectation; the segments shaded "
+                         "and named."))
 
 
 def _sweep_part(scenario, out, wrote, figures, workers, dask, progress):

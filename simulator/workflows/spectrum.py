@@ -10,6 +10,7 @@ occupation from the sideband ratio differs from the exact one
 
 import dataclasses
 import math
+import re
 import textwrap
 
 import numpy as np
@@ -28,6 +29,7 @@ class SpectrumResult:
     engine: str
     summary: tuple  # SidebandSummary per mode, with record view and gap (linear engine)
     name: str = ""  # the scenario's name
+    quadratures: object = None  # QuadratureBudget of a back-action-evading pair, else None
 
 
 def compute_spectrum(system, *, at="record", engine="linear", master_model="full",
@@ -71,6 +73,16 @@ def compute_spectrum(system, *, at="record", engine="linear", master_model="full
         spectrum = digitiser_spectrum(system)
     else:
         spectrum = measured_spectrum(system, quadrature_angle=quadrature_angle)
+    if system.scenario.detection.backaction_evading:  # one quadrature, no sideband pair
+        from simulator.linear.quadratures import quadrature_budget
+
+        axis = re.sub(r"from the drive \(> 0: anti-Stokes[^)]*\)",
+                      "from the pair's mean frequency (X1's line at 0)", spectrum.axis)
+        spectrum = dataclasses.replace(spectrum, axis=axis.replace(
+            "the drive", "the pair's mean frequency"))
+        return SpectrumResult(spectrum=spectrum, at=at, engine=engine, summary=(),
+                              name=system.scenario.scenario.name,
+                              quadratures=quadrature_budget(system))
     summary = sideband_summary(system)
     if not system.several_tones:  # the gap's causes are split for one tone only
         gaps = occupation_gaps(system, summary)
@@ -114,6 +126,8 @@ def report_data(result, files):
                          "total": float(spectrum.total[k]),
                          "lines": {n: float(v[k]) for n, v in spectrum.contributions.items()}},
            "sidebands": [s.to_dict() for s in result.summary], "files": files}
+    if result.quadratures is not None:
+        out["backaction_evasion"] = result.quadratures.to_dict()
     if volts is not None:
         out["v2_per_hz_per_shot_noise_unit"] = volts
         out["sample_rate_hz"] = spectrum.calibration["sample_rate_hz"]
@@ -157,6 +171,8 @@ def report_text(result, files):
             lines.append(f"    Fano-shaped: dispersive weights {fano[0]:.4g} (anti-Stokes), "
                          f"{fano[1]:.4g} (Stokes) quanta: correlated noise interferes with "
                          "the motion")
+    if result.quadratures is not None:
+        lines += [f"  {line}" for line in result.quadratures.text()]
     lines += [f"  {kind} written to {path}" for kind, path in files.items()]
     return "\n".join(lines)
 

@@ -259,6 +259,8 @@ def _add_sidebands(scenario, result):
     from simulator.linear.sidebands import sideband_summary
     from simulator.model.system import System
 
+    if scenario.detection.backaction_evading:
+        return  # one quadrature measured: no sideband pair, the three stay NaN
     system = System(scenario)  # built once for the summary and every mode's bound
     for j, s in enumerate(sideband_summary(system)):
         result["sideband_ratio"][j] = s.ratio

@@ -123,15 +123,22 @@ def segment_truths(scenario):
     """Truth of each ``[schedule]`` segment, first mode: ``<quantity>@<segment name>``.
 
     The segment's steady-state effective linewidth and frequency (a ring-down
-    measures them) and occupation (where a transient ends).
+    measures them) and occupation (where a transient ends); for an unstable
+    segment the linewidth (negative) and frequency of its drift's poles only.
     """
     if getattr(scenario, "schedule", None) is None:
         return {}
     from simulator.linear.steady_state import steady_state
     from simulator.records.protocol import segment_systems
+    from simulator.records.unstable import effective_from_eigenvalues
 
     table = {}
     for name, system in segment_systems(scenario):
+        if not system.stable:  # a growing pulse: its poles, and no occupation to end at
+            freq, width = effective_from_eigenvalues(system)
+            table.update({f"effective_linewidth_hz@{name}": width[0],
+                          f"effective_frequency_hz@{name}": freq[0]})
+            continue
         mode = steady_state(system).modes[0]
         table.update({f"effective_linewidth_hz@{name}": mode.effective_linewidth_hz,
                       f"effective_frequency_hz@{name}": mode.effective_frequency_hz,

@@ -38,6 +38,12 @@ Prints, measured side by side in one run:
 7. A synthetic averaged spectrum (drawn from its exact law) of a 1 s and a
    one-hour record, against the time the time-domain route (stream the
    record, then average its periodograms) would take at the rate of 5.
+8. A scheduled record (three segments: a kick, the tone off, a new
+   detuning) on the same threaded pipeline: generation alone (planned once,
+   counts discarded) with 1 worker thread and with one per core, beside the
+   stationary full-state record of the same length and scenario on 1 and all
+   threads. The ratios threaded / single-thread of the two should match:
+   the segments cost only a switch of matrices at each boundary.
 
 The machine may be shared: absolute rates vary from run to run, the ratios
 measured side by side in one run are what count.
@@ -401,13 +407,64 @@ def synthetic_spectra(stream_rate):
               f"{route:8.0f} s   ratio {route / times[3600.0]:.3g}")
 
 
+class DiscardSink:
+    """A sink that drops the counts: generation alone is timed."""
+
+    def __init__(self, plan, rows=None):
+        self.plan = plan
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        return False
+
+    def write(self, first, counts, mech):
+        pass
+
+
+def scheduled_records(n):
+    from simulator.records.generate import generate
+    from simulator.records.pipeline import available_cores
+    from simulator.records.protocol import plan_protocol
+
+    cores, seconds = available_cores(), n / 2e6
+    data = scenario(seconds).to_dict()
+    data["schedule"] = {"start": "thermal", "segments": [
+        {"name": "kick", "duration_s": seconds / 3, "excite_phonons": 1e4},
+        {"name": "off", "duration_s": seconds / 3, "changes": {"drive.power_w": 0.0}},
+        {"name": "step", "duration_s": seconds / 3, "changes": {"drive.detuning_hz": -2.5e5}}]}
+    from simulator.scenario.loader import scenario_from_dict
+
+    t = time.perf_counter()
+    scheduled = plan_protocol(scenario_from_dict(data, source="<bench>"), seed=1)
+    t_plan = time.perf_counter() - t
+    stationary = plan_record(scenario(scheduled.n_samples / 2e6), seed=1, form="full-state")
+    chunk = 1 << 18
+    rates = {}
+    for name, plan in (("scheduled", scheduled), ("stationary", stationary)):
+        generate(plan, DiscardSink(plan), chunk=chunk, workers=1)  # compile, warm
+        for workers in sorted({1, cores}):
+            rates[name, workers] = plan.n_samples / best_of(
+                lambda p=plan, w=workers: generate(p, DiscardSink(p), chunk=chunk, workers=w),
+                repeats=2)
+    print(f"8. scheduled iq record (3 segments) of {scheduled.n_samples:.3g} samples, full "
+          f"state, on {cores} core(s), M samples/s (planned once in {t_plan:.2f} s)")
+    for name in ("scheduled", "stationary"):
+        one, every = rates[name, 1], rates[name, cores]
+        print(f"   {name:10s} 1 thread: {one / 1e6:8.2f}   {cores} threads: {every / 1e6:8.2f}"
+              f"   threaded / single-thread {every / one:5.2f}")
+    print(f"   scheduled / stationary, {cores} threads: "
+          f"{rates['scheduled', cores] / rates['stationary', cores]:5.2f}")
+
+
 def main():
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--samples", type=float, default=2e7,
                         help="length of the streamed record (target: 1e9)")
     parser.add_argument("--kernel-samples", type=float, default=2e6)
     parser.add_argument("--skip-qutip", action="store_true")
-    parser.add_argument("--only", default="1,2,3,4,5,6,7", help="sections to run, e.g. 5,6")
+    parser.add_argument("--only", default="1,2,3,4,5,6,7,8", help="sections to run, e.g. 5,6")
     args = parser.parse_args()
     only = {int(x) for x in args.only.split(",")}
     kernel = int(args.kernel_samples)
@@ -423,6 +480,8 @@ def main():
             rate = run() if number == 5 else (run(), rate)[1]
     if 7 in only:
         synthetic_spectra(rate)
+    if 8 in only:
+        scheduled_records(int(args.samples) // 4)
 
 
 if __name__ == "__main__":
