@@ -24,12 +24,8 @@ from conftest import run_cli
 from test_records import expected_welch, make
 
 from simulator.analysis.psd import averaged_periodogram
-from simulator.analysis.synthetic_spectrum import (
-    bin_law,
-    complex_wishart,
-    real_wishart,
-    synthetic_averaged_spectrum,
-)
+from simulator.analysis.synthetic_spectrum import bin_law, synthetic_averaged_spectrum
+from simulator.analysis.wishart import complex_wishart, real_wishart
 from simulator.errors import InputError
 from simulator.io.averagedfile import load_averaged_spectrum
 from simulator.records.generate import plan_record

@@ -279,16 +279,11 @@ def test_trial_runs_an_estimator_per_channel_or_on_all(tmp_path):
     assert truth_of("occupation:red", table) == table["occupation"]
 
 
-@pytest.mark.parametrize("what", ["averaged", "schedule"])
-def test_one_channel_products_refuse_several_detected_tones(what):
-    from simulator.workflows.record import simulate_averaged_spectrum
-
+def test_one_channel_products_refuse_several_detected_tones():
+    """A schedule still records one tone (averaged spectra of several: test_synthetic_channels)."""
     with pytest.raises(InputError, match="holds one detected tone; this scenario asks for 2"):
-        if what == "averaged":
-            simulate_averaged_spectrum(two_probes(), segment_samples=256)
-        else:
-            simulate_record(two_probes(extra="[schedule]\n[[schedule.segments]]\n"
-                                       "duration_s = 1e-5\n"), workers=1)
+        simulate_record(two_probes(extra="[schedule]\n[[schedule.segments]]\n"
+                                   "duration_s = 1e-5\n"), workers=1)
 
 
 def test_record_command_names_the_tones_and_writes_both_modes(tmp_path, capsys):

@@ -37,6 +37,13 @@ and Kollár, Quantization Noise (Cambridge, 2008), Ch. 4); clipping is not
 modelled. For an if record the carrier makes the record cyclostationary; the
 law uses its time-averaged autocovariance 2 Re[e^{iθTm} R_u(m)].
 
+- **Several detected tones** (``detection.tones``, K I/Q pairs from one
+  model): the 2K vector of every channel at f and −f is drawn at once, as a
+  2K×2K complex Wishart matrix whose covariance holds the spectra, the
+  cross-spectra and the pseudo-spectra of the joint model
+  (:mod:`simulator.analysis.synthetic_channels`); the one-channel law above
+  is its K = 1 case, drawn by the same code.
+
 What is approximate (docs/records.md states it): the bins are drawn
 independently, while the window correlates neighbouring bins (for the Hann
 window the powers of adjacent bins of white noise correlate by 4/9) and a
@@ -50,6 +57,12 @@ import dataclasses
 import numpy as np
 
 from simulator.analysis.psd import taper
+from simulator.analysis.synthetic_channels import (
+    channels_law,
+    draw_channels,
+    output_autocovariance,
+    windowed_channels,
+)
 from simulator.errors import InputError
 
 SPECTRUM_STREAM = 2  # spawn key of an averaged spectrum's draws (records use 0 and 1)
@@ -65,6 +78,19 @@ class AveragedSpectrum:
     0 < f < fs/2 for real records. ``cross`` (iq only) is the averaged
     Z_f Z_{−f}/(fs N) on the same axis (equal at f and −f). The ``expected_*``
     arrays are the exact means of the two.
+
+    With several detected tones (``tones``, K of them; always iq) the
+    spectrum holds every channel and their correlations
+    (:mod:`simulator.analysis.synthetic_channels`): ``spectral_matrix``
+    (F, K, K) the averaged Z_j(f) Z_l(f)*/(fs N) (each channel's periodogram
+    on the diagonal, the cross-spectra off it), ``pseudo_matrix`` the
+    averaged Z_j(f) Z_l(−f)/(fs N), with their exact means
+    ``expected_spectral_matrix``, ``expected_pseudo_matrix``; ``density``,
+    ``cross`` and their expectations are then (F, K), column k channel k's
+    (the diagonals). :meth:`channel` is one tone's spectrum alone,
+    :meth:`matrix` the :class:`simulator.analysis.psd.SpectralMatrixEstimate`.
+    ``rounding_variance`` is the first tone's, ``channel_rounding_variance``
+    each tone's.
     """
 
     frequency_hz: np.ndarray
@@ -91,39 +117,62 @@ class AveragedSpectrum:
     software_version: str
     created_utc: str = ""
     path: object = None
+    tones: tuple = ()
+    channel_rounding_variance: tuple = ()
+    spectral_matrix: np.ndarray | None = None
+    pseudo_matrix: np.ndarray | None = None
+    expected_spectral_matrix: np.ndarray | None = None
+    expected_pseudo_matrix: np.ndarray | None = None
 
     def estimate(self):
         """The spectrum as a :class:`simulator.analysis.psd.PSDEstimate` (what the fitters take)."""
         from simulator.analysis.psd import PSDEstimate
 
+        if self.tones:
+            raise InputError(f"estimate() of an averaged spectrum of {len(self.tones)} "
+                             f"detected tones ({', '.join(self.tones)}); expected "
+                             "channel(tone).estimate() for one tone, or matrix() for all")
         return PSDEstimate(frequency_hz=self.frequency_hz, density=self.density,
                            averages=self.averages, sided=self.sided,
                            resolution_hz=self.resolution_hz,
                            noise_bandwidth_hz=self.noise_bandwidth_hz, window=self.window)
 
 
-def output_autocovariance(recursion, lags):
-    """E[y_{n+m} y_nᵀ] for m = 0 … lags − 1, by doubling (log₂ lags matrix products).
+    def channel(self, tone):
+        """The averaged spectrum of the detected tone ``tone`` alone (a one-tone
+        AveragedSpectrum: its density, ±f term, rounding and calibration)."""
+        if not self.tones:
+            raise InputError(f"channel({tone!r}): this averaged spectrum holds one detected "
+                             "tone; use it as it is")
+        if tone not in self.tones:
+            raise InputError(f"channel({tone!r}): no such detected tone; expected one of "
+                             f"{', '.join(map(repr, self.tones))}")
+        k = self.tones.index(tone)
+        own = self.truth.channels[k]["calibration"] if self.truth.channels else None
+        truth = self.truth if own is None else dataclasses.replace(
+            self.truth, calibration=own, channels=())
+        return dataclasses.replace(
+            self, density=self.density[:, k], cross=self.cross[:, k],
+            expected_density=self.expected_density[:, k],
+            expected_cross=self.expected_cross[:, k],
+            rounding_variance=self.channel_rounding_variance[k], truth=truth, tones=(),
+            channel_rounding_variance=(), spectral_matrix=None, pseudo_matrix=None,
+            expected_spectral_matrix=None, expected_pseudo_matrix=None)
 
-    R(0) = H P Hᵀ + J Jᵀ, R(m) = H F^{m−1} (F P Hᵀ + G Jᵀ); the powers F^{m−1}
-    applied to the lag-one term are built 1, 2, 4, … at a time, so N lags
-    cost log₂ N batched products instead of N.
-    """
-    f, g, h, j, p = (recursion.transition, recursion.drive, recursion.output,
-                     recursion.feedthrough, recursion.start_covariance)
-    lags = int(lags)
-    out = np.empty((lags, h.shape[0], h.shape[0]))
-    out[0] = h @ p @ h.T + j @ j.T
-    x = np.empty((max(lags - 1, 1),) + (f.shape[0], h.shape[0]))
-    x[0] = f @ p @ h.T + g @ j.T
-    done, power = 1, f.copy()
-    while done < lags - 1:
-        take = min(done, lags - 1 - done)
-        x[done:done + take] = power @ x[:take]
-        done += take
-        power = power @ power
-    out[1:] = h @ x[:lags - 1]
-    return out
+    def matrix(self):
+        """Every channel and their correlations as a
+        :class:`simulator.analysis.psd.SpectralMatrixEstimate`, as
+        :func:`simulator.analysis.psd.spectral_matrix_estimate` returns for the record."""
+        from simulator.analysis.psd import SpectralMatrixEstimate
+
+        if not self.tones:
+            raise InputError("matrix() of an averaged spectrum of one detected tone; "
+                             "expected estimate() (or detection.tones for several)")
+        return SpectralMatrixEstimate(
+            frequency_hz=self.frequency_hz, cross=self.spectral_matrix,
+            pseudo=self.pseudo_matrix, tones=self.tones, averages=self.averages,
+            resolution_hz=self.resolution_hz, noise_bandwidth_hz=self.noise_bandwidth_hz,
+            window=self.window)
 
 
 def bin_law(plan, segment_samples, window):
@@ -141,16 +190,14 @@ def bin_law(plan, segment_samples, window):
     r = output_autocovariance(stepper(plan, modal=False).recursion, expectation.n)
     rounding = plan.shot_noise_per_count ** 2 / 12.0
     receiver = plan.chain.receiver
+    if receiver == "iq":  # one channel of the several-tone law
+        spectra, pseudo = windowed_channels(expectation, r, [rounding])
+        return expectation, spectra[:, 0, 0].real, pseudo[:, 0, 0]
     if receiver == "homodyne":
         rr = r[:, 0, 0].copy()
     else:
         c = np.array([1.0, 1.0j])
         rz = np.einsum("i,mij,j->m", c, r, c.conj())  # E[z_{n+m} z_n*], z = y0 + i y1
-        if receiver == "iq":
-            rz[0] += 2.0 * rounding
-            pseudo = np.einsum("i,mij,j->m", c, r, c)  # E[z_{n+m} z_n], even in m
-            return (expectation, expectation.of_autocovariance(rz, rz[1:].conj()).real,
-                    expectation.of_autocovariance(pseudo, pseudo[1:]))
         theta = plan.chain.carrier_rad_s / plan.sample_rate_hz  # carrier phase per sample
         rr = 2.0 * (np.exp(1j * theta * np.arange(rz.size)) * rz).real
     rr[0] += rounding
@@ -177,6 +224,8 @@ def synthetic_averaged_spectrum(system, *, segment_samples, window="hann", seed=
     Returns
     -------
     AveragedSpectrum
+        With ``detection.tones``: every tone's channel and the spectral
+        matrices between them (:class:`AveragedSpectrum`).
 
     Raises
     ------
@@ -188,12 +237,10 @@ def synthetic_averaged_spectrum(system, *, segment_samples, window="hann", seed=
     import datetime
 
     from simulator import __version__
-    from simulator.model.detected_tone import require_one_detected_tone
     from simulator.model.system import as_system
     from simulator.records.generate import plan_record
 
     system = as_system(system, several_tones=True)  # plan_record takes its detected view
-    require_one_detected_tone(system.scenario, "an averaged spectrum (--averaged)")
 
     plan = plan_record(system, seed=seed, duration_s=duration_s, form="innovations",
                        store_mechanics=False)
@@ -206,92 +253,66 @@ def synthetic_averaged_spectrum(system, *, segment_samples, window="hann", seed=
             or not 2 <= segment_samples <= plan.n_samples):
         raise InputError(f"segment_samples = {segment_samples!r}; expected an integer from 2 "
                          f"to the record's {plan.n_samples} samples")
-    expectation, mean, pseudo = bin_law(plan, int(segment_samples), window)
-    n = expectation.n
-    averages = plan.n_samples // n
     rng = np.random.Generator(np.random.PCG64(
         np.random.SeedSequence(plan.seed, spawn_key=(SPECTRUM_STREAM,))))
+    if plan.chain.tones:  # several detected tones: the joint law of every channel
+        expectation, drawn = _channels_drawn(plan, int(segment_samples), window, rng)
+    else:
+        expectation, mean, pseudo = bin_law(plan, int(segment_samples), window)
+    n = expectation.n
+    averages = plan.n_samples // n
     freq = expectation.frequency_hz
     w = taper(window, n)
     enbw = plan.sample_rate_hz * np.mean(w**2) / np.mean(w) ** 2 / n
-    if pseudo is None:
+    if plan.chain.tones:
+        frequency, sided = freq, "two-sided"
+    elif pseudo is None:
         half = freq > 0  # 0 < f < fs/2: an even N's fs/2 bin sits at −fs/2
         density = 2.0 * mean[half] * rng.standard_gamma(averages, half.sum()) / averages
-        frequency, expected, cross, expected_cross, sided = (
-            freq[half], 2.0 * mean[half], None, None, "one-sided")
+        frequency, sided = freq[half], "one-sided"
+        drawn = dict(density=density, expected_density=2.0 * mean[half], cross=None,
+                     expected_cross=None)
     else:
         density, cross = draw_pairs(mean, pseudo, averages, expectation, rng)
-        frequency, expected, expected_cross, sided = freq, mean, pseudo, "two-sided"
+        frequency, sided = freq, "two-sided"
+        drawn = dict(density=density, expected_density=mean, cross=cross,
+                     expected_cross=pseudo)
     header = dict(kind=plan.chain.record_kind, scheme=plan.scenario.detection.scheme,
                   intermediate_frequency_hz=plan.scenario.detection.intermediate_frequency_hz,
                   local_oscillator_side=plan.scenario.detection.local_oscillator_side)
     return AveragedSpectrum(
-        frequency_hz=frequency, density=density, cross=cross, expected_density=expected,
-        expected_cross=expected_cross, averages=averages, segment_samples=n, window=window,
+        frequency_hz=frequency, averages=averages, segment_samples=n, window=window,
         sided=sided, resolution_hz=plan.sample_rate_hz / n, noise_bandwidth_hz=enbw,
         rounding_variance=plan.shot_noise_per_count ** 2 / 12.0,
         sample_rate_hz=plan.sample_rate_hz, n_samples=plan.n_samples, seed=plan.seed,
         scenario=plan.scenario, truth=plan.truth, software_version=__version__,
         created_utc=datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds"),
-        **header)
+        **header, **drawn)
+
+
+def _channels_drawn(plan, segment_samples, window, rng):
+    """``(expectation, fields)``: the averaged spectral matrices of a record of several
+    detected tones drawn from their law, and the AveragedSpectrum fields they fill."""
+    expectation, spectra, pseudo = channels_law(plan, segment_samples, window)
+    drawn_s, drawn_p = draw_channels(spectra, pseudo, plan.n_samples // expectation.n,
+                                     expectation, rng)
+    k = np.arange(spectra.shape[1])
+    return expectation, dict(
+        density=drawn_s[:, k, k].real, cross=drawn_p[:, k, k],
+        expected_density=spectra[:, k, k].real, expected_cross=pseudo[:, k, k],
+        spectral_matrix=drawn_s, pseudo_matrix=drawn_p, expected_spectral_matrix=spectra,
+        expected_pseudo_matrix=pseudo, tones=tuple(plan.chain.tones),
+        channel_rounding_variance=tuple(x ** 2 / 12.0
+                                        for x in plan.channel_shot_noise_per_count))
 
 
 def draw_pairs(mean, pseudo, averages, expectation, rng):
     """Averaged periodogram and Z_f Z_{−f} term of an iq record, bins sorted as ``mean``.
 
     Pairs (f, −f) get a complex Wishart 2×2 draw; the self-paired bins (0 and,
-    for even N, −fs/2) a real one.
+    for even N, −fs/2) a real one: the one-channel case of
+    :func:`simulator.analysis.synthetic_channels.draw_channels`.
     """
-    n, order = expectation.n, expectation.order
-    e, b = np.empty(n), np.empty(n, dtype=complex)  # in FFT order
-    e[order], b[order] = mean, pseudo
-    k = np.arange(1, (n + 1) // 2)
-    sigma = np.empty((k.size, 2, 2), dtype=complex)
-    sigma[:, 0, 0], sigma[:, 1, 1] = e[k], e[n - k]
-    sigma[:, 0, 1], sigma[:, 1, 0] = b[k], b[k].conj()
-    wishart = complex_wishart(sigma, averages, rng) / averages
-    density, cross = np.empty(n), np.empty(n, dtype=complex)
-    density[k], density[n - k] = wishart[:, 0, 0].real, wishart[:, 1, 1].real
-    cross[k] = cross[n - k] = wishart[:, 0, 1]
-    selfs = np.array([0] + ([n // 2] if n % 2 == 0 else []))
-    real = np.empty((selfs.size, 2, 2))  # covariance of (Re Z, Im Z)/√(fs N)
-    real[:, 0, 0] = (e[selfs] + b[selfs].real) / 2
-    real[:, 1, 1] = (e[selfs] - b[selfs].real) / 2
-    real[:, 0, 1] = real[:, 1, 0] = b[selfs].imag / 2
-    w = real_wishart(real, averages, rng) / averages
-    density[selfs] = w[:, 0, 0] + w[:, 1, 1]
-    cross[selfs] = w[:, 0, 0] - w[:, 1, 1] + 2j * w[:, 0, 1]
-    return density[order], cross[order]
-
-
-def _factor(sigma):
-    """Lower-triangular L with L L† = Σ for 2×2 positive semidefinite Σ (singular allowed)."""
-    a = np.sqrt(np.maximum(sigma[:, 0, 0].real, 0.0))
-    safe = np.where(a > 0, a, 1.0)
-    low = np.where(a > 0, sigma[:, 1, 0] / safe, 0.0)
-    d = np.sqrt(np.maximum(sigma[:, 1, 1].real - np.abs(low) ** 2, 0.0))
-    out = np.zeros(sigma.shape, dtype=sigma.dtype)
-    out[:, 0, 0], out[:, 1, 0], out[:, 1, 1] = a, low, d
-    return out
-
-
-def complex_wishart(sigma, dof, rng):
-    """Draws of the 2×2 complex Wishart law CW(dof, Σ), one per Σ in ``sigma`` (M, 2, 2)."""
-    m = sigma.shape[0]
-    t = np.zeros((m, 2, 2), dtype=complex)
-    t[:, 0, 0] = np.sqrt(rng.standard_gamma(dof, m))
-    t[:, 1, 1] = np.sqrt(rng.standard_gamma(dof - 1, m)) if dof > 1 else 0.0
-    t[:, 1, 0] = (rng.standard_normal(m) + 1j * rng.standard_normal(m)) / np.sqrt(2.0)
-    lt = _factor(sigma) @ t
-    return lt @ lt.conj().transpose(0, 2, 1)
-
-
-def real_wishart(cov, dof, rng):
-    """Draws of the 2×2 real Wishart law W(dof, C), one per C in ``cov`` (M, 2, 2)."""
-    m = cov.shape[0]
-    t = np.zeros((m, 2, 2))
-    t[:, 0, 0] = np.sqrt(rng.chisquare(dof, m))
-    t[:, 1, 1] = np.sqrt(rng.chisquare(dof - 1, m)) if dof > 1 else 0.0
-    t[:, 1, 0] = rng.standard_normal(m)
-    lt = _factor(cov).real @ t
-    return lt @ lt.transpose(0, 2, 1)
+    spectra, pseudo = draw_channels(mean[:, None, None].astype(complex), pseudo[:, None, None],
+                                    averages, expectation, rng)
+    return spectra[:, 0, 0].real, pseudo[:, 0, 0]

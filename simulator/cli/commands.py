@@ -315,6 +315,8 @@ def _averaged_spectrum(args, scenario):
                "resolution_hz": spectrum.resolution_hz, "seed": spectrum.seed,
                "occupation": dict(zip(spectrum.truth.mode_names, spectrum.truth.occupation,
                                       strict=True))}
+    if spectrum.tones:  # one channel per detected tone, with the cross-spectra
+        summary["tones"] = list(spectrum.tones)
     if args.json:
         print_json(summary)
         return EXIT_OK
@@ -323,6 +325,8 @@ def _averaged_spectrum(args, scenario):
           f"{spectrum.averages} segments of {spectrum.segment_samples}, {spectrum.window} "
           f"window, {spectrum.resolution_hz:.6g} Hz bins, seed {spectrum.seed}) written to "
           f"{summary['out']}")
+    if spectrum.tones:
+        print(f"  detected tones, spectra and cross-spectra: {', '.join(spectrum.tones)}")
     for name, n in summary["occupation"].items():
         print(f"  true occupation of {name}: {n:.6g}")
     return EXIT_OK

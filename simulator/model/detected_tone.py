@@ -115,8 +115,8 @@ def require_one_detected_tone(scenario, what):
     if len(names) > 1:
         raise InputError(f"{what} holds one detected tone; this scenario asks for "
                          f"{len(names)} (detection.tones = {list(names)!r}); expected "
-                         "detection.tone = one of them, or the stationary record "
-                         "(`noisechain record` without --averaged), which holds them all")
+                         "detection.tone = one of them, or a stationary record or "
+                         "averaged spectrum, which hold them all")
 
 
 def tone_indices(point, names):

@@ -71,6 +71,11 @@ class PublicSpectrum:
     :func:`simulator.analysis.psd.averaged_periodogram` would return for the
     record; ``cross`` (iq) the averaged Z_f Z_{−f}/(fs N) on the same axis.
     An estimator tells the two inputs apart by type (or ``hasattr(x, "estimate")``).
+    A spectrum of several detected tones is handed one tone at a time like a
+    record (``tone`` set); an estimator with ``all_channels`` gets ``estimate``
+    = a :class:`simulator.analysis.psd.SpectralMatrixEstimate` (every
+    channel's spectrum, the cross- and pseudo-spectra), ``cross`` (F, K) each
+    channel's own ±f term, and ``tones``.
     """
 
     estimate: object
@@ -82,12 +87,16 @@ class PublicSpectrum:
     intermediate_frequency_hz: float
     local_oscillator_side: str
     scenario: object
+    tones: tuple = ()
+    tone: str = ""
 
 
 def public_view(record):
     """The :class:`PublicRecord` of a Record, or :class:`PublicSpectrum` of an averaged spectrum."""
     if hasattr(record, "segment_samples"):
-        return PublicSpectrum(estimate=record.estimate(), cross=record.cross,
+        whole = dict(estimate=record.matrix(), tones=record.tones) if record.tones else dict(
+            estimate=record.estimate())
+        return PublicSpectrum(**whole, cross=record.cross,
                               segment_samples=record.segment_samples, kind=record.kind,
                               scheme=record.scheme, sample_rate_hz=record.sample_rate_hz,
                               intermediate_frequency_hz=record.intermediate_frequency_hz,
@@ -105,7 +114,11 @@ def public_view(record):
 
 
 def channel_views(record):
-    """``(tone, PublicRecord)`` of each detected tone's channel of ``record`` alone."""
+    """``(tone, PublicRecord)`` of each detected tone's channel of ``record`` alone
+    (``PublicSpectrum`` of each tone's averaged spectrum)."""
+    if hasattr(record, "segment_samples"):
+        return [(tone, dataclasses.replace(public_view(record.channel(tone)), tone=tone))
+                for tone in record.tones]
     whole = public_view(record)
     return [(tone, dataclasses.replace(
         whole, samples=record.channel(tone), shot_noise_per_count=scale, tones=(),

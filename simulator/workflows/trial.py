@@ -150,13 +150,12 @@ def checked_averaged(scenario, averaged, duration_s):
     """``(segment samples, window)`` of ``--averaged`` checked against the record before
     any trial runs (else every trial would fail alike, as if the estimator had)."""
     from simulator.analysis.psd import taper
-    from simulator.model.detected_tone import require_one_detected_tone
     from simulator.model.sample_rate import record_sample_rate
     from simulator.model.system import System
 
-    require_one_detected_tone(scenario, "an averaged spectrum (--averaged)")
     segment, window = averaged
-    samples = round(duration_s * record_sample_rate(scenario, System(scenario).chain))
+    system = System(scenario)  # several detected tones: the record of every channel
+    samples = round(duration_s * record_sample_rate(scenario, system.channels or system.chain))
     if isinstance(segment, bool) or not isinstance(segment, (int, np.integer)) or not (
             2 <= segment <= samples):
         raise InputError(f"--averaged {segment!r}: expected segments of 2 to the record's "
