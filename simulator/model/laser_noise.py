@@ -192,6 +192,7 @@ def laser_model(model, scenario, point, demodulated=None):
     det = scenario.detection
     fields = tone_fields(model, point)
     lasers = noise_lasers(scenario)
+    who = "detection.tones: the tones" if demodulated is None else "joint bound: the tones"
     demodulated = tuple(demodulated or detected_tone_names(scenario))
     seen = set(demodulated)  # the demodulated tones
     detected_lasers = _unique(lasers[name][0] for name in demodulated)
@@ -207,8 +208,7 @@ def laser_model(model, scenario, point, demodulated=None):
     reference = _reference(blocks, det)
     if reference is not None and len(detected_lasers) > 1:
         raise InputError(
-            f"demodulated tones {', '.join(map(repr, sorted(seen)))} (detection.tones, or "
-            f"the tones of a joint bound) come from "
+            f"{who} {', '.join(map(repr, sorted(seen)))} come from "
             f"{len(detected_lasers)} lasers ({', '.join(map(repr, detected_lasers))}) and "
             f'detection.local_oscillator_source = "{det.local_oscillator_source}" refers '
             "each demodulator to its own laser through a filter state, which is modelled "
