@@ -15,10 +15,10 @@ import pytest
 
 from simulator.analysis.joint_feasibility import joint_fisher, tone_set_bounds
 from simulator.errors import InputError
-from simulator.model.joint_detection import joint_detection_chain, joint_spectral_matrix
 from simulator.model.system import System
+from simulator.model.tone_channels import tones_chain
 from simulator.scenario.loader import load_scenario, parse_scenario
-from tests.tone_scenarios import scenario_text, second_mode, tone_table
+from tests.tone_scenarios import KAPPA_HZ, OMEGA_HZ, scenario_text, second_mode, tone_table
 
 PROBES = ("red_probe", "blue_probe")
 BATH = "mechanics[0].bath_temperature_k"
@@ -31,9 +31,9 @@ def probes():
 
 def test_diagonal_blocks_are_each_tones_own_record(probes):
     system = System(probes)
-    joint = joint_detection_chain(probes, system.point, system.model, PROBES)
+    joint = tones_chain(probes, system.point, system.model, PROBES)
     f = np.linspace(-7e6, 7e6, 57)
-    s = joint_spectral_matrix(joint, f, 60e6)
+    s = joint.sampled_channel_matrix(f, 60e6)
     for tone in PROBES:
         own = System(probes.replace("detection.tone", tone)).chain.sampled_channel_matrix(f, 60e6)
         idx = joint.channels_of(tone)
@@ -43,7 +43,7 @@ def test_diagonal_blocks_are_each_tones_own_record(probes):
     # over the floor (here above their geometric mean: the red probe's anti-Stokes and the
     # blue probe's Stokes photons come from the same phonon process)
     omega = system.detected.point.modes[0].frequency_hz
-    line, floor = joint_spectral_matrix(joint, [omega, 4e6], 60e6)
+    line, floor = joint.sampled_channel_matrix([omega, 4e6], 60e6)
     excess = np.diag(line - floor).real
     assert np.abs(line[0, 2]) > 0.5 * np.sqrt(excess[0] * excess[2])
 
@@ -153,7 +153,7 @@ def test_score_variance_of_joint_records_is_the_joint_information(probes):
 
     def joint_of(scenario):
         built = System(scenario)
-        return joint_detection_chain(scenario, built.point, built.model, PROBES)
+        return tones_chain(scenario, built.point, built.model, PROBES)
 
     joint = joint_of(probes)
     discrete = discretize(joint.model, 1 / fs)
@@ -167,9 +167,9 @@ def test_score_variance_of_joint_records_is_the_joint_information(probes):
                     np.zeros(0, np.int64), np.empty((y.shape[0], 0)))
     f = np.fft.fftfreq(segment, 1 / fs)[1:segment // 2]
     up, down, span = steps(probes, BATH)
-    s = joint_spectral_matrix(joint, f, fs)
-    ds = (joint_spectral_matrix(joint_of(up), f, fs)
-          - joint_spectral_matrix(joint_of(down), f, fs)) / span
+    s = joint.sampled_channel_matrix(f, fs)
+    ds = (joint_of(up).sampled_channel_matrix(f, fs)
+          - joint_of(down).sampled_channel_matrix(f, fs)) / span
     scores = whittle_scores(y, fs, s, ds, segment)
     t_segment = segment / fs
     pair = joint_fisher(system, PROBES, [(BATH,)], sample_rate_hz=fs)[0][0, 0] * t_segment
@@ -187,3 +187,67 @@ def test_the_master_equation_says_why_it_refuses_and_what_instead(probes):
     with pytest.raises(InputError, match="one Hilbert factor per tone field") as refused:
         System(probes).require_one_tone("simulator.master.steady.master_steady_state")
     assert "simulator.master.tone_fields" in str(refused.value)  # what to use instead
+
+
+def noisy_probes(probes):
+    """The probes made by the cooling tone's laser, whose phase noise has a floor (a common
+    local oscillator copied from that laser cancels it on the tone it demodulates)."""
+    shared = probes.replace("tones[0].noise_source", "drive").replace(
+        "tones[1].noise_source", "drive")
+    return shared.replace("drive.phase_noise.floor_high_hz", 2e7).replace(
+        "drive.phase_noise.floor_rad2_per_hz", 1e-13)
+
+
+# the per-tone model's reach (its warning) is not what is checked here
+@pytest.mark.filterwarnings("ignore::simulator.model.tone_validity.ToneNoiseWarning")
+def test_each_receiver_is_referred_to_its_own_tones_laser(probes):
+    """The scenario demodulates the blue probe; a bound of the red probe refers the red
+    receiver to the red probe's laser, so its chain is the red probe's own record (and
+    differs from the red field left in its laser's frame), and the pair's is the chain of
+    the record that holds both (System.channels)."""
+    from simulator.model.chain import detection_chain
+    from simulator.model.detected_tone import detected_parts
+
+    noisy = noisy_probes(probes)
+    system = System(noisy)
+    f, fs = np.linspace(-7e6, 7e6, 29), 60e6
+    red = noisy.replace("detection.tone", "red_probe")
+    own = System(red).chain.sampled_channel_matrix(f, fs)
+    alone = tones_chain(noisy, system.point, system.model, ["red_probe"])
+    np.testing.assert_allclose(alone.sampled_channel_matrix(f, fs), own,
+                               rtol=1e-9, atol=1e-12 * np.abs(own).max())
+    unreferred = detection_chain(red, *detected_parts(red, system.point, system.model))
+    assert np.abs(unreferred.sampled_channel_matrix(f, fs) - own).max() > 1e-3 * np.abs(
+        own).max()
+    both = System(noisy.replace("detection.tone", "drive").replace("detection.tones",
+                                                                   list(PROBES)))
+    pair = tones_chain(noisy, system.point, system.model, PROBES).sampled_channel_matrix(f, fs)
+    record = both.channels.sampled_channel_matrix(f, fs)
+    np.testing.assert_allclose(pair, record, rtol=1e-9, atol=1e-12 * np.abs(record).max())
+
+
+def test_homodyne_receivers_stack_each_tones_own_record():
+    """One optical homodyne detector per probe, at the same quadrature angle: one real
+    channel each, the diagonal of the joint matrix each probe's own homodyne record, the
+    off-diagonal the drum's correlation."""
+    tones = ("red", "blue")
+    homodyne = parse_scenario(
+        scenario_text(drive_photons=2e4, bath_occupation=2000.0, linewidth_hz=200.0)
+        + tone_table("red", 2e4, -(OMEGA_HZ + 2 * KAPPA_HZ))
+        + tone_table("blue", 2e4, OMEGA_HZ + 2 * KAPPA_HZ)
+        + '\n[detection]\nscheme = "homodyne"\nquadrature_angle_rad = 0.4\n'
+        + 'efficiency = 0.8\ntone = "blue"\n')
+    system = System(homodyne)
+    joint = tones_chain(homodyne, system.point, system.model, tones)
+    assert joint.model.outputs == tuple(f"record.{t}" for t in tones)
+    f, fs = np.linspace(-2.5 * OMEGA_HZ, 2.5 * OMEGA_HZ, 29), 8 * OMEGA_HZ
+    s = joint.sampled_channel_matrix(f, fs)
+    for k, tone in enumerate(tones):
+        own = System(homodyne.replace("detection.tone", tone)).chain
+        np.testing.assert_allclose(s[:, k, k], own.sampled_channel_matrix(f, fs)[:, 0, 0],
+                                   rtol=1e-9)
+    assert np.abs(s[:, 0, 1]).max() > 1e-3 * np.abs(s[:, 0, 0]).max()  # the drum correlates
+    paths = ("mechanics[0].bath_occupation",)
+    pair = joint_fisher(homodyne, tones, [paths], sample_rate_hz=fs)[0][0, 0]
+    assert pair >= max(joint_fisher(homodyne, [t], [paths], sample_rate_hz=fs)[0][0, 0]
+                       for t in tones) * (1 - 1e-9)

@@ -5,7 +5,8 @@ reads a red and a blue probe, one receiver each). The records are
 correlated: every tone's field carries the same mechanical motion. The
 information of the pair is that of their joint spectral matrix S(f), the
 stacked real channels of every receiver
-(:func:`simulator.model.joint_detection.joint_detection_chain`),
+(:func:`simulator.model.tone_channels.tones_chain`, the model that also
+generates records of several tones),
 
     F_ij / T = ½ ∫_{−fs/2}^{fs/2} df tr[S⁻¹ ∂_i S S⁻¹ ∂_j S]
 
@@ -67,13 +68,12 @@ class _JointModels:
         self._joint = {}
 
     def joint(self, scenario):
-        from simulator.model.joint_detection import joint_detection_chain
+        from simulator.model.tone_channels import tones_chain
 
         key = id(scenario)
         if key not in self._joint:
             built = self.stepped.system_of(scenario)
-            self._joint[key] = joint_detection_chain(scenario, built.point, built.model,
-                                                     self.tones)
+            self._joint[key] = tones_chain(scenario, built.point, built.model, self.tones)
         return self._joint[key]
 
     def record_model(self, scenario):
@@ -100,7 +100,9 @@ def joint_fisher(system, tones, groups, *, sample_rate_hz=None, models=None):
     groups : sequence of sequences of str
         Parameter paths estimated jointly.
     sample_rate_hz : float, optional
-        Default :func:`simulator.model.joint_detection.joint_sample_rate`;
+        Default the record's (:func:`simulator.model.sample_rate.record_sample_rate`
+        of the joint chain: ``digitizer.sample_rate_hz`` or the automatic rate,
+        one digitiser clock for every channel);
         ``math.inf`` for the continuous records.
 
     Returns
@@ -108,14 +110,15 @@ def joint_fisher(system, tones, groups, *, sample_rate_hz=None, models=None):
     list of ndarray, one (k, k) matrix per group, in 1/(s · unit_i · unit_j).
     """
     from simulator.analysis.feasibility import _grid_of_form
-    from simulator.model.joint_detection import check_tones, joint_sample_rate
     from simulator.model.poles import channel_form
+    from simulator.model.sample_rate import record_sample_rate
+    from simulator.model.tone_channels import check_tones
 
     system = _full_system(system)
     tones = check_tones(system.scenario, tones)
     models = models or _JointModels(system, tones)
     joint = models.joint(system.scenario)
-    fs = (joint_sample_rate(system.scenario, joint) if sample_rate_hz is None
+    fs = (record_sample_rate(system.scenario, joint) if sample_rate_hz is None
           else float(sample_rate_hz))
     if not fs > 0:
         raise InputError(f"sample_rate_hz = {sample_rate_hz!r}; expected a positive rate in Hz "
@@ -154,7 +157,8 @@ def tone_set_bounds(system, tone_sets, mode=0, paths=None, *,
     ``paths`` default: :func:`joint_default_paths` of the union of the sets, so
     that every set is bounded with the same parameters unknown.
     """
-    from simulator.model.joint_detection import check_tones, joint_sample_rate
+    from simulator.model.sample_rate import record_sample_rate
+    from simulator.model.tone_channels import check_tones
 
     if not significance > 0:
         raise InputError(f"significance = {significance!r}; expected a positive number "
@@ -165,7 +169,8 @@ def tone_set_bounds(system, tone_sets, mode=0, paths=None, *,
     union = tuple(dict.fromkeys(t for tones in tone_sets for t in tones))
     paths = tuple(paths) if paths is not None else joint_default_paths(scenario, union, mode)
     if sample_rate_hz is None:
-        sample_rate_hz = joint_sample_rate(scenario, _JointModels(system, union).joint(scenario))
+        sample_rate_hz = record_sample_rate(scenario,
+                                            _JointModels(system, union).joint(scenario))
     response = _CovarianceResponse(system)
     n = response.occupation(mode)
     grad = np.array([response.occupation_derivative(path, mode) for path in paths])

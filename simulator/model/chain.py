@@ -42,6 +42,7 @@ import dataclasses
 
 import numpy as np
 
+from simulator.errors import InputError
 from simulator.model.sample_rate import (  # noqa: F401 (the rate's rule, imported from here too)
     LINE_SINC2,
     OVERSAMPLING,
@@ -96,9 +97,11 @@ class DetectionChain:
         The scenario key that sets the volts per record unit (named when the
         record clips).
     tones : tuple of str
-        With several demodulated tones (``detection.tones``), their names: the
-        outputs are ``record.<tone>.I/Q`` in this order and the scale fields
-        above are the first tone's; empty for the one-tone chain.
+        With several demodulated tones (``detection.tones``, or the tones of a
+        joint bound: :mod:`simulator.model.tone_channels`), their names: the
+        outputs are ``record.<tone>.I/Q`` (``record.<tone>`` for homodyne) in
+        this order and the scale fields above are the first tone's; empty for
+        the one-tone chain.
     channel_scales : tuple of dict
         Per tone of ``tones``: its scale fields and ``electronic_noise`` (the
         scale follows each tone's frequency, h f for microwave, the local
@@ -206,10 +209,12 @@ class DetectionChain:
     def sampled_channel_matrix(self, frequency_hz, sample_rate_hz):
         """Spectral matrix of the stored samples' real channels on the record's FFT axis.
 
-        Shape ``(len(f), p, p)``, p = 2 (I, Q) for iq and 1 otherwise; |f| <
-        fs/2. Amplifier added noise, electronics and filter included; for iq
-        the off-diagonal is the I–Q cross density (the pseudo-spectrum of
-        I + iQ), for if the density of the one real photocurrent. See
+        Shape ``(len(f), p, p)``, p = 2 (I, Q) for iq and 1 otherwise (times
+        the number of ``tones`` of a chain of several, their channels
+        stacked: the joint matrix); |f| < fs/2. Amplifier added noise,
+        electronics and filter included; for iq the off-diagonal is the I–Q
+        cross density (the pseudo-spectrum of I + iQ), for if the density of
+        the one real photocurrent. See
         :meth:`channel_form`; c S c† with c = (1, i) is :meth:`sampled_spectrum`.
         """
         f = np.asarray(frequency_hz, dtype=float).reshape(-1)
@@ -232,12 +237,22 @@ class DetectionChain:
         return (discrete.output @ discrete.state_covariance @ discrete.output.T
                 + discrete.output_noise)
 
+    def channels_of(self, tone):
+        """Output indices of ``tone``'s channels in :attr:`model` (a chain with ``tones``)."""
+        if tone not in self.tones:
+            raise InputError(f"tone {tone!r} is not demodulated by this chain; expected one "
+                             f"of {', '.join(map(repr, self.tones))}")
+        p = len(self.model.outputs) // len(self.tones)
+        k = self.tones.index(tone)
+        return tuple(range(k * p, (k + 1) * p))
+
     def output_volts_per_unit(self):
         """Volts at the digitiser per record unit of each output channel, shape (p,)."""
         p = len(self.model.outputs)
         if not self.tones:
             return np.full(p, self.volts_per_unit)
-        return np.repeat([s["volts_per_unit"] for s in self.channel_scales], 2)
+        return np.repeat([s["volts_per_unit"] for s in self.channel_scales],
+                         p // len(self.tones))
 
     def record_std(self, discrete):
         """Largest standard deviation (V) of a sample, over channels and carrier phases.
@@ -357,7 +372,8 @@ def demodulator(builder, scenario, receiver, eta, added, electronic, *, rows=(0,
     through loss, added noise and current noise; their names.
 
     ``tag`` (a tone's name) names the inputs and channels of one of several
-    demodulators (``loss.<tag>.X``, ``record.<tag>.I``); empty, the one-tone names.
+    demodulators (``loss.<tag>.X``, ``record.<tag>.I``, ``record.<tag>`` for
+    homodyne); empty, the one-tone names.
     """
     det = scenario.detection
     part = f".{tag}" if tag else ""
@@ -376,7 +392,7 @@ def demodulator(builder, scenario, receiver, eta, added, electronic, *, rows=(0,
     else:
         phi = det.quadrature_angle_rad
         channels = [np.sqrt(2) * (np.cos(phi) * x_d[0] + np.sin(phi) * x_d[1])]
-        names, noise_names, noise = ("record",), ("electronics",), electronic
+        names, noise_names, noise = (f"record{part}",), (f"electronics{part}",), electronic
     if noise > 0:
         e = builder.add_inputs(noise_names, noise, tag=tag)
         channels = [_add(ch, ei) for ch, ei in zip(channels, e, strict=True)]

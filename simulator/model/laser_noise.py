@@ -162,7 +162,7 @@ def _labels(laser):
     return f"laser.tones.{laser}.", lambda kind: f"{kind} of tone {laser}"
 
 
-def laser_model(model, scenario, point):
+def laser_model(model, scenario, point, demodulated=None):
     """``model`` with every tone's classical noise, the LO reference and the tone appended.
 
     Parameters
@@ -171,6 +171,11 @@ def laser_model(model, scenario, point):
         The cavity–mechanics model of :func:`simulator.model.optomechanics.linear_model`.
     scenario : simulator.scenario.loader.Scenario
     point : simulator.model.operating_point.OperatingPoint
+    demodulated : sequence of str, optional
+        The tones whose outputs are referred to the local oscillator; default
+        the scenario's (``detection.tones`` or ``detection.tone``). The joint
+        bound of a set of recorded tones gives its own set
+        (:func:`simulator.model.tone_channels.tones_chain`).
 
     Returns
     -------
@@ -187,8 +192,10 @@ def laser_model(model, scenario, point):
     det = scenario.detection
     fields = tone_fields(model, point)
     lasers = noise_lasers(scenario)
-    seen = set(detected_tone_names(scenario))  # the demodulated tones
-    detected_lasers = _unique(lasers[name][0] for name in detected_tone_names(scenario))
+    who = "detection.tones: the tones" if demodulated is None else "joint bound: the tones"
+    demodulated = tuple(demodulated or detected_tone_names(scenario))
+    seen = set(demodulated)  # the demodulated tones
+    detected_lasers = _unique(lasers[name][0] for name in demodulated)
     blocks = Blocks()
     phase_lasers = _unique(lasers[f.name][0] for f in fields)  # the drive's first
     intensities = _unique(lasers[f.name][1] for f in fields)
@@ -201,7 +208,7 @@ def laser_model(model, scenario, point):
     reference = _reference(blocks, det)
     if reference is not None and len(detected_lasers) > 1:
         raise InputError(
-            f"detection.tones: the tones {', '.join(map(repr, sorted(seen)))} come from "
+            f"{who} {', '.join(map(repr, sorted(seen)))} come from "
             f"{len(detected_lasers)} lasers ({', '.join(map(repr, detected_lasers))}) and "
             f'detection.local_oscillator_source = "{det.local_oscillator_source}" refers '
             "each demodulator to its own laser through a filter state, which is modelled "

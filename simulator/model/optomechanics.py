@@ -127,7 +127,7 @@ def linear_model(scenario, point):
     return laser_noise.laser_model(model, scenario, point)
 
 
-def several_tones_model(scenario, point):
+def several_tones_model(scenario, point, demodulated=None):
     """The linear model with one fluctuation field per drive tone, each in its own frame.
 
     Tone k on cavity mode c, with mean field √n_k (phase chosen real) and
@@ -147,7 +147,8 @@ def several_tones_model(scenario, point):
     and cavity modes"); :func:`simulator.model.tone_validity.check_tone_spacings`
     refuses or warns where that fails. Classical laser noise enters every
     tone its laser makes (``noise_source``), each in its own frame
-    (:func:`simulator.model.laser_noise.laser_model`).
+    (:func:`simulator.model.laser_noise.laser_model`); the local oscillator refers
+    the outputs of the ``demodulated`` tones (default the scenario's) to their lasers.
     """
     from simulator.model.tone_validity import check_tone_noise_bands, check_tone_spacings
 
@@ -205,4 +206,4 @@ def several_tones_model(scenario, point):
                        coupling=coupling)
     if laser_noise.is_quiet(scenario):
         return model
-    return laser_noise.laser_model(model, scenario, point)
+    return laser_noise.laser_model(model, scenario, point, demodulated)
