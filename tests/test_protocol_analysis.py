@@ -133,7 +133,7 @@ def test_transient_estimator_spread_is_above_the_bound():
     per = int(round(0.01 / spacing))
     t = (np.arange(per) + 0.5) * spacing
     slopes = []
-    for _ in range(200):
+    for _ in range(120):
         u = root @ (rng.standard_normal(len(cov)) + 1j * rng.standard_normal(len(cov)))
         # E|x + iy|² = 2 for standard normals x, y: halve to the covariance's E|u|²
         power = (np.abs(u) ** 2 / 2).reshape(2 * cycles, per)[1::2]
@@ -157,4 +157,4 @@ def test_inspect_prints_the_heating_rate_bound():
         * System(scenario).point.modes[0].bath_occupation, rel=1e-12)
     assert 0 < bound.heating_rate_error < 0.1 * bound.heating_rate
     text = inspect_scenario(System(scenario)).to_text()
-    assert "heating rate:" in text and "after 20 cycles" in text and "(Cramér–Rao)" in text
+    assert "heating rate:" in text and "after 20 cycles" in text and "Cramér–Rao)" in text

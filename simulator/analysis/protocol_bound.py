@@ -70,9 +70,10 @@ class HeatingBound:
 
     def text(self):
         """One line: the heating rate's bound after the schedule's cycles."""
+        cycles = f"{self.cycles} cycle{'' if self.cycles == 1 else 's'}"
         return (f"heating rate: {self.heating_rate:.4g} ± {self.heating_rate_error:.3g} "
-                f"phonons/s after {self.cycles} cycles of {self.duration_s:.4g} s "
-                "(Cramér–Rao)")
+                f"phonons/s after {cycles} ({self.duration_s:.4g} s of record; "
+                "Cramér–Rao)")
 
 
 def segment_models(scenario, mode=0):

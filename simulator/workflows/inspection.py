@@ -28,6 +28,7 @@ class Inspection:
     feasibility: tuple = ()  # per mode: dict of measurement-time bounds (heterodyne)
     regime: object = None  # simulator.master.regime.RegimeVerdict: is the linear engine valid?
     laser: tuple = ()  # per mode: laser-noise occupations (simulator.model.laser_noise)
+    protocol: object = None  # simulator.analysis.protocol_bound.HeatingBound of a [schedule]
 
     @property
     def scenario(self):
@@ -104,6 +105,8 @@ class Inspection:
                 "tones": tone_rows(p, self.scenario.detection.tone)} if p.several_tones
                else {}),
             "regime": None if self.regime is None else self.regime.to_dict(),
+            "protocol": (None if self.protocol is None
+                         else dataclasses.asdict(self.protocol)),
             "warnings": list(self.warnings),
         }
 
@@ -162,6 +165,8 @@ class Inspection:
                              f"{f['asymmetry_time_s']:.4g} s at {f['significance']:g} "
                              "standard deviations")
                 lines += _long_time_hint(f)
+        if self.protocol is not None:
+            lines += ["", "protocol ([schedule], first mode)", f"  {self.protocol.text()}"]
         if d["regime"] is not None:
             lines += ["", f"regime (linear engine validity)  {d['regime']['level']}",
                       f"  {d['regime']['reason']}"]
@@ -276,9 +281,30 @@ def inspect_scenario(system, *, feasibility=True):
                  f"trusted: {entry['apparent_occupation_warning']}"
                  for ms, entry in zip(steady.modes if steady else (), laser, strict=False)
                  if "apparent_occupation_warning" in entry]
+    protocol = (_protocol_bound(scenario, warnings)
+                if steady is not None and feasibility and scenario.schedule is not None
+                else None)
     return Inspection(system=system, steady=steady,
                       warnings=tuple(warnings), feasibility=feasibility, regime=regime,
-                      laser=laser)
+                      laser=laser, protocol=protocol)
+
+
+def _protocol_bound(scenario, warnings):
+    """Heating-rate bound of the schedule, or None with a warning saying why not."""
+    from simulator.analysis.protocol_bound import heating_rate_bound
+    from simulator.errors import InputError, OperatingPointError
+
+    try:
+        bound = heating_rate_bound(scenario)
+    except (InputError, OperatingPointError) as error:
+        warnings.append(f"no heating-rate bound for the schedule: {error}")
+        return None
+    if not (math.isfinite(bound.heating_rate_error) and bound.heating_rate_error > 0):
+        warnings.append("no heating-rate bound for the schedule: its record does not "
+                        "determine the heating rate (a detection without the anti-Stokes "
+                        "line, or segments that leave Γm and Γm·n_th unresolved)")
+        return None
+    return bound
 
 
 def _tone_points(system):
