@@ -142,8 +142,8 @@ def test_transient_rates_recover_a_noiseless_relaxation_averaged_over_cycles():
     times, stack = curves["off"]
     assert stack.shape == (4, 200)
     (fitted, slope), error = jackknife_over_cycles(times, stack, _rate_and_slope)
-    assert fitted == pytest.approx(rate, rel=1e-3)  # block averaging: ≤ 0.1 %
-    assert slope == pytest.approx(rate * 99.0, rel=5e-3)  # |block mean of √P|² ≠ P: 0.25 %
+    assert fitted == pytest.approx(rate, rel=1e-2)  # |block mean of √P|² ≠ P: 0.4 %
+    assert slope == pytest.approx(rate * 99.0, rel=1e-2)  # the same: 0.7 %
     assert np.all(error < 1e-3 * np.array([fitted, slope]))
     times, power = demodulated_power(z[:n], fs, f, n // 200)
     assert len(times) == 200 and power[0] < power[-1]

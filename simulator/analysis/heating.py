@@ -47,6 +47,19 @@ def block_power_per_phonon(system, sample_rate_hz, mode=0):
                  * np.sinc(f / sample_rate_hz) ** 2)
 
 
+def nominal_damping_rate(system, mode=0):
+    """Γ_eff = Γm + A₋ − A₊ (1/s) from the nominal calibration (weak coupling).
+
+    A∓ = g²κ/(κ²/4 + (Δ ± Ω)²) (Marquardt et al., PRL 99, 093902 (2007)), Γm
+    as measured by a ring-down: what the experimenter knows of a segment's
+    relaxation rate.
+    """
+    cal = Calibration.from_scenario(system, mode)
+    k, g = cal.cavity_linewidth_hz, cal.coupling_rate_hz
+    a_minus = g**2 * k / (k**2 / 4 + (cal.detuning_hz + cal.mechanical_frequency_hz) ** 2)
+    return float(2 * np.pi * (cal.mechanical_linewidth_hz + a_minus - cal.stokes_rate_hz()))
+
+
 def segment_system_of(scenario, names):
     """``{name: System}`` of the first segment of each name (changes applied, checked stable)."""
     import dataclasses

@@ -140,29 +140,41 @@ def relaxation_by_slope(time, p0, slope, rate):
     return p0 + slope * growth
 
 
-def _rate_and_slope(t, curve, sigma):
+def linear_in_slope(t, curve, sigma, rate):
+    """(P₀, Ṗ₀) of :func:`relaxation_by_slope` at a given Γ (weighted linear least
+    squares, exact) and its χ²."""
+    design = np.column_stack([np.ones_like(t), relaxation_by_slope(t, 0.0, 1.0, rate)])
+    coef, *_ = np.linalg.lstsq(design / sigma[:, None], curve / sigma, rcond=None)
+    return coef, float(np.sum(((design @ coef - curve) / sigma) ** 2))
+
+
+def _rate_and_slope(t, curve):
     """Γ and the initial slope Γ (P∞ − P₀) of the fitted relaxation (power units/s).
 
     Weighted least squares in the slope form: for a given Γ the curve is
-    linear in (P₀, Ṗ₀), solved exactly, and Γ minimises the remaining χ² over
-    |Γ| T ≤ :data:`RATE_LIMIT` (bounded Brent search; a noisy curve may bend
-    either way) — a profile that cannot wander off as a three-parameter
-    search can when the window is short against 1/Γ.
+    linear in (P₀, Ṗ₀), solved exactly (:func:`linear_in_slope`), and Γ
+    minimises the remaining χ² over |Γ| T ≤ :data:`RATE_LIMIT` (bounded Brent
+    search after a grid; a noisy curve may bend either way) — a profile that
+    cannot wander off as a three-parameter search can when the window is
+    short against 1/Γ. Two passes: unweighted, then weighted by
+    :func:`power_weights` of the first.
     """
     limit = RATE_LIMIT / t[-1]
-
-    def solve(rate):
-        design = np.column_stack([np.ones_like(t), relaxation_by_slope(t, 0.0, 1.0, rate)])
-        coef, *_ = np.linalg.lstsq(design / sigma[:, None], curve / sigma, rcond=None)
-        return coef, float(np.sum(((design @ coef - curve) / sigma) ** 2))
-
     grid = np.linspace(-limit, limit, RATE_GRID)
-    start = grid[int(np.argmin([solve(r)[1] for r in grid]))]
     step = grid[1] - grid[0]
-    best = scipy.optimize.minimize_scalar(lambda r: solve(r)[1], method="bounded",
-                                          bounds=(max(-limit, start - step),
-                                                  min(limit, start + step)))
-    return np.array([best.x, solve(best.x)[0][1]])
+    sigma = np.ones_like(curve)
+    for _ in range(2):
+        start = grid[int(np.argmin([linear_in_slope(t, curve, sigma, r)[1] for r in grid]))]
+        best = scipy.optimize.minimize_scalar(
+            lambda r, sigma=sigma: linear_in_slope(t, curve, sigma, r)[1], method="bounded",
+            bounds=(max(-limit, start - step), min(limit, start + step)))
+        sigma = power_weights(t, curve, best.x)
+    return np.array([best.x, linear_in_slope(t, curve, sigma, best.x)[0][1]])
+
+
+def slope_at_rate(t, curve, rate):
+    """Initial slope Ṗ₀ of the relaxation at a known Γ, weighted by :func:`power_weights`."""
+    return linear_in_slope(t, curve, power_weights(t, curve, rate), rate)[0][1]
 
 
 def transient_rates(record):
@@ -177,10 +189,14 @@ def transient_rates(record):
     correlated over 1/Γ), so the segments that share a name (the cycles of
     one schedule) are averaged: the demodulated power of each
     (:func:`demodulated_power`, :data:`BLOCKS_PER_SEGMENT` blocks) is averaged
-    over the cycles and fitted by :func:`relaxation`, weighted by the spread
-    across cycles. The initial slope Γ (P∞ − P₀), divided by the sideband's
-    calibrated block power per phonon
-    (:func:`simulator.analysis.heating.block_power_per_phonon`), is the
+    over the cycles and fitted by :func:`relaxation` (in its slope form),
+    weighted by the fitted curve itself (:func:`power_weights`). The initial
+    slope Γ (P∞ − P₀) is fitted at the segment's nominal damping rate
+    (:func:`simulator.analysis.heating.nominal_damping_rate`: a window short
+    against 1/Γ determines the slope but hardly Γ, and a slope that moves
+    with a wandering Γ is a statistic the jackknife cannot follow); divided
+    by the sideband's calibrated block power per phonon
+    (:func:`simulator.analysis.heating.block_power_per_phonon`), it is the
     heating rate in phonons/s (negative for a cooling transient). Errors are
     the jackknife over cycles (Efron, The Jackknife, the Bootstrap and Other
     Resampling Plans (SIAM, 1982), Ch. 3; common practice), which needs no
@@ -188,7 +204,11 @@ def transient_rates(record):
     Hz) and ``heating_rate_phonons_per_s@<name>`` for every segment name
     repeated :data:`MIN_CYCLES` times or more.
     """
-    from simulator.analysis.heating import block_power_per_phonon, segment_system_of
+    from simulator.analysis.heating import (
+        block_power_per_phonon,
+        nominal_damping_rate,
+        segment_system_of,
+    )
 
     scenario = record.scenario
     if scenario.schedule is None or record.kind != "iq":
@@ -201,7 +221,12 @@ def transient_rates(record):
     out = {}
     for name, (t, stack) in curves.items():
         gain = block_power_per_phonon(systems[name], fs)
-        (rate, slope), error = jackknife_over_cycles(t, stack, _rate_and_slope)
+        nominal = nominal_damping_rate(systems[name])
+
+        def both(t, curve, nominal=nominal):
+            return np.array([_rate_and_slope(t, curve)[0], slope_at_rate(t, curve, nominal)])
+
+        (rate, slope), error = jackknife_over_cycles(t, stack, both)
         out[f"effective_linewidth_hz@{name}"] = (rate / (2 * np.pi), error[0] / (2 * np.pi))
         out[f"heating_rate_phonons_per_s@{name}"] = (slope / gain, error[1] / gain)
     return out
@@ -231,17 +256,27 @@ def transient_curves(z, sample_rate_hz, segments, frequency_hz):
 
 
 def jackknife_over_cycles(t, stack, estimate):
-    """``estimate(t, mean, sigma)`` of the cycle-averaged curve and its jackknife error.
+    """``estimate(t, mean)`` of the cycle-averaged curve and its jackknife error.
 
-    The weights σ are the spread over cycles / √k, floored (a noiseless curve
-    stays finite), and kept for every leave-one-out fit.
+    Each leave-one-out replicate runs the whole estimate, weights included,
+    so the error also holds the weights' own scatter.
     """
     k = len(stack)
-    mean = stack.mean(axis=0)
-    sigma = np.maximum(stack.std(axis=0, ddof=1) / np.sqrt(k),
-                       SIGMA_FLOOR * np.abs(mean).max())
-    value = estimate(t, mean, sigma)
-    leave_out = np.array([estimate(t, np.delete(stack, i, axis=0).mean(axis=0), sigma)
+    value = estimate(t, stack.mean(axis=0))
+    leave_out = np.array([estimate(t, np.delete(stack, i, axis=0).mean(axis=0))
                           for i in range(k)])
     error = np.sqrt((k - 1) / k * np.sum((leave_out - leave_out.mean(axis=0)) ** 2, axis=0))
     return value, error
+
+
+def power_weights(t, curve, rate):
+    """σ ∝ the fitted curve at Γ (a line's block power is exponential: its s.d. is its
+    mean), from an unweighted first pass; floored so a noiseless curve stays finite.
+
+    Weights from the fit's own smooth model, not from the scatter of the data
+    they weight: sample-variance weights favour the points that fell low and
+    bias the fit down.
+    """
+    coef, _ = linear_in_slope(t, curve, np.ones_like(curve), rate)
+    model = np.abs(coef[0] + coef[1] * relaxation_by_slope(t, 0.0, 1.0, rate))
+    return np.maximum(model, SIGMA_FLOOR * np.abs(curve).max())

@@ -1,21 +1,24 @@
 """Exact Gaussian likelihood of a demodulated ring-down: the mode's own noise model.
 
-After a kick the mode's complex amplitude (demodulated at its sideband and
-averaged over blocks short against 1/Γ) is
+After a kick the mode's complex amplitude, demodulated at its sideband,
+obeys da = −γ a dt + dW, γ = Γ/2 − iδ, from a(0) = m₀ + thermal: the kicked
+mean decays with the same factor ρ = e^{−γΔ} per block that correlates the
+thermal motion (the Langevin equation of the mode is linear, so the kick only
+sets its initial condition). The record gives block means
 
-    u_k = s_k + w_k,   s_{k+1} = ρ s_k + e_k,   ρ = e^{(−Γ/2 + iδ)Δ},
+    u_k = β a_k + f_k + w_k,   a_{k+1} = ρ a_k + e_k,
 
-with s_0 = m₀ + thermal: the kicked mean m₀ decays with the same ρ as the
-thermal motion's correlation (the Langevin equation of the mode is linear, so
-the kick only sets its initial condition). The thermal part is a stationary
-circular Gaussian AR(1) process of variance P (innovations E|e|² =
-P(1 − |ρ|²)) and the imprecision w is white of variance r = λP. Fitting the
-energy |u|² as if its points were independent ignores that the thermal part
-is correlated over 2/Γ — the whole fit window — and understates the error
-(the thermal beat). Here the likelihood is exact for this model: the
-prediction-error decomposition by the Kalman filter (Schweppe, IEEE Trans.
-Inf. Theory 11, 61 (1965); Harvey, Forecasting, Structural Time Series Models
-and the Kalman Filter (CUP, 1989), Sec. 3.4; both from memory),
+with a_k the amplitude at the block's start, (e_k, f_k) integrals of the
+same force noise over the block (exact moments in :func:`block_noise`; the
+integrate-and-dump construction of records.discretize), the thermal power P
+= E|a|² of the stationary motion, and a white imprecision w of variance
+r = λP. Fitting the energy |u|² as if its points were independent ignores
+that the thermal part is correlated over 2/Γ — the whole fit window — and
+understates the error (the thermal beat). Here the likelihood is exact for
+this model: the prediction-error decomposition by the Kalman filter
+(Schweppe, IEEE Trans. Inf. Theory 11, 61 (1965); Harvey, Forecasting,
+Structural Time Series Models and the Kalman Filter (CUP, 1989), Sec. 3.4;
+both from memory),
 
     −ln L = Σ_k [ln(π P F_k) + |ν_k|²/(P F_k)],
 
@@ -24,15 +27,15 @@ out in closed form (generalised least squares for m₀, P̂ = S/N). Γ, δ and
 ln λ are found by minimising the profile −ln L; the standard error of Γ is
 from the inverse Hessian of the profile (the observed information, which for a
 profile likelihood gives the marginal error of Γ with the nuisance parameters
-estimated).
+estimated). λ is kept at its floor unless fitting it gains 2Δln L >
+:data:`IMPRECISION_TEST`; when it runs to its ceiling (a floor so far above
+the thermal steps that they are not resolved) the decay on white noise alone
+is fitted: unbiased, but its error then leaves out the thermal force
+(docs/analysis.md, "Protocols", measured limits).
 
 For negligible imprecision the bound is σ_Γ² = 2ΓP/∫|m(t)|²dt (the AR(1)
 regression's information on |ρ|; :func:`thermal_limit`): the thermal force
 noise, not the detector, limits a strong ring-down.
-
-The block mean of the continuous process differs from an AR(1) sample only
-by a white part of relative size ΓΔ/3 in variance, which the imprecision term
-absorbs; the blocks are kept short (ΓΔ ≤ 0.02 in :mod:`ringdown`).
 """
 
 import numba
@@ -153,6 +156,9 @@ def fit_state_space(u, spacing_s):
                      scale, (0, 1, 2))
     if best[0] - free[0] > IMPRECISION_TEST / 2:  # the imprecision is resolved
         best = free
+    elif not np.isfinite(free[0]) and free[3] >= limits[1]:  # the floor hides the motion
+        ceiling = _minimise(u, spacing_s, np.array([rate0, shift0, limits[1]]), scale, (0, 1))
+        best = min(best, ceiling, key=lambda fit: fit[0])
     nll, rate, shift, log_lam, sigma = best
     if not (sigma > 0 and np.isfinite(sigma)):
         raise InputError("ring-down fit: the likelihood has no curvature in Γ; expected a "
