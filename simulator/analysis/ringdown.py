@@ -1,22 +1,23 @@
-"""Ring-down linewidth from a scheduled heterodyne record (a reference estimator).
+"""Ring-down linewidth and re-thermalisation of a scheduled heterodyne record.
 
-A mode kicked to a coherent amplitude and released decays as e^{−Γt/2} in
-amplitude; its sideband in a heterodyne record carries that amplitude. The
-estimate follows the usual lab procedure (common practice: demodulate at the
-mechanical sideband, low-pass, fit the energy decay |x(t)|² with an
-exponential on a background):
+Reference estimators for the trial harness. A mode kicked to a coherent
+amplitude and released decays as e^{−Γt/2} in amplitude; its sideband in a
+heterodyne record carries that amplitude. The ring-down estimate
+(:func:`fit_ring_down`):
 
 1. demodulate the complex record z = I + iQ at the anti-Stokes sideband,
    w(t) = z(t) e^{−2πi f_m t} (the anti-Stokes line sits at +f_m in the
    record's convention, docs/records.md);
 2. average w over blocks of L samples, short against the decay (Γ L/fs ≤
    :data:`BLOCK_DECAY`) and long against the mechanical period;
-3. fit P_k = |u_k|² by P(t) = A e^{−Γt} + B, weighted with the variance of
-   |u|² of a Gaussian block mean, Var P = s⁴ + 2 s² (P − s²) (s² the
-   background B), iterated once; the uncertainty is the fit's covariance
-   scaled by the residual χ² per degree of freedom (scipy.optimize.curve_fit,
-   ``absolute_sigma=False``) and by the residuals' integrated autocorrelation
-   (:func:`correlation_factor`), which takes up the thermal motion's scatter.
+3. fit the complex block means by their exact Gaussian likelihood
+   (:mod:`simulator.analysis.ringdown_likelihood`): the kicked mean decays
+   with the same factor e^{(−Γ/2 + iδ)Δ} per block that correlates the mode's
+   thermal motion, on a white imprecision floor. The thermal motion is the
+   noise that beats with the kicked amplitude in the energy |u|²; fitting the
+   energy as independent points understates the error by about three
+   (measured on the example), while the likelihood of the amplitude has the
+   right covariance and gives the observed-information error.
 
 The window of each ring-down is taken from the scenario's ``[schedule]``
 (the protocol the experimenter wrote, not the truth): every segment with a
@@ -27,25 +28,32 @@ kick (``excite_phonons`` > 0) is fitted on its own, and the nominal
 import numpy as np
 import scipy.optimize
 
+from simulator.analysis.ringdown_likelihood import fit_state_space
 from simulator.errors import InputError
 
 BLOCK_DECAY = 0.02  # Γ × block length: the decay within a block stays below 2 %
-MIN_BLOCKS = 8  # fewer blocks leave too few degrees of freedom for three parameters
+MIN_BLOCKS = 8  # fewer blocks leave too few degrees of freedom for the fit
 
 
-def demodulated_power(z, sample_rate_hz, frequency_hz, block_samples):
-    """Block centres (s) and |block mean of z e^{−2πi f t}|²: the power near the line at +f.
+def demodulated_amplitude(z, sample_rate_hz, frequency_hz, block_samples):
+    """Block centres (s) and block means of z e^{−2πi f t}: the line at +f in time.
 
     Each block mean passes a band of about fs/L around the line (a sinc
-    response), so the result follows the sideband's power in time: a coherent
-    amplitude's square plus the thermal and shot-noise power in that band.
+    response), so the result follows the sideband's complex amplitude: a
+    coherent amplitude plus the thermal and shot noise in that band.
     """
     block_samples = int(block_samples)
     n_blocks = len(z) // block_samples
     k = np.arange(n_blocks * block_samples)
     w = np.asarray(z)[:len(k)] * np.exp(-2j * np.pi * frequency_hz * k / sample_rate_hz)
-    power = np.abs(w.reshape(n_blocks, block_samples).mean(axis=1)) ** 2
-    return (np.arange(n_blocks) + 0.5) * block_samples / sample_rate_hz, power
+    return ((np.arange(n_blocks) + 0.5) * block_samples / sample_rate_hz,
+            w.reshape(n_blocks, block_samples).mean(axis=1))
+
+
+def demodulated_power(z, sample_rate_hz, frequency_hz, block_samples):
+    """Block centres (s) and |block mean of z e^{−2πi f t}|²: the power near the line at +f."""
+    t, u = demodulated_amplitude(z, sample_rate_hz, frequency_hz, block_samples)
+    return t, np.abs(u) ** 2
 
 
 def fit_ring_down(z, sample_rate_hz, frequency_hz, block_samples):
@@ -61,48 +69,26 @@ def fit_ring_down(z, sample_rate_hz, frequency_hz, block_samples):
     block_samples : int
         Samples averaged into one point of the envelope.
     """
-    t, power = demodulated_power(z, sample_rate_hz, frequency_hz, block_samples)
-    n_blocks = len(t)
-    if n_blocks < MIN_BLOCKS:
-        raise InputError(f"a ring-down of {len(z)} samples gives {n_blocks} blocks of "
+    t, u = demodulated_amplitude(z, sample_rate_hz, frequency_hz, block_samples)
+    if len(t) < MIN_BLOCKS:
+        raise InputError(f"a ring-down of {len(z)} samples gives {len(t)} blocks of "
                          f"{block_samples}; expected at least {MIN_BLOCKS}")
-
-    def model(time, a, rate, b):
-        return a * np.exp(-rate * time) + b
-
-    tail = max(1.0, float(np.median(power[-n_blocks // 4:])))  # background guess
-    guess = (max(power[0] - tail, tail), 1.0 / t[-1], tail)
-    sigma = np.ones(n_blocks)
-    for _ in range(2):  # weights from the previous fit's model
-        params, cov = scipy.optimize.curve_fit(
-            model, t, power, p0=guess, sigma=sigma, absolute_sigma=False,
-            bounds=([0.0, 0.0, 0.0], [np.inf, np.inf, np.inf]), maxfev=10_000)
-        s2 = max(params[2], 1e-300)
-        sigma = np.sqrt(s2**2 + 2.0 * s2 * np.clip(model(t, *params) - s2, 0.0, None))
-        guess = params
-    residual = (power - model(t, *params)) / sigma
-    return float(params[1]), float(np.sqrt(cov[1, 1] * correlation_factor(residual)))
+    rate, error, _ = fit_state_space(u, block_samples / sample_rate_hz)
+    return rate, error
 
 
-def correlation_factor(residual):
-    """1 + 2 Σ ρ_j of the residuals, summed until ρ_j first falls to zero or below.
+def mirror_null_block(block_samples, sample_rate_hz, frequency_hz):
+    """The block length in [¾L, L] that puts the Stokes line at −f nearest a null.
 
-    The thermal motion of the mode beats with the kicked amplitude and makes
-    neighbouring blocks' residuals correlated over 1/Γ; a least-squares error
-    for independent points is then too small by the square root of this
-    integrated autocorrelation (the effective number of independent points is
-    the number of blocks over it; Priestley, Spectral Analysis and Time Series
-    (Academic Press, 1981), Sec. 5.3, from memory; common practice).
+    A block mean at +f passes the line at −f (the same mode, and its kicked
+    amplitude) by sinc(2fL/fs); a whole number of cycles of 2f per block
+    cancels it, which the noise model (thermal motion on a white floor) does
+    not describe.
     """
-    r = residual - residual.mean()
-    var = float(np.dot(r, r))
-    factor = 1.0
-    for lag in range(1, len(r) // 2):
-        rho = float(np.dot(r[:-lag], r[lag:])) / var
-        if rho <= 0:
-            break
-        factor += 2.0 * rho
-    return factor
+    candidates = np.arange(max(1, (3 * block_samples) // 4), block_samples + 1)
+    cycles = 2.0 * frequency_hz * candidates / sample_rate_hz
+    leak = np.abs(np.sin(np.pi * cycles)) / np.maximum(cycles, 1.0)
+    return int(candidates[np.argmin(leak)])
 
 
 def ring_down_linewidth(record):
@@ -123,7 +109,9 @@ def ring_down_linewidth(record):
         n = int(round(segment.duration_s * fs))
         if segment.excite_phonons > 0:
             mode = scenario.mechanics[segment.excite_mode]
-            block = max(1, int(BLOCK_DECAY * fs / (2 * np.pi * mode.linewidth_hz)))
+            block = mirror_null_block(
+                max(1, int(BLOCK_DECAY * fs / (2 * np.pi * mode.linewidth_hz))),
+                fs, mode.frequency_hz)
             rate, error = fit_ring_down(z[first:first + n], fs, mode.frequency_hz, block)
             out[f"effective_linewidth_hz@{segment.name}"] = (rate / (2 * np.pi),
                                                               error / (2 * np.pi))
@@ -133,6 +121,8 @@ def ring_down_linewidth(record):
 
 BLOCKS_PER_SEGMENT = 200  # points of a transient's sideband power curve
 SIGMA_FLOOR = 1e-9  # smallest weight's sigma, relative to the curve's largest value
+RATE_LIMIT = 100.0  # largest |Γ| × window fitted: e^{−100} leaves nothing to fit after
+RATE_GRID = 81  # coarse Γ grid that brackets the profile χ² minimum before Brent (our choice)
 MIN_CYCLES = 3  # repetitions of a segment needed to average it and estimate its error
 
 
@@ -141,60 +131,152 @@ def relaxation(time, p0, rate, p_inf):
     return p_inf - (p_inf - p0) * np.exp(-rate * time)
 
 
-def _fit_relaxation(t, curve, sigma):
-    guess = (float(curve[0]), 3.0 / t[-1], float(np.mean(curve[-len(t) // 4:])))
-    params, _ = scipy.optimize.curve_fit(
-        relaxation, t, curve, p0=guess, sigma=sigma, absolute_sigma=True,
-        bounds=([0.0, 0.0, 0.0], [np.inf, np.inf, np.inf]), maxfev=10_000)
-    return params
+def relaxation_by_slope(time, p0, slope, rate):
+    """The same curve as P₀ + Ṗ₀ (1 − e^{−Γt})/Γ: its initial slope Ṗ₀ = Γ (P∞ − P₀)
+    is a parameter, well determined even when Γ is not (a window short against 1/Γ)."""
+    x = rate * time
+    small = np.abs(x) < 1e-8
+    growth = np.where(small, time, -np.expm1(-x) / np.where(small, 1.0, rate))
+    return p0 + slope * growth
+
+
+def linear_in_slope(t, curve, sigma, rate):
+    """(P₀, Ṗ₀) of :func:`relaxation_by_slope` at a given Γ (weighted linear least
+    squares, exact) and its χ²."""
+    design = np.column_stack([np.ones_like(t), relaxation_by_slope(t, 0.0, 1.0, rate)])
+    coef, *_ = np.linalg.lstsq(design / sigma[:, None], curve / sigma, rcond=None)
+    return coef, float(np.sum(((design @ coef - curve) / sigma) ** 2))
+
+
+def _rate_and_slope(t, curve):
+    """Γ and the initial slope Γ (P∞ − P₀) of the fitted relaxation (power units/s).
+
+    Weighted least squares in the slope form: for a given Γ the curve is
+    linear in (P₀, Ṗ₀), solved exactly (:func:`linear_in_slope`), and Γ
+    minimises the remaining χ² over |Γ| T ≤ :data:`RATE_LIMIT` (bounded Brent
+    search after a grid; a noisy curve may bend either way) — a profile that
+    cannot wander off as a three-parameter search can when the window is
+    short against 1/Γ. Two passes: unweighted, then weighted by
+    :func:`power_weights` of the first.
+    """
+    limit = RATE_LIMIT / t[-1]
+    grid = np.linspace(-limit, limit, RATE_GRID)
+    step = grid[1] - grid[0]
+    sigma = np.ones_like(curve)
+    for _ in range(2):
+        start = grid[int(np.argmin([linear_in_slope(t, curve, sigma, r)[1] for r in grid]))]
+        best = scipy.optimize.minimize_scalar(
+            lambda r, sigma=sigma: linear_in_slope(t, curve, sigma, r)[1], method="bounded",
+            bounds=(max(-limit, start - step), min(limit, start + step)))
+        sigma = power_weights(t, curve, best.x)
+    return np.array([best.x, linear_in_slope(t, curve, sigma, best.x)[0][1]])
+
+
+def slope_at_rate(t, curve, rate):
+    """Initial slope Ṗ₀ of the relaxation at a known Γ, weighted by :func:`power_weights`."""
+    return linear_in_slope(t, curve, power_weights(t, curve, rate), rate)[0][1]
 
 
 def transient_rates(record):
-    """Reference estimator: the relaxation rate of every repeated un-kicked segment.
+    """Reference estimator: the relaxation rate and heating rate of repeated segments.
 
     A segment that follows another and kicks nothing (cooling switched on,
     or off for re-thermalisation) shows the sideband power relaxing to its
     new level at the segment's energy damping rate Γ_eff (weak coupling;
     Marquardt et al., PRL 99, 093902 (2007)); with the tone off or on
-    resonance Γ_eff = Γm, and Γm times the known bath occupation is the
-    heating rate. One such transient holds only a few independent values of
-    the thermal power (it is exponentially distributed and correlated over
-    1/Γ), so the segments that share a name (the cycles of one schedule) are
-    averaged: the demodulated power of each (:func:`demodulated_power`,
-    :data:`BLOCKS_PER_SEGMENT` blocks) is averaged over the cycles and
-    fitted by :func:`relaxation`, weighted by the spread across cycles. The
-    error is the jackknife over cycles (Efron, The Jackknife, the Bootstrap
-    and Other Resampling Plans (SIAM, 1982), Ch. 3; common practice), which
-    needs no model of the noise. Returns ``effective_linewidth_hz@<segment
-    name>`` (Γ/2π in Hz) for every name repeated :data:`MIN_CYCLES` times or more.
+    resonance Γ_eff = Γm. One such transient holds only a few independent
+    values of the thermal power (it is exponentially distributed and
+    correlated over 1/Γ), so the segments that share a name (the cycles of
+    one schedule) are averaged: the demodulated power of each
+    (:func:`demodulated_power`, :data:`BLOCKS_PER_SEGMENT` blocks) is averaged
+    over the cycles and fitted by :func:`relaxation` (in its slope form),
+    weighted by the fitted curve itself (:func:`power_weights`). The initial
+    slope Γ (P∞ − P₀) is fitted at the segment's nominal damping rate
+    (:func:`simulator.analysis.heating.nominal_damping_rate`: a window short
+    against 1/Γ determines the slope but hardly Γ, and a slope that moves
+    with a wandering Γ is a statistic the jackknife cannot follow); divided
+    by the sideband's calibrated block power per phonon
+    (:func:`simulator.analysis.heating.block_power_per_phonon`), it is the
+    heating rate in phonons/s (negative for a cooling transient). Errors are
+    the jackknife over cycles (Efron, The Jackknife, the Bootstrap and Other
+    Resampling Plans (SIAM, 1982), Ch. 3; common practice), which needs no
+    model of the noise. Returns ``effective_linewidth_hz@<name>`` (Γ/2π in
+    Hz) and ``heating_rate_phonons_per_s@<name>`` for every segment name
+    repeated :data:`MIN_CYCLES` times or more.
     """
+    from simulator.analysis.heating import (
+        block_power_per_phonon,
+        nominal_damping_rate,
+        segment_system_of,
+    )
+
     scenario = record.scenario
     if scenario.schedule is None or record.kind != "iq":
         raise InputError("transient_rates needs an iq record of a scenario with a "
                          "[schedule] of repeated segments")
-    fs, z = record.sample_rate_hz, np.asarray(record.samples)
-    frequency = scenario.mechanics[0].frequency_hz
+    fs = record.sample_rate_hz
+    curves = transient_curves(np.asarray(record.samples), fs, scenario.schedule.segments,
+                              scenario.mechanics[0].frequency_hz)
+    systems = segment_system_of(scenario, set(curves))
+    out = {}
+    for name, (t, stack) in curves.items():
+        gain = block_power_per_phonon(systems[name], fs)
+        nominal = nominal_damping_rate(systems[name])
+
+        def both(t, curve, nominal=nominal):
+            return np.array([_rate_and_slope(t, curve)[0], slope_at_rate(t, curve, nominal)])
+
+        (rate, slope), error = jackknife_over_cycles(t, stack, both)
+        out[f"effective_linewidth_hz@{name}"] = (rate / (2 * np.pi), error[0] / (2 * np.pi))
+        out[f"heating_rate_phonons_per_s@{name}"] = (slope / gain, error[1] / gain)
+    return out
+
+
+def transient_curves(z, sample_rate_hz, segments, frequency_hz):
+    """``{name: (t, cycles × blocks)}``: the demodulated power of every repeated segment.
+
+    Un-kicked segments after the first, :data:`BLOCKS_PER_SEGMENT` blocks
+    each, names with fewer than :data:`MIN_CYCLES` cycles left out.
+    """
     curves, first = {}, 0
-    for k, segment in enumerate(scenario.schedule.segments):
-        n = int(round(segment.duration_s * fs))
+    for k, segment in enumerate(segments):
+        n = int(round(segment.duration_s * sample_rate_hz))
         if k > 0 and segment.excite_phonons == 0:
             block = max(1, n // BLOCKS_PER_SEGMENT)
-            t, power = demodulated_power(z[first:first + n], fs, frequency, block)
+            t, power = demodulated_power(z[first:first + n], sample_rate_hz, frequency_hz,
+                                         block)
             curves.setdefault(segment.name, []).append((t, power))
         first += n
     out = {}
     for name, cycles in curves.items():
-        if len(cycles) < MIN_CYCLES:
-            continue
-        size = min(len(p) for _, p in cycles)
-        t, stack = cycles[0][0][:size], np.array([p[:size] for _, p in cycles])
-        k = len(stack)
-        mean = stack.mean(axis=0)  # weights: the spread over cycles, floored (a noiseless
-        sigma = np.maximum(stack.std(axis=0, ddof=1) / np.sqrt(k),  # curve stays finite)
-                           SIGMA_FLOOR * np.abs(mean).max())
-        rate = _fit_relaxation(t, mean, sigma)[1]
-        leave_out = np.array([_fit_relaxation(t, np.delete(stack, i, axis=0).mean(axis=0),
-                                              sigma)[1] for i in range(k)])
-        error = np.sqrt((k - 1) / k * np.sum((leave_out - leave_out.mean()) ** 2))
-        out[f"effective_linewidth_hz@{name}"] = (rate / (2 * np.pi), error / (2 * np.pi))
+        if len(cycles) >= MIN_CYCLES:
+            size = min(len(p) for _, p in cycles)
+            out[name] = (cycles[0][0][:size], np.array([p[:size] for _, p in cycles]))
     return out
+
+
+def jackknife_over_cycles(t, stack, estimate):
+    """``estimate(t, mean)`` of the cycle-averaged curve and its jackknife error.
+
+    Each leave-one-out replicate runs the whole estimate, weights included,
+    so the error also holds the weights' own scatter.
+    """
+    k = len(stack)
+    value = estimate(t, stack.mean(axis=0))
+    leave_out = np.array([estimate(t, np.delete(stack, i, axis=0).mean(axis=0))
+                          for i in range(k)])
+    error = np.sqrt((k - 1) / k * np.sum((leave_out - leave_out.mean(axis=0)) ** 2, axis=0))
+    return value, error
+
+
+def power_weights(t, curve, rate):
+    """σ ∝ the fitted curve at Γ (a line's block power is exponential: its s.d. is its
+    mean), from an unweighted first pass; floored so a noiseless curve stays finite.
+
+    Weights from the fit's own smooth model, not from the scatter of the data
+    they weight: sample-variance weights favour the points that fell low and
+    bias the fit down.
+    """
+    coef, _ = linear_in_slope(t, curve, np.ones_like(curve), rate)
+    model = np.abs(coef[0] + coef[1] * relaxation_by_slope(t, 0.0, 1.0, rate))
+    return np.maximum(model, SIGMA_FLOOR * np.abs(curve).max())

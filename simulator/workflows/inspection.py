@@ -32,6 +32,7 @@ class Inspection:
     tone_sets: tuple = ()  # several recorded tones: bounds of each alone and all together
     quadratures: object = None  # QuadratureBudget of a back-action-evading pair
     resolution: tuple = ()  # its Resolution, and that of one tone on the same device
+    protocol: object = None  # simulator.analysis.protocol_bound.HeatingBound of a [schedule]
 
     @property
     def scenario(self):
@@ -115,6 +116,8 @@ class Inspection:
                 "resolution": [r.to_dict() for r in self.resolution]}}
                if self.quadratures is not None else {}),
             "regime": None if self.regime is None else self.regime.to_dict(),
+            "protocol": (None if self.protocol is None
+                         else dataclasses.asdict(self.protocol)),
             "warnings": list(self.warnings),
         }
 
@@ -181,6 +184,8 @@ class Inspection:
             lines += tone_set_text(self.tone_sets)
         if self.quadratures is not None:
             lines += [""] + self.quadratures.text() + _resolution_text(self.resolution)
+        if self.protocol is not None:
+            lines += ["", "protocol ([schedule], first mode)", f"  {self.protocol.text()}"]
         if d["regime"] is not None:
             lines += ["", f"regime (linear engine validity)  {d['regime']['level']}",
                       f"  {d['regime']['reason']}"]
@@ -318,10 +323,13 @@ def inspect_scenario(system, *, feasibility=True):
                  if "apparent_occupation_warning" in entry]
     tone_sets = (_tone_sets(system, feasibility) if steady is not None and feasibility
                  else ())
+    protocol = (_protocol_bound(scenario, warnings)
+                if steady is not None and feasibility and scenario.schedule is not None
+                else None)
     return Inspection(system=system, steady=steady,
                       warnings=tuple(warnings), feasibility=feasibility, regime=regime,
                       laser=laser, tone_sets=tone_sets, quadratures=quadratures,
-                      resolution=resolution)
+                      resolution=resolution, protocol=protocol)
 
 
 def _tone_sets(system, feasibility):
@@ -335,6 +343,24 @@ def _tone_sets(system, feasibility):
     names = [m.name for m in system.scenario.mechanics]
     return tuple(b for f in feasibility
                  for b in tone_set_bounds(system.scenario, sets, names.index(f["mode"])))
+
+
+def _protocol_bound(scenario, warnings):
+    """Heating-rate bound of the schedule, or None with a warning saying why not."""
+    from simulator.analysis.protocol_bound import heating_rate_bound
+    from simulator.errors import InputError, OperatingPointError
+
+    try:
+        bound = heating_rate_bound(scenario)
+    except (InputError, OperatingPointError) as error:
+        warnings.append(f"no heating-rate bound for the schedule: {error}")
+        return None
+    if not (math.isfinite(bound.heating_rate_error) and bound.heating_rate_error > 0):
+        warnings.append("no heating-rate bound for the schedule: its record does not "
+                        "determine the heating rate (a detection without the anti-Stokes "
+                        "line, or segments that leave Γm and Γm·n_th unresolved)")
+        return None
+    return bound
 
 
 def _tone_points(system):

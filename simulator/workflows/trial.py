@@ -123,11 +123,14 @@ def segment_truths(scenario):
     """Truth of each ``[schedule]`` segment, first mode: ``<quantity>@<segment name>``.
 
     The segment's steady-state effective linewidth and frequency (a ring-down
-    measures them) and occupation (where a transient ends); for an unstable
+    measures them) and occupation (where a transient ends); the initial heating
+    rate in phonons/s of every un-kicked segment after the first
+    (:func:`simulator.analysis.heating.initial_heating_rates`); for an unstable
     segment the linewidth (negative) and frequency of its drift's poles only.
     """
     if getattr(scenario, "schedule", None) is None:
         return {}
+    from simulator.analysis.heating import initial_heating_rates
     from simulator.linear.steady_state import steady_state
     from simulator.records.protocol import segment_systems
     from simulator.records.unstable import effective_from_eigenvalues
@@ -143,6 +146,8 @@ def segment_truths(scenario):
         table.update({f"effective_linewidth_hz@{name}": mode.effective_linewidth_hz,
                       f"effective_frequency_hz@{name}": mode.effective_frequency_hz,
                       f"occupation@{name}": mode.occupation})
+    table.update({f"heating_rate_phonons_per_s@{name}": rate
+                  for name, rate in initial_heating_rates(scenario).items()})
     return table
 
 
