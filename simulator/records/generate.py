@@ -368,7 +368,9 @@ def generate(plan, sink, *, chunk, progress=None, workers=1):
                 n_clip = 0
                 for pos, xi in normals.pieces(first, count):
                     end = pos + len(xi)
-                    if direct:
+                    if direct and step.digitised is not None:  # in the recursion's loop
+                        n_clip += step.digitised(xi, digitiser, out[pos:end])
+                    elif direct:
                         y = y_block[:len(xi)]
                         step(xi, y, mech[pos:end])
                         n_clip += digitiser.into(y, out[pos:end])
