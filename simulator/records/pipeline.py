@@ -104,32 +104,59 @@ def executor(workers):
                                  initializer=_lower_thread_priority)
 
 
+def writer(workers):
+    """One thread that writes a record's chunks in order (lower priority, like the pool's),
+    or :class:`InlineExecutor` for a single-threaded record (the caller writes)."""
+    if workers <= 1:
+        return InlineExecutor()
+    return cf.ThreadPoolExecutor(max_workers=1, thread_name_prefix="record-writer",
+                                 initializer=_lower_thread_priority)
+
+
 class OrderedStage:
     """Runs ``fn`` on items in the pool; hands the results to ``deliver`` in order.
 
-    At most ``depth`` items are in flight (memory stays bounded); the caller
-    thread delivers, so the consumer (a file) is touched by one thread only.
+    At most ``depth`` items are in flight (memory stays bounded). The
+    deliveries run one at a time, in order, so the consumer (a file) is
+    touched by one thread at a time: on the caller's thread, or, given a
+    ``writer`` (an executor of one thread), on that thread, so that the
+    caller goes on with the next item while the last one is written.
     """
 
-    def __init__(self, pool, fn, deliver, depth):
+    def __init__(self, pool, fn, deliver, depth, writer=None):
         self.pool, self.fn, self.deliver, self.depth = pool, fn, deliver, max(1, int(depth))
+        self.writer = writer
         self.queue = collections.deque()
+
+    def _delivered(self, future):
+        self.deliver(future.result())
 
     def put(self, *args):
         """Submit one item; deliver the oldest ones while more than ``depth`` wait."""
-        self.queue.append(self.pool.submit(self.fn, *args))
+        future = self.pool.submit(self.fn, *args)
+        if self.writer is not None:  # the writer waits for the item, in order
+            future = self.writer.submit(self._delivered, future)
+        self.queue.append(future)
         while len(self.queue) > self.depth:
-            self.deliver(self.queue.popleft().result())
+            self._finish(self.queue.popleft())
+
+    def _finish(self, future):
+        if self.writer is None:
+            self.deliver(future.result())
+        else:
+            future.result()  # raises what the delivery raised
 
     def drain(self):
         """Deliver everything still in flight, in order."""
         while self.queue:
-            self.deliver(self.queue.popleft().result())
+            self._finish(self.queue.popleft())
 
     def cancel(self):
-        """Drop what has not started (after an error)."""
+        """Drop what has not started (after an error); wait for a delivery under way."""
         while self.queue:
-            self.queue.popleft().cancel()
+            future = self.queue.popleft()
+            if not future.cancel() and self.writer is not None:
+                cf.wait([future])
 
 
 def block_generator(seed, stream, index):
