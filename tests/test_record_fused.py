@@ -109,3 +109,14 @@ def test_plain_kernel_beyond_the_pair_kernels_reach(monkeypatch):
     monkeypatch.setattr(fused, "PAIR_MODES_MOST", 1)
     assert kernels.stepper(plan_record(scenario, seed=6)).digitised is None
     np.testing.assert_array_equal(simulate_record(scenario, seed=6, workers=2).counts, reference)
+
+
+def test_numpys_own_loop_where_numba_would_differ(monkeypatch):
+    """Where numba's normals would not be numpy's, blocks come from numpy's loop: the
+    same record, only slower."""
+    scenario = make(samples=20_000)
+    reference = simulate_record(scenario, seed=2, workers=1).counts
+    assert pipeline.compiled_normals_are_numpys()
+    monkeypatch.setattr(pipeline, "compiled_normals_are_numpys", lambda: False)
+    monkeypatch.setattr(fused, "fill_normals", None)  # would fail if called
+    np.testing.assert_array_equal(simulate_record(scenario, seed=2, workers=2).counts, reference)

@@ -17,6 +17,7 @@ number of threads or the chunk size.
 
 import collections
 import concurrent.futures as cf
+import functools
 import os
 import sys
 import threading
@@ -178,9 +179,30 @@ def draw_block(seed, stream, index, size, width):
     """
     from simulator.records.fused import fill_normals
 
+    if not compiled_normals_are_numpys():  # another numba or numpy: numpy's own loop
+        return block_generator(seed, stream, index).standard_normal((size, width))
     out = np.empty((size, width))
     fill_normals(block_generator(seed, stream, index), out)
     return out
+
+
+CHECK_DRAWS = 1 << 17  # normals compared once per process: ~30 in the ziggurat's tail
+
+
+@functools.cache
+def compiled_normals_are_numpys():
+    """Whether numba's compiled normals equal numpy's Generator's, on one test block.
+
+    Checked once per process, so that a numba or numpy whose algorithms
+    differ (neither promises the other's values) makes records slower, never
+    different: :func:`draw_block` then uses numpy's own loop.
+    """
+    from simulator.records.fused import fill_normals
+
+    ours = np.empty((CHECK_DRAWS, 1))
+    fill_normals(block_generator(0, 0, 0), ours)
+    theirs = block_generator(0, 0, 0).standard_normal((CHECK_DRAWS, 1))
+    return bool(np.array_equal(ours.view(np.int64), theirs.view(np.int64)))
 
 
 class NormalBlocks:
