@@ -77,7 +77,7 @@ class InlineExecutor:
 # instead stalls the whole record, while the drawing threads have blocks in hand
 # and can wait. Measured on 2 cores (4·10⁷ iq samples, raw): +5 gave 53, +10 gave
 # 56 M samples/s against 49 without; the same bits (docs/records.md).
-WORKER_NICENESS = 10
+WORKER_NICENESS = int(os.environ.get("NC_NICE", 10))
 
 
 def _lower_thread_priority():
@@ -213,7 +213,8 @@ class NormalBlocks:
     stream, its index), not on how the samples are grouped into chunks, nor
     on which thread drew them. Given an ``executor`` (a thread
     pool), the next ``ahead`` blocks are drawn in the background while the
-    caller works on the current one, never past sample ``total``.
+    caller works on the current one, never past sample ``total``; a block the
+    pool has not started when the caller needs it is drawn by the caller.
     """
 
     def __init__(self, seed, stream, width, size, *, executor=None, ahead=0, total=None):
@@ -234,7 +235,11 @@ class NormalBlocks:
                             draw_block, self.seed, self.stream, j, self.size, self.width)
                 for j in [j for j in self.pending if j < k]:
                     self.pending.pop(j).cancel()
-                self.block = self.pending.pop(k).result()
+                future = self.pending.pop(k)
+                # not started yet (the pool's threads are busy or kept off the cores by
+                # other work): draw it here rather than wait; the same numbers
+                self.block = (draw_block(self.seed, self.stream, k, self.size, self.width)
+                              if future.cancel() else future.result())
             self.index = k
         return self.block
 
