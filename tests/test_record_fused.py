@@ -90,15 +90,20 @@ def test_early_write_back_leaves_the_file_unchanged(tmp_path, monkeypatch):
     import h5py
 
     from simulator.io import recordfile
+    from simulator.io.files import AtomicFile
 
     monkeypatch.setattr(recordfile, "WRITE_BACK_BYTES", 4096)
+    started = []
+    start = AtomicFile.start_write_back
+    monkeypatch.setattr(AtomicFile, "start_write_back",
+                        lambda self: (started.append(1), start(self))[1])
     scenario = make(samples=50_000)
     path = tmp_path / "r.h5"
     simulate_record(scenario, seed=8, out=path, chunk_samples=3_000, workers=2)
     with h5py.File(path, "r") as f:
         np.testing.assert_array_equal(f["samples"][:],
                                       simulate_record(scenario, seed=8, workers=1).counts)
-    assert [p.name for p in tmp_path.iterdir()] == ["r.h5"]
+    assert len(started) >= 16 and [p.name for p in tmp_path.iterdir()] == ["r.h5"]
 
 
 def test_plain_kernel_beyond_the_pair_kernels_reach(monkeypatch):

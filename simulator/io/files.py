@@ -25,11 +25,13 @@ trials, runs); see there.
 import datetime
 import errno
 import fcntl
+import functools
 import json
 import os
 import re
 import secrets
 import socket
+import sys
 from pathlib import Path
 
 from simulator.errors import InputError
@@ -105,6 +107,25 @@ def refuse_existing(path, *, overwrite, option="output"):
                           "not replaced (make it writable first if you mean to)")
 
 
+SYNC_FILE_RANGE_WRITE = 2  # <linux/fs.h>: start write-out of dirty pages, do not wait
+
+
+@functools.cache
+def _sync_file_range():
+    """Linux's sync_file_range from the C library, or None where there is none."""
+    if not sys.platform.startswith("linux"):
+        return None
+    import ctypes
+
+    try:
+        function = ctypes.CDLL(None, use_errno=True).sync_file_range
+    except (OSError, AttributeError):
+        return None
+    function.argtypes = (ctypes.c_int, ctypes.c_int64, ctypes.c_int64, ctypes.c_uint)
+    function.restype = ctypes.c_int
+    return function
+
+
 class AtomicFile:
     """A temporary file that becomes ``path`` on :meth:`commit`, or vanishes on :meth:`discard`.
 
@@ -139,23 +160,25 @@ class AtomicFile:
         """Start writing the temporary file's new content to the disk, without waiting.
 
         A durable file otherwise reaches the disk at :meth:`commit`, whose
-        flush then waits for all of it (0.1 s for 160 MB on the development
+        flush then waits for all of it (0.11 s for 160 MB on the development
         machine). Called as a long file grows, the disk writes it while the
         work that fills it goes on, and the final flush waits for the last
-        part only. On Linux, posix_fadvise(POSIX_FADV_DONTNEED) starts the
-        write-back of the range's dirty pages and drops its clean ones from
-        the page cache (posix_fadvise(2)); elsewhere, or for a file that is
-        not durable, nothing happens. The content is the same either way.
+        part only. Linux's sync_file_range(2) with SYNC_FILE_RANGE_WRITE
+        starts the write-back of the new range and returns; elsewhere, or for
+        a file that is not durable, nothing happens. The content is the same
+        either way, and the pages stay in the cache for a reader.
         """
-        if not self.durable or not hasattr(os, "posix_fadvise"):
+        start_range = _sync_file_range()
+        if not self.durable or start_range is None:
             return
         try:
             if self._reader is None:
                 self._reader = os.open(self.tmp, os.O_RDONLY)
             size = os.fstat(self._reader).st_size
-            os.posix_fadvise(self._reader, self._written_back, size - self._written_back,
-                             os.POSIX_FADV_DONTNEED)
-            self._written_back = size
+            if size > self._written_back:
+                start_range(self._reader, self._written_back, size - self._written_back,
+                            SYNC_FILE_RANGE_WRITE)
+                self._written_back = size
         except OSError:  # advice only: the final flush still writes everything
             pass
 

@@ -45,7 +45,7 @@ FREQUENCY_CONVENTION = ("I + iQ: anti-Stokes sideband (light above the drive) at
 DEFLATE_LEVEL = 1  # zlib level of the samples: fastest; higher levels gain < 1 % (docs/records.md)
 # Bytes of samples after which the disk is asked to start writing them (not to wait):
 # the final flush of a long record then has only the last part left to write.
-WRITE_BACK_BYTES = int(__import__("os").environ.get("NC_WB", 32 << 20))
+WRITE_BACK_BYTES = 32 << 20
 COMPRESSIONS = ("none", "deflate")  # of the samples; docs/records.md weighs size against speed
 _TRUTH_ARRAYS = ("occupation", "effective_frequency_hz", "effective_linewidth_hz",
                  "coupling_rate_hz", "zero_point_amplitude_m")

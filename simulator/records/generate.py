@@ -353,15 +353,13 @@ def generate(plan, sink, *, chunk, progress=None, workers=1):
 
     workers = int(workers)
     y_block = np.empty((min(chunk, kernels.BLOCK_SAMPLES), p)) if direct else None
-    import os as _os
-    use_writer = workers > 1 and _os.environ.get("NC_WRITER", "1") == "1"
     with pipeline.executor(workers) as pool, pipeline.writer(workers) as write:
         normals = kernels.NormalBlocks(
             plan.seed, kernels.SAMPLE_STREAM, step.width, kernels.BLOCK_SAMPLES,
             executor=pool if workers > 1 else None, total=n_total,
             ahead=2 * workers + 2)  # enough to keep every thread drawing, memory bounded
         stage = pipeline.OrderedStage(pool, finish, deliver, depth=2 * workers,
-                                      writer=write if use_writer else None)
+                                      writer=write if workers > 1 else None)
         try:
             for first in range(0, n_total, chunk):
                 count = min(chunk, n_total - first)

@@ -8,9 +8,9 @@ record: blocks of normals are drawn ahead (:class:`NormalBlocks` with an
 executor), the sequential recursion runs on the calling thread, and each
 finished chunk is rotated, digitised and compressed by the pool
 (:class:`OrderedStage`) while the next chunk's recursion runs, then written
-in order. (An iq record without a tone is digitised on the calling thread,
-block by block right after the recursion, while its outputs are still in
-the cache; the pool then only compresses.) Every step is a pure function
+in order by one writer thread (:func:`writer`). (An iq record without a
+tone is digitised on the calling thread, in the recursion's own loop; the
+pool then only compresses.) Every step is a pure function
 of the sample indices it covers, so the result does not depend on the
 number of threads or the chunk size.
 """
@@ -77,7 +77,7 @@ class InlineExecutor:
 # instead stalls the whole record, while the drawing threads have blocks in hand
 # and can wait. Measured on 2 cores (4·10⁷ iq samples, raw): +5 gave 53, +10 gave
 # 56 M samples/s against 49 without; the same bits (docs/records.md).
-WORKER_NICENESS = int(os.environ.get("NC_NICE", 10))
+WORKER_NICENESS = 10
 
 
 def _lower_thread_priority():
