@@ -354,9 +354,10 @@ def stage_ceiling(plan, y, draw_ns, sequential_ns, cores):
 
     Every stage costs core time: with all cores busy the streamed rate is at
     most cores / (sum of the stages' core times per sample). The sequential
-    loop (recursion and digitiser) and the file write run on the calling
-    thread: the rate is also at most 1 / (their sum). The flush to the disk
-    is the operating system's wait, started early (``AtomicFile.start_write_back``).
+    loop (recursion and digitiser) runs on the calling thread, the file
+    write on the writer thread: the rate is also at most 1 / (the loop's
+    time). The flush to the disk is the operating system's wait, started
+    early (``AtomicFile.start_write_back``).
     """
     import h5py
 
@@ -375,12 +376,12 @@ def stage_ceiling(plan, y, draw_ns, sequential_ns, cores):
         t_write = best_of(write) / len(counts)
     stages = {"draw": draw_ns, "recursion + digitiser": sequential_ns, "file write": t_write}
     total = sum(stages.values())
-    calling = sequential_ns + t_write
     print("   core time per sample, ns:  " + "   ".join(
         f"{name} {1e9 * t:.1f}" for name, t in stages.items()))
     print(f"   ceiling with every core busy: {cores / total / 1e6:8.2f}   "
-          f"ceiling of the calling thread: {1 / calling / 1e6:8.2f}   "
-          f"= {min(cores / total, 1 / calling) * sequential_ns:4.2f} of the sequential loop")
+          f"ceiling of the calling thread: {1 / sequential_ns / 1e6:8.2f}   "
+          f"= {min(cores / total, 1 / sequential_ns) * sequential_ns:4.2f} of the sequential "
+          "loop")
 
 
 COMPRESSION_CHUNK = 1 << 18
