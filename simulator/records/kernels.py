@@ -1,10 +1,11 @@
 """numba kernels: the sample-by-sample recursions of the exact discrete model.
 
 Each kernel is a short loop over samples that writes into arrays the caller
-has allocated. The random normals are drawn outside, in blocks, with numpy's
-Generator (faster than numba's own generator and reproducible by block), and
-passed in; there is no parallel loop, so the result never depends on
-threading. Only :mod:`simulator.records.generate` calls these; it checks shapes and
+has allocated. The random normals are drawn outside, in blocks, each by its
+own numpy Generator (reproducible by block; :func:`simulator.records.pipeline.draw_block`),
+and passed in; there is no parallel loop, so the result never depends on
+threading. Two-channel modal recursions run in :mod:`simulator.records.fused`,
+the same bits faster. Only :mod:`simulator.records.generate` calls these; it checks shapes and
 dtypes first. :func:`stepper` binds a record plan's matrices to the kernel of
 its form (full state, innovations, or innovations in modal coordinates)
 and states, as a :class:`Recursion`, exactly which matrices that kernel runs.
