@@ -8,7 +8,9 @@ without changing a single value:
   compiled version of numpy's ``Generator.standard_normal`` on the block's
   own Generator: the same ziggurat on the same PCG64 state, so the same
   values in the same order, about three times faster than numpy's loop on
-  the development machine and without the GIL.
+  the development machine and without the GIL. (Checked once per process,
+  :func:`simulator.records.pipeline.compiled_normals_are_numpys`: with a
+  numba or numpy whose algorithms differ, numpy's own loop draws.)
 - :func:`modal_pair_step` runs the two-channel recursion in modal
   coordinates (iq and if records, :func:`simulator.records.kernels.modal_innovations_step`)
   with every rounding written out: each multiply-add that the compiler fused
