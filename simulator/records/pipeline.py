@@ -19,8 +19,6 @@ import collections
 import concurrent.futures as cf
 import functools
 import os
-import sys
-import threading
 
 import numpy as np
 
@@ -72,37 +70,21 @@ class InlineExecutor:
         return False
 
 
-# Niceness the pool's threads add to their own. The recursion on the calling thread
-# is sequential: every moment the scheduler gives its core to a drawing thread
-# instead stalls the whole record, while the drawing threads have blocks in hand
-# and can wait. Measured on 2 cores (4·10⁷ iq samples, raw): +5 gave 53, +10 gave
-# 56 M samples/s against 49 without; the same bits (docs/records.md).
-WORKER_NICENESS = 10
-
-
-def _lower_thread_priority():
-    """Lower the calling thread's scheduling priority (Linux: niceness is per thread)."""
-    if not sys.platform.startswith("linux"):  # elsewhere the id names a process
-        return
-    tid = threading.get_native_id()
-    try:
-        os.setpriority(os.PRIO_PROCESS, tid, os.getpriority(os.PRIO_PROCESS, tid)
-                       + WORKER_NICENESS)
-    except OSError:  # a sandbox may forbid it: the same bits, only slower
-        pass
-
-
 def executor(workers):
     """A thread pool of ``workers`` threads, or :class:`InlineExecutor` for one.
 
-    The pool's threads run at a lower priority than the calling thread
-    (:data:`WORKER_NICENESS`), so that the sequential recursion is never the
-    one kept waiting for a core.
+    The pool's threads keep the calling thread's priority. They used to run
+    at a lower one (niceness +10), when drawing the normals took 2.5 times
+    the recursion's time and kept every thread busy; with the drawing now
+    cheaper than the recursion, a lowered pool only lost its core to other
+    work on the machine. Measured on 2 cores with one other busy process
+    (load average 2.2–2.6, 4·10⁷ iq samples, raw, 2 threads, alternate runs
+    of 3 records each): niceness +10 gave 43–78 (median 47), +3 44–49, none
+    48–77 (median 51 and 70 in two rounds) M samples/s, one thread 58–64.
     """
     if workers <= 1:
         return InlineExecutor()
-    return cf.ThreadPoolExecutor(max_workers=workers, thread_name_prefix="record",
-                                 initializer=_lower_thread_priority)
+    return cf.ThreadPoolExecutor(max_workers=workers, thread_name_prefix="record")
 
 
 def writer(workers):
@@ -112,8 +94,8 @@ def writer(workers):
     It keeps the calling thread's priority: it works in short bursts, and
     every chunk waits for it in order, so a writer kept off the cores stalls
     the recursion too. Measured on 2 cores with other work running (load
-    average 9, 2·10⁷ iq samples, three runs each): a writer at the pool's
-    lower priority gave 13–21 M samples/s, at the caller's 17–30.
+    average 9, 2·10⁷ iq samples, three runs each): a writer at niceness +10
+    gave 13–21 M samples/s, at the caller's priority 17–30.
     """
     if workers <= 1:
         return InlineExecutor()
