@@ -133,7 +133,7 @@ def test_if_record_file_is_real(tmp_path):
 
 
 def test_exception_midway_leaves_nothing(tmp_path, monkeypatch):
-    from simulator.records import kernels
+    from simulator.records import fused, kernels
 
     calls = []
 
@@ -147,6 +147,7 @@ def test_exception_midway_leaves_nothing(tmp_path, monkeypatch):
 
     for name in ("innovations_step", "modal_innovations_step"):
         monkeypatch.setattr(kernels, name, failing(getattr(kernels, name)))
+    monkeypatch.setattr(fused, "modal_pair_step", failing(fused.modal_pair_step))
     path = tmp_path / "broken.h5"
     with pytest.raises(RuntimeError, match="injected"):
         simulate_record(make(samples=10_000), seed=1, out=path, chunk_samples=1000)

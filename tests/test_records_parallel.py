@@ -121,24 +121,3 @@ def test_cli_threads_and_compression(tmp_path):
         assert a["samples"].compression == "gzip"
         np.testing.assert_array_equal(a["samples"][:],
                                       simulate_record(scenario, seed=4, workers=1).counts)
-
-
-@pytest.mark.skipif(not __import__("sys").platform.startswith("linux"),
-                    reason="niceness per thread is Linux's")
-def test_pool_threads_yield_to_the_recursion():
-    """The pool's threads run at a lower priority than the thread running the
-    recursion (or at the lowest one there is), so the sequential recursion is
-    not the one kept waiting for a core."""
-    import os
-    import threading
-
-    from simulator.records import pipeline
-
-    def niceness():
-        return os.getpriority(os.PRIO_PROCESS, threading.get_native_id())
-
-    mine = niceness()
-    with pipeline.executor(2) as pool:
-        theirs = pool.submit(niceness).result()
-    assert theirs == min(mine + pipeline.WORKER_NICENESS, 19)  # setpriority(2): niceness -20 … 19
-    assert niceness() == mine

@@ -25,11 +25,13 @@ trials, runs); see there.
 import datetime
 import errno
 import fcntl
+import functools
 import json
 import os
 import re
 import secrets
 import socket
+import sys
 from pathlib import Path
 
 from simulator.errors import InputError
@@ -105,6 +107,25 @@ def refuse_existing(path, *, overwrite, option="output"):
                           "not replaced (make it writable first if you mean to)")
 
 
+SYNC_FILE_RANGE_WRITE = 2  # <linux/fs.h>: start write-out of dirty pages, do not wait
+
+
+@functools.cache
+def _sync_file_range():
+    """Linux's sync_file_range from the C library, or None where there is none."""
+    if not sys.platform.startswith("linux"):
+        return None
+    import ctypes
+
+    try:
+        function = ctypes.CDLL(None, use_errno=True).sync_file_range
+    except (OSError, AttributeError):
+        return None
+    function.argtypes = (ctypes.c_int, ctypes.c_int64, ctypes.c_int64, ctypes.c_uint)
+    function.restype = ctypes.c_int
+    return function
+
+
 class AtomicFile:
     """A temporary file that becomes ``path`` on :meth:`commit`, or vanishes on :meth:`discard`.
 
@@ -133,6 +154,38 @@ class AtomicFile:
             os.close(os.open(self.tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666))
         except OSError as exc:
             raise _output_error(self.path, exc) from None
+        self._reader, self._written_back = None, 0
+
+    def start_write_back(self):
+        """Start writing the temporary file's new content to the disk, without waiting.
+
+        A durable file otherwise reaches the disk at :meth:`commit`, whose
+        flush then waits for all of it (0.11 s for 160 MB on the development
+        machine). Called as a long file grows, the disk writes it while the
+        work that fills it goes on, and the final flush waits for the last
+        part only. Linux's sync_file_range(2) with SYNC_FILE_RANGE_WRITE
+        starts the write-back of the new range and returns; elsewhere, or for
+        a file that is not durable, nothing happens. The content is the same
+        either way, and the pages stay in the cache for a reader.
+        """
+        start_range = _sync_file_range()
+        if not self.durable or start_range is None:
+            return
+        try:
+            if self._reader is None:
+                self._reader = os.open(self.tmp, os.O_RDONLY)
+            size = os.fstat(self._reader).st_size
+            if size > self._written_back:
+                start_range(self._reader, self._written_back, size - self._written_back,
+                            SYNC_FILE_RANGE_WRITE)
+                self._written_back = size
+        except OSError:  # advice only: the final flush still writes everything
+            pass
+
+    def _close_reader(self):
+        reader, self._reader = self._reader, None
+        if reader is not None:
+            os.close(reader)
 
     def __enter__(self):
         return self
@@ -148,6 +201,7 @@ class AtomicFile:
 
     def commit(self):
         """Flush (if durable) and rename the finished temporary file onto the target."""
+        self._close_reader()
         try:
             if self.durable:
                 fd = os.open(self.tmp, os.O_RDONLY)
@@ -168,6 +222,7 @@ class AtomicFile:
         If the folder no longer lets us (its permissions changed mid-run),
         the file stays and a later run removes it (:func:`remove_stale_parts`).
         """
+        self._close_reader()
         try:
             self.tmp.unlink(missing_ok=True)
         except OSError:

@@ -43,6 +43,9 @@ FREQUENCY_CONVENTION = ("I + iQ: anti-Stokes sideband (light above the drive) at
                         "frequency of numpy.fft / scipy.signal.welch; if records: local "
                         "oscillator below the drive puts it above the intermediate frequency")
 DEFLATE_LEVEL = 1  # zlib level of the samples: fastest; higher levels gain < 1 % (docs/records.md)
+# Bytes of samples after which the disk is asked to start writing them (not to wait):
+# the final flush of a long record then has only the last part left to write.
+WRITE_BACK_BYTES = 32 << 20
 COMPRESSIONS = ("none", "deflate")  # of the samples; docs/records.md weighs size against speed
 _TRUTH_ARRAYS = ("occupation", "effective_frequency_hz", "effective_linewidth_hz",
                  "coupling_rate_hz", "zero_point_amplitude_m")
@@ -90,7 +93,7 @@ class RecordFileWriter:
                 chunks=(rows,) + shape[1:],
                 **(dict(compression="gzip", compression_opts=DEFLATE_LEVEL, shuffle=True)
                    if self.deflate else {}))
-            self.rows, self.partial = rows, {}
+            self.rows, self.partial, self.unflushed = rows, {}, 0
             self.truth = self.file.create_group("truth")
             if plan.watched.size:
                 self.mech = self.truth.create_dataset(
@@ -178,6 +181,10 @@ class RecordFileWriter:
     def _put(self, k, data):
         offset = (k * self.rows,) + (0,) * (self.samples.ndim - 1)
         self.samples.id.write_direct_chunk(offset, data)
+        self.unflushed += memoryview(data).nbytes
+        if self.unflushed >= WRITE_BACK_BYTES:
+            self.output.start_write_back()
+            self.unflushed = 0
 
     def finish(self, clipped):
         """Write the attributes, close, and rename into place; return the Record."""

@@ -426,12 +426,13 @@ def generate(plan, sink, *, chunk, progress=None, workers=1):
 
     workers = int(workers)
     y_block = np.empty((min(chunk, kernels.BLOCK_SAMPLES), p)) if direct else None
-    with pipeline.executor(workers) as pool:
+    with pipeline.executor(workers) as pool, pipeline.writer(workers) as write:
         normals = kernels.NormalBlocks(
             plan.seed, kernels.SAMPLE_STREAM, step.width, kernels.BLOCK_SAMPLES,
             executor=pool if workers > 1 else None, total=n_total,
             ahead=2 * workers + 2)  # enough to keep every thread drawing, memory bounded
-        stage = pipeline.OrderedStage(pool, finish, deliver, depth=2 * workers)
+        stage = pipeline.OrderedStage(pool, finish, deliver, depth=2 * workers,
+                                      writer=write if workers > 1 else None)
         try:
             for first in range(0, n_total, chunk):
                 count = min(chunk, n_total - first)
@@ -441,7 +442,9 @@ def generate(plan, sink, *, chunk, progress=None, workers=1):
                 n_clip = 0
                 for pos, xi in normals.pieces(first, count):
                     end = pos + len(xi)
-                    if direct:
+                    if direct and step.digitised is not None:  # in the recursion's loop
+                        n_clip += step.digitised(xi, digitiser, out[pos:end])
+                    elif direct:
                         y = y_block[:len(xi)]
                         step(xi, y, mech[pos:end])
                         n_clip += digitiser.into(y, out[pos:end])

@@ -1,10 +1,11 @@
 """numba kernels: the sample-by-sample recursions of the exact discrete model.
 
 Each kernel is a short loop over samples that writes into arrays the caller
-has allocated. The random normals are drawn outside, in blocks, with numpy's
-Generator (faster than numba's own generator and reproducible by block), and
-passed in; there is no parallel loop, so the result never depends on
-threading. Only :mod:`simulator.records.generate` calls these; it checks shapes and
+has allocated. The random normals are drawn outside, in blocks, each by its
+own numpy Generator (reproducible by block; :func:`simulator.records.pipeline.draw_block`),
+and passed in; there is no parallel loop, so the result never depends on
+threading. Two-channel modal recursions run in :mod:`simulator.records.fused`,
+the same bits faster. Only :mod:`simulator.records.generate` calls these; it checks shapes and
 dtypes first. :func:`stepper` binds a record plan's matrices to the kernel of
 its form (full state, innovations, or innovations in modal coordinates)
 and states, as a :class:`Recursion`, exactly which matrices that kernel runs.
@@ -18,10 +19,12 @@ import dataclasses
 import numba
 import numpy as np
 
+from simulator.records import fused
 from simulator.records.pipeline import NormalBlocks, draw_block  # noqa: F401 (the streams)
 
 BLOCK_SAMPLES = 1 << 16  # samples per block of random normals, each block seeded alone
 START_STREAM, SAMPLE_STREAM = 0, 1  # spawn keys: the stationary start, the samples
+NO_OUTPUTS = np.empty((0, 2))  # the float outputs of a kernel that digitises them itself
 
 
 @numba.njit(cache=True, nogil=True)
@@ -323,11 +326,16 @@ class Stepper:
         The matrices the kernel runs, for checks (:meth:`Recursion.autocovariance`).
     start : ndarray
         z_0 in the coordinates of ``recursion`` (a copy; the carried state moves on).
+    digitised : callable or None
+        ``digitised(normals, digitiser, counts)`` advances like a call but
+        digitises the outputs in the same loop (:class:`Digitiser`; returns the
+        clipped samples), when the kernel can (:mod:`simulator.records.fused`).
     """
 
-    def __init__(self, width, recursion, step, start):
+    def __init__(self, width, recursion, step, start, digitised=None):
         self.width, self.recursion, self._step = width, recursion, step
         self.start = np.array(start, dtype=float)
+        self.digitised = digitised
 
     def __call__(self, normals, out, watched_out):
         """Advance over ``len(normals)`` samples, writing outputs (and watched states)."""
@@ -375,9 +383,21 @@ def stepper(plan, *, modal=True):
         modal.eigenvalues.real, modal.eigenvalues.imag, modal.output.real,
         modal.output.imag, modal.drive.real, modal.drive.imag)]
     m_re, m_im = np.ascontiguousarray(m.real), np.ascontiguousarray(m.imag)
+    digitised = None
+    if sigma_factor.shape[0] == 2 and len(m_re) <= fused.PAIR_MODES_MOST:
+        no_counts = np.empty((0, 2), dtype=np.int16)
 
-    def step(xi, y, mech):
-        modal_innovations_step(*parts, sigma_factor, m_re, m_im, xi, y)
+        def step(xi, y, mech):
+            fused.modal_pair_step(*parts, sigma_factor, m_re, m_im, xi, y, 1.0, 0.0, 0.0,
+                                  no_counts)
+
+        def digitised(xi, digitiser, counts):
+            return int(fused.modal_pair_step(
+                *parts, sigma_factor, m_re, m_im, xi, NO_OUTPUTS, digitiser.scale,
+                float(digitiser.low), float(digitiser.high), counts))
+    else:
+        def step(xi, y, mech):
+            modal_innovations_step(*parts, sigma_factor, m_re, m_im, xi, y)
 
     lam_re, lam_im, out_re, out_im, drive_re, drive_im = parts
     to_real = np.vstack([modal.to_modal.real, modal.to_modal.imag])
@@ -388,7 +408,7 @@ def stepper(plan, *, modal=True):
         drive=np.vstack([drive_re, drive_im]), output=np.hstack([out_re, -out_im]),
         feedthrough=sigma_factor,
         start_covariance=to_real @ inn.predictor_covariance @ to_real.T), step,
-        np.concatenate([m_re, m_im]))
+        np.concatenate([m_re, m_im]), digitised)
 
 
 def _stationary_start(seed, covariance):

@@ -24,13 +24,15 @@ Prints, measured side by side in one run:
    default is shorter so the benchmark finishes in minutes. Memory must not
    depend on the length, which the printout of two lengths shows.
 5. A streamed record on every core. Side by side: the single-core bound
-   (the sample stream's normals drawn block after block on one thread), the
-   recursion alone (normals drawn beforehand), and whole records streamed to
-   HDF5 with 1 worker thread and with one per core, raw and deflated; and
-   each stage's core time per sample (drawing, recursion, digitiser, raw
-   chunk) with the ceiling their sum sets on every core. Target:
-   the raw stream on all cores reaches 0.8 × (cores × single-core bound), or
-   the recursion's own rate where that is lower.
+   (the sample stream's normals drawn block after block on one thread, as
+   records draw them, and with numpy's own loop), the recursion alone and
+   the record's sequential loop (recursion and digitiser; normals drawn
+   beforehand), and whole records streamed to HDF5 with 1 worker thread and
+   with one per core, raw and deflated; each stage's core time per sample
+   (drawing, sequential loop, file write) with the ceilings they set; the
+   load average before and after. Target: the raw stream on all cores
+   reaches 0.8 × (cores × single-core bound), or the sequential loop's own
+   rate where that is lower.
 6. Compression of the counts: size against write speed for HDF5's built-in
    filters through h5py (none, shuffle, gzip levels, lzf), the registered
    filters of hdf5plugin when it is importable, and this package's own
@@ -125,6 +127,23 @@ def innovations_against_normals(n):
     print(f"   fraction of raw numpy:    {n * width / (n * width / t_raw) / t_both:8.2f}   "
           "(target >= 0.5)")
     print(f"   fraction of block draws:  {t_draw / t_both:8.2f}")
+    same_normals_as_numpy(4 * 10**6)
+
+
+def same_normals_as_numpy(per_seed, seeds=(0, 29, 2**63 - 1)):
+    """Records' blocks of normals (numba) against numpy's Generator, bit for bit."""
+    from simulator.records.fused import fill_normals
+    from simulator.records.pipeline import block_generator
+
+    differ, ours = 0, np.empty((BLOCK_SAMPLES, 2))
+    for seed in seeds:
+        for k in range(-(-per_seed // (2 * BLOCK_SAMPLES))):
+            fill_normals(block_generator(seed, SAMPLE_STREAM, k), ours)
+            theirs = block_generator(seed, SAMPLE_STREAM, k).standard_normal((BLOCK_SAMPLES, 2))
+            differ += int(np.count_nonzero(ours.view(np.int64) != theirs.view(np.int64)))
+    total = len(seeds) * -(-per_seed // (2 * BLOCK_SAMPLES)) * 2 * BLOCK_SAMPLES
+    print(f"   numba's normals against numpy's Generator: {total:.3g} draws, {len(seeds)} seeds, "
+          f"{differ} differ")
 
 
 def modal_against_dense(n):
@@ -264,28 +283,37 @@ def streamed_memory(lengths):
             path.unlink()
 
 
-def every_core(n):
+def every_core(n, repeats):
+    import os
     import warnings
 
     from simulator.records import kernels
-    from simulator.records.pipeline import available_cores
+    from simulator.records.pipeline import available_cores, block_generator
     from simulator.workflows.record import simulate_record
 
     cores = available_cores()
     plan = plan_record(scenario(n / 2e6), form="innovations")
     step = stepper(plan)
+    width, blocks = step.width, -(-n // BLOCK_SAMPLES)
+    print(f"5. streamed iq record of {n:.3g} samples on {cores} core(s), M samples/s "
+          f"(load average before: {os.getloadavg()[0]:.2f})")
+    t_numpy = best_of(lambda: [block_generator(plan.seed, SAMPLE_STREAM, k).standard_normal(
+        (BLOCK_SAMPLES, width)) for k in range(blocks)], repeats=2)
     t_draw = best_of(lambda: [None for _ in kernels.NormalBlocks(
-        plan.seed, SAMPLE_STREAM, step.width, BLOCK_SAMPLES).pieces(0, n)], repeats=2)
-    normals = kernels.NormalBlocks(plan.seed, SAMPLE_STREAM, step.width, BLOCK_SAMPLES).take(
+        plan.seed, SAMPLE_STREAM, width, BLOCK_SAMPLES).pieces(0, n)], repeats=2)
+    normals = kernels.NormalBlocks(plan.seed, SAMPLE_STREAM, width, BLOCK_SAMPLES).take(
         0, min(n, 1 << 22))
     y, mech = np.empty((len(normals), 2)), np.empty((len(normals), 0))
     t_rec = best_of(lambda: step(normals, y, mech)) * n / len(normals)
-    bound, rec = n / t_draw, n / t_rec
-    target = min(0.8 * cores * bound, rec)
-    print(f"5. streamed iq record of {n:.3g} samples on {cores} core(s), M samples/s")
-    print(f"   single-core normal bound:  {bound / 1e6:8.2f}   recursion alone: {rec / 1e6:8.2f}"
-          f"   target: {target / 1e6:.2f} (0.8 x cores x bound, capped by the recursion)")
-    stage_ceiling(plan, y, t_draw / n, t_rec / n, cores)
+    t_seq = sequential_loop(plan, step, normals) * n / len(normals)
+    bound, numpy_bound, rec, seq = n / t_draw, n / t_numpy, n / t_rec, n / t_seq
+    target = min(0.8 * cores * bound, seq)
+    print(f"   single-core normal bound:  {bound / 1e6:8.2f} (numba's ziggurat, as records draw"
+          f" them; numpy's own loop: {numpy_bound / 1e6:.2f})")
+    print(f"   recursion alone: {rec / 1e6:8.2f}   the record's sequential loop (recursion and "
+          f"digitiser): {seq / 1e6:8.2f}")
+    print(f"   target: {target / 1e6:.2f} (0.8 x cores x bound, capped by the sequential loop)")
+    stage_ceiling(plan, y, t_draw / n, t_seq / n, cores)
     with tempfile.TemporaryDirectory() as tmp, warnings.catch_warnings():
         warnings.simplefilter("ignore")
         path = Path(tmp) / "r.h5"
@@ -295,38 +323,71 @@ def every_core(n):
             for workers in sorted({1, cores}):
                 rates[compression, workers] = n / best_of(lambda c=compression, w=workers: (
                     simulate_record(scenario(n / 2e6), out=path, seed=1, overwrite=True,
-                                    workers=w, compression=c)), repeats=2)
+                                    workers=w, compression=c)), repeats=repeats)
                 rate = rates[compression, workers]
                 print(f"   {compression:8s} {workers} thread(s): {rate / 1e6:8.2f}"
                       f"   / target {rate / target:5.2f}"
                       f"   / (cores x bound) {rate / (cores * bound):5.2f}"
+                      f"   / (cores x numpy's bound) {rate / (cores * numpy_bound):5.2f}"
                       f"   speed-up {rate / rates[compression, 1]:4.2f}")
+    print(f"   (load average after: {os.getloadavg()[0]:.2f})")
     return rates["none", cores]
 
 
-def stage_ceiling(plan, y, draw_ns, recursion_ns, cores):
-    """Core time of each stage per sample, and the ceiling it sets on ``cores`` cores.
-
-    Every stage but the drawing costs core time the drawing cannot use: with
-    all cores busy, the streamed rate is at most cores / (sum of the stages'
-    core times per sample), i.e. a fraction draw / sum of cores × bound.
-    """
-    from simulator.io.recordfile import HDF5_CHUNK_ROWS, encode_chunk
+def sequential_loop(plan, step, normals):
+    """Time of the record's sequential loop over ``normals``: recursion and digitiser, block
+    by block (in one kernel where :attr:`Stepper.digitised` exists)."""
     from simulator.records import kernels
 
     digitiser = kernels.Digitiser(plan)
+    counts = np.empty(normals.shape, dtype=digitiser.dtype)
+    scratch, mech = np.empty((BLOCK_SAMPLES, 2)), np.empty((BLOCK_SAMPLES, 0))
+
+    def loop():
+        for lo in range(0, len(normals), BLOCK_SAMPLES):
+            xi, out = normals[lo:lo + BLOCK_SAMPLES], counts[lo:lo + BLOCK_SAMPLES]
+            if step.digitised is not None:
+                step.digitised(xi, digitiser, out)
+            else:
+                step(xi, scratch[:len(xi)], mech[:len(xi)])
+                digitiser.into(scratch[:len(xi)], out)
+
+    return best_of(loop)
+
+
+def stage_ceiling(plan, y, draw_ns, sequential_ns, cores):
+    """Core time of each stage per sample, and the ceilings they set on ``cores`` cores.
+
+    Every stage costs core time: with all cores busy the streamed rate is at
+    most cores / (sum of the stages' core times per sample). The sequential
+    loop (recursion and digitiser) runs on the calling thread, the file
+    write on the writer thread: the rate is also at most 1 / (the loop's
+    time). The flush to the disk is the operating system's wait, started
+    early (``AtomicFile.start_write_back``).
+    """
+    import h5py
+
+    from simulator.io.recordfile import HDF5_CHUNK_ROWS
+    from simulator.records import kernels
+
+    counts, _ = kernels.Digitiser(plan)(y)
     rows = min(len(y), HDF5_CHUNK_ROWS)
-    counts, _ = digitiser(y[:rows])
-    hot, out = y[:BLOCK_SAMPLES], np.empty((BLOCK_SAMPLES, y.shape[1]), dtype=counts.dtype)
-    t_dig = best_of(lambda: [digitiser.into(hot, out) for _ in range(0, len(y), len(hot))])
-    t_dig /= len(y)  # block by block, on outputs the recursion has just left in the cache
-    t_raw = best_of(lambda: encode_chunk(counts, rows, deflate=False)) / rows
-    stages = {"draw": draw_ns, "recursion": recursion_ns, "digitise": t_dig, "raw chunk": t_raw}
+    with tempfile.TemporaryDirectory() as tmp:
+        def write():
+            with h5py.File(Path(tmp) / "w.h5", "w", rdcc_nbytes=0) as f:
+                d = f.create_dataset("s", shape=counts.shape, dtype=counts.dtype,
+                                     chunks=(rows, 2))
+                for lo in range(0, len(counts) - rows + 1, rows):
+                    d.id.write_direct_chunk((lo, 0), counts[lo:lo + rows])
+        t_write = best_of(write) / len(counts)
+    stages = {"draw": draw_ns, "recursion + digitiser": sequential_ns, "file write": t_write}
     total = sum(stages.values())
     print("   core time per sample, ns:  " + "   ".join(
         f"{name} {1e9 * t:.1f}" for name, t in stages.items()))
-    print(f"   ceiling with every core busy: {cores / total / 1e6:8.2f} M samples/s"
-          f" = {stages['draw'] / total:4.2f} of (cores x bound)")
+    print(f"   ceiling with every core busy: {cores / total / 1e6:8.2f}   "
+          f"ceiling of the calling thread: {1 / sequential_ns / 1e6:8.2f}   "
+          f"= {min(cores / total, 1 / sequential_ns) * sequential_ns:4.2f} of the sequential "
+          "loop")
 
 
 COMPRESSION_CHUNK = 1 << 18
@@ -464,6 +525,8 @@ def main():
                         help="length of the streamed record (target: 1e9)")
     parser.add_argument("--kernel-samples", type=float, default=2e6)
     parser.add_argument("--skip-qutip", action="store_true")
+    parser.add_argument("--repeats", type=int, default=2,
+                        help="streamed records of section 5 per setting (the best counts)")
     parser.add_argument("--only", default="1,2,3,4,5,6,7,8", help="sections to run, e.g. 5,6")
     args = parser.parse_args()
     only = {int(x) for x in args.only.split(",")}
@@ -472,7 +535,7 @@ def main():
                 2: lambda: full_state_against_baselines(kernel // 4, args.skip_qutip),
                 3: lambda: modal_against_dense(kernel),
                 4: lambda: streamed_memory([int(args.samples) // 10, int(args.samples)]),
-                5: lambda: every_core(int(args.samples)),
+                5: lambda: every_core(int(args.samples), args.repeats),
                 6: lambda: compression_options(kernel)}
     rate = None
     for number, run in sections.items():
