@@ -47,3 +47,32 @@ def test_setting_one_detected_tone_by_path_clears_the_list():
     assert (one.detection.tone, one.detection.tones) == ("red_probe", None)
     back = one.replace("detection.tones", ["red_probe", "blue_probe"])
     assert (back.detection.tone, back.detection.tones) == ("drive", ("red_probe", "blue_probe"))
+
+
+def test_operating_point_power_is_that_of_the_detected_tone():
+    # drum_two_probes.toml shows the blue probe's photons (about 2,000); the
+    # power beside them must be the blue probe's 13.7 pW, not the cooling tone's 120 pW.
+    report = inspect_scenario(load_scenario(PROBES))
+    d = report.to_dict()
+    blue = next(t for t in report.scenario.tones if t.name == "blue_probe")
+    assert d["drive_power_w"] == pytest.approx(blue.power_w, rel=1e-12)
+    assert "drive power            1.37e-11 W" in report.to_text()
+    # the photons and the power belong together: n = κex Φ/(κ²/4 + Δ²)
+    p = report.point
+    flux = d["drive_power_w"] / photon_energy_j(p.drive_frequency_hz)
+    lorentz = (p.cavity_linewidth_hz**2 / 4 + p.detuning_effective_hz**2)
+    assert d["photon_number"] == pytest.approx(
+        p.external_linewidth_hz * flux / (2 * 3.141592653589793) / lorentz, rel=1e-9)
+
+
+def test_pair_power_is_both_tones_and_an_unstable_pair_is_named_as_the_pair():
+    scenario = load_scenario(PAIR)
+    d = inspect_scenario(scenario).to_dict()
+    both = scenario.drive.power_w + scenario.tones[0].power_w
+    assert d["drive_power_w"] == pytest.approx(both, rel=1e-6)  # Ωm/ω̄ ~ 1e-3, balanced
+    # an upper tone stronger than the lower anti-damps the drum: still the pair's point
+    unstable = inspect_scenario(scenario.replace("tones[0].power_w", 1.8e-10))
+    assert not unstable.stability.stable
+    header = unstable.to_text().splitlines()[2]
+    assert header.startswith("operating point (the pair at its mean frequency")
+    assert "None" not in header

@@ -15,6 +15,7 @@ from simulator.linear.tone_rates import tone_rows, tone_text
 from simulator.model import laser_noise
 from simulator.model.detected_tone import detected_tone_names
 from simulator.model.system import as_system
+from simulator.model.units import photon_energy_j
 from simulator.scenario.plausibility import plausibility_warnings
 from simulator.scenario.units import dbm_from_watts, power_text
 
@@ -54,6 +55,11 @@ class Inspection:
         # a back-action-evading pair is demodulated at its mean frequency, no tone's
         detected = None if self.scenario.detection.backaction_evading else \
             detected_tone_names(self.scenario)[0]
+        # the power of the tone (or pair) whose photons the point shows: Φ·hf of the
+        # detected tone; for a pair (Φ− + Φ+)·hf̄, the sum of both powers up to a
+        # fraction (Φ− − Φ+)/(Φ− + Φ+)·Ωm/ω̄; the drive's as given with one tone
+        power = (p.input_photon_flux * photon_energy_j(p.drive_frequency_hz)
+                 if p.several_tones else self.scenario.drive.power_w)
         modes = []
         for j, mp in enumerate(p.modes):
             entry = {
@@ -91,8 +97,8 @@ class Inspection:
             "scenario": self.scenario.scenario.name,
             "source": self.scenario.source,
             "drive_frequency_hz": p.drive_frequency_hz,
-            "drive_power_w": self.scenario.drive.power_w,
-            "drive_power_dbm": _finite(dbm_from_watts(self.scenario.drive.power_w)),
+            "drive_power_w": power,
+            "drive_power_dbm": _finite(dbm_from_watts(power)),
             "input_photon_flux_per_s": p.input_photon_flux,
             "photon_number": p.photon_number,
             "photon_number_branches": list(p.branches),
@@ -123,7 +129,8 @@ class Inspection:
         d = self.to_dict()
         lines = [f"scenario {d['scenario']}  ({d['source']})", "",
                  "operating point" + (" (the pair at its mean frequency; occupations "
-                                      "from both tones)" if "backaction_evasion" in d else
+                                      "from both tones)" if self.scenario.detection
+                                      .backaction_evading else
                                       f" (the detected tone, {d['detected_tone']}; "
                                       "occupations from every tone)" if "tones" in d else "")]
         lines.append(f"  drive power            {power_text(d['drive_power_w'])}")
