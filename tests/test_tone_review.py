@@ -76,3 +76,19 @@ def test_pair_power_is_both_tones_and_an_unstable_pair_is_named_as_the_pair():
     header = unstable.to_text().splitlines()[2]
     assert header.startswith("operating point (the pair at its mean frequency")
     assert "None" not in header
+
+
+def test_spectrum_axes_name_the_tone_the_receiver_sits_at():
+    from simulator.linear.record_budget import digitiser_spectrum
+    from simulator.linear.spectra import heterodyne_spectrum
+
+    # one tone: the words are unchanged
+    one = load_scenario(SCENARIOS / "membrane_4k.toml")
+    assert "offset from the drive" in digitiser_spectrum(one).axis
+    # drum_two_probes records the blue probe: its lines are about that tone
+    probes = load_scenario(PROBES)
+    for spectrum in (digitiser_spectrum(probes), heterodyne_spectrum(probes)):
+        assert "offset from tone blue_probe" in spectrum.axis
+        assert "the drive" not in spectrum.axis
+    assert "offset from the pair's mean frequency" in digitiser_spectrum(
+        load_scenario(PAIR)).axis

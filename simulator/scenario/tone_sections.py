@@ -235,6 +235,16 @@ def detected_tone_names(scenario):
     return det.tones if det.tones is not None else (det.tone,)
 
 
+def reference_words(scenario):
+    """What the receiver's reference sits at, in words for axis labels: "the drive",
+    "tone <name>" (the detected tone, the first listed one with ``detection.tones``) or
+    "the pair's mean frequency" (a back-action-evading pair)."""
+    if scenario.detection.backaction_evading:
+        return "the pair's mean frequency"
+    name = detected_tone_names(scenario)[0]
+    return "the drive" if name == PRIMARY_TONE else f"tone {name}"
+
+
 def detected_tones_problems(scenario, tones):
     """Checks of ``detection.tones`` against the tones and the receiver: ``(key, message)``.
 
