@@ -92,3 +92,30 @@ def test_spectrum_axes_name_the_tone_the_receiver_sits_at():
         assert "the drive" not in spectrum.axis
     assert "offset from the pair's mean frequency" in digitiser_spectrum(
         load_scenario(PAIR)).axis
+
+
+def _probes_sharing_a_noisy_laser():
+    """drum_two_probes.toml with both probes made by the drive's laser, whose broad
+    phase-noise floor reaches the other tones' sidebands (an invented laser)."""
+    text = PROBES.read_text().replace(
+        'detuning_reference = "effective"\n',
+        'detuning_reference = "effective"\n\n[drive.phase_noise]\nfloor_rad2_per_hz = 1e-14\n'
+        'floor_low_hz = 1e5\nfloor_high_hz = 2e7\n', 1)
+    for detuning in ("detuning_hz = -6.4e6", "detuning_hz = 6.4e6 "):
+        assert detuning in text
+        text = text.replace(detuning, f'noise_source = "drive"\n{detuning}', 1)
+    return parse_scenario(text, source=str(PROBES))
+
+
+def test_tone_validity_warnings_are_in_the_report_once(recwarn):
+    from simulator.model.tone_validity import ToneNoiseWarning
+
+    scenario = _probes_sharing_a_noisy_laser()
+    assert [t.noise_source for t in scenario.tones] == ["drive", "drive"]
+    d = inspect_scenario(scenario).to_dict()
+    crossed = [w for w in d["warnings"] if "phase noise of tones on one cavity mode" in w]
+    assert len(crossed) == 1  # in the JSON a script reads, once
+    assert not [w for w in recwarn if issubclass(w.category, ToneNoiseWarning)]
+    # the shared laser heats the drum above the quiet file's occupation
+    quiet = inspect_scenario(load_scenario(PROBES)).to_dict()
+    assert d["modes"][0]["occupation"] > quiet["modes"][0]["occupation"] + 0.05

@@ -8,6 +8,7 @@ The report converts to plain data (``to_dict``) for ``noisechain inspect
 
 import dataclasses
 import math
+import warnings as python_warnings
 
 from simulator.linear.laser_effects import occupation_report
 from simulator.linear.steady_state import STRONG_COUPLING_TOLERANCE, steady_state
@@ -15,6 +16,7 @@ from simulator.linear.tone_rates import tone_rows, tone_text
 from simulator.model import laser_noise
 from simulator.model.detected_tone import detected_tone_names
 from simulator.model.system import as_system
+from simulator.model.tone_validity import ToneNoiseWarning, ToneSpacingWarning
 from simulator.model.units import photon_energy_j
 from simulator.scenario.plausibility import plausibility_warnings
 from simulator.scenario.units import dbm_from_watts, power_text
@@ -266,6 +268,18 @@ def master_equation_advice(point, occupations):
             "classically, or lower the occupation)")
 
 
+def _tone_warnings(caught):
+    """The several-tone validity warnings caught while the model was built, as report
+    lines (so `inspect --json` carries them); any other warning is passed on."""
+    lines = []
+    for w in caught:
+        if issubclass(w.category, (ToneSpacingWarning, ToneNoiseWarning)):
+            lines.append(str(w.message))
+        else:
+            python_warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    return list(dict.fromkeys(lines))
+
+
 def inspect_scenario(system, *, feasibility=True):
     """Operating point, stability, steady state and warnings of ``scenario``.
 
@@ -276,9 +290,20 @@ def inspect_scenario(system, *, feasibility=True):
     Unlike :func:`simulator.linear.steady_state.steady_state`, an unstable operating
     point does not raise: the report says so and carries no steady state.
     """
-    system = as_system(system, several_tones="detected")
+    with python_warnings.catch_warnings(record=True) as caught:
+        python_warnings.simplefilter("always", ToneSpacingWarning)
+        python_warnings.simplefilter("always", ToneNoiseWarning)
+        system = as_system(system, several_tones="detected")
+        system.model  # noqa: B018  (built here: the tone checks warn when it is)
+    with python_warnings.catch_warnings():  # said once, in the report, not per bound step
+        python_warnings.simplefilter("ignore", ToneSpacingWarning)
+        python_warnings.simplefilter("ignore", ToneNoiseWarning)
+        return _inspect(system, _tone_warnings(caught), feasibility)
+
+
+def _inspect(system, warnings, feasibility):
+    """:func:`inspect_scenario` of a built ``system``, its tone warnings ``warnings``."""
     scenario, point, verdict = system.scenario, system.point, system.stability
-    warnings = []
     if point.bistable:
         warnings.append(
             "the intracavity photon number is bistable (branches "
