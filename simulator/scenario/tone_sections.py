@@ -245,6 +245,17 @@ def reference_words(scenario):
     return "the drive" if name == PRIMARY_TONE else f"tone {name}"
 
 
+def offset_words(scenario, *, above=False):
+    """The heterodyne record's frequency axis in words: the offset from the receiver's
+    reference (:func:`reference_words`) and where the lines are; ``above`` adds that
+    positive offsets lie above the reference."""
+    reference = reference_words(scenario)
+    if scenario.detection.backaction_evading:
+        return f"offset from {reference} (X1's line at 0)"
+    return (f"offset from {reference} (> 0: anti-Stokes"
+            + (f", above {reference})" if above else ")"))
+
+
 def detected_tones_problems(scenario, tones):
     """Checks of ``detection.tones`` against the tones and the receiver: ``(key, message)``.
 
