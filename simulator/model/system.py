@@ -128,8 +128,11 @@ class System:
                 f"{names}){why}; supported so far: the operating point, the linear model, its "
                 "stability, the steady state (every tone included), and for the tone named "
                 "by detection.tone the spectra, sideband summary, noise budget, records, "
-                "feasibility, inspect, plan and sweep, and the joint bound of several "
-                "recorded tones (simulator.analysis.joint_feasibility); remove the [[tones]] "
+                "feasibility, inspect, plan and sweep, every tone of detection.tones in one "
+                "stationary record with their joint bound (simulator.analysis."
+                "joint_feasibility), classical noise on every tone, a back-action-evading "
+                "pair (detection.backaction_evading), and the linearised master equation "
+                "(simulator.master.tone_fields); remove the [[tones]] "
                 "tables for everything else")
         return self
 
@@ -189,7 +192,8 @@ _WHY_ONE_TONE = (
      "and the full model of several tones beats at their spacing (no stationary state in "
      "one frame); for the steady state with every tone use the linearised master equation "
      "with one Hilbert factor per tone field, "
-     "simulator.master.tone_fields.tone_fields_steady_state, or the linear steady state "
+     "simulator.master.tone_fields.tone_fields_steady_state (`noisechain inspect --master "
+     "--master-model linearised`), or the linear steady state "
      "(simulator.linear.steady_state), which it reproduces"),
 )
 _UNNAMED_STAGE = "this computation"  # for a caller that does not name its stage
