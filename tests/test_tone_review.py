@@ -147,3 +147,32 @@ def test_inspect_master_linearised_takes_every_tone_field():
     assert rows["tone pump: field occupation"]["master"] > 10 * rows[
         "tone drive: field occupation"]["master"]
     assert "one factor per tone field" in comparison_text(data)
+
+
+def test_plan_of_the_recorded_tones_time_reports_in_seconds(tmp_path):
+    # `noisechain plan` with objective "recorded_tones_time" stopped with a
+    # KeyError after the search; its result is the joint T of the probes, in s.
+    from simulator.analysis.joint_feasibility import joint_bound
+    from simulator.report.plan_plots import plot_plan
+    from simulator.workflows.plan import plan_scenario
+
+    planned = parse_scenario(PROBES.read_text() + """
+[plan]
+objective = "recorded_tones_time"
+max_power_w = 2e-10
+[plan.parameters]
+"tones.red_probe.power_w" = { start = 1e-11, stop = 3e-11, num = 2 }
+""", source=str(PROBES))
+    result = plan_scenario(planned, refine=False)
+    data = result.to_dict()
+    assert data["units"] == "s"
+    assert "recorded together" in data["objective_description"]
+    text = result.to_text()
+    assert "red_probe and blue_probe" in text
+    # the optimum is the joint bound's T at the power found (more red-probe power: shorter)
+    best = result.found.best[0]
+    assert best == pytest.approx(3e-11)
+    moved = planned.replace("tones.red_probe.power_w", best)
+    expected = joint_bound(moved, ("red_probe", "blue_probe")).duration_s
+    assert result.found.best_outcome.objective == pytest.approx(expected, rel=1e-6)
+    plot_plan(data, tmp_path / "plan.png")
