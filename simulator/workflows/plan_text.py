@@ -19,8 +19,8 @@ def describe_objective(plan, mode_name, scenario=None):
 
         sets = detected_tone_sets(scenario) if scenario is not None else ()
         tones = " and ".join(sets[-1]) if sets else "the tones"
-        return (f"time T after which the sideband ratio of mode {mode_name}, from {tones} "
-                f"recorded together, lies {plan.significance:g} standard deviations from 1")
+        return (f"joint time T of {tones} recorded together (mode {mode_name}: "
+                f"n/(n+1) told from 1 at {plan.significance:g}σ)")
     if plan.objective == "occupation_error":
         return (f"Cramér–Rao error of the occupation of mode {mode_name} after "
                 f"{plan.duration_s:g} s")
