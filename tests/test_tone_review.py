@@ -176,3 +176,16 @@ max_power_w = 2e-10
     expected = joint_bound(moved, ("red_probe", "blue_probe")).duration_s
     assert result.found.best_outcome.objective == pytest.approx(expected, rel=1e-6)
     plot_plan(data, tmp_path / "plan.png")
+
+
+def test_master_equation_refuses_a_pair_with_its_reason():
+    # the pair's model has one cavity field at the mean frequency: the per-tone
+    # master equation would look for a field per tone (a KeyError before)
+    from simulator.errors import InputError
+    from simulator.master.steady import master_steady_state
+    from simulator.master.tone_fields import tone_fields_steady_state
+
+    pair = load_scenario(PAIR)
+    for solve in (tone_fields_steady_state, lambda s: master_steady_state(s, "linearised")):
+        with pytest.raises(InputError, match="back-action-evading pair is a model of its own"):
+            solve(pair)

@@ -123,6 +123,8 @@ class System:
         if self.several_tones:
             names = ", ".join(repr(t.name) for t in self.point.tones)
             why = next((text for stage, text in _WHY_ONE_TONE if what.startswith(stage)), "")
+            if self.scenario.detection.backaction_evading and what.startswith("simulator.master"):
+                why = _WHY_NOT_PAIR  # the per-tone fields do not hold the pair either
             raise InputError(
                 f"{what} does not yet support several drive tones (this scenario has "
                 f"{names}){why}; supported so far: the operating point, the linear model, its "
@@ -196,4 +198,9 @@ _WHY_ONE_TONE = (
      "--master-model linearised`), or the linear steady state "
      "(simulator.linear.steady_state), which it reproduces"),
 )
+_WHY_NOT_PAIR = (
+    ": a back-action-evading pair is a model of its own (one cavity field at the pair's "
+    "mean frequency; docs/physics.md, \"Back-action evasion\"), which neither the full nor "
+    "the linearised master equation (one field per tone) holds yet; its exact steady state "
+    "is the linear one (simulator.linear.steady_state, `noisechain inspect` without --master)")
 _UNNAMED_STAGE = "this computation"  # for a caller that does not name its stage
