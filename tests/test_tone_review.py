@@ -189,3 +189,30 @@ def test_master_equation_refuses_a_pair_with_its_reason():
     for solve in (tone_fields_steady_state, lambda s: master_steady_state(s, "linearised")):
         with pytest.raises(InputError, match="back-action-evading pair is a model of its own"):
             solve(pair)
+
+
+def test_each_tone_shows_its_own_field_occupation():
+    # ring_two_modes.toml: the operating point is the resonant probe's, but the
+    # "cavity occupation" is the cooling tone's field; each tone block now gives
+    # its own. A resonant probe's field holds the photons it scatters off the
+    # motion, in weak coupling with both lines narrow against κ:
+    # ⟨δa†δa⟩ = g² [n + (n + 1)] / (κ²/4 + Ωm²), the two motional sidebands at ±Ωm
+    # seen through one Lorentzian (our derivation from the linearised Langevin
+    # equation a(ω) = i g x(ω)/(κ/2 − i(Δ + ω)); Aspelmeyer, Kippenberg &
+    # Marquardt, Rev. Mod. Phys. 86, 1391 (2014), Sec. VII, for the equation).
+    report = inspect_scenario(load_scenario(SCENARIOS / "ring_two_modes.toml"))
+    d = report.to_dict()
+    rows = {r["name"]: r for r in d["tones"]}
+    probe, drive = rows["probe"], rows["drive"]
+    assert drive["field_occupation"] == pytest.approx(d["cavity_occupation"], rel=1e-12)
+    n = d["modes"][0]["occupation"]
+    g = probe["modes"][0]["g_hz"]
+    kappa = report.point.cavity_linewidth_hz  # the detected tone's (readout) mode
+    omega = d["modes"][0]["frequency_hz"]
+    closed = g**2 * (2 * n + 1) / (kappa**2 / 4 + omega**2)
+    assert probe["field_occupation"] == pytest.approx(closed, rel=0.01)
+    assert probe["field_occupation"] < 0.01 * d["cavity_occupation"]
+    assert "cavity occupation      0.837136 (the drive's field)" in report.to_text()
+    # a pair has one field: no per-tone field occupation
+    pair = inspect_scenario(load_scenario(PAIR)).to_dict()
+    assert all("field_occupation" not in r for r in pair["tones"])

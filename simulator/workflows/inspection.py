@@ -117,7 +117,9 @@ class Inspection:
             "feasibility": [dict(f) for f in self.feasibility],
             **({"tone_sets": [dataclasses.asdict(b) for b in self.tone_sets]}
                if self.tone_sets else {}),
-            **({"detected_tone": detected, "tones": tone_rows(p, detected)}
+            **({"detected_tone": detected,
+                "tones": _with_field_occupations(tone_rows(p, detected),
+                                                 None if detected is None else st)}
                if p.several_tones else {}),
             **({"backaction_evasion": self.quadratures.to_dict() | {
                 "resolution": [r.to_dict() for r in self.resolution]}}
@@ -147,7 +149,8 @@ class Inspection:
         lines.append(f"  stability              {verdict}"
                      f"   (max growth rate {d['growth_rate_hz']:.6g} Hz)")
         if d["cavity_occupation"] is not None:
-            lines.append(f"  cavity occupation      {d['cavity_occupation']:.6g}")
+            whose = " (the drive's field)" if d.get("detected_tone") not in (None, "drive") else ""
+            lines.append(f"  cavity occupation      {d['cavity_occupation']:.6g}{whose}")
         rows = [("g (Hz)", "g_hz"), ("bath occupation", "bath_occupation"),
                 ("cooperativity", "cooperativity"),
                 ("quantum cooperativity", "quantum_cooperativity"),
@@ -196,6 +199,19 @@ class Inspection:
         if d["warnings"]:
             lines += ["", "warnings"] + [f"  - {w}" for w in d["warnings"]]
         return "\n".join(lines)
+
+
+def _with_field_occupations(rows, steady):
+    """Each tone's row with the occupation of its own fluctuation field (its states
+    ``cavity.X/Y`` for the drive, ``<tone>.X/Y`` otherwise); ``steady`` None (unstable,
+    or a back-action-evading pair, whose one field is the pair's) leaves them out."""
+    if steady is None:
+        return rows
+    names, v = list(steady.states), steady.covariance
+    for k, row in enumerate(rows):
+        i = names.index("cavity.X" if k == 0 else f"{row['name']}.X")
+        row["field_occupation"] = float((v[i, i] + v[i + 1, i + 1] - 1) / 2)
+    return rows
 
 
 def _resolution_text(resolution):
