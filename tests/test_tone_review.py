@@ -216,3 +216,17 @@ def test_each_tone_shows_its_own_field_occupation():
     # a pair has one field: no per-tone field occupation
     pair = inspect_scenario(load_scenario(PAIR)).to_dict()
     assert all("field_occupation" not in r for r in pair["tones"])
+
+
+def test_record_summary_names_whose_cavity_occupation_it_prints(tmp_path, capsys):
+    # the record of ring_two_modes.toml is the resonant probe's; the cavity
+    # occupation its summary prints is the cooling tone's field (0.84, the probe's
+    # own field holds about 0.0014)
+    from simulator.cli.parser import main
+
+    ring = SCENARIOS / "ring_two_modes.toml"
+    assert main(["record", str(ring), "--out", str(tmp_path / "r.h5"), "--duration", "2e-6",
+                 "--quiet"]) == 0
+    line = next(x for x in capsys.readouterr().out.splitlines() if "cavity occupation" in x)
+    drive = inspect_scenario(load_scenario(ring), feasibility=False).steady.cavity_occupation
+    assert line.strip() == f"cavity occupation: {drive:.4g} (the drive's field)"
