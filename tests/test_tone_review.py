@@ -230,3 +230,22 @@ def test_record_summary_names_whose_cavity_occupation_it_prints(tmp_path, capsys
     line = next(x for x in capsys.readouterr().out.splitlines() if "cavity occupation" in x)
     drive = inspect_scenario(load_scenario(ring), feasibility=False).steady.cavity_occupation
     assert line.strip() == f"cavity occupation: {drive:.4g} (the drive's field)"
+
+
+def test_asymmetry_time_is_smooth_in_the_probe_detuning():
+    # The blue probe's anti-Stokes line is 2.4e-6 above the floor, its Stokes line
+    # 5000 times stronger: the lineshape's floor was read partly at −Ω − 30γ, on
+    # the Stokes line's tail (about as high as the anti-Stokes peak), so the
+    # area per quantum came from two nearly cancelling differences and the time
+    # jumped by half at δ = 400 kHz against 10 kHz either side. The device
+    # changes by about 1 % there: the bound must too.
+    from simulator.analysis.feasibility import asymmetry_time
+
+    scenario = load_scenario(PROBES)
+    times = [asymmetry_time(scenario.replace("tones.blue_probe.detuning_hz", d)).duration_s
+             for d in (6.39e6, 6.40e6, 6.41e6)]
+    assert times[0] < times[1] < times[2]  # further from resonance: weaker Stokes line
+    assert times[2] / times[0] == pytest.approx(1.0, abs=0.05)
+    # the lineshape's floor is the record's floor under the anti-Stokes line
+    at = asymmetry_time(scenario)
+    assert at.lineshape["floor"] == pytest.approx(1.0, abs=1e-5)
