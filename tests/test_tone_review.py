@@ -169,6 +169,8 @@ max_power_w = 2e-10
     assert "recorded together" in data["objective_description"]
     text = result.to_text()
     assert "red_probe and blue_probe" in text
+    # the best power is the range's top: no constraint binds, but it is no interior optimum
+    assert "interior" not in text and "edge of the searched range" in text
     # the optimum is the joint bound's T at the power found (more red-probe power: shorter)
     best = result.found.best[0]
     assert best == pytest.approx(3e-11)

@@ -129,7 +129,9 @@ def plan_text(d):
         lines.append(f"  there: {q.get('photon_number', math.nan):.4g} intracavity photons, "
                      f"growth rate {q.get('growth_rate_hz', math.nan):.4g} Hz, regime "
                      f"{q.get('regime', '?')}, occupation {q.get('occupation', math.nan):.4g}")
-        active = ", ".join(d["active_constraints"]) or "none (an interior optimum)"
+        active = ", ".join(d["active_constraints"]) or (
+            "none (the optimum is on the edge of the searched range)" if d["at_bounds"]
+            else "none (an interior optimum)")
         lines.append(f"  active constraints: {active}")
         if d["at_bounds"]:
             lines.append(f"  on a bound of {', '.join(d['at_bounds'])}: a wider range may "
