@@ -251,3 +251,18 @@ def test_asymmetry_time_is_smooth_in_the_probe_detuning():
     # the lineshape's floor is the record's floor under the anti-Stokes line
     at = asymmetry_time(scenario)
     assert at.lineshape["floor"] == pytest.approx(1.0, abs=1e-5)
+
+
+def test_report_answer_gives_the_joint_bound_of_the_recorded_tones():
+    # a file recording both probes: the answer's table holds the first tone's record
+    # alone (σ_n 7.8); the pair's joint bound (σ_n 1.07) must be in the answer too
+    from simulator.report.summary import at_a_glance
+
+    report = inspect_scenario(_both_probes_recorded())
+    data = report.to_dict()
+    joint = report.tone_sets[-1]
+    assert joint.tones == ("red_probe", "blue_probe")
+    page = at_a_glance(data)
+    assert f"error on n after 1 s {joint.error_one_second:.4g}" in page
+    assert f"after {joint.duration_s:.4g} s" in page
+    assert joint.error_one_second < data["feasibility"][0]["occupation_error_1s"] / 5
