@@ -421,7 +421,10 @@ def _lineshape_of_record(system, cal, omega, width, steady, sample_rate_hz=None)
     fs = _sample_rate(iq, sample_rate_hz)
     # the record's axis is the optical offset (anti-Stokes at +f); the samples' density:
     # aliased × sinc² (the lines lose sinc²(Ω/fs), the floor gains the aliased noise)
-    away = np.array([omega + 30 * width, -omega - 30 * width])
+    # the floor under the anti-Stokes line: either side of it, 30 widths off (the
+    # Stokes line's tail at −Ω − 30γ can match a weak anti-Stokes peak and skew b)
+    step = min(30 * width, omega / 2)
+    away = np.array([omega - step, omega + step])
     peak = np.array([omega])
     form = iq.chain.channel_form(_finite(fs)).project(np.array([1.0, 1.0j]))
     sampled = form.spectrum(-2 * np.pi * np.concatenate([peak, away]))[0, :, 0, 0].real

@@ -14,6 +14,7 @@ from pathlib import Path
 from simulator.errors import InputError
 from simulator.io import jsontext
 from simulator.io.files import refuse_existing
+from simulator.scenario.tone_sections import detected_tone_names
 
 EXIT_OK, EXIT_FAILED, EXIT_INPUT, EXIT_UNSTABLE = 0, 1, 2, 3
 
@@ -275,7 +276,10 @@ def cmd_record(args):
         print(f"  true occupation of {mode['name']}: {mode['occupation']:.6g} "
               f"(at {mode['effective_frequency_hz']:.9g} Hz, linewidth "
               f"{mode['effective_linewidth_hz']:.4g} Hz)")
-    print(f"  cavity occupation: {truth.cavity_occupation:.4g}")
+    # the steady state's cavity occupation is the [drive]'s field, not the detected tone's
+    whose = (" (the drive's field)" if scenario.tones and not scenario.detection
+             .backaction_evading and detected_tone_names(scenario) != ("drive",) else "")
+    print(f"  cavity occupation: {truth.cavity_occupation:.4g}{whose}")
     return EXIT_OK
 
 

@@ -57,6 +57,7 @@ from simulator.model.poles import channel_form
 from simulator.model.sample_rate import record_sample_rate
 from simulator.model.system import as_system
 from simulator.model.units import angular
+from simulator.scenario.tone_sections import offset_words, reference_words
 
 RECORD_UNITS = "record shot-noise units (vacuum = 1)"
 VOLT_UNITS = "V^2/Hz at the digitiser"
@@ -186,13 +187,14 @@ def _cavity_lines(system):
 
 def record_axis(scenario, chain):
     """The meaning of the record's frequency axis, in words."""
+    reference = reference_words(scenario)
     if chain.receiver == "iq":
-        return "record frequency = offset from the drive (> 0: anti-Stokes)"
+        return f"record frequency = {offset_words(scenario)}"
     if chain.receiver == "if":
         det = scenario.detection
         return (f"record frequency f >= 0 (intermediate frequency "
                 f"{det.intermediate_frequency_hz:.9g} Hz, local oscillator "
-                f"{det.local_oscillator_side} the drive)")
+                f"{det.local_oscillator_side} {reference})")
     return "record frequency f >= 0 (baseband)"
 
 

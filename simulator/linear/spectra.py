@@ -60,6 +60,7 @@ from simulator.model.statespace import StateSpace
 from simulator.model.system import as_system
 from simulator.model.tone import tone_response
 from simulator.model.units import angular, ordinary
+from simulator.scenario.tone_sections import offset_words
 
 HETERODYNE_AXIS = "optical offset from the drive (> 0: anti-Stokes, above the drive)"
 HOMODYNE_AXIS = "baseband frequency f >= 0"
@@ -201,7 +202,8 @@ def heterodyne_spectrum(system, frequency_hz=None, *, efficiency=None):
     f = _grid(frequency_hz, model, one_sided=False)
     u = np.array([1.0, 1.0j]) / np.sqrt(2.0)
     total, parts = detected_budget(model, angular(f), u, 1.0, eta)
-    return Spectrum(frequency_hz=f, axis=HETERODYNE_AXIS, sided="two-sided",
+    axis = f"optical {offset_words(scenario, above=True)}"  # HETERODYNE_AXIS with one tone
+    return Spectrum(frequency_hz=f, axis=axis, sided="two-sided",
                     units=SHOT_NOISE_UNITS, total=total, quantity=f"heterodyne output {AT_CAVITY}",
                     contributions=parts, calibration={"detection_efficiency": eta},
                     lines=tone_lines(model, scenario, u, eta),

@@ -57,6 +57,8 @@ def tone_text(rows):
                   f"  power                  {power_text(row['power_w'])}",
                   f"  intracavity photons    {row['photon_number']:.6g}",
                   f"  detuning effective     {row['detuning_effective_hz']:.6g} Hz"]
+        if "field_occupation" in row:  # the fluctuations of the tone's own field
+            lines.append(f"  field occupation       {row['field_occupation']:.6g}")
         for m in row["modes"]:
             lines.append(f"  mode {m['mode']}: g {m['g_hz']:.4g} Hz, cooperativity "
                          f"{m['cooperativity']:.4g}, damping {m['optical_damping_hz']:.4g} Hz, "

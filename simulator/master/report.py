@@ -27,7 +27,11 @@ def master_comparison(linear_report, kind="full", **options):
         ``rows``: (quantity, linear, master) triples; ``steady``: the master
         steady state as plain data (cutoffs, truncation, solver).
     """
-    steady = master_steady_state(linear_report.system, kind, **options)
+    system = linear_report.system
+    if (kind == "linearised" and system.point.several_tones
+            and not system.scenario.detection.backaction_evading):
+        return _tone_fields_comparison(system, **options)
+    steady = master_steady_state(system, kind, **options)
     linear = linear_report.steady
     rows = [("cavity occupation (fluctuations)", linear.cavity_occupation,
              steady.cavity.occupation)]
@@ -44,23 +48,64 @@ def master_comparison(linear_report, kind="full", **options):
             "steady": steady.to_dict()}
 
 
+def _tone_fields_comparison(system, **options):
+    """:func:`master_comparison` with several tones: the linearised master equation with
+    one factor per tone field (simulator.master.tone_fields), every factor's occupation."""
+    from simulator.master.tone_fields import tone_field_occupations, tone_fields_steady_state
+    from simulator.model.system import as_system
+
+    system = as_system(system, several_tones=True)
+    state = tone_fields_steady_state(system, **options)
+    names, linear = tone_field_occupations(system)
+    modes = {m.name for m in system.point.modes}
+    rows = [(f"{name}: occupation" if name in modes else f"tone {name}: field occupation",
+             lin, state.occupation(name)) for name, lin in zip(names, linear, strict=True)]
+    return {"model": "linearised", "frame": "each tone's own",
+            "rows": [{"quantity": q, "linear": lin, "master": me,
+                      "relative_difference": _relative(lin, me)} for q, lin, me in rows],
+            "steady": {"factors": [{"name": n, "cutoff": c, "tail_population": p}
+                                   for n, c, p in zip(state.names, state.cutoffs,
+                                                      state.tail_populations, strict=True)],
+                       "hilbert_dimension": math.prod(state.cutoffs)}}
+
+
 def comparison_text(data):
     """Terminal text of :func:`master_comparison`'s result."""
     s = data["steady"]
+    if "factors" in s:  # several tones: one factor per tone field and mechanical mode
+        return _factors_text(data)
     dims = " × ".join(f"{m['cutoff']} ({m['name']})" for m in [s["cavity"], *s["modes"]])
     lines = [f"master equation ({data['model']} model, {data['frame']} frame; Fock "
              f"cutoffs {dims} = {s['hilbert_dimension']} states)",
-             f"  {'quantity':<36}{'linear':>14}{'master':>14}{'difference':>12}"]
-    for row in data["rows"]:
-        diff = row["relative_difference"]
-        lines.append(f"  {row['quantity']:<36}{row['linear']:>14.6g}{row['master']:>14.6g}"
-                     + (f"{diff:>12.2e}" if diff is not None else f"{'':>12}"))
+             *_row_lines(data["rows"])]
     tails = ", ".join(f"{m['name']} {m['tail_population']:.1e}"
                       for m in [s["cavity"], *s["modes"]])
     lines.append(f"  truncation: population in the top Fock levels {tails} "
                  f"(tolerance {s['truncation_tolerance']:g}, {s['rounds']} solve(s))")
     lines.append(f"  solver: {s['solver']}, {s['solver_steps']} steps, relative residual "
                  f"{s['solver_residual']:.1e}, {s['solver_seconds']:.3g} s")
+    return "\n".join(lines)
+
+
+def _row_lines(rows):
+    """The table of linear against master numbers, one line per quantity."""
+    lines = [f"  {'quantity':<36}{'linear':>14}{'master':>14}{'difference':>12}"]
+    for row in rows:
+        diff = row["relative_difference"]
+        lines.append(f"  {row['quantity']:<36}{row['linear']:>14.6g}{row['master']:>14.6g}"
+                     + (f"{diff:>12.2e}" if diff is not None else f"{'':>12}"))
+    return lines
+
+
+def _factors_text(data):
+    """:func:`comparison_text` of the several-tone comparison."""
+    s = data["steady"]
+    dims = " × ".join(f"{f['cutoff']} ({f['name']})" for f in s["factors"])
+    lines = [f"master equation (linearised model, one factor per tone field in its own "
+             f"frame; Fock cutoffs {dims} = {s['hilbert_dimension']} states)",
+             *_row_lines(data["rows"])]
+    tails = ", ".join(f"{f['name']} {f['tail_population']:.1e}" for f in s["factors"])
+    lines.append(f"  truncation: population in the top Fock levels {tails}")
     return "\n".join(lines)
 
 

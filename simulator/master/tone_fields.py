@@ -95,8 +95,9 @@ def tone_fields_steady_state(system, *, cutoffs=None, tolerance=DEFAULT_TOLERANC
     Raises
     ------
     InputError
-        Without several tones, above ``max_dimension``, or when a factor's top
-        levels hold more than ``tolerance`` (the cutoff named).
+        Without several tones, for a back-action-evading pair, above
+        ``max_dimension``, or when a factor's top levels hold more than
+        ``tolerance`` (the cutoff named).
     """
     from simulator.master.liouvillian import LindbladSolver, csr
     from simulator.model.system import as_system
@@ -106,6 +107,8 @@ def tone_fields_steady_state(system, *, cutoffs=None, tolerance=DEFAULT_TOLERANC
     if not point.several_tones:
         raise InputError("tone_fields_steady_state needs [[tones]]; for the drive alone use "
                          "simulator.master.steady.master_steady_state")
+    if system.scenario.detection.backaction_evading:  # one field for the pair, not per tone
+        system.require_one_tone("simulator.master.tone_fields.tone_fields_steady_state")
     names, expected = tone_field_occupations(system)
     dims = (tuple(int(c) for c in cutoffs) if cutoffs is not None else
             tuple(displaced_thermal_cutoff(0.0, max(n, 0.0), tolerance / 4) for n in expected))

@@ -123,13 +123,18 @@ class System:
         if self.several_tones:
             names = ", ".join(repr(t.name) for t in self.point.tones)
             why = next((text for stage, text in _WHY_ONE_TONE if what.startswith(stage)), "")
+            if self.scenario.detection.backaction_evading and what.startswith("simulator.master"):
+                why = _WHY_NOT_PAIR  # the per-tone fields do not hold the pair either
             raise InputError(
                 f"{what} does not yet support several drive tones (this scenario has "
                 f"{names}){why}; supported so far: the operating point, the linear model, its "
                 "stability, the steady state (every tone included), and for the tone named "
                 "by detection.tone the spectra, sideband summary, noise budget, records, "
-                "feasibility, inspect, plan and sweep, and the joint bound of several "
-                "recorded tones (simulator.analysis.joint_feasibility); remove the [[tones]] "
+                "feasibility, inspect, plan and sweep, every tone of detection.tones in one "
+                "stationary record with their joint bound (simulator.analysis."
+                "joint_feasibility), classical noise on every tone, a back-action-evading "
+                "pair (detection.backaction_evading), and the linearised master equation "
+                "(simulator.master.tone_fields); remove the [[tones]] "
                 "tables for everything else")
         return self
 
@@ -189,7 +194,13 @@ _WHY_ONE_TONE = (
      "and the full model of several tones beats at their spacing (no stationary state in "
      "one frame); for the steady state with every tone use the linearised master equation "
      "with one Hilbert factor per tone field, "
-     "simulator.master.tone_fields.tone_fields_steady_state, or the linear steady state "
+     "simulator.master.tone_fields.tone_fields_steady_state (`noisechain inspect --master "
+     "--master-model linearised`), or the linear steady state "
      "(simulator.linear.steady_state), which it reproduces"),
 )
+_WHY_NOT_PAIR = (
+    ": a back-action-evading pair is a model of its own (one cavity field at the pair's "
+    "mean frequency; docs/physics.md, \"Back-action evasion\"), which neither the full nor "
+    "the linearised master equation (one field per tone) holds yet; its exact steady state "
+    "is the linear one (simulator.linear.steady_state, `noisechain inspect` without --master)")
 _UNNAMED_STAGE = "this computation"  # for a caller that does not name its stage

@@ -25,7 +25,8 @@ _CONSTRAINT_WORDS = {"max_power_w": "maximum drive power",
 # the objective in a few words, for the colour bar and the vertical axis
 _OBJECTIVE_WORDS = {"asymmetry_time": "time to resolve the asymmetry",
                     "occupation_error": "error of the occupation",
-                    "occupation": "occupation"}
+                    "occupation": "occupation",
+                    "recorded_tones_time": "time T of the tones recorded together"}
 
 
 def _label(axis):

@@ -23,6 +23,7 @@ import numpy as np
 
 from simulator.report.colours import TOTAL_COLOUR
 from simulator.report.plots import ZOOM_LINEWIDTHS, save_figure, subplots, unit_of_span
+from simulator.scenario.tone_sections import offset_words
 
 CONFIDENCE = 0.95  # two-sided band of the periodogram (common practice)
 MIN_ZOOM_BINS = 12  # a zoom shows at least ±12 bins
@@ -142,7 +143,7 @@ def plot_record_sidebands(system, record, path, *, title=None):
     top = fig.add_subplot(axes[0, 0].get_gridspec()[0, :])
     for ax in axes[0]:
         ax.remove()
-    _whole_band(top, psd, model, record)
+    _whole_band(top, psd, model, record, offset_words(system.scenario))
     for ax, line in zip(axes[1:].ravel(), lines, strict=False):
         _sideband(ax, psd, expected, line, sampling, band)
     for ax in axes[1:].ravel()[len(lines):]:
@@ -159,7 +160,7 @@ def plot_record_sidebands(system, record, path, *, title=None):
     return path
 
 
-def _whole_band(ax, psd, model, record):
+def _whole_band(ax, psd, model, record, offset):
     scale, unit = unit_of_span(np.ptp(psd.frequency_hz))
     step = max(1, psd.frequency_hz.size // 1024)  # the model is smooth: 1024 points
     f_model = psd.frequency_hz[::step]
@@ -168,8 +169,7 @@ def _whole_band(ax, psd, model, record):
     ax.plot(f_model / scale, exact, lw=1.5, color=TOTAL_COLOUR)
     if np.nanmax(exact) / np.nanmin(exact) > LINEAR_SPAN:
         ax.set_yscale("log")
-    axis = ("offset from the drive, > 0: anti-Stokes" if record.kind == "iq"
-            else "frequency")
+    axis = offset if record.kind == "iq" else "frequency"
     ax.set_xlabel(f"{axis} ({unit})")
     ax.set_ylabel("noise power density\n(shot-noise units)")
     ax.set_xlim(psd.frequency_hz[0] / scale, psd.frequency_hz[-1] / scale)

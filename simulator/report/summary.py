@@ -41,6 +41,7 @@ def at_a_glance(data, sidebands=(), best=()):
         "mode", "phonon occupation n", "n from the sideband ratio",
         "error on n after 1 s (Cramér–Rao)",
         f"time to resolve the asymmetry at {significance:g}σ (s)"]))
+    parts += _together(data)
     if data.get("backaction_evasion"):
         parts.append(quadrature_table(data["backaction_evasion"]))
     if best:
@@ -49,6 +50,20 @@ def at_a_glance(data, sidebands=(), best=()):
     notes = _notes(data)
     parts.append(html.warnings_block(notes))
     return "\n".join(parts)
+
+
+def _together(data):
+    """With several recorded tones, the sentence that gives their joint bound beside the
+    table (whose numbers are the detected tone's record alone)."""
+    sets = [b for b in data.get("tone_sets") or () if len(b["tones"]) > 1]
+    if not sets:
+        return []
+    return ["<p>" + html.escape(
+        f"The table's bounds are the record of tone {data.get('detected_tone')} alone. "
+        f"{' and '.join(b['tones'])} recorded together, mode {b['mode']}: error on n after "
+        f"1 s {b['error_one_second']:.4g}, the sideband ratio told from 1 at "
+        f"{b['significance']:g}σ after {b['duration_s']:.4g} s (joint Whittle information; "
+        "the table below the figures compares each tone alone).") + "</p>" for b in sets]
 
 
 def quadrature_table(bae):

@@ -249,6 +249,9 @@ def parse_tone_names(value, key, source):
 class Detection:
     """``[detection]``: how the output field is measured."""
 
+    # one demodulated tone or a list of them; setting either by path clears the other
+    ALTERNATIVES = (("tone", "tones"),)
+
     scheme: str = param("detection scheme", choices=("heterodyne", "homodyne"),
                         default="heterodyne")
     receiver: str = param(

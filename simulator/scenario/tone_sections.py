@@ -235,6 +235,27 @@ def detected_tone_names(scenario):
     return det.tones if det.tones is not None else (det.tone,)
 
 
+def reference_words(scenario):
+    """What the receiver's reference sits at, in words for axis labels: "the drive",
+    "tone <name>" (the detected tone, the first listed one with ``detection.tones``) or
+    "the pair's mean frequency" (a back-action-evading pair)."""
+    if scenario.detection.backaction_evading:
+        return "the pair's mean frequency"
+    name = detected_tone_names(scenario)[0]
+    return "the drive" if name == PRIMARY_TONE else f"tone {name}"
+
+
+def offset_words(scenario, *, above=False):
+    """The heterodyne record's frequency axis in words: the offset from the receiver's
+    reference (:func:`reference_words`) and where the lines are; ``above`` adds that
+    positive offsets lie above the reference."""
+    reference = reference_words(scenario)
+    if scenario.detection.backaction_evading:
+        return f"offset from {reference} (X1's line at 0)"
+    return (f"offset from {reference} (> 0: anti-Stokes"
+            + (f", above {reference})" if above else ")"))
+
+
 def detected_tones_problems(scenario, tones):
     """Checks of ``detection.tones`` against the tones and the receiver: ``(key, message)``.
 

@@ -8,6 +8,7 @@ The report converts to plain data (``to_dict``) for ``noisechain inspect
 
 import dataclasses
 import math
+import warnings as python_warnings
 
 from simulator.linear.laser_effects import occupation_report
 from simulator.linear.steady_state import STRONG_COUPLING_TOLERANCE, steady_state
@@ -15,6 +16,8 @@ from simulator.linear.tone_rates import tone_rows, tone_text
 from simulator.model import laser_noise
 from simulator.model.detected_tone import detected_tone_names
 from simulator.model.system import as_system
+from simulator.model.tone_validity import ToneNoiseWarning, ToneSpacingWarning
+from simulator.model.units import photon_energy_j
 from simulator.scenario.plausibility import plausibility_warnings
 from simulator.scenario.units import dbm_from_watts, power_text
 
@@ -55,6 +58,11 @@ class Inspection:
         # a back-action-evading pair is demodulated at its mean frequency, no tone's
         detected = None if self.scenario.detection.backaction_evading else \
             detected_tone_names(self.scenario)[0]
+        # the power of the tone (or pair) whose photons the point shows: Φ·hf of the
+        # detected tone; for a pair (Φ− + Φ+)·hf̄, the sum of both powers up to a
+        # fraction (Φ− − Φ+)/(Φ− + Φ+)·Ωm/ω̄; the drive's as given with one tone
+        power = (p.input_photon_flux * photon_energy_j(p.drive_frequency_hz)
+                 if p.several_tones else self.scenario.drive.power_w)
         modes = []
         for j, mp in enumerate(p.modes):
             entry = {
@@ -92,8 +100,8 @@ class Inspection:
             "scenario": self.scenario.scenario.name,
             "source": self.scenario.source,
             "drive_frequency_hz": p.drive_frequency_hz,
-            "drive_power_w": self.scenario.drive.power_w,
-            "drive_power_dbm": _finite(dbm_from_watts(self.scenario.drive.power_w)),
+            "drive_power_w": power,
+            "drive_power_dbm": _finite(dbm_from_watts(power)),
             "input_photon_flux_per_s": p.input_photon_flux,
             "photon_number": p.photon_number,
             "photon_number_branches": list(p.branches),
@@ -110,7 +118,9 @@ class Inspection:
             "feasibility": [dict(f) for f in self.feasibility],
             **({"tone_sets": [dataclasses.asdict(b) for b in self.tone_sets]}
                if self.tone_sets else {}),
-            **({"detected_tone": detected, "tones": tone_rows(p, detected)}
+            **({"detected_tone": detected,
+                "tones": _with_field_occupations(tone_rows(p, detected),
+                                                 None if detected is None else st)}
                if p.several_tones else {}),
             **({"backaction_evasion": self.quadratures.to_dict() | {
                 "resolution": [r.to_dict() for r in self.resolution]}}
@@ -126,7 +136,8 @@ class Inspection:
         d = self.to_dict()
         lines = [f"scenario {d['scenario']}  ({d['source']})", "",
                  "operating point" + (" (the pair at its mean frequency; occupations "
-                                      "from both tones)" if "backaction_evasion" in d else
+                                      "from both tones)" if self.scenario.detection
+                                      .backaction_evading else
                                       f" (the detected tone, {d['detected_tone']}; "
                                       "occupations from every tone)" if "tones" in d else "")]
         lines.append(f"  drive power            {power_text(d['drive_power_w'])}")
@@ -141,7 +152,8 @@ class Inspection:
         lines.append(f"  stability              {verdict}"
                      f"   (max growth rate {d['growth_rate_hz']:.6g} Hz)")
         if d["cavity_occupation"] is not None:
-            lines.append(f"  cavity occupation      {d['cavity_occupation']:.6g}")
+            whose = " (the drive's field)" if d.get("detected_tone") not in (None, "drive") else ""
+            lines.append(f"  cavity occupation      {d['cavity_occupation']:.6g}{whose}")
         rows = [("g (Hz)", "g_hz"), ("bath occupation", "bath_occupation"),
                 ("cooperativity", "cooperativity"),
                 ("quantum cooperativity", "quantum_cooperativity"),
@@ -192,6 +204,19 @@ class Inspection:
         if d["warnings"]:
             lines += ["", "warnings"] + [f"  - {w}" for w in d["warnings"]]
         return "\n".join(lines)
+
+
+def _with_field_occupations(rows, steady):
+    """Each tone's row with the occupation of its own fluctuation field (its states
+    ``cavity.X/Y`` for the drive, ``<tone>.X/Y`` otherwise); ``steady`` None (unstable,
+    or a back-action-evading pair, whose one field is the pair's) leaves them out."""
+    if steady is None:
+        return rows
+    names, v = list(steady.states), steady.covariance
+    for k, row in enumerate(rows):
+        i = names.index("cavity.X" if k == 0 else f"{row['name']}.X")
+        row["field_occupation"] = float((v[i, i] + v[i + 1, i + 1] - 1) / 2)
+    return rows
 
 
 def _resolution_text(resolution):
@@ -264,6 +289,18 @@ def master_equation_advice(point, occupations):
             "classically, or lower the occupation)")
 
 
+def _tone_warnings(caught):
+    """The several-tone validity warnings caught while the model was built, as report
+    lines (so `inspect --json` carries them); any other warning is passed on."""
+    lines = []
+    for w in caught:
+        if issubclass(w.category, (ToneSpacingWarning, ToneNoiseWarning)):
+            lines.append(str(w.message))
+        else:
+            python_warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    return list(dict.fromkeys(lines))
+
+
 def inspect_scenario(system, *, feasibility=True):
     """Operating point, stability, steady state and warnings of ``scenario``.
 
@@ -274,9 +311,20 @@ def inspect_scenario(system, *, feasibility=True):
     Unlike :func:`simulator.linear.steady_state.steady_state`, an unstable operating
     point does not raise: the report says so and carries no steady state.
     """
-    system = as_system(system, several_tones="detected")
+    with python_warnings.catch_warnings(record=True) as caught:
+        python_warnings.simplefilter("always", ToneSpacingWarning)
+        python_warnings.simplefilter("always", ToneNoiseWarning)
+        system = as_system(system, several_tones="detected")
+        system.model  # noqa: B018  (built here: the tone checks warn when it is)
+    with python_warnings.catch_warnings():  # said once, in the report, not per bound step
+        python_warnings.simplefilter("ignore", ToneSpacingWarning)
+        python_warnings.simplefilter("ignore", ToneNoiseWarning)
+        return _inspect(system, _tone_warnings(caught), feasibility)
+
+
+def _inspect(system, warnings, feasibility):
+    """:func:`inspect_scenario` of a built ``system``, its tone warnings ``warnings``."""
     scenario, point, verdict = system.scenario, system.point, system.stability
-    warnings = []
     if point.bistable:
         warnings.append(
             "the intracavity photon number is bistable (branches "

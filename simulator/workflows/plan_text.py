@@ -4,14 +4,23 @@ import math
 
 from simulator.analysis.planner import relative_change
 
-UNITS = {"asymmetry_time": "s", "occupation_error": "", "occupation": ""}
+UNITS = {"asymmetry_time": "s", "occupation_error": "", "occupation": "",
+         "recorded_tones_time": "s"}
 
 
-def describe_objective(plan, mode_name):
-    """The objective in words, e.g. "time to resolve the asymmetry of drum at 5σ"."""
+def describe_objective(plan, mode_name, scenario=None):
+    """The objective in words, e.g. "time to resolve the asymmetry of drum at 5σ"
+    (``scenario`` names the tones recorded together, for ``recorded_tones_time``)."""
     if plan.objective == "asymmetry_time":
         return (f"time to resolve the sideband asymmetry of mode {mode_name} at "
                 f"{plan.significance:g} standard deviations")
+    if plan.objective == "recorded_tones_time":
+        from simulator.analysis.joint_feasibility import detected_tone_sets
+
+        sets = detected_tone_sets(scenario) if scenario is not None else ()
+        tones = " and ".join(sets[-1]) if sets else "the tones"
+        return (f"joint time T of {tones} recorded together (mode {mode_name}: "
+                f"n/(n+1) told from 1 at {plan.significance:g}σ)")
     if plan.objective == "occupation_error":
         return (f"Cramér–Rao error of the occupation of mode {mode_name} after "
                 f"{plan.duration_s:g} s")
@@ -39,7 +48,7 @@ def plan_dict(result):
     data = {
         "scenario": scenario.scenario.name,
         "objective": plan.objective,
-        "objective_description": describe_objective(plan, mode),
+        "objective_description": describe_objective(plan, mode, scenario),
         "units": UNITS[plan.objective],
         "feasible": result.feasible,
         "message": found.message,
@@ -120,7 +129,9 @@ def plan_text(d):
         lines.append(f"  there: {q.get('photon_number', math.nan):.4g} intracavity photons, "
                      f"growth rate {q.get('growth_rate_hz', math.nan):.4g} Hz, regime "
                      f"{q.get('regime', '?')}, occupation {q.get('occupation', math.nan):.4g}")
-        active = ", ".join(d["active_constraints"]) or "none (an interior optimum)"
+        active = ", ".join(d["active_constraints"]) or (
+            "none (the optimum is on the edge of the searched range)" if d["at_bounds"]
+            else "none (an interior optimum)")
         lines.append(f"  active constraints: {active}")
         if d["at_bounds"]:
             lines.append(f"  on a bound of {', '.join(d['at_bounds'])}: a wider range may "
