@@ -286,3 +286,13 @@ def test_heterodyne_spectrum_against_the_exact_periodic_spectrum(kappa_hz):
     missed = (heterodyne_spectrum(pure, line, efficiency=1.0).total - exact[:4]) / (exact[:4] - 1)
     budget = quadrature_budget(system)
     assert missed == pytest.approx(-budget.x1_counter_rotating / budget.x1_variance, rel=0.02)
+
+
+def test_a_noisy_pair_is_refused_when_the_file_is_read():
+    """The pair's model carries no classical noise: the loader (and so `check`) refuses a
+    pair whose drive has phase noise, naming the key, as every later stage would."""
+    text = pair().to_toml() + "\n[drive.phase_noise]\nfloor_rad2_per_hz = 1e-12\n" \
+        "floor_high_hz = 2e7\n"
+    with pytest.raises(ScenarioError, match="detection.backaction_evading: true with "
+                                            "classical noise on a tone"):
+        parse_scenario(text)

@@ -220,7 +220,10 @@ def tone_set_text(bounds):
                       "(joint Whittle information of every receiver's channels)",
                   f"  unknown: {', '.join(first.paths)}",
                   f"  T: the sideband ratio n/(n+1) told from 1 at {first.significance:g} "
-                  "standard deviations, from σ_n"]
+                  "standard deviations, from σ_n with the device known apart from the "
+                  "unknowns above",
+                  "  (shorter than the time to resolve the asymmetry above, which frees "
+                  "the whole lineshape of one record; docs/analysis.md)"]
         for b in block:
             label = (" and ".join(b.tones) + " together" if len(b.tones) > 1
                      else f"{b.tones[0]} alone")

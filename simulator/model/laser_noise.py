@@ -82,25 +82,16 @@ from simulator.model.laser_spectra import (  # noqa: F401  (the shapes are part 
 )
 from simulator.model.statespace import StateSpace
 from simulator.model.units import angular
-from simulator.scenario.tone_sections import (
+from simulator.scenario.tone_sections import (  # is_quiet: part of this module's API
     PRIMARY_TONE,
     detected_tone_names,
+    is_quiet,  # noqa: F401
     noise_lasers,
     noise_tables,
 )
 
 PREFIX = "laser."
 TONE_INPUT = "laser.tone"
-
-
-def is_quiet(scenario):
-    """True when no tone, nor the local oscillator, carries classical noise, and the drive
-    no calibration tone."""
-    d = scenario.drive
-    tables = [d.phase_noise, d.intensity_noise, d.calibration_tone,
-              scenario.detection.local_oscillator_phase_noise]
-    tables += [x for t in scenario.tones for x in (t.phase_noise, t.intensity_noise)]
-    return all(x == type(x)() for x in tables)
 
 
 # -- the state-space model ----------------------------------------------------------

@@ -229,6 +229,16 @@ def noise_tables(scenario, name):
     return tone.phase_noise, tone.intensity_noise, f"tones[{i}]"
 
 
+def is_quiet(scenario):
+    """True when no tone, nor the local oscillator, carries classical noise, and the drive
+    no calibration tone."""
+    d = scenario.drive
+    tables = [d.phase_noise, d.intensity_noise, d.calibration_tone,
+              scenario.detection.local_oscillator_phase_noise]
+    tables += [x for t in scenario.tones for x in (t.phase_noise, t.intensity_noise)]
+    return all(x == type(x)() for x in tables)
+
+
 def detected_tone_names(scenario):
     """The demodulated tones: ``detection.tones``, or the one ``detection.tone``."""
     det = scenario.detection
@@ -303,6 +313,11 @@ def pair_problems(scenario):
         yield ("schedule", "a [schedule] with detection.backaction_evading is not supported "
                "yet (its segments kick and watch the mode's q, p; the pair's model holds "
                "X1, X2); expected no [schedule] for a back-action-evading pair")
+    if not is_quiet(scenario):
+        yield (key, "true with classical noise on a tone (drive.phase_noise, "
+               "drive.intensity_noise, drive.calibration_tone, a tone's own noise tables) or "
+               "a noisy local oscillator; the back-action-evading pair's model does not carry "
+               "classical noise yet; expected quiet tones for a pair")
     if scenario.detection.tone != PRIMARY_TONE:
         yield ("detection.tone", f"{scenario.detection.tone!r} with detection."
                "backaction_evading: the receiver's reference sits at the pair's mean "
