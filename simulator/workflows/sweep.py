@@ -13,17 +13,18 @@ result is one :class:`xarray.Dataset` with a dimension per swept parameter
 
 import dataclasses
 import functools
-import itertools
-import math
-import re
 from pathlib import Path
 
 import numpy as np
 
-from simulator.errors import ScenarioError
 from simulator.io.files import OutputError, write_netcdf
-from simulator.scenario.sweep_section import MAX_POINTS, axis_numbers
 from simulator.workflows import tasks
+from simulator.workflows.sweep_grid import (  # noqa: F401 (part of this module's API)
+    Axis,
+    parameter_axes,
+    sweep_axes,
+    sweep_points,
+)
 
 FORMAT = "noisechain-sweep"
 FORMAT_VERSION = 2  # 2: a unit axis is named for the ratio it holds
@@ -53,106 +54,6 @@ MODE_QUANTITIES = {
     "occupation_from_ratio": "",
     "asymmetry_time_s": "s",
 }
-
-
-@dataclasses.dataclass(frozen=True)
-class Axis:
-    """One swept parameter: its path, the numbers as given and the values applied."""
-
-    path: str
-    numbers: tuple  # as written in the scenario (in units of ``unit`` if given)
-    values: tuple  # what is set at the path
-    unit: str  # path of the unit parameter, or ""
-    log: bool = False  # logarithmically spaced range
-
-    @property
-    def name(self):
-        """Dimension name safe for NetCDF, e.g. ``mechanics0_bath_temperature_k``.
-
-        An axis in units of another parameter is named for the ratio it holds,
-        e.g. ``drive_detuning_over_mechanics0_frequency`` (Δ/Ωm); the values
-        set at the path are then the variable :attr:`value_name`.
-        """
-        if self.unit:
-            return f"{_without_units(self.path)}_over_{_without_units(self.unit)}"
-        return self.value_name
-
-    @property
-    def value_name(self):
-        """NetCDF name of the values set at the path, e.g. ``drive_detuning_hz``."""
-        return _netcdf_name(self.path)
-
-
-def _netcdf_name(path):
-    return re.sub(r"[^A-Za-z0-9_]", "", path.replace(".", "_"))
-
-
-def _without_units(path):
-    """``drive.detuning_hz`` → ``drive_detuning`` (the unit suffix dropped)."""
-    return re.sub(r"_(hz|w|dbm|k|m|kg|s)$", "", _netcdf_name(path))
-
-
-def sweep_axes(scenario):
-    """The swept parameters of ``scenario`` with every value checked.
-
-    Raises
-    ------
-    ScenarioError
-        If the scenario has no ``[sweep]`` or a value would make an invalid
-        scenario (the message names the path and the value).
-    """
-    if scenario.sweep is None:
-        raise ScenarioError("the scenario has no [sweep] section; expected [sweep] with "
-                            "[sweep.parameters] to run a sweep", source=scenario.source,
-                            key="sweep")
-    return parameter_axes(scenario, scenario.sweep.parameters, "sweep")
-
-
-def parameter_axes(scenario, parameters, section):
-    """:class:`Axis` per entry of a ``[sweep.parameters]``-style table, values checked.
-
-    ``section`` (``"sweep"`` or ``"plan"``) names the table in error messages.
-    """
-    base = dataclasses.replace(scenario, sweep=None, plan=None)
-    axes = []
-    for path, spec in parameters.items():
-        numbers = axis_numbers(spec)
-        unit = spec.get("unit", "") if not isinstance(spec, tuple) else ""
-        scale = float(base.get(unit)) if unit else 1.0
-        values = [x * scale if unit else x for x in numbers]
-        for v in dict.fromkeys(values):  # each distinct value once, in order
-            try:
-                base.replace(path, v)
-            except ScenarioError as exc:
-                hint = (f"; a level in dBm? vary {path[:-2] + '_dbm'!r} instead"
-                        if path.endswith("power_w") and v < 0 else "")
-                raise ScenarioError(f"{'swept' if section == 'sweep' else 'bound'} value "
-                                    f"{v!r} is invalid: {exc.detail}{hint}",
-                                    source=scenario.source,
-                                    key=f'{section}.parameters."{path}"') from None
-        log = not isinstance(spec, tuple) and bool(spec.get("log", False))
-        axes.append(Axis(path=path, numbers=tuple(numbers), values=tuple(values), unit=unit,
-                         log=log))
-    return tuple(axes)
-
-
-def sweep_points(scenario, axes=None):
-    """Every point as ``(index, assignments)``; index is a tuple per grid axis.
-
-    For ``combine = "zip"`` the index has one entry, the point number.
-    """
-    axes = sweep_axes(scenario) if axes is None else axes
-    total = math.prod(len(a.values) for a in axes)
-    if scenario.sweep.combine == "grid" and total > MAX_POINTS:
-        raise ScenarioError(f"the grid has {total} points; expected at most {MAX_POINTS} "
-                            "(split the sweep or use combine = \"zip\")",
-                            source=scenario.source, key="sweep.parameters")
-    if scenario.sweep.combine == "zip":
-        return [((i,), tuple((a.path, a.values[i]) for a in axes))
-                for i in range(len(axes[0].values))]
-    ranges = [range(len(a.values)) for a in axes]
-    return [(idx, tuple((a.path, a.values[i]) for a, i in zip(axes, idx, strict=True)))
-            for idx in itertools.product(*ranges)]
 
 
 @functools.lru_cache(maxsize=8)
