@@ -191,10 +191,11 @@ def transient_rates(record):
     with a wandering Γ is a statistic the jackknife cannot follow); divided
     by the sideband's calibrated block power per phonon
     (:func:`simulator.analysis.heating.block_power_per_phonon`), it is the
-    heating rate in phonons/s (negative for a cooling transient). Errors are
-    the jackknife over cycles (Efron, The Jackknife, the Bootstrap and Other
-    Resampling Plans (SIAM, 1982), Ch. 3; common practice), which needs no
-    model of the noise. Returns ``effective_linewidth_hz@<name>`` (Γ/2π in
+    heating rate in phonons/s (negative for a cooling transient). Its error
+    is :func:`thermal_slope_error` (the thermal-light covariance of the block
+    powers); Γ's is the jackknife over cycles (Efron, The Jackknife, the
+    Bootstrap and Other Resampling Plans (SIAM, 1982), Ch. 3; common
+    practice). Returns ``effective_linewidth_hz@<name>`` (Γ/2π in
     Hz) and ``heating_rate_phonons_per_s@<name>`` for every segment name
     repeated :data:`MIN_CYCLES` times or more.
     """
