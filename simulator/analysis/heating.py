@@ -132,3 +132,30 @@ def initial_heating_rates(scenario):
         cov = (covariance_flow(a.A, steady[seg.name], cov, t) if stable
                else covariance_flow_van_loan(a.A, a.diffusion, cov, t))[0]
     return {name: float(np.mean(values)) for name, values in rates.items()}
+
+
+def nominal_relaxations(scenario, names):
+    """``{name: (n₀, n_∞, Γ_eff)}``: the nominal transient of each named segment.
+
+    The weak-coupling rate equation dn/dt = −Γ_eff (n − n_∞) carried through
+    the schedule with every segment's nominal Γ_eff
+    (:func:`nominal_damping_rate`) and steady occupation, from the first
+    segment's steady state; n₀ is the mean over the segment's cycles of n at
+    their start. What the experimenter expects before looking at the record:
+    it sets fit weights, never a result. An unstable segment (no n_∞) leaves n
+    as it was.
+    """
+    from simulator.linear.steady_state import steady_state
+
+    segments = scenario.schedule.segments
+    systems = segment_system_of(scenario, {s.name for s in segments}, require_stable=False)
+    steady = {name: (steady_state(s).modes[0].occupation, nominal_damping_rate(s))
+              for name, s in systems.items() if s.stable}
+    n = steady.get(segments[0].name, (0.0, 0.0))[0]
+    starts = {}
+    for seg in segments:
+        starts.setdefault(seg.name, []).append(n)
+        if seg.name in steady:
+            n_inf, rate = steady[seg.name]
+            n = n_inf + (n - n_inf) * np.exp(-rate * seg.duration_s)
+    return {name: (float(np.mean(starts[name])), *steady[name]) for name in names}

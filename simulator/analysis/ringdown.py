@@ -148,33 +148,25 @@ def linear_in_slope(t, curve, sigma, rate):
     return coef, float(np.sum(((design @ coef - curve) / sigma) ** 2))
 
 
-def _rate_and_slope(t, curve):
+def _rate_and_slope(t, curve, sigma=None):
     """Γ and the initial slope Γ (P∞ − P₀) of the fitted relaxation (power units/s).
 
-    Weighted least squares in the slope form: for a given Γ the curve is
-    linear in (P₀, Ṗ₀), solved exactly (:func:`linear_in_slope`), and Γ
-    minimises the remaining χ² over |Γ| T ≤ :data:`RATE_LIMIT` (bounded Brent
-    search after a grid; a noisy curve may bend either way) — a profile that
-    cannot wander off as a three-parameter search can when the window is
-    short against 1/Γ. Two passes: unweighted, then weighted by
-    :func:`power_weights` of the first.
+    Least squares in the slope form with fixed σ (default: unweighted): for a
+    given Γ the curve is linear in (P₀, Ṗ₀), solved exactly
+    (:func:`linear_in_slope`), and Γ minimises the remaining χ² over
+    |Γ| T ≤ :data:`RATE_LIMIT` (bounded Brent search after a grid; a noisy
+    curve may bend either way) — a profile that cannot wander off as a
+    three-parameter search can when the window is short against 1/Γ.
     """
+    sigma = np.ones_like(curve) if sigma is None else sigma
     limit = RATE_LIMIT / t[-1]
     grid = np.linspace(-limit, limit, RATE_GRID)
     step = grid[1] - grid[0]
-    sigma = np.ones_like(curve)
-    for _ in range(2):
-        start = grid[int(np.argmin([linear_in_slope(t, curve, sigma, r)[1] for r in grid]))]
-        best = scipy.optimize.minimize_scalar(
-            lambda r, sigma=sigma: linear_in_slope(t, curve, sigma, r)[1], method="bounded",
-            bounds=(max(-limit, start - step), min(limit, start + step)))
-        sigma = power_weights(t, curve, best.x)
+    start = grid[int(np.argmin([linear_in_slope(t, curve, sigma, r)[1] for r in grid]))]
+    best = scipy.optimize.minimize_scalar(
+        lambda r: linear_in_slope(t, curve, sigma, r)[1], method="bounded",
+        bounds=(max(-limit, start - step), min(limit, start + step)))
     return np.array([best.x, linear_in_slope(t, curve, sigma, best.x)[0][1]])
-
-
-def slope_at_rate(t, curve, rate):
-    """Initial slope Ṗ₀ of the relaxation at a known Γ, weighted by :func:`power_weights`."""
-    return linear_in_slope(t, curve, power_weights(t, curve, rate), rate)[0][1]
 
 
 def transient_rates(record):
@@ -190,26 +182,23 @@ def transient_rates(record):
     one schedule) are averaged: the demodulated power of each
     (:func:`demodulated_power`, :data:`BLOCKS_PER_SEGMENT` blocks) is averaged
     over the cycles and fitted by :func:`relaxation` (in its slope form),
-    weighted by the fitted curve itself (:func:`power_weights`). The initial
+    weighted by the nominal expected curve (:func:`nominal_sigma` of
+    :func:`simulator.analysis.heating.nominal_relaxations`: weights fixed
+    before the data keep the slope unbiased). The initial
     slope Γ (P∞ − P₀) is fitted at the segment's nominal damping rate
     (:func:`simulator.analysis.heating.nominal_damping_rate`: a window short
     against 1/Γ determines the slope but hardly Γ, and a slope that moves
     with a wandering Γ is a statistic the jackknife cannot follow); divided
     by the sideband's calibrated block power per phonon
     (:func:`simulator.analysis.heating.block_power_per_phonon`), it is the
-    heating rate in phonons/s (negative for a cooling transient). Errors are
-    the jackknife over cycles (Efron, The Jackknife, the Bootstrap and Other
-    Resampling Plans (SIAM, 1982), Ch. 3; common practice), which needs no
-    model of the noise. Returns ``effective_linewidth_hz@<name>`` (Γ/2π in
+    heating rate in phonons/s (negative for a cooling transient). Its error
+    is :func:`thermal_slope_error` (the thermal-light covariance of the block
+    powers); Γ's is the jackknife over cycles (Efron, The Jackknife, the
+    Bootstrap and Other Resampling Plans (SIAM, 1982), Ch. 3; common
+    practice). Returns ``effective_linewidth_hz@<name>`` (Γ/2π in
     Hz) and ``heating_rate_phonons_per_s@<name>`` for every segment name
     repeated :data:`MIN_CYCLES` times or more.
     """
-    from simulator.analysis.heating import (
-        block_power_per_phonon,
-        nominal_damping_rate,
-        segment_system_of,
-    )
-
     scenario = record.scenario
     if scenario.schedule is None or record.kind != "iq":
         raise InputError("transient_rates needs an iq record of a scenario with a "
@@ -217,19 +206,65 @@ def transient_rates(record):
     fs = record.sample_rate_hz
     curves = transient_curves(np.asarray(record.samples), fs, scenario.schedule.segments,
                               scenario.mechanics[0].frequency_hz)
+    return fit_transients(scenario, fs, curves)
+
+
+def fit_transients(scenario, sample_rate_hz, curves):
+    """The results of :func:`transient_rates` from its ``{name: (t, cycles × blocks)}``
+    curves (:func:`transient_curves`), e.g. exact expected ones."""
+    from simulator.analysis.heating import (
+        block_power_per_phonon,
+        nominal_relaxations,
+        segment_system_of,
+    )
+
+    fs = sample_rate_hz
     systems = segment_system_of(scenario, set(curves))
     out = {}
+    expected = nominal_relaxations(scenario, set(curves))
     for name, (t, stack) in curves.items():
         gain = block_power_per_phonon(systems[name], fs)
-        nominal = nominal_damping_rate(systems[name])
+        n0, n_inf, nominal = expected[name]
+        # the record's vacuum floor per block mean of L samples: 1 per Hz over fs, / L
+        block = round(2 * t[0] * fs)  # block centres sit at (k + ½) L / fs
+        sigma = nominal_sigma(t, gain, fs / block, n0, n_inf, nominal)
 
-        def both(t, curve, nominal=nominal):
-            return np.array([_rate_and_slope(t, curve)[0], slope_at_rate(t, curve, nominal)])
+        def both(t, curve, nominal=nominal, sigma=sigma):
+            return np.array([_rate_and_slope(t, curve, sigma)[0],
+                             linear_in_slope(t, curve, sigma, nominal)[0][1]])
 
         (rate, slope), error = jackknife_over_cycles(t, stack, both)
+        slope_error = thermal_slope_error(t, stack.mean(axis=0), sigma, nominal, fs / block,
+                                          len(stack))
         out[f"effective_linewidth_hz@{name}"] = (rate / (2 * np.pi), error[0] / (2 * np.pi))
-        out[f"heating_rate_phonons_per_s@{name}"] = (slope / gain, error[1] / gain)
+        out[f"heating_rate_phonons_per_s@{name}"] = (slope / gain, slope_error / gain)
     return out
+
+
+def thermal_slope_error(t, curve, sigma, rate, floor, cycles):
+    """Standard error of the slope Ṗ₀ fitted at Γ with weights σ, from the
+    thermal-light covariance of the block powers at the fitted level.
+
+    The block mean u is a complex Gaussian (the mode's narrow-band amplitude
+    on a white floor B), so Cov(|u_i|², |u_j|²) = |E u_i u_j*|² (Isserlis,
+    Biometrika 12, 134 (1918), for circular complex variables; Reed, IRE
+    Trans. Inf. Theory 8, 194 (1962), from memory): P_i² on the diagonal and
+    (P_e − B)² e^{−Γ|t_i − t_j|} off it, P_e the line's power at the earlier
+    block (the amplitude decays at Γ/2 while new thermal motion adds
+    uncorrelated). The fitted slope is a fixed linear map w of the curve, so
+    its variance is w C wᵀ / cycles. The jackknife over twenty cycles of such
+    skewed values gives errors that grow with the estimate (measured: pull
+    width 1.25 on the example, docs/analysis.md); this error moves only with
+    the fitted level.
+    """
+    design = np.column_stack([np.ones_like(t), relaxation_by_slope(t, 0.0, 1.0, rate)])
+    coef = np.linalg.pinv(design / sigma[:, None]) / sigma[None, :]
+    level = design @ (coef @ curve)
+    line = np.maximum(level - floor, 0.0)
+    earlier = line[np.minimum.outer(np.arange(len(t)), np.arange(len(t)))]
+    cov = earlier**2 * np.exp(-abs(rate) * np.abs(np.subtract.outer(t, t)))
+    cov[np.diag_indices_from(cov)] = level**2
+    return float(np.sqrt(coef[1] @ cov @ coef[1] / cycles))
 
 
 def transient_curves(z, sample_rate_hz, segments, frequency_hz):
@@ -269,14 +304,14 @@ def jackknife_over_cycles(t, stack, estimate):
     return value, error
 
 
-def power_weights(t, curve, rate):
-    """σ ∝ the fitted curve at Γ (a line's block power is exponential: its s.d. is its
-    mean), from an unweighted first pass; floored so a noiseless curve stays finite.
+def nominal_sigma(t, gain, floor, n0, n_inf, rate):
+    """σ ∝ the expected block power G n(t) + B of the nominal transient (a line's
+    block power is exponential: its s.d. is its mean).
 
-    Weights from the fit's own smooth model, not from the scatter of the data
-    they weight: sample-variance weights favour the points that fell low and
-    bias the fit down.
+    Fixed before the data are seen: at a given Γ the slope is then linear in
+    the data, so its mean is the slope of the mean curve whatever the weights.
+    Weights from a fit to the same data (even its smooth model) move with
+    that data's noise and bias the slope: −2.6 ± 0.6 % for the two-pass
+    weights on simulated cycles of the example (docs/analysis.md).
     """
-    coef, _ = linear_in_slope(t, curve, np.ones_like(curve), rate)
-    model = np.abs(coef[0] + coef[1] * relaxation_by_slope(t, 0.0, 1.0, rate))
-    return np.maximum(model, SIGMA_FLOOR * np.abs(curve).max())
+    return gain * (n_inf - (n_inf - n0) * np.exp(-rate * t)) + floor
