@@ -156,13 +156,7 @@ def test_ensemble_of_records_has_the_exact_mean_and_variance():
         sink = MemorySink(dataclasses.replace(plan, seed=1000 + i))
         run_segments(sink.plan, sink, chunk=1 << 12)
         q[i] = sink.mech[samples, 0]
-    mean, cov = state_moments(plan, samples)
-    index = plan.segments[0].chain.model.index("m0.q")
-    sigma2 = cov[:, index, index]
-    z_mean = (q.mean(axis=0) - mean[:, index]) / np.sqrt(sigma2 / n_records)
-    z_var = (q.var(axis=0, ddof=1) - sigma2) / (sigma2 * np.sqrt(2 / (n_records - 1)))
-    assert np.all(np.abs(z_mean) < Z_LIMIT), z_mean
-    assert np.all(np.abs(z_var) < Z_LIMIT), z_var
+    sigma2 = assert_ensemble_moments(q, plan, samples)
     assert sigma2[-1] > 5 * sigma2[0]  # the ensemble really heats over the record
 
 
@@ -221,3 +215,18 @@ def test_a_kick_that_crowds_out_the_quiet_segments_is_warned_about():
     with pytest.warns(RecordWarning, match="rounding noise"):
         generate_protocol_record(scenario, seed=1)
     generate_protocol_record(make([{"duration_s": 5e-5}]), seed=1)  # no warning at 16 bits
+
+
+def assert_ensemble_moments(q, plan, samples):
+    """The records' stored ``m0.q`` at ``samples`` (one row per record) against the exact
+    mean and variance of the plan (within Z_LIMIT standard errors; the variance's
+    standard error of a Gaussian sample, σ²√(2/(N − 1))). Returns the exact variances."""
+    n_records = len(q)
+    mean, cov = state_moments(plan, samples)
+    index = plan.segments[0].chain.model.index("m0.q")
+    sigma2 = cov[:, index, index]
+    z_mean = (q.mean(axis=0) - mean[:, index]) / np.sqrt(sigma2 / n_records)
+    z_var = (q.var(axis=0, ddof=1) - sigma2) / (sigma2 * np.sqrt(2 / (n_records - 1)))
+    assert np.all(np.abs(z_mean) < Z_LIMIT), z_mean
+    assert np.all(np.abs(z_var) < Z_LIMIT), z_var
+    return sigma2

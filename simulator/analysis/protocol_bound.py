@@ -76,6 +76,19 @@ class HeatingBound:
                 "Cramér–Rao)")
 
 
+
+def central_differences(function, theta):
+    """∂function/∂θ_i for each parameter by central differences of relative step
+    :data:`RELATIVE_STEP` (a list, one array per parameter)."""
+    out = []
+    for i in range(len(theta)):
+        h = RELATIVE_STEP * theta[i]
+        up, down = theta.copy(), theta.copy()
+        up[i] += h
+        down[i] -= h
+        out.append((function(up) - function(down)) / (2 * h))
+    return out
+
 def segment_models(scenario, mode=0):
     """``(SegmentModel per segment, Γm, H)`` of a scheduled scenario's first mode."""
     from simulator.analysis.heating import block_power_per_phonon, segment_system_of
@@ -124,14 +137,8 @@ def whittle_fisher(models, theta, sample_rate_hz):
         if m.name not in cache:
             rate = theta[0] + m.optical_damping
             f = np.geomspace(rate * 1e-4 / (2 * np.pi), sample_rate_hz / 2, FREQUENCY_POINTS)
-            grads = []
-            for i in range(2):
-                h = RELATIVE_STEP * theta[i]
-                up, down = theta.copy(), theta.copy()
-                up[i] += h
-                down[i] -= h
-                grads.append((np.log(segment_spectrum(m, up, f))
-                              - np.log(segment_spectrum(m, down, f))) / (2 * h))
+            grads = central_differences(
+                lambda t, m=m, f=f: np.log(segment_spectrum(m, t, f)), theta)
             per_second = np.array([[2.0 * scipy.integrate.trapezoid(  # ±f: twice one side
                 grads[i] * grads[j], f) for j in range(2)] for i in range(2)])
             cache[m.name] = per_second
@@ -206,13 +213,7 @@ def gaussian_fisher(models, theta, spacing_s, start_occupation):
     """
     theta = np.asarray(theta, dtype=float)
     c = record_covariance(models, theta, spacing_s, start_occupation)
-    derivs = []
-    for i in range(2):
-        h = RELATIVE_STEP * theta[i]
-        up, down = theta.copy(), theta.copy()
-        up[i] += h
-        down[i] -= h
-        derivs.append((record_covariance(models, up, spacing_s, start_occupation)
-                       - record_covariance(models, down, spacing_s, start_occupation)) / (2 * h))
+    derivs = central_differences(
+        lambda t: record_covariance(models, t, spacing_s, start_occupation), theta)
     solved = [np.linalg.solve(c, d) for d in derivs]
     return np.array([[np.trace(solved[i] @ solved[j]) for j in range(2)] for i in range(2)])

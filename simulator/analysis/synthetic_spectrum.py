@@ -141,13 +141,10 @@ class AveragedSpectrum:
     def channel(self, tone):
         """The averaged spectrum of the detected tone ``tone`` alone (a one-tone
         AveragedSpectrum: its density, ±f term, rounding and calibration)."""
-        if not self.tones:
-            raise InputError(f"channel({tone!r}): this averaged spectrum holds one detected "
-                             "tone; use it as it is")
-        if tone not in self.tones:
-            raise InputError(f"channel({tone!r}): no such detected tone; expected one of "
-                             f"{', '.join(map(repr, self.tones))}")
-        k = self.tones.index(tone)
+        from simulator.model.detected_tone import channel_index
+
+        k = channel_index(self.tones, tone, "averaged spectrum holds one detected tone; "
+                                            "use it as it is")
         own = self.truth.channels[k]["calibration"] if self.truth.channels else None
         truth = self.truth if own is None else dataclasses.replace(
             self.truth, calibration=own, channels=())

@@ -129,3 +129,20 @@ def tone_indices(point, names):
         raise InputError(f"detected tone(s) {', '.join(map(repr, missing))} name no drive "
                          f"tone; expected names among {', '.join(map(repr, known))}")
     return [known.index(n) for n in names]
+
+
+def channel_index(tones, tone, single):
+    """Index of the detected tone ``tone`` among ``tones`` (a record's or averaged
+    spectrum's channels); ``single`` says what to use when it holds one tone.
+
+    Raises
+    ------
+    InputError
+        One detected tone only, or no channel of that name.
+    """
+    if not tones:
+        raise InputError(f"channel({tone!r}): this {single}")
+    if tone not in tones:
+        raise InputError(f"channel({tone!r}): no such detected tone; expected one of "
+                         f"{', '.join(map(repr, tones))}")
+    return tones.index(tone)

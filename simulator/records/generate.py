@@ -113,13 +113,10 @@ class Record:
 
     def channel(self, tone):
         """I + iQ in shot-noise units of the detected tone named ``tone`` (N,)."""
-        if not self.tones:
-            raise InputError(f"channel({tone!r}): this record holds one detected tone; use "
-                             "shot_noise_units()")
-        if tone not in self.tones:
-            raise InputError(f"channel({tone!r}): no such detected tone; expected one of "
-                             f"{', '.join(map(repr, self.tones))}")
-        k = self.tones.index(tone)
+        from simulator.model.detected_tone import channel_index
+
+        k = channel_index(self.tones, tone, "record holds one detected tone; use "
+                                            "shot_noise_units()")
         c = self.samples()
         return (c[:, 2 * k] + 1j * c[:, 2 * k + 1]) * self.channel_shot_noise_per_count[k]
 
