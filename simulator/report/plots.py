@@ -172,6 +172,12 @@ def _flat_terms(spectrum, inside):
     return flat
 
 
+def _offset_label(centre, unit):
+    """Axis label of a zoom about ``centre`` (Hz on the spectrum's own axis)."""
+    where = "the record's zero frequency" if centre == 0 else f"{centre / 1e6:.6g} MHz"
+    return f"offset from {where} ({unit})"
+
+
 def _zoom(ax, spectrum, colours, label, centre, width):
     inside, x, unit, _, _ = _window(spectrum, centre, width)
     flat = _flat_terms(spectrum, inside)
@@ -182,7 +188,7 @@ def _zoom(ax, spectrum, colours, label, centre, width):
         if name not in flat:
             ax.plot(x, curve[inside], lw=1.2, **colours[name])
     ax.axhline(0.0, color="0.6", lw=0.8, zorder=0)
-    ax.set_xlabel(f"offset from {centre / 1e6:.6g} MHz ({unit})")
+    ax.set_xlabel(_offset_label(centre, unit))
     if flat:  # the flat terms keep their legend entries (with their values)
         ax.set_ylabel(f"S − 1 less its flat floor {offset:.3g},\nlinear "
                       f"({spectrum.units})")
@@ -203,7 +209,7 @@ def _displacement_zoom(ax, x_spec, label, centre, width):
                                             REFERENCE_COLOURS, strict=False):
         curves.append(curve[inside])
         ax.plot(x, curves[-1], ls=style, lw=1.6, color=colour, label=name)
-    ax.set_xlabel(f"offset from {centre / 1e6:.6g} MHz ({unit})")
+    ax.set_xlabel(_offset_label(centre, unit))
     ax.set_ylabel(f"{x_spec.sided} density\n({x_spec.units.replace('^2', '²')})")
     ax.set_title(f"{label.splitlines()[0]}: referred to displacement", fontsize=9)
     values = np.concatenate(curves)
