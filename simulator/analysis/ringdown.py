@@ -120,6 +120,11 @@ def ring_down_linewidth(record):
 
 
 BLOCKS_PER_SEGMENT = 200  # points of a transient's sideband power curve
+# A segment shorter than this many relaxation times (at its nominal rate) hardly
+# determines its Γ: a 4 ms window on an 8 ms re-thermalisation scatters by 165 % of Γ
+# and its jackknife error understates that (docs/analysis.md, "Protocols"); the
+# estimator then leaves Γ out (the heating rate, fitted at the nominal Γ, stays).
+MIN_RELAXATION_TIMES = 1.0
 SIGMA_FLOOR = 1e-9  # smallest weight's sigma, relative to the curve's largest value
 RATE_LIMIT = 100.0  # largest |Γ| × window fitted: e^{−100} leaves nothing to fit after
 RATE_GRID = 81  # coarse Γ grid that brackets the profile χ² minimum before Brent (our choice)
@@ -236,7 +241,10 @@ def fit_transients(scenario, sample_rate_hz, curves):
         (rate, slope), error = jackknife_over_cycles(t, stack, both)
         slope_error = thermal_slope_error(t, stack.mean(axis=0), sigma, nominal, fs / block,
                                           len(stack))
-        out[f"effective_linewidth_hz@{name}"] = (rate / (2 * np.pi), error[0] / (2 * np.pi))
+        window_s = t[-1] + t[0]  # block centres at (k + ½) L / fs: the segment's length
+        if window_s * nominal >= MIN_RELAXATION_TIMES:  # else Γ is hardly determined
+            out[f"effective_linewidth_hz@{name}"] = (rate / (2 * np.pi),
+                                                     error[0] / (2 * np.pi))
         out[f"heating_rate_phonons_per_s@{name}"] = (slope / gain, slope_error / gain)
     return out
 
