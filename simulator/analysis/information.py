@@ -234,7 +234,8 @@ def record_grid(form, top_rad_s, *, points_per_decade=POINTS_PER_DECADE, closest
     grids = [np.linspace(0.0, top_rad_s, int(coarse_points))]
     for centre, gamma in zip(np.abs(centres), widths, strict=True):
         gamma = max(float(gamma), top_rad_s * 1e-15)
-        decades = max(np.log10(top_rad_s / gamma) - np.log10(closest), 1.0)
+        with np.errstate(divide="ignore"):  # an infinite width (a flat term): one decade
+            decades = max(np.log10(top_rad_s / gamma) - np.log10(closest), 1.0)
         offsets = gamma * np.logspace(np.log10(closest), np.log10(closest) + decades,
                                       int(np.ceil(decades * points_per_decade)))
         grids.append(centre + np.concatenate([-offsets[::-1], [0.0], offsets]))

@@ -189,7 +189,8 @@ class PoleForm:
         if self.period is None:
             return -self.poles.imag, np.abs(self.poles.real)
         t = self.period
-        return -np.angle(self.poles) / t, np.abs(np.log(np.abs(self.poles))) / t
+        with np.errstate(divide="ignore"):  # w = 0 (a pole gone within a sample): flat
+            return -np.angle(self.poles) / t, np.abs(np.log(np.abs(self.poles))) / t
 
 
 def pole_form(model, groups=None):
