@@ -163,16 +163,7 @@ def generate_record(system, *, seed=None, duration_s=None, form="auto",
     """
     plan = plan_record(system, seed=seed, duration_s=duration_s, form=form,
                        store_mechanics=store_mechanics)
-    chunk = plan.scenario.record.chunk_samples if chunk_samples is None else chunk_samples
-    if isinstance(chunk, bool) or not isinstance(chunk, (int, np.integer)) or chunk < 1:
-        raise InputError(f"chunk_samples = {chunk!r}; expected a positive integer")
-    from simulator.records.pipeline import checked_workers
-
-    workers = checked_workers(workers)
-    target = MemorySink(plan) if sink is None else sink(plan, int(min(chunk, plan.n_samples)))
-    with target:
-        clipped = generate(plan, target, chunk=int(chunk), progress=progress, workers=workers)
-        record = target.finish(clipped)
+    record, clipped = stream_plan(plan, chunk_samples, sink, progress, workers)
     coarse = quantisation_share(plan)
     if coarse > QUANTISATION_WARNING:
         coarse_words = (" (a step this close to the signal's standard deviation also makes "
@@ -187,6 +178,22 @@ def generate_record(system, *, seed=None, duration_s=None, form="auto",
                       f"full scale ±{plan.full_scale_v:.6g} V; raise digitizer.full_scale_v "
                       f"or lower {plan.chain.scale_key}", RecordWarning, stacklevel=3)
     return record
+
+
+def stream_plan(plan, chunk_samples, sink, progress, workers):
+    """Run ``plan`` (a stationary or scheduled record's) into its sink: ``(record,
+    clipped samples)``. ``chunk_samples`` default the scenario's ``record.chunk_samples``;
+    ``sink`` and ``workers`` as in :func:`generate_record`."""
+    from simulator.records.pipeline import checked_workers
+
+    chunk = plan.scenario.record.chunk_samples if chunk_samples is None else chunk_samples
+    if isinstance(chunk, bool) or not isinstance(chunk, (int, np.integer)) or chunk < 1:
+        raise InputError(f"chunk_samples = {chunk!r}; expected a positive integer")
+    workers = checked_workers(workers)
+    target = MemorySink(plan) if sink is None else sink(plan, int(min(chunk, plan.n_samples)))
+    with target:
+        clipped = generate(plan, target, chunk=int(chunk), progress=progress, workers=workers)
+        return target.finish(clipped), clipped
 
 
 QUANTISATION_WARNING = 0.01  # rounding variance Δ²/12 above 1 % of the signal's (our choice)

@@ -21,10 +21,6 @@ worker threads.
 import dataclasses
 import warnings
 
-import numpy as np
-
-from simulator.errors import InputError
-
 
 def generate_protocol_record(scenario, *, seed=None, chunk_samples=None, sink=None,
                              progress=None, workers=None):
@@ -57,23 +53,15 @@ def generate_protocol_record(scenario, *, seed=None, chunk_samples=None, sink=No
     """
     from simulator.records.generate import (
         QUANTISATION_WARNING,
-        MemorySink,
         RecordWarning,
         quantisation_share,
+        stream_plan,
     )
-    from simulator.records.pipeline import checked_workers
     from simulator.records.protocol import plan_protocol
 
     plan = plan_protocol(scenario, seed=seed)
-    chunk = plan.scenario.record.chunk_samples if chunk_samples is None else chunk_samples
-    if isinstance(chunk, bool) or not isinstance(chunk, (int, np.integer)) or chunk < 1:
-        raise InputError(f"chunk_samples = {chunk!r}; expected a positive integer")
-    workers = checked_workers(workers)
-    target = MemorySink(plan) if sink is None else sink(plan, int(min(chunk, plan.n_samples)))
-    with target:
-        clipped = run_segments(plan, target, chunk=int(chunk), progress=progress,
-                               workers=workers)
-        record = target.finish(clipped)
+    # the generator takes a scheduled plan as it is (its stepper switches segments)
+    record, clipped = stream_plan(plan, chunk_samples, sink, progress, workers)
     coarse = max(quantisation_share(dataclasses.replace(plan, chain=seg.chain,
                                                         discrete=seg.discrete))
                  for seg in plan.segments if seg.system.stable)  # unstable: only louder
