@@ -17,7 +17,7 @@
 
 import numpy as np
 import pytest
-from conftest import mode, scenario_with_coupling
+from test_records import make as record_scenario
 
 from simulator.analysis.psd import averaged_periodogram
 from simulator.linear.budget import FLOOR
@@ -53,17 +53,8 @@ RECEIVERS = {
 
 
 def make(samples=1 << 16, **sections):
-    """A 300 kHz mode in a 600 kHz cavity, sampled at 2 MHz (as tests/test_records.py)."""
-    base = scenario_with_coupling(
-        g_hz=40e3, linewidth_hz=600e3, detuning_hz=-300e3,
-        modes=[mode(frequency_hz=300e3, linewidth_hz=3e3, coupling_hz=200.0,
-                    bath_occupation=2.0, effective_mass_kg=1e-13)])
-    data = base.to_dict()
-    data["digitizer"] = {"sample_rate_hz": FS}
-    data["record"] = {"duration_s": samples / FS}
-    for name, values in sections.items():
-        data.setdefault(name, {}).update(values)
-    return scenario_from_dict(data, source="<test>")
+    """A 300 kHz mode in a 600 kHz cavity, sampled at 2 MHz (tests/test_records.py's)."""
+    return record_scenario(samples=samples, **sections)
 
 
 def grid(kind):
