@@ -97,40 +97,31 @@ def initial_heating_rates(scenario):
 
     from simulator.linear.steady_state import steady_state
     from simulator.model.chain import automatic_sample_rate
-    from simulator.records.protocol import (
-        covariance_flow,
-        covariance_flow_van_loan,
-        start_state,
-    )
+    from simulator.records.protocol import segment_flow, start_state
 
     segments = scenario.schedule.segments
-    # an unstable segment (a growing pulse) has no n_∞ and no rate; the state is
-    # carried through it by Van Loan's block exponential
+    # an unstable segment (a growing pulse) has no n_∞ and no rate; segment_flow
+    # carries the state through it by Van Loan's block exponential
     systems = segment_system_of(scenario, {seg.name for seg in segments}, require_stable=False)
-    chains = {name: system.chain for name, system in systems.items()}
+    parts = {name: SimpleNamespace(  # what the record's plan holds of each segment
+        system=system, chain=system.chain, discrete=SimpleNamespace(
+            state_covariance=system.chain.model.covariance() if system.stable else None))
+        for name, system in systems.items()}
     fs = scenario.digitizer.sample_rate_hz or max(
-        automatic_sample_rate(c, scenario.detection.intermediate_frequency_hz)
-        for c in chains.values())
-    model = chains[segments[0].name].model
-    steady = {name: c.model.covariance() for name, c in chains.items()
-              if systems[name].stable}
-    first = SimpleNamespace(discrete=SimpleNamespace(
-        state_covariance=steady.get(segments[0].name)), system=systems[segments[0].name],
-        chain=chains[segments[0].name])
+        automatic_sample_rate(p.chain, scenario.detection.intermediate_frequency_hz)
+        for p in parts.values())
+    first = parts[segments[0].name]
     _, cov = start_state(scenario.schedule, first)
-    mode = systems[segments[0].name].point.modes[0].name
-    iq, ip = model.index(f"{mode}.q"), model.index(f"{mode}.p")
+    mode = first.system.point.modes[0].name
+    iq, ip = first.chain.model.index(f"{mode}.q"), first.chain.model.index(f"{mode}.p")
     rates = {}
     for k, seg in enumerate(segments):
-        stable = systems[seg.name].stable
-        if k > 0 and seg.excite_phonons == 0 and stable:
+        if k > 0 and seg.excite_phonons == 0 and systems[seg.name].stable:
             ms = steady_state(systems[seg.name]).modes[0]
             n_start = 0.5 * (cov[iq, iq] + cov[ip, ip] - 1.0)
             rates.setdefault(seg.name, []).append(
                 2 * np.pi * ms.effective_linewidth_hz * (ms.occupation - n_start))
-        t, a = round(seg.duration_s * fs) / fs, chains[seg.name].model
-        cov = (covariance_flow(a.A, steady[seg.name], cov, t) if stable
-               else covariance_flow_van_loan(a.A, a.diffusion, cov, t))[0]
+        cov = segment_flow(parts[seg.name], cov, round(seg.duration_s * fs) / fs)[0]
     return {name: float(np.mean(values)) for name, values in rates.items()}
 
 
