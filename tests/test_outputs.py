@@ -210,3 +210,22 @@ def test_run_into_its_own_folder_again_replaces_what_it_wrote(tmp_path):
     assert cli.main(["run", str(scenario), "--out", str(out), "--quiet"]) == 0
     assert (out / "inspect.json").read_text() == inspected
     assert not list(out.rglob("*.part"))
+
+
+def test_a_write_stopped_before_its_block_began_is_removed_when_the_run_ends(tmp_path):
+    """A stop request raises at any bytecode: one between the temporary file's
+    creation and the ``with`` block leaves a part file of this (live) process,
+    which the stale-file sweep keeps. The folder's lock removes it when the
+    run ends; a write still in progress elsewhere is not touched."""
+    out = tmp_path / "out"
+    (out / "points").mkdir(parents=True)
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    with FolderLock(out, "sweep"):
+        abandoned = AtomicFile(out / "points" / "00014.json")  # the interrupted write
+        other = AtomicFile(elsewhere / "r.h5")
+        assert abandoned.tmp.exists()
+    assert not abandoned.tmp.exists() and not list(out.rglob("*.part"))
+    assert other.tmp.exists()  # not the lock's folder: left to its own writer
+    other.discard()
+    assert list(elsewhere.iterdir()) == []

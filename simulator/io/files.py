@@ -22,6 +22,7 @@ renamed onto the target, so a reader never sees a half-written file.
 trials, runs); see there.
 """
 
+import atexit
 import datetime
 import errno
 import fcntl
@@ -40,6 +41,7 @@ HOST = re.sub(r"\W", "_", socket.gethostname().split(".")[0], flags=re.ASCII) or
 _PART = re.compile(r"^\.(?P<name>.+)\.(?P<host>\w+)-(?P<pid>\d+)-[0-9a-f]{8}\.part$",
                    re.ASCII)
 _swept_folders = set()
+_pending = set()  # this process's temporary files not yet committed or discarded
 
 
 class OutputError(InputError):
@@ -150,9 +152,11 @@ class AtomicFile:
         remove_stale_parts(self.path.parent)
         self.tmp = self.path.with_name(
             f".{self.path.name}.{HOST}-{os.getpid()}-{secrets.token_hex(4)}.part")
+        _pending.add(self.tmp)  # before it exists: a stop request may come at any bytecode
         try:
             os.close(os.open(self.tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666))
         except OSError as exc:
+            _pending.discard(self.tmp)
             raise _output_error(self.path, exc) from None
         self._reader, self._written_back = None, 0
 
@@ -227,11 +231,13 @@ class AtomicFile:
             self.tmp.unlink(missing_ok=True)
         except OSError:
             pass
+        _pending.discard(self.tmp)
 
     def _publish(self):
         if self.overwrite:
             refuse_existing(self.path, overwrite=True)
             os.replace(self.tmp, self.path)
+            _pending.discard(self.tmp)
             return
         try:
             os.link(self.tmp, self.path)  # fails if the name was taken meanwhile
@@ -243,8 +249,37 @@ class AtomicFile:
                 raise
             refuse_existing(self.path, overwrite=False)  # no hard links on this file system
             os.replace(self.tmp, self.path)
+            _pending.discard(self.tmp)
             return
         self.tmp.unlink()
+        _pending.discard(self.tmp)
+
+
+def discard_abandoned(folders=None):
+    """Remove this process's temporary files that were neither committed nor discarded.
+
+    A stop request (Ctrl-C, SIGTERM) raises at any bytecode: one that comes
+    after a temporary file was created but before its ``with`` block began
+    leaves the file behind, and :func:`remove_stale_parts` keeps it because
+    its process is alive. :class:`FolderLock` calls this for its folder when
+    the run that held it ends, and the interpreter's exit for all of them.
+
+    Parameters
+    ----------
+    folders : iterable of path, optional
+        Only temporary files directly in these folders (default: all).
+    """
+    folders = None if folders is None else {Path(f) for f in folders}
+    for tmp in list(_pending):
+        if folders is None or tmp.parent in folders:
+            try:
+                tmp.unlink(missing_ok=True)
+            except OSError:
+                pass  # a later run removes it once this process is gone
+            _pending.discard(tmp)
+
+
+atexit.register(discard_abandoned)
 
 
 def open_hdf5(path, what, written_by):
@@ -345,21 +380,23 @@ class FolderLock:
         return self
 
     def __exit__(self, exc_type, exc, tb):
-        self._clean()  # what workers stopped mid-write left
+        self._clean(own=True)  # what workers, or this process, stopped mid-write left
         os.ftruncate(self.fd, 0)
         os.close(self.fd)  # releases the lock
         self.fd = None
         return False
 
 
-    def _clean(self):
+    def _clean(self, own=False):
         remove_stale_parts(self.folder, rescan=True)
         try:
             subfolders = [sub for sub in self.folder.iterdir() if sub.is_dir()]
         except OSError:
-            return  # the folder went away mid-run: the error that follows says so
+            subfolders = []  # the folder went away mid-run: the error that follows says so
         for sub in subfolders:
             remove_stale_parts(sub, rescan=True)
+        if own:  # the run is over: none of its writes in here is still going on
+            discard_abandoned([self.folder, *subfolders])
 
 
 def _holder(text):
