@@ -30,9 +30,12 @@ Prints, measured side by side in one run:
    beforehand), and whole records streamed to HDF5 with 1 worker thread and
    with one per core, raw and deflated; each stage's core time per sample
    (drawing, sequential loop, file write) with the ceilings they set; the
-   load average before and after. Target: the raw stream on all cores
-   reaches 0.8 × (cores × single-core bound), or the sequential loop's own
-   rate where that is lower.
+   load average before and after, and the core time all threads spent per
+   sample. Target: the raw stream on all cores reaches 0.8 × (cores ×
+   single-core bound), or the sequential loop's own rate where that is
+   lower. ``--modes 8`` makes the recursion the limit on 2 cores (its loop
+   longer than drawing and writing together); the record should then run
+   at the loop's own rate.
 6. Compression of the counts: size against write speed for HDF5's built-in
    filters through h5py (none, shuffle, gzip levels, lzf), the registered
    filters of hdf5plugin when it is importable, and this package's own
@@ -55,6 +58,7 @@ Run: ``.venv/bin/python tests/benchmarks/bench_records.py [--samples N]
 """
 
 import argparse
+import functools
 import subprocess
 import sys
 import tempfile
@@ -283,8 +287,30 @@ def streamed_memory(lengths):
             path.unlink()
 
 
-def every_core(n, repeats):
+def scenario_with_modes(seconds, count):
+    """The scenario of :func:`scenario` with ``count`` mechanical modes 37 kHz apart: a
+    recursion ``count`` times as long per sample, the same normals (invented numbers)."""
+    if count == 1:
+        return scenario(seconds)
+    modes = [mode(f"m{j}", frequency_hz=300e3 + 37e3 * j, linewidth_hz=3e3, coupling_hz=200.0,
+                  bath_occupation=0.5, effective_mass_kg=1e-13) for j in range(count)]
+    s = scenario_with_coupling(g_hz=40e3, linewidth_hz=600e3, detuning_hz=-300e3, modes=modes)
+    return s.replace("digitizer.sample_rate_hz", 2e6).replace("record.duration_s", seconds)
+
+
+def every_core(n, repeats, modes=1):
+    """Section 5 for a record of ``modes`` mechanical modes; returns the raw rate on every core.
+
+    Printed side by side: the single-core normal bound; the kernel as the
+    target was filed (the recursion with its normals, one core: the
+    "recursion's own rate" of a single-threaded record); the record's
+    sequential loop alone (recursion and digitiser, normals given: what one
+    thread must do whatever the others do); the stage times and the ceilings
+    they set; whole records on 1 thread and on every core, with the core time
+    all threads of the process spent per sample.
+    """
     import os
+    import resource
     import warnings
 
     from simulator.records import kernels
@@ -292,13 +318,15 @@ def every_core(n, repeats):
     from simulator.workflows.record import simulate_record
 
     cores = available_cores()
-    plan = plan_record(scenario(n / 2e6), form="innovations")
+    make = functools.partial(scenario_with_modes, count=modes)
+    plan = plan_record(make(n / 2e6), form="innovations")
     step = stepper(plan)
     width, blocks = step.width, -(-n // BLOCK_SAMPLES)
-    print(f"5. streamed iq record of {n:.3g} samples on {cores} core(s), M samples/s "
-          f"(load average before: {os.getloadavg()[0]:.2f})")
+    print(f"5. streamed iq record of {n:.3g} samples, {modes} mechanical mode(s), on {cores} "
+          f"core(s), M samples/s (load average before: {os.getloadavg()[0]:.2f})")
     t_numpy = best_of(lambda: [block_generator(plan.seed, SAMPLE_STREAM, k).standard_normal(
-        (BLOCK_SAMPLES, width)) for k in range(blocks)], repeats=2)
+        (BLOCK_SAMPLES, width)) for k in range(min(blocks, 256))], repeats=2) * blocks / min(
+        blocks, 256)
     t_draw = best_of(lambda: [None for _ in kernels.NormalBlocks(
         plan.seed, SAMPLE_STREAM, width, BLOCK_SAMPLES).pieces(0, n)], repeats=2)
     normals = kernels.NormalBlocks(plan.seed, SAMPLE_STREAM, width, BLOCK_SAMPLES).take(
@@ -307,29 +335,41 @@ def every_core(n, repeats):
     t_rec = best_of(lambda: step(normals, y, mech)) * n / len(normals)
     t_seq = sequential_loop(plan, step, normals) * n / len(normals)
     bound, numpy_bound, rec, seq = n / t_draw, n / t_numpy, n / t_rec, n / t_seq
+    kernel = 1 / (1 / bound + 1 / seq)  # one core: draw, then recurse and digitise
     target = min(0.8 * cores * bound, seq)
     print(f"   single-core normal bound:  {bound / 1e6:8.2f} (numba's ziggurat, as records draw"
           f" them; numpy's own loop: {numpy_bound / 1e6:.2f})")
     print(f"   recursion alone: {rec / 1e6:8.2f}   the record's sequential loop (recursion and "
-          f"digitiser): {seq / 1e6:8.2f}")
+          f"digitiser): {seq / 1e6:8.2f}   the kernel on one core (normals, recursion, "
+          f"digitiser): {kernel / 1e6:8.2f}")
     print(f"   target: {target / 1e6:.2f} (0.8 x cores x bound, capped by the sequential loop)")
-    stage_ceiling(plan, y, t_draw / n, t_seq / n, cores)
+    ceiling = stage_ceiling(plan, y, t_draw / n, t_seq / n, cores)
     with tempfile.TemporaryDirectory() as tmp, warnings.catch_warnings():
         warnings.simplefilter("ignore")
         path = Path(tmp) / "r.h5"
-        simulate_record(scenario(1e-3), out=path, seed=1, overwrite=True)  # compile
+        simulate_record(make(1e-3), out=path, seed=1, overwrite=True)  # compile
         rates = {}
-        for compression in ("none", "deflate"):
+        for compression in ("none", "deflate") if modes == 1 else ("none",):
             for workers in sorted({1, cores}):
-                rates[compression, workers] = n / best_of(lambda c=compression, w=workers: (
-                    simulate_record(scenario(n / 2e6), out=path, seed=1, overwrite=True,
-                                    workers=w, compression=c)), repeats=repeats)
+                spent = []
+
+                def record(c=compression, w=workers, spent=spent):
+                    before = resource.getrusage(resource.RUSAGE_SELF)
+                    simulate_record(make(n / 2e6), out=path, seed=1, overwrite=True,
+                                    workers=w, compression=c)
+                    after = resource.getrusage(resource.RUSAGE_SELF)
+                    spent.append(after.ru_utime + after.ru_stime - before.ru_utime
+                                 - before.ru_stime)
+
+                rates[compression, workers] = n / best_of(record, repeats=repeats)
                 rate = rates[compression, workers]
                 print(f"   {compression:8s} {workers} thread(s): {rate / 1e6:8.2f}"
-                      f"   / target {rate / target:5.2f}"
-                      f"   / (cores x bound) {rate / (cores * bound):5.2f}"
+                      f"   / sequential loop {rate / seq:5.2f}"
+                      f"   / kernel {rate / kernel:5.2f}"
+                      f"   / ceiling {rate / ceiling:5.2f}"
                       f"   / (cores x numpy's bound) {rate / (cores * numpy_bound):5.2f}"
-                      f"   speed-up {rate / rates[compression, 1]:4.2f}")
+                      f"   speed-up {rate / rates[compression, 1]:4.2f}"
+                      f"   core time {1e9 * min(spent) / n:5.1f} ns/sample")
     print(f"   (load average after: {os.getloadavg()[0]:.2f})")
     return rates["none", cores]
 
@@ -384,10 +424,11 @@ def stage_ceiling(plan, y, draw_ns, sequential_ns, cores):
     total = sum(stages.values())
     print("   core time per sample, ns:  " + "   ".join(
         f"{name} {1e9 * t:.1f}" for name, t in stages.items()))
+    ceiling = min(cores / total, 1 / sequential_ns)
     print(f"   ceiling with every core busy: {cores / total / 1e6:8.2f}   "
           f"ceiling of the calling thread: {1 / sequential_ns / 1e6:8.2f}   "
-          f"= {min(cores / total, 1 / sequential_ns) * sequential_ns:4.2f} of the sequential "
-          "loop")
+          f"= {ceiling * sequential_ns:4.2f} of the sequential loop")
+    return ceiling
 
 
 COMPRESSION_CHUNK = 1 << 18
@@ -528,6 +569,9 @@ def main():
     parser.add_argument("--repeats", type=int, default=2,
                         help="streamed records of section 5 per setting (the best counts)")
     parser.add_argument("--only", default="1,2,3,4,5,6,7,8", help="sections to run, e.g. 5,6")
+    parser.add_argument("--modes", type=int, default=1,
+                        help="mechanical modes of section 5's record (8: a recursion that is "
+                             "the limit on 2 cores)")
     args = parser.parse_args()
     only = {int(x) for x in args.only.split(",")}
     kernel = int(args.kernel_samples)
@@ -535,7 +579,7 @@ def main():
                 2: lambda: full_state_against_baselines(kernel // 4, args.skip_qutip),
                 3: lambda: modal_against_dense(kernel),
                 4: lambda: streamed_memory([int(args.samples) // 10, int(args.samples)]),
-                5: lambda: every_core(int(args.samples), args.repeats),
+                5: lambda: every_core(int(args.samples), args.repeats, args.modes),
                 6: lambda: compression_options(kernel)}
     rate = None
     for number, run in sections.items():
