@@ -14,10 +14,10 @@ These paths give sweeps and plans the pair's own coordinates:
 ``pair.mean_detuning_hz``
     Δ̄ = (Δ− + Δ+)/2, the pair's centre from the cavity (measured as
     ``drive.detuning_reference`` says); setting it moves both tones together.
-``pair.half_spacing_hz``
-    ν = (Δ+ − Δ−)/2, half the tones' spacing (ν = Ωm for the ideal pair; with
-    ``unit = "mechanics[0].frequency_hz"`` a range reads ν/Ωm); setting it
-    keeps the centre.
+``pair.spacing_offset_hz``
+    ν − Ωm, half the tones' spacing ν = (Δ+ − Δ−)/2 less the mechanical
+    frequency (0 for the ideal pair: the tones at exactly ±Ωm about their
+    centre); setting it keeps the centre.
 
 They exist for a declared pair only; elsewhere they are refused with the
 reason. :class:`simulator.scenario.loader.Scenario` hands them here from
@@ -31,8 +31,8 @@ from simulator.scenario import units
 
 PREFIX = "pair."
 POWER, POWER_DBM = "pair.power_w", "pair.power_dbm"
-MEAN_DETUNING, HALF_SPACING = "pair.mean_detuning_hz", "pair.half_spacing_hz"
-PATHS = (POWER, POWER_DBM, MEAN_DETUNING, HALF_SPACING)
+MEAN_DETUNING, SPACING_OFFSET = "pair.mean_detuning_hz", "pair.spacing_offset_hz"
+PATHS = (POWER, POWER_DBM, MEAN_DETUNING, SPACING_OFFSET)
 
 
 def is_pair_path(path):
@@ -60,7 +60,7 @@ def get(scenario, path):
         return units.dbm_from_watts(total) if path == POWER_DBM else total
     if path == MEAN_DETUNING:
         return (drive.detuning_hz + tone.detuning_hz) / 2
-    return abs(tone.detuning_hz - drive.detuning_hz) / 2
+    return abs(tone.detuning_hz - drive.detuning_hz) / 2 - scenario.mechanics[0].frequency_hz
 
 
 def replace(scenario, path, value):
@@ -88,14 +88,16 @@ def replace(scenario, path, value):
             table.pop("power_dbm", None)
             table["power_w"] = total * share
     else:
-        mean, half = get(scenario, MEAN_DETUNING), get(scenario, HALF_SPACING)
+        omega = scenario.mechanics[0].frequency_hz
+        mean, half = get(scenario, MEAN_DETUNING), get(scenario, SPACING_OFFSET) + omega
         if path == MEAN_DETUNING:
             mean = value
-        elif value > 0:
-            half = value
+        elif value > -omega:
+            half = omega + value
         else:
-            raise ScenarioError(f"{value!r} Hz; expected half the tones' spacing, a "
-                                "positive frequency", source=scenario.source, key=path)
+            raise ScenarioError(f"{value!r} Hz; expected an offset of half the tones' "
+                                f"spacing from Ωm/2π = {omega:.6g} Hz above −Ωm/2π (a "
+                                "positive spacing)", source=scenario.source, key=path)
         upper_is_tone = scenario.tones[0].detuning_hz >= scenario.drive.detuning_hz
         sign = 1.0 if upper_is_tone else -1.0
         tone["detuning_hz"], drive["detuning_hz"] = mean + sign * half, mean - sign * half

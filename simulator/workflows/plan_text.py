@@ -5,7 +5,7 @@ import math
 from simulator.analysis.planner import relative_change
 
 UNITS = {"asymmetry_time": "s", "occupation_error": "", "occupation": "",
-         "recorded_tones_time": "s"}
+         "recorded_tones_time": "s", "thermal_variance_time": "s"}
 
 
 def describe_objective(plan, mode_name, scenario=None):
@@ -21,6 +21,9 @@ def describe_objective(plan, mode_name, scenario=None):
         tones = " and ".join(sets[-1]) if sets else "the tones"
         return (f"joint time T of {tones} recorded together (mode {mode_name}: "
                 f"n/(n+1) told from 1 at {plan.significance:g}σ)")
+    if plan.objective == "thermal_variance_time":
+        return (f"time for the thermal variance n_th + ½ of mode {mode_name} to "
+                f"{plan.relative_error:g} of itself")
     if plan.objective == "occupation_error":
         return (f"Cramér–Rao error of the occupation of mode {mode_name} after "
                 f"{plan.duration_s:g} s")
