@@ -213,7 +213,13 @@ class Scenario:
         dBm (``"drive.power_dbm"``); a pair's paths are :mod:`simulator.scenario.pair_paths`.
         """
         if pair_paths.is_pair_path(path):
-            return pair_paths.replace(self, path, value)
+            try:
+                return scenario_from_dict(pair_paths.replaced_data(self, path, value),
+                                          source=self.source)
+            except ScenarioError as exc:
+                if exc.key == path:
+                    raise
+                raise pair_paths.restated(exc, path, value) from None
         canonical, alias = self._canonical(path)
         if alias:
             watts = units.watts_from_dbm(units.dbm_value(value, path, self.source))

@@ -21,7 +21,7 @@ These paths give sweeps and plans the pair's own coordinates:
 
 They exist for a declared pair only; elsewhere they are refused with the
 reason. :class:`simulator.scenario.loader.Scenario` hands them here from
-``get`` and ``replace``.
+``get`` and ``replace`` (which builds the new scenario from :func:`replaced_data`).
 """
 
 import math
@@ -63,10 +63,10 @@ def get(scenario, path):
     return abs(tone.detuning_hz - drive.detuning_hz) / 2 - scenario.mechanics[0].frequency_hz
 
 
-def replace(scenario, path, value):
-    """New scenario with the pair's ``path`` set to ``value`` (module notes), re-validated."""
-    from simulator.scenario.loader import scenario_from_dict
-
+def replaced_data(scenario, path, value):
+    """Plain data of ``scenario`` with the pair's ``path`` set to ``value`` (module notes);
+    the loader builds and checks the new scenario from it (:func:`restated` words its
+    errors)."""
     _require_pair(scenario, path)
     if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(
             float(value)):
@@ -101,8 +101,10 @@ def replace(scenario, path, value):
         upper_is_tone = scenario.tones[0].detuning_hz >= scenario.drive.detuning_hz
         sign = 1.0 if upper_is_tone else -1.0
         tone["detuning_hz"], drive["detuning_hz"] = mean + sign * half, mean - sign * half
-    try:
-        return scenario_from_dict(data, source=scenario.source)
-    except ScenarioError as exc:
-        raise ScenarioError(f"{path} = {value!r} makes the tones invalid: {exc.detail}",
-                            source=scenario.source, key=path) from None
+    return data
+
+
+def restated(exc, path, value):
+    """The error of the scenario built by :func:`replaced_data`, naming the pair's path."""
+    return ScenarioError(f"{path} = {value!r} makes the tones invalid: {exc.detail}",
+                         source=exc.source, key=path)
