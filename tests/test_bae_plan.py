@@ -126,6 +126,7 @@ def test_capped_backaction_heating_sets_the_power():
     assert result.found.best[0] == pytest.approx(at_cap, rel=2e-3)
     brute = brute_force(planned, np.geomspace(at_cap / 20, at_cap * 5, 25))
     assert result.found.best_outcome.objective <= min(brute)[0] * (1 + 1e-6)
+    assert f"X2 heated by {cap:.4g} quanta" in result.to_text()
 
 
 def test_pair_paths_move_both_tones():

@@ -124,6 +124,17 @@ def thermal_variance_time(system, mode=0, relative_error=0.01):
                         duration_s=float((error / (relative_error * variance)) ** 2))
 
 
+def pair_quantities(system):
+    """A pair's X2 back-action heating and X1 counter-rotating residual, in quanta
+    (:func:`simulator.linear.quadratures.quadrature_budget`), by the names the planner
+    and sweeps report them under."""
+    from simulator.linear.quadratures import quadrature_budget
+
+    budget = quadrature_budget(system)
+    return {"x2_backaction_heating": budget.x2_heating,
+            "x1_counter_rotating": budget.x1_counter_rotating}
+
+
 def _resolution(system, scheme):
     """:class:`Resolution` of ``system``'s record, n_th the only unknown."""
     error = bath_error_one_second(system, 0)

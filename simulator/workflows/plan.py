@@ -174,7 +174,9 @@ def evaluate_plan_point(scenario, plan, assignments):
         violations["regime"] = float(LEVELS.index(level) > LEVELS.index(plan.regime))
         quantities.update(regime=level, occupation=occupations[plan.mode])
         if system.scenario.detection.backaction_evading:
-            quantities.update(_pair_quantities(system))
+            from simulator.analysis.bae_feasibility import pair_quantities
+
+            quantities.update(pair_quantities(system))
         for name, (key, limit) in limits.items():
             violations[name] = (quantities[key] - limit) / limit
     violations["signal"] = 0.0 if math.isfinite(objective) or not verdict.stable else 1.0
@@ -187,15 +189,6 @@ def _stable_limits(plan):
               "max_backaction_heating": ("x2_backaction_heating",
                                          plan.max_backaction_heating)}
     return {name: limit for name, limit in limits.items() if limit[1] is not None}
-
-
-def _pair_quantities(system):
-    """A back-action-evading pair's X2 heating and X1 counter-rotating residual (quanta)."""
-    from simulator.linear.quadratures import quadrature_budget
-
-    budget = quadrature_budget(system)
-    return {"x2_backaction_heating": budget.x2_heating,
-            "x1_counter_rotating": budget.x1_counter_rotating}
 
 
 def _objective(system, plan):

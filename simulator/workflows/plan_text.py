@@ -132,6 +132,10 @@ def plan_text(d):
         lines.append(f"  there: {q.get('photon_number', math.nan):.4g} intracavity photons, "
                      f"growth rate {q.get('growth_rate_hz', math.nan):.4g} Hz, regime "
                      f"{q.get('regime', '?')}, occupation {q.get('occupation', math.nan):.4g}")
+        if "x2_backaction_heating" in q:  # a back-action-evading pair
+            lines.append(f"  the pair there: X2 heated by {q['x2_backaction_heating']:.4g} "
+                         f"quanta, X1's counter-rotating residual "
+                         f"{q['x1_counter_rotating']:.4g} quanta")
         active = ", ".join(d["active_constraints"]) or (
             "none (the optimum is on the edge of the searched range)" if d["at_bounds"]
             else "none (an interior optimum)")

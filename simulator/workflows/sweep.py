@@ -215,13 +215,11 @@ def _add_scheme_quantities(scenario, result):
     system = System(scenario)
     result.update({k: [float("nan")] * len(scenario.mechanics) for k in names})
     if names is PAIR_QUANTITIES:
-        from simulator.analysis.bae_feasibility import bath_error_one_second
-        from simulator.linear.quadratures import quadrature_budget
+        from simulator.analysis.bae_feasibility import bath_error_one_second, pair_quantities
 
-        budget = quadrature_budget(system)
         result["thermal_variance_error_1s"][0] = bath_error_one_second(system, 0)
-        result["x2_backaction_heating"][0] = budget.x2_heating
-        result["x1_counter_rotating"][0] = budget.x1_counter_rotating
+        for name, value in pair_quantities(system).items():
+            result[name][0] = value
         return
     from simulator.analysis.joint_feasibility import detected_tone_sets, joint_bound
 
