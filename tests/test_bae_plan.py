@@ -35,6 +35,7 @@ from simulator.linear.quadratures import (
     imprecision_closed_form,
     quadrature_budget,
 )
+from simulator.linear.steady_state import steady_state
 from simulator.model.backaction_evasion import pair_parameters
 from simulator.model.system import System
 from simulator.scenario.labels import axis_label
@@ -127,6 +128,20 @@ def test_capped_backaction_heating_sets_the_power():
     brute = brute_force(planned, np.geomspace(at_cap / 20, at_cap * 5, 25))
     assert result.found.best_outcome.objective <= min(brute)[0] * (1 + 1e-6)
     assert f"X2 heated by {cap:.4g} quanta" in result.to_text()
+
+
+def test_occupation_limit_reads_the_heated_mode():
+    """max_occupation compares the mode's occupation (X1 and X2 together, so X2's heating)
+    with its limit: violated by the relative excess, satisfied below it."""
+    base = pair()
+    occupation = steady_state(base).modes[0].occupation
+    for limit in (occupation / 2, occupation * 2):
+        planned = pair(plan=power_plan(1e-11, 1e-9, f"max_occupation = {limit!r}\n"))
+        outcome = evaluate_plan_point(planned, planned.plan, [])
+        assert outcome.quantities["occupation"] == pytest.approx(occupation, rel=1e-12)
+        assert outcome.violations["max_occupation"] == pytest.approx(occupation / limit - 1)
+    budget = quadrature_budget(base)
+    assert occupation == pytest.approx((budget.x1_variance + budget.x2_variance - 1) / 2)
 
 
 def test_pair_paths_move_both_tones():

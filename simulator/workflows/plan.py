@@ -164,6 +164,10 @@ def evaluate_plan_point(scenario, plan, assignments):
     if verdict.stable:
         try:
             objective, occupations = _objective(system, plan)
+            if system.scenario.detection.backaction_evading:
+                from simulator.analysis.bae_feasibility import pair_quantities
+
+                quantities.update(pair_quantities(system))
         except (ArithmeticError, ValueError, OperatingPointError) as exc:
             # a numerical failure at this point (recorded with it), not of the search
             quantities["error"] = f"{type(exc).__name__}: {exc}"
@@ -173,10 +177,6 @@ def evaluate_plan_point(scenario, plan, assignments):
         level = regime_verdict(point, occupations).level
         violations["regime"] = float(LEVELS.index(level) > LEVELS.index(plan.regime))
         quantities.update(regime=level, occupation=occupations[plan.mode])
-        if system.scenario.detection.backaction_evading:
-            from simulator.analysis.bae_feasibility import pair_quantities
-
-            quantities.update(pair_quantities(system))
         for name, (key, limit) in limits.items():
             violations[name] = (quantities[key] - limit) / limit
     violations["signal"] = 0.0 if math.isfinite(objective) or not verdict.stable else 1.0
