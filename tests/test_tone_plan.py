@@ -66,3 +66,28 @@ def test_planner_optimum_matches_a_brute_force_grid(planned):
     cap_dbm = 10 * np.log10((1.6e-10 - 1.2e-10 - 1.37e-11) / 1e-3)
     assert result.found.best[0] == pytest.approx(cap_dbm, abs=0.2)
     assert result.found.best[1] == pytest.approx(grid_best[2], abs=0.1e6)
+
+
+def test_sweep_stores_the_joint_bound_of_the_recorded_tones(tmp_path):
+    """A sweep of the two-probe drum stores the joint time and error of both probes
+    recorded together (the planner's recorded_tones_time), equal to the direct bound,
+    with units and a description; no back-action-evading variables."""
+    from simulator.analysis.joint_feasibility import joint_bound
+    from simulator.workflows.sweep import run_sweep
+
+    sweep = '\n[sweep]\n[sweep.parameters]\n"tones.red_probe.power_dbm" = [-84.0, -78.0]\n'
+    scenario = parse_scenario(SCENARIO.read_text() + sweep, source=str(SCENARIO))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # tone-spacing advisories
+        ds = run_sweep(scenario, tmp_path / "s", workers=1, progress=False)
+        direct = joint_bound(load_scenario(SCENARIO).replace("tones.red_probe.power_dbm", -78.0),
+                             ("red_probe", "blue_probe"), 0)
+    assert float(ds["recorded_tones_time_s"][1, 0]) == pytest.approx(direct.duration_s,
+                                                                      rel=1e-12)
+    assert float(ds["recorded_tones_error_1s"][1, 0]) == pytest.approx(
+        direct.error_one_second, rel=1e-12)
+    assert ds["recorded_tones_time_s"].attrs["units"] == "s"
+    assert "together" in ds["recorded_tones_time_s"].attrs["description"]
+    assert "x2_backaction_heating" not in ds
+    # more red-probe power, more information: the joint time falls
+    assert ds["recorded_tones_time_s"][1, 0] < ds["recorded_tones_time_s"][0, 0]

@@ -72,11 +72,15 @@ class Device:
 
     @classmethod
     def from_scenario(cls, system, mode=0):
-        """Nominal device parameters from a system's (or scenario's) operating point (not g0)."""
+        """Nominal device parameters from a system's (or scenario's) operating point (not g0).
+
+        With several tones, the drive's as its receiver sees it (the calibration tone
+        modulates the drive; another tone's receiver with a calibration tone is refused:
+        :func:`simulator.model.detected_tone.require_quiet_detection`)."""
         from simulator.analysis.thermometry import Calibration
         from simulator.model.system import as_system
 
-        system = as_system(system, stage="simulator.analysis.calibration.Device.from_scenario")
+        system = as_system(system, several_tones="detected")
         known = Calibration.from_scenario(system, mode)
         return cls(photon_number=system.point.photon_number, **{
             f.name: getattr(known, f.name) for f in dataclasses.fields(cls)

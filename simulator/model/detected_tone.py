@@ -31,7 +31,10 @@ import numpy as np
 
 from simulator.errors import InputError
 from simulator.model.optomechanics import OUTPUTS
-from simulator.scenario.tone_sections import detected_tone_names  # noqa: F401  (part of this module's API)
+from simulator.scenario.tone_sections import (  # noqa: F401  (detected_tone_names: part of this module's API)
+    PRIMARY_TONE,
+    detected_tone_names,
+)
 
 
 def detected_index(scenario, point):
@@ -41,13 +44,27 @@ def detected_index(scenario, point):
 
 
 def require_quiet_detection(scenario):
-    """Refuse a calibration tone with several tones (see :func:`detected_parts`)."""
-    if scenario.drive.calibration_tone.depth_rad > 0:
+    """Refuse a calibration tone with several tones unless the drive's receiver alone
+    records (see :func:`detected_parts`).
+
+    The tone modulates the drive's phase: its lines sit at ±Ω about the drive, in the
+    drive's own output field. The drive's receiver sees them there, beside the drive's
+    motional sidebands, as with one tone (the mechanics' response to the modulation
+    carries every tone's damping and spring). Another tone's receiver would see them
+    at the tones' spacing ± Ω, in the drive's field, which the model of several tones
+    leaves out of that receiver's record (its carrier and sidebands too); what is left
+    there is the mechanics' response alone, with no line of known depth beside the
+    motional sidebands to calibrate them against, so it is refused.
+    """
+    names = detected_tone_names(scenario)
+    if scenario.drive.calibration_tone.depth_rad > 0 and tuple(names) != (PRIMARY_TONE,):
         raise InputError(
-            "the detection chain with several drive tones does not yet support a "
-            "calibration tone (drive.calibration_tone); supported so far with [[tones]]: "
-            "classical phase and intensity noise on every tone, and the steady state with "
-            "a calibration tone (simulator.linear.steady_state)")
+            f"a calibration tone (drive.calibration_tone) recorded by the receiver of "
+            f"{', '.join(repr(n) for n in names)}: the tone modulates the drive, and its "
+            "lines lie in the drive's field, at the tones' spacing ± Ω from that receiver, "
+            "where the model of several tones keeps none of the drive's field; expected "
+            "detection.tone = \"drive\" (the drive's receiver sees the lines at ±Ω), or "
+            "no calibration tone")
 
 
 def detected_parts(scenario, point, model):
@@ -56,8 +73,8 @@ def detected_parts(scenario, point, model):
     Raises
     ------
     InputError
-        With several tones and a calibration tone on the drive: its line around
-        another tone is not modelled yet.
+        With several tones, a calibration tone on the drive and another tone's
+        receiver (:func:`require_quiet_detection`).
     """
     if not point.several_tones:
         return point, model

@@ -21,12 +21,15 @@ _CONSTRAINT_WORDS = {"max_power_w": "maximum drive power",
                      "bistability_margin": "distance from bistability",
                      "regime": "linear-engine regime",
                      "signal": "a finite bound (a line to measure)",
-                     "valid": "a valid scenario"}
+                     "valid": "a valid scenario",
+                     "max_occupation": "maximum occupation",
+                     "max_backaction_heating": "maximum back-action heating of X2"}
 # the objective in a few words, for the colour bar and the vertical axis
 _OBJECTIVE_WORDS = {"asymmetry_time": "time to resolve the asymmetry",
                     "occupation_error": "error of the occupation",
                     "occupation": "occupation",
-                    "recorded_tones_time": "time T of the tones recorded together"}
+                    "recorded_tones_time": "time T of the tones recorded together",
+                    "thermal_variance_time": "time to resolve n_th + ½"}
 
 
 def _label(axis):

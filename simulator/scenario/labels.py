@@ -77,6 +77,9 @@ _TABLE = {
     "digitizer.sample_rate_hz": ("sample rate", "fs"),
     "digitizer.bits": ("digitiser resolution", ""),
     "record.duration_s": ("record duration", "T"),
+    "pair.power_w": ("back-action-evading pair's total power", "P"),
+    "pair.mean_detuning_hz": ("pair's mean detuning", "Δ̄"),
+    "pair.spacing_offset_hz": ("pair's spacing offset", "(ν − Ωm)"),
 }
 _MODE = re.compile(r"^mechanics\[(\d+)\]\.(.+)$")
 

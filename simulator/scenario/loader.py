@@ -17,7 +17,7 @@ from collections.abc import Mapping
 from pathlib import Path
 
 from simulator.errors import ScenarioError
-from simulator.scenario import schema, units
+from simulator.scenario import pair_paths, schema, units
 from simulator.scenario.local_oscillator import local_oscillator_problems
 from simulator.scenario.paths import (
     assign,
@@ -146,6 +146,8 @@ class Scenario:
                 "; expected a path such as 'drive.detuning_hz'")
             yield key, exc.detail + hint
             return
+        if pair_paths.is_pair_path(path):
+            return  # a back-action-evading pair's own number (simulator.scenario.pair_paths)
         if path.split(".")[0] in ("sweep", "plan", "schedule") or dataclasses.is_dataclass(
                 value) or isinstance(value, tuple):
             yield key, f"{path!r} does not name a single scenario parameter"
@@ -183,8 +185,11 @@ class Scenario:
     def get(self, path):
         """Value at a parameter path such as ``"mechanics[0].frequency_hz"``.
 
-        A power may be asked for in dBm: ``"drive.power_dbm"``.
+        A power may be asked for in dBm: ``"drive.power_dbm"``. A back-action-evading
+        pair has its own paths (``"pair.power_w"``; :mod:`simulator.scenario.pair_paths`).
         """
+        if pair_paths.is_pair_path(path):
+            return pair_paths.get(self, path)
         canonical, alias = self._canonical(path)
         if alias:
             return units.dbm_from_watts(self.get(canonical))
@@ -205,8 +210,16 @@ class Scenario:
 
         Setting one of two exclusive or alternative keys (for example
         ``bath_temperature_k``) clears the other one. A power may be set in
-        dBm (``"drive.power_dbm"``).
+        dBm (``"drive.power_dbm"``); a pair's paths are :mod:`simulator.scenario.pair_paths`.
         """
+        if pair_paths.is_pair_path(path):
+            try:
+                return scenario_from_dict(pair_paths.replaced_data(self, path, value),
+                                          source=self.source)
+            except ScenarioError as exc:
+                if exc.key == path:
+                    raise
+                raise pair_paths.restated(exc, path, value) from None
         canonical, alias = self._canonical(path)
         if alias:
             watts = units.watts_from_dbm(units.dbm_value(value, path, self.source))

@@ -21,7 +21,8 @@ import dataclasses
 from simulator.scenario.schema import param
 from simulator.scenario.sweep_section import parse_parameters
 
-OBJECTIVES = ("asymmetry_time", "occupation_error", "occupation", "recorded_tones_time")
+OBJECTIVES = ("asymmetry_time", "occupation_error", "occupation", "recorded_tones_time",
+              "thermal_variance_time")
 REGIME_LEVELS = ("linear", "marginal", "nonlinear")
 
 
@@ -33,7 +34,10 @@ class Plan:
         "what to minimise: the integration time to resolve the quantum sideband asymmetry "
         "(heterodyne), the Cramér–Rao error of the occupation after duration_s, the "
         "steady-state occupation, or with several tones the time T of the tones recorded "
-        "together (joint Whittle bound: the sideband ratio told from 1 at significance)",
+        "together (joint Whittle bound: the sideband ratio told from 1 at significance); "
+        "thermal_variance_time: the time for the Cramér–Rao error of the mode's thermal "
+        "variance n_th + ½ to fall to relative_error of it (X1's, for a back-action-evading "
+        "pair)",
         choices=OBJECTIVES, default="asymmetry_time")
     mode: int = param("index of the mechanical mode the objective is about (0: the first "
                       "[[mechanics]] table)", check="nonnegative", default=0, high=999)
@@ -44,6 +48,9 @@ class Plan:
     duration_s: float = param(
         "integration time of the occupation error (objective occupation_error)", unit="s",
         check="positive", default=1.0, high=1e9)
+    relative_error: float = param(
+        "the error of the thermal variance n_th + ½ asked for, as a fraction of it "
+        "(objective thermal_variance_time)", check="positive", default=0.01, high=0.5)
     parameters: dict = param(
         "parameter path → range {start, stop, num, log, unit} (bounds, spacing, coarse-grid "
         "points) or a list of values (a discrete choice)", parser=parse_parameters,
@@ -55,6 +62,14 @@ class Plan:
     max_photon_number: float | None = param(
         "largest intracavity photon number allowed; left out: no limit", check="positive",
         default=None, high=1e20)
+    max_occupation: float | None = param(
+        "largest steady-state occupation of the mode allowed, (⟨X²⟩ + ⟨Y²⟩ − 1)/2 (for a "
+        "back-action-evading pair it carries the heating of X2); left out: no limit",
+        check="positive", default=None, high=1e15)
+    max_backaction_heating: float | None = param(
+        "back-action-evading pair only: largest variance, in quanta, the cavity's noise "
+        "may drive into the conjugate quadrature X2; left out: no limit",
+        check="positive", default=None, high=1e15)
     max_growth_rate_hz: float = param(
         "stability margin: the largest eigenvalue real part of the drift matrix, λ/2π, "
         "must stay at or below this (negative: every fluctuation decays at least this "

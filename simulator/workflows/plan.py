@@ -16,7 +16,12 @@ of the occupation after ``duration_s``
 (:func:`simulator.analysis.feasibility.occupation_bound`), the exact
 steady-state occupation, or with several tones the time of the tones recorded
 together (``recorded_tones_time``, the joint bound of
-:func:`simulator.analysis.joint_feasibility.joint_bound`). Each tone's power
+:func:`simulator.analysis.joint_feasibility.joint_bound`), or the time for the
+error of the mode's thermal variance n_th + ½ to fall to ``relative_error`` of
+it (``thermal_variance_time``,
+:func:`simulator.analysis.bae_feasibility.thermal_variance_time`: X1's for a
+back-action-evading pair, whose power and detuning are the ``pair.`` paths of
+:mod:`simulator.scenario.pair_paths`). Each tone's power
 and detuning are free parameters like the drive's (``tones.<name>.power_w``,
 ``tones.<name>.power_dbm``, ``tones.<name>.detuning_hz`` or ``tones[i]....``).
 
@@ -25,7 +30,10 @@ Constraints, each reported by name: ``max_power_w``, ``max_photon_number``,
 unstable point always fails), ``bistability_margin`` (the photon number stays
 single-valued when the power and the detuning change by up to that fraction),
 ``regime`` (the linear engine's verdict, :mod:`simulator.master.regime`), and
-``signal`` (the record carries a finite bound at all). An optional heating
+``signal`` (the record carries a finite bound at all), ``max_occupation`` (the
+mode's steady-state occupation) and, for a back-action-evading pair,
+``max_backaction_heating`` (the variance the cavity's noise drives into X2,
+:func:`simulator.linear.quadratures.quadrature_budget`). An optional heating
 model raises every mode's bath temperature linearly with the intracavity
 photon number or the circulating power: in practice absorption heating, not
 the optics, is what limits the drive power (common practice).
@@ -76,6 +84,11 @@ def check_plan(scenario):
                             "sideband asymmetry; expected the objective \"occupation\" or "
                             "\"occupation_error\"", source=scenario.source,
                             key="plan.objective")
+    if plan.max_backaction_heating is not None and not scenario.detection.backaction_evading:
+        raise ScenarioError("max_backaction_heating limits the heating of the conjugate "
+                            "quadrature X2 of a back-action-evading pair; expected "
+                            "detection.backaction_evading = true, or max_occupation",
+                            source=scenario.source, key="plan.max_backaction_heating")
     if plan.heating_per_photon_k > 0 or plan.heating_k_per_w > 0:
         for i, mode in enumerate(scenario.mechanics):
             if mode.bath_temperature_k is None:
@@ -146,9 +159,15 @@ def evaluate_plan_point(scenario, plan, assignments):
                   "bath_temperature_k": scenario.mechanics[plan.mode].bath_temperature_k}
     objective = inf
     violations["regime"] = 0.0
+    limits = _stable_limits(plan)
+    violations.update({name: 0.0 for name in limits})  # an unstable point fails "stability"
     if verdict.stable:
         try:
             objective, occupations = _objective(system, plan)
+            if system.scenario.detection.backaction_evading:
+                from simulator.analysis.bae_feasibility import pair_quantities
+
+                quantities.update(pair_quantities(system))
         except (ArithmeticError, ValueError, OperatingPointError) as exc:
             # a numerical failure at this point (recorded with it), not of the search
             quantities["error"] = f"{type(exc).__name__}: {exc}"
@@ -158,8 +177,18 @@ def evaluate_plan_point(scenario, plan, assignments):
         level = regime_verdict(point, occupations).level
         violations["regime"] = float(LEVELS.index(level) > LEVELS.index(plan.regime))
         quantities.update(regime=level, occupation=occupations[plan.mode])
+        for name, (key, limit) in limits.items():
+            violations[name] = (quantities[key] - limit) / limit
     violations["signal"] = 0.0 if math.isfinite(objective) or not verdict.stable else 1.0
     return Outcome(float(objective), violations, quantities)
+
+
+def _stable_limits(plan):
+    """Constraint name → (quantity it limits, limit), for the limits read at a stable point."""
+    limits = {"max_occupation": ("occupation", plan.max_occupation),
+              "max_backaction_heating": ("x2_backaction_heating",
+                                         plan.max_backaction_heating)}
+    return {name: limit for name, limit in limits.items() if limit[1] is not None}
 
 
 def _objective(system, plan):
@@ -182,6 +211,11 @@ def _objective(system, plan):
             if system.several_tones else system.scenario.drive.power_w == 0
             or system.scenario.mechanics[plan.mode].coupling_hz == 0):
         return math.inf, occupations  # the record carries no trace of the mode
+    if plan.objective == "thermal_variance_time":
+        from simulator.analysis.bae_feasibility import thermal_variance_time
+
+        return thermal_variance_time(system, plan.mode,
+                                     plan.relative_error).duration_s, occupations
     if plan.objective == "asymmetry_time":
         return feasibility.asymmetry_time(system, plan.mode, plan.significance,
                                           steady=steady).duration_s, occupations

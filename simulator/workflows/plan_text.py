@@ -5,7 +5,7 @@ import math
 from simulator.analysis.planner import relative_change
 
 UNITS = {"asymmetry_time": "s", "occupation_error": "", "occupation": "",
-         "recorded_tones_time": "s"}
+         "recorded_tones_time": "s", "thermal_variance_time": "s"}
 
 
 def describe_objective(plan, mode_name, scenario=None):
@@ -21,6 +21,9 @@ def describe_objective(plan, mode_name, scenario=None):
         tones = " and ".join(sets[-1]) if sets else "the tones"
         return (f"joint time T of {tones} recorded together (mode {mode_name}: "
                 f"n/(n+1) told from 1 at {plan.significance:g}σ)")
+    if plan.objective == "thermal_variance_time":
+        return (f"time for the thermal variance n_th + ½ of mode {mode_name} to "
+                f"{plan.relative_error:g} of itself")
     if plan.objective == "occupation_error":
         return (f"Cramér–Rao error of the occupation of mode {mode_name} after "
                 f"{plan.duration_s:g} s")
@@ -129,6 +132,10 @@ def plan_text(d):
         lines.append(f"  there: {q.get('photon_number', math.nan):.4g} intracavity photons, "
                      f"growth rate {q.get('growth_rate_hz', math.nan):.4g} Hz, regime "
                      f"{q.get('regime', '?')}, occupation {q.get('occupation', math.nan):.4g}")
+        if "x2_backaction_heating" in q:  # a back-action-evading pair
+            lines.append(f"  the pair there: X2 heated by {q['x2_backaction_heating']:.4g} "
+                         f"quanta, X1's counter-rotating residual "
+                         f"{q['x1_counter_rotating']:.4g} quanta")
         active = ", ".join(d["active_constraints"]) or (
             "none (the optimum is on the edge of the searched range)" if d["at_bounds"]
             else "none (an interior optimum)")

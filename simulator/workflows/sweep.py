@@ -54,6 +54,29 @@ MODE_QUANTITIES = {
     "occupation_from_ratio": "",
     "asymmetry_time_s": "s",
 }
+# Per-point, per-mode results that exist only for some scenarios: name → (units,
+# description). The joint bound of the tones recorded together when the scenario has
+# [[tones]] recorded by an iq or homodyne receiver (the tones of the planner's
+# recorded_tones_time); a back-action-evading pair's own quantities when it declares one.
+# A scenario without them has no such variables (not NaN-filled ones).
+TONE_QUANTITIES = {
+    "recorded_tones_time_s": ("s", "joint Whittle bound: time for the tones recorded "
+                              "together to tell the sideband ratio n/(n+1) from 1 at 5 "
+                              "standard deviations (simulator.analysis.joint_feasibility)"),
+    "recorded_tones_error_1s": ("", "Cramér–Rao error of the occupation after 1 s of the "
+                                "tones recorded together (joint Whittle bound)"),
+}
+PAIR_QUANTITIES = {
+    "thermal_variance_error_1s": ("", "back-action-evading pair: Cramér–Rao error of the "
+                                  "bath occupation n_th, and so of X1's thermal variance "
+                                  "n_th + 1/2, after 1 s of the record, n_th the only "
+                                  "unknown (simulator.analysis.bae_feasibility)"),
+    "x2_backaction_heating": ("", "back-action-evading pair: variance the cavity's noise "
+                              "drives into the conjugate quadrature X2, in quanta"),
+    "x1_counter_rotating": ("", "back-action-evading pair: variance the counter-rotating "
+                            "terms, of relative size (kappa/4 Omega_m)^2, add to the "
+                            "measured quadrature X1, in quanta"),
+}
 
 
 @functools.lru_cache(maxsize=8)
@@ -109,6 +132,7 @@ def evaluate_point(scenario_text, assignments, outputs=None):
     try:
         if report["stable"]:
             _add_sidebands(scenario, result)
+            _add_scheme_quantities(scenario, result)
             if outputs is not None:
                 result["files"] = outputs.write(scenario)
     except OutputError:
@@ -169,6 +193,41 @@ def _add_sidebands(scenario, result):
         if scenario.detection.scheme == "heterodyne":
             result["asymmetry_time_s"][j] = asymmetry_time(
                 system, j, ASYMMETRY_SIGNIFICANCE).duration_s
+
+
+def scheme_quantities(scenario):
+    """The entries of :data:`TONE_QUANTITIES` or :data:`PAIR_QUANTITIES` that
+    ``scenario`` has (an empty dict for one drive tone)."""
+    from simulator.analysis.joint_feasibility import detected_tone_sets
+
+    if scenario.detection.backaction_evading:
+        return PAIR_QUANTITIES
+    return TONE_QUANTITIES if detected_tone_sets(scenario) else {}
+
+
+def _add_scheme_quantities(scenario, result):
+    """The joint bound of the recorded tones, or a pair's resolution and quadratures."""
+    from simulator.model.system import System
+
+    names = scheme_quantities(scenario)
+    if not names:
+        return
+    system = System(scenario)
+    result.update({k: [float("nan")] * len(scenario.mechanics) for k in names})
+    if names is PAIR_QUANTITIES:
+        from simulator.analysis.bae_feasibility import bath_error_one_second, pair_quantities
+
+        result["thermal_variance_error_1s"][0] = bath_error_one_second(system, 0)
+        for name, value in pair_quantities(system).items():
+            result[name][0] = value
+        return
+    from simulator.analysis.joint_feasibility import detected_tone_sets, joint_bound
+
+    tones = detected_tone_sets(scenario)[-1]  # all of them together, as the planner's
+    for j in range(len(scenario.mechanics)):
+        bound = joint_bound(system, tones, j)
+        result["recorded_tones_time_s"][j] = bound.duration_s
+        result["recorded_tones_error_1s"][j] = bound.error_one_second
 
 
 def _point_task(common, payload):
@@ -246,14 +305,16 @@ def assemble(scenario, axes, points, results):
         coords = {a.name: (a.name, np.asarray(a.numbers), _axis_attrs(a)) for a in axes}
     coords["mode"] = np.asarray(modes, dtype=object)
     data = {k: np.full(shape, np.nan) for k in POINT_QUANTITIES}
-    data.update({k: np.full(shape + (len(modes),), np.nan) for k in MODE_QUANTITIES})
+    extra = scheme_quantities(scenario)
+    data.update({k: np.full(shape + (len(modes),), np.nan) for k in (*MODE_QUANTITIES,
+                                                                     *extra)})
     errors = np.full(shape, "", dtype=object)
     files = np.full(shape, "", dtype=object)
     for index, _ in points:
         r = results[_point_key(index)]
         for k in POINT_QUANTITIES:
             data[k][index] = r.get(k, np.nan)  # absent when the point failed early
-        for k in MODE_QUANTITIES:
+        for k in (*MODE_QUANTITIES, *extra):
             data[k][index] = r.get(k, np.nan)  # absent when the point failed early
         errors[index] = r["error"]
         files[index] = " ".join(r.get("files", []))
@@ -261,6 +322,8 @@ def assemble(scenario, axes, points, results):
                  ((k, data[k]) for k in POINT_QUANTITIES)}
     variables.update({k: (dims + ("mode",), data[k], {"units": MODE_QUANTITIES[k]})
                       for k in MODE_QUANTITIES})
+    variables.update({k: (dims + ("mode",), data[k], {"units": units, "description": words})
+                      for k, (units, words) in extra.items()})
     variables["error"] = (dims, errors.astype(str), {"long_name": "error raised at the point"})
     if scenario.sweep.records or scenario.sweep.spectra:
         variables["files"] = (dims, files.astype(str),

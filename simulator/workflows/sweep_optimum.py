@@ -21,6 +21,8 @@ from simulator.report.summary import coord_label
 FIGURES_OF_MERIT = {
     "occupation": "lowest occupation",
     "asymmetry_time_s": "shortest time to resolve the sideband asymmetry",
+    "recorded_tones_time_s": "shortest time of the tones recorded together",
+    "thermal_variance_error_1s": "smallest error of the thermal variance after 1 s",
 }
 
 
