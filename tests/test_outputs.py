@@ -25,7 +25,8 @@ import pytest
 from conftest import CLI_ENV, DEMO, REPO, SWEEP_BASE, detuning_sweep
 
 from simulator.cli import parser as cli
-from simulator.io.files import AtomicFile, FolderLock, OutputError, atomic_write_text
+from simulator.io.files import AtomicFile, OutputError, atomic_write_text
+from simulator.io.folders import FolderLock
 from simulator.scenario.loader import parse_scenario
 from simulator.workflows.sweep import run_sweep
 

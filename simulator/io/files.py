@@ -18,16 +18,13 @@ renamed onto the target, so a reader never sees a half-written file.
 - A failed write (disk full, file-size limit, permissions changed mid-run)
   removes the temporary file and raises :class:`OutputError` naming the file.
 
-:class:`FolderLock` gives one process at a time a results folder (sweeps,
-trials, runs); see there.
+:class:`simulator.io.folders.FolderLock` gives one process at a time a
+results folder (sweeps, trials, runs); see there.
 """
 
 import atexit
-import datetime
 import errno
-import fcntl
 import functools
-import json
 import os
 import re
 import secrets
@@ -334,75 +331,3 @@ def write_netcdf(dataset, path, *, overwrite=True):
     """
     return atomic_write_bytes(path, dataset.to_netcdf(engine="h5netcdf"),
                               overwrite=overwrite)
-
-
-class FolderLock:
-    """Exclusive use of a results folder by one process, for the ``with`` block.
-
-    The lock is an advisory ``flock`` on ``FOLDER/.noisechain.lock``, which
-    holds the process id, host and start time of the holder for the message
-    another run prints when it is refused. The operating system releases the
-    lock when its process ends, however it ends, so a lock left by a killed
-    run is simply taken over. Entering and leaving remove the stale temporary
-    files of dead processes from the folder and its first-level subfolders.
-
-    Parameters
-    ----------
-    folder : path
-        Must exist.
-    what : str
-        Words for the message, e.g. ``"sweep"``.
-    """
-
-    NAME = ".noisechain.lock"
-
-    def __init__(self, folder, what):
-        self.folder, self.what, self.fd = Path(folder), what, None
-
-    def __enter__(self):
-        path = self.folder / self.NAME
-        fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o666)
-        try:
-            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except BlockingIOError:
-            holder = os.read(fd, 4096).decode("utf-8", "replace")
-            os.close(fd)
-            raise OutputError(
-                f"{str(self.folder)!r} is in use by another noisechain run ({_holder(holder)})"
-                f"; wait for it to finish or choose another --out folder (lock file "
-                f"{path})") from None
-        self.fd = fd
-        since = datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds")
-        os.ftruncate(fd, 0)
-        os.pwrite(fd, json.dumps({"pid": os.getpid(), "host": socket.gethostname(),
-                                  "since": since, "what": self.what}).encode(), 0)
-        self._clean()
-        return self
-
-    def __exit__(self, exc_type, exc, tb):
-        self._clean(own=True)  # what workers, or this process, stopped mid-write left
-        os.ftruncate(self.fd, 0)
-        os.close(self.fd)  # releases the lock
-        self.fd = None
-        return False
-
-
-    def _clean(self, own=False):
-        remove_stale_parts(self.folder, rescan=True)
-        try:
-            subfolders = [sub for sub in self.folder.iterdir() if sub.is_dir()]
-        except OSError:
-            subfolders = []  # the folder went away mid-run: the error that follows says so
-        for sub in subfolders:
-            remove_stale_parts(sub, rescan=True)
-        if own:  # the run is over: none of its writes in here is still going on
-            discard_abandoned([self.folder, *subfolders])
-
-
-def _holder(text):
-    try:
-        info = json.loads(text)
-        return (f"{info['what']} of process {info['pid']} on host {info['host']}, started "
-                f"{info['since']}")
-    except (ValueError, KeyError, TypeError):
-        return "a process that is just starting"

@@ -18,7 +18,8 @@ from pathlib import Path
 
 from simulator.errors import ExecutionError, InputError
 from simulator.io import jsontext
-from simulator.io.files import FolderLock, OutputError, atomic_write_text
+from simulator.io.files import OutputError, atomic_write_text
+from simulator.io.folders import FolderLock
 
 
 def digest(text):
