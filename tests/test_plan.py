@@ -321,11 +321,11 @@ def test_bistable_window_against_the_branches(d):
         assert len(operating_point(scenario_for_cubic(d=d, p=p)).branches) == branches
     assert np.isnan(bistable_drive_window(-1.7)[0])  # above −√3: never bistable
     # 5 % below the window: inside a 10 % margin, outside a 1 % one
-    from simulator.workflows.plan import _near_bistable
+    from simulator.workflows.plan_limits import near_bistable
 
     near = scenario_for_cubic(d=d, p=0.95 * low)
     point = operating_point(near)
-    assert _near_bistable(near, point, 0.1) and not _near_bistable(near, point, 0.01)
+    assert near_bistable(near, point, 0.1) and not near_bistable(near, point, 0.01)
 
 
 def test_worker_processes_give_the_same_plan():

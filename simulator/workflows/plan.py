@@ -46,6 +46,7 @@ import time
 
 from simulator.analysis.planner import Coordinate, Outcome, search
 from simulator.errors import InputError, OperatingPointError, ScenarioError
+from simulator.workflows.plan_limits import heated, near_bistable
 from simulator.workflows.plan_text import plan_dict, plan_text
 
 
@@ -134,7 +135,7 @@ def evaluate_plan_point(scenario, plan, assignments):
     try:
         for path, value in assignments:
             scenario = scenario.replace(path, value)
-        scenario = _heated(scenario, plan)
+        scenario = heated(scenario, plan)
         system = System(scenario)
     except ScenarioError as exc:
         return Outcome(inf, {"valid": 1.0}, {"error": exc.detail})
@@ -152,7 +153,7 @@ def evaluate_plan_point(scenario, plan, assignments):
     scale = abs(plan.max_growth_rate_hz) + scenario.mechanics[plan.mode].linewidth_hz
     margin = (verdict.growth_rate_hz - plan.max_growth_rate_hz) / scale
     violations["stability"] = margin if verdict.stable else max(margin, 1.0)
-    violations["bistability_margin"] = float(_near_bistable(scenario, point,
+    violations["bistability_margin"] = float(near_bistable(scenario, point,
                                                             plan.bistability_margin))
     quantities = {"photon_number": photons, "growth_rate_hz":
                   verdict.growth_rate_hz, "bistable": point.bistable,
@@ -221,54 +222,6 @@ def _objective(system, plan):
                                           steady=steady).duration_s, occupations
     bound = feasibility.occupation_bound(system, plan.mode)
     return float(bound.error_after(plan.duration_s)), occupations
-
-
-def _heated(scenario, plan):
-    """The scenario with every bath temperature raised by the heating model."""
-    if plan.heating_per_photon_k == 0 and plan.heating_k_per_w == 0:
-        return scenario
-    from simulator.model.operating_point import operating_point
-    from simulator.model.units import photon_energy_j
-
-    point = operating_point(scenario)
-    circulating_w = (point.photon_number * photon_energy_j(point.drive_frequency_hz)
-                     * (plan.free_spectral_range_hz or 0.0))
-    rise = plan.heating_per_photon_k * point.photon_number + (plan.heating_k_per_w
-                                                              * circulating_w)
-    for i, mode in enumerate(scenario.mechanics):
-        scenario = scenario.replace(f"mechanics[{i}].bath_temperature_k",
-                                    mode.bath_temperature_k + rise)
-    return scenario
-
-
-# samples of the detuning across the margin (the bistable window is smooth in d)
-BISTABILITY_SAMPLES = 129
-
-
-def _near_bistable(scenario, point, margin):
-    """True when the photon number is multivalued here or within ``margin`` of here.
-
-    Within the margin: drive power × (1 ± margin) and detuning ± margin·max(|Δ|, κ/2)
-    (κ/2 sets the scale on resonance). The bistable region in the plane of the
-    cubic's detuning d and drive strength P is known in closed form
-    (:func:`simulator.model.operating_point.bistable_drive_window`), so the
-    whole rectangle is checked, not a few of its points.
-    """
-    import numpy as np
-
-    from simulator.model.operating_point import bistable_drive_window, drive_strength
-
-    if point.bistable:
-        return True
-    if scenario.drive.detuning_reference != "bare" or scenario.drive.power_w == 0:
-        return False  # a detuning from the effective resonance has one solution
-    d, p = drive_strength(scenario)
-    step = margin * max(abs(d), 1.0)
-    detunings = np.linspace(d - step, d + step, BISTABILITY_SAMPLES)
-    low, high = bistable_drive_window(np.append(detunings, -np.sqrt(3.0) - 1e-12
-                                                if abs(d + np.sqrt(3.0)) <= step else d))
-    with np.errstate(invalid="ignore"):
-        return bool(np.any((low <= p * (1 + margin)) & (high >= p * (1 - margin))))
 
 
 @functools.lru_cache(maxsize=4)
