@@ -12,7 +12,8 @@ motion.
 
 import numpy as np
 
-from simulator.report.colours import FLOOR_COLOUR, TOTAL_COLOUR, source_colour, term_style
+from simulator.report.colours import (FLOOR_COLOUR, TOTAL_COLOUR, source_colour, term_style,
+                                      tone_order)
 
 _PREFIXES = ((1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz"), (1.0, "Hz"))
 ZOOM_LINEWIDTHS = 6.0
@@ -71,8 +72,10 @@ def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, titl
             dx = fig.add_subplot(grid[2, k])
             _displacement_zoom(dx, displacement, label, centre, width)
     handles, labels = ax.get_legend_handles_labels()
+    key = "noise budget (colour: source;\nline: term" + (
+        ";\nshade: tone)" if tone_order(names) else ")")
     fig.legend(handles, labels, loc="outside right upper", fontsize=8, frameon=False,
-               title="noise budget (colour: source;\nline: term)", title_fontsize=8)
+               title=key, title_fontsize=8)
     if zooms and displacement is not None:
         handles, labels = dx.get_legend_handles_labels()
         fig.legend(handles, labels, loc="outside right lower", fontsize=8, frameon=False,
