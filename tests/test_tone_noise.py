@@ -165,7 +165,8 @@ def test_a_tone_with_its_own_intensity_noise_keeps_the_shared_phase_noise():
     assert [n for n in model.inputs if n.startswith("laser.")] == [
         "laser.floor", "laser.intensity", "laser.tones.probe.intensity"]
     sources = dict(model.sources)
-    assert "intensity noise of tone probe" in sources and "phase-noise floor of tone drive" in sources
+    assert "intensity noise of tone probe" in sources
+    assert "phase-noise floor of tone drive" in sources
     phase_only = two_tones(drive_noise=noise_tables(FLOOR, 0.0, "drive"),
                            tone_noise='noise_source = "drive"\n')
     rin_drive = two_tones(drive_noise=noise_tables({}, 3e-11, "drive"))

@@ -12,8 +12,13 @@ motion.
 
 import numpy as np
 
-from simulator.report.colours import (FLOOR_COLOUR, TOTAL_COLOUR, source_colour, term_style,
-                                      tone_order)
+from simulator.report.colours import (
+    FLOOR_COLOUR,
+    TOTAL_COLOUR,
+    source_colour,
+    term_style,
+    tone_order,
+)
 
 _PREFIXES = ((1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz"), (1.0, "Hz"))
 ZOOM_LINEWIDTHS = 6.0

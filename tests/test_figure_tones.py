@@ -1,0 +1,142 @@
+"""Figures of several tones and plan maps read without ambiguity.
+
+The budget of a scenario with several drive tones names every tone's copy of a
+source the same way (the drive's too), in the figure and in the text; the
+copies of one source keep its colour family and differ in lightness, so they
+stay apart in greyscale. The plan map's log axes carry tick labels that never
+run into each other, checked on the rendered label boxes.
+"""
+
+import colorsys
+from pathlib import Path
+
+import numpy as np
+import pytest
+from matplotlib.colors import to_rgb
+
+from simulator.model.system import System
+from simulator.report import colours, ticks
+from simulator.report.plan_plots import plan_figure
+from simulator.report.plots import FIGURE_DPI
+from simulator.scenario.loader import load_scenario, scenario_from_dict
+from simulator.workflows.spectrum import compute_spectrum, report_text
+
+TWO_PROBES = Path(__file__).resolve().parents[1] / "scenarios" / "drum_two_probes.toml"
+FLOOR = {"floor_rad2_per_hz": 2e-11, "floor_low_hz": 1e5, "floor_high_hz": 1e8}
+# sources that belong to no tone: the vacuum floor, the modes' baths, the chain
+UNOWNED = ("shot noise", "thermal bath", "detection efficiency", "sampling")
+# least difference in greyscale lightness between two tones' copies of a source
+MIN_GREY_STEP = 0.1
+
+
+def luminance(colour):
+    """Relative luminance of an sRGB colour (ITU-R BT.709 weights on the channels;
+    gamma left out, which keeps the order of lightness: common practice)."""
+    r, g, b = to_rgb(colour)
+    return 0.2126 * r + 0.7152 * g + 0.0722 * b
+
+
+@pytest.fixture(scope="module")
+def noisy_probes():
+    """The two-probe drum with phase and intensity noise on the drive's laser and a
+    red probe with a laser of its own: every tone owns classical noise."""
+    data = load_scenario(TWO_PROBES).to_dict()
+    data["drive"]["phase_noise"] = dict(FLOOR)
+    data["drive"]["intensity_noise"] = {"relative_intensity_noise_per_hz": 1e-13}
+    data["tones"][0]["phase_noise"] = {**FLOOR, "floor_rad2_per_hz": 3e-11}
+    return scenario_from_dict(data, source="<test>")
+
+
+@pytest.mark.filterwarnings("ignore::simulator.model.tone_validity.ToneNoiseWarning")
+def test_every_tone_names_its_sources_alike_in_budget_and_text(noisy_probes):
+    result = compute_spectrum(System(noisy_probes))
+    spectrum = result.spectrum
+    sources = {colours.split_term(n)[0] for n in spectrum.contributions}
+    owned = {s for s in sources if not any(word in s for word in UNOWNED)}
+    assert owned and all(colours.split_tone(s)[1] is not None for s in owned), owned
+    tones = {colours.split_tone(s)[1] for s in owned}
+    assert tones == {"drive", "red_probe", "blue_probe"}
+    # the drive's laser and ports read as the probes' do
+    for kind in ("phase-noise floor", "external port vacuum", "internal loss bath"):
+        assert f"{kind} of tone drive" in sources
+        assert f"{kind} of tone red_probe" in sources
+    assert not any(s.startswith("laser ") for s in sources)
+    text = report_text(result, files={})
+    assert "phase-noise floor of tone drive:" in text and "laser phase-noise" not in text
+    # names only: the budget still sums to the total
+    assert spectrum.budget_residual() < 1e-12
+
+
+@pytest.mark.filterwarnings("ignore::simulator.model.tone_validity.ToneNoiseWarning")
+def test_each_tones_copy_of_a_source_is_a_shade_of_its_colour(noisy_probes):
+    names = list(compute_spectrum(System(noisy_probes), at="cavity").spectrum.contributions)
+    styles = {n: colours.term_style(n, names=names) for n in names}
+    by_source = {}
+    for n in names:
+        source, tone = colours.split_tone(colours.split_term(n)[0])
+        if tone is not None:
+            by_source.setdefault(source, {})[tone] = styles[n]["color"]
+    several = {s: c for s, c in by_source.items() if len(c) > 1}
+    assert "external port vacuum" in several and "phase-noise floor" in several
+    for source, per_tone in several.items():
+        family = colours.source_colour(source)
+        hue = colorsys.rgb_to_hsv(*to_rgb(family))[0]
+        grey = sorted(luminance(c) for c in per_tone.values())
+        assert np.min(np.diff(grey)) >= MIN_GREY_STEP, (source, per_tone)
+        for colour in per_tone.values():
+            h = colorsys.rgb_to_hsv(*to_rgb(colour))[0]
+            assert min(abs(h - hue), 1 - abs(h - hue)) < 0.02, (source, colour)
+    # the first tone in the budget (the drive) keeps the source's own colour
+    assert to_rgb(by_source["external port vacuum"]["drive"]) == \
+        to_rgb(colours.source_colour("external port vacuum"))
+
+
+def _plan(x_range, y_range=None, points=(9, 7)):
+    """Plain data of a plan map (made-up objective, figures only) over log axes."""
+    ranges = [x_range] + ([y_range] if y_range else [])
+    paths = ("drive.power_w", "cavity.linewidth_hz")
+    axes = [{"path": p, "numbers": list(np.geomspace(*r, n)), "log": True, "unit": ""}
+            for p, r, n in zip(paths, ranges, points, strict=False)]
+    grids = np.meshgrid(*[np.asarray(a["numbers"]) for a in axes], indexing="ij")
+    objective = 1.0 + np.prod([g / g.flat[0] for g in grids], axis=0) ** 0.5
+
+    def point(k):
+        return {"objective": float(objective.flat[0]), "parameters": [
+            {"path": a["path"], "number": a["numbers"][k], "unit": ""} for a in axes]}
+
+    return {"scenario": "plan map test", "objective": "occupation",
+            "objective_description": "occupation", "units": "quanta",
+            "map": {"axes": axes, "objective": list(objective.ravel()), "violations": {}},
+            "optimum": point(1), "own_point": point(2)}
+
+
+@pytest.mark.parametrize("x_range, y_range", [
+    ((1e-9, 1.3e-9), (1e5, 1.2e5)),   # a fraction of a decade: minor ticks would collide
+    ((1e-11, 3e-11), (2e5, 5e5)),
+    ((1e-14, 1e-2), (1e2, 1e9)),      # many decades
+    ((1e-9, 1.3e-9), None),           # a line along one parameter
+])
+def test_plan_map_tick_labels_never_collide(x_range, y_range):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    fig = plan_figure(_plan(x_range, y_range))
+    fig.set_dpi(FIGURE_DPI)
+    renderer = FigureCanvasAgg(fig).get_renderer()
+    checked = 0
+    for ax in fig.axes:
+        for axis in (ax.xaxis, ax.yaxis):
+            if axis.get_scale() == "log":
+                shown = [t.get_text() for t in axis.get_ticklabels() if t.get_text()]
+                assert len(shown) >= 2, shown  # still a scale to read
+                assert ticks.collisions(axis, renderer) == []
+                checked += 1
+    assert checked >= (2 if y_range is None else 3)  # the colour bar is log too
+
+
+def test_tick_labels_say_each_tick_exactly():
+    assert ticks.labels([1e-9, 1.25e-9]) == [r"$\mathdefault{10^{-9}}$",
+                                             r"$\mathdefault{1.25\times10^{-9}}$"]
+    assert ticks.labels([0.02, 5.0, 300.0]) == ["0.02", "5", "300"]
+    for low, high in ((1e-9, 1.3e-9), (0.7, 1e4), (3e4, 3e6)):
+        for set_ in ticks.candidates(low, high):
+            assert np.all((set_ >= low * (1 - 1e-9)) & (set_ <= high * (1 + 1e-9)))
