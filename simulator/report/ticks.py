@@ -121,6 +121,10 @@ def tidy_log_ticks(fig, dpi=None):
 
 def collisions(axis, renderer):
     """Pairs of visible major tick labels of ``axis`` closer than LABEL_GAP_PX apart."""
-    boxes = [text.get_window_extent(renderer).padded(LABEL_GAP_PX / 2)
-             for text in axis.get_ticklabels() if text.get_text()]  # those in view
+    return overlapping([t for t in axis.get_ticklabels() if t.get_text()], renderer)
+
+
+def overlapping(texts, renderer):
+    """Pairs of the rendered boxes of matplotlib ``texts`` closer than LABEL_GAP_PX apart."""
+    boxes = [text.get_window_extent(renderer).padded(LABEL_GAP_PX / 2) for text in texts]
     return [(a, b) for i, a in enumerate(boxes) for b in boxes[i + 1:] if a.overlaps(b)]

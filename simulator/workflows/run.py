@@ -169,7 +169,7 @@ def _derived_table(data):
 
 
 def _spectrum_part(system, out, wrote, figures):
-    from simulator.report.plots import plot_spectrum
+    from simulator.report.plots import plot_spectrum, titled
     from simulator.workflows.spectrum import compute_spectrum, figure_title
 
     result = compute_spectrum(system)  # at the digitiser, with the explained summary
@@ -177,7 +177,7 @@ def _spectrum_part(system, out, wrote, figures):
     spectrum.save(wrote(out / "spectrum.nc"), overwrite=True)
     png = wrote(out / "spectrum.png")
     plot_spectrum(spectrum, png, summary=summary, zooms=_quadrature_zoom(system, result),
-                  title=figure_title(result, system.scenario.scenario.name), overwrite=True)
+                  title=figure_title(result, titled(system.scenario)), overwrite=True)
     figures.append((png, "Spectrum of the record at the digitiser and its noise budget: the "
                          "whole band and each sideband zoomed."))
     if result.quadratures is not None:  # one quadrature measured, no sideband pair

@@ -177,7 +177,7 @@ TITLE_WIDTH = 90  # characters per line of the figure title (it shares the row w
 
 def figure_title(result, name):
     """Title of the spectrum figure: what and where, and mode 0's occupation gap."""
-    title = f"{name}: {result.spectrum.quantity}"
+    title = "\n".join(textwrap.wrap(f"{name}: {result.spectrum.quantity}", TITLE_WIDTH))
     if result.summary and result.summary[0].gap is not None:
         gap = result.summary[0].gap
         terms = ", ".join(f"{cause} {value:+.3g}" for cause, value in gap.terms.items())
