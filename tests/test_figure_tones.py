@@ -140,3 +140,59 @@ def test_tick_labels_say_each_tick_exactly():
     for low, high in ((1e-9, 1.3e-9), (0.7, 1e4), (3e4, 3e6)):
         for set_ in ticks.candidates(low, high):
             assert np.all((set_ >= low * (1 - 1e-9)) & (set_ <= high * (1 + 1e-9)))
+
+
+def test_titles_name_the_scenario_and_the_recorded_tone():
+    from simulator.report.plots import titled
+    from simulator.workflows.spectrum import TITLE_WIDTH, figure_title
+
+    probes = load_scenario(TWO_PROBES)
+    assert titled(probes) == ("drum-two-probes, tone blue_probe recorded of drive, red_probe, "
+                              "blue_probe")
+    both = probes.replace("detection.tones", ["red_probe", "blue_probe"])
+    assert "tones red_probe, blue_probe recorded" in titled(both)
+    bae = load_scenario(TWO_PROBES.with_name("drum_bae_microwave.toml"))
+    assert titled(bae) == "drum-bae-microwave, back-action-evading pair drive + upper"
+    alone = load_scenario(TWO_PROBES.with_name("membrane_4k.toml"))
+    assert titled(alone) == alone.scenario.name
+    result = compute_spectrum(System(probes), at="cavity")
+    title = figure_title(result, titled(probes))
+    assert "blue_probe" in title and max(map(len, title.splitlines())) <= TITLE_WIDTH
+
+
+def _segment_figure(starts, names):
+    """The protocol figure's two panels with segments ``names`` from ``starts`` (ms)."""
+    from types import SimpleNamespace
+
+    from simulator.report.plots import subplots
+    from simulator.report.protocol_plots import _segments
+
+    fig, (top, bottom) = subplots(2, 1, figsize=(9.0, 6.4), layout="constrained", sharex=True)
+    timeline = SimpleNamespace(segment_starts_s=np.asarray(starts) * 1e-3,
+                               segment_names=list(names))
+    _segments(fig, top, bottom, timeline, (starts[-1] + starts[1] - starts[0]) * 1e-3, 1e3)
+    return fig, top
+
+
+@pytest.mark.parametrize("cycles", [1, 20])
+def test_protocol_segments_are_named_once_legibly(cycles):
+    """Few segments: their names above the panel, apart; a long cycle of repeated
+    segments (a heating-rate protocol): each name once, in a key, one shade per name."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    names = ["cooling on", "cooling off"] * cycles
+    starts = np.cumsum([0.0] + [0.8, 4.2] * cycles)[:-1]
+    fig, top = _segment_figure(starts, names)
+    renderer = FigureCanvasAgg(fig).get_renderer()
+    above = [t for t in top.texts if t.get_text()]
+    assert ticks.overlapping(above, renderer) == []
+    shown = [t.get_text() for t in above] + [t.get_text() for lg in fig.legends
+                                            for t in lg.get_texts()]
+    assert sorted(set(shown)) == sorted(set(names))
+    if cycles > 1:
+        assert shown == ["cooling on", "cooling off"]  # the key: each name once
+    shades = {}
+    for patch, name in zip(top.patches, names, strict=True):
+        shades.setdefault(name, set()).add(to_rgb(patch.get_facecolor()))
+    assert all(len(s) == 1 for s in shades.values()) and len(
+        set.union(*shades.values())) == len(shades)

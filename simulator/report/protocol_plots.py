@@ -52,7 +52,7 @@ def plot_protocol(record, timeline, path, *, overwrite=False, scenario=None):
                      color=COHERENT_COLOUR, linestyle="--", label="coherent phonons |β(t)|²")
     top.set_ylabel(f"{timeline.mode_names[0]}: phonons")
     top.legend(loc="best", fontsize="small")
-    bottom.semilogy(t * ms, power, color=RECORD_COLOUR, linewidth=0.8,
+    bottom.semilogy(t * ms, power, color=RECORD_COLOUR, linewidth=0.8, zorder=3,
                     label=f"record: anti-Stokes power, {block / fs * 1e6:.3g} µs blocks")
     if scenario is not None:
         from simulator.analysis.spectrogram import expected_sideband_power
@@ -95,7 +95,9 @@ def _segments(fig, top, bottom, timeline, end_s, ms):
         labels.append(top.annotate(name, xy=(0.5 * (start + end) * ms, 1.0),
                                    xycoords=("data", "axes fraction"), ha="center",
                                    va="bottom", fontsize="small"))
-    if overlapping(labels, FigureCanvasAgg(fig).get_renderer()):
+    renderer = FigureCanvasAgg(fig).get_renderer()
+    fig.draw_without_rendering()  # the limits and layout the saved figure will have
+    if overlapping(labels, renderer):
         for label in labels:
             label.remove()
         fig.legend([Patch(facecolor=shade[n], edgecolor="0.6") for n in names], names,
