@@ -196,3 +196,17 @@ def test_protocol_segments_are_named_once_legibly(cycles):
         shades.setdefault(name, set()).add(to_rgb(patch.get_facecolor()))
     assert all(len(s) == 1 for s in shades.values()) and len(
         set.union(*shades.values())) == len(shades)
+
+
+def test_sources_drawn_together_in_the_pair_figure_are_far_apart_in_colour():
+    """The back-action-evading budget draws the counter-rotating residual beside the
+    internal-loss bath and the ports: each pair of its sources is told apart (RGB
+    distance at least a quarter of the grey axis: common practice for line plots)."""
+    names = list(compute_spectrum(System(load_scenario(
+        TWO_PROBES.with_name("drum_bae_microwave.toml"))), at="cavity").spectrum.contributions)
+    sources = sorted({colours.split_term(n)[0] for n in names} - {"shot noise (vacuum floor)"})
+    assert "counter-rotating back-action" in sources
+    rgb = {s: np.array(to_rgb(colours.source_colour(s, ("drum",)))) for s in sources}
+    for i, a in enumerate(sources):
+        for b in sources[i + 1:]:
+            assert np.linalg.norm(rgb[a] - rgb[b]) >= 0.25 * np.sqrt(3), (a, b)

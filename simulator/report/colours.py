@@ -38,6 +38,8 @@ _NAMED = (
     ("phase-noise", "#e377c2"),               # pink
     ("frequency noise", "#ad1457"),           # raspberry
     ("calibration tone", "#bcbd22"),          # olive
+    # a back-action-evading pair's residual: far from the internal-loss red it sits beside
+    ("counter-rotating back-action", "#cf00ff"),  # electric violet
     # what the detection chain takes away: losses, then the digitiser
     ("detection efficiency", "#7f8c8d"),      # grey-green, as the loss's vacuum
     ("single-ended detection", "#7f8c8d"),
