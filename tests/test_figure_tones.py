@@ -210,3 +210,38 @@ def test_sources_drawn_together_in_the_pair_figure_are_far_apart_in_colour():
     for i, a in enumerate(sources):
         for b in sources[i + 1:]:
             assert np.linalg.norm(rgb[a] - rgb[b]) >= 0.25 * np.sqrt(3), (a, b)
+
+
+def test_pair_quadrature_figure_draws_the_budget_it_is_given():
+    """Each source's X1 and X2 bars are its variances from the Lyapunov budget (their sum
+    the total), in the source's colour; the key sits off the bars; the ticks are apart."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    from simulator.linear.quadratures import quadrature_budget
+    from simulator.report.quadrature_plots import quadrature_figure
+
+    budget = quadrature_budget(load_scenario(
+        TWO_PROBES.with_name("drum_bae_microwave.toml"))).to_dict()
+    fig = quadrature_figure(budget)
+    left, right = fig.axes
+    bars = [p for p in left.patches if p.get_width() > 0]
+    widths = sorted(p.get_width() for p in bars)
+    expected = sorted(list(budget["x1_by_source"].values())
+                      + list(budget["x2_by_source"].values())
+                      + [budget["x1_variance"], budget["x2_variance"]])
+    assert widths == pytest.approx(expected, rel=1e-12)
+    assert sum(budget["x1_by_source"].values()) == pytest.approx(budget["x1_variance"])
+    labels = [t.get_text() for t in left.get_yticklabels()]
+    assert labels[:-1] == list(budget["x1_by_source"]) and labels[-1] == "total"
+    for source in budget["x1_by_source"]:
+        colour = to_rgb(colours.source_colour(source, (budget["mode"],)))
+        assert any(to_rgb(p.get_facecolor()) == colour for p in bars)
+    assert sorted(p.get_width() for p in right.patches) == pytest.approx(sorted(
+        [budget["imprecision_quanta"], budget["record_imprecision_quanta"], 0.5]))
+    assert "(quanta" in left.get_xlabel() and "(quanta)" in right.get_xlabel()
+    renderer = FigureCanvasAgg(fig).get_renderer()
+    fig.draw_without_rendering()
+    key = left.get_legend().get_window_extent(renderer)
+    assert not key.overlaps(left.get_window_extent(renderer))
+    for ax in (left, right):
+        assert ticks.collisions(ax.xaxis, renderer) == []

@@ -181,11 +181,20 @@ def _spectrum_part(system, out, wrote, figures):
     figures.append((png, "Spectrum of the record at the digitiser and its noise budget: the "
                          "whole band and each sideband zoomed."))
     if result.quadratures is not None:  # one quadrature measured, no sideband pair
+        from simulator.report.quadrature_plots import plot_quadratures
         from simulator.report.summary import quadrature_table
+
+        budget = result.quadratures.to_dict()
+        png = wrote(out / "quadratures.png")
+        plot_quadratures(budget, png, overwrite=True, title=f"{titled(system.scenario)}: "
+                         f"quadratures of mode {budget['mode']}")
+        figures.append((png, "Back-action-evading pair: the variance of the measured "
+                             "quadrature X1 and of its conjugate X2 by noise source, and the "
+                             "imprecision referred to X1 beside one tone's least."))
 
         return (f"<p>{html.escape(spectrum.quantity)}: {spectrum.sided} density in "
                 f"{html.escape(spectrum.units)}; axis: {html.escape(spectrum.axis)}.</p>"
-                + quadrature_table(result.quadratures.to_dict())), summary
+                + quadrature_table(budget)), summary
     rows = [[s.mode, s.anti_stokes.frequency_hz, s.anti_stokes.area_quanta,
              s.stokes.frequency_hz, s.stokes.area_quanta, s.ratio, s.occupation_from_ratio,
              s.steady_state_occupation] for s in summary]
