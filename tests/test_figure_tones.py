@@ -271,3 +271,43 @@ def test_sideband_zoom_titles_stay_inside_a_two_column_figure():
         assert "not resolved" in ax.get_title()
         box = ax.title.get_window_extent(renderer)
         assert fig.bbox.x0 <= box.x0 and box.x1 <= fig.bbox.x1, ax.get_title()
+
+
+def _spectrum_figure(name):
+    from simulator.report.plots import spectrum_figure, titled
+    from simulator.workflows.spectrum import figure_title
+
+    scenario = load_scenario(TWO_PROBES.with_name(name))
+    result = compute_spectrum(System(scenario))
+    return spectrum_figure(result.spectrum, summary=result.summary,
+                           title=figure_title(result, titled(scenario)))
+
+
+@pytest.mark.parametrize("name", ["membrane_phase_noise.toml", "drum_two_probes.toml"])
+def test_spectrum_panel_titles_keep_clear_of_the_legend(name):
+    """The long budget of a noisy laser fills the legend down to the zooms' titles: those
+    stay inside the figure and off every legend (the anti-Stokes title ran into it)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    fig = _spectrum_figure(name)
+    renderer = FigureCanvasAgg(fig).get_renderer()
+    fig.draw_without_rendering()
+    keys = [lg.get_window_extent(renderer) for lg in fig.legends]
+    assert keys
+    texts = [ax.title for ax in fig.axes] + [fig._suptitle]
+    for text in texts:
+        box = text.get_window_extent(renderer)
+        assert fig.bbox.x0 <= box.x0 and box.x1 <= fig.bbox.x1, text.get_text()
+        assert not any(box.overlaps(k) for k in keys), text.get_text()
+
+
+def test_chain_and_laser_colours_drawn_together_are_apart():
+    """The sampling terms of the digitiser sit beside every laser noise curve in one
+    budget: each pair at least a quarter of the grey axis apart in RGB (common practice,
+    as above)."""
+    together = ("sampling", "intensity noise", "relaxation-oscillation peak",
+                "phase-noise floor", "frequency noise", "added noise")
+    rgb = {s: np.array(to_rgb(colours.source_colour(s))) for s in together}
+    for i, a in enumerate(together):
+        for b in together[i + 1:]:
+            assert np.linalg.norm(rgb[a] - rgb[b]) >= 0.25 * np.sqrt(3), (a, b)

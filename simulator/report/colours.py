@@ -33,7 +33,7 @@ _NAMED = (
     ("detection loss vacuum", "#7f8c8d"),     # grey-green
     ("added noise", "#8c564b"),               # brown
     ("electronics", "#34495e"),               # slate
-    ("intensity noise", "#d4a017"),           # gold
+    ("intensity noise", "#00008f"),           # navy: apart from the peak's orange, the olive tone
     ("relaxation-oscillation", "#ff7f0e"),    # orange
     ("phase-noise", "#e377c2"),               # pink
     ("frequency noise", "#ad1457"),           # raspberry
@@ -43,7 +43,8 @@ _NAMED = (
     # what the detection chain takes away: losses, then the digitiser
     ("detection efficiency", "#7f8c8d"),      # grey-green, as the loss's vacuum
     ("single-ended detection", "#7f8c8d"),
-    ("sampling", "#b8860b"),                  # dark goldenrod
+    ("sampling", "#4000ff"),                  # ultramarine: apart from the gold and orange
+                                              # of the laser's intensity noise and peak
 )
 # thermal baths of mechanical modes 0, 1, 2 ... (then repeating)
 _THERMAL = ("#2ca02c", "#9467bd", "#17becf", "#006d5b", "#6b4c9a")

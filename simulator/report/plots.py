@@ -80,6 +80,15 @@ def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, titl
         Zoom panels of lines the sideband summary does not describe (a
         back-action-evading pair's X1 line); default those of ``summary``.
     """
+    fig = spectrum_figure(spectrum, displacement=displacement, summary=summary, mode=mode,
+                          title=title, zooms=zooms)
+    save_figure(fig, path, overwrite=overwrite)
+    return path
+
+
+def spectrum_figure(spectrum, *, displacement=None, summary=(), mode=0, title=None,
+                    zooms=None):
+    """The :class:`matplotlib.figure.Figure` of :func:`plot_spectrum`."""
     two_sided = spectrum.sided == "two-sided"
     zooms = _zooms(summary, mode, two_sided) if zooms is None else list(zooms)
     rows = 1 + bool(zooms) + bool(zooms and displacement is not None)
@@ -106,8 +115,7 @@ def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, titl
         handles, labels = dx.get_legend_handles_labels()
         fig.legend(handles, labels, loc="outside right lower", fontsize=8, frameon=False,
                    title="referred to displacement", title_fontsize=8)
-    save_figure(fig, path, overwrite=overwrite)
-    return path
+    return fig
 
 
 def _zooms(summary, mode, two_sided):
@@ -118,8 +126,9 @@ def _zooms(summary, mode, two_sided):
         return []
     sides = [("Stokes", s.stokes, f"area n + 1 = {s.stokes.area_quanta:.4g}")] if two_sided \
         else []
+    # one number a line: a zoom's title is as wide as its column, the legend beside it
     sides.append(("anti-Stokes", s.anti_stokes,
-                  f"area n = {s.anti_stokes.area_quanta:.4g}, n from ratio = "
+                  f"area n = {s.anti_stokes.area_quanta:.4g}\nn from ratio = "
                   f"{s.occupation_from_ratio:.4g}, steady state n = "
                   f"{s.steady_state_occupation:.4g}"))
     out = []
