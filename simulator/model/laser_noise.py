@@ -160,8 +160,9 @@ def _labels(laser, several=True):
 
 
 def tone_source(kind, tone):
-    """Source name of noise ``kind`` owned by ``tone`` in a model of several tones."""
-    return f"{kind} of tone {tone}"
+    """Source name of noise ``kind`` owned by ``tone`` in a model of several tones
+    (``kind`` itself for ``tone`` None: the drive alone)."""
+    return kind if tone is None else f"{kind} of tone {tone}"
 
 
 def laser_model(model, scenario, point, demodulated=None):
@@ -203,7 +204,7 @@ def laser_model(model, scenario, point, demodulated=None):
     intensities = _unique(lasers[f.name][1] for f in fields)
     # states: the drive's shapes, the LO's and its reference (their one-tone places), then
     # the shapes of the tones' own lasers
-    several = point.several_tones
+    several = len(fields) > 1
     phases = {PRIMARY_TONE: stationary_shapes(blocks, scenario.drive.phase_noise,
                                                *_labels(PRIMARY_TONE, several))}
     lo_rows = stationary_shapes(blocks, det.local_oscillator_phase_noise, "laser.lo.",
