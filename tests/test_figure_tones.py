@@ -158,6 +158,12 @@ def test_titles_name_the_scenario_and_the_recorded_tone():
     result = compute_spectrum(System(probes), at="cavity")
     title = figure_title(result, titled(probes))
     assert "blue_probe" in title and max(map(len, title.splitlines())) <= TITLE_WIDTH
+    # a wrapped title never parts a number from its unit
+    toroid = load_scenario(TWO_PROBES.with_name("microtoroid_room_temperature.toml"))
+    lines = figure_title(compute_spectrum(System(toroid), at="cavity"),
+                         titled(toroid)).splitlines()
+    assert any("90\u00a0deg" in line for line in lines), lines
+    assert not any(line.startswith("deg") for line in lines), lines
 
 
 def _segment_figure(starts, names):
