@@ -40,7 +40,6 @@ def quadrature_figure(budget, *, title=None):
     _imprecision(right, budget)
     fig.suptitle(title or f"back-action-evading measurement of mode {mode}", x=0.02,
                  ha="left", fontsize=10)
-    fig.get_layout_engine().execute(fig)
     tidy_log_ticks(fig, dpi=FIGURE_DPI)
     return fig
 

@@ -100,6 +100,8 @@ def tidy_log_ticks(fig, dpi=None):
         fig.set_dpi(dpi)
     canvas = FigureCanvasAgg(fig)
     renderer = canvas.get_renderer()
+    if fig.get_layout_engine() is not None:  # the axes where the saved figure has them
+        fig.get_layout_engine().execute(fig)
     count = 0
     for ax in fig.axes:
         for axis in (ax.xaxis, ax.yaxis):
