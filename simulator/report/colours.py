@@ -33,7 +33,8 @@ _NAMED = (
     ("detection loss vacuum", "#7f8c8d"),     # grey-green
     ("added noise", "#8c564b"),               # brown
     ("electronics", "#34495e"),               # slate
-    ("intensity noise", "#00008f"),           # navy: apart from the peak's orange, the olive tone
+    # navy: apart from the sampling's goldenrod, the peak's orange and the olive tone
+    ("intensity noise", "#00008f"),
     ("relaxation-oscillation", "#ff7f0e"),    # orange
     ("phase-noise", "#e377c2"),               # pink
     ("frequency noise", "#ad1457"),           # raspberry
@@ -43,8 +44,7 @@ _NAMED = (
     # what the detection chain takes away: losses, then the digitiser
     ("detection efficiency", "#7f8c8d"),      # grey-green, as the loss's vacuum
     ("single-ended detection", "#7f8c8d"),
-    ("sampling", "#4000ff"),                  # ultramarine: apart from the gold and orange
-                                              # of the laser's intensity noise and peak
+    ("sampling", "#b8860b"),                  # dark goldenrod
 )
 # thermal baths of mechanical modes 0, 1, 2 ... (then repeating)
 _THERMAL = ("#2ca02c", "#9467bd", "#17becf", "#006d5b", "#6b4c9a")
