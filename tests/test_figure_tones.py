@@ -317,3 +317,16 @@ def test_laser_intensity_noise_is_apart_from_the_curves_beside_it():
     for other in beside:
         distance = np.linalg.norm(own - to_rgb(colours.source_colour(other)))
         assert distance >= 0.25 * np.sqrt(3), other
+
+
+def test_pair_run_report_carries_the_quadrature_figure(tmp_path):
+    from simulator.cli.parser import main
+
+    out = tmp_path / "bae"
+    assert main(["run", str(TWO_PROBES.with_name("drum_bae_microwave.toml")), "--out",
+                 str(out), "--workers", "1", "--quiet"]) == 0
+    png = out / "quadratures.png"
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    page = (out / "report.html").read_text(encoding="utf-8")
+    assert "the measured quadrature X1&#x27;s line zoomed" in page
+    assert "conjugate X2 by noise source" in page

@@ -178,8 +178,9 @@ def _spectrum_part(system, out, wrote, figures):
     png = wrote(out / "spectrum.png")
     plot_spectrum(spectrum, png, summary=summary, zooms=_quadrature_zoom(system, result),
                   title=figure_title(result, titled(system.scenario)), overwrite=True)
+    zoomed = "each sideband" if result.quadratures is None else "the measured quadrature X1's line"
     figures.append((png, "Spectrum of the record at the digitiser and its noise budget: the "
-                         "whole band and each sideband zoomed."))
+                         f"whole band and {zoomed} zoomed."))
     if result.quadratures is not None:  # one quadrature measured, no sideband pair
         from simulator.report.quadrature_plots import plot_quadratures
         from simulator.report.summary import quadrature_table
