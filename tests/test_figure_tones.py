@@ -86,6 +86,10 @@ def test_each_tones_copy_of_a_source_is_a_shade_of_its_colour(noisy_probes):
         for colour in per_tone.values():
             h = colorsys.rgb_to_hsv(*to_rgb(colour))[0]
             assert min(abs(h - hue), 1 - abs(h - hue)) < 0.02, (source, colour)
+    # any source's first three copies, dark colours and light ones alike
+    for family in [c for _, c in colours._NAMED] + list(colours._THERMAL):
+        grey = sorted(luminance(colours.shade(family, k)) for k in range(3))
+        assert np.min(np.diff(grey)) >= MIN_GREY_STEP, family
     # the first tone in the budget (the drive) keeps the source's own colour
     assert to_rgb(by_source["external port vacuum"]["drive"]) == \
         to_rgb(colours.source_colour("external port vacuum"))

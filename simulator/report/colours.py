@@ -16,8 +16,9 @@ With several drive tones each tone has its own copy of a source, named
 "<source> of tone <tone>" (``simulator.model.laser_noise.tone_source``). The
 copies keep the source's colour family and take a shade each, in the order the
 tones first appear in the budget: the first tone the source's own colour, the
-next ones mixed towards black and towards white in turn, so that the copies
-differ in lightness and stay apart in a greyscale print too.
+next ones mixed towards white (a dark colour), towards black (a light one) or
+both in turn, so that the copies differ in lightness and stay apart in a
+greyscale print too.
 """
 
 import zlib
@@ -54,8 +55,13 @@ _RESERVE = ("#8e6c8a", "#5b7e96", "#a0522d", "#4f7942", "#d95f02", "#6a7b8c")
 THERMAL_SUFFIX = " thermal bath"
 TONE_MARK = " of tone "
 # shade of the n-th tone's copy of a source: fraction mixed in, towards black (< 0) or
-# white (> 0); steps of ≥ 0.4 in the mix keep neighbouring copies apart in greyscale
-_TONE_SHADES = (0.0, -0.45, 0.5, -0.7, 0.75)
+# white (> 0). A dark colour lightens, a light one darkens, one in between goes both
+# ways in turn, so the first three copies of any colour here differ by ≥ 0.1 in
+# relative luminance (readable in greyscale); further copies by less
+_TONE_SHADES = {"dark": (0.0, 0.4, 0.65, 0.82, 0.92), "light": (0.0, -0.4, -0.65, -0.82, -0.92),
+                "mid": (0.0, -0.45, 0.5, -0.7, 0.75)}
+_DARK, _LIGHT = 0.2, 0.55  # relative luminance bounds of "dark" and "light" colours
+_LUMINANCE = (0.2126, 0.7152, 0.0722)  # ITU-R BT.709 weights of R, G, B (gamma left out)
 _TERM_STYLES = (("imprecision × back-action", "--"), ("imprecision", ":"),
                 ("motion", "-"), ("correlation", "-."),
                 # the chain's terms of one source: signal lost solid, the
@@ -75,7 +81,10 @@ def shade(colour, index):
     from matplotlib.colors import to_rgb
 
     rgb = to_rgb(colour)
-    mix = _TONE_SHADES[index % len(_TONE_SHADES)]
+    lightness = sum(w * c for w, c in zip(_LUMINANCE, rgb, strict=True))
+    mixes = _TONE_SHADES["dark" if lightness < _DARK else "light" if lightness > _LIGHT
+                         else "mid"]
+    mix = mixes[index % len(mixes)]
     target = 1.0 if mix > 0 else 0.0
     return tuple(c + abs(mix) * (target - c) for c in rgb)
 
