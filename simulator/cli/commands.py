@@ -197,7 +197,7 @@ def cmd_spectrum(args):
     if args.out:
         files["data"] = str(spectrum.save(args.out, overwrite=args.force))
     if args.plot:
-        from simulator.report.plots import plot_spectrum
+        from simulator.report.plots import plot_spectrum, titled
 
         displacement = None
         if result.at == "cavity" and args.engine == "linear":
@@ -205,7 +205,7 @@ def cmd_spectrum(args):
 
             displacement = to_displacement(spectrum, system)
         plot_spectrum(spectrum, args.plot, displacement=displacement, summary=result.summary,
-                      title=figure_title(result, scenario.scenario.name),
+                      title=figure_title(result, titled(scenario)),
                       overwrite=args.force)
         files["plot"] = str(args.plot)
     if args.json:

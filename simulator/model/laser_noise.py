@@ -146,11 +146,23 @@ def tone_fields(model, point):
     return out
 
 
-def _labels(laser):
-    """(name prefix, source label) of a laser's inputs, named by the tone it belongs to."""
-    if laser == PRIMARY_TONE:
-        return "laser.", lambda kind: f"laser {kind}"
-    return f"laser.tones.{laser}.", lambda kind: f"{kind} of tone {laser}"
+def _labels(laser, several=True):
+    """(name prefix, source label) of a laser's inputs, named by the tone it belongs to.
+
+    With several tones every laser's sources say their tone the same way, the
+    drive's too ("phase-noise floor of tone drive", :func:`tone_source`); with
+    the drive alone they read "laser phase-noise floor".
+    """
+    prefix = "laser." if laser == PRIMARY_TONE else f"laser.tones.{laser}."
+    if laser == PRIMARY_TONE and not several:
+        return prefix, lambda kind: f"laser {kind}"
+    return prefix, lambda kind: tone_source(kind, laser)
+
+
+def tone_source(kind, tone):
+    """Source name of noise ``kind`` owned by ``tone`` in a model of several tones
+    (``kind`` itself for ``tone`` None: the drive alone)."""
+    return kind if tone is None else f"{kind} of tone {tone}"
 
 
 def laser_model(model, scenario, point, demodulated=None):
@@ -192,8 +204,9 @@ def laser_model(model, scenario, point, demodulated=None):
     intensities = _unique(lasers[f.name][1] for f in fields)
     # states: the drive's shapes, the LO's and its reference (their one-tone places), then
     # the shapes of the tones' own lasers
-    phases = {PRIMARY_TONE: stationary_shapes(blocks, scenario.drive.phase_noise, "laser.",
-                                               _labels(PRIMARY_TONE)[1])}
+    several = len(fields) > 1
+    phases = {PRIMARY_TONE: stationary_shapes(blocks, scenario.drive.phase_noise,
+                                               *_labels(PRIMARY_TONE, several))}
     lo_rows = stationary_shapes(blocks, det.local_oscillator_phase_noise, "laser.lo.",
                                  lambda kind: f"local-oscillator {kind}", peak="phase-noise peak")
     reference = _reference(blocks, det)
@@ -211,7 +224,7 @@ def laser_model(model, scenario, point, demodulated=None):
                                            *_labels(laser))
     frequency = {}  # laser -> its frequency input
     for laser in phase_lasers:
-        prefix, label = _labels(laser)
+        prefix, label = _labels(laser, several)
         linewidth = noise_tables(scenario, laser)[0].linewidth_hz
         if linewidth > 0:
             frequency[laser] = k = blocks.add_input(f"{prefix}frequency",
@@ -221,14 +234,14 @@ def laser_model(model, scenario, point, demodulated=None):
                 if lasers[f.name][0] == laser:
                     blocks.cavity[k].append((f.rows, quad(1j * f.alpha)))
         if laser in intensities:
-            _intensity(blocks, scenario, laser, fields, lasers)
+            _intensity(blocks, scenario, laser, fields, lasers, several)
         if laser == PRIMARY_TONE and scenario.drive.calibration_tone.depth_rad > 0:
             k = blocks.add_input(TONE_INPUT, 0.0, "calibration tone")
             blocks.cavity[k].append((fields[0].rows, fields[0].port))
             blocks.output[k].append((fields[0].out, fields[0].direct))
     for laser in intensities:
         if laser not in phases:  # a tone's own intensity noise on a shared laser
-            _intensity(blocks, scenario, laser, fields, lasers)
+            _intensity(blocks, scenario, laser, fields, lasers, several)
     own = detected_lasers[0]
     if reference is not None and own in frequency:
         blocks.drive(frequency[own], reference[0], reference[1])
@@ -236,7 +249,7 @@ def laser_model(model, scenario, point, demodulated=None):
                      lo_rows, reference, det, seen)
 
 
-def _intensity(blocks, scenario, laser, fields, lasers):
+def _intensity(blocks, scenario, laser, fields, lasers, several):
     """Append ``laser``'s white intensity noise ε, entering as ā_in ε/2 every tone it reaches.
 
     ε is white, so a tone l it reaches also puts noise into the band of every
@@ -249,7 +262,7 @@ def _intensity(blocks, scenario, laser, fields, lasers):
     """
     rin = noise_tables(scenario, laser)[1].relative_intensity_noise_per_hz
     if rin > 0:
-        prefix, label = _labels(laser)
+        prefix, label = _labels(laser, several)
         k = blocks.add_input(f"{prefix}intensity", rin / 2, label("intensity noise"))
         reached = [f for f in fields if lasers[f.name][1] == laser]
         for f in reached:

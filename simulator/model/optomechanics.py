@@ -193,9 +193,10 @@ def several_tones_model(scenario, point, demodulated=None):
         prefix = "" if k == 0 else f"{tone.name}."
         inputs[i:i + 4] = [f"{prefix}{port}.{x}" for port in ("external", "internal")
                            for x in ("X", "Y")]
-        who = f"{tone.name} " if k else ""
-        sources += [(f"{who}external port vacuum", (i, i + 1)),
-                    (f"{who}internal loss bath", (i + 2, i + 3))]
+        # with several tones every tone's ports say their tone the same way, the drive's too
+        sources += [(laser_noise.tone_source(port, tone.name if len(tones) > 1 else None),
+                     (i + offset, i + offset + 1))
+                    for port, offset in (("external port vacuum", 0), ("internal loss bath", 2))]
         if k:
             states += [f"{tone.name}.X", f"{tone.name}.Y"]
             outputs += [f"{tone.name}.output.X", f"{tone.name}.output.Y"]

@@ -10,7 +10,8 @@ objective along it with the spans each constraint excludes shaded.
 
 import numpy as np
 
-from simulator.report.plots import save_figure, subplots
+from simulator.report.plots import FIGURE_DPI, save_figure, subplots
+from simulator.report.ticks import tidy_log_ticks
 from simulator.scenario.labels import axis_label
 
 _STYLES = ("-", "--", "-.", ":")
@@ -79,6 +80,15 @@ def _crossings(x, field):
 
 def plot_plan(data, path, *, overwrite=False):
     """Save the plan figure of ``data`` (a plan's plain data) to ``path``; return the path."""
+    fig = plan_figure(data)
+    if fig is None:
+        return None
+    save_figure(fig, path, overwrite=overwrite)
+    return path
+
+
+def plan_figure(data):
+    """The plan figure of ``data`` (a :class:`matplotlib.figure.Figure`), None without a map."""
     axes = data["map"]["axes"]
     if not axes:
         return None
@@ -142,9 +152,10 @@ def plot_plan(data, path, *, overwrite=False):
               frameon=False)
     ax.set_title(data["objective_description"], fontsize=10)
     fig.suptitle(f"{data['scenario']}: best operating point")
-    fig.tight_layout()
-    save_figure(fig, path, overwrite=overwrite)
-    return path
+    for _ in range(2):  # the labels chosen change the margins: lay out, choose, again
+        fig.tight_layout()
+        tidy_log_ticks(fig, dpi=FIGURE_DPI)
+    return fig
 
 
 def plan_html(data):

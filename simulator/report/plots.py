@@ -12,7 +12,13 @@ motion.
 
 import numpy as np
 
-from simulator.report.colours import FLOOR_COLOUR, TOTAL_COLOUR, source_colour, term_style
+from simulator.report.colours import (
+    FLOOR_COLOUR,
+    TOTAL_COLOUR,
+    source_colour,
+    term_style,
+    tone_order,
+)
 
 _PREFIXES = ((1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz"), (1.0, "Hz"))
 ZOOM_LINEWIDTHS = 6.0
@@ -27,6 +33,27 @@ def unit_of_span(span):
         if span >= 2 * scale:
             return scale, name
     return 1.0, "Hz"
+
+
+def titled(scenario):
+    """The scenario's name for a figure title, with the tones the record holds.
+
+    With the drive alone: the name. With several tones: which the receiver
+    demodulates among all ("drum-two-probes, tone blue_probe recorded of drive,
+    red_probe, blue_probe"); a back-action-evading pair is named as the pair
+    (the reference sits at its mean frequency).
+    """
+    from simulator.scenario.tone_sections import PRIMARY_TONE, detected_tone_names
+
+    name = scenario.scenario.name
+    if not scenario.tones:
+        return name
+    every = [PRIMARY_TONE] + [t.name for t in scenario.tones]
+    if scenario.detection.backaction_evading:
+        return f"{name}, back-action-evading pair {' + '.join(every)}"
+    recorded = detected_tone_names(scenario)
+    which = f"tones {', '.join(recorded)}" if len(recorded) > 1 else f"tone {recorded[0]}"
+    return f"{name}, {which} recorded of {', '.join(every)}"
 
 
 def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, title=None,
@@ -53,6 +80,15 @@ def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, titl
         Zoom panels of lines the sideband summary does not describe (a
         back-action-evading pair's X1 line); default those of ``summary``.
     """
+    fig = spectrum_figure(spectrum, displacement=displacement, summary=summary, mode=mode,
+                          title=title, zooms=zooms)
+    save_figure(fig, path, overwrite=overwrite)
+    return path
+
+
+def spectrum_figure(spectrum, *, displacement=None, summary=(), mode=0, title=None,
+                    zooms=None):
+    """The :class:`matplotlib.figure.Figure` of :func:`plot_spectrum`."""
     two_sided = spectrum.sided == "two-sided"
     zooms = _zooms(summary, mode, two_sided) if zooms is None else list(zooms)
     rows = 1 + bool(zooms) + bool(zooms and displacement is not None)
@@ -71,14 +107,15 @@ def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, titl
             dx = fig.add_subplot(grid[2, k])
             _displacement_zoom(dx, displacement, label, centre, width)
     handles, labels = ax.get_legend_handles_labels()
+    key = "noise budget (colour: source;\nline: term" + (
+        ";\nshade: tone)" if tone_order(names) else ")")
     fig.legend(handles, labels, loc="outside right upper", fontsize=8, frameon=False,
-               title="noise budget (colour: source;\nline: term)", title_fontsize=8)
+               title=key, title_fontsize=8)
     if zooms and displacement is not None:
         handles, labels = dx.get_legend_handles_labels()
         fig.legend(handles, labels, loc="outside right lower", fontsize=8, frameon=False,
                    title="referred to displacement", title_fontsize=8)
-    save_figure(fig, path, overwrite=overwrite)
-    return path
+    return fig
 
 
 def _zooms(summary, mode, two_sided):
@@ -89,8 +126,9 @@ def _zooms(summary, mode, two_sided):
         return []
     sides = [("Stokes", s.stokes, f"area n + 1 = {s.stokes.area_quanta:.4g}")] if two_sided \
         else []
+    # one number a line: a zoom's title is as wide as its column, the legend beside it
     sides.append(("anti-Stokes", s.anti_stokes,
-                  f"area n = {s.anti_stokes.area_quanta:.4g}, n from ratio = "
+                  f"area n = {s.anti_stokes.area_quanta:.4g}\nn from ratio = "
                   f"{s.occupation_from_ratio:.4g}, steady state n = "
                   f"{s.steady_state_occupation:.4g}"))
     out = []

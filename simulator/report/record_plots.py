@@ -22,7 +22,7 @@ a sideband the record cannot resolve is said so rather than hidden.
 import numpy as np
 
 from simulator.report.colours import TOTAL_COLOUR
-from simulator.report.plots import ZOOM_LINEWIDTHS, save_figure, subplots, unit_of_span
+from simulator.report.plots import ZOOM_LINEWIDTHS, save_figure, subplots, titled, unit_of_span
 from simulator.scenario.tone_sections import offset_words
 
 CONFIDENCE = 0.95  # two-sided band of the periodogram (common practice)
@@ -153,7 +153,7 @@ def plot_record_sidebands(system, record, path, *, title=None):
                frameon=False)
     floor = "1" if psd.sided == "two-sided" else "2, one-sided"
     scale, unit = unit_of_span(psd.resolution_hz)
-    fig.suptitle(title or f"{system.scenario.scenario.name}: synthetic record against the "
+    fig.suptitle(title or f"{titled(system.scenario)}: synthetic record against the "
                  f"model\n{psd.averages} averages, bins of {psd.resolution_hz / scale:.3g} {unit}; "
                  f"shot-noise units, vacuum = {floor}", x=0.02, ha="left", fontsize=10)
     save_figure(fig, path, overwrite=True)  # the run's own folder
@@ -204,8 +204,9 @@ def _sideband(ax, psd, expectation, line, sampling, band):
         z = norm.ppf(0.5 + CONFIDENCE / 2)
         needed = (z / max(height, 1e-300)) ** 2 * sampling[1] / sampling[0]
         verdict = f"not resolved bin by bin: needs ≈ {needed:.2g} s of record"
-    ax.set_title(f"{label}\npeak/floor − 1 = {height:.3g}, band ±{half_band:.0%}: {verdict}"
-                 f"\n{outside:.0%} of bins outside the band (expected {1 - CONFIDENCE:.0%})",
+    # the verdict on a line of its own: two columns of zooms leave each title half the width
+    ax.set_title(f"{label}\npeak/floor − 1 = {height:.3g}, band ±{half_band:.0%}\n{verdict}\n"
+                 f"{outside:.0%} of bins outside the band (expected {1 - CONFIDENCE:.0%})",
                  fontsize=8.5)
     ax.set_xlabel(f"offset from {centre / 1e6:.6g} MHz ({unit})")
     ax.set_ylabel("noise power density\n(shot-noise units, linear)")
@@ -228,7 +229,7 @@ def _plot_tone_channels(system, record, path, *, title=None):
     fig.legend(handles, labels, loc="outside lower center", ncols=3, fontsize=8,
                frameon=False)
     scale, unit = unit_of_span(psd.resolution_hz)
-    fig.suptitle(title or f"{system.scenario.scenario.name}: one I/Q pair per detected tone "
+    fig.suptitle(title or f"{titled(system.scenario)}: one I/Q pair per detected tone "
                  f"against the joint model\n{psd.averages} averages, bins of "
                  f"{psd.resolution_hz / scale:.3g} {unit}; offsets from each channel's own "
                  "tone, shot-noise units, vacuum = 1", x=0.02, ha="left", fontsize=10)

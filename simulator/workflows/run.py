@@ -169,7 +169,7 @@ def _derived_table(data):
 
 
 def _spectrum_part(system, out, wrote, figures):
-    from simulator.report.plots import plot_spectrum
+    from simulator.report.plots import plot_spectrum, titled
     from simulator.workflows.spectrum import compute_spectrum, figure_title
 
     result = compute_spectrum(system)  # at the digitiser, with the explained summary
@@ -177,15 +177,25 @@ def _spectrum_part(system, out, wrote, figures):
     spectrum.save(wrote(out / "spectrum.nc"), overwrite=True)
     png = wrote(out / "spectrum.png")
     plot_spectrum(spectrum, png, summary=summary, zooms=_quadrature_zoom(system, result),
-                  title=figure_title(result, system.scenario.scenario.name), overwrite=True)
+                  title=figure_title(result, titled(system.scenario)), overwrite=True)
+    zoomed = "each sideband" if result.quadratures is None else "the measured quadrature X1's line"
     figures.append((png, "Spectrum of the record at the digitiser and its noise budget: the "
-                         "whole band and each sideband zoomed."))
+                         f"whole band and {zoomed} zoomed."))
     if result.quadratures is not None:  # one quadrature measured, no sideband pair
+        from simulator.report.quadrature_plots import plot_quadratures
         from simulator.report.summary import quadrature_table
+
+        budget = result.quadratures.to_dict()
+        png = wrote(out / "quadratures.png")
+        plot_quadratures(budget, png, overwrite=True, title=f"{titled(system.scenario)}: "
+                         f"quadratures of mode {budget['mode']}")
+        figures.append((png, "Back-action-evading pair: the variance of the measured "
+                             "quadrature X1 and of its conjugate X2 by noise source, and the "
+                             "imprecision referred to X1 beside one tone's least."))
 
         return (f"<p>{html.escape(spectrum.quantity)}: {spectrum.sided} density in "
                 f"{html.escape(spectrum.units)}; axis: {html.escape(spectrum.axis)}.</p>"
-                + quadrature_table(result.quadratures.to_dict())), summary
+                + quadrature_table(budget)), summary
     rows = [[s.mode, s.anti_stokes.frequency_hz, s.anti_stokes.area_quanta,
              s.stokes.frequency_hz, s.stokes.area_quanta, s.ratio, s.occupation_from_ratio,
              s.steady_state_occupation] for s in summary]

@@ -10,6 +10,7 @@ occupation from the sideband ratio differs from the exact one
 
 import dataclasses
 import math
+import re
 import textwrap
 
 import numpy as np
@@ -177,7 +178,10 @@ TITLE_WIDTH = 90  # characters per line of the figure title (it shares the row w
 
 def figure_title(result, name):
     """Title of the spectrum figure: what and where, and mode 0's occupation gap."""
-    title = f"{name}: {result.spectrum.quantity}"
+    # a number keeps its unit on its line ("90 deg", "6e+07 samples/s")
+    what = re.sub(r"(\d) (?=(?:deg|rad|[kMG]?Hz|samples/s)\b)", "\\1\u00a0",
+                  f"{name}: {result.spectrum.quantity}")
+    title = "\n".join(textwrap.wrap(what, TITLE_WIDTH))
     if result.summary and result.summary[0].gap is not None:
         gap = result.summary[0].gap
         terms = ", ".join(f"{cause} {value:+.3g}" for cause, value in gap.terms.items())
