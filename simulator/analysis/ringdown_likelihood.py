@@ -82,30 +82,39 @@ def innovations(u, gamma, spacing_s, lam):
     innovations for any m₀ are a + m₀ c, with variances P·f.
     """
     rho, beta, q, var_f, cov_ef = block_noise(gamma, spacing_s)
-    return _kalman(np.ascontiguousarray(u, dtype=np.complex128), complex(rho), complex(beta),
-                   float(q), float(var_f + lam), complex(cov_ef))
+    n = len(u)
+    return kalman(np.ascontiguousarray(u, dtype=np.complex128), np.full(n, complex(rho)),
+                  np.full(n, complex(beta)), np.full(n, float(q)),
+                  np.full(n, float(var_f + lam)), np.full(n, complex(cov_ef)), 1.0)
 
 
 @numba.njit(cache=True, nogil=True)
-def _kalman(u, rho, beta, q, var_obs, cov_ef):
-    """The recursion of :func:`innovations`, compiled."""
+def kalman(u, rho, beta, q, var_obs, cov_ef, v0):
+    """The recursion of :func:`innovations`, compiled, with step-by-step moments.
+
+    Block k has its own ρ_k, β_k, E|e_k|² = q_k, observation variance
+    var_obs_k (E|f_k|² plus the white floor) and E[e_k f_k*]; the state starts
+    at mean 0 (response 1 to the start amplitude) with variance ``v0``. Fixed
+    moments give the stationary ring-down; moments that change at a switch
+    give a scheduled record (:mod:`simulator.analysis.heating_likelihood`).
+    """
     n = len(u)
     a = np.empty(n, np.complex128)
     c = np.empty(n, np.complex128)
     f = np.empty(n)
-    xa, xc, v = 0j, 1.0 + 0j, 1.0
-    keep = abs(rho) ** 2
-    b2 = abs(beta) ** 2
+    xa, xc, v = 0j, 1.0 + 0j, v0
     for k in range(n):
-        fk = b2 * v + var_obs
-        a[k] = u[k] - beta * xa
-        c[k] = -beta * xc
+        b = beta[k]
+        fk = abs(b) ** 2 * v + var_obs[k]
+        a[k] = u[k] - b * xa
+        c[k] = -b * xc
         f[k] = fk
-        gx = v * np.conj(beta) / fk
-        ge = cov_ef / fk
-        xa = rho * (xa + gx * a[k]) + ge * a[k]
-        xc = rho * (xc + gx * c[k]) + ge * c[k]
-        v = keep * v + q - abs(rho * v * np.conj(beta) + cov_ef) ** 2 / fk
+        gx = v * np.conj(b) / fk
+        ge = cov_ef[k] / fk
+        r = rho[k]
+        xa = r * (xa + gx * a[k]) + ge * a[k]
+        xc = r * (xc + gx * c[k]) + ge * c[k]
+        v = abs(r) ** 2 * v + q[k] - abs(r * v * np.conj(b) + cov_ef[k]) ** 2 / fk
     return a, c, f
 
 
