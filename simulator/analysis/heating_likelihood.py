@@ -47,7 +47,6 @@ covariance of θ̂ (delta method).
 import dataclasses
 
 import numpy as np
-import scipy.optimize
 
 from simulator.errors import InputError
 
@@ -55,7 +54,10 @@ BLOCK_RESOLUTION = 0.5  # block length × ω_c: the force noise is resolved (our
 NEWTON_STEPS = 8  # most Newton steps of the fit
 HALVINGS = 12  # most halvings of a step that does not lower −ln L
 CONVERGED = 1e-4  # Newton decrement g·Δ below which the fit stops (in ln L)
+NULL_LEAK = 1e-3  # amplitude of the Stokes line a block mean may pass (our choice)
 PHASE_STEP = 0.05  # rad: the first search's step in a segment's phase (our choice)
+FLOOR_STEP = 0.01  # the first search's step in a floor's scale (our choice)
+SMALLEST_RATE = 1e-9  # 1/s: Γ_s = 0 exactly is taken as this (the moments are continuous)
 HESSIAN_STEP = 0.3  # finite-difference step of the observed information, in errors
 
 
@@ -74,35 +76,52 @@ class ScheduledBlocks:
     names: tuple  # segment names in order of first appearance (the first's phase is 0)
     shifts: tuple  # δ_s (rad/s): the line's offset from the demodulation frequency
     start: str  # schedule.start
-    start_occupation: float
+    start_occupation: float  # n at the first sample unless the start is ``steady``
     sample_rate_hz: float
 
     def start_phonons(self, theta):
-        """n at the record's first sample: bath (``thermal``), the first segment's n_∞
-        (``steady``) or the schedule's ``start_occupation``."""
-        gamma_m, heating = theta
-        if self.start == "thermal":
-            return heating / gamma_m
-        if self.start == "steady":
-            first = self.models[0]
-            return (heating + first.optical_heating) / (gamma_m + first.optical_damping)
-        return self.start_occupation
+        """n at the record's first sample: the first segment's n_∞ (``steady``; ∞ if it
+        does not relax), else the known start (the nominal bath's or the schedule's)."""
+        if self.start != "steady":
+            return self.start_occupation
+        first = self.models[0]
+        rate = theta[0] + first.optical_damping
+        return (theta[1] + first.optical_heating) / rate if rate > 0 else np.inf
 
 
 def block_length(models, theta, sample_rate_hz, frequency_hz):
-    """Samples per block: ≤ :data:`BLOCK_RESOLUTION`/ω_c for every segment, the Stokes
-    image in a null (module notes; the block moments are exact for any Γ_s Δ)."""
+    """Samples per block: at most :data:`BLOCK_RESOLUTION`/ω_c for every segment (the
+    block moments are exact for any Γ_s Δ), with the Stokes image in a null.
+
+    The block mean at +f passes the Stokes line at −f by sinc(2fL/fs); the
+    longest length within the limit whose leak is below :data:`NULL_LEAK` is
+    taken, else the shortest up to twice the limit, else the best of
+    :func:`simulator.analysis.ringdown.mirror_null_block`.
+    """
     from simulator.analysis.ringdown import mirror_null_block
 
     gamma_m, heating = theta
     longest = min(BLOCK_RESOLUTION / np.sqrt(m.gain * (heating + m.optical_heating) / m.floor)
                   for m in models)
-    return mirror_null_block(max(1, int(longest * sample_rate_hz)), sample_rate_hz,
-                             frequency_hz)
+    target = max(1, int(longest * sample_rate_hz))
+    lengths = np.arange(1, 2 * target + 1)
+    cycles = 2.0 * frequency_hz * lengths / sample_rate_hz
+    good = lengths[np.abs(np.sin(np.pi * cycles)) / np.maximum(cycles, 1.0) < NULL_LEAK]
+    if np.any(good <= target):
+        return int(good[good <= target].max())
+    if good.size:
+        return int(good.min())
+    return mirror_null_block(target, sample_rate_hz, frequency_hz)
 
 
-def scheduled_blocks(z, scenario, block_samples, models, shifts, sample_rate_hz):
-    """:class:`ScheduledBlocks` of record ``z`` demodulated at the first mode's frequency."""
+def scheduled_blocks(z, scenario, block_samples, models, shifts, sample_rate_hz,
+                     bath_occupation):
+    """:class:`ScheduledBlocks` of record ``z`` demodulated at the first mode's frequency.
+
+    A ``thermal`` start is at ``bath_occupation``: the nominal n_th of the
+    scenario (the cryostat's temperature), known like the schedule itself, so
+    that the start does not tie H to Γm.
+    """
     from simulator.analysis.ringdown import demodulated_amplitude
 
     fs, f = sample_rate_hz, scenario.mechanics[0].frequency_hz
@@ -127,18 +146,27 @@ def scheduled_blocks(z, scenario, block_samples, models, shifts, sample_rate_hz)
     return ScheduledBlocks(u=np.concatenate(parts), runs=tuple(runs), models=tuple(models),
                            names=tuple(dict.fromkeys(m.name for m in models)),
                            shifts=tuple(shifts), start=schedule.start,
-                           start_occupation=float(schedule.start_occupation),
+                           start_occupation=float(bath_occupation if schedule.start == "thermal"
+                                                  else schedule.start_occupation),
                            sample_rate_hz=float(fs))
 
 
 def negative_log_likelihood(blocks, params):
     """−ln L of the block means at ``params`` = (Γm, H, φ of every segment name after the
-    first); ∞ where a segment would not relax (module notes)."""
+    first, the floor's scale c of every name); ∞ for H ≤ 0 or a steady start that
+    does not relax.
+
+    Γm is not held positive, and a segment's Γ_s may be negative: its moments
+    follow from the diffusion H + h_s and Γ_s of any sign. A record that hardly resolves Γm
+    would otherwise pile its estimates up at Γm = 0 and bias Γm and H.
+    """
     from simulator.analysis.ringdown_likelihood import block_noise, kalman
 
     gamma_m, heating = (float(x) for x in params[:2])
-    phase = dict(zip(blocks.names, np.concatenate([[0.0], params[2:]]), strict=True))
-    if not (gamma_m > 0 and heating > 0):
+    names = len(blocks.names)
+    phase = dict(zip(blocks.names, np.concatenate([[0.0], params[2:names + 1]]), strict=True))
+    floor = dict(zip(blocks.names, params[names + 1:], strict=True))
+    if not (heating > 0 and min(floor.values()) > 0):
         return np.inf
     n = len(blocks.u)
     rho, beta, cov_ef = (np.empty(n, np.complex128) for _ in range(3))
@@ -147,21 +175,27 @@ def negative_log_likelihood(blocks, params):
     for index, spacing, count in blocks.runs:
         m = blocks.models[index]
         rate = gamma_m + m.optical_damping
-        if rate <= 0:
-            return np.inf
+        if rate == 0:
+            rate = SMALLEST_RATE  # the limit Γ → 0 is continuous
         key = (m.name, spacing)
         if key not in moments:
-            n_inf = (heating + m.optical_heating) / rate
-            r, b, e2, f2, ef = block_noise(0.5 * rate - 1j * blocks.shifts[index], spacing)
+            diffusion = heating + m.optical_heating
+            if not diffusion > 0:
+                return np.inf
+            r, b, e2, f2, ef = block_noise(0.5 * rate - 1j * blocks.shifts[index], spacing,
+                                           diffusion=1.0)
             g = np.sqrt(m.gain) * np.exp(1j * phase[m.name])
-            moments[key] = (r, g * b, n_inf * e2, m.gain * n_inf * f2 + m.floor / spacing,
-                            np.conj(g) * n_inf * ef)
+            moments[key] = (r, g * b, diffusion * e2,
+                            m.gain * diffusion * f2 + floor[m.name] * m.floor / spacing,
+                            np.conj(g) * diffusion * ef)
         end = first + count
         rho[first:end], beta[first:end], q[first:end], var_obs[first:end], \
             cov_ef[first:end] = moments[key]
         first = end
-    a, _, f = kalman(blocks.u, rho, beta, q, var_obs, cov_ef,
-                     blocks.start_phonons((gamma_m, heating)))
+    start = blocks.start_phonons((gamma_m, heating))
+    if not np.isfinite(start):
+        return np.inf
+    a, _, f = kalman(blocks.u, rho, beta, q, var_obs, cov_ef, start)
     return float(np.sum(np.log(np.pi * f) + np.abs(a) ** 2 / f))
 
 
@@ -210,7 +244,7 @@ def fit_heating(blocks, params0, scale0):
                          "likelihood; expected segments that relax (Γm + Γopt > 0)")
     for _ in range(NEWTON_STEPS):
         grad, hess = derivatives(lambda x, p=params, u=scale: negative_log_likelihood(
-            blocks, p + u * x), len(params), HESSIAN_STEP)
+            blocks, p + u * x), difference_steps(params, scale))
         step = precision_step(hess, grad)
         for _ in range(HALVINGS):
             trial = params + scale * step
@@ -225,7 +259,7 @@ def fit_heating(blocks, params0, scale0):
         if decrement < CONVERGED:
             break
     _, hess = derivatives(lambda x: negative_log_likelihood(blocks, params + scale * x),
-                          len(params), HESSIAN_STEP)
+                          difference_steps(params, scale))
     try:
         cov = np.linalg.inv(hess) * np.outer(scale, scale)
     except np.linalg.LinAlgError:
@@ -245,21 +279,30 @@ def precision_step(hess, grad):
         return -grad / max(np.linalg.norm(grad), 1.0)
 
 
-def derivatives(func, size, step):
-    """Gradient and Hessian of ``func`` at 0 by central differences (one shared set of
-    1 + 2n + 2n(n − 1) evaluations)."""
-    eye = np.eye(size) * step
+def derivatives(func, steps):
+    """Gradient and Hessian of ``func`` at 0 by central differences of ``steps`` (one per
+    axis; one shared set of 1 + 2n + 2n(n − 1) evaluations)."""
+    size = len(steps)
+    eye = np.diag(steps)
     f0 = func(np.zeros(size))
     up = [func(eye[i]) for i in range(size)]
     down = [func(-eye[i]) for i in range(size)]
-    grad = np.array([(up[i] - down[i]) / (2 * step) for i in range(size)])
-    hess = np.diag([(up[i] - 2 * f0 + down[i]) / step**2 for i in range(size)])
+    grad = np.array([(up[i] - down[i]) / (2 * steps[i]) for i in range(size)])
+    hess = np.diag([(up[i] - 2 * f0 + down[i]) / steps[i] ** 2 for i in range(size)])
     for i in range(size):
         for j in range(i):
             hess[i, j] = hess[j, i] = (func(eye[i] + eye[j]) - func(eye[i] - eye[j])
                                        - func(eye[j] - eye[i]) + func(-eye[i] - eye[j])) / (
-                                           4 * step**2)
+                                           4 * steps[i] * steps[j])
     return grad, hess
+
+
+def difference_steps(params, scale):
+    """:data:`HESSIAN_STEP` units per axis, but never more than half the way to H = 0
+    (where the model ends)."""
+    steps = np.full(len(params), HESSIAN_STEP)
+    steps[1] = min(steps[1], 0.5 * params[1] / scale[1])
+    return steps
 
 
 def segment_slopes(blocks, theta, durations_s):
@@ -301,10 +344,13 @@ def heating_likelihood(record):
     fs = record.sample_rate_hz
     models, shifts, theta0, scale0 = nominal_model(scenario, fs)
     block = block_length(models, theta0, fs, scenario.mechanics[0].frequency_hz)
-    blocks = scheduled_blocks(record.samples, scenario, block, models, shifts, fs)
+    blocks = scheduled_blocks(record.samples, scenario, block, models, shifts, fs,
+                              theta0[1] / theta0[0])
     phases = switch_phases(blocks)
-    params, cov = fit_heating(blocks, np.concatenate([theta0, phases]),
-                              np.concatenate([scale0, np.full(len(phases), PHASE_STEP)]))
+    params, cov = fit_heating(blocks, np.concatenate([theta0, phases,
+                                                      np.ones(len(blocks.names))]),
+                              np.concatenate([scale0, np.full(len(phases), PHASE_STEP),
+                                              np.full(len(blocks.names), FLOOR_STEP)]))
     theta, cov = params[:2], cov[:2, :2]
     durations = [round(s.duration_s * fs) / fs for s in scenario.schedule.segments]
 

@@ -49,17 +49,18 @@ HESSIAN_STEP = 0.3  # finite-difference step, in units of the starting error est
 IMPRECISION_TEST = 3.84  # 2Δ(ln L) a fitted imprecision must gain: χ²₁ at 95 % (our choice)
 
 
-def block_noise(gamma, spacing_s):
+def block_noise(gamma, spacing_s, diffusion=None):
     """Exact moments of one block of a unit-variance complex OU process (P = 1).
 
     With da = −γ a dt + dW, E|dW|² = 2 Re(γ) dt, over one block of length Δ:
     a_{k+1} = ρ a_k + e_k and the block mean ā_k = β a_k + f_k, where
     ρ = e^{−γΔ}, β = (1 − ρ)/(γΔ) and e_k, f_k are integrals of the same
     noise (integrate-and-dump; the method of records.discretize). Returns
-    ``(ρ, β, E|e|², E|f|², E[e f*])``.
+    ``(ρ, β, E|e|², E|f|², E[e f*])``. With ``diffusion`` the noise has
+    E|dW|² = diffusion·dt instead (any sign of Re γ: a growing process too).
     """
     g = gamma.real
-    d = 2.0 * g  # diffusion of the unit-variance process
+    d = 2.0 * g if diffusion is None else diffusion  # 2 Re γ: the unit-variance process
     rho = np.exp(-gamma * spacing_s)
     one_minus_rho = -np.expm1(-gamma * spacing_s)
     decay2 = -np.expm1(-2.0 * g * spacing_s) / (2.0 * g)  # ∫ e^{−2gu} du
