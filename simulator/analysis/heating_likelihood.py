@@ -53,6 +53,7 @@ from simulator.errors import InputError
 BLOCK_RESOLUTION = 0.5  # block length × ω_c: the force noise is resolved (our choice)
 NEWTON_STEPS = 8  # most Newton steps of the fit
 HALVINGS = 12  # most halvings of a step that does not lower −ln L
+QUADRATIC = 1.0  # a Newton decrement below this keeps the Hessian (chord steps)
 CONVERGED = 1e-4  # Newton decrement g·Δ below which the fit stops (in ln L)
 NULL_LEAK = 1e-3  # amplitude of the Stokes line a block mean may pass (our choice)
 PHASE_STEP = 0.05  # rad: the first search's step in a segment's phase (our choice)
@@ -229,25 +230,37 @@ def switch_phases(blocks):
 
 
 def fit_heating(blocks, params0, scale0):
-    """(Γm, H, φ…) at the likelihood's maximum and their covariance (observed information).
+    """(Γm, H, φ…, c…) at the likelihood's maximum and their covariance (observed
+    information).
 
-    Newton's method on −ln L in units of ``scale0`` (a first guess of the
-    errors, e.g. the Cramér–Rao errors), gradient and Hessian by central
-    differences of :data:`HESSIAN_STEP` units, each step halved until −ln L
-    falls; the units follow the errors found. −ln L is nearly quadratic within
-    a few errors of its minimum, so a few steps suffice.
+    Newton's method on −ln L, the Hessian held once a step gains less than
+    :data:`QUADRATIC` (the chord method: −ln L is nearly quadratic within a
+    few errors of its minimum, so later steps need the gradient only), derivatives by central
+    differences of :data:`HESSIAN_STEP` errors (``scale0``, a first guess such as
+    the Cramér–Rao errors, then the errors found), each step halved until
+    −ln L falls; the covariance is the inverse of a fresh Hessian at the end.
     """
     params, scale = np.asarray(params0, dtype=float), np.asarray(scale0, dtype=float)
     value = negative_log_likelihood(blocks, params)
     if not np.isfinite(value):
         raise InputError("heating-rate likelihood: the nominal parameters give no finite "
                          "likelihood; expected segments that relax (Γm + Γopt > 0)")
+    curvature, decrement = None, np.inf  # Hessian in the parameters' own units
     for _ in range(NEWTON_STEPS):
+        fresh = curvature is None or decrement > QUADRATIC
         grad, hess = derivatives(lambda x, p=params, u=scale: negative_log_likelihood(
-            blocks, p + u * x), difference_steps(params, scale))
-        step = precision_step(hess, grad)
+            blocks, p + u * x), difference_steps(params, scale), fresh)
+        grad = grad / scale
+        if fresh:
+            curvature = hess / np.outer(scale, scale)
+            try:
+                np.linalg.cholesky(curvature)
+                scale = np.sqrt(np.diag(np.linalg.inv(curvature)))
+            except np.linalg.LinAlgError:
+                pass  # not yet where −ln L is convex: keep the units
+        step = precision_step(curvature, grad)
         for _ in range(HALVINGS):
-            trial = params + scale * step
+            trial = params + step
             new = negative_log_likelihood(blocks, trial)
             if new <= value:
                 break
@@ -255,7 +268,6 @@ def fit_heating(blocks, params0, scale0):
         else:
             break
         params, value, decrement = trial, new, float(-grad @ step)
-        scale = scale * np.sqrt(np.clip(np.diag(np.linalg.pinv(hess)), 1e-4, 1e4))
         if decrement < CONVERGED:
             break
     _, hess = derivatives(lambda x: negative_log_likelihood(blocks, params + scale * x),
@@ -279,15 +291,18 @@ def precision_step(hess, grad):
         return -grad / max(np.linalg.norm(grad), 1.0)
 
 
-def derivatives(func, steps):
+def derivatives(func, steps, second=True):
     """Gradient and Hessian of ``func`` at 0 by central differences of ``steps`` (one per
-    axis; one shared set of 1 + 2n + 2n(n − 1) evaluations)."""
+    axis; one shared set of 1 + 2n + 2n(n − 1) evaluations); the gradient alone
+    (2n) and no Hessian unless ``second``."""
     size = len(steps)
     eye = np.diag(steps)
-    f0 = func(np.zeros(size))
     up = [func(eye[i]) for i in range(size)]
     down = [func(-eye[i]) for i in range(size)]
     grad = np.array([(up[i] - down[i]) / (2 * steps[i]) for i in range(size)])
+    if not second:
+        return grad, None
+    f0 = func(np.zeros(size))
     hess = np.diag([(up[i] - 2 * f0 + down[i]) / steps[i] ** 2 for i in range(size)])
     for i in range(size):
         for j in range(i):
