@@ -3,45 +3,50 @@
 A ``[schedule]`` switches a cooling tone on and off; the record reads the
 mode through its anti-Stokes sideband. Demodulated there and averaged over
 short blocks, the record is the mode's complex amplitude a(t) (E|a|² = n,
-phonons) times √G_s, G_s the segment's block power per phonon
-(:func:`simulator.analysis.heating.block_power_per_phonon`), on the white
-floor S_b,s of the detection. In weak coupling each segment s obeys
+phonons) times √G_s e^{iφ_s}, G_s the segment's block power per phonon
+(:func:`simulator.analysis.heating.block_power_per_phonon`), on a white
+floor c_s S_b,s. In weak coupling each segment s obeys
 
     da = −(Γ_s/2 − iδ_s) a dt + dW,   E|dW|² = (H + h_s) dt,   Γ_s = Γm + Γopt,s,
 
 with θ = (Γm, H = Γm n_th) the unknowns (H the heating rate by the bath in
-phonons/s) and the segment's optical damping Γopt,s, optical heating h_s,
-frequency shift δ_s, gain and floor known from its nominal operating point
-(the model of :mod:`simulator.analysis.protocol_bound`; Marquardt et al.,
-PRL 99, 093902 (2007)). The block means of every segment follow one linear
-state-space model whose moments switch with the segment (the exact
-integrate-and-dump moments of :func:`simulator.analysis.ringdown_likelihood.
-block_noise`, scaled to the segment's n_∞ = (H + h_s)/Γ_s and gain), from
-the schedule's start occupation. Its exact Gaussian likelihood is the
-prediction-error decomposition by the Kalman filter (Schweppe, IEEE Trans.
-Inf. Theory 11, 61 (1965); Harvey, Forecasting, Structural Time Series
-Models and the Kalman Filter (CUP, 1989), Sec. 3.4; both from memory),
+phonons/s); the segment's optical damping Γopt,s, optical heating h_s,
+frequency shift δ_s, gain G_s and floor S_b,s are known from its nominal
+operating point (the model of :mod:`simulator.analysis.protocol_bound`;
+Marquardt et al., PRL 99, 093902 (2007)). Two nuisances per segment name are
+fitted with θ: the phase φ_s of the line in the record (the cavity's phase at
++f_m moves with the detuning: about 1 rad between the example's cooling and
+probe) and the floor's scale c_s (a block mean folds in the background of its
+whole band, which is not white: +4 % in the example's cooling segments).
 
-    −ln L(θ) = Σ_k [ln(π F_k) + |ν_k|²/F_k],
+The block means follow one linear state-space model whose moments switch
+with the segment (the exact integrate-and-dump moments of
+:func:`simulator.analysis.ringdown_likelihood.block_noise` for the diffusion
+H + h_s), from the schedule's start (a ``thermal`` start at the nominal bath
+occupation). Its exact Gaussian likelihood is the prediction-error
+decomposition by the Kalman filter (Schweppe, IEEE Trans. Inf. Theory 11, 61
+(1965); Harvey, Forecasting, Structural Time Series Models and the Kalman
+Filter (CUP, 1989), Sec. 3.4; both from memory),
 
-computed by :func:`simulator.analysis.ringdown_likelihood.kalman`. θ̂
-minimises it (Nelder–Mead, twice: the second pass in the units of the
-first's errors); the errors are the inverse Hessian at θ̂ (the observed
-information). Unlike the mean-power slope of
-:func:`simulator.analysis.ringdown.transient_rates`, it uses the force noise
-of the fluctuations, whose spectrum G(H + h_s)/ω² above Γ_s tells H within
-every segment, and so approaches the Cramér–Rao error of
+    −ln L = Σ_k [ln(π F_k) + |ν_k|²/F_k],
+
+computed by :func:`simulator.analysis.ringdown_likelihood.kalman` and
+minimised by Newton steps (:func:`fit_heating`); the errors are the inverse
+Hessian at the optimum (the observed information), nuisances included. Γm
+is not held positive (a record that hardly resolves it would pile its
+estimates at zero and bias Γm and H with it). Unlike the mean-power slope of
+:func:`simulator.analysis.ringdown.transient_rates`, the likelihood uses the
+force noise of the fluctuations, whose spectrum G(H + h_s)/ω² above Γ_s
+tells H within every segment, and so approaches the Cramér–Rao error of
 :func:`simulator.analysis.protocol_bound.heating_rate_bound`.
 
-The blocks must resolve that force noise: it climbs out of the floor below
-ω_c = √(G(H + h_s)/S_b), so a block lasts :data:`BLOCK_RESOLUTION`/ω_c at
-most (and its Stokes image sits in a null of the block mean,
-:func:`simulator.analysis.ringdown.mirror_null_block`). The demodulation
-phase runs on over the whole record, so the amplitude is continuous across
-a switch. The quantities derived from θ̂ — the initial slope Γ_s(n_∞,s −
-n(t_s)) of each segment (n carried by the rate equation dn/dt = −Γ_s(n −
-n_∞,s) from the schedule's start) and Γ_s/2π — take their errors from the
-covariance of θ̂ (delta method).
+The blocks resolve that force noise: it climbs out of the floor below ω_c =
+√(G(H + h_s)/S_b), so a block lasts :data:`BLOCK_RESOLUTION`/ω_c at most,
+with the Stokes image in a null of the block mean. The demodulation phase
+runs on over the whole record, so the amplitude is continuous across a
+switch. The initial slope Γ_s(n_∞,s − n(t_s)) of each segment (n carried by
+the rate equation from the start) and Γ_s/2π follow from θ̂, their errors
+from its covariance (delta method).
 """
 
 import dataclasses
