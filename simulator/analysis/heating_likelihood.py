@@ -213,11 +213,7 @@ def switch_phases(blocks):
     +f_m moves with the detuning: the amplitude jumps by e^{i(φ_B − φ_A)} at a
     switch from A to B (about 1 rad for the example's resonant probe).
     """
-    ends, first = {}, 0
-    for index, _, count in blocks.runs:
-        first += count
-        ends.setdefault(index, [first, first])[1] = first  # [start of run…, end]
-    bounds, first = [], 0
+    bounds, first = [], 0  # [segment index, first block, end] of every segment
     for index, _, count in blocks.runs:
         if not bounds or bounds[-1][0] != index:
             bounds.append([index, first, first + count])
