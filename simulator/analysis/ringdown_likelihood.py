@@ -49,17 +49,18 @@ HESSIAN_STEP = 0.3  # finite-difference step, in units of the starting error est
 IMPRECISION_TEST = 3.84  # 2Δ(ln L) a fitted imprecision must gain: χ²₁ at 95 % (our choice)
 
 
-def block_noise(gamma, spacing_s):
+def block_noise(gamma, spacing_s, diffusion=None):
     """Exact moments of one block of a unit-variance complex OU process (P = 1).
 
     With da = −γ a dt + dW, E|dW|² = 2 Re(γ) dt, over one block of length Δ:
     a_{k+1} = ρ a_k + e_k and the block mean ā_k = β a_k + f_k, where
     ρ = e^{−γΔ}, β = (1 − ρ)/(γΔ) and e_k, f_k are integrals of the same
     noise (integrate-and-dump; the method of records.discretize). Returns
-    ``(ρ, β, E|e|², E|f|², E[e f*])``.
+    ``(ρ, β, E|e|², E|f|², E[e f*])``. With ``diffusion`` the noise has
+    E|dW|² = diffusion·dt instead (any sign of Re γ: a growing process too).
     """
     g = gamma.real
-    d = 2.0 * g  # diffusion of the unit-variance process
+    d = 2.0 * g if diffusion is None else diffusion  # 2 Re γ: the unit-variance process
     rho = np.exp(-gamma * spacing_s)
     one_minus_rho = -np.expm1(-gamma * spacing_s)
     decay2 = -np.expm1(-2.0 * g * spacing_s) / (2.0 * g)  # ∫ e^{−2gu} du
@@ -82,30 +83,39 @@ def innovations(u, gamma, spacing_s, lam):
     innovations for any m₀ are a + m₀ c, with variances P·f.
     """
     rho, beta, q, var_f, cov_ef = block_noise(gamma, spacing_s)
-    return _kalman(np.ascontiguousarray(u, dtype=np.complex128), complex(rho), complex(beta),
-                   float(q), float(var_f + lam), complex(cov_ef))
+    n = len(u)
+    return kalman(np.ascontiguousarray(u, dtype=np.complex128), np.full(n, complex(rho)),
+                  np.full(n, complex(beta)), np.full(n, float(q)),
+                  np.full(n, float(var_f + lam)), np.full(n, complex(cov_ef)), 1.0)
 
 
 @numba.njit(cache=True, nogil=True)
-def _kalman(u, rho, beta, q, var_obs, cov_ef):
-    """The recursion of :func:`innovations`, compiled."""
+def kalman(u, rho, beta, q, var_obs, cov_ef, v0):
+    """The recursion of :func:`innovations`, compiled, with step-by-step moments.
+
+    Block k has its own ρ_k, β_k, E|e_k|² = q_k, observation variance
+    var_obs_k (E|f_k|² plus the white floor) and E[e_k f_k*]; the state starts
+    at mean 0 (response 1 to the start amplitude) with variance ``v0``. Fixed
+    moments give the stationary ring-down; moments that change at a switch
+    give a scheduled record (:mod:`simulator.analysis.heating_likelihood`).
+    """
     n = len(u)
     a = np.empty(n, np.complex128)
     c = np.empty(n, np.complex128)
     f = np.empty(n)
-    xa, xc, v = 0j, 1.0 + 0j, 1.0
-    keep = abs(rho) ** 2
-    b2 = abs(beta) ** 2
+    xa, xc, v = 0j, 1.0 + 0j, v0
     for k in range(n):
-        fk = b2 * v + var_obs
-        a[k] = u[k] - beta * xa
-        c[k] = -beta * xc
+        b = beta[k]
+        fk = abs(b) ** 2 * v + var_obs[k]
+        a[k] = u[k] - b * xa
+        c[k] = -b * xc
         f[k] = fk
-        gx = v * np.conj(beta) / fk
-        ge = cov_ef / fk
-        xa = rho * (xa + gx * a[k]) + ge * a[k]
-        xc = rho * (xc + gx * c[k]) + ge * c[k]
-        v = keep * v + q - abs(rho * v * np.conj(beta) + cov_ef) ** 2 / fk
+        gx = v * np.conj(b) / fk
+        ge = cov_ef[k] / fk
+        r = rho[k]
+        xa = r * (xa + gx * a[k]) + ge * a[k]
+        xc = r * (xc + gx * c[k]) + ge * c[k]
+        v = abs(r) ** 2 * v + q[k] - abs(r * v * np.conj(b) + cov_ef[k]) ** 2 / fk
     return a, c, f
 
 

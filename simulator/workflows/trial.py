@@ -20,7 +20,10 @@ mode), ``occupation[<mode>]``, ``effective_frequency_hz``,
 ``effective_linewidth_hz``, ``coupling_rate_hz`` (also with ``[<mode>]``) and
 ``cavity_occupation``; for a scenario with a ``[schedule]`` also
 ``effective_linewidth_hz@<segment>``, ``effective_frequency_hz@<segment>``
-and ``occupation@<segment>`` (the segment's steady state). Text after a colon labels a variant, so
+and ``occupation@<segment>`` (the segment's steady state),
+``heating_rate_phonons_per_s@<segment>`` (its initial slope),
+``bath_heating_rate_phonons_per_s`` and ``mechanical_linewidth_hz``. Text
+after a colon labels a variant, so
 ``occupation:asymmetry`` and ``occupation:damping`` are both compared with
 the occupation. With several detected tones (``detection.tones``) an
 estimator runs on each tone's channel alone and its quantities are labelled
@@ -125,7 +128,9 @@ def segment_truths(scenario):
     The segment's steady-state effective linewidth and frequency (a ring-down
     measures them) and occupation (where a transient ends); the initial heating
     rate in phonons/s of every un-kicked segment after the first
-    (:func:`simulator.analysis.heating.initial_heating_rates`); for an unstable
+    (:func:`simulator.analysis.heating.initial_heating_rates`); the bath's own
+    heating rate Γm n_th and Γm/2π (``bath_heating_rate_phonons_per_s``,
+    ``mechanical_linewidth_hz``); for an unstable
     segment the linewidth (negative) and frequency of its drift's poles only.
     """
     if getattr(scenario, "schedule", None) is None:
@@ -135,8 +140,8 @@ def segment_truths(scenario):
     from simulator.records.protocol import segment_systems
     from simulator.records.unstable import effective_from_eigenvalues
 
-    table = {}
-    for name, system in segment_systems(scenario):
+    table, systems = {}, segment_systems(scenario)
+    for name, system in systems:
         if not system.stable:  # a growing pulse: its poles, and no occupation to end at
             freq, width = effective_from_eigenvalues(system)
             table.update({f"effective_linewidth_hz@{name}": width[0],
@@ -148,6 +153,10 @@ def segment_truths(scenario):
                       f"occupation@{name}": mode.occupation})
     table.update({f"heating_rate_phonons_per_s@{name}": rate
                   for name, rate in initial_heating_rates(scenario).items()})
+    mode = scenario.mechanics[0]  # what heats it: the bath alone, and its own damping
+    table.update({"bath_heating_rate_phonons_per_s": 2 * np.pi * mode.linewidth_hz
+                  * systems[0][1].point.modes[0].bath_occupation,
+                  "mechanical_linewidth_hz": mode.linewidth_hz})
     return table
 
 

@@ -1,0 +1,416 @@
+"""Heating rate and damping of a scheduled record by the exact likelihood of its sideband.
+
+A ``[schedule]`` switches a cooling tone on and off; the record reads the
+mode through its anti-Stokes sideband. Demodulated there and averaged over
+short blocks, the record is the mode's complex amplitude a(t) (E|a|² = n,
+phonons) times √G_s e^{iφ_s}, G_s the segment's block power per phonon
+(:func:`simulator.analysis.heating.block_power_per_phonon`), on a white
+floor c_s S_b,s. In weak coupling each segment s obeys
+
+    da = −(Γ_s/2 − iδ_s) a dt + dW,   E|dW|² = (H + h_s) dt,   Γ_s = Γm + Γopt,s,
+
+with θ = (Γm, H = Γm n_th) the unknowns (H the heating rate by the bath in
+phonons/s); the segment's optical damping Γopt,s, optical heating h_s,
+frequency shift δ_s, gain G_s and floor S_b,s are known from its nominal
+operating point (the model of :mod:`simulator.analysis.protocol_bound`;
+Marquardt et al., PRL 99, 093902 (2007)). Two nuisances per segment name are
+fitted with θ: the phase φ_s of the line in the record (the cavity's phase at
++f_m moves with the detuning: about 1 rad between the example's cooling and
+probe) and the floor's scale c_s (a block mean folds in the background of its
+whole band, which is not white: +4 % in the example's cooling segments).
+
+The block means follow one linear state-space model whose moments switch
+with the segment (the exact integrate-and-dump moments of
+:func:`simulator.analysis.ringdown_likelihood.block_noise` for the diffusion
+H + h_s), from the schedule's start (a ``thermal`` start at the nominal bath
+occupation). Its exact Gaussian likelihood is the prediction-error
+decomposition by the Kalman filter (Schweppe, IEEE Trans. Inf. Theory 11, 61
+(1965); Harvey, Forecasting, Structural Time Series Models and the Kalman
+Filter (CUP, 1989), Sec. 3.4; both from memory),
+
+    −ln L = Σ_k [ln(π F_k) + |ν_k|²/F_k],
+
+computed by :func:`simulator.analysis.ringdown_likelihood.kalman` and
+minimised by Newton steps (:func:`fit_heating`); the errors are the inverse
+Hessian at the optimum (the observed information), nuisances included. Γm
+is not held positive (a record that hardly resolves it would pile its
+estimates at zero and bias Γm and H with it). Unlike the mean-power slope of
+:func:`simulator.analysis.ringdown.transient_rates`, the likelihood uses the
+force noise of the fluctuations, whose spectrum G(H + h_s)/ω² above Γ_s
+tells H within every segment, and so approaches the Cramér–Rao error of
+:func:`simulator.analysis.protocol_bound.heating_rate_bound`.
+
+The blocks resolve that force noise: it climbs out of the floor below ω_c =
+√(G(H + h_s)/S_b), so a block lasts :data:`BLOCK_RESOLUTION`/ω_c at most,
+with the Stokes image in a null of the block mean. The demodulation phase
+runs on over the whole record, so the amplitude is continuous across a
+switch. The initial slope Γ_s(n_∞,s − n(t_s)) of each segment (n carried by
+the rate equation from the start) and Γ_s/2π follow from θ̂, their errors
+from its covariance (delta method).
+"""
+
+import dataclasses
+
+import numpy as np
+
+from simulator.errors import InputError
+
+BLOCK_RESOLUTION = 0.5  # block length × ω_c: the force noise is resolved (our choice)
+NEWTON_STEPS = 8  # most Newton steps of the fit
+HALVINGS = 12  # most halvings of a step that does not lower −ln L
+QUADRATIC = 1.0  # a Newton decrement below this keeps the Hessian (chord steps)
+CONVERGED = 1e-4  # Newton decrement g·Δ below which the fit stops (in ln L)
+NULL_LEAK = 1e-3  # amplitude of the Stokes line a block mean may pass (our choice)
+PHASE_STEP = 0.05  # rad: the first search's step in a segment's phase (our choice)
+FLOOR_STEP = 0.01  # the first search's step in a floor's scale (our choice)
+SMALLEST_RATE = 1e-9  # 1/s: Γ_s = 0 exactly is taken as this (the moments are continuous)
+HESSIAN_STEP = 0.3  # finite-difference step of the observed information, in errors
+
+
+@dataclasses.dataclass(frozen=True, kw_only=True)
+class ScheduledBlocks:
+    """Block means of a scheduled record and what each run of blocks belongs to.
+
+    ``runs`` holds ``(segment index, spacing_s, count)``: ``count`` blocks of
+    ``spacing_s`` seconds in segment ``index`` of ``models`` (a segment's
+    samples left over after its whole blocks make one shorter block).
+    """
+
+    u: np.ndarray
+    runs: tuple
+    models: tuple  # protocol_bound.SegmentModel of each segment
+    names: tuple  # segment names in order of first appearance (the first's phase is 0)
+    shifts: tuple  # δ_s (rad/s): the line's offset from the demodulation frequency
+    start: str  # schedule.start
+    start_occupation: float  # n at the first sample unless the start is ``steady``
+    sample_rate_hz: float
+
+    def start_phonons(self, theta):
+        """n at the record's first sample: the first segment's n_∞ (``steady``; ∞ if it
+        does not relax), else the known start (the nominal bath's or the schedule's)."""
+        if self.start != "steady":
+            return self.start_occupation
+        first = self.models[0]
+        rate = theta[0] + first.optical_damping
+        return (theta[1] + first.optical_heating) / rate if rate > 0 else np.inf
+
+
+def block_length(models, theta, sample_rate_hz, frequency_hz):
+    """Samples per block: at most :data:`BLOCK_RESOLUTION`/ω_c for every segment (the
+    block moments are exact for any Γ_s Δ), with the Stokes image in a null.
+
+    The block mean at +f passes the Stokes line at −f by sinc(2fL/fs); the
+    longest length within the limit whose leak is below :data:`NULL_LEAK` is
+    taken, else the shortest up to twice the limit, else the best of
+    :func:`simulator.analysis.ringdown.mirror_null_block`.
+    """
+    from simulator.analysis.ringdown import mirror_null_block
+
+    gamma_m, heating = theta
+    longest = min(BLOCK_RESOLUTION / np.sqrt(m.gain * (heating + m.optical_heating) / m.floor)
+                  for m in models)
+    target = max(1, int(longest * sample_rate_hz))
+    lengths = np.arange(1, 2 * target + 1)
+    cycles = 2.0 * frequency_hz * lengths / sample_rate_hz
+    good = lengths[np.abs(np.sin(np.pi * cycles)) / np.maximum(cycles, 1.0) < NULL_LEAK]
+    if np.any(good <= target):
+        return int(good[good <= target].max())
+    if good.size:
+        return int(good.min())
+    return mirror_null_block(target, sample_rate_hz, frequency_hz)
+
+
+def scheduled_blocks(z, scenario, block_samples, models, shifts, sample_rate_hz,
+                     bath_occupation):
+    """:class:`ScheduledBlocks` of record ``z`` demodulated at the first mode's frequency.
+
+    A ``thermal`` start is at ``bath_occupation``: the nominal n_th of the
+    scenario (the cryostat's temperature), known like the schedule itself, so
+    that the start does not tie H to Γm.
+    """
+    from simulator.analysis.ringdown import demodulated_amplitude
+
+    fs, f = sample_rate_hz, scenario.mechanics[0].frequency_hz
+    z = np.asarray(z)
+    parts, runs, first = [], [], 0
+    for i, segment in enumerate(scenario.schedule.segments):
+        n = int(round(segment.duration_s * fs))
+        whole = (n // block_samples) * block_samples
+        pieces = [(block_samples, whole)] + ([(n - whole, n - whole)] if n > whole else [])
+        start = first
+        for size, length in pieces:
+            if length == 0:
+                continue
+            _, u = demodulated_amplitude(z[start:start + length], fs, f, size)
+            parts.append(u * np.exp(-2j * np.pi * f * start / fs))  # one phase for all
+            runs.append((i, size / fs, len(u)))
+            start += length
+        first += n
+    if first > len(z):
+        raise InputError(f"the record has {len(z)} samples; its schedule needs {first}")
+    schedule = scenario.schedule
+    return ScheduledBlocks(u=np.concatenate(parts), runs=tuple(runs), models=tuple(models),
+                           names=tuple(dict.fromkeys(m.name for m in models)),
+                           shifts=tuple(shifts), start=schedule.start,
+                           start_occupation=float(bath_occupation if schedule.start == "thermal"
+                                                  else schedule.start_occupation),
+                           sample_rate_hz=float(fs))
+
+
+def negative_log_likelihood(blocks, params):
+    """−ln L of the block means at ``params`` = (Γm, H, φ of every segment name after the
+    first, the floor's scale c of every name); ∞ for H ≤ 0 or a steady start that
+    does not relax.
+
+    Γm is not held positive, and a segment's Γ_s may be negative: its moments
+    follow from the diffusion H + h_s and Γ_s of any sign. A record that hardly resolves Γm
+    would otherwise pile its estimates up at Γm = 0 and bias Γm and H.
+    """
+    from simulator.analysis.ringdown_likelihood import block_noise, kalman
+
+    gamma_m, heating = (float(x) for x in params[:2])
+    names = len(blocks.names)
+    phase = dict(zip(blocks.names, np.concatenate([[0.0], params[2:names + 1]]), strict=True))
+    floor = dict(zip(blocks.names, params[names + 1:], strict=True))
+    if not (heating > 0 and min(floor.values()) > 0):
+        return np.inf
+    n = len(blocks.u)
+    rho, beta, cov_ef = (np.empty(n, np.complex128) for _ in range(3))
+    q, var_obs = np.empty(n), np.empty(n)
+    first, moments = 0, {}
+    for index, spacing, count in blocks.runs:
+        m = blocks.models[index]
+        rate = gamma_m + m.optical_damping
+        if rate == 0:
+            rate = SMALLEST_RATE  # the limit Γ → 0 is continuous
+        key = (m.name, spacing)
+        if key not in moments:
+            diffusion = heating + m.optical_heating
+            if not diffusion > 0:
+                return np.inf
+            r, b, e2, f2, ef = block_noise(0.5 * rate - 1j * blocks.shifts[index], spacing,
+                                           diffusion=1.0)
+            g = np.sqrt(m.gain) * np.exp(1j * phase[m.name])
+            moments[key] = (r, g * b, diffusion * e2,
+                            m.gain * diffusion * f2 + floor[m.name] * m.floor / spacing,
+                            np.conj(g) * diffusion * ef)
+        end = first + count
+        rho[first:end], beta[first:end], q[first:end], var_obs[first:end], \
+            cov_ef[first:end] = moments[key]
+        first = end
+    start = blocks.start_phonons((gamma_m, heating))
+    if not np.isfinite(start):
+        return np.inf
+    a, _, f = kalman(blocks.u, rho, beta, q, var_obs, cov_ef, start)
+    return float(np.sum(np.log(np.pi * f) + np.abs(a) ** 2 / f))
+
+
+def switch_phases(blocks):
+    """Start values of every name's phase φ (rad): the mean phase step of the block
+    means across the switches from the first name to it and back.
+
+    The anti-Stokes line reaches the record through the cavity, whose phase at
+    +f_m moves with the detuning: the amplitude jumps by e^{i(φ_B − φ_A)} at a
+    switch from A to B (about 1 rad for the example's resonant probe).
+    """
+    bounds, first = [], 0  # [segment index, first block, end] of every segment
+    for index, _, count in blocks.runs:
+        if not bounds or bounds[-1][0] != index:
+            bounds.append([index, first, first + count])
+        else:
+            bounds[-1][2] = first + count
+        first += count
+    steps = {}
+    for (i, _, end), (j, start, _) in zip(bounds[:-1], bounds[1:], strict=False):
+        a, b = blocks.models[i].name, blocks.models[j].name
+        if a != b:
+            steps[(a, b)] = steps.get((a, b), 0j) + blocks.u[start] * np.conj(blocks.u[end - 1])
+    head = blocks.names[0]
+    return np.array([np.angle(steps.get((head, name), 0j) + np.conj(steps.get((name, head), 0j)))
+                     for name in blocks.names[1:]])
+
+
+def fit_heating(blocks, params0, scale0):
+    """(Γm, H, φ…, c…) at the likelihood's maximum and their covariance (observed
+    information).
+
+    Newton's method on −ln L, the Hessian held once a step gains less than
+    :data:`QUADRATIC` (the chord method: −ln L is nearly quadratic within a
+    few errors of its minimum, so later steps need the gradient only), derivatives by central
+    differences of :data:`HESSIAN_STEP` errors (``scale0``, a first guess such as
+    the Cramér–Rao errors, then the errors found), each step halved until
+    −ln L falls; the covariance is the inverse of a fresh Hessian at the end.
+    """
+    params, scale = np.asarray(params0, dtype=float), np.asarray(scale0, dtype=float)
+    value = negative_log_likelihood(blocks, params)
+    if not np.isfinite(value):
+        raise InputError("heating-rate likelihood: the nominal parameters give no finite "
+                         "likelihood; expected segments that relax (Γm + Γopt > 0)")
+    curvature, decrement = None, np.inf  # Hessian in the parameters' own units
+    for _ in range(NEWTON_STEPS):
+        fresh = curvature is None or decrement > QUADRATIC
+        grad, hess = derivatives(lambda x, p=params, u=scale: negative_log_likelihood(
+            blocks, p + u * x), difference_steps(params, scale), fresh)
+        grad = grad / scale
+        if fresh:
+            curvature = hess / np.outer(scale, scale)
+            try:
+                np.linalg.cholesky(curvature)
+                scale = np.sqrt(np.diag(np.linalg.inv(curvature)))
+            except np.linalg.LinAlgError:
+                pass  # not yet where −ln L is convex: keep the units
+        step = precision_step(curvature, grad)
+        for _ in range(HALVINGS):
+            trial = params + step
+            new = negative_log_likelihood(blocks, trial)
+            if new <= value:
+                break
+            step = step / 2
+        else:
+            break
+        params, value, decrement = trial, new, float(-grad @ step)
+        if decrement < CONVERGED:
+            break
+    _, hess = derivatives(lambda x: negative_log_likelihood(blocks, params + scale * x),
+                          difference_steps(params, scale))
+    try:
+        cov = np.linalg.inv(hess) * np.outer(scale, scale)
+    except np.linalg.LinAlgError:
+        cov = np.full(hess.shape, np.nan)
+    if not (np.all(np.isfinite(cov)) and np.all(np.diag(cov) > 0)):
+        raise InputError("heating-rate likelihood: no curvature at the optimum; expected a "
+                         "record that determines Γm and the heating rate")
+    return params, cov
+
+
+def precision_step(hess, grad):
+    """The Newton step −H⁻¹g, or a gradient step of one unit where H is not positive."""
+    try:
+        np.linalg.cholesky(hess)
+        return -np.linalg.solve(hess, grad)
+    except np.linalg.LinAlgError:
+        return -grad / max(np.linalg.norm(grad), 1.0)
+
+
+def derivatives(func, steps, second=True):
+    """Gradient and Hessian of ``func`` at 0 by central differences of ``steps`` (one per
+    axis; one shared set of 1 + 2n + 2n(n − 1) evaluations); the gradient alone
+    (2n) and no Hessian unless ``second``."""
+    size = len(steps)
+    eye = np.diag(steps)
+    up = [func(eye[i]) for i in range(size)]
+    down = [func(-eye[i]) for i in range(size)]
+    grad = np.array([(up[i] - down[i]) / (2 * steps[i]) for i in range(size)])
+    if not second:
+        return grad, None
+    f0 = func(np.zeros(size))
+    hess = np.diag([(up[i] - 2 * f0 + down[i]) / steps[i] ** 2 for i in range(size)])
+    for i in range(size):
+        for j in range(i):
+            hess[i, j] = hess[j, i] = (func(eye[i] + eye[j]) - func(eye[i] - eye[j])
+                                       - func(eye[j] - eye[i]) + func(-eye[i] - eye[j])) / (
+                                           4 * steps[i] * steps[j])
+    return grad, hess
+
+
+def difference_steps(params, scale):
+    """:data:`HESSIAN_STEP` units per axis, but never more than half the way to H = 0
+    (where the model ends)."""
+    steps = np.full(len(params), HESSIAN_STEP)
+    steps[1] = min(steps[1], 0.5 * params[1] / scale[1])
+    return steps
+
+
+def segment_slopes(blocks, theta, durations_s):
+    """``{name: mean over its segments of Γ_s(n_∞,s − n(t_s))}`` (phonons/s), every
+    segment after the first, n carried by the rate equation from the start."""
+    gamma_m, heating = theta
+    n, slopes = blocks.start_phonons(theta), {}
+    for k, (m, duration) in enumerate(zip(blocks.models, durations_s, strict=True)):
+        rate = gamma_m + m.optical_damping
+        n_inf = (heating + m.optical_heating) / rate
+        if k > 0:
+            slopes.setdefault(m.name, []).append(rate * (n_inf - n))
+        n = n_inf + (n - n_inf) * np.exp(-rate * duration)
+    return {name: float(np.mean(v)) for name, v in slopes.items()}
+
+
+def heating_likelihood(record):
+    """Trial estimator: Γm and the heating rate of a scheduled iq record by likelihood.
+
+    Returns ``bath_heating_rate_phonons_per_s`` (H = Γm n_th),
+    ``mechanical_linewidth_hz`` (Γm/2π), and for every segment name
+    ``effective_linewidth_hz@<name>`` (Γ_s/2π) and, where it follows another
+    segment, ``heating_rate_phonons_per_s@<name>`` (the initial slope, as
+    :func:`simulator.analysis.heating.initial_heating_rates`), each with its
+    standard error.
+    """
+    from simulator.analysis.protocol_bound import central_differences
+
+    scenario = record.scenario
+    if getattr(scenario, "schedule", None) is None or record.kind != "iq":
+        raise InputError("heating_likelihood needs an iq record of a scenario with a "
+                         f"[schedule]; got a {record.kind!r} record"
+                         + ("" if scenario.schedule is not None else " without one"))
+    kicked = [s.name for s in scenario.schedule.segments if s.excite_phonons > 0]
+    if kicked:
+        raise InputError(f"heating_likelihood: segment {kicked[0]!r} kicks the mode "
+                         "(excite_phonons > 0); expected a schedule of thermal transients "
+                         "only (the ring-down estimator fits kicks)")
+    fs = record.sample_rate_hz
+    models, shifts, theta0, scale0 = nominal_model(scenario, fs)
+    block = block_length(models, theta0, fs, scenario.mechanics[0].frequency_hz)
+    blocks = scheduled_blocks(record.samples, scenario, block, models, shifts, fs,
+                              theta0[1] / theta0[0])
+    phases = switch_phases(blocks)
+    params, cov = fit_heating(blocks, np.concatenate([theta0, phases,
+                                                      np.ones(len(blocks.names))]),
+                              np.concatenate([scale0, np.full(len(phases), PHASE_STEP),
+                                              np.full(len(blocks.names), FLOOR_STEP)]))
+    theta, cov = params[:2], cov[:2, :2]
+    durations = [round(s.duration_s * fs) / fs for s in scenario.schedule.segments]
+
+    def with_error(function):
+        grad = np.array(central_differences(function, theta))
+        return float(function(theta)), float(np.sqrt(grad @ cov @ grad))
+
+    out = {"bath_heating_rate_phonons_per_s": (theta[1], np.sqrt(cov[1, 1])),
+           "mechanical_linewidth_hz": (theta[0] / (2 * np.pi),
+                                       np.sqrt(cov[0, 0]) / (2 * np.pi))}
+    for m in {m.name: m for m in models}.values():
+        out[f"effective_linewidth_hz@{m.name}"] = (
+            (theta[0] + m.optical_damping) / (2 * np.pi), np.sqrt(cov[0, 0]) / (2 * np.pi))
+    for name in segment_slopes(blocks, theta, durations):
+        out[f"heating_rate_phonons_per_s@{name}"] = with_error(
+            lambda t, name=name: np.array(segment_slopes(blocks, t, durations)[name]))
+    return {key: (float(v), float(e)) for key, (v, e) in out.items()}
+
+
+def nominal_model(scenario, sample_rate_hz):
+    """``(segment models, δ_s, nominal θ, Cramér–Rao errors)`` of a scheduled scenario.
+
+    The segment models are :func:`simulator.analysis.protocol_bound.segment_models`
+    at the record's rate; δ_s = 2π(f_eff,s − f_m) the line's offset from the
+    demodulation at the nominal mechanical frequency; θ nominal from the
+    scenario (Γm from its linewidth, H = Γm n_th); the errors from the Whittle
+    information of the same schedule (the unit of the first search).
+    """
+    from simulator.analysis.heating import segment_system_of
+    from simulator.analysis.protocol_bound import segment_models, whittle_fisher
+    from simulator.linear.steady_state import steady_state
+
+    models, gamma_m, heating, _ = segment_models(scenario)
+    names = {m.name for m in models}
+    systems = segment_system_of(scenario, names)
+    f_m = scenario.mechanics[0].frequency_hz
+    offset = {name: 2 * np.pi * (steady_state(s).modes[0].effective_frequency_hz - f_m)
+              for name, s in systems.items()}
+    theta0 = np.array([gamma_m, heating])
+    info = whittle_fisher(models, theta0, sample_rate_hz)
+    try:
+        scale = np.sqrt(np.diag(np.linalg.inv(info)))
+    except np.linalg.LinAlgError:
+        scale = np.full(2, np.nan)
+    if not np.all(np.isfinite(scale) & (scale > 0)):
+        scale = 0.1 * theta0  # no usable bound: start in steps of 10 %
+    return models, tuple(offset[m.name] for m in models), theta0, scale
