@@ -53,6 +53,7 @@ import dataclasses
 
 import numpy as np
 
+from simulator.analysis.newton import derivatives, precision_step
 from simulator.errors import InputError
 
 BLOCK_RESOLUTION = 0.5  # block length × ω_c: the force noise is resolved (our choice)
@@ -281,36 +282,6 @@ def fit_heating(blocks, params0, scale0):
         raise InputError("heating-rate likelihood: no curvature at the optimum; expected a "
                          "record that determines Γm and the heating rate")
     return params, cov
-
-
-def precision_step(hess, grad):
-    """The Newton step −H⁻¹g, or a gradient step of one unit where H is not positive."""
-    try:
-        np.linalg.cholesky(hess)
-        return -np.linalg.solve(hess, grad)
-    except np.linalg.LinAlgError:
-        return -grad / max(np.linalg.norm(grad), 1.0)
-
-
-def derivatives(func, steps, second=True):
-    """Gradient and Hessian of ``func`` at 0 by central differences of ``steps`` (one per
-    axis; one shared set of 1 + 2n + 2n(n − 1) evaluations); the gradient alone
-    (2n) and no Hessian unless ``second``."""
-    size = len(steps)
-    eye = np.diag(steps)
-    up = [func(eye[i]) for i in range(size)]
-    down = [func(-eye[i]) for i in range(size)]
-    grad = np.array([(up[i] - down[i]) / (2 * steps[i]) for i in range(size)])
-    if not second:
-        return grad, None
-    f0 = func(np.zeros(size))
-    hess = np.diag([(up[i] - 2 * f0 + down[i]) / steps[i] ** 2 for i in range(size)])
-    for i in range(size):
-        for j in range(i):
-            hess[i, j] = hess[j, i] = (func(eye[i] + eye[j]) - func(eye[i] - eye[j])
-                                       - func(eye[j] - eye[i]) + func(-eye[i] - eye[j])) / (
-                                           4 * steps[i] * steps[j])
-    return grad, hess
 
 
 def difference_steps(params, scale):
