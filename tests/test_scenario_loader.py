@@ -284,3 +284,28 @@ def test_scenario_source_is_not_part_of_equality():
     b = scenario_from_dict(scenario_dict(), source="b.toml")
     assert a == b and a.source == "a.toml"
     assert isinstance(a, Scenario)
+
+
+@pytest.mark.parametrize("make, expect", [
+    (lambda p: p.write_bytes(b""), "the file is empty"),
+    (lambda p: p.write_bytes(b" \n\t\n"), "the file is empty"),
+    (lambda p: p.write_bytes(b"\x82\x00\xff junk"), "byte 0x82 at offset 0 is not UTF-8"),
+    (lambda p: p.mkdir(), "is a folder; expected a scenario TOML file"),
+], ids=["empty", "blank", "binary", "folder"])
+def test_file_that_is_no_scenario_is_named_and_refused(tmp_path, capsys, make, expect):
+    path = tmp_path / "given.toml"
+    make(path)
+    with pytest.raises(ScenarioError, match=expect):
+        load_scenario(path)
+    assert main(["check", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert str(path) in err and expect in err and err.count("\n") == 1
+
+
+def test_endless_file_is_refused_after_a_bounded_read(monkeypatch):
+    """/dev/zero never ends: reading it whole used to exhaust the memory."""
+    import simulator.scenario.loader as loader
+
+    monkeypatch.setattr(loader, "MAX_SCENARIO_BYTES", 2**20)
+    with pytest.raises(ScenarioError, match="larger than 1 MiB"):
+        load_scenario("/dev/zero")

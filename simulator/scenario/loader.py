@@ -61,6 +61,11 @@ from simulator.scenario.tone_sections import (
 
 _frozen = dataclasses.dataclass(frozen=True, kw_only=True)
 
+# A scenario is a few kB of text; a sweep listing its values may reach hundreds of
+# kB. Anything beyond this is not a scenario (a record, an image, a device file),
+# and reading it whole could exhaust the memory.
+MAX_SCENARIO_BYTES = 16 * 2**20
+
 
 @_frozen
 class Scenario:
@@ -281,18 +286,36 @@ def load_scenario(path):
         If the file is missing, malformed or describes an invalid scenario.
     """
     path = Path(path)
+    if path.is_dir():
+        raise ScenarioError("is a folder; expected a scenario TOML file", source=str(path))
     try:
-        text = path.read_text(encoding="utf-8")
+        with path.open("rb") as f:  # bounded: a device file such as /dev/zero never ends
+            raw = f.read(MAX_SCENARIO_BYTES + 1)
     except FileNotFoundError:
         raise ScenarioError("file not found; expected a scenario TOML file",
                             source=str(path)) from None
-    except (OSError, UnicodeDecodeError) as exc:
+    except OSError as exc:
         raise ScenarioError(f"cannot read the file ({exc})", source=str(path)) from None
+    if len(raw) > MAX_SCENARIO_BYTES:
+        raise ScenarioError(f"the file is larger than {MAX_SCENARIO_BYTES // 2**20} MiB; "
+                            "expected a scenario TOML file (a few kB of text)",
+                            source=str(path))
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise ScenarioError(f"cannot read the file as text: byte {raw[exc.start]:#04x} at "
+                            f"offset {exc.start} is not UTF-8; expected a scenario TOML "
+                            "file (UTF-8 text)",
+                            source=str(path)) from None
     return parse_scenario(text.removeprefix("\ufeff"), source=str(path))  # byte-order mark
 
 
 def parse_scenario(text, *, source="<string>"):
     """Validate a scenario given as TOML text; see :func:`load_scenario`."""
+    if not text.strip():
+        raise ScenarioError("the file is empty; expected a scenario TOML file with "
+                            "[scenario], [drive], [cavity] and [[mechanics]] tables",
+                            source=source)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
