@@ -16,7 +16,12 @@ DEMO = "simulator/data/demo.toml"
      "--compress, --threads with --averaged: expected none"),
     (["--averaged", "64", "--form", "innovations"], "--form with --averaged"),
     (["--engine", "master", "--threads", "2"], "--threads with --engine master"),
-    (["--threads", "100000"], "workers = 100000 threads; expected at most"),
+    (["--threads", "100000"], "--threads 100000: expected at most"),
+    (["--duration", "0"], "--duration 0.0 is out of range; expected a positive number"),
+    (["--duration", "nan"], "--duration nan is not a finite number"),
+    (["--duration", "1e30"], r"--duration 1e\+30 is out of range; .*at most 1e6"),
+    (["--seed", "-1"], "--seed -1 is out of range; expected a non-negative integer"),
+    (["--seed", str(2**64)], f"--seed {2**64} is out of range"),
     (["--averaged", "64", "--window", "nonsense"],
      "window = 'nonsense': .*expected a scipy.signal.get_window name"),
     (["--averaged", "64", "--window", "kaiser"], "window = 'kaiser': .*needs no parameter"),
@@ -52,3 +57,34 @@ def test_a_homodyne_angle_with_heterodyne_detection_is_refused(capsys):
     """It was ignored: the heterodyne spectrum does not depend on a quadrature angle."""
     assert main(["spectrum", DEMO, "--angle-deg", "30"]) == 2
     assert "--angle-deg 30 with detection.scheme = 'heterodyne'" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("options", [["--duration", "1e30"], ["--seed", "-1"],
+                                     ["--threads", "100000"]])
+def test_a_bad_record_option_is_one_line_naming_the_option(tmp_path, capsys, options):
+    """The progress bar was drawn before the library refused the value, and the value
+    was blamed on the scenario file ("demo.toml: record.duration_s") or called
+    "workers" or "seed": now one line, the option's own name, before any work."""
+    out = tmp_path / "r.h5"
+    assert main(["record", DEMO, "--out", str(out), *options]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and err.startswith(f"noisechain record: error: {options[0]} ")
+    assert DEMO not in err
+
+
+SCHEDULED = "scenarios/nanostring_protocol.toml"
+
+
+@pytest.mark.parametrize("verb", [
+    ["record", SCHEDULED, "--out", "{out}/r.h5"],
+    ["trial", SCHEDULED, "--estimator", "tests.estimators_for_tests:spectrum_floor",
+     "--trials", "2", "--out", "{out}/trial"],
+], ids=["record", "trial"])
+def test_a_duration_with_a_schedule_is_refused(tmp_path, capsys, verb):
+    """A scheduled record lasts the sum of its segments: --duration 0.1, the default of
+    record.duration_s, was silently ignored by record (and any --duration by trial)."""
+    argv = [a.replace("{out}", str(tmp_path)) for a in verb]
+    assert main([*argv, "--duration", "0.1", "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert "--duration 0.1 with a [schedule]" in err and "0.042 s here" in err
+    assert list(tmp_path.iterdir()) == []

@@ -223,6 +223,7 @@ def cmd_record(args):
     _require_output_file(args.out, (".h5", ".hdf5"), "--out", args.force)
     _require_record_options(args)
     scenario = load_scenario(args.scenario)
+    _require_no_duration_with_schedule(args, scenario)
     if scenario.schedule is not None and (args.averaged is not None
                                           or args.engine == "master"):
         raise InputError("a scenario with a [schedule] makes a non-stationary record with "
@@ -288,6 +289,16 @@ def _require_record_options(args):
     would silently ignore."""
     if args.threads is not None and args.threads < 1:
         raise InputError(f"--threads {args.threads}: expected a positive number of threads")
+    if args.threads is not None:
+        from simulator.records.pipeline import checked_workers
+
+        try:
+            checked_workers(args.threads)
+        except InputError as exc:  # the same limit, under the option's own name
+            raise InputError(f"--threads {args.threads}: "
+                             f"{str(exc).partition('; ')[2]}") from None
+    _require_in_key_range("--seed", args.seed, "scenario", "seed")
+    _require_in_key_range("--duration", args.duration, "record", "duration_s")
     if args.averaged is None and args.window is not None:
         raise InputError(f"--window {args.window}: expected it only with --averaged N "
                          "(it is the averaged periodogram's window)")
@@ -300,6 +311,30 @@ def _require_record_options(args):
     if unused and args.engine == "master":
         raise InputError(f"{', '.join(unused)} with --engine master: expected none of them "
                          "(they shape the linear engine's records)")
+
+
+def _require_in_key_range(option, value, section, key):
+    """Refuse an option's value outside the range of the scenario key it overrides,
+    naming the option (not the scenario file, which is not at fault)."""
+    if value is None:
+        return
+    from simulator.scenario import schema
+    from simulator.scenario.loader import Scenario
+
+    cls = schema.field_kind(Scenario, section)[1]
+    field = next(f for f in schema.public_fields(cls) if f.name == key)
+    problem = schema.range_problem(field, schema.field_kind(cls, key)[1], value)
+    if problem:
+        raise InputError(f"{option} {problem}")
+
+
+def _require_no_duration_with_schedule(args, scenario):
+    """A scheduled record lasts the sum of its segments: a --duration would be ignored."""
+    if scenario.schedule is not None and args.duration is not None:
+        total = sum(seg.duration_s for seg in scenario.schedule.segments)
+        raise InputError(f"--duration {args.duration!r} with a [schedule]: a scheduled "
+                         f"record lasts the sum of its segments' duration_s ({total:g} s "
+                         "here); expected no --duration")
 
 
 def _averaged_spectrum(args, scenario):
@@ -340,10 +375,13 @@ def cmd_trial(args):
     """``noisechain trial``: an estimator on many records, against the truth."""
     _require_output_folder(args.out)
     _require_workers(args)
+    _require_in_key_range("--duration", args.duration, "record", "duration_s")
     from simulator.scenario.loader import load_scenario
     from simulator.workflows.trial import run_trials
 
-    result = run_trials(load_scenario(args.scenario), args.estimator, args.trials, args.out,
+    scenario = load_scenario(args.scenario)
+    _require_no_duration_with_schedule(args, scenario)
+    result = run_trials(scenario, args.estimator, args.trials, args.out,
                         duration_s=args.duration, workers=args.workers, dask=args.dask,
                         progress=not args.quiet, timeout_s=args.timeout_s,
                         averaged=None if args.averaged is None else (args.averaged,

@@ -108,6 +108,12 @@ def segment_problems(scenario):
     """Cross-section checks of the schedule's paths and kicked modes: ``(key, message)``."""
     if scenario.schedule is None:
         return
+    length = next(f for f in dataclasses.fields(scenario.record) if f.name == "duration_s")
+    if scenario.record.duration_s != length.default:  # it would be ignored
+        total = sum(seg.duration_s for seg in scenario.schedule.segments)
+        yield ("record.duration_s", f"{scenario.record.duration_s!r} s with a [schedule]: a "
+               "scheduled record lasts the sum of its segments' duration_s "
+               f"({total:g} s here); expected record.duration_s left out")
     base = dataclasses.replace(scenario, schedule=None)  # no recursion into these checks
     for i, segment in enumerate(scenario.schedule.segments):
         where = f"schedule.segments[{i}]"

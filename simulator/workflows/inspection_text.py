@@ -163,6 +163,10 @@ class Inspection:
                 ("back-action limit n_min", "backaction_limit")]
         for mode in d["modes"]:
             lines += ["", f"mode {mode['name']}"]
+            if "tones" in d and not self.scenario.detection.backaction_evading:
+                lines.append(f"  (g, cooperativities, Ωm/κ: the detected tone "
+                             f"{d['detected_tone']}'s; damping, spring, occupations, "
+                             "n_min: every tone's)")
             for label, key in rows:
                 if key in mode:
                     value = mode[key]
