@@ -88,3 +88,13 @@ def test_a_duration_with_a_schedule_is_refused(tmp_path, capsys, verb):
     err = capsys.readouterr().err
     assert "--duration 0.1 with a [schedule]" in err and "0.042 s here" in err
     assert list(tmp_path.iterdir()) == []
+
+
+def test_a_record_refused_inside_the_engine_prints_no_empty_progress_bar(tmp_path, capsys):
+    """1 ps at the demo's sample rate is no sample: refused by the record plan, after
+    the bar had been drawn ("record: 0.00sample [00:00, ?sample/s]" twice)."""
+    out = tmp_path / "r.h5"
+    assert main(["record", DEMO, "--out", str(out), "--duration", "1e-12"]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("noisechain record: error: duration 1e-12 s at ")
+    assert err.count("\n") == 1 and "sample/s]" not in err and not out.exists()
