@@ -43,3 +43,50 @@ def test_mode_block_with_several_tones_says_whose_numbers_it_shows(capsys):
     block = text.split("mode breathing\n", 1)[1]
     assert block.startswith("  (g, cooperativities, Ωm/κ: the detected tone probe's; "
                             "damping, spring, occupations, n_min: every tone's)\n")
+
+
+DAMAGED = {  # valid JSON in a layout the run never writes
+    "a list": "[1, 2]",
+    "text for a number": '{"photon_number": "x", "error": ""}',
+    "a mode list too short": '{"occupation": [], "error": ""}',
+    "no error field": '{"photon_number": 3.0}',
+}
+
+
+@pytest.mark.parametrize("damage", DAMAGED, ids=list(DAMAGED))
+def test_damaged_sweep_point_is_computed_again(tmp_path, damage):
+    """A point file damaged into another valid JSON failed the whole rerun with "the
+    computation failed numerically ... a value of the scenario is probably outside
+    the range" (blaming the scenario), or went into the dataset as it was."""
+    from conftest import make_scenario
+
+    from simulator.workflows.sweep import run_sweep
+
+    scenario = make_scenario(sweep={"parameters": {"drive.power_w": {
+        "start": 1e-7, "stop": 1e-6, "num": 3}}})
+    fresh = run_sweep(scenario, tmp_path, workers=1, progress=False)
+    stored = sorted((tmp_path / "points").glob("*.json"))
+    assert len(stored) == 3
+    stored[1].write_text(DAMAGED[damage], encoding="utf-8")
+    again = run_sweep(scenario, tmp_path, workers=1, progress=False)
+    for name in ("photon_number", "occupation", "cooperativity", "stable"):
+        assert again[name].values.tolist() == fresh[name].values.tolist()
+    assert again["error"].values.tolist() == ["", "", ""]
+
+
+@pytest.mark.parametrize("damage", ["[1, 2]", '{"estimates": 3, "error": ""}',
+                                    '{"estimates": {"q": [1.0, "x"]}, "error": "", '
+                                    '"warnings": []}'])
+def test_damaged_trial_file_is_run_again(tmp_path, damage):
+    """A trial file damaged into a JSON list ended the rerun with a traceback
+    (TypeError: list indices must be integers), and a malformed estimate reached
+    the statistics."""
+    from simulator.workflows.trial import run_trials
+
+    scenario = load_scenario("tests/data/fast_thermometry.toml")
+    spec = "tests.estimators_for_tests:shot_noise_level"
+    fresh = run_trials(scenario, spec, 2, tmp_path, workers=1, progress=False)
+    stored = sorted((tmp_path / "trials").glob("*.json"))
+    stored[0].write_text(damage, encoding="utf-8")
+    again = run_trials(scenario, spec, 2, tmp_path, workers=1, progress=False)
+    assert again.to_dict() == fresh.to_dict()

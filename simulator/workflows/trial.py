@@ -76,8 +76,18 @@ def _trial_task(common, seed):
 
 
 def succeeded(result):
-    """Only a trial without an error is kept; a failed one is run again on a rerun."""
-    return not result["error"]
+    """Only a whole trial without an error is kept; a failed one is run again on a
+    rerun, and so is a stored file damaged into another layout of valid JSON (which
+    used to end the run with a traceback, or reach the statistics)."""
+    def pair(v):
+        return (isinstance(v, (list, tuple)) and len(v) == 2
+                and all(x is None or (isinstance(x, (int, float)) and not isinstance(x, bool))
+                        for x in v))
+
+    return (isinstance(result, dict) and result.get("error") == ""
+            and isinstance(result.get("estimates"), dict)
+            and all(isinstance(k, str) and pair(v) for k, v in result["estimates"].items())
+            and isinstance(result.get("warnings"), list))
 
 
 def truth_table(scenario):
