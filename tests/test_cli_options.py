@@ -98,3 +98,15 @@ def test_a_record_refused_inside_the_engine_prints_no_empty_progress_bar(tmp_pat
     err = capsys.readouterr().err
     assert err.startswith("noisechain record: error: duration 1e-12 s at ")
     assert err.count("\n") == 1 and "sample/s]" not in err and not out.exists()
+
+
+@pytest.mark.parametrize("angle", ["nan", "1e300", "-400"])
+def test_a_homodyne_angle_beyond_a_turn_is_refused_as_the_option(capsys, angle):
+    """nan was blamed on the scenario file (detection.quadrature_angle_rad), and 1e300
+    degrees was accepted: its remainder modulo a turn is lost to rounding, so the
+    spectrum was that of an arbitrary quadrature."""
+    homodyne = "scenarios/microtoroid_room_temperature.toml"
+    assert main(["spectrum", homodyne, "--angle-deg", angle, "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert f"--angle-deg {float(angle):g}: expected a finite angle from -360 to 360" in err
+    assert homodyne not in err and err.count("\n") == 1

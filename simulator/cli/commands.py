@@ -188,8 +188,11 @@ def cmd_spectrum(args):
         raise InputError(f"--angle-deg {args.angle_deg:g} with detection.scheme = "
                          f"{scenario.detection.scheme!r}: expected it only for homodyne "
                          "detection (a heterodyne record holds both quadratures)")
-    system = System(scenario)  # built once: spectrum, summary and referral share it
     angle = None if args.angle_deg is None else math.radians(args.angle_deg)
+    if angle is not None and not abs(angle) <= 2 * math.pi:  # nan too
+        raise InputError(f"--angle-deg {args.angle_deg:g}: expected a finite angle from "
+                         "-360 to 360 degrees (one turn either way)")
+    system = System(scenario)  # built once: spectrum, summary and referral share it
     result = compute_spectrum(system, at=args.at, engine=args.engine,
                               master_model=args.master_model, quadrature_angle=angle)
     spectrum = result.spectrum

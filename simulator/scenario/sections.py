@@ -9,6 +9,7 @@ be given), ``ALTERNATIVES`` (groups of which at most one may be given) and
 """
 
 import dataclasses
+import math
 
 from simulator.scenario.schema import param, section
 
@@ -281,7 +282,8 @@ class Detection:
     quadrature_angle_rad: float = param(
         "homodyne quadrature θ of X_θ = cos θ X + sin θ Y, from the amplitude "
         "quadrature; π/2 is the phase quadrature", unit="rad", check="real",
-        default=1.5707963267948966)
+        default=1.5707963267948966, low=-2 * math.pi, high=2 * math.pi,
+        why="one turn either way; far beyond it rounding loses the angle modulo 2π")
     local_oscillator_source: str = param(
         "where the local oscillator comes from: \"common\", a copy of the drive "
         "laser (its phase noise cancels, up to the path delay); \"locked\", a "
