@@ -90,3 +90,24 @@ def test_damaged_trial_file_is_run_again(tmp_path, damage):
     stored[0].write_text(damage, encoding="utf-8")
     again = run_trials(scenario, spec, 2, tmp_path, workers=1, progress=False)
     assert again.to_dict() == fresh.to_dict()
+
+
+def test_uncoupled_mode_is_named_not_silently_left_out_of_the_bounds(capsys):
+    """A mode the detected light does not couple to has no Cramér–Rao bound (its motion
+    is not in the record); its feasibility block used to vanish without a word, and
+    its optical spring printed as "-0"."""
+    from conftest import make_scenario
+
+    scenario = make_scenario(mechanics=[
+        {"name": "dark", "frequency_hz": 20e6, "linewidth_hz": 10.0,
+         "effective_mass_kg": 1e-15, "coupling_hz": 0.0, "bath_occupation": 100.0},
+        {"name": "lit", "frequency_hz": 27e6, "linewidth_hz": 10.0,
+         "effective_mass_kg": 1e-15, "coupling_hz": 100.0, "bath_occupation": 100.0}])
+    report = inspect_scenario(System(scenario))
+    assert [f["mode"] for f in report.feasibility] == ["lit"]
+    said = [w for w in report.warnings if w.startswith("mode dark: no measurement-time")]
+    assert len(said) == 1 and "none of its motion" in said[0]
+    assert not any(w.startswith("mode lit: no measurement-time") for w in report.warnings)
+    dark = report.to_text().split("mode dark\n", 1)[1].split("\n\n", 1)[0]
+    assert "optical damping (Hz)        0\n" in dark + "\n"
+    assert "optical spring (Hz)         0\n" in dark + "\n"

@@ -112,8 +112,12 @@ def _inspect(system, warnings, feasibility):
         quadratures = quadrature_budget(system)
         resolution = resolution_comparison(system) if feasibility else ()
         feasibility = False  # the sideband bounds do not apply to one quadrature
-    feasibility = (_feasibility(system, steady) if steady is not None and feasibility
-                   else ())
+    asked = steady is not None and feasibility
+    feasibility = _feasibility(system, steady) if asked else ()
+    bounded = {f["mode"] for f in feasibility}
+    warnings += [f"mode {m.name}: no measurement-time bound: the detected light does not "
+                 "couple to it (g = 0, or no drive power), so the record holds none of its "
+                 "motion" for m in scenario.mechanics if asked and m.name not in bounded]
     warnings += [f"mode {f['mode']}: the record carries too little information about this "
                  "mode for a finite measurement-time bound (reported as infinite, null in "
                  "JSON); raise the drive power or the coupling"

@@ -170,7 +170,7 @@ class Inspection:
             for label, key in rows:
                 if key in mode:
                     value = mode[key]
-                    text = "inf" if value is None else f"{value:.6g}"
+                    text = "inf" if value is None else f"{value + 0.0:.6g}"  # no "-0"
                     if f"{key}_not_applicable" in mode:
                         text = f"not applicable ({mode[key + '_not_applicable']})"
                     lines.append(f"  {label:<28}{text}")
