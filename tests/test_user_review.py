@@ -111,3 +111,29 @@ def test_uncoupled_mode_is_named_not_silently_left_out_of_the_bounds(capsys):
     dark = report.to_text().split("mode dark\n", 1)[1].split("\n\n", 1)[0]
     assert "optical damping (Hz)        0\n" in dark + "\n"
     assert "optical spring (Hz)         0\n" in dark + "\n"
+
+
+def test_a_file_of_another_noisechain_format_is_named_with_its_reader(tmp_path):
+    """An averaged spectrum given to the record reader was called "not a complete
+    noisechain record ... an interrupted write leaves such a file": a physicist would
+    rerun a record that was never broken. A folder was "not found"."""
+    from simulator.errors import InputError
+    from simulator.io.averagedfile import load_averaged_spectrum
+    from simulator.io.recordfile import load_record
+    from simulator.workflows.record import simulate_averaged_spectrum, simulate_record
+
+    scenario = load_scenario("tests/data/fast_thermometry.toml")
+    averaged, record = tmp_path / "a.h5", tmp_path / "r.h5"
+    simulate_averaged_spectrum(scenario, segment_samples=64, out=averaged)
+    simulate_record(scenario, out=record)
+    with pytest.raises(InputError, match="holds format 'noisechain-averaged-spectrum', not "
+                       "'noisechain-record'.*load_averaged_spectrum"):
+        load_record(averaged)
+    with pytest.raises(InputError, match="holds format 'noisechain-record', not "
+                       "'noisechain-averaged-spectrum'.*recordfile.load_record"):
+        load_averaged_spectrum(record)
+    with pytest.raises(InputError, match="is a folder; expected an HDF5 file"):
+        load_record(tmp_path)
+    # and each reads its own
+    assert load_record(record).n_samples > 0
+    assert load_averaged_spectrum(averaged).segment_samples == 64
