@@ -137,3 +137,31 @@ def test_a_file_of_another_noisechain_format_is_named_with_its_reader(tmp_path):
     # and each reads its own
     assert load_record(record).n_samples > 0
     assert load_averaged_spectrum(averaged).segment_samples == 64
+
+
+BAE = "scenarios/drum_bae_microwave.toml"
+
+
+def test_a_mistuned_back_action_evading_pair_is_said_to_evade_nothing():
+    """Tones 5 kHz off ±Ωm (the mode 20 Hz wide) were reported as a back-action-evading
+    measurement with "X1 measured" and an imprecision of "inf quanta" in the record.
+    The physics behind the warning: X1 then takes the back-action, so Var X1 and
+    Var X2 come out alike, while the tuned pair leaves X1 near its thermal variance."""
+    from simulator.linear.quadratures import quadrature_budget
+
+    tuned = System(load_scenario(BAE))
+    mistuned = tuned.replace("tones[0].detuning_hz", 5.01e6)
+
+    budget = quadrature_budget(tuned)
+    assert budget.x2_variance > 10 * budget.x1_variance  # X2 takes the back-action
+    report = inspect_scenario(tuned, feasibility=False)
+    assert not [w for w in report.warnings if "half-spacing" in w]
+
+    budget = quadrature_budget(mistuned)
+    assert budget.x1_backaction > 100 * quadrature_budget(tuned).x1_backaction
+    assert abs(budget.x1_variance - budget.x2_variance) < 0.2 * budget.x2_variance
+    report = inspect_scenario(mistuned, feasibility=False)
+    said = [w for w in report.warnings if "half-spacing ν = 5005000 Hz" in w]
+    assert len(said) == 1 and "does not evade it here" in said[0]
+    assert "in this record              none: no X1 line" in report.to_text()
+    assert "inf quanta" not in report.to_text()
