@@ -155,6 +155,13 @@ class Sweep:
             if len(set(lengths.values())) > 1:
                 yield ("parameters", "zipped parameters need equal lengths; got "
                        + ", ".join(f"{p}: {n}" for p, n in lengths.items()))
+            return
+        for path, spec in self.parameters.items():  # a grid axis: each value once
+            value, count = collections.Counter(axis_numbers(spec)).most_common(1)[0]
+            if count > 1:
+                yield (f'parameters."{path}"', f"{value!r} comes {count} times along this "
+                       "grid axis (the same points computed again, a degenerate axis); "
+                       "expected distinct values (a range with num > 1 needs start ≠ stop)")
 
 
 def axis_numbers(spec):
