@@ -50,6 +50,10 @@ def _range_problem(spec):
     num = spec["num"]
     if isinstance(num, bool) or not isinstance(num, int) or not 1 <= num <= MAX_POINTS:
         return f"range num = {num!r}; expected an integer from 1 to {MAX_POINTS}"
+    if num == 1 and spec["start"] != spec["stop"]:  # linspace(start, stop, 1) is [start]
+        return (f"range num = 1 from {spec['start']!r} to {spec['stop']!r}: only start would "
+                "be used and stop ignored; expected num ≥ 2 to span the range (or a list "
+                "of one value)")
     if not isinstance(spec.get("log", False), bool):
         return f"range log = {spec['log']!r}; expected true or false"
     if spec.get("log") and (spec["start"] <= 0 or spec["stop"] <= 0):
