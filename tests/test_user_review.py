@@ -165,3 +165,21 @@ def test_a_mistuned_back_action_evading_pair_is_said_to_evade_nothing():
     assert len(said) == 1 and "does not evade it here" in said[0]
     assert "in this record              none: no X1 line" in report.to_text()
     assert "inf quanta" not in report.to_text()
+
+
+def test_check_refuses_what_every_other_verb_refuses(tmp_path, capsys):
+    """Two tones at one frequency on one cavity mode were "valid" for `check`, then
+    refused by inspect, spectrum and record (the model's own spacing check): the
+    tutorial's first step passed a file the second step rejected."""
+    text = open("scenarios/drum_two_probes.toml", encoding="utf-8").read()
+    path = tmp_path / "coinciding.toml"
+    path.write_text(text.replace("detuning_hz = -6.4e6", "detuning_hz = -6.0e6", 1),
+                    encoding="utf-8")
+    assert main(["check", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert "tones[0].detuning_hz: tones 'drive' and 'red_probe' on one cavity mode" in err
+    assert main(["inspect", str(path), "--no-feasibility"]) == 2
+    assert err.splitlines()[0] == capsys.readouterr().err.splitlines()[0].replace(
+        "noisechain inspect", "noisechain check")
+    # an unstable operating point is a valid scenario: check passes, inspect exits 3
+    assert main(["check", "scenarios/trampoline_blue_unstable.toml"]) == 0

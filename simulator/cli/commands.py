@@ -38,6 +38,13 @@ def cmd_check(args):
 
         check_plan(scenario)
         coordinates_of(scenario)  # every bound value
+    from simulator.errors import OperatingPointError
+    from simulator.model.system import System
+
+    try:  # the checks every other verb runs on the model (the spacing of tones, ...)
+        _ = System(scenario).point
+    except OperatingPointError:
+        pass  # a valid scenario at an unstable operating point: `inspect` says why
     modes = ", ".join(m.name for m in scenario.mechanics)
     print(f"{args.scenario}: valid scenario {scenario.scenario.name!r} "
           f"({len(scenario.mechanics)} mechanical mode(s): {modes})")
