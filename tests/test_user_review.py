@@ -183,3 +183,28 @@ def test_check_refuses_what_every_other_verb_refuses(tmp_path, capsys):
         "noisechain inspect", "noisechain check")
     # an unstable operating point is a valid scenario: check passes, inspect exits 3
     assert main(["check", "scenarios/trampoline_blue_unstable.toml"]) == 0
+
+
+def test_spectrum_of_several_recorded_tones_names_the_receiver_it_shows(capsys):
+    """With detection.tones = [red_probe, blue_probe] `spectrum` drew the first tone's
+    receiver without naming it: its lines (anti-Stokes near the cavity) could be read
+    as the blue probe's. It is the spectrum of detection.tone = "red_probe"."""
+    import numpy as np
+
+    from simulator.scenario.loader import parse_scenario
+    from simulator.workflows.spectrum import compute_spectrum, report_text
+
+    text = open("scenarios/drum_two_probes.toml", encoding="utf-8").read()
+    detected = 'tone = "blue_probe"'
+    assert text.count(detected) == 1
+    both = parse_scenario(text.replace(detected, 'tones = ["red_probe", "blue_probe"]'))
+    red = parse_scenario(text.replace(detected, 'tone = "red_probe"'))
+    shown, alone = compute_spectrum(System(both)), compute_spectrum(System(red))
+    assert np.array_equal(shown.spectrum.frequency_hz, alone.spectrum.frequency_hz)
+    assert np.allclose(shown.spectrum.total, alone.spectrum.total, rtol=1e-12, atol=0)
+    text = report_text(shown, {})
+    assert text.splitlines()[1] == (
+        "  the receiver of red_probe, the first of detection.tones = ['red_probe', "
+        "'blue_probe']; list another first for its spectrum (`noisechain record` writes "
+        "every tone's)")
+    assert "the receiver of" not in report_text(alone, {})

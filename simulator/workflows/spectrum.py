@@ -29,6 +29,7 @@ class SpectrumResult:
     summary: tuple  # SidebandSummary per mode, with record view and gap (linear engine)
     name: str = ""  # the scenario's name
     quadratures: object = None  # QuadratureBudget of a back-action-evading pair, else None
+    tones: tuple = ()  # detection.tones when several are recorded: the first one's is shown
 
 
 def compute_spectrum(system, *, at="record", engine="linear", master_model="full",
@@ -83,8 +84,12 @@ def compute_spectrum(system, *, at="record", engine="linear", master_model="full
         gaps = occupation_gaps(system, summary)
         summary = tuple(dataclasses.replace(s, gap=g)
                         for s, g in zip(summary, gaps, strict=True))
+    from simulator.scenario.tone_sections import detected_tone_names
+
+    tones = detected_tone_names(system.scenario)
     return SpectrumResult(spectrum=spectrum, at=at, engine=engine, summary=summary,
-                          name=system.scenario.scenario.name)
+                          name=system.scenario.scenario.name,
+                          tones=tuple(tones) if len(tones) > 1 else ())
 
 
 def reference_frequency(result):
@@ -123,6 +128,8 @@ def report_data(result, files):
            "sidebands": [s.to_dict() for s in result.summary], "files": files}
     if result.quadratures is not None:
         out["backaction_evasion"] = result.quadratures.to_dict()
+    if result.tones:
+        out["tone"] = result.tones[0]
     if volts is not None:
         out["v2_per_hz_per_shot_noise_unit"] = volts
         out["sample_rate_hz"] = spectrum.calibration["sample_rate_hz"]
@@ -138,6 +145,10 @@ def report_text(result, files):
              f"{d['frequency_range_hz'][1]:.6g} Hz",
              f"  peak {d['peak']:.6g}; budget of {len(d['contributions'])} terms sums to the "
              f"total within {d['budget_residual']:.1e}"]
+    if result.tones:  # several recorded tones: one receiver's spectrum is shown
+        lines.insert(1, f"  the receiver of {result.tones[0]}, the first of detection.tones = "
+                        f"{list(result.tones)!r}; list another first for its spectrum "
+                        "(`noisechain record` writes every tone's)")
     volts = d.get("v2_per_hz_per_shot_noise_unit")
     at = d["budget_at"]
     unit = f" = {at['total'] * volts:.4g} V²/Hz" if volts else ""
