@@ -110,3 +110,15 @@ def test_a_homodyne_angle_beyond_a_turn_is_refused_as_the_option(capsys, angle):
     err = capsys.readouterr().err
     assert f"--angle-deg {float(angle):g}: expected a finite angle from -360 to 360" in err
     assert homodyne not in err and err.count("\n") == 1
+
+
+def test_a_count_of_trials_beyond_the_limit_is_refused_before_any_work(tmp_path, capsys):
+    """--trials 1000000000 spawned a billion seeds at once: MemoryError and a traceback
+    (or the machine's memory exhausted), after the trial folder had been claimed."""
+    out = tmp_path / "trial"
+    argv = ["trial", "tests/data/fast_thermometry.toml", "--estimator",
+            "tests.estimators_for_tests:shot_noise_level", "--out", str(out), "--quiet"]
+    assert main([*argv, "--trials", "1000000000"]) == 2
+    err = capsys.readouterr().err
+    assert "--trials 1000000000: expected an integer from 2 to 100000" in err
+    assert not out.exists()
