@@ -154,6 +154,8 @@ class Sweep:
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if self.combine == "grid":
+            yield from grid_size_problems(self.parameters)
         if self.combine == "zip":
             lengths = {p: len(axis_numbers(spec)) for p, spec in self.parameters.items()}
             if len(set(lengths.values())) > 1:
@@ -166,6 +168,19 @@ class Sweep:
                 yield (f'parameters."{path}"', f"{value!r} comes {count} times along this "
                        "grid axis (the same points computed again, a degenerate axis); "
                        "expected distinct values (a range with num > 1 needs start ≠ stop)")
+
+
+def grid_size_problems(parameters, advice='split the sweep or use combine = "zip"'):
+    """A grid of more than :data:`MAX_POINTS` points, refused before any value is checked
+    (two axes of 10⁶ each passed the per-axis limit, then held `check` for minutes
+    while each value was validated, on the way to a 10¹² point grid)."""
+    sizes = {p: len(spec) if isinstance(spec, (tuple, list)) else spec["num"]
+             for p, spec in parameters.items()}
+    total = math.prod(sizes.values())
+    if total > MAX_POINTS:
+        yield ("parameters", f"the grid has {total} points ("
+               + " × ".join(f"{n} {p}" for p, n in sizes.items())
+               + f"); expected at most {MAX_POINTS} ({advice})")
 
 
 def axis_numbers(spec):
