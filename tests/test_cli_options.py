@@ -122,3 +122,24 @@ def test_a_count_of_trials_beyond_the_limit_is_refused_before_any_work(tmp_path,
     err = capsys.readouterr().err
     assert "--trials 1000000000: expected an integer from 2 to 100000" in err
     assert not out.exists()
+
+
+@pytest.mark.parametrize("verb", [
+    ["sweep", "scenarios/trampoline_blue_unstable.toml", "--out", "{out}/sweep"],
+    ["plan", "scenarios/drum_microwave_plan.toml"],
+    ["trial", "tests/data/fast_thermometry.toml", "--estimator",
+     "tests.estimators_for_tests:shot_noise_level", "--trials", "2", "--out", "{out}/trial"],
+], ids=["sweep", "plan", "trial"])
+def test_more_worker_processes_than_the_machine_can_use_are_refused(tmp_path, capsys, verb):
+    """--workers 100000 started one process per batch (a sweep of 81 points: 81
+    interpreters with numpy each) on a machine of a few cores."""
+    import os
+
+    from simulator.workflows.tasks import PROCESSES_PER_CORE
+
+    most = PROCESSES_PER_CORE * (os.cpu_count() or 1)
+    argv = [a.replace("{out}", str(tmp_path)) for a in verb]
+    assert main([*argv, "--workers", str(most + 1)]) == 2
+    err = capsys.readouterr().err
+    assert f"--workers {most + 1}: expected at most {most}" in err
+    assert list(tmp_path.iterdir()) == []

@@ -172,9 +172,10 @@ def _require_output_folder(path, option="--out"):
 
 def _require_workers(args):
     workers = getattr(args, "workers", None)
-    if workers is not None and workers < 1:
-        raise InputError(f"--workers {workers}: expected a positive number of worker "
-                         "processes")
+    if workers is not None:
+        from simulator.workflows.tasks import checked_workers
+
+        checked_workers(workers)
 
 
 def cmd_spectrum(args):
