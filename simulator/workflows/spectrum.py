@@ -17,6 +17,9 @@ import numpy as np
 from simulator.errors import InputError
 
 PLACES = ("record", "cavity")
+# A gap between the occupation from the sideband ratio and the exact one is noted when
+# larger than this fraction of the occupation (with one tone it is always explained).
+GAP_NOTED = 0.01
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -164,6 +167,13 @@ def report_text(result, files):
             f"{s.steady_state_occupation:.5g})")
         if s.gap is not None:
             lines.append(f"    {s.gap.text()}")
+        elif result.engine == "linear":  # several tones: the causes are split for one only
+            d = s.occupation_from_ratio - s.steady_state_occupation
+            if math.isfinite(d) and abs(d) > GAP_NOTED * s.steady_state_occupation:
+                lines.append(f"    n from the ratio is {abs(d):.4g} "
+                             f"{'below' if d < 0 else 'above'} the steady state; with several "
+                             "tones its causes are not split (they are for one tone: the "
+                             "file without its [[tones]])")
         if result.at == "record" and math.isfinite(s.anti_stokes.record_peak_to_background):
             lines.append(f"    at the digitiser: anti-Stokes line at "
                          f"{s.anti_stokes.record_frequency_hz:.9g} Hz, peak "
