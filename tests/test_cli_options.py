@@ -143,3 +143,39 @@ def test_more_worker_processes_than_the_machine_can_use_are_refused(tmp_path, ca
     err = capsys.readouterr().err
     assert f"--workers {most + 1}: expected at most {most}" in err
     assert list(tmp_path.iterdir()) == []
+
+
+def _folder_refusing_files():
+    """A folder whose permission bits allow writing (as root) but that takes no file."""
+    import os
+    import tempfile
+
+    for folder in ("/sys", "/proc"):
+        if os.path.isdir(folder) and os.access(folder, os.W_OK | os.X_OK):
+            try:
+                with tempfile.TemporaryFile(dir=folder):
+                    pass
+            except OSError:
+                return folder
+    return None
+
+
+REFUSING = _folder_refusing_files()
+
+
+@pytest.mark.skipif(REFUSING is None, reason="needs a folder that passes os.access but "
+                    "refuses files (/sys or /proc as root)")
+@pytest.mark.parametrize("verb", [
+    ["spectrum", DEMO, "--out", "{dir}/s.nc"],
+    ["plan", "scenarios/drum_microwave_plan.toml", "--plot", "{dir}/p.png"],
+    ["record", DEMO, "--out", "{dir}/r.h5"],
+], ids=["spectrum", "plan", "record"])
+def test_an_output_folder_that_takes_no_file_is_refused_before_any_work(capsys, verb):
+    """The permission bits said yes (root; a network share that maps root to nobody
+    is the same), so the spectrum or the plan was computed and then not written, and
+    a record was refused for lack of room ("the folder has 0 GB free")."""
+    argv = [a.replace("{dir}", REFUSING) for a in verb]
+    assert main(argv) == 2
+    captured = capsys.readouterr()
+    assert captured.out == ""
+    assert f"folder {REFUSING!r} cannot take a file" in captured.err

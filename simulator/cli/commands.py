@@ -159,6 +159,15 @@ def _require_writable_folder(folder, option, path):
     if not folder.is_dir() or not os.access(folder, os.W_OK | os.X_OK):
         raise InputError(f"{option} {str(path)!r}: folder {str(folder)!r} does not exist or "
                          "is not writable; expected an existing, writable folder")
+    import tempfile
+
+    try:  # the permission bits do not tell (root, a network share mapping root to nobody)
+        with tempfile.TemporaryFile(dir=folder):
+            pass
+    except OSError as exc:
+        raise InputError(f"{option} {str(path)!r}: folder {str(folder)!r} cannot take a file "
+                         f"({exc.strerror or exc}); expected an existing, writable folder"
+                         ) from None
 
 
 def _require_output_folder(path, option="--out"):
