@@ -223,3 +223,23 @@ def test_an_unexplained_gap_of_the_sideband_ratio_is_still_stated():
     assert gap < -0.01 * s.steady_state_occupation
     assert (f"    n from the ratio is {abs(gap):.4g} below the steady state; with several "
             "tones its causes are not split") in report_text(result, {})
+
+
+@pytest.mark.parametrize("path, lines", [
+    ("scenarios/drum_two_probes.toml", ["  tones: drive, red_probe, blue_probe; recorded: "
+                                        "blue_probe"]),
+    ("scenarios/ring_two_modes.toml", ["  tones: drive, probe; recorded: probe",
+                                       "  cavity modes: cavity, readout"]),
+    ("scenarios/nanostring_protocol.toml", ["  schedule: 3 segment(s), 0.042 s of record"]),
+    ("scenarios/trampoline_blue_unstable.toml", ["  sweep: 81 points over "
+                                                 "drive.detuning_hz (grid)"]),
+    ("scenarios/drum_microwave_plan.toml", ["  plan: asymmetry_time over drive.detuning_hz, "
+                                            "drive.power_w"]),
+    ("scenarios/membrane_4k.toml", []),
+])
+def test_check_says_what_it_found_beyond_the_modes(capsys, path, lines):
+    """`check` named the mechanical modes only: a [[tones]] table dropped by a typo in
+    its header, or the wrong tone recorded, passed unseen until a long run."""
+    assert main(["check", path]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert out[0].startswith(f"{path}: valid scenario") and out[1:] == lines

@@ -29,10 +29,11 @@ def cmd_check(args):
     from simulator.scenario.loader import load_scenario
 
     scenario = load_scenario(args.scenario)
+    points = None
     if scenario.sweep is not None:
         from simulator.workflows.sweep import sweep_axes, sweep_points
 
-        sweep_points(scenario, sweep_axes(scenario))  # every swept value, and the size
+        points = len(sweep_points(scenario, sweep_axes(scenario)))  # every value, the size
     if scenario.plan is not None:
         from simulator.workflows.plan import check_plan, coordinates_of
 
@@ -48,10 +49,36 @@ def cmd_check(args):
     modes = ", ".join(m.name for m in scenario.mechanics)
     print(f"{args.scenario}: valid scenario {scenario.scenario.name!r} "
           f"({len(scenario.mechanics)} mechanical mode(s): {modes})")
+    for line in _what_else(scenario, points):
+        print(f"  {line}")
     from simulator.scenario.plausibility import plausibility_warnings
 
     _print_warnings(args, plausibility_warnings(scenario))
     return EXIT_OK
+
+
+def _what_else(scenario, points):
+    """What ``check`` found beyond the mechanical modes, one line each: the tones and which
+    are recorded, the cavity modes, a schedule, a sweep, a plan (so that a table left out
+    or misplaced is seen before any run)."""
+    if scenario.tones:
+        recorded = ("the pair, at its mean frequency (a back-action-evading pair)"
+                    if scenario.detection.backaction_evading
+                    else ", ".join(detected_tone_names(scenario)))
+        yield (f"tones: {', '.join(['drive', *(t.name for t in scenario.tones)])}; "
+               f"recorded: {recorded}")
+    if scenario.cavity_modes:
+        yield f"cavity modes: cavity, {', '.join(m.name for m in scenario.cavity_modes)}"
+    if scenario.schedule is not None:
+        segments = scenario.schedule.segments
+        yield (f"schedule: {len(segments)} segment(s), "
+               f"{sum(seg.duration_s for seg in segments):g} s of record")
+    if scenario.sweep is not None:
+        yield (f"sweep: {points} points over {', '.join(scenario.sweep.parameters)} "
+               f"({scenario.sweep.combine})")
+    if scenario.plan is not None:
+        yield (f"plan: {scenario.plan.objective} over "
+               f"{', '.join(scenario.plan.parameters)}")
 
 
 def _print_warnings(args, messages):
