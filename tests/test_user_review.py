@@ -238,8 +238,8 @@ def test_an_unexplained_gap_of_the_sideband_ratio_is_still_stated():
     ("scenarios/membrane_4k.toml", []),
 ])
 def test_check_says_what_it_found_beyond_the_modes(capsys, path, lines):
-    """`check` named the mechanical modes only: a [[tones]] table dropped by a typo in
-    its header, or the wrong tone recorded, passed unseen until a long run."""
+    """`check` named the mechanical modes only: which tone is recorded, or how many
+    points a sweep holds, was seen only after a long run."""
     assert main(["check", path]) == 0
     out = capsys.readouterr().out.splitlines()
     assert out[0].startswith(f"{path}: valid scenario") and out[1:] == lines
