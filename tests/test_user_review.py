@@ -243,3 +243,17 @@ def test_check_says_what_it_found_beyond_the_modes(capsys, path, lines):
     assert main(["check", path]) == 0
     out = capsys.readouterr().out.splitlines()
     assert out[0].startswith(f"{path}: valid scenario") and out[1:] == lines
+
+
+def test_homodyne_feasibility_says_why_it_has_no_asymmetry_time():
+    """A homodyne record is real, so its spectrum is even in Ω and the two sidebands
+    are folded together: the line vanished from the feasibility block without a word.
+    The bundled homodyne device's record is indeed real, its spectrum one-sided."""
+    from simulator.linear.record_budget import digitiser_spectrum
+
+    system = System(load_scenario("scenarios/microtoroid_room_temperature.toml"))
+    assert digitiser_spectrum(system).sided == "one-sided"
+    report = inspect_scenario(system)
+    assert report.feasibility[0]["asymmetry_time_s"] is None
+    assert ("  time to resolve the asymmetry    none from homodyne: one quadrature folds "
+            "both sidebands onto |Ω|") in report.to_text()

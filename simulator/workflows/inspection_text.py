@@ -187,6 +187,10 @@ class Inspection:
                              f"{f['asymmetry_time_s']:.4g} s at {f['significance']:g} "
                              "standard deviations")
                 lines += _long_time_hint(f)
+            elif self.scenario.detection.scheme == "homodyne":
+                lines.append("  time to resolve the asymmetry    none from homodyne: one "
+                             "quadrature folds both sidebands onto |Ω| (heterodyne separates "
+                             "them)")
         if self.tone_sets:
             from simulator.analysis.joint_feasibility import tone_set_text
 
