@@ -309,3 +309,12 @@ def test_endless_file_is_refused_after_a_bounded_read(monkeypatch):
     monkeypatch.setattr(loader, "MAX_SCENARIO_BYTES", 2**20)
     with pytest.raises(ScenarioError, match="larger than 1 MiB"):
         load_scenario("/dev/zero")
+
+
+@pytest.mark.parametrize("bits", [0, 1, 33])
+def test_digitiser_bits_outside_two_to_32_name_the_same_limits(bits):
+    """bits = 0 was refused as "expected a positive integer (> 0)", hiding that 1 is
+    refused too; every value outside names the limits 2 to 32."""
+    with pytest.raises(ScenarioError, match=rf"digitizer\.bits: {bits} is out of range; "
+                       r"expected .*from 2 to 32"):
+        make_scenario(digitizer={"bits": bits})

@@ -383,16 +383,11 @@ class Digitizer:
         "mechanical sideband (see docs/records.md)", unit="Hz", check="positive",
         default=None, low=1.0, high=MAX_AUXILIARY_HZ)
     bits: int = param("resolution of the converter, 2 to 32 bits", check="positive",
-                      default=16)
+                      default=16, low=2, high=32)
     full_scale_v: float | None = param(
         "input range ±full_scale_v; left out: eight times the record's noise standard "
         "deviation plus the calibration tone's amplitude", unit="V", check="positive",
         default=None, low=1e-12, high=1e6)
-
-    def problems(self):
-        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
-        if not 2 <= self.bits <= 32:
-            yield ("bits", f"{self.bits!r} is out of range; expected an integer from 2 to 32")
 
 
 @_frozen
