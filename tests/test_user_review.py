@@ -257,3 +257,21 @@ def test_homodyne_feasibility_says_why_it_has_no_asymmetry_time():
     assert report.feasibility[0]["asymmetry_time_s"] is None
     assert ("  time to resolve the asymmetry    none from homodyne: one quadrature folds "
             "both sidebands onto |Ω|") in report.to_text()
+
+
+@pytest.mark.parametrize("spec, says", [
+    ("{tmp}/folder.py:estimate", "file {tmp}/folder.py is a folder; expected a Python file"),
+    ("{tmp}/notes.toml:estimate", "{tmp}/notes.toml is neither a module name nor a .py file"),
+    ("{tmp}:estimate", "{tmp} is neither a module name nor a .py file"),
+])
+def test_an_estimator_path_that_is_no_python_file_is_named_as_such(tmp_path, spec, says):
+    """A folder named like a .py file was "not found", and a path to another kind of
+    file was imported as a module name ("No module named '/tmp/notes'")."""
+    from simulator.errors import InputError
+    from simulator.workflows.estimator import load_estimator
+
+    (tmp_path / "folder.py").mkdir()
+    (tmp_path / "notes.toml").write_text("x = 1\n", encoding="utf-8")
+    with pytest.raises(InputError) as info:
+        load_estimator(spec.format(tmp=tmp_path))
+    assert says.format(tmp=tmp_path) in str(info.value)
