@@ -5,6 +5,7 @@ misread, or where a command's output was misleading, and asserts the physics
 that makes the printed label true.
 """
 
+import json
 import math
 
 import pytest
@@ -275,3 +276,14 @@ def test_an_estimator_path_that_is_no_python_file_is_named_as_such(tmp_path, spe
     with pytest.raises(InputError) as info:
         load_estimator(spec.format(tmp=tmp_path))
     assert says.format(tmp=tmp_path) in str(info.value)
+
+
+def test_master_equation_spectrum_quotes_its_budget_at_its_line(capsys):
+    """Without a sideband summary the budget was quoted at the grid's middle (49 kHz,
+    total 1.00001: shot noise alone), far from the drum's lines at ±8 MHz."""
+    assert main(["spectrum", "scenarios/drum_microwave_mK.toml", "--at", "cavity",
+                 "--engine", "master", "--quiet", "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    at = d["budget_at"]
+    assert at["total"] == d["peak"] and abs(abs(at["frequency_hz"]) - 8e6) < 1e4
+    assert at["lines"]["output photon flux (master equation)"] > 0.2

@@ -96,7 +96,8 @@ def compute_spectrum(system, *, at="record", engine="linear", master_model="full
 
 
 def reference_frequency(result):
-    """Where the budget is quoted in the text: mode 0's anti-Stokes line, else the middle."""
+    """Where the budget is quoted in the text: mode 0's anti-Stokes line, else the highest
+    line of a master-equation spectrum (which has no sideband summary), else the middle."""
     spectrum = result.spectrum
     f = spectrum.frequency_hz
     for s in result.summary:
@@ -108,6 +109,8 @@ def reference_frequency(result):
             where = abs(where)
         if np.isfinite(where) and f.min() <= where <= f.max():
             return int(np.argmin(np.abs(f - where)))
+    if result.engine == "master":  # no sideband summary: the highest line
+        return int(np.argmax(spectrum.total))
     return f.size // 2
 
 
