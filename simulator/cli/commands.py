@@ -11,6 +11,11 @@ import sys
 import warnings
 from pathlib import Path
 
+from simulator.cli.preflight import (
+    check_summary,
+    require_in_key_range,
+    require_no_duration_with_schedule,
+)
 from simulator.errors import InputError
 from simulator.io import jsontext
 from simulator.io.files import refuse_existing
@@ -49,36 +54,12 @@ def cmd_check(args):
     modes = ", ".join(m.name for m in scenario.mechanics)
     print(f"{args.scenario}: valid scenario {scenario.scenario.name!r} "
           f"({len(scenario.mechanics)} mechanical mode(s): {modes})")
-    for line in _what_else(scenario, points):
+    for line in check_summary(scenario, points):
         print(f"  {line}")
     from simulator.scenario.plausibility import plausibility_warnings
 
     _print_warnings(args, plausibility_warnings(scenario))
     return EXIT_OK
-
-
-def _what_else(scenario, points):
-    """What ``check`` found beyond the mechanical modes, one line each: the tones and which
-    are recorded, the cavity modes, a schedule, a sweep, a plan (so that a table left out
-    or misplaced is seen before any run)."""
-    if scenario.tones:
-        recorded = ("the pair, at its mean frequency (a back-action-evading pair)"
-                    if scenario.detection.backaction_evading
-                    else ", ".join(detected_tone_names(scenario)))
-        yield (f"tones: {', '.join(['drive', *(t.name for t in scenario.tones)])}; "
-               f"recorded: {recorded}")
-    if scenario.cavity_modes:
-        yield f"cavity modes: cavity, {', '.join(m.name for m in scenario.cavity_modes)}"
-    if scenario.schedule is not None:
-        segments = scenario.schedule.segments
-        yield (f"schedule: {len(segments)} segment(s), "
-               f"{sum(seg.duration_s for seg in segments):g} s of record")
-    if scenario.sweep is not None:
-        yield (f"sweep: {points} points over {', '.join(scenario.sweep.parameters)} "
-               f"({scenario.sweep.combine})")
-    if scenario.plan is not None:
-        yield (f"plan: {scenario.plan.objective} over "
-               f"{', '.join(scenario.plan.parameters)}")
 
 
 def _print_warnings(args, messages):
@@ -270,7 +251,7 @@ def cmd_record(args):
     _require_output_file(args.out, (".h5", ".hdf5"), "--out", args.force)
     _require_record_options(args)
     scenario = load_scenario(args.scenario)
-    _require_no_duration_with_schedule(args, scenario)
+    require_no_duration_with_schedule(args, scenario)
     if scenario.schedule is not None and (args.averaged is not None
                                           or args.engine == "master"):
         raise InputError("a scenario with a [schedule] makes a non-stationary record with "
@@ -344,8 +325,8 @@ def _require_record_options(args):
         except InputError as exc:  # the same limit, under the option's own name
             raise InputError(f"--threads {args.threads}: "
                              f"{str(exc).partition('; ')[2]}") from None
-    _require_in_key_range("--seed", args.seed, "scenario", "seed")
-    _require_in_key_range("--duration", args.duration, "record", "duration_s")
+    require_in_key_range("--seed", args.seed, "scenario", "seed")
+    require_in_key_range("--duration", args.duration, "record", "duration_s")
     if args.averaged is None and args.window is not None:
         raise InputError(f"--window {args.window}: expected it only with --averaged N "
                          "(it is the averaged periodogram's window)")
@@ -358,30 +339,6 @@ def _require_record_options(args):
     if unused and args.engine == "master":
         raise InputError(f"{', '.join(unused)} with --engine master: expected none of them "
                          "(they shape the linear engine's records)")
-
-
-def _require_in_key_range(option, value, section, key):
-    """Refuse an option's value outside the range of the scenario key it overrides,
-    naming the option (not the scenario file, which is not at fault)."""
-    if value is None:
-        return
-    from simulator.scenario import schema
-    from simulator.scenario.loader import Scenario
-
-    cls = schema.field_kind(Scenario, section)[1]
-    field = next(f for f in schema.public_fields(cls) if f.name == key)
-    problem = schema.range_problem(field, schema.field_kind(cls, key)[1], value)
-    if problem:
-        raise InputError(f"{option} {problem}")
-
-
-def _require_no_duration_with_schedule(args, scenario):
-    """A scheduled record lasts the sum of its segments: a --duration would be ignored."""
-    if scenario.schedule is not None and args.duration is not None:
-        total = sum(seg.duration_s for seg in scenario.schedule.segments)
-        raise InputError(f"--duration {args.duration!r} with a [schedule]: a scheduled "
-                         f"record lasts the sum of its segments' duration_s ({total:g} s "
-                         "here); expected no --duration")
 
 
 def _averaged_spectrum(args, scenario):
@@ -422,12 +379,12 @@ def cmd_trial(args):
     """``noisechain trial``: an estimator on many records, against the truth."""
     _require_output_folder(args.out)
     _require_workers(args)
-    _require_in_key_range("--duration", args.duration, "record", "duration_s")
+    require_in_key_range("--duration", args.duration, "record", "duration_s")
     from simulator.scenario.loader import load_scenario
     from simulator.workflows.trial import run_trials
 
     scenario = load_scenario(args.scenario)
-    _require_no_duration_with_schedule(args, scenario)
+    require_no_duration_with_schedule(args, scenario)
     result = run_trials(scenario, args.estimator, args.trials, args.out,
                         duration_s=args.duration, workers=args.workers, dask=args.dask,
                         progress=not args.quiet, timeout_s=args.timeout_s,
