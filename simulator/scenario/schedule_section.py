@@ -69,6 +69,12 @@ class Segment:
         high=MAX_EXCITATION_PHONONS)
 
 
+# Sections one record holds fixed: its digitiser (one sample rate, resolution and full
+# scale, which a segment's change was silently ignored for) and what is not a parameter
+# of the device at all.
+FIXED_IN_A_RECORD = ("schedule", "sweep", "plan", "scenario", "record", "digitizer")
+
+
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class Schedule:
     """``[schedule]``: the initial state and the ordered segments of a protocol record."""
@@ -98,7 +104,7 @@ class Schedule:
                    f'"{self.start}"; expected it only with start = "occupation"')
         for i, segment in enumerate(self.segments):
             for path in segment.changes or {}:
-                if path.split(".")[0] in ("schedule", "sweep", "plan", "scenario", "record"):
+                if path.split(".")[0] in FIXED_IN_A_RECORD:
                     yield (f'segments[{i}].changes."{path}"',
                            f"{path!r} cannot change within a record; expected a drive, "
                            "device, bath or detection parameter")
