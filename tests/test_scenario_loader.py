@@ -318,3 +318,26 @@ def test_digitiser_bits_outside_two_to_32_name_the_same_limits(bits):
     with pytest.raises(ScenarioError, match=rf"digitizer\.bits: {bits} is out of range; "
                        r"expected .*from 2 to 32"):
         make_scenario(digitizer={"bits": bits})
+
+
+@pytest.mark.parametrize("section, path, records", [
+    ("sweep", "scenario.seed", False), ("sweep", "scenario.seed", True),
+    ("sweep", "record.duration_s", False), ("plan", "record.duration_s", False),
+])
+def test_varying_what_no_point_computes_is_refused(section, path, records):
+    """A sweep over the seed or a record setting (without records) made every point the
+    same: each point's record seed is spawned from the file's, and no record is made."""
+    table = {"parameters": {path: [1, 2]}}
+    if section == "sweep":
+        table["records"] = records
+    else:
+        table["objective"] = "occupation"
+    with pytest.raises(ScenarioError, match="changes no quantity") as info:
+        make_scenario(**{section: table})
+    assert info.value.key == f'{section}.parameters."{path}"'
+
+
+def test_a_record_setting_may_be_swept_with_records():
+    scenario = make_scenario(sweep={"records": True,
+                                    "parameters": {"record.duration_s": [1e-4, 2e-4]}})
+    assert scenario.sweep.records

@@ -158,6 +158,12 @@ class Scenario:
             role = "sweepable" if path == swept else "usable as the unit of a range"
             yield key, (f"{path!r} is not a numeric parameter, so it is not {role}; "
                         "expected a number such as 'drive.detuning_hz'")
+        elif path == swept and _changes_nothing_computed(path, section, self.sweep):
+            yield key, (f"{path!r} changes no quantity the {section} computes (each point's "
+                        "record seed is spawned from the file's scenario.seed, and a record "
+                        "setting matters only to the records of `[sweep] records = true`), "
+                        "so every point would be the same; expected a drive, device, bath "
+                        "or detection parameter")
 
     def parameter_paths(self):
         """Every path naming a single parameter, e.g. ``"mechanics[0].frequency_hz"``."""
@@ -247,6 +253,14 @@ class Scenario:
         data = self.to_dict()
         assign(data, self, parts, value, path, self.source)
         return scenario_from_dict(data, source=self.source)
+
+
+def _changes_nothing_computed(path, section, sweep):
+    """Whether varying ``path`` in a sweep or plan leaves every point the same: the seed
+    (each point's is spawned from the file's), and a record setting without records."""
+    root = path.split(".")[0]
+    return root == "scenario" or (root == "record" and not (
+        section == "sweep" and sweep is not None and sweep.records))
 
 
 def _as_data(obj):
