@@ -34,6 +34,7 @@ SECONDS_PER_CASE = 60  # a hang, not a slow machine: a 10⁶-point sweep is chec
 KEY = re.compile(r"(scenario|drive|cavity|mechanics|detection|electronics|digitizer|record|"
                  r"sweep|plan|tones|cavity_modes|couplings|schedule)(\[\d+\])?(\.|\b)")
 FILE_DEFECT = ("malformed TOML", "cannot read the file", "is not a table", "unknown key",
+               "the file is empty",
                "missing required")
 
 

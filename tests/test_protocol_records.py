@@ -50,7 +50,7 @@ def make(segments, *, start="thermal", store=False, **schedule):
                     bath_occupation=N_TH, effective_mass_kg=1e-13)])
     data = base.to_dict()
     data["digitizer"] = {"sample_rate_hz": FS}
-    data["record"] = {"duration_s": 1e-3, "store_mechanics": store}
+    data["record"] = {"store_mechanics": store}  # the segments set the length
     data["schedule"] = dict(schedule, start=start, segments=segments)
     return scenario_from_dict(data, source="<test>")
 
@@ -77,7 +77,7 @@ def test_one_segment_schedule_is_the_stationary_record_bit_for_bit():
     scenario = make([{"duration_s": 1e-3}], start="steady")
     record, _ = generate_protocol_record(scenario, seed=11, chunk_samples=700)
     plain = generate_record(dataclasses.replace(scenario, schedule=None), seed=11,
-                            form="full-state")
+                            form="full-state", duration_s=1e-3)
     assert np.array_equal(record.counts, plain.counts)
 
 

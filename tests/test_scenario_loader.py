@@ -284,3 +284,60 @@ def test_scenario_source_is_not_part_of_equality():
     b = scenario_from_dict(scenario_dict(), source="b.toml")
     assert a == b and a.source == "a.toml"
     assert isinstance(a, Scenario)
+
+
+@pytest.mark.parametrize("make, expect", [
+    (lambda p: p.write_bytes(b""), "the file is empty"),
+    (lambda p: p.write_bytes(b" \n\t\n"), "the file is empty"),
+    (lambda p: p.write_bytes(b"\x82\x00\xff junk"), "byte 0x82 at offset 0 is not UTF-8"),
+    (lambda p: p.mkdir(), "is a folder; expected a scenario TOML file"),
+], ids=["empty", "blank", "binary", "folder"])
+def test_file_that_is_no_scenario_is_named_and_refused(tmp_path, capsys, make, expect):
+    path = tmp_path / "given.toml"
+    make(path)
+    with pytest.raises(ScenarioError, match=expect):
+        load_scenario(path)
+    assert main(["check", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert str(path) in err and expect in err and err.count("\n") == 1
+
+
+def test_endless_file_is_refused_after_a_bounded_read(monkeypatch):
+    """/dev/zero never ends: reading it whole used to exhaust the memory."""
+    import simulator.scenario.loader as loader
+
+    monkeypatch.setattr(loader, "MAX_SCENARIO_BYTES", 2**20)
+    with pytest.raises(ScenarioError, match="larger than 1 MiB"):
+        load_scenario("/dev/zero")
+
+
+@pytest.mark.parametrize("bits", [0, 1, 33])
+def test_digitiser_bits_outside_two_to_32_name_the_same_limits(bits):
+    """bits = 0 was refused as "expected a positive integer (> 0)", hiding that 1 is
+    refused too; every value outside names the limits 2 to 32."""
+    with pytest.raises(ScenarioError, match=rf"digitizer\.bits: {bits} is out of range; "
+                       r"expected .*from 2 to 32"):
+        make_scenario(digitizer={"bits": bits})
+
+
+@pytest.mark.parametrize("section, path, records", [
+    ("sweep", "scenario.seed", False), ("sweep", "scenario.seed", True),
+    ("sweep", "record.duration_s", False), ("plan", "record.duration_s", False),
+])
+def test_varying_what_no_point_computes_is_refused(section, path, records):
+    """A sweep over the seed or a record setting (without records) made every point the
+    same: each point's record seed is spawned from the file's, and no record is made."""
+    table = {"parameters": {path: [1, 2]}}
+    if section == "sweep":
+        table["records"] = records
+    else:
+        table["objective"] = "occupation"
+    with pytest.raises(ScenarioError, match="changes no quantity") as info:
+        make_scenario(**{section: table})
+    assert info.value.key == f'{section}.parameters."{path}"'
+
+
+def test_a_record_setting_may_be_swept_with_records():
+    scenario = make_scenario(sweep={"records": True,
+                                    "parameters": {"record.duration_s": [1e-4, 2e-4]}})
+    assert scenario.sweep.records

@@ -11,6 +11,11 @@ import sys
 import warnings
 from pathlib import Path
 
+from simulator.cli.preflight import (
+    check_summary,
+    require_in_key_range,
+    require_no_duration_with_schedule,
+)
 from simulator.errors import InputError
 from simulator.io import jsontext
 from simulator.io.files import refuse_existing
@@ -29,18 +34,28 @@ def cmd_check(args):
     from simulator.scenario.loader import load_scenario
 
     scenario = load_scenario(args.scenario)
+    points = None
     if scenario.sweep is not None:
         from simulator.workflows.sweep import sweep_axes, sweep_points
 
-        sweep_points(scenario, sweep_axes(scenario))  # every swept value, and the size
+        points = len(sweep_points(scenario, sweep_axes(scenario)))  # every value, the size
     if scenario.plan is not None:
         from simulator.workflows.plan import check_plan, coordinates_of
 
         check_plan(scenario)
         coordinates_of(scenario)  # every bound value
+    from simulator.errors import OperatingPointError
+    from simulator.model.system import System
+
+    try:  # the checks every other verb runs on the model (the spacing of tones, ...)
+        _ = System(scenario).point
+    except OperatingPointError:
+        pass  # a valid scenario at an unstable operating point: `inspect` says why
     modes = ", ".join(m.name for m in scenario.mechanics)
     print(f"{args.scenario}: valid scenario {scenario.scenario.name!r} "
           f"({len(scenario.mechanics)} mechanical mode(s): {modes})")
+    for line in check_summary(scenario, points):
+        print(f"  {line}")
     from simulator.scenario.plausibility import plausibility_warnings
 
     _print_warnings(args, plausibility_warnings(scenario))
@@ -152,6 +167,15 @@ def _require_writable_folder(folder, option, path):
     if not folder.is_dir() or not os.access(folder, os.W_OK | os.X_OK):
         raise InputError(f"{option} {str(path)!r}: folder {str(folder)!r} does not exist or "
                          "is not writable; expected an existing, writable folder")
+    import tempfile
+
+    try:  # the permission bits do not tell (root, a network share mapping root to nobody)
+        with tempfile.TemporaryFile(dir=folder):
+            pass
+    except OSError as exc:
+        raise InputError(f"{option} {str(path)!r}: folder {str(folder)!r} cannot take a file "
+                         f"({exc.strerror or exc}); expected an existing, writable folder"
+                         ) from None
 
 
 def _require_output_folder(path, option="--out"):
@@ -165,9 +189,10 @@ def _require_output_folder(path, option="--out"):
 
 def _require_workers(args):
     workers = getattr(args, "workers", None)
-    if workers is not None and workers < 1:
-        raise InputError(f"--workers {workers}: expected a positive number of worker "
-                         "processes")
+    if workers is not None:
+        from simulator.workflows.tasks import checked_workers
+
+        checked_workers(workers)
 
 
 def cmd_spectrum(args):
@@ -188,8 +213,11 @@ def cmd_spectrum(args):
         raise InputError(f"--angle-deg {args.angle_deg:g} with detection.scheme = "
                          f"{scenario.detection.scheme!r}: expected it only for homodyne "
                          "detection (a heterodyne record holds both quadratures)")
-    system = System(scenario)  # built once: spectrum, summary and referral share it
     angle = None if args.angle_deg is None else math.radians(args.angle_deg)
+    if angle is not None and not abs(angle) <= 2 * math.pi:  # nan too
+        raise InputError(f"--angle-deg {args.angle_deg:g}: expected a finite angle from "
+                         "-360 to 360 degrees (one turn either way)")
+    system = System(scenario)  # built once: spectrum, summary and referral share it
     result = compute_spectrum(system, at=args.at, engine=args.engine,
                               master_model=args.master_model, quadrature_angle=angle)
     spectrum = result.spectrum
@@ -223,6 +251,7 @@ def cmd_record(args):
     _require_output_file(args.out, (".h5", ".hdf5"), "--out", args.force)
     _require_record_options(args)
     scenario = load_scenario(args.scenario)
+    require_no_duration_with_schedule(args, scenario)
     if scenario.schedule is not None and (args.averaged is not None
                                           or args.engine == "master"):
         raise InputError("a scenario with a [schedule] makes a non-stationary record with "
@@ -288,6 +317,16 @@ def _require_record_options(args):
     would silently ignore."""
     if args.threads is not None and args.threads < 1:
         raise InputError(f"--threads {args.threads}: expected a positive number of threads")
+    if args.threads is not None:
+        from simulator.records.pipeline import checked_workers
+
+        try:
+            checked_workers(args.threads)
+        except InputError as exc:  # the same limit, under the option's own name
+            raise InputError(f"--threads {args.threads}: "
+                             f"{str(exc).partition('; ')[2]}") from None
+    require_in_key_range("--seed", args.seed, "scenario", "seed")
+    require_in_key_range("--duration", args.duration, "record", "duration_s")
     if args.averaged is None and args.window is not None:
         raise InputError(f"--window {args.window}: expected it only with --averaged N "
                          "(it is the averaged periodogram's window)")
@@ -340,10 +379,13 @@ def cmd_trial(args):
     """``noisechain trial``: an estimator on many records, against the truth."""
     _require_output_folder(args.out)
     _require_workers(args)
+    require_in_key_range("--duration", args.duration, "record", "duration_s")
     from simulator.scenario.loader import load_scenario
     from simulator.workflows.trial import run_trials
 
-    result = run_trials(load_scenario(args.scenario), args.estimator, args.trials, args.out,
+    scenario = load_scenario(args.scenario)
+    require_no_duration_with_schedule(args, scenario)
+    result = run_trials(scenario, args.estimator, args.trials, args.out,
                         duration_s=args.duration, workers=args.workers, dask=args.dask,
                         progress=not args.quiet, timeout_s=args.timeout_s,
                         averaged=None if args.averaged is None else (args.averaged,

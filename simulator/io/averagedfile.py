@@ -34,7 +34,7 @@ from pathlib import Path
 import numpy as np
 
 from simulator.errors import InputError
-from simulator.io.files import AtomicFile, open_hdf5
+from simulator.io.files import AtomicFile, open_hdf5, require_format
 from simulator.io.recordfile import FREQUENCY_CONVENTION, _text, read_truth, write_truth
 
 FORMAT = "noisechain-averaged-spectrum"
@@ -98,9 +98,8 @@ def load_averaged_spectrum(path):
     path = Path(path)
     with open_hdf5(path, "averaged-spectrum file", "`noisechain record --averaged`") as f:
         a = f.attrs
-        if a.get("format") != FORMAT:
-            raise InputError(f"{str(path)!r} is not a complete noisechain averaged spectrum "
-                             f"(no format = {FORMAT!r} attribute)")
+        require_format(a, path, FORMAT, "is not a complete noisechain averaged spectrum "
+                       f"(no format = {FORMAT!r} attribute)")
         if int(a.get("format_version", 0)) > FORMAT_VERSION:
             raise InputError(f"{str(path)!r} has averaged-spectrum format version "
                              f"{int(a['format_version'])}; this software reads up to "

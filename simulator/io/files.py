@@ -285,6 +285,9 @@ def open_hdf5(path, what, written_by):
     import h5py
 
     path = Path(path)
+    if path.is_dir():
+        raise InputError(f"{what} {str(path)!r} is a folder; expected an HDF5 file written "
+                         f"by {written_by}")
     if not path.is_file():
         raise InputError(f"{what} {str(path)!r} not found; expected an HDF5 file written by "
                          f"{written_by}")
@@ -292,6 +295,32 @@ def open_hdf5(path, what, written_by):
         return h5py.File(path, "r")
     except OSError as exc:
         raise InputError(f"{str(path)!r} is not a readable HDF5 file ({exc})") from None
+
+
+# The reader of each noisechain file format, named when a file reaches another one.
+READERS = {"noisechain-record": "simulator.io.recordfile.load_record",
+           "noisechain-averaged-spectrum": "simulator.io.averagedfile.load_averaged_spectrum",
+           "noisechain-sweep": "xarray.load_dataset",
+           "noisechain-trial": "xarray.load_dataset"}
+
+
+def require_format(attrs, path, expected, incomplete):
+    """Refuse an opened file whose ``format`` attribute is not ``expected``.
+
+    A file of another noisechain format (an averaged spectrum given where a record
+    belongs, a sweep's NetCDF) is named as such; a file with no format at all gets
+    ``incomplete``, the reader's own words for an interrupted or foreign file.
+    """
+    found = attrs.get("format")
+    if isinstance(found, bytes):
+        found = found.decode("utf-8", "replace")
+    if found == expected:
+        return
+    if isinstance(found, str) and found.startswith("noisechain-"):
+        reader = READERS.get(found, "the reader of that format")
+        raise InputError(f"{str(path)!r} holds format {found!r}, not {expected!r}; expected "
+                         f"a {expected} file (read this one with {reader})")
+    raise InputError(f"{str(path)!r} {incomplete}")
 
 
 def _output_error(path, exc):

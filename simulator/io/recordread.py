@@ -13,7 +13,7 @@ from pathlib import Path
 import numpy as np
 
 from simulator.errors import InputError
-from simulator.io.files import open_hdf5
+from simulator.io.files import open_hdf5, require_format
 from simulator.records.generate import Record, Truth
 
 FORMAT = "noisechain-record"
@@ -83,10 +83,9 @@ def load_record(path, *, start=0, stop=None, samples_only=False):
 
     path = Path(path)
     with open_hdf5(path, "record file", "`noisechain record`") as f:
-        if f.attrs.get("format") != FORMAT:
-            raise InputError(f"{str(path)!r} is not a complete noisechain record (no "
-                             f"format = {FORMAT!r} attribute; an interrupted write leaves "
-                             "such a file)")
+        require_format(f.attrs, path, FORMAT, f"is not a complete noisechain record (no "
+                       f"format = {FORMAT!r} attribute; an interrupted write leaves such a "
+                       "file)")
         a, s, t = _checked_layout(f, path)
         counts = s[start:stop]
         if samples_only:

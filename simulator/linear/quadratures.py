@@ -117,8 +117,11 @@ class QuadratureBudget:
                 f"  imprecision referred to X1    {self.imprecision_per_hz:.4g} /Hz = "
                 f"{self.imprecision_quanta:.4g} quanta at the line (ideal phase-quadrature "
                 f"detector, η = {self.efficiency:g})",
-                f"    in this record              {self.record_imprecision_quanta:.4g} quanta "
-                "(receiver and amplifier included)",
+                (f"    in this record              {self.record_imprecision_quanta:.4g} quanta "
+                 "(receiver and amplifier included)"
+                 if np.isfinite(self.record_imprecision_quanta) else
+                 "    in this record              none: no X1 line stands out at the "
+                 "record's zero offset (a mistuned pair moves it; see the warnings)"),
                 f"    one tone, any power         at least {STANDARD_QUANTUM_LIMIT:g} quanta "
                 "with its back-action (standard quantum limit)"]
 

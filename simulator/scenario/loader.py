@@ -61,6 +61,11 @@ from simulator.scenario.tone_sections import (
 
 _frozen = dataclasses.dataclass(frozen=True, kw_only=True)
 
+# A scenario is a few kB of text; a sweep listing its values may reach hundreds of
+# kB. Anything beyond this is not a scenario (a record, an image, a device file),
+# and reading it whole could exhaust the memory.
+MAX_SCENARIO_BYTES = 16 * 2**20
+
 
 @_frozen
 class Scenario:
@@ -155,6 +160,12 @@ class Scenario:
             role = "sweepable" if path == swept else "usable as the unit of a range"
             yield key, (f"{path!r} is not a numeric parameter, so it is not {role}; "
                         "expected a number such as 'drive.detuning_hz'")
+        elif path == swept and _changes_nothing_computed(path, section, self.sweep):
+            yield key, (f"{path!r} changes no quantity the {section} computes (each point's "
+                        "record seed is spawned from the file's scenario.seed, and a record "
+                        "setting matters only to the records of `[sweep] records = true`), "
+                        "so every point would be the same; expected a drive, device, bath "
+                        "or detection parameter")
 
     def parameter_paths(self):
         """Every path naming a single parameter, e.g. ``"mechanics[0].frequency_hz"``."""
@@ -257,6 +268,14 @@ class Scenario:
         return scenario_from_dict(data, source=self.source)
 
 
+def _changes_nothing_computed(path, section, sweep):
+    """Whether varying ``path`` in a sweep or plan leaves every point the same: the seed
+    (each point's is spawned from the file's), and a record setting without records."""
+    root = path.split(".")[0]
+    return root == "scenario" or (root == "record" and not (
+        section == "sweep" and sweep is not None and sweep.records))
+
+
 def _as_data(obj):
     """Plain data of ``obj``; a table nested in a section is left out while at its defaults."""
     if dataclasses.is_dataclass(obj):
@@ -294,18 +313,36 @@ def load_scenario(path):
         If the file is missing, malformed or describes an invalid scenario.
     """
     path = Path(path)
+    if path.is_dir():
+        raise ScenarioError("is a folder; expected a scenario TOML file", source=str(path))
     try:
-        text = path.read_text(encoding="utf-8")
+        with path.open("rb") as f:  # bounded: a device file such as /dev/zero never ends
+            raw = f.read(MAX_SCENARIO_BYTES + 1)
     except FileNotFoundError:
         raise ScenarioError("file not found; expected a scenario TOML file",
                             source=str(path)) from None
-    except (OSError, UnicodeDecodeError) as exc:
+    except OSError as exc:
         raise ScenarioError(f"cannot read the file ({exc})", source=str(path)) from None
+    if len(raw) > MAX_SCENARIO_BYTES:
+        raise ScenarioError(f"the file is larger than {MAX_SCENARIO_BYTES // 2**20} MiB; "
+                            "expected a scenario TOML file (a few kB of text)",
+                            source=str(path))
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise ScenarioError(f"cannot read the file as text: byte {raw[exc.start]:#04x} at "
+                            f"offset {exc.start} is not UTF-8; expected a scenario TOML "
+                            "file (UTF-8 text)",
+                            source=str(path)) from None
     return parse_scenario(text.removeprefix("\ufeff"), source=str(path))  # byte-order mark
 
 
 def parse_scenario(text, *, source="<string>"):
     """Validate a scenario given as TOML text; see :func:`load_scenario`."""
+    if not text.strip():
+        raise ScenarioError("the file is empty; expected a scenario TOML file with "
+                            "[scenario], [drive], [cavity] and [[mechanics]] tables",
+                            source=source)
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:

@@ -19,7 +19,7 @@ during the local refinement. The search itself is :mod:`simulator.workflows.plan
 import dataclasses
 
 from simulator.scenario.schema import param
-from simulator.scenario.sweep_section import parse_parameters
+from simulator.scenario.sweep_section import grid_size_problems, parse_parameters
 
 OBJECTIVES = ("asymmetry_time", "occupation_error", "occupation", "recorded_tones_time",
               "thermal_variance_time")
@@ -94,6 +94,8 @@ class Plan:
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        yield from grid_size_problems(  # the coarse grid
+            self.parameters, "fewer points in num: the planner refines between them")
         if self.heating_k_per_w > 0 and self.free_spectral_range_hz is None:
             yield ("free_spectral_range_hz", "missing while heating_k_per_w > 0; expected "
                    "the free spectral range in Hz (circulating power = n̄·ħω·FSR)")

@@ -69,6 +69,12 @@ class Segment:
         high=MAX_EXCITATION_PHONONS)
 
 
+# Sections one record holds fixed: its digitiser (one sample rate, resolution and full
+# scale, which a segment's change was silently ignored for) and what is not a parameter
+# of the device at all.
+FIXED_IN_A_RECORD = ("schedule", "sweep", "plan", "scenario", "record", "digitizer")
+
+
 @dataclasses.dataclass(frozen=True, kw_only=True)
 class Schedule:
     """``[schedule]``: the initial state and the ordered segments of a protocol record."""
@@ -98,7 +104,7 @@ class Schedule:
                    f'"{self.start}"; expected it only with start = "occupation"')
         for i, segment in enumerate(self.segments):
             for path in segment.changes or {}:
-                if path.split(".")[0] in ("schedule", "sweep", "plan", "scenario", "record"):
+                if path.split(".")[0] in FIXED_IN_A_RECORD:
                     yield (f'segments[{i}].changes."{path}"',
                            f"{path!r} cannot change within a record; expected a drive, "
                            "device, bath or detection parameter")
@@ -108,6 +114,12 @@ def segment_problems(scenario):
     """Cross-section checks of the schedule's paths and kicked modes: ``(key, message)``."""
     if scenario.schedule is None:
         return
+    length = next(f for f in dataclasses.fields(scenario.record) if f.name == "duration_s")
+    if scenario.record.duration_s != length.default:  # it would be ignored
+        total = sum(seg.duration_s for seg in scenario.schedule.segments)
+        yield ("record.duration_s", f"{scenario.record.duration_s!r} s with a [schedule]: a "
+               "scheduled record lasts the sum of its segments' duration_s "
+               f"({total:g} s here); expected record.duration_s left out")
     base = dataclasses.replace(scenario, schedule=None)  # no recursion into these checks
     for i, segment in enumerate(scenario.schedule.segments):
         where = f"schedule.segments[{i}]"

@@ -9,6 +9,7 @@ be given), ``ALTERNATIVES`` (groups of which at most one may be given) and
 """
 
 import dataclasses
+import math
 
 from simulator.scenario.schema import param, section
 
@@ -281,7 +282,8 @@ class Detection:
     quadrature_angle_rad: float = param(
         "homodyne quadrature θ of X_θ = cos θ X + sin θ Y, from the amplitude "
         "quadrature; π/2 is the phase quadrature", unit="rad", check="real",
-        default=1.5707963267948966)
+        default=1.5707963267948966, low=-2 * math.pi, high=2 * math.pi,
+        why="one turn either way; far beyond it rounding loses the angle modulo 2π")
     local_oscillator_source: str = param(
         "where the local oscillator comes from: \"common\", a copy of the drive "
         "laser (its phase noise cancels, up to the path delay); \"locked\", a "
@@ -381,16 +383,11 @@ class Digitizer:
         "mechanical sideband (see docs/records.md)", unit="Hz", check="positive",
         default=None, low=1.0, high=MAX_AUXILIARY_HZ)
     bits: int = param("resolution of the converter, 2 to 32 bits", check="positive",
-                      default=16)
+                      default=16, low=2, high=32)
     full_scale_v: float | None = param(
         "input range ±full_scale_v; left out: eight times the record's noise standard "
         "deviation plus the calibration tone's amplitude", unit="V", check="positive",
         default=None, low=1e-12, high=1e6)
-
-    def problems(self):
-        """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
-        if not 2 <= self.bits <= 32:
-            yield ("bits", f"{self.bits!r} is out of range; expected an integer from 2 to 32")
 
 
 @_frozen

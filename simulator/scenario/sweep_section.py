@@ -50,6 +50,10 @@ def _range_problem(spec):
     num = spec["num"]
     if isinstance(num, bool) or not isinstance(num, int) or not 1 <= num <= MAX_POINTS:
         return f"range num = {num!r}; expected an integer from 1 to {MAX_POINTS}"
+    if num == 1 and spec["start"] != spec["stop"]:  # linspace(start, stop, 1) is [start]
+        return (f"range num = 1 from {spec['start']!r} to {spec['stop']!r}: only start would "
+                "be used and stop ignored; expected num ≥ 2 to span the range (or a list "
+                "of one value)")
     if not isinstance(spec.get("log", False), bool):
         return f"range log = {spec['log']!r}; expected true or false"
     if spec.get("log") and (spec["start"] <= 0 or spec["stop"] <= 0):
@@ -150,11 +154,33 @@ class Sweep:
 
     def problems(self):
         """Cross-field checks: yields ``(key, message)`` for each inconsistency."""
+        if self.combine == "grid":
+            yield from grid_size_problems(self.parameters)
         if self.combine == "zip":
             lengths = {p: len(axis_numbers(spec)) for p, spec in self.parameters.items()}
             if len(set(lengths.values())) > 1:
                 yield ("parameters", "zipped parameters need equal lengths; got "
                        + ", ".join(f"{p}: {n}" for p, n in lengths.items()))
+            return
+        for path, spec in self.parameters.items():  # a grid axis: each value once
+            value, count = collections.Counter(axis_numbers(spec)).most_common(1)[0]
+            if count > 1:
+                yield (f'parameters."{path}"', f"{value!r} comes {count} times along this "
+                       "grid axis (the same points computed again, a degenerate axis); "
+                       "expected distinct values (a range with num > 1 needs start ≠ stop)")
+
+
+def grid_size_problems(parameters, advice='split the sweep or use combine = "zip"'):
+    """A grid of more than :data:`MAX_POINTS` points, refused before any value is checked
+    (two axes of 10⁶ each passed the per-axis limit, then held `check` for minutes
+    while each value was validated, on the way to a 10¹² point grid)."""
+    sizes = {p: len(spec) if isinstance(spec, (tuple, list)) else spec["num"]
+             for p, spec in parameters.items()}
+    total = math.prod(sizes.values())
+    if total > MAX_POINTS:
+        yield ("parameters", f"the grid has {total} points ("
+               + " × ".join(f"{n} {p}" for p, n in sizes.items())
+               + f"); expected at most {MAX_POINTS} ({advice})")
 
 
 def axis_numbers(spec):

@@ -153,12 +153,18 @@ def load_estimator(spec):
         if module_name.endswith(".py"):
             path = Path(module_name)
             if not path.is_file():
-                raise InputError(f"--estimator {spec!r}: file {path} not found")
+                raise InputError(f"--estimator {spec!r}: file {path} "
+                                 f"{'is a folder' if path.is_dir() else 'not found'}; "
+                                 "expected a Python file")
             name = f"_noisechain_estimator_{hashlib.sha256(bytes(path.resolve())).hexdigest()}"
             module_spec = importlib.util.spec_from_file_location(name, path)
             module = importlib.util.module_from_spec(module_spec)
             sys.modules[name] = module
             module_spec.loader.exec_module(module)
+        elif not all(part.isidentifier() for part in module_name.split(".")):
+            raise InputError(f"--estimator {spec!r}: {module_name} is neither a module name "
+                             "nor a .py file; expected 'module:function' or "
+                             "'path/to/file.py:function'")
         else:
             module = importlib.import_module(module_name)
     except InputError:

@@ -110,10 +110,15 @@ def _inspect(system, warnings, feasibility):
         from simulator.linear.quadratures import quadrature_budget
 
         quadratures = quadrature_budget(system)
+        warnings += pair_tuning_warnings(system, steady)
         resolution = resolution_comparison(system) if feasibility else ()
         feasibility = False  # the sideband bounds do not apply to one quadrature
-    feasibility = (_feasibility(system, steady) if steady is not None and feasibility
-                   else ())
+    asked = steady is not None and feasibility
+    feasibility = _feasibility(system, steady) if asked else ()
+    bounded = {f["mode"] for f in feasibility}
+    warnings += [f"mode {m.name}: no measurement-time bound: the detected light does not "
+                 "couple to it (g = 0, or no drive power), so the record holds none of its "
+                 "motion" for m in scenario.mechanics if asked and m.name not in bounded]
     warnings += [f"mode {f['mode']}: the record carries too little information about this "
                  "mode for a finite measurement-time bound (reported as infinite, null in "
                  "JSON); raise the drive power or the coupling"
@@ -140,6 +145,30 @@ def _inspect(system, warnings, feasibility):
                       warnings=tuple(warnings), feasibility=feasibility, regime=regime,
                       laser=laser, tone_sets=tone_sets, quadratures=quadratures,
                       resolution=resolution, protocol=protocol)
+
+
+def pair_tuning_warnings(system, steady):
+    """A back-action-evading pair whose half-spacing ν misses the mode (a list of text).
+
+    In the pair's frame the mode keeps the term (Ωm − ν) b†b (docs/physics.md,
+    "Back-action evasion"): X1 turns into X2 at the rate δ = Im λ of the mode's
+    eigenvalue there, the effective frequency less ν. Once it turns by more
+    than a radian within the amplitude's decay time 2/Γeff (|δ| > Γeff/2), X1
+    takes X2's back-action and the pair evades nothing; the tolerance on the
+    tones' spacing is the mechanical linewidth, not the cavity's.
+    """
+    lower, upper = sorted(t.detuning_effective_hz for t in system.point.tones)
+    nu = (upper - lower) / 2
+    mode = steady.modes[0]
+    delta = mode.effective_frequency_hz - nu
+    if abs(delta) <= mode.effective_linewidth_hz / 2:
+        return []
+    return [f"mode {mode.name}: the pair's half-spacing ν = {nu:.9g} Hz misses the mode's "
+            f"effective frequency {mode.effective_frequency_hz:.9g} Hz by {delta:.3g} Hz, more "
+            f"than half its linewidth ({mode.effective_linewidth_hz:.3g} Hz): X1 turns into "
+            "X2 within the motion's decay time and takes its back-action, so the pair does "
+            "not evade it here; expected the tones' spacing 2 × the effective frequency "
+            "within the mechanical linewidth"]
 
 
 def _tone_sets(system, feasibility):

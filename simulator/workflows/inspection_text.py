@@ -163,10 +163,14 @@ class Inspection:
                 ("back-action limit n_min", "backaction_limit")]
         for mode in d["modes"]:
             lines += ["", f"mode {mode['name']}"]
+            if "tones" in d and not self.scenario.detection.backaction_evading:
+                lines.append(f"  (g, cooperativities, Ωm/κ: the detected tone "
+                             f"{d['detected_tone']}'s; damping, spring, occupations, "
+                             "n_min: every tone's)")
             for label, key in rows:
                 if key in mode:
                     value = mode[key]
-                    text = "inf" if value is None else f"{value:.6g}"
+                    text = "inf" if value is None else f"{value + 0.0:.6g}"  # no "-0"
                     if f"{key}_not_applicable" in mode:
                         text = f"not applicable ({mode[key + '_not_applicable']})"
                     lines.append(f"  {label:<28}{text}")
@@ -183,6 +187,10 @@ class Inspection:
                              f"{f['asymmetry_time_s']:.4g} s at {f['significance']:g} "
                              "standard deviations")
                 lines += _long_time_hint(f)
+            elif self.scenario.detection.scheme == "homodyne":
+                lines.append("  time to resolve the asymmetry    none from homodyne: one "
+                             "quadrature folds both sidebands onto |Ω| (heterodyne separates "
+                             "them)")
         if self.tone_sets:
             from simulator.analysis.joint_feasibility import tone_set_text
 

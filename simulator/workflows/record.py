@@ -10,6 +10,11 @@ master equation's trajectory records.
 from simulator.errors import InputError
 from simulator.records.generate import generate_record
 
+# A progress bar is drawn only for work that lasts longer than this: a record refused
+# at once (a duration shorter than one sample, no room on the disk) leaves its error
+# alone on the terminal, not after an empty bar.
+PROGRESS_DELAY_S = 0.5
+
 
 def simulate_record(system, *, seed=None, duration_s=None, out=None, form="auto",
                     store_mechanics=None, chunk_samples=None, progress=False, overwrite=False,
@@ -82,7 +87,8 @@ def simulate_record(system, *, seed=None, duration_s=None, out=None, form="auto"
             return RecordFileWriter(out, plan, chunk_rows=rows, overwrite=overwrite,
                                     compression=compression)
 
-    with tqdm(unit="sample", unit_scale=True, disable=not progress, desc="record") as bar:
+    with tqdm(unit="sample", unit_scale=True, disable=not progress, desc="record",
+              delay=PROGRESS_DELAY_S) as bar:
         def advance(count, total):
             bar.total = total
             bar.update(count)

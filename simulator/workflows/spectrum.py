@@ -18,6 +18,9 @@ import numpy as np
 from simulator.errors import InputError
 
 PLACES = ("record", "cavity")
+# A gap between the occupation from the sideband ratio and the exact one is noted when
+# larger than this fraction of the occupation (with one tone it is always explained).
+GAP_NOTED = 0.01
 
 
 @dataclasses.dataclass(frozen=True, kw_only=True)
@@ -30,6 +33,7 @@ class SpectrumResult:
     summary: tuple  # SidebandSummary per mode, with record view and gap (linear engine)
     name: str = ""  # the scenario's name
     quadratures: object = None  # QuadratureBudget of a back-action-evading pair, else None
+    tones: tuple = ()  # detection.tones when several are recorded: the first one's is shown
 
 
 def compute_spectrum(system, *, at="record", engine="linear", master_model="full",
@@ -84,12 +88,17 @@ def compute_spectrum(system, *, at="record", engine="linear", master_model="full
         gaps = occupation_gaps(system, summary)
         summary = tuple(dataclasses.replace(s, gap=g)
                         for s, g in zip(summary, gaps, strict=True))
+    from simulator.scenario.tone_sections import detected_tone_names
+
+    tones = detected_tone_names(system.scenario)
     return SpectrumResult(spectrum=spectrum, at=at, engine=engine, summary=summary,
-                          name=system.scenario.scenario.name)
+                          name=system.scenario.scenario.name,
+                          tones=tuple(tones) if len(tones) > 1 else ())
 
 
 def reference_frequency(result):
-    """Where the budget is quoted in the text: mode 0's anti-Stokes line, else the middle."""
+    """Where the budget is quoted in the text: mode 0's anti-Stokes line, else the highest
+    line of a master-equation spectrum (which has no sideband summary), else the middle."""
     spectrum = result.spectrum
     f = spectrum.frequency_hz
     for s in result.summary:
@@ -101,6 +110,8 @@ def reference_frequency(result):
             where = abs(where)
         if np.isfinite(where) and f.min() <= where <= f.max():
             return int(np.argmin(np.abs(f - where)))
+    if result.engine == "master":  # no sideband summary: the highest line
+        return int(np.argmax(spectrum.total))
     return f.size // 2
 
 
@@ -124,6 +135,8 @@ def report_data(result, files):
            "sidebands": [s.to_dict() for s in result.summary], "files": files}
     if result.quadratures is not None:
         out["backaction_evasion"] = result.quadratures.to_dict()
+    if result.tones:
+        out["tone"] = result.tones[0]
     if volts is not None:
         out["v2_per_hz_per_shot_noise_unit"] = volts
         out["sample_rate_hz"] = spectrum.calibration["sample_rate_hz"]
@@ -139,6 +152,10 @@ def report_text(result, files):
              f"{d['frequency_range_hz'][1]:.6g} Hz",
              f"  peak {d['peak']:.6g}; budget of {len(d['contributions'])} terms sums to the "
              f"total within {d['budget_residual']:.1e}"]
+    if result.tones:  # several recorded tones: one receiver's spectrum is shown
+        lines.insert(1, f"  the receiver of {result.tones[0]}, the first of detection.tones = "
+                        f"{list(result.tones)!r}; list another first for its spectrum "
+                        "(`noisechain record` writes every tone's)")
     volts = d.get("v2_per_hz_per_shot_noise_unit")
     at = d["budget_at"]
     unit = f" = {at['total'] * volts:.4g} V²/Hz" if volts else ""
@@ -154,6 +171,13 @@ def report_text(result, files):
             f"{s.steady_state_occupation:.5g})")
         if s.gap is not None:
             lines.append(f"    {s.gap.text()}")
+        elif result.engine == "linear":  # several tones: the causes are split for one only
+            d = s.occupation_from_ratio - s.steady_state_occupation
+            if math.isfinite(d) and abs(d) > GAP_NOTED * s.steady_state_occupation:
+                lines.append(f"    n from the ratio is {abs(d):.4g} "
+                             f"{'below' if d < 0 else 'above'} the steady state; with several "
+                             "tones its causes are not split (they are for one tone: the "
+                             "file without its [[tones]])")
         if result.at == "record" and math.isfinite(s.anti_stokes.record_peak_to_background):
             lines.append(f"    at the digitiser: anti-Stokes line at "
                          f"{s.anti_stokes.record_frequency_hz:.9g} Hz, peak "

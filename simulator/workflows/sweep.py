@@ -278,13 +278,33 @@ def run_sweep(scenario, out, *, workers=None, dask=None, progress=True):
                                                         int(seed.generate_state(1)[0])))
                                    for (index, a), seed in zip(points, seeds, strict=True)],
                                   workers=workers, dask=dask, progress=progress, desc="sweep",
-                                  unit="pt")
+                                  unit="pt", keep=functools.partial(
+                                      point_is_whole, len(scenario.mechanics)))
         dataset = assemble(scenario, axes, points, results)
         from simulator.workflows.sweep_optimum import optima_json
 
         dataset.attrs["optima"] = optima_json(dataset)  # best point per figure of merit
         write_dataset(dataset, out / "sweep.nc")
     return dataset
+
+
+def point_is_whole(n_modes, result):
+    """Whether a point's stored result has the layout :func:`evaluate_point` writes.
+
+    A point file edited or damaged into other valid JSON (a list, a text where a
+    number belongs, a mode list of the wrong length) is computed again, like a
+    file that no longer parses, rather than assembled into the dataset or
+    failing the whole sweep as if the scenario were at fault.
+    """
+    def number(x):
+        return x is None or (isinstance(x, (int, float)) and not isinstance(x, bool))
+
+    if not isinstance(result, dict) or not isinstance(result.get("error"), str):
+        return False
+    return (all(number(result[k]) for k in POINT_QUANTITIES if k in result)
+            and all(isinstance(result[k], list) and len(result[k]) == n_modes
+                    and all(map(number, result[k])) for k in MODE_QUANTITIES if k in result)
+            and all(isinstance(f, str) for f in result.get("files", [])))
 
 
 def assemble(scenario, axes, points, results):

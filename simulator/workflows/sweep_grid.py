@@ -12,11 +12,10 @@ axes also name the dimensions of the sweep's Dataset
 
 import dataclasses
 import itertools
-import math
 import re
 
 from simulator.errors import ScenarioError
-from simulator.scenario.sweep_section import MAX_POINTS, axis_numbers
+from simulator.scenario.sweep_section import axis_numbers, grid_size_problems
 
 
 @dataclasses.dataclass(frozen=True)
@@ -106,11 +105,9 @@ def sweep_points(scenario, axes=None):
     For ``combine = "zip"`` the index has one entry, the point number.
     """
     axes = sweep_axes(scenario) if axes is None else axes
-    total = math.prod(len(a.values) for a in axes)
-    if scenario.sweep.combine == "grid" and total > MAX_POINTS:
-        raise ScenarioError(f"the grid has {total} points; expected at most {MAX_POINTS} "
-                            "(split the sweep or use combine = \"zip\")",
-                            source=scenario.source, key="sweep.parameters")
+    for key, message in (grid_size_problems(scenario.sweep.parameters)
+                         if scenario.sweep.combine == "grid" else ()):
+        raise ScenarioError(message, source=scenario.source, key=f"sweep.{key}")
     if scenario.sweep.combine == "zip":
         return [((i,), tuple((a.path, a.values[i]) for a in axes))
                 for i in range(len(axes[0].values))]

@@ -157,6 +157,27 @@ def _batches(todo, n):
     return [todo[i:i + size] for i in range(0, len(todo), size)]
 
 
+# Most local worker processes per core: the tasks are CPU-bound, so more only wait for
+# a core while each holds its own interpreter and libraries (~100 MB); 100000 started
+# one process per batch of a sweep.
+PROCESSES_PER_CORE = 4
+
+
+def checked_workers(workers):
+    """``workers`` local processes (default: one per core), or the error naming it."""
+    cores = os.cpu_count() or 1
+    if workers is None:
+        return cores
+    if isinstance(workers, bool) or int(workers) != workers or workers < 1:
+        raise InputError(f"--workers {workers}: expected a positive number of worker "
+                         "processes")
+    if workers > PROCESSES_PER_CORE * cores:
+        raise InputError(f"--workers {workers}: expected at most {PROCESSES_PER_CORE * cores} "
+                         f"({PROCESSES_PER_CORE} per core of this machine: more only wait for "
+                         "a core, each holding its own memory)")
+    return int(workers)
+
+
 def _execute(func, common, todo, workers, dask):
     """Yield ``(key, result)`` as tasks finish, from the chosen executor."""
     if not todo:
@@ -164,9 +185,7 @@ def _execute(func, common, todo, workers, dask):
     if dask is not None:
         yield from _execute_dask(func, common, todo, dask)
         return
-    workers = (os.cpu_count() or 1) if workers is None else int(workers)
-    if workers < 1:
-        raise InputError(f"--workers {workers}: expected a positive number of workers")
+    workers = checked_workers(workers)
     if workers == 1:
         for key, payload in todo:
             yield key, func(common, payload)
