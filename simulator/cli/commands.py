@@ -6,7 +6,6 @@ libraries are imported inside the verbs that need them.
 """
 
 import math
-import os
 import sys
 import warnings
 from pathlib import Path
@@ -15,10 +14,13 @@ from simulator.cli.preflight import (
     check_summary,
     require_in_key_range,
     require_no_duration_with_schedule,
+    require_output_file,
+    require_output_folder,
+    require_record_options,
+    require_workers,
 )
 from simulator.errors import InputError
 from simulator.io import jsontext
-from simulator.io.files import refuse_existing
 from simulator.scenario.tone_sections import detected_tone_names
 
 EXIT_OK, EXIT_FAILED, EXIT_INPUT, EXIT_UNSTABLE = 0, 1, 2, 3
@@ -96,8 +98,8 @@ def cmd_inspect(args):
 
 def cmd_sweep(args):
     """``noisechain sweep``: run the scenario's parameter sweep."""
-    _require_output_folder(args.out)
-    _require_workers(args)
+    require_output_folder(args.out)
+    require_workers(args)
     from simulator.scenario.loader import load_scenario
     from simulator.workflows.sweep import run_sweep
 
@@ -123,8 +125,8 @@ def cmd_sweep(args):
 
 def cmd_plan(args):
     """``noisechain plan``: the best operating point; exit 3 when none is feasible."""
-    _require_output_file(args.plot, (".png", ".pdf", ".svg"), "--plot", args.force)
-    _require_workers(args)
+    require_output_file(args.plot, (".png", ".pdf", ".svg"), "--plot", args.force)
+    require_workers(args)
     from simulator.scenario.loader import load_scenario
     from simulator.workflows.plan import plan_scenario
 
@@ -144,61 +146,10 @@ def cmd_plan(args):
     return EXIT_OK if result.feasible else EXIT_UNSTABLE
 
 
-def _require_output_file(path, allowed, option, force):
-    """Refuse, before any work, an output file with the wrong extension, in a folder
-    that cannot take it, or that exists (without ``--force``)."""
-    if path is None:
-        return
-    if Path(path).suffix.lower() not in allowed:
-        raise InputError(f"{option} {path!r} has extension {Path(path).suffix!r}; expected "
-                         f"one of {', '.join(allowed)}")
-    _require_writable_folder(Path(path).parent or Path("."), option, path)
-    refuse_existing(path, overwrite=force, option=option)
-
-
-def _require_writable_folder(folder, option, path):
-    folder = Path(folder) if str(folder) else Path(".")
-    for above in (folder, *folder.parents):  # the nearest part of the path that exists
-        if above.exists():
-            if not above.is_dir():
-                raise InputError(f"{option} {str(path)!r}: {str(above)!r} is a file, not a "
-                                 "folder; expected a path inside an existing, writable folder")
-            break
-    if not folder.is_dir() or not os.access(folder, os.W_OK | os.X_OK):
-        raise InputError(f"{option} {str(path)!r}: folder {str(folder)!r} does not exist or "
-                         "is not writable; expected an existing, writable folder")
-    import tempfile
-
-    try:  # the permission bits do not tell (root, a network share mapping root to nobody)
-        with tempfile.TemporaryFile(dir=folder):
-            pass
-    except OSError as exc:
-        raise InputError(f"{option} {str(path)!r}: folder {str(folder)!r} cannot take a file "
-                         f"({exc.strerror or exc}); expected an existing, writable folder"
-                         ) from None
-
-
-def _require_output_folder(path, option="--out"):
-    """Refuse an output folder that cannot be created or written, before any work."""
-    target = Path(path)
-    if target.exists() and not target.is_dir():
-        raise InputError(f"{option} {path!r} is a file; expected a folder (new or existing)")
-    parent = target if target.exists() else target.parent
-    _require_writable_folder(parent, option, path)
-
-
-def _require_workers(args):
-    workers = getattr(args, "workers", None)
-    if workers is not None:
-        from simulator.workflows.tasks import checked_workers
-
-        checked_workers(workers)
-
-
 def cmd_spectrum(args):
     """``noisechain spectrum``: the spectrum at the digitiser (default) or the cavity port."""
-    _require_output_file(args.out, (".nc", ".csv"), "--out", args.force)
-    _require_output_file(args.plot, (".png", ".pdf", ".svg"), "--plot", args.force)
+    require_output_file(args.out, (".nc", ".csv"), "--out", args.force)
+    require_output_file(args.plot, (".png", ".pdf", ".svg"), "--plot", args.force)
     from simulator.model.system import System
     from simulator.scenario.loader import load_scenario
     from simulator.workflows.spectrum import (
@@ -248,8 +199,8 @@ def cmd_record(args):
     from simulator.scenario.loader import load_scenario
     from simulator.workflows.record import master_records_to_files, simulate_record
 
-    _require_output_file(args.out, (".h5", ".hdf5"), "--out", args.force)
-    _require_record_options(args)
+    require_output_file(args.out, (".h5", ".hdf5"), "--out", args.force)
+    require_record_options(args)
     scenario = load_scenario(args.scenario)
     require_no_duration_with_schedule(args, scenario)
     if scenario.schedule is not None and (args.averaged is not None
@@ -312,35 +263,6 @@ def cmd_record(args):
     return EXIT_OK
 
 
-def _require_record_options(args):
-    """Refuse options of ``record`` that are out of range or that the chosen output
-    would silently ignore."""
-    if args.threads is not None and args.threads < 1:
-        raise InputError(f"--threads {args.threads}: expected a positive number of threads")
-    if args.threads is not None:
-        from simulator.records.pipeline import checked_workers
-
-        try:
-            checked_workers(args.threads)
-        except InputError as exc:  # the same limit, under the option's own name
-            raise InputError(f"--threads {args.threads}: "
-                             f"{str(exc).partition('; ')[2]}") from None
-    require_in_key_range("--seed", args.seed, "scenario", "seed")
-    require_in_key_range("--duration", args.duration, "record", "duration_s")
-    if args.averaged is None and args.window is not None:
-        raise InputError(f"--window {args.window}: expected it only with --averaged N "
-                         "(it is the averaged periodogram's window)")
-    unused = [name for name, given in (("--compress", args.compress),
-                                       ("--threads", args.threads is not None),
-                                       ("--form", args.form != "auto")) if given]
-    if unused and args.averaged is not None:
-        raise InputError(f"{', '.join(unused)} with --averaged: expected none of them (an "
-                         "averaged spectrum is drawn from its law, not from time samples)")
-    if unused and args.engine == "master":
-        raise InputError(f"{', '.join(unused)} with --engine master: expected none of them "
-                         "(they shape the linear engine's records)")
-
-
 def _averaged_spectrum(args, scenario):
     """``noisechain record --averaged N``: the averaged periodogram drawn from its law."""
     from simulator.workflows.record import simulate_averaged_spectrum
@@ -377,8 +299,8 @@ def _averaged_spectrum(args, scenario):
 
 def cmd_trial(args):
     """``noisechain trial``: an estimator on many records, against the truth."""
-    _require_output_folder(args.out)
-    _require_workers(args)
+    require_output_folder(args.out)
+    require_workers(args)
     require_in_key_range("--duration", args.duration, "record", "duration_s")
     from simulator.scenario.loader import load_scenario
     from simulator.workflows.trial import run_trials
@@ -429,8 +351,8 @@ def _print_run(result, args):
 
 def cmd_run(args):
     """``noisechain run``: everything the scenario asks for, into a folder with a report."""
-    _require_output_folder(args.out)
-    _require_workers(args)
+    require_output_folder(args.out)
+    require_workers(args)
     from simulator.scenario.loader import load_scenario
     from simulator.workflows.run import run_scenario
 
@@ -442,8 +364,8 @@ def cmd_run(args):
 
 def cmd_demo(args):
     """``noisechain demo``: run the bundled demo scenario into a folder."""
-    _require_output_folder(args.out)
-    _require_workers(args)
+    require_output_folder(args.out)
+    require_workers(args)
     from simulator.workflows.demo import demo_scenario
     from simulator.workflows.run import run_scenario
 

@@ -18,12 +18,12 @@ from pathlib import Path
 
 from simulator.errors import ScenarioError
 from simulator.scenario import pair_paths, schema, units
+from simulator.scenario.cross_checks import chain_problems, varied_path_problems
 from simulator.scenario.local_oscillator import local_oscillator_problems
 from simulator.scenario.paths import (
     assign,
     join,
     leaf_paths,
-    leaf_type,
     objects_along,
     resolve_names,
     split_path,
@@ -110,62 +110,18 @@ class Scenario:
             seen.add(mode.name)
         yield from tone_problems(self)
         yield from pair_problems(self)
-        yield from self._chain_problems()
-        yield from self._local_oscillator_problems()
+        yield from chain_problems(self)
+        yield from local_oscillator_problems(self)
         yield from receiver_problems(self)
         yield from segment_problems(self)
         for name in ("sweep", "plan"):
             varied = getattr(self, name)
             for path, spec in varied.parameters.items() if varied is not None else ():
                 for p in (path, *([spec["unit"]] if "unit" in spec else [])):
-                    yield from self._sweep_path_problems(p, path, name)
+                    yield from varied_path_problems(self, p, path, name)
         if self.plan is not None and self.plan.mode >= len(self.mechanics):
             yield ("plan.mode", f"{self.plan.mode!r} names no mode; expected an index "
                    f"below {len(self.mechanics)}, the number of [[mechanics]] tables")
-
-    def _chain_problems(self):
-        detection, kind = self.detection, self.record.kind
-        if detection.scheme == "homodyne":
-            if kind == "iq":
-                yield ("record.kind", '"iq" is not available for homodyne, which measures '
-                       'one quadrature; expected "if" (a real record) or leave it out')
-            if detection.intermediate_frequency_hz != 0:
-                yield ("detection.intermediate_frequency_hz",
-                       f"{detection.intermediate_frequency_hz!r} Hz with homodyne, whose "
-                       "local oscillator is at the drive frequency; expected 0")
-        elif kind == "if" and detection.intermediate_frequency_hz == 0:
-            yield ("detection.intermediate_frequency_hz",
-                   '0 Hz with an "if" heterodyne record; expected a positive intermediate '
-                   "frequency")
-
-    def _local_oscillator_problems(self):
-        yield from local_oscillator_problems(self)
-
-    def _sweep_path_problems(self, path, swept, section="sweep"):
-        key = f'{section}.parameters."{swept}"'
-        try:
-            value = self.get(path)
-        except ScenarioError as exc:
-            close = difflib.get_close_matches(path, self.parameter_paths(), n=1)
-            hint = f"; did you mean {close[0]!r}?" if close else (
-                "; expected a path such as 'drive.detuning_hz'")
-            yield key, exc.detail + hint
-            return
-        if pair_paths.is_pair_path(path):
-            return  # a back-action-evading pair's own number (simulator.scenario.pair_paths)
-        if path.split(".")[0] in ("sweep", "plan", "schedule") or dataclasses.is_dataclass(
-                value) or isinstance(value, tuple):
-            yield key, f"{path!r} does not name a single scenario parameter"
-        elif leaf_type(type(self), self._canonical(path)[0], self.source) not in (int, float):
-            role = "sweepable" if path == swept else "usable as the unit of a range"
-            yield key, (f"{path!r} is not a numeric parameter, so it is not {role}; "
-                        "expected a number such as 'drive.detuning_hz'")
-        elif path == swept and _changes_nothing_computed(path, section, self.sweep):
-            yield key, (f"{path!r} changes no quantity the {section} computes (each point's "
-                        "record seed is spawned from the file's scenario.seed, and a record "
-                        "setting matters only to the records of `[sweep] records = true`), "
-                        "so every point would be the same; expected a drive, device, bath "
-                        "or detection parameter")
 
     def parameter_paths(self):
         """Every path naming a single parameter, e.g. ``"mechanics[0].frequency_hz"``."""
@@ -266,14 +222,6 @@ class Scenario:
         data = self.to_dict()
         assign(data, self, parts, value, path, self.source)
         return scenario_from_dict(data, source=self.source)
-
-
-def _changes_nothing_computed(path, section, sweep):
-    """Whether varying ``path`` in a sweep or plan leaves every point the same: the seed
-    (each point's is spawned from the file's), and a record setting without records."""
-    root = path.split(".")[0]
-    return root == "scenario" or (root == "record" and not (
-        section == "sweep" and sweep is not None and sweep.records))
 
 
 def _as_data(obj):
