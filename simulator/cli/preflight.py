@@ -77,6 +77,7 @@ def require_output_file(path, allowed, option, force):
 
 
 def require_writable_folder(folder, option, path):
+    """Refuse ``folder`` (where ``option``'s ``path`` goes) unless a file can be made in it."""
     folder = Path(folder) if str(folder) else Path(".")
     for above in (folder, *folder.parents):  # the nearest part of the path that exists
         if above.exists():
@@ -108,6 +109,7 @@ def require_output_folder(path, option="--out"):
 
 
 def require_workers(args):
+    """Refuse a ``--workers`` out of range before any work."""
     workers = getattr(args, "workers", None)
     if workers is not None:
         from simulator.workflows.tasks import checked_workers
