@@ -287,3 +287,24 @@ def test_master_equation_spectrum_quotes_its_budget_at_its_line(capsys):
     at = d["budget_at"]
     assert at["total"] == d["peak"] and abs(abs(at["frequency_hz"]) - 8e6) < 1e4
     assert at["lines"]["output photon flux (master equation)"] > 0.2
+
+
+@pytest.mark.parametrize("argv, words", [
+    (["inspect", "scenarios/drum_two_probes.toml", "--master"],
+     "--master with several drive tones ('drive', 'red_probe', 'blue_probe')"),
+    (["inspect", "scenarios/drum_bae_microwave.toml", "--master", "--master-model",
+      "linearised"], "--master with a back-action-evading pair"),
+    (["spectrum", "scenarios/drum_two_probes.toml", "--engine", "master", "--at", "cavity"],
+     "--engine master with several drive tones"),
+    (["record", "scenarios/drum_two_probes.toml", "--engine", "master", "--master-model",
+      "linearised", "--out", "never.h5"], "it gives the steady state only"),
+])
+def test_master_runs_that_tones_rule_out_are_refused_by_their_option(argv, words, capsys,
+                                                                    tmp_path):
+    """A master-equation option the scenario's tones rule out is refused before any work,
+    in the option's words (it named an internal function), and writes nothing."""
+    argv = [str(tmp_path / a) if a == "never.h5" else a for a in argv]
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    assert words in err and "simulator." not in err and err.count("\n") == 1
+    assert list(tmp_path.iterdir()) == []

@@ -13,6 +13,7 @@ from pathlib import Path
 from simulator.cli.preflight import (
     check_summary,
     require_in_key_range,
+    require_master_with_tones,
     require_no_duration_with_schedule,
     require_output_file,
     require_output_folder,
@@ -76,6 +77,8 @@ def cmd_inspect(args):
     from simulator.workflows.inspection import inspect_scenario
 
     scenario = load_scenario(args.scenario)
+    if args.master:
+        require_master_with_tones(scenario, "--master", args.master_model, steady_only=True)
     report = inspect_scenario(scenario, feasibility=not args.no_feasibility)
     master = None
     if args.master and report.steady is not None:
@@ -160,6 +163,9 @@ def cmd_spectrum(args):
     )
 
     scenario = load_scenario(args.scenario)
+    if args.engine == "master":
+        require_master_with_tones(scenario, "--engine master", args.master_model,
+                                  steady_only=False)
     if args.angle_deg is not None and scenario.detection.scheme != "homodyne":
         raise InputError(f"--angle-deg {args.angle_deg:g} with detection.scheme = "
                          f"{scenario.detection.scheme!r}: expected it only for homodyne "
@@ -202,6 +208,9 @@ def cmd_record(args):
     require_output_file(args.out, (".h5", ".hdf5"), "--out", args.force)
     require_record_options(args)
     scenario = load_scenario(args.scenario)
+    if args.engine == "master":
+        require_master_with_tones(scenario, "--engine master", args.master_model,
+                                  steady_only=False)
     require_no_duration_with_schedule(args, scenario)
     if scenario.schedule is not None and (args.averaged is not None
                                           or args.engine == "master"):

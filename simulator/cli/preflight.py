@@ -144,3 +144,32 @@ def require_record_options(args):
     if unused and args.engine == "master":
         raise InputError(f"{', '.join(unused)} with --engine master: expected none of them "
                          "(they shape the linear engine's records)")
+
+
+def require_master_with_tones(scenario, option, model, steady_only):
+    """Refuse a master-equation run the scenario's tones rule out, naming the option.
+
+    The full master equation holds one cavity mode in the drive's frame, where several
+    tones beat at their spacing (no stationary state); the linearised one (one Hilbert
+    factor per tone field, :mod:`simulator.master.tone_fields`) gives the steady state
+    only (``steady_only``: what the command asks of it). A back-action-evading pair is
+    held by neither.
+    """
+    if not scenario.tones:
+        return
+    names = ", ".join(["'drive'", *(repr(t.name) for t in scenario.tones)])
+    if scenario.detection.backaction_evading:
+        raise InputError(f"{option} with a back-action-evading pair: the master equation "
+                         "does not hold the pair's model; expected the linear engine "
+                         f"(leave out {option}), whose steady state is exact for it")
+    if model == "full":
+        hint = ("expected --master-model linearised (one field per tone) or the linear "
+                "engine" if steady_only else "expected the linear engine (the default)")
+        raise InputError(f"{option} with several drive tones ({names}): the full master "
+                         "equation holds one cavity mode in the frame of the drive, where "
+                         "the tones beat at their spacing (no stationary state); " + hint)
+    if not steady_only:
+        raise InputError(f"{option} --master-model linearised with several drive tones "
+                         f"({names}): it gives the steady state only (`noisechain inspect "
+                         "--master --master-model linearised`); expected the linear engine "
+                         "(the default) for spectra and records")
