@@ -151,10 +151,10 @@ def test_titles_name_the_scenario_and_the_recorded_tone():
     from simulator.workflows.spectrum import TITLE_WIDTH, figure_title
 
     probes = load_scenario(TWO_PROBES)
-    assert titled(probes) == ("drum-two-probes, tone blue_probe recorded of drive, red_probe, "
-                              "blue_probe")
+    assert titled(probes) == ("drum-two-probes, tones drive, red_probe, blue_probe; "
+                              "recorded: blue_probe")
     both = probes.replace("detection.tones", ["red_probe", "blue_probe"])
-    assert "tones red_probe, blue_probe recorded" in titled(both)
+    assert titled(both).endswith("; recorded: red_probe, blue_probe")
     bae = load_scenario(TWO_PROBES.with_name("drum_bae_microwave.toml"))
     assert titled(bae) == "drum-bae-microwave, back-action-evading pair drive + upper"
     alone = load_scenario(TWO_PROBES.with_name("membrane_4k.toml"))

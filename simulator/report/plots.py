@@ -39,8 +39,8 @@ def titled(scenario):
     """The scenario's name for a figure title, with the tones the record holds.
 
     With the drive alone: the name. With several tones: which the receiver
-    demodulates among all ("drum-two-probes, tone blue_probe recorded of drive,
-    red_probe, blue_probe"); a back-action-evading pair is named as the pair
+    demodulates among all ("drum-two-probes, tones drive, red_probe, blue_probe;
+    recorded: blue_probe"); a back-action-evading pair is named as the pair
     (the reference sits at its mean frequency).
     """
     from simulator.scenario.tone_sections import PRIMARY_TONE, detected_tone_names
@@ -52,8 +52,7 @@ def titled(scenario):
     if scenario.detection.backaction_evading:
         return f"{name}, back-action-evading pair {' + '.join(every)}"
     recorded = detected_tone_names(scenario)
-    which = f"tones {', '.join(recorded)}" if len(recorded) > 1 else f"tone {recorded[0]}"
-    return f"{name}, {which} recorded of {', '.join(every)}"
+    return f"{name}, tones {', '.join(every)}; recorded: {', '.join(recorded)}"
 
 
 def plot_spectrum(spectrum, path, *, displacement=None, summary=(), mode=0, title=None,
