@@ -76,3 +76,14 @@ def test_the_printed_optimum_names_the_swept_parameters_in_words():
              "next_to_bistable": False}
     (line,) = optima_lines([entry])
     assert "drive detuning Δ / Ωm = -1.05" in line and "over_mechanics0" not in line
+
+
+def test_a_best_time_beyond_a_day_says_why_and_where_to_look():
+    """A sweep whose best asymmetry time is still beyond a day gives the same hint as
+    ``inspect`` (a weak sideband sets it; the planner searches beyond the grid); a
+    day or less, or a figure that is not a time, gets none."""
+    entry = {"on_edge": False, "next_to_unstable": False, "bistable": False,
+             "next_to_bistable": False, "units": "s", "value": 1.2e13}
+    assert any("more than a day" in w and "noisechain plan" in w for w in caveats(entry))
+    assert caveats(entry | {"value": 3600.0}) == []
+    assert caveats(entry | {"units": "", "value": 1e6}) == []

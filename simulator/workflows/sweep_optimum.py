@@ -16,6 +16,7 @@ import numpy as np
 
 from simulator.analysis.planner import grid_flags
 from simulator.report.summary import coord_label
+from simulator.workflows.inspection_text import LONG_INTEGRATION_S
 
 # figure of merit → words; every one is minimised
 FIGURES_OF_MERIT = {
@@ -74,6 +75,9 @@ def caveats(entry):
         words.append("next to unstable points")
     if entry["bistable"] or entry["next_to_bistable"]:
         words.append("on or next to bistable points")
+    if entry.get("units") == "s" and entry["value"] > LONG_INTEGRATION_S:
+        words.append("more than a day even here: a sideband weak against the record's floor "
+                     "sets it; `noisechain plan` searches detuning and power beyond this grid")
     return words
 
 
