@@ -214,7 +214,8 @@ def test_each_tone_shows_its_own_field_occupation():
     closed = g**2 * (2 * n + 1) / (kappa**2 / 4 + omega**2)
     assert probe["field_occupation"] == pytest.approx(closed, rel=0.01)
     assert probe["field_occupation"] < 0.01 * d["cavity_occupation"]
-    assert "cavity occupation      0.837136 (the drive's field)" in report.to_text()
+    assert ("cavity occupation      0.837136 (fluctuations about the mean field; the drive's "
+            "field)") in report.to_text()
     # a pair has one field: no per-tone field occupation
     pair = inspect_scenario(load_scenario(PAIR)).to_dict()
     assert all("field_occupation" not in r for r in pair["tones"])

@@ -145,7 +145,10 @@ class Inspection:
         lines.append(f"  stability              {verdict}"
                      f"   (max growth rate {d['growth_rate_hz']:.6g} Hz)")
         if d["cavity_occupation"] is not None:
-            whose = " (the drive's field)" if d.get("detected_tone") not in (None, "drive") else ""
+            # the fluctuations' photons, the mean field removed (docs/physics.md)
+            whose = (" (fluctuations about the mean field; the drive's field)"
+                     if d.get("detected_tone") not in (None, "drive")
+                     else " (fluctuations about the mean field)")
             lines.append(f"  cavity occupation      {d['cavity_occupation']:.6g}{whose}")
         rows = [("g (Hz)", "g_hz"), ("bath occupation", "bath_occupation"),
                 ("cooperativity", "cooperativity"),
