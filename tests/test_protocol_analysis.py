@@ -194,3 +194,22 @@ def test_inspect_prints_the_heating_rate_bound():
     assert 0 < bound.heating_rate_error < 0.1 * bound.heating_rate
     text = inspect_scenario(System(scenario)).to_text()
     assert "heating rate:" in text and "after 20 cycles" in text and "Cramér–Rao)" in text
+
+
+def test_a_very_high_q_line_keeps_its_floor_and_its_heating_bound():
+    """A mode of Q ≈ 2·10⁷ (Γm/2π = 0.085 Hz): its resonant-probe line stands some 10¹⁰
+    above the record's floor, where total − Lorentzian peak is lost in the peak's own
+    rounding (it came out −111 shot-noise units, and the bound failed with a log of a
+    negative spectrum). The floor is then the uncoupled chain's: shot noise, 1."""
+    import warnings
+
+    from simulator.analysis.protocol_bound import segment_models
+
+    scenario = load_scenario(HEATING).replace("mechanics[0].linewidth_hz", 0.0847)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        models, _, heating, _ = segment_models(scenario)
+        bound = heating_rate_bound(scenario)
+    for m in models:
+        assert m.floor == pytest.approx(1.0, abs=1e-3)  # vacuum-limited heterodyne
+    assert np.isfinite(bound.heating_rate_error) and 0 < bound.heating_rate_error < heating

@@ -70,6 +70,10 @@ BAND_POINTS = 801  # uniform points laid over the whole Nyquist band (filter, si
 SINC = "sampling: average over each sample interval (sinc²)"
 ALIASING = "sampling: aliasing (noise folded in from f + k·fs, k ≠ 0)"
 _CHAIN_INPUTS = ("loss.", "added.", "electronics.")
+# The rest of the density at a line is read as total − peak only above this fraction of
+# the total: the Lorentzian peak 2·area/(π·FWHM) is good to about 1e-7 of itself, so a
+# line that tall (a very high-Q mode) has its floor from the uncoupled chain (our choice)
+RESOLVED_REST = 1e-5
 
 
 def digitiser_spectrum(system, frequency_hz=None, *, sample_rate_hz=None, aliases=ALIASES):
@@ -337,7 +341,30 @@ def record_sidebands(system, summaries, *, sample_rate_hz=None, aliases=ALIASES)
                     * float(chain_gain(scenario, f, fs)))
             peak = area * 2.0 / (np.pi * side.linewidth_hz)
             total = float(sampled_density(chain, np.array([f]), fs, aliases=aliases)[0][0])
+            rest = total - peak
+            if not rest > RESOLVED_REST * total:
+                rest = uncoupled_density(system, f, fs, aliases)
             sides[key] = dataclasses.replace(side, record_frequency_hz=f, record_area=area,
-                                             record_peak_to_background=peak / (total - peak))
+                                             record_peak_to_background=peak / rest)
         out.append(dataclasses.replace(s, **sides))
     return tuple(out)
+
+
+def uncoupled_density(system, frequency_hz, sample_rate_hz, aliases=ALIASES):
+    """The record's density at ``frequency_hz`` with every optomechanical coupling zero.
+
+    The floor a line sits on, where the line is so tall against it that the
+    total minus the line's Lorentzian peak is lost in the peak's own rounding
+    (:data:`RESOLVED_REST`): the same drive, cavity and detection chain, no
+    mechanical line and no back-action.
+    """
+    from simulator.model.system import System
+
+    scenario = system.scenario
+    for i in range(len(scenario.mechanics)):
+        scenario = scenario.replace(f"mechanics[{i}].coupling_hz", 0.0)
+    for i in range(len(scenario.couplings)):
+        scenario = scenario.replace(f"couplings[{i}].coupling_hz", 0.0)
+    chain = as_system(System(scenario), several_tones="detected").chain
+    return float(sampled_density(chain, np.array([frequency_hz]), sample_rate_hz,
+                                 aliases=aliases)[0][0])
