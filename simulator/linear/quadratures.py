@@ -45,10 +45,10 @@ numbers and quadrature normalisation recalled from memory, not checked).
 import dataclasses
 
 import numpy as np
-import scipy.linalg
 
 from simulator.linear.record_budget import digitiser_spectrum
 from simulator.model.backaction_evasion import COUNTER_ROTATING, lab_mechanics, pair_parameters
+from simulator.model.statespace import solve_lyapunov
 from simulator.model.system import as_system
 
 # The standard quantum limit of a continuous position measurement with one tone: the
@@ -149,7 +149,7 @@ def quadrature_budget(system, *, efficiency=None):
     by1, by2 = {}, {}
     for name, idx in model.sources:
         b = model.B[:, list(idx)]
-        v = scipy.linalg.solve_continuous_lyapunov(
+        v = solve_lyapunov(
             model.A, -b @ model.N[np.ix_(idx, idx)] @ b.T)
         by1[name], by2[name] = float(v[x1, x1]), float(v[x2, x2])
     v = model.covariance()

@@ -45,6 +45,8 @@ def sampled_resolvent_spectra(model, groups, period):
     """
     import scipy.linalg
 
+    from simulator.model.statespace import solve_lyapunov
+
     n = model.A.shape[0]
     block = np.zeros((3 * n, 3 * n))
     block[:n, :n], block[:n, n:2 * n], block[n:2 * n, 2 * n:] = model.A, np.eye(n), np.eye(n)
@@ -53,7 +55,7 @@ def sampled_resolvent_spectra(model, groups, period):
     parts = []
     for g in groups:
         b, n_g, d = columns_of(model.B, g), block_of(model.N, g), columns_of(model.D, g)
-        sigma = scipy.linalg.solve_continuous_lyapunov(model.A, -(b @ n_g @ b.T))
+        sigma = solve_lyapunov(model.A, -(b @ n_g @ b.T))
         m = sigma @ model.C.T + b @ n_g @ d.T
         k0 = model.C @ xi @ m / period
         parts.append((d @ n_g @ d.T + k0 + k0.T, psi @ psi @ m / period))

@@ -13,9 +13,9 @@ by at most :data:`MAX_VARIANCE_GROWTH`; its effective frequency and
 """
 
 import numpy as np
-import scipy.linalg
 
 from simulator.errors import InputError, OperatingPointError
+from simulator.model.statespace import solve_lyapunov
 
 MAX_VARIANCE_GROWTH = 1e12  # largest factor an unstable segment may amplify the variance by
 # (e^{2 Re λ T}): 10¹² keeps a thermal state of 10⁵ phonons far inside double precision
@@ -64,5 +64,5 @@ def uncoupled_covariance(model):
     damping, the detection chain): the start of the states other than the
     mechanics when the first segment is unstable and has no steady state.
     """
-    cov = scipy.linalg.solve_continuous_lyapunov(model.A - model.coupling, -model.diffusion)
+    cov = solve_lyapunov(model.A - model.coupling, -model.diffusion)
     return 0.5 * (cov + cov.T)
