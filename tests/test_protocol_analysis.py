@@ -213,3 +213,19 @@ def test_a_very_high_q_line_keeps_its_floor_and_its_heating_bound():
     for m in models:
         assert m.floor == pytest.approx(1.0, abs=1e-3)  # vacuum-limited heterodyne
     assert np.isfinite(bound.heating_rate_error) and 0 < bound.heating_rate_error < heating
+
+
+def test_the_heating_bound_of_a_bath_at_zero_temperature_is_an_absolute_error():
+    """n_th = 0: H = Γm·n_th is zero, where a relative step of the derivatives was zero
+    too (0/0, a warning and no bound). H then takes a forward step of Γm·RELATIVE_STEP;
+    the error on H is finite and positive, and equals the limit of small temperatures."""
+    import warnings
+
+    scenario = load_scenario(HEATING)
+    cold = scenario.replace("mechanics[0].bath_temperature_k", 0.0)
+    colder = scenario.replace("mechanics[0].bath_temperature_k", 1e-6)  # n_th ~ e^-48000
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        zero, tiny = heating_rate_bound(cold), heating_rate_bound(colder)
+    assert zero.heating_rate == 0 and 0 < zero.heating_rate_error < np.inf
+    assert zero.heating_rate_error == pytest.approx(tiny.heating_rate_error, rel=1e-3)

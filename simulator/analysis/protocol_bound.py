@@ -78,16 +78,26 @@ class HeatingBound:
 
 
 def central_differences(function, theta):
-    """∂function/∂θ_i for each parameter by central differences of relative step
-    :data:`RELATIVE_STEP` (a list, one array per parameter)."""
+    """∂function/∂θ_i for each parameter of θ = (Γm, H), by central differences of
+    :data:`RELATIVE_STEP` × max(|θ_i|, |Γm|) (a list, one array per parameter).
+
+    The floor Γm of the step (a heating of one phonon per relaxation time of the
+    bare mode) serves a bath near zero temperature, where H = Γm·n_th vanishes; a
+    step that would make H negative, outside the model, is taken forward only.
+    """
+    theta = np.asarray(theta, dtype=float)
     out = []
     for i in range(len(theta)):
-        h = RELATIVE_STEP * theta[i]
+        h = RELATIVE_STEP * max(abs(theta[i]), abs(theta[0]))
         up, down = theta.copy(), theta.copy()
         up[i] += h
-        down[i] -= h
-        out.append((function(up) - function(down)) / (2 * h))
+        if i == 0 or theta[i] - h >= 0:
+            down[i] -= h
+            out.append((function(up) - function(down)) / (2 * h))
+        else:
+            out.append((function(up) - function(theta)) / h)
     return out
+
 
 def segment_models(scenario, mode=0):
     """``(SegmentModel per segment, Γm, H)`` of a scheduled scenario's first mode."""
