@@ -97,7 +97,7 @@ def test_channel_moments_follow_the_exact_covariance_flow(ensemble):
         assert np.all(np.abs(sample_mean) < SIGMAS * np.sqrt(np.diag(cov[k]) / RECORDS)), s
         got = d.T @ d / RECORDS  # about the exact mean: unbiased
         var = np.diag(cov[k])
-        error = np.sqrt((np.outer(var, var) + cov[k] ** 2) / RECORDS)  # Isserlis
+        error = np.sqrt((np.outer(var, var) + cov[k] ** 2) / RECORDS)  # Isserlis, Biometrika 12, 134 (1918) (from memory)
         z = (got - cov[k]) / error
         assert np.abs(z).max() < SIGMAS, (s, z)
     # the test can fail: the hot drum (once the cavity field has followed it, after a

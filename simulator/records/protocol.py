@@ -13,6 +13,10 @@ linear model dx = A x dt + B dW is fixed, so
 - the state is carried over from one segment to the next (the models of the
   segments must share their state layout, which a change of parameters
   keeps; a change that adds or removes states is refused);
+- with several detected tones (``detection.tones``) every segment runs its
+  joint model of all channels (:attr:`simulator.model.system.System.channels`,
+  one I/Q pair per tone), as a stationary record does; the segments must keep
+  the tones and each channel's scale;
 - the mean obeys dm/dt = A m, so a coherent kick at a segment's start decays
   with the segment's effective damping and rotates at its effective
   frequency; the record carries it exactly, since the recursion is linear;
