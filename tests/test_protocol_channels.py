@@ -97,7 +97,8 @@ def test_channel_moments_follow_the_exact_covariance_flow(ensemble):
         assert np.all(np.abs(sample_mean) < SIGMAS * np.sqrt(np.diag(cov[k]) / RECORDS)), s
         got = d.T @ d / RECORDS  # about the exact mean: unbiased
         var = np.diag(cov[k])
-        error = np.sqrt((np.outer(var, var) + cov[k] ** 2) / RECORDS)  # Isserlis, Biometrika 12, 134 (1918) (from memory)
+        # Var of a Gaussian sample covariance: Isserlis, Biometrika 12, 134 (1918) (from memory)
+        error = np.sqrt((np.outer(var, var) + cov[k] ** 2) / RECORDS)
         z = (got - cov[k]) / error
         assert np.abs(z).max() < SIGMAS, (s, z)
     # the test can fail: the hot drum (once the cavity field has followed it, after a
