@@ -160,3 +160,30 @@ def test_a_segment_must_keep_the_channels_and_their_scales():
         start="steady", segments=((1e-5, None, 0.0),))), source="one.toml")).chain
     with pytest.raises(InputError, match="'late' changes the detected tones.*'red', 'blue'"):
         _check_layout(two, one, "late")
+
+
+def test_the_commands_name_the_channels_of_a_scheduled_record(tmp_path, capsys):
+    """The example of docs/records.md ("Schedules", several detected tones): the bundled
+    drum's two probes recorded while the cooling tone goes off; `record` names both
+    channels and writes their truths and the timeline, `inspect` names the channel its
+    protocol bound reads."""
+    from simulator.cli.parser import main
+    from simulator.io.recordfile import load_record
+    from simulator.io.timelinefile import read_timeline
+
+    text = open("scenarios/drum_two_probes.toml").read()
+    text = text.replace('tone = "blue_probe"', 'tones = ["red_probe", "blue_probe"]')
+    text = text.replace("duration_s = 0.001\n", "") + schedule_text(
+        start="thermal", segments=((2e-4, None, 0.0), (3e-4, 0.0, 0.0)))
+    scenario, out = tmp_path / "drum.toml", tmp_path / "drum.h5"
+    scenario.write_text(text)
+    assert main(["record", str(scenario), "--out", str(out), "--quiet"]) == 0
+    assert "detected tones, one I/Q pair each: red_probe, blue_probe" in capsys.readouterr().out
+    record, timeline = load_record(out), read_timeline(out)
+    assert [c["tone"] for c in record.truth.channels] == ["red_probe", "blue_probe"]
+    assert timeline.segment_names == ("s0", "s1")
+    # cooled by the drive, then heating towards the bath once it is off
+    assert timeline.occupation[-1, 0] > 10 * timeline.occupation[len(timeline.times_s) // 2, 0]
+    assert main(["inspect", str(scenario)]) == 0
+    assert ("protocol ([schedule], first mode, the channel of the detected tone red_probe)"
+            in capsys.readouterr().out)

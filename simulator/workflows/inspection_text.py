@@ -201,7 +201,9 @@ class Inspection:
         if self.quadratures is not None:
             lines += [""] + self.quadratures.text() + _resolution_text(self.resolution)
         if self.protocol is not None:
-            lines += ["", "protocol ([schedule], first mode)", f"  {self.protocol.text()}"]
+            seen = (f", the channel of the detected tone {d['detected_tone']}"
+                    if self.tone_sets and d.get("detected_tone") else "")  # several recorded
+            lines += ["", f"protocol ([schedule], first mode{seen})", f"  {self.protocol.text()}"]
         if d["regime"] is not None:
             lines += ["", f"regime (linear engine validity)  {d['regime']['level']}",
                       f"  {d['regime']['reason']}"]
