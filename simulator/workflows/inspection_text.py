@@ -201,8 +201,8 @@ class Inspection:
         if self.quadratures is not None:
             lines += [""] + self.quadratures.text() + _resolution_text(self.resolution)
         if self.protocol is not None:
-            seen = (f", the channel of the detected tone {d['detected_tone']}"
-                    if self.tone_sets and d.get("detected_tone") else "")  # several recorded
+            names = detected_tone_names(self.scenario)  # several recorded: the first's
+            seen = f", the channel of the detected tone {names[0]}" if len(names) > 1 else ""
             lines += ["", f"protocol ([schedule], first mode{seen})", f"  {self.protocol.text()}"]
         if d["regime"] is not None:
             lines += ["", f"regime (linear engine validity)  {d['regime']['level']}",
