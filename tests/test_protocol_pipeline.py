@@ -72,6 +72,8 @@ def sequential(plan, chunk):
                 kernels.full_state_step(phi, gam, seg.noise_factor, state, xi,
                                         y[pos:pos + len(xi)], plan.watched,
                                         mech[pos:pos + len(xi)])
+            if seg.chain.tones:  # several detected tones: each pair at its own scale
+                y = y * (seg.chain.output_volts_per_unit() / seg.chain.volts_per_unit)
             if seg.chain.receiver == "if":
                 y = kernels.rotate_to_carrier(y, first, cycles)
             if tone is not None:

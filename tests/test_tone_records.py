@@ -280,10 +280,14 @@ def test_trial_runs_an_estimator_per_channel_or_on_all(tmp_path):
 
 
 def test_one_channel_products_refuse_several_detected_tones():
-    """A schedule still records one tone (averaged spectra of several: test_synthetic_channels)."""
-    with pytest.raises(InputError, match="holds one detected tone; this scenario asks for 2"):
-        simulate_record(two_probes(extra="[schedule]\n[[schedule.segments]]\n"
-                                   "duration_s = 1e-5\n"), workers=1)
+    """A schedule records every tone (tests/test_protocol_channels.py); its expected
+    spectrogram holds one channel and says so."""
+    from simulator.analysis.spectrogram import expected_sideband_power
+
+    scheduled = two_probes(extra="[schedule]\n[[schedule.segments]]\nduration_s = 1e-5\n")
+    assert simulate_record(scheduled, workers=1).tones == ("red", "blue")
+    with pytest.raises(InputError, match="spectrogram holds one channel; this record holds 2"):
+        expected_sideband_power(scheduled, OMEGA_HZ, 16)
 
 
 def test_record_command_names_the_tones_and_writes_both_modes(tmp_path, capsys):

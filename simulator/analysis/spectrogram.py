@@ -155,6 +155,11 @@ def _as_plan(plan):
         raise InputError("the expected spectrogram of an if record (a real record on a "
                          "carrier) is not computed; expected an iq or homodyne record "
                          "(record.kind)")
+    if plan.chain.tones:
+        raise InputError(f"the expected spectrogram holds one channel; this record holds "
+                         f"{len(plan.chain.tones)} detected tones "
+                         f"(detection.tones = {list(plan.chain.tones)!r}); expected "
+                         "detection.tone = one of them")
     return plan
 
 

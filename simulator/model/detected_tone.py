@@ -125,17 +125,6 @@ def _detected_outputs(model, k):
     return dataclasses.replace(model, C=model.C[rows], D=model.D[rows], outputs=OUTPUTS)
 
 
-def require_one_detected_tone(scenario, what):
-    """Refuse ``detection.tones`` with several names for ``what``, which records one
-    channel only (:class:`~simulator.errors.InputError` naming both)."""
-    names = detected_tone_names(scenario)
-    if len(names) > 1:
-        raise InputError(f"{what} holds one detected tone; this scenario asks for "
-                         f"{len(names)} (detection.tones = {list(names)!r}); expected "
-                         "detection.tone = one of them, or a stationary record or "
-                         "averaged spectrum, which hold them all")
-
-
 def tone_indices(point, names):
     """Index in ``point.tones`` of every name in ``names`` (0: the drive, with one tone)."""
     known = [tone.name for tone in point.tones]

@@ -13,6 +13,10 @@ linear model dx = A x dt + B dW is fixed, so
 - the state is carried over from one segment to the next (the models of the
   segments must share their state layout, which a change of parameters
   keeps; a change that adds or removes states is refused);
+- with several detected tones (``detection.tones``) every segment runs its
+  joint model of all channels (:attr:`simulator.model.system.System.channels`,
+  one I/Q pair per tone), as a stationary record does; the segments must keep
+  the tones and each channel's scale;
 - the mean obeys dm/dt = A m, so a coherent kick at a segment's start decays
   with the segment's effective damping and rotates at its effective
   frequency; the record carries it exactly, since the recursion is linear;
@@ -167,6 +171,11 @@ def segment_systems(scenario):
 def _check_layout(first, chain, name):
     """Refuse a segment whose detection chain differs from the first in layout or scale."""
     ref = first
+    if chain.tones != ref.tones:
+        raise InputError(f"schedule segment {name!r} changes the detected tones (channels "
+                         f"{list(chain.tones)!r}, the first segment's {list(ref.tones)!r}); "
+                         "expected every segment to record the same tones in the same "
+                         "order (detection.tones)")
     if chain.model.states != ref.model.states or chain.model.outputs != ref.model.outputs:
         extra = sorted(set(chain.model.states) ^ set(ref.model.states))
         raise InputError(
@@ -177,10 +186,12 @@ def _check_layout(first, chain, name):
             or chain.carrier_rad_s != ref.carrier_rad_s):
         raise InputError(f"schedule segment {name!r} changes the receiver or the record "
                          "kind; expected the detection scheme to stay the same in a record")
-    if abs(chain.volts_per_unit - ref.volts_per_unit) > VOLTS_RTOL * abs(ref.volts_per_unit):
+    volts, ref_volts = chain.output_volts_per_unit(), ref.output_volts_per_unit()
+    if np.any(np.abs(volts - ref_volts) > VOLTS_RTOL * np.abs(ref_volts)):
         raise InputError(f"schedule segment {name!r} changes the detection gain (volts per "
-                         "shot-noise unit); expected the calibration to stay the same in "
-                         "one record")
+                         "shot-noise unit) of a channel; expected the calibration of every "
+                         "channel to stay the same in one record (a detected tone's "
+                         "frequency sets its scale)")
 
 
 def plan_protocol(scenario, *, seed=None):
@@ -207,7 +218,7 @@ def plan_protocol(scenario, *, seed=None):
     first_plan = plan_record(stable, seed=seed, form="full-state")
     store = first_plan.scenario.record.store_mechanics
     det, dig = scenario.detection, scenario.digitizer
-    chains = [system.chain for _, system in systems]
+    chains = [system.channels or system.chain for _, system in systems]  # every tone
     for (name, _), chain in zip(systems, chains, strict=True):
         _check_layout(chains[0], chain, name)
     fs = dig.sample_rate_hz or max(automatic_sample_rate(c, det.intermediate_frequency_hz)
@@ -290,6 +301,8 @@ def _mean_output_peak(segment, mean):
 
     Exact (the full-state kernel with no noise), so the automatic full scale
     holds a kicked mode's sideband without wasting the digitiser's range.
+    With several detected tones each channel counts at its own scale, given
+    in the first tone's units (those of ``chain.volts_per_unit``).
     """
     from simulator.records.kernels import full_state_step
 
@@ -305,6 +318,8 @@ def _mean_output_peak(segment, mean):
         y = np.empty((count, p))
         full_state_step(phi, gam, silent, state, np.zeros((count, 1)), y,
                         np.empty(0, dtype=np.int64), np.empty((count, 0)))
+        if segment.chain.tones:  # several detected tones: each channel's scale
+            y *= segment.chain.output_volts_per_unit() / segment.chain.volts_per_unit
         if segment.chain.receiver == "if":  # r = 2 Re[e^{iφ} ρ]
             peak = max(peak, 2.0 * float(np.hypot(y[:, 0], y[:, 1]).max()))
         else:

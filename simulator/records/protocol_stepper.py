@@ -62,7 +62,8 @@ def segment_tone(plan):
              for s in plan.segments]
     if all(t is None for t in tones):
         return None
-    shape = (2,) if plan.chain.receiver == "iq" else ()
+    p = len(plan.chain.model.outputs)  # iq: (I, Q) of every detected tone
+    shape = (p,) if plan.chain.receiver == "iq" else ()
 
     def signal(first, count):
         out = np.zeros((count,) + shape)

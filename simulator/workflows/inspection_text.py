@@ -201,7 +201,9 @@ class Inspection:
         if self.quadratures is not None:
             lines += [""] + self.quadratures.text() + _resolution_text(self.resolution)
         if self.protocol is not None:
-            lines += ["", "protocol ([schedule], first mode)", f"  {self.protocol.text()}"]
+            names = detected_tone_names(self.scenario)  # several recorded: the first's
+            seen = f", the channel of the detected tone {names[0]}" if len(names) > 1 else ""
+            lines += ["", f"protocol ([schedule], first mode{seen})", f"  {self.protocol.text()}"]
         if d["regime"] is not None:
             lines += ["", f"regime (linear engine validity)  {d['regime']['level']}",
                       f"  {d['regime']['reason']}"]

@@ -115,10 +115,8 @@ def scheduled_record(scenario, *, seed, duration_s, form, store_mechanics, chunk
     """
     import dataclasses
 
-    from simulator.model.detected_tone import require_one_detected_tone
     from simulator.records.protocol_generate import generate_protocol_record
 
-    require_one_detected_tone(scenario, "a scheduled record ([schedule])")
     if duration_s is not None and duration_s != scenario.record.duration_s:
         raise InputError(f"duration = {duration_s!r} s with a [schedule]: a scheduled "
                          "record lasts the sum of its segments' duration_s; leave the "

@@ -235,7 +235,8 @@ def _record_part(system, out, wrote, figures, progress):
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         record = simulate_record(system, out=path, progress=progress, overwrite=True)
-    if system.scenario.schedule is not None and record.kind == "iq":
+    # the protocol figure and its expected power hold one channel (not several tones)
+    if system.scenario.schedule is not None and record.kind == "iq" and not record.tones:
         _protocol_figure(system.scenario, path, wrote(out / "record_protocol.png"),
                          figures)
     elif system.scenario.schedule is None:  # a stationary record against its spectrum
