@@ -25,8 +25,9 @@ from conftest import mode, scenario_with_coupling
 
 from simulator.errors import InputError, ScenarioError
 from simulator.linear.steady_state import steady_state
-from simulator.records.generate import MemorySink, generate_record
+from simulator.records.generate import FULL_SCALE_SIGMAS, MemorySink, generate_record
 from simulator.records.protocol import (
+    TRANSIENT_SAMPLES,
     covariance_flow,
     covariance_flow_van_loan,
     plan_protocol,
@@ -230,3 +231,22 @@ def assert_ensemble_moments(q, plan, samples):
     assert np.all(np.abs(z_mean) < Z_LIMIT), z_mean
     assert np.all(np.abs(z_var) < Z_LIMIT), z_var
     return sigma2
+
+
+def test_the_automatic_full_scale_holds_a_start_hotter_than_every_segment():
+    """A mode started at 20 000 phonons and cooled to a few: the steady states alone
+    set a full scale the first samples exceed (they clipped). The full scale now
+    follows each segment's loudest state, here just after the hot start, once the
+    cavity follows the mode: none of the record clips, and the full scale is that of
+    the start's exact sample variance, not of the steady state's."""
+    hot = make([{"duration_s": 3e-4}], start="occupation", start_occupation=2e4)
+    plan = plan_protocol(hot)
+    record, _ = generate_protocol_record(hot, seed=3)
+    assert record.clipped_samples == 0
+    seg = plan.segments[0]
+    steady = FULL_SCALE_SIGMAS * seg.chain.record_std(seg.discrete)
+    assert plan.full_scale_v > 10 * steady  # the 2e4-phonon start, not the cooled state
+    _, cov = state_moments(plan, [TRANSIENT_SAMPLES[4]])
+    at_start = FULL_SCALE_SIGMAS * seg.chain.record_std(
+        dataclasses.replace(seg.discrete, state_covariance=cov[0]))
+    assert plan.full_scale_v >= at_start

@@ -245,14 +245,13 @@ def plan_protocol(scenario, *, seed=None):
             kick=float(np.sqrt(2.0 * spec.excite_phonons))))
         first += n
     mean0, cov0 = start_state(scenario.schedule, segments[0])
-    timeline, peaks, ends = exact_timeline(segments, mean0, cov0,
+    timeline, peaks, louds = exact_timeline(segments, mean0, cov0,
                                            scenario.schedule.truth_points, fs)
-    full_scale = dig.full_scale_v or max(  # an unstable segment: its variance at the end
-        FULL_SCALE_SIGMAS * s.chain.record_std(s.discrete if s.system.stable else
-                                               dataclasses.replace(s.discrete,
-                                                                   state_covariance=end))
+    full_scale = dig.full_scale_v or max(  # each segment's loudest state (its transient)
+        FULL_SCALE_SIGMAS * s.chain.record_std(dataclasses.replace(s.discrete,
+                                                                   state_covariance=loud))
         + (tone_amplitude(s.chain, s.system.scenario) + peak) * s.chain.volts_per_unit
-        for s, peak, end in zip(segments, peaks, ends, strict=True))
+        for s, peak, loud in zip(segments, peaks, louds, strict=True))
     fields = {f.name: getattr(first_plan, f.name) for f in dataclasses.fields(RecordPlan)}
     truth = dataclasses.replace(first_plan.truth, calibration=dict(
         first_plan.truth.calibration, full_scale_v=float(full_scale)))
@@ -329,8 +328,30 @@ def _mean_output_peak(segment, mean):
     return peak
 
 
+# sample offsets after a segment's start where its transient is weighed for the full scale
+TRANSIENT_SAMPLES = tuple(2 ** k for k in range(13))  # 1 … 4096: the cavity's catching up
+
+
+def loudest_covariance(seg, v0, fs):
+    """The state covariance of segment ``seg`` (started from ``v0``) whose samples are
+    largest: among its steady state (a stable segment), its start, its end and
+    :data:`TRANSIENT_SAMPLES` after its start. A start hotter than the segment's steady
+    state (``start = "thermal"`` before cooling, a given occupation) is loudest soon
+    after the start, once the cavity follows the hot mode; an unstable segment at its
+    end. The automatic full scale is set from it.
+    """
+    candidates = [v0, segment_flow(seg, v0, seg.n_samples / fs)[0]]
+    candidates += [segment_flow(seg, v0, k / fs)[0] for k in TRANSIENT_SAMPLES
+                   if k < seg.n_samples]
+    if seg.system.stable:
+        candidates.append(seg.discrete.state_covariance)
+    return max(candidates, key=lambda v: seg.chain.record_std(
+        dataclasses.replace(seg.discrete, state_covariance=v)))
+
+
 def exact_timeline(segments, mean, cov, points, fs):
-    """The :class:`Timeline` from the exact mean and covariance flow; peak mean outputs."""
+    """The :class:`Timeline` from the exact mean and covariance flow; each segment's peak
+    mean output and loudest state covariance (:func:`loudest_covariance`)."""
     from simulator.linear.steady_state import steady_state
 
     modes = segments[0].system.point.modes
@@ -339,7 +360,7 @@ def exact_timeline(segments, mean, cov, points, fs):
     iq = [model0.index(f"{n}.q") for n in names]
     ip = [model0.index(f"{n}.p") for n in names]
     cavity = [model0.index(s) for s in ("cavity.X", "cavity.Y") if s in model0.states]
-    rows, peaks, ends = [], [], []
+    rows, peaks, louds = [], [], []
     for k, (seg, m0, v0) in enumerate(segment_starts(segments, mean, cov, fs)):
         peaks.append(_mean_output_peak(seg, m0))
         if seg.system.stable:
@@ -348,7 +369,7 @@ def exact_timeline(segments, mean, cov, points, fs):
             width = [m.effective_linewidth_hz for m in steady.modes]
         else:
             freq, width = effective_from_eigenvalues(seg.system)
-        ends.append(segment_flow(seg, v0, seg.n_samples / fs)[0])
+        louds.append(loudest_covariance(seg, v0, fs))
         for t in np.linspace(0.0, seg.n_samples / fs, points):
             v, e = segment_flow(seg, v0, t)
             m = e @ m0
@@ -364,5 +385,5 @@ def exact_timeline(segments, mean, cov, points, fs):
         times_s=np.array(cols[0]), segment=np.array(cols[1], dtype=np.int64),
         occupation=np.array(cols[2]), mean_q=np.array(cols[3]), mean_p=np.array(cols[4]),
         effective_frequency_hz=np.array(cols[5]), effective_linewidth_hz=np.array(cols[6]),
-        cavity_occupation=np.array(cols[7])), peaks, ends
+        cavity_occupation=np.array(cols[7])), peaks, louds
 
