@@ -18,16 +18,14 @@ import numpy as np
 import pytest
 
 from simulator.analysis.heating_likelihood import (
-    ScheduledBlocks,
     fit_heating,
     heating_likelihood,
     negative_log_likelihood,
     nominal_model,
-    scheduled_blocks,
-    switch_phases,
 )
 from simulator.analysis.protocol_bound import SegmentModel, heating_rate_bound
 from simulator.analysis.ringdown_likelihood import block_noise
+from simulator.analysis.sideband_blocks import ScheduledBlocks, scheduled_blocks, switch_phases
 from simulator.errors import InputError
 from simulator.scenario.loader import load_scenario
 from simulator.workflows.trial_verdicts import width_interval
@@ -205,13 +203,13 @@ def test_records_it_cannot_model_are_refused():
     scenario = short_protocol()
     kicked = dataclasses.replace(scenario, schedule=dataclasses.replace(
         scenario.schedule, segments=(dataclasses.replace(
-            scenario.schedule.segments[0], excite_phonons=1e4),)
+            scenario.schedule.segments[0], excite_phonons=1e4, excite_mode=1),)
         + scenario.schedule.segments[1:]))
     view = dict(samples=np.zeros(100, complex), kind="iq", scheme="heterodyne",
                 sample_rate_hz=4e6, intermediate_frequency_hz=0.0,
                 local_oscillator_side="above", volts_per_count=1.0,
                 shot_noise_per_count=1.0)
-    with pytest.raises(InputError, match="kicks the mode"):
+    with pytest.raises(InputError, match="kicks mechanical mode"):
         heating_likelihood(PublicRecord(scenario=kicked, **view))
     with pytest.raises(InputError, match=r"\[schedule\]"):
         heating_likelihood(PublicRecord(scenario=dataclasses.replace(scenario, schedule=None),
