@@ -62,14 +62,17 @@ def block_moments(blocks, params):
     return [np.array(x) for x in zip(*out, strict=True)]
 
 
-def draw_blocks(blocks, params, rng):
-    """Block means drawn from the model: a_{k+1} = ρ a_k + e_k, u_k = b a_k + f_k."""
+def draw_blocks(blocks, params, rng, kick=0j):
+    """Block means drawn from the model: a_{k+1} = ρ a_k + e_k, u_k = b a_k + f_k,
+    ``kick`` added to a at the blocks ``blocks.kicks``."""
     rho, b, q, obs, ef = block_moments(blocks, params)
     n = len(rho)
     z = (rng.standard_normal((3, n)) + 1j * rng.standard_normal((3, n))) / np.sqrt(2)
     a = np.sqrt(blocks.start_phonons(params[:2])) * z[0, 0]
     u = np.empty(n, complex)
     for k in range(n):
+        if k in blocks.kicks:
+            a += kick
         e = np.sqrt(q[k]) * z[1, k]
         corr = np.conj(ef[k]) / q[k]  # f = corr·e + independent rest, E[e f*] = ef
         u[k] = b[k] * a + corr * e + np.sqrt(obs[k] - abs(corr) ** 2 * q[k]) * z[2, k]
@@ -78,7 +81,15 @@ def draw_blocks(blocks, params, rng):
 
 
 def dense_nll(blocks, params):
-    """−ln L from the full covariance of the block means, built term by term:
+    """−ln L from the full covariance of the block means."""
+    cov = dense_covariance(blocks, params)
+    _, logdet = np.linalg.slogdet(cov)
+    u, n = blocks.u, len(blocks.u)
+    return float(n * np.log(np.pi) + logdet + np.real(np.conj(u) @ np.linalg.solve(cov, u)))
+
+
+def dense_covariance(blocks, params):
+    """Covariance of the block means, built term by term:
     E[u_j u_i*] = b_j (Π ρ) (ρ_i v_i b_i* + E[e_i f_i*]) for j > i."""
     rho, b, q, obs, ef = block_moments(blocks, params)
     n = len(rho)
@@ -93,9 +104,7 @@ def dense_nll(blocks, params):
             cov[j, i] = b[j] * carry
             cov[i, j] = np.conj(cov[j, i])
             carry = rho[j] * carry
-    _, logdet = np.linalg.slogdet(cov)
-    u = blocks.u
-    return float(n * np.log(np.pi) + logdet + np.real(np.conj(u) @ np.linalg.solve(cov, u)))
+    return cov
 
 
 def two_segment_blocks(u=None):
