@@ -19,6 +19,14 @@ fitted with θ: the phase φ_s of the line in the record (the cavity's phase at
 probe) and the floor's scale c_s (a block mean folds in the background of its
 whole band, which is not white: +4 % in the example's cooling segments).
 
+A kick (``excite_phonons``) adds a deterministic mean to a at its segment's
+start, which decays and rotates with the moments of every later block; the
+filter runs on the residual and the kick's complex size is profiled out by
+generalised least squares (:func:`simulator.analysis.ringdown_likelihood.profile_mean`;
+size and phase fitted, as a piezo's kick is not calibrated to the precision
+its decay resolves). The blocks of the detection's settling after a kick are
+left out (:func:`simulator.analysis.sideband_blocks.kick_settling`).
+
 The block means follow one linear state-space model whose moments switch
 with the segment (the exact integrate-and-dump moments of
 :func:`simulator.analysis.ringdown_likelihood.block_noise` for the diffusion
