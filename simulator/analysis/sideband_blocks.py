@@ -127,7 +127,8 @@ def switch_phases(blocks):
     +f_m moves with the detuning: the amplitude jumps by e^{i(φ_B − φ_A)} at a
     switch from A to B (about 1 rad for the example's resonant probe). A name
     that never meets the first is reached through the names between (ring-down,
-    cooling, probe: the probe's phase through the cooling's).
+    cooling, probe: the probe's phase through the cooling's); a switch into a
+    kicked segment is passed over, its step being mostly the kick's.
     """
     bounds, first = [], 0  # [segment index, first block, end] of every segment
     for index, _, count in blocks.runs:
@@ -139,7 +140,7 @@ def switch_phases(blocks):
     steps = {}
     for (i, _, end), (j, start, _) in zip(bounds[:-1], bounds[1:], strict=False):
         a, b = blocks.models[i].name, blocks.models[j].name
-        if a != b:
+        if a != b and start not in blocks.kicks:  # a kick's own step says nothing of φ
             steps[(a, b)] = steps.get((a, b), 0j) + blocks.u[start] * np.conj(blocks.u[end - 1])
     phase = {blocks.names[0]: 0.0}
     while len(phase) < len(blocks.names):  # along the switches, from the first name on
