@@ -151,3 +151,17 @@ def test_the_kick_determines_the_mechanical_linewidth(kicked_records):
     limit = thermal_limit(theta0[0], theta0[1] / theta0[0], ring.excite_phonons,
                           ring.duration_s)
     assert limit / 2 < np.median(gamma[:, 1]) < 2 * limit
+
+
+def test_the_record_keeps_the_files_own_values():
+    """A first segment with changes (the resonant ring-down) leaves the record's
+    scenario at the file's values, which every estimator changes per segment itself:
+    the cooling segment keeps its red detuning and its optical damping."""
+    from simulator.workflows.record import simulate_record
+
+    scenario = small_protocol()
+    record = simulate_record(scenario, seed=1, workers=1)
+    assert record.scenario.drive.detuning_hz == scenario.drive.detuning_hz == -1.5e6
+    models, *_ = nominal_model(record.scenario, record.sample_rate_hz)
+    assert models[0].optical_damping == pytest.approx(0.0, abs=1e-6)
+    assert models[1].optical_damping > 1e4  # Γopt ≈ 2π × 3.1 kHz at −Ωm
