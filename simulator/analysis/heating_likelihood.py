@@ -76,6 +76,7 @@ PHASE_STEP = 0.05  # rad: the first search's step in a segment's phase (our choi
 FLOOR_STEP = 0.01  # the first search's step in a floor's scale (our choice)
 SMALLEST_RATE = 1e-9  # 1/s: Γ_s = 0 exactly is taken as this (the moments are continuous)
 HESSIAN_STEP = 0.3  # finite-difference step of the observed information, in errors
+PHASE_GRID = 8  # points around the circle of a phase's second start (our choice)
 
 
 def negative_log_likelihood(blocks, params):
@@ -182,6 +183,23 @@ def fit_heating(blocks, params0, scale0):
     return params, cov
 
 
+def scan_phases(blocks, params):
+    """``params`` with each line phase in turn moved to the best of
+    :data:`PHASE_GRID` points around the circle (−ln L the judge).
+
+    A phase whose start comes from one switch out of a weak amplitude (the
+    probe after a short cooling) can start on the far side of −ln L's ridge in
+    that phase, where Newton's method runs to no maximum.
+    """
+    params = np.array(params, dtype=float)
+    for i in range(2, len(blocks.names) + 1):
+        trials = [params.copy() for _ in range(PHASE_GRID)]
+        for k, trial in enumerate(trials):
+            trial[i] += 2 * np.pi * k / PHASE_GRID
+        params = min(trials, key=lambda t: negative_log_likelihood(blocks, t))
+    return params
+
+
 def difference_steps(params, scale):
     """:data:`HESSIAN_STEP` units per axis, but never more than half the way to H = 0
     (where the model ends)."""
@@ -233,10 +251,13 @@ def heating_likelihood(record):
     blocks = scheduled_blocks(record.samples, scenario, block, models, shifts, fs,
                               theta0[1] / theta0[0], kick_settling(scenario))
     phases = switch_phases(blocks)
-    params, cov = fit_heating(blocks, np.concatenate([theta0, phases,
-                                                      np.ones(len(blocks.names))]),
-                              np.concatenate([scale0, np.full(len(phases), PHASE_STEP),
-                                              np.full(len(blocks.names), FLOOR_STEP)]))
+    start = np.concatenate([theta0, phases, np.ones(len(blocks.names))])
+    steps = np.concatenate([scale0, np.full(len(phases), PHASE_STEP),
+                            np.full(len(blocks.names), FLOOR_STEP)])
+    try:
+        params, cov = fit_heating(blocks, start, steps)
+    except InputError:  # stopped off the maximum: start again from the best phases
+        params, cov = fit_heating(blocks, scan_phases(blocks, start), steps)
     theta, cov = params[:2], cov[:2, :2]
     durations = [round(s.duration_s * fs) / fs for s in scenario.schedule.segments]
 
