@@ -18,16 +18,14 @@ import numpy as np
 import pytest
 
 from simulator.analysis.heating_likelihood import (
-    ScheduledBlocks,
     fit_heating,
     heating_likelihood,
     negative_log_likelihood,
     nominal_model,
-    scheduled_blocks,
-    switch_phases,
 )
 from simulator.analysis.protocol_bound import SegmentModel, heating_rate_bound
 from simulator.analysis.ringdown_likelihood import block_noise
+from simulator.analysis.sideband_blocks import ScheduledBlocks, scheduled_blocks, switch_phases
 from simulator.errors import InputError
 from simulator.scenario.loader import load_scenario
 from simulator.workflows.trial_verdicts import width_interval
@@ -64,14 +62,17 @@ def block_moments(blocks, params):
     return [np.array(x) for x in zip(*out, strict=True)]
 
 
-def draw_blocks(blocks, params, rng):
-    """Block means drawn from the model: a_{k+1} = ρ a_k + e_k, u_k = b a_k + f_k."""
+def draw_blocks(blocks, params, rng, kick=0j):
+    """Block means drawn from the model: a_{k+1} = ρ a_k + e_k, u_k = b a_k + f_k,
+    ``kick`` added to a at the blocks ``blocks.kicks``."""
     rho, b, q, obs, ef = block_moments(blocks, params)
     n = len(rho)
     z = (rng.standard_normal((3, n)) + 1j * rng.standard_normal((3, n))) / np.sqrt(2)
     a = np.sqrt(blocks.start_phonons(params[:2])) * z[0, 0]
     u = np.empty(n, complex)
     for k in range(n):
+        if k in blocks.kicks:
+            a += kick
         e = np.sqrt(q[k]) * z[1, k]
         corr = np.conj(ef[k]) / q[k]  # f = corr·e + independent rest, E[e f*] = ef
         u[k] = b[k] * a + corr * e + np.sqrt(obs[k] - abs(corr) ** 2 * q[k]) * z[2, k]
@@ -80,7 +81,15 @@ def draw_blocks(blocks, params, rng):
 
 
 def dense_nll(blocks, params):
-    """−ln L from the full covariance of the block means, built term by term:
+    """−ln L from the full covariance of the block means."""
+    cov = dense_covariance(blocks, params)
+    _, logdet = np.linalg.slogdet(cov)
+    u, n = blocks.u, len(blocks.u)
+    return float(n * np.log(np.pi) + logdet + np.real(np.conj(u) @ np.linalg.solve(cov, u)))
+
+
+def dense_covariance(blocks, params):
+    """Covariance of the block means, built term by term:
     E[u_j u_i*] = b_j (Π ρ) (ρ_i v_i b_i* + E[e_i f_i*]) for j > i."""
     rho, b, q, obs, ef = block_moments(blocks, params)
     n = len(rho)
@@ -95,9 +104,7 @@ def dense_nll(blocks, params):
             cov[j, i] = b[j] * carry
             cov[i, j] = np.conj(cov[j, i])
             carry = rho[j] * carry
-    _, logdet = np.linalg.slogdet(cov)
-    u = blocks.u
-    return float(n * np.log(np.pi) + logdet + np.real(np.conj(u) @ np.linalg.solve(cov, u)))
+    return cov
 
 
 def two_segment_blocks(u=None):
@@ -205,13 +212,13 @@ def test_records_it_cannot_model_are_refused():
     scenario = short_protocol()
     kicked = dataclasses.replace(scenario, schedule=dataclasses.replace(
         scenario.schedule, segments=(dataclasses.replace(
-            scenario.schedule.segments[0], excite_phonons=1e4),)
+            scenario.schedule.segments[0], excite_phonons=1e4, excite_mode=1),)
         + scenario.schedule.segments[1:]))
     view = dict(samples=np.zeros(100, complex), kind="iq", scheme="heterodyne",
                 sample_rate_hz=4e6, intermediate_frequency_hz=0.0,
                 local_oscillator_side="above", volts_per_count=1.0,
                 shot_noise_per_count=1.0)
-    with pytest.raises(InputError, match="kicks the mode"):
+    with pytest.raises(InputError, match="kicks mechanical mode"):
         heating_likelihood(PublicRecord(scenario=kicked, **view))
     with pytest.raises(InputError, match=r"\[schedule\]"):
         heating_likelihood(PublicRecord(scenario=dataclasses.replace(scenario, schedule=None),

@@ -19,6 +19,14 @@ fitted with θ: the phase φ_s of the line in the record (the cavity's phase at
 probe) and the floor's scale c_s (a block mean folds in the background of its
 whole band, which is not white: +4 % in the example's cooling segments).
 
+A kick (``excite_phonons``) adds a deterministic mean to a at its segment's
+start, which decays and rotates with the moments of every later block; the
+filter runs on the residual and the kick's complex size is profiled out by
+generalised least squares (:func:`simulator.analysis.ringdown_likelihood.profile_mean`;
+size and phase fitted, as a piezo's kick is not calibrated to the precision
+its decay resolves). The blocks of the detection's settling after a kick are
+left out (:func:`simulator.analysis.sideband_blocks.kick_settling`).
+
 The block means follow one linear state-space model whose moments switch
 with the segment (the exact integrate-and-dump moments of
 :func:`simulator.analysis.ringdown_likelihood.block_noise` for the diffusion
@@ -49,113 +57,26 @@ the rate equation from the start) and Γ_s/2π follow from θ̂, their errors
 from its covariance (delta method).
 """
 
-import dataclasses
-
 import numpy as np
 
 from simulator.analysis.newton import derivatives, precision_step
+from simulator.analysis.sideband_blocks import (
+    block_length,
+    kick_settling,
+    scheduled_blocks,
+    switch_phases,
+)
 from simulator.errors import InputError
 
-BLOCK_RESOLUTION = 0.5  # block length × ω_c: the force noise is resolved (our choice)
 NEWTON_STEPS = 8  # most Newton steps of the fit
 HALVINGS = 12  # most halvings of a step that does not lower −ln L
 QUADRATIC = 1.0  # a Newton decrement below this keeps the Hessian (chord steps)
 CONVERGED = 1e-4  # Newton decrement g·Δ below which the fit stops (in ln L)
-NULL_LEAK = 1e-3  # amplitude of the Stokes line a block mean may pass (our choice)
 PHASE_STEP = 0.05  # rad: the first search's step in a segment's phase (our choice)
 FLOOR_STEP = 0.01  # the first search's step in a floor's scale (our choice)
 SMALLEST_RATE = 1e-9  # 1/s: Γ_s = 0 exactly is taken as this (the moments are continuous)
 HESSIAN_STEP = 0.3  # finite-difference step of the observed information, in errors
-
-
-@dataclasses.dataclass(frozen=True, kw_only=True)
-class ScheduledBlocks:
-    """Block means of a scheduled record and what each run of blocks belongs to.
-
-    ``runs`` holds ``(segment index, spacing_s, count)``: ``count`` blocks of
-    ``spacing_s`` seconds in segment ``index`` of ``models`` (a segment's
-    samples left over after its whole blocks make one shorter block).
-    """
-
-    u: np.ndarray
-    runs: tuple
-    models: tuple  # protocol_bound.SegmentModel of each segment
-    names: tuple  # segment names in order of first appearance (the first's phase is 0)
-    shifts: tuple  # δ_s (rad/s): the line's offset from the demodulation frequency
-    start: str  # schedule.start
-    start_occupation: float  # n at the first sample unless the start is ``steady``
-    sample_rate_hz: float
-
-    def start_phonons(self, theta):
-        """n at the record's first sample: the first segment's n_∞ (``steady``; ∞ if it
-        does not relax), else the known start (the nominal bath's or the schedule's)."""
-        if self.start != "steady":
-            return self.start_occupation
-        first = self.models[0]
-        rate = theta[0] + first.optical_damping
-        return (theta[1] + first.optical_heating) / rate if rate > 0 else np.inf
-
-
-def block_length(models, theta, sample_rate_hz, frequency_hz):
-    """Samples per block: at most :data:`BLOCK_RESOLUTION`/ω_c for every segment (the
-    block moments are exact for any Γ_s Δ), with the Stokes image in a null.
-
-    The block mean at +f passes the Stokes line at −f by sinc(2fL/fs); the
-    longest length within the limit whose leak is below :data:`NULL_LEAK` is
-    taken, else the shortest up to twice the limit, else the best of
-    :func:`simulator.analysis.ringdown.mirror_null_block`.
-    """
-    from simulator.analysis.ringdown import mirror_null_block
-
-    gamma_m, heating = theta
-    longest = min(BLOCK_RESOLUTION / np.sqrt(m.gain * (heating + m.optical_heating) / m.floor)
-                  for m in models)
-    target = max(1, int(longest * sample_rate_hz))
-    lengths = np.arange(1, 2 * target + 1)
-    cycles = 2.0 * frequency_hz * lengths / sample_rate_hz
-    good = lengths[np.abs(np.sin(np.pi * cycles)) / np.maximum(cycles, 1.0) < NULL_LEAK]
-    if np.any(good <= target):
-        return int(good[good <= target].max())
-    if good.size:
-        return int(good.min())
-    return mirror_null_block(target, sample_rate_hz, frequency_hz)
-
-
-def scheduled_blocks(z, scenario, block_samples, models, shifts, sample_rate_hz,
-                     bath_occupation):
-    """:class:`ScheduledBlocks` of record ``z`` demodulated at the first mode's frequency.
-
-    A ``thermal`` start is at ``bath_occupation``: the nominal n_th of the
-    scenario (the cryostat's temperature), known like the schedule itself, so
-    that the start does not tie H to Γm.
-    """
-    from simulator.analysis.ringdown import demodulated_amplitude
-
-    fs, f = sample_rate_hz, scenario.mechanics[0].frequency_hz
-    z = np.asarray(z)
-    parts, runs, first = [], [], 0
-    for i, segment in enumerate(scenario.schedule.segments):
-        n = int(round(segment.duration_s * fs))
-        whole = (n // block_samples) * block_samples
-        pieces = [(block_samples, whole)] + ([(n - whole, n - whole)] if n > whole else [])
-        start = first
-        for size, length in pieces:
-            if length == 0:
-                continue
-            _, u = demodulated_amplitude(z[start:start + length], fs, f, size)
-            parts.append(u * np.exp(-2j * np.pi * f * start / fs))  # one phase for all
-            runs.append((i, size / fs, len(u)))
-            start += length
-        first += n
-    if first > len(z):
-        raise InputError(f"the record has {len(z)} samples; its schedule needs {first}")
-    schedule = scenario.schedule
-    return ScheduledBlocks(u=np.concatenate(parts), runs=tuple(runs), models=tuple(models),
-                           names=tuple(dict.fromkeys(m.name for m in models)),
-                           shifts=tuple(shifts), start=schedule.start,
-                           start_occupation=float(bath_occupation if schedule.start == "thermal"
-                                                  else schedule.start_occupation),
-                           sample_rate_hz=float(fs))
+PHASE_GRID = 8  # points around the circle of a phase's second start (our choice)
 
 
 def negative_log_likelihood(blocks, params):
@@ -167,7 +88,7 @@ def negative_log_likelihood(blocks, params):
     follow from the diffusion H + h_s and Γ_s of any sign. A record that hardly resolves Γm
     would otherwise pile its estimates up at Γm = 0 and bias Γm and H.
     """
-    from simulator.analysis.ringdown_likelihood import block_noise, kalman
+    from simulator.analysis.ringdown_likelihood import block_noise, kalman, profile_mean
 
     gamma_m, heating = (float(x) for x in params[:2])
     names = len(blocks.names)
@@ -202,33 +123,11 @@ def negative_log_likelihood(blocks, params):
     start = blocks.start_phonons((gamma_m, heating))
     if not np.isfinite(start):
         return np.inf
-    a, _, f = kalman(blocks.u, rho, beta, q, var_obs, cov_ef, start)
-    return float(np.sum(np.log(np.pi * f) + np.abs(a) ** 2 / f))
-
-
-def switch_phases(blocks):
-    """Start values of every name's phase φ (rad): the mean phase step of the block
-    means across the switches from the first name to it and back.
-
-    The anti-Stokes line reaches the record through the cavity, whose phase at
-    +f_m moves with the detuning: the amplitude jumps by e^{i(φ_B − φ_A)} at a
-    switch from A to B (about 1 rad for the example's resonant probe).
-    """
-    bounds, first = [], 0  # [segment index, first block, end] of every segment
-    for index, _, count in blocks.runs:
-        if not bounds or bounds[-1][0] != index:
-            bounds.append([index, first, first + count])
-        else:
-            bounds[-1][2] = first + count
-        first += count
-    steps = {}
-    for (i, _, end), (j, start, _) in zip(bounds[:-1], bounds[1:], strict=False):
-        a, b = blocks.models[i].name, blocks.models[j].name
-        if a != b:
-            steps[(a, b)] = steps.get((a, b), 0j) + blocks.u[start] * np.conj(blocks.u[end - 1])
-    head = blocks.names[0]
-    return np.array([np.angle(steps.get((head, name), 0j) + np.conj(steps.get((name, head), 0j)))
-                     for name in blocks.names[1:]])
+    var_obs[list(blocks.unobserved)] = np.inf  # a missing observation: the filter only predicts
+    a, c, f = kalman(blocks.u, rho, beta, q, var_obs, cov_ef, start,
+                     np.array(blocks.kicks, dtype=np.int64))
+    seen = np.isfinite(f)
+    return float(np.sum(np.log(np.pi * f[seen])) + profile_mean(a[seen], c[seen], f[seen])[1])
 
 
 def fit_heating(blocks, params0, scale0):
@@ -284,6 +183,23 @@ def fit_heating(blocks, params0, scale0):
     return params, cov
 
 
+def scan_phases(blocks, params):
+    """``params`` with each line phase in turn moved to the best of
+    :data:`PHASE_GRID` points around the circle (−ln L the judge).
+
+    A phase whose start comes from one switch out of a weak amplitude (the
+    probe after a short cooling) can start on the far side of −ln L's ridge in
+    that phase, where Newton's method runs to no maximum.
+    """
+    params = np.array(params, dtype=float)
+    for i in range(2, len(blocks.names) + 1):
+        trials = [params.copy() for _ in range(PHASE_GRID)]
+        for k, trial in enumerate(trials):
+            trial[i] += 2 * np.pi * k / PHASE_GRID
+        params = min(trials, key=lambda t: negative_log_likelihood(blocks, t))
+    return params
+
+
 def difference_steps(params, scale):
     """:data:`HESSIAN_STEP` units per axis, but never more than half the way to H = 0
     (where the model ends)."""
@@ -323,21 +239,25 @@ def heating_likelihood(record):
         raise InputError("heating_likelihood needs an iq record of a scenario with a "
                          f"[schedule]; got a {record.kind!r} record"
                          + ("" if scenario.schedule is not None else " without one"))
-    kicked = [s.name for s in scenario.schedule.segments if s.excite_phonons > 0]
+    kicked = [s.name for s in scenario.schedule.segments
+              if s.excite_phonons > 0 and s.excite_mode != 0]
     if kicked:
-        raise InputError(f"heating_likelihood: segment {kicked[0]!r} kicks the mode "
-                         "(excite_phonons > 0); expected a schedule of thermal transients "
-                         "only (the ring-down estimator fits kicks)")
+        raise InputError(f"heating_likelihood: segment {kicked[0]!r} kicks mechanical mode "
+                         "excite_mode > 0; expected kicks of the first mode only (the one "
+                         "whose sideband the likelihood reads)")
     fs = record.sample_rate_hz
     models, shifts, theta0, scale0 = nominal_model(scenario, fs)
     block = block_length(models, theta0, fs, scenario.mechanics[0].frequency_hz)
     blocks = scheduled_blocks(record.samples, scenario, block, models, shifts, fs,
-                              theta0[1] / theta0[0])
+                              theta0[1] / theta0[0], kick_settling(scenario))
     phases = switch_phases(blocks)
-    params, cov = fit_heating(blocks, np.concatenate([theta0, phases,
-                                                      np.ones(len(blocks.names))]),
-                              np.concatenate([scale0, np.full(len(phases), PHASE_STEP),
-                                              np.full(len(blocks.names), FLOOR_STEP)]))
+    start = np.concatenate([theta0, phases, np.ones(len(blocks.names))])
+    steps = np.concatenate([scale0, np.full(len(phases), PHASE_STEP),
+                            np.full(len(blocks.names), FLOOR_STEP)])
+    try:
+        params, cov = fit_heating(blocks, start, steps)
+    except InputError:  # stopped off the maximum: start again from the best phases
+        params, cov = fit_heating(blocks, scan_phases(blocks, start), steps)
     theta, cov = params[:2], cov[:2, :2]
     durations = [round(s.duration_s * fs) / fs for s in scenario.schedule.segments]
 

@@ -46,6 +46,7 @@ from simulator.errors import InputError
 
 LAMBDA_RANGE = (1e-9, 1e6)  # imprecision / thermal variance searched (log scale)
 HESSIAN_STEP = 0.3  # finite-difference step, in units of the starting error estimate
+START_KICK = np.zeros(1, np.int64)  # the ring-down's unknown amplitude enters at block 0
 IMPRECISION_TEST = 3.84  # 2Δ(ln L) a fitted imprecision must gain: χ²₁ at 95 % (our choice)
 
 
@@ -84,46 +85,73 @@ def innovations(u, gamma, spacing_s, lam):
     """
     rho, beta, q, var_f, cov_ef = block_noise(gamma, spacing_s)
     n = len(u)
-    return kalman(np.ascontiguousarray(u, dtype=np.complex128), np.full(n, complex(rho)),
-                  np.full(n, complex(beta)), np.full(n, float(q)),
-                  np.full(n, float(var_f + lam)), np.full(n, complex(cov_ef)), 1.0)
+    a, c, f = kalman(np.ascontiguousarray(u, dtype=np.complex128), np.full(n, complex(rho)),
+                     np.full(n, complex(beta)), np.full(n, float(q)),
+                     np.full(n, float(var_f + lam)), np.full(n, complex(cov_ef)), 1.0,
+                     START_KICK)
+    return a, c[:, 0], f
 
 
 @numba.njit(cache=True, nogil=True)
-def kalman(u, rho, beta, q, var_obs, cov_ef, v0):
+def kalman(u, rho, beta, q, var_obs, cov_ef, v0, kicks):
     """The recursion of :func:`innovations`, compiled, with step-by-step moments.
 
     Block k has its own ρ_k, β_k, E|e_k|² = q_k, observation variance
     var_obs_k (E|f_k|² plus the white floor) and E[e_k f_k*]; the state starts
-    at mean 0 (response 1 to the start amplitude) with variance ``v0``. Fixed
-    moments give the stationary ring-down; moments that change at a switch
-    give a scheduled record (:mod:`simulator.analysis.heating_likelihood`).
+    at mean 0 with variance ``v0``. Fixed moments give the stationary
+    ring-down; moments that change at a switch give a scheduled record
+    (:mod:`simulator.analysis.heating_likelihood`).
+
+    ``kicks`` (integer array) holds the blocks at whose start a kick adds a
+    deterministic mean to the amplitude; column j of the returned ``c`` is the
+    innovations' response to a unit kick at block ``kicks[j]``, decaying and
+    rotating with the ρ of every later block. The filter's gain does not
+    depend on the mean, so the innovations of the record with kicks m_j are
+    a + Σ_j m_j c_j, with the same variances f (the exact likelihood with a
+    linear mean: Harvey 1989, Sec. 3.4, from memory). ``kicks = [0]`` is the
+    ring-down's unknown start amplitude.
     """
     n = len(u)
+    p = len(kicks)
     a = np.empty(n, np.complex128)
-    c = np.empty(n, np.complex128)
+    c = np.empty((n, p), np.complex128)
     f = np.empty(n)
-    xa, xc, v = 0j, 1.0 + 0j, v0
+    xa, xc, v = 0j, np.zeros(p, np.complex128), v0
     for k in range(n):
+        for j in range(p):
+            if kicks[j] == k:
+                xc[j] += 1.0
         b = beta[k]
         fk = abs(b) ** 2 * v + var_obs[k]
         a[k] = u[k] - b * xa
-        c[k] = -b * xc
         f[k] = fk
         gx = v * np.conj(b) / fk
         ge = cov_ef[k] / fk
         r = rho[k]
         xa = r * (xa + gx * a[k]) + ge * a[k]
-        xc = r * (xc + gx * c[k]) + ge * c[k]
+        for j in range(p):
+            ck = -b * xc[j]
+            c[k, j] = ck
+            xc[j] = r * (xc[j] + gx * ck) + ge * ck
         v = abs(r) ** 2 * v + q[k] - abs(r * v * np.conj(b) + cov_ef[k]) ** 2 / fk
     return a, c, f
+
+
+def profile_mean(a, c, f):
+    """Kick amplitudes m̂ that minimise Σ|a + c m|²/f (generalised least squares) and
+    the minimum: the innovations' mean profiled out in closed form."""
+    w = c / np.sqrt(f)[:, None]
+    r = a / np.sqrt(f)
+    if w.shape[1] == 0:  # no kick: nothing to profile
+        return np.zeros(0, np.complex128), float(np.sum(np.abs(r) ** 2))
+    m = np.linalg.lstsq(w, -r, rcond=None)[0]
+    return m, float(np.sum(np.abs(r + w @ m) ** 2))
 
 
 def profile_nll(u, spacing_s, rate, shift, log_lam):
     """−ln L (constants dropped) with m₀ and P profiled out; also m̂₀ and P̂."""
     a, c, f = innovations(u, 0.5 * rate - 1j * shift, spacing_s, float(np.exp(log_lam)))
-    m0 = -np.sum(np.conj(c) * a / f) / np.sum(np.abs(c) ** 2 / f)
-    s = float(np.sum(np.abs(a + m0 * c) ** 2 / f))
+    (m0,), s = profile_mean(a, c[:, None], f)
     n = len(u)
     return n * np.log(s / n) + float(np.sum(np.log(f))), m0, s / n
 

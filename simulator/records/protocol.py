@@ -255,8 +255,10 @@ def plan_protocol(scenario, *, seed=None):
     fields = {f.name: getattr(first_plan, f.name) for f in dataclasses.fields(RecordPlan)}
     truth = dataclasses.replace(first_plan.truth, calibration=dict(
         first_plan.truth.calibration, full_scale_v=float(full_scale)))
-    fields.update(truth=truth, scenario=dataclasses.replace(first_plan.scenario,
-                                               schedule=scenario.schedule),
+    # the file's own values (not the first segment's changes), as every estimator
+    # applies each segment's changes to them itself
+    fields.update(truth=truth, scenario=dataclasses.replace(scenario,
+                                                            record=first_plan.scenario.record),
                   system=segments[0].system, chain=segments[0].chain,
                   sample_rate_hz=float(fs), n_samples=first, full_scale_v=float(full_scale),
                   discrete=discretes[0], innovations=None)
